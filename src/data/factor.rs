@@ -1,0 +1,190 @@
+//! Factors: columns of group labels coded as level indices.
+
+use std::collections::BTreeMap;
+
+use super::error::FactorError;
+use super::number::{format_number, parse_number, NumberParse};
+use super::{Column, Values};
+
+/// A column of group labels: each row holds the index of its level, or `None` when missing.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Factor {
+    /// Level index per row (`None` = missing).
+    pub codes: Vec<Option<u32>>,
+    /// Level names in level order; the first is the reference level.
+    pub levels: Vec<String>,
+    /// Where the level order came from.
+    pub order: LevelOrder,
+}
+
+/// Where a factor's level order came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LevelOrder {
+    /// The order the user declared.
+    Declared,
+    /// The order in which levels first appear in the data.
+    FirstAppearance,
+}
+
+impl Factor {
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.codes.len()
+    }
+
+    /// True when the factor has no rows.
+    pub fn is_empty(&self) -> bool {
+        self.codes.is_empty()
+    }
+
+    /// The level name of a row, `None` when missing or out of range.
+    pub fn level_of(&self, row: usize) -> Option<&str> {
+        let code = (*self.codes.get(row)?)?;
+        self.levels
+            .get(usize::try_from(code).ok()?)
+            .map(String::as_str)
+    }
+
+    /// Number of rows at each level, in level order.
+    pub fn counts(&self) -> Vec<usize> {
+        let mut counts = vec![0usize; self.levels.len()];
+        for code in self.codes.iter().flatten() {
+            if let Some(c) = usize::try_from(*code).ok().and_then(|i| counts.get_mut(i)) {
+                *c += 1;
+            }
+        }
+        counts
+    }
+}
+
+/// Levels that are declared but never occur, in level order (the caller warns about them).
+pub fn unused_levels(f: &Factor) -> Vec<&str> {
+    f.counts()
+        .iter()
+        .zip(&f.levels)
+        .filter(|(n, _)| **n == 0)
+        .map(|(_, l)| l.as_str())
+        .collect()
+}
+
+/// A lookup key for one cell value: text as itself, numbers by their bits (-0 made 0).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+enum Key<'a> {
+    Text(&'a str),
+    Num(u64),
+}
+
+fn num_key(v: f64) -> u64 {
+    // Adding 0.0 turns -0.0 into +0.0, so both zeros are one level.
+    (v + 0.0).to_bits()
+}
+
+/// Makes a factor from a column.
+///
+/// Without `levels`, levels are the distinct values in order of first appearance; numeric values
+/// become levels named by their shortest text (`1`, `2.5`). With `levels`, the order is the
+/// declared one: text cells match a level exactly, numeric cells match a level that reads as the
+/// same number, and factor columns are re-levelled by name. A value that occurs but is not
+/// declared is an error naming it and its first row; declared levels that never occur are kept
+/// (see [`unused_levels`]). Fewer than two distinct levels occurring is an error.
+pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, FactorError> {
+    let column = || col.name.clone();
+    let (declared, order) = match levels {
+        Some(d) => (Some(d), LevelOrder::Declared),
+        None => (None, LevelOrder::FirstAppearance),
+    };
+
+    // Keys of the values, row by row (None = missing), and for factor columns the old levels.
+    let mut names: Vec<String> = Vec::new();
+    let mut map: BTreeMap<Key<'_>, u32> = BTreeMap::new();
+    if let Some(d) = declared {
+        for level in d {
+            let key = match &col.values {
+                Values::Numeric(_) => match parse_number(level) {
+                    NumberParse::Number(x) => Some(Key::Num(num_key(x))),
+                    _ => None,
+                },
+                Values::Text(_) | Values::Factor(_) => Some(Key::Text(level.as_str())),
+            };
+            let code = u32::try_from(names.len())
+                .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+            if names.iter().any(|n| n == level) {
+                return Err(FactorError::DuplicateDeclaredLevel {
+                    column: column(),
+                    level: level.clone(),
+                });
+            }
+            if let Some(k) = key {
+                if map.insert(k, code).is_some() {
+                    return Err(FactorError::DuplicateDeclaredLevel {
+                        column: column(),
+                        level: level.clone(),
+                    });
+                }
+            }
+            names.push(level.clone());
+        }
+    }
+
+    let n = col.len();
+    let mut codes: Vec<Option<u32>> = Vec::with_capacity(n);
+    for row in 0..n {
+        let key = match &col.values {
+            Values::Numeric(v) => v
+                .get(row)
+                .copied()
+                .filter(|x| !x.is_nan())
+                .map(|x| Key::Num(num_key(x))),
+            Values::Text(v) => v.get(row).and_then(|s| s.as_deref()).map(Key::Text),
+            Values::Factor(f) => f.level_of(row).map(Key::Text),
+        };
+        let Some(key) = key else {
+            codes.push(None);
+            continue;
+        };
+        let code = match map.get(&key) {
+            Some(c) => *c,
+            None => {
+                let text = match key {
+                    Key::Text(s) => s.to_owned(),
+                    Key::Num(bits) => format_number(f64::from_bits(bits)),
+                };
+                if declared.is_some() {
+                    return Err(FactorError::UndeclaredLevel {
+                        column: column(),
+                        value: text,
+                        row,
+                        line: None,
+                    });
+                }
+                let c = u32::try_from(names.len())
+                    .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+                map.insert(key, c);
+                names.push(text);
+                c
+            }
+        };
+        codes.push(Some(code));
+    }
+
+    let factor = Factor {
+        codes,
+        levels: names,
+        order,
+    };
+    let occurring: Vec<String> = factor
+        .counts()
+        .iter()
+        .zip(&factor.levels)
+        .filter(|(c, _)| **c > 0)
+        .map(|(_, l)| l.clone())
+        .take(2)
+        .collect();
+    if occurring.len() < 2 {
+        return Err(FactorError::TooFewLevels {
+            column: column(),
+            found: occurring,
+        });
+    }
+    Ok(factor)
+}

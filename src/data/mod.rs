@@ -1,0 +1,263 @@
+//! Data sets: delimited text loaded into typed columns (numbers, text, factors) with missing
+//! values, plus the helpers messages need (closest column name, first non-number cell).
+
+mod error;
+mod factor;
+mod load;
+mod number;
+
+#[cfg(test)]
+mod tests;
+
+pub use error::{FactorError, LoadError};
+pub use factor::{make_factor, unused_levels, Factor, LevelOrder};
+pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
+pub use number::{format_number, parse_number, NumberParse, Suggestion};
+
+use sha2::{Digest, Sha256};
+
+/// A loaded table: named columns of equal length.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DataSet {
+    /// Name of the data set.
+    pub name: String,
+    /// Columns in file order.
+    pub columns: Vec<Column>,
+    /// For each data row, the 1-based file line where it starts (the header is line 1);
+    /// kept through filtering.
+    pub row_numbers: Vec<usize>,
+}
+
+/// A named column.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Column {
+    /// Column name (trimmed header cell).
+    pub name: String,
+    /// The cells.
+    pub values: Values,
+}
+
+/// The cells of a column.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Values {
+    /// Numbers; `f64::NAN` marks a missing cell (no other NaN can be loaded).
+    Numeric(Vec<f64>),
+    /// Text; `None` marks a missing cell.
+    Text(Vec<Option<String>>),
+    /// Group labels coded as levels.
+    Factor(Factor),
+}
+
+impl Values {
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        match self {
+            Values::Numeric(v) => v.len(),
+            Values::Text(v) => v.len(),
+            Values::Factor(f) => f.len(),
+        }
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Keeps the rows whose `keep` entry is true (rows beyond `keep` are dropped).
+    fn filter(&self, keep: &[bool]) -> Values {
+        fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
+            v.iter()
+                .zip(keep)
+                .filter(|(_, k)| **k)
+                .map(|(x, _)| x.clone())
+                .collect()
+        }
+        match self {
+            Values::Numeric(v) => Values::Numeric(pick(v, keep)),
+            Values::Text(v) => Values::Text(pick(v, keep)),
+            Values::Factor(f) => Values::Factor(Factor {
+                codes: pick(&f.codes, keep),
+                levels: f.levels.clone(),
+                order: f.order,
+            }),
+        }
+    }
+}
+
+impl Column {
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.values.len()
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.values.is_empty()
+    }
+
+    /// Number of missing cells.
+    pub fn missing_count(&self) -> usize {
+        match &self.values {
+            Values::Numeric(v) => v.iter().filter(|x| x.is_nan()).count(),
+            Values::Text(v) => v.iter().filter(|x| x.is_none()).count(),
+            Values::Factor(f) => f.codes.iter().filter(|x| x.is_none()).count(),
+        }
+    }
+
+    /// `"numeric"`, `"text"` or `"factor"`.
+    pub fn kind_name(&self) -> &'static str {
+        match self.values {
+            Values::Numeric(_) => "numeric",
+            Values::Text(_) => "text",
+            Values::Factor(_) => "factor",
+        }
+    }
+
+    /// True when the cell is missing (rows out of range count as missing).
+    pub fn is_missing(&self, row: usize) -> bool {
+        match &self.values {
+            Values::Numeric(v) => v.get(row).is_none_or(|x| x.is_nan()),
+            Values::Text(v) => v.get(row).is_none_or(|x| x.is_none()),
+            Values::Factor(f) => f.level_of(row).is_none(),
+        }
+    }
+
+    /// The cell as text: numbers in shortest round-trip form (see [`format_number`]), text as
+    /// is, factors by level name; missing (or out of range) is the empty string.
+    pub fn display_value(&self, row: usize) -> String {
+        match &self.values {
+            Values::Numeric(v) => v.get(row).map(|x| format_number(*x)).unwrap_or_default(),
+            Values::Text(v) => v.get(row).and_then(Clone::clone).unwrap_or_default(),
+            Values::Factor(f) => f.level_of(row).map(str::to_owned).unwrap_or_default(),
+        }
+    }
+}
+
+/// Edit distance between two strings in characters, counting an adjacent transposition as one
+/// edit: the optimal-string-alignment variant of the Damerau-Levenshtein distance
+/// (Levenshtein 1966; Damerau 1964, "A technique for computer detection and correction of
+/// spelling errors", CACM 7(3)).
+fn edit_distance(a: &[char], b: &[char]) -> usize {
+    let w = b.len() + 1;
+    // Three rolling rows: two back (for transpositions), previous, current.
+    let mut two_back = vec![0usize; w];
+    let mut prev: Vec<usize> = (0..w).collect();
+    let mut cur = vec![0usize; w];
+    for (i, ca) in a.iter().enumerate() {
+        cur[0] = i + 1;
+        for (j, cb) in b.iter().enumerate() {
+            let cost = usize::from(ca != cb);
+            let mut d = (prev[j] + cost).min(prev[j + 1] + 1).min(cur[j] + 1);
+            if i > 0 && j > 0 && a.get(i - 1) == Some(cb) && b.get(j - 1) == Some(ca) {
+                d = d.min(two_back[j - 1] + 1);
+            }
+            cur[j + 1] = d;
+        }
+        std::mem::swap(&mut two_back, &mut prev);
+        std::mem::swap(&mut prev, &mut cur);
+    }
+    prev[b.len()]
+}
+
+/// One edit allowed per this many characters of the longer name in [`DataSet::closest_name`]:
+/// enough for a slip or two in a typical name, not so loose that unrelated short names match.
+const CHARS_PER_EDIT: usize = 3;
+
+impl DataSet {
+    /// Number of data rows.
+    pub fn n_rows(&self) -> usize {
+        self.row_numbers.len()
+    }
+
+    /// The column with exactly this name.
+    pub fn column(&self, name: &str) -> Option<&Column> {
+        self.columns.iter().find(|c| c.name == name)
+    }
+
+    /// The column with exactly this name, for changing (e.g. into a factor).
+    pub fn column_mut(&mut self, name: &str) -> Option<&mut Column> {
+        self.columns.iter_mut().find(|c| c.name == name)
+    }
+
+    /// The column name closest to `name`, for "did you mean" hints; `None` when nothing is
+    /// close. Names compare case-insensitively by edit distance (see `edit_distance`); a name is
+    /// close when three times the distance is at most the longer name's length plus one, and
+    /// the distance is less than that length (so one-letter names never match each other).
+    /// Ties go to the earlier column.
+    pub fn closest_name(&self, name: &str) -> Option<&str> {
+        let query: Vec<char> = name.to_lowercase().chars().collect();
+        let mut best: Option<(usize, &str)> = None;
+        for col in &self.columns {
+            let cand: Vec<char> = col.name.to_lowercase().chars().collect();
+            let d = edit_distance(&query, &cand);
+            let longest = query.len().max(cand.len());
+            let close = d * CHARS_PER_EDIT <= longest + 1 && d < longest;
+            if close && best.is_none_or(|(bd, _)| d < bd) {
+                best = Some((d, col.name.as_str()));
+            }
+        }
+        best.map(|(_, n)| n)
+    }
+
+    /// The rows whose `keep` entry is true, row numbers kept in step. Rows beyond the end of
+    /// `keep` are dropped.
+    pub fn filter(&self, keep: &[bool]) -> DataSet {
+        DataSet {
+            name: self.name.clone(),
+            columns: self
+                .columns
+                .iter()
+                .map(|c| Column {
+                    name: c.name.clone(),
+                    values: c.values.filter(keep),
+                })
+                .collect(),
+            row_numbers: self
+                .row_numbers
+                .iter()
+                .zip(keep)
+                .filter(|(_, k)| **k)
+                .map(|(r, _)| *r)
+                .collect(),
+        }
+    }
+
+    /// Number of missing cells in `col` (same as [`Column::missing_count`]).
+    pub fn missing_count(&self, col: &Column) -> usize {
+        col.missing_count()
+    }
+
+    /// The file line of data row `row`, if it exists.
+    pub fn line_of(&self, row: usize) -> Option<usize> {
+        self.row_numbers.get(row).copied()
+    }
+
+    /// [`make_factor`], with the file line filled into an undeclared-level error.
+    pub fn factor(&self, col: &Column, levels: Option<&[String]>) -> Result<Factor, FactorError> {
+        make_factor(col, levels).map_err(|e| e.locate(&self.row_numbers))
+    }
+}
+
+/// The first cell that is present but not a plain number, as (0-based row, text), for
+/// "column x is text: line 41 holds 'n/a'" messages (map the row through `row_numbers`).
+pub fn first_non_number(values: &[Option<String>]) -> Option<(usize, &str)> {
+    values.iter().enumerate().find_map(|(i, v)| {
+        let s = v.as_deref()?;
+        match parse_number(s) {
+            NumberParse::Number(_) => None,
+            _ => Some((i, s)),
+        }
+    })
+}
+
+/// SHA-256 (FIPS 180-4) of the bytes, as 64 lowercase hex digits.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    const HEX: &[u8; 16] = b"0123456789abcdef";
+    let digest = Sha256::digest(bytes);
+    let mut out = String::with_capacity(64);
+    for b in digest {
+        out.push(char::from(HEX[usize::from(b >> 4)]));
+        out.push(char::from(HEX[usize::from(b & 0x0f)]));
+    }
+    out
+}

@@ -1,0 +1,248 @@
+//! Reading cell text as numbers, spotting near-misses, and writing numbers back as text.
+
+use std::fmt;
+
+/// What a cell's text is when read as a number.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum NumberParse {
+    /// A plain finite decimal number.
+    Number(f64),
+    /// Not a number in any sense (a label, a date, a word).
+    NotNumber,
+    /// Looks like a number (or a missing-value marker) but is refused; the suggestion says why.
+    Suspicious(Suggestion),
+}
+
+/// Why a number-like cell is refused, and what the user can do about it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Suggestion {
+    /// A comma used as decimal separator, as in `3,5` or `1.234,5`.
+    DecimalComma,
+    /// Digits grouped by thousands separators, as in `1,234.5`, `1 234` or `1'234`.
+    ThousandsSeparator,
+    /// A single comma followed by three digits, as in `1,234`: a thousands separator or a decimal comma.
+    AmbiguousComma,
+    /// Not-a-number or infinity written as text, as in `NaN`, `Inf`, `-infinity`.
+    NonFiniteText,
+    /// A common missing-value marker that was not declared, as in `NA`, `N/A`, `.`, `-`.
+    MissingMarker,
+    /// A number outside the range of double precision, as in `1e400`.
+    OutOfRange,
+}
+
+impl Suggestion {
+    /// A short phrase saying what is wrong with the cell (completes "'3,5' ...").
+    pub fn reason(self) -> &'static str {
+        match self {
+            Suggestion::DecimalComma => "uses a comma as decimal separator",
+            Suggestion::ThousandsSeparator => "contains thousands separators",
+            Suggestion::AmbiguousComma => {
+                "has a comma that is either a thousands separator or a decimal comma"
+            }
+            Suggestion::NonFiniteText => "is not-a-number or infinity written as text",
+            Suggestion::MissingMarker => "looks like a missing-value marker",
+            Suggestion::OutOfRange => {
+                "is outside the range of double-precision numbers (about 1.8e308 in size)"
+            }
+        }
+    }
+
+    /// What to do, given the offending cell text (used inside the advice for markers).
+    pub fn advice(self, text: &str) -> String {
+        match self {
+            Suggestion::DecimalComma => {
+                "use a point as decimal separator (3.5, not 3,5) and no thousands separators"
+                    .to_owned()
+            }
+            Suggestion::ThousandsSeparator => {
+                "remove thousands separators (1234.5, not 1,234.5 or 1 234.5)".to_owned()
+            }
+            Suggestion::AmbiguousComma => {
+                "remove thousands separators (1234, not 1,234) or, if the comma marks decimals, \
+                 use a point as decimal separator (1.234)"
+                    .to_owned()
+            }
+            Suggestion::NonFiniteText | Suggestion::MissingMarker => format!(
+                "write missing values as an empty cell or declare the marker with missing \"{text}\""
+            ),
+            Suggestion::OutOfRange => {
+                "check the value, or rescale the column (for example change its units) so every \
+                 value is smaller than about 1e308"
+                    .to_owned()
+            }
+        }
+    }
+}
+
+impl fmt::Display for Suggestion {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.reason())
+    }
+}
+
+/// Cell texts that are common missing-value markers (compared without regard to case).
+const MISSING_LIKE: [&str; 9] = [
+    "na", "n/a", "#n/a", "null", "none", "missing", ".", "-", "?",
+];
+
+/// Characters other than the comma and the point that people use to group thousands:
+/// space, no-break space, narrow no-break space, apostrophe.
+const GROUP_SPACES: [char; 4] = [' ', '\u{a0}', '\u{202f}', '\''];
+
+/// Trims spaces and tabs (the only padding covey removes from cells).
+pub(crate) fn trim_str(text: &str) -> &str {
+    text.trim_matches(|c| c == ' ' || c == '\t')
+}
+
+/// Reads `text` (trimmed of spaces and tabs) as a plain decimal number.
+///
+/// Accepted: optional sign, digits with an optional point (`.5` and `5.` included), optional
+/// exponent (`1e-3`, `2E+4`), with a finite value. Refused with a [`Suggestion`]: decimal commas,
+/// thousands separators, `NaN`/`Inf`/`infinity` text, common missing markers such as `NA`, and
+/// values beyond the `f64` range. Everything else is [`NumberParse::NotNumber`].
+pub fn parse_number(text: &str) -> NumberParse {
+    parse_trimmed(trim_str(text))
+}
+
+/// [`parse_number`] for text that is already trimmed.
+///
+/// The plain-number grammar is exactly that of Rust's `f64::from_str` (documented in the
+/// standard library: sign, digits, optional point and exponent) minus its `inf`/`infinity`/`nan`
+/// words, so std's parser does the work and the non-finite results are sorted out afterwards.
+pub(crate) fn parse_trimmed(t: &str) -> NumberParse {
+    if t.is_empty() {
+        return NumberParse::NotNumber;
+    }
+    match t.parse::<f64>() {
+        Ok(v) if v.is_finite() => NumberParse::Number(v),
+        Ok(_) => {
+            // Either a word (inf, nan, infinity) or a numeral whose value overflowed.
+            if t.bytes()
+                .any(|b| b.is_ascii_alphabetic() && b != b'e' && b != b'E')
+            {
+                NumberParse::Suspicious(Suggestion::NonFiniteText)
+            } else {
+                NumberParse::Suspicious(Suggestion::OutOfRange)
+            }
+        }
+        Err(_) => classify_near_miss(t),
+    }
+}
+
+/// Decides whether text that std refused is nevertheless number-like.
+fn classify_near_miss(t: &str) -> NumberParse {
+    if MISSING_LIKE.iter().any(|m| t.eq_ignore_ascii_case(m)) {
+        return NumberParse::Suspicious(Suggestion::MissingMarker);
+    }
+    let body = t
+        .strip_prefix('+')
+        .or_else(|| t.strip_prefix('-'))
+        .unwrap_or(t);
+    let allowed = |c: char| c.is_ascii_digit() || c == ',' || c == '.' || GROUP_SPACES.contains(&c);
+    if body.is_empty() || !body.chars().all(allowed) || !body.chars().any(|c| c.is_ascii_digit()) {
+        return NumberParse::NotNumber;
+    }
+    let found = match (body.rfind(','), body.rfind('.')) {
+        (Some(c), Some(p)) if p > c => {
+            // 1,234.5: point for decimals, commas (or spaces) grouping.
+            let (int, frac) = split_at_sep(body, p);
+            (all_digits(frac) && grouped(int, &[','])).then_some(Suggestion::ThousandsSeparator)
+        }
+        (Some(c), Some(_)) => {
+            // 1.234,5: comma for decimals, points (or spaces) grouping.
+            let (int, frac) = split_at_sep(body, c);
+            (all_digits(frac)
+                && !frac.is_empty()
+                && (grouped(int, &['.']) || grouped(int, &GROUP_SPACES)))
+            .then_some(Suggestion::DecimalComma)
+        }
+        (Some(c), None) => {
+            let (int, frac) = split_at_sep(body, c);
+            if !all_digits(frac) || frac.is_empty() {
+                None
+            } else if int.contains(',') {
+                grouped(body, &[',']).then_some(Suggestion::ThousandsSeparator)
+            } else if all_digits(int) {
+                let could_group = (1..=3).contains(&int.len()) && !int.starts_with('0');
+                if could_group && frac.len() == 3 {
+                    Some(Suggestion::AmbiguousComma)
+                } else {
+                    Some(Suggestion::DecimalComma)
+                }
+            } else {
+                grouped(int, &GROUP_SPACES).then_some(Suggestion::DecimalComma)
+            }
+        }
+        (None, Some(p)) => {
+            if body.matches('.').count() > 1 {
+                grouped(body, &['.']).then_some(Suggestion::ThousandsSeparator)
+            } else {
+                let (int, frac) = split_at_sep(body, p);
+                (all_digits(frac) && grouped(int, &GROUP_SPACES))
+                    .then_some(Suggestion::ThousandsSeparator)
+            }
+        }
+        (None, None) => grouped(body, &GROUP_SPACES).then_some(Suggestion::ThousandsSeparator),
+    };
+    match found {
+        Some(s) => NumberParse::Suspicious(s),
+        None => NumberParse::NotNumber,
+    }
+}
+
+/// Splits `s` around the one-byte separator at byte index `at` (a ',' or '.').
+fn split_at_sep(s: &str, at: usize) -> (&str, &str) {
+    (
+        s.get(..at).unwrap_or(""),
+        s.get(at.saturating_add(1)..).unwrap_or(""),
+    )
+}
+
+fn all_digits(s: &str) -> bool {
+    s.bytes().all(|b| b.is_ascii_digit())
+}
+
+/// True when `s` is digits in groups split by one of `seps`: the first group 1 to 3 digits,
+/// every later group exactly 3 digits, and at least two groups.
+fn grouped(s: &str, seps: &[char]) -> bool {
+    let mut groups = s.split(|c| seps.contains(&c));
+    let Some(first) = groups.next() else {
+        return false;
+    };
+    if first.is_empty() || first.len() > 3 || !all_digits(first) {
+        return false;
+    }
+    let mut more = 0usize;
+    for g in groups {
+        if g.len() != 3 || !all_digits(g) {
+            return false;
+        }
+        more += 1;
+    }
+    more > 0
+}
+
+/// Magnitudes from this size up are written in exponent form (`1e16`, not 17 digits).
+const PLAIN_MAX: f64 = 1e16;
+/// Magnitudes below this size are written in exponent form (`1e-5`, not `0.00001`).
+const PLAIN_MIN: f64 = 1e-5;
+
+/// Writes a number in its shortest round-trip form: `1`, `2.5`, `-0.125`, `1e300`, `1.5e-7`.
+///
+/// Rust's float formatting prints the shortest digit string that reads back to the same value
+/// (the Grisu/Ryu approach); exponent form is used outside [`PLAIN_MIN`, `PLAIN_MAX`).
+/// Negative zero is written `0`; a missing value (NaN) is the empty string.
+pub fn format_number(v: f64) -> String {
+    if v.is_nan() {
+        return String::new();
+    }
+    if v == 0.0 {
+        return "0".to_owned();
+    }
+    let a = v.abs();
+    if (PLAIN_MIN..PLAIN_MAX).contains(&a) {
+        format!("{v}")
+    } else {
+        format!("{v:e}")
+    }
+}

@@ -1,0 +1,99 @@
+//! Errors and warnings that point at the place in the Markdown document the
+//! user wrote, laid out with codespan-reporting (plain ASCII, no colour, so
+//! that the text is the same on a terminal and inside a rendered document).
+
+use codespan_reporting::diagnostic::{Diagnostic as CsDiagnostic, Label};
+use codespan_reporting::files::SimpleFile;
+use codespan_reporting::term::{self, termcolor::NoColor, Chars, Config};
+
+use crate::lang::Span;
+
+/// A problem at a place in a document: what is wrong and what to do.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Diagnostic {
+    pub span: Span,
+    /// What is wrong, in plain words.
+    pub message: String,
+    /// A short label under the caret.
+    pub label: String,
+    /// What to do about it.
+    pub help: Option<String>,
+}
+
+impl Diagnostic {
+    pub fn new(span: Span, message: impl Into<String>) -> Diagnostic {
+        Diagnostic {
+            span,
+            message: message.into(),
+            label: String::new(),
+            help: None,
+        }
+    }
+
+    pub fn label(mut self, label: impl Into<String>) -> Diagnostic {
+        self.label = label.into();
+        self
+    }
+
+    pub fn help(mut self, help: impl Into<String>) -> Diagnostic {
+        self.help = Some(help.into());
+        self
+    }
+}
+
+/// 1-based line and column (in characters) of a byte offset.
+pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
+    let offset = floor_char_boundary(source, offset.min(source.len()));
+    let before = &source[..offset];
+    let line = before.bytes().filter(|b| *b == b'\n').count() + 1;
+    let line_start = before.rfind('\n').map_or(0, |i| i + 1);
+    (line, before[line_start..].chars().count() + 1)
+}
+
+fn floor_char_boundary(s: &str, mut i: usize) -> usize {
+    while i > 0 && !s.is_char_boundary(i) {
+        i -= 1;
+    }
+    i
+}
+
+/// `file:line:column: message` followed by the source line with a caret and
+/// the help, as one block of text.
+pub fn render(file_name: &str, source: &str, d: &Diagnostic) -> String {
+    let file = SimpleFile::new(file_name, source);
+    let start = floor_char_boundary(source, d.span.start.min(source.len()));
+    let end = floor_char_boundary(source, d.span.end.min(source.len())).max(start);
+    let mut diag = CsDiagnostic::error()
+        .with_message(&d.message)
+        .with_labels(vec![Label::primary((), start..end).with_message(&d.label)]);
+    if let Some(h) = &d.help {
+        diag = diag.with_notes(vec![format!("help: {h}")]);
+    }
+    let config = Config {
+        chars: Chars::ascii(),
+        ..Config::default()
+    };
+    let mut out = NoColor::new(Vec::new());
+    let (line, col) = line_col(source, start);
+    let head = format!("{file_name}:{line}:{col}: {}\n", d.message);
+    match term::emit(&mut out, &config, &file, &diag) {
+        Ok(()) => head + &String::from_utf8_lossy(out.get_ref()),
+        Err(_) => head,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn points_at_line_and_column() {
+        let src = "# Title\n\n```covey\nload \"x.csv\" az y\n```\n";
+        let at = src.find("az").unwrap_or(0);
+        let d = Diagnostic::new(Span { start: at, end: at + 2 }, "expected `as`").help("write `as NAME`");
+        let text = render("doc.md", src, &d);
+        assert!(text.starts_with("doc.md:4:14: expected `as`"), "{text}");
+        assert!(text.contains("^^"), "{text}");
+        assert!(text.contains("help: write `as NAME`"), "{text}");
+    }
+}

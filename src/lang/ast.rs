@@ -1,0 +1,209 @@
+//! The syntax tree of covey statements. Every node that a later error may
+//! point at carries its [`Span`]: a byte range in the Markdown document.
+
+/// A byte range in the Markdown document (not within the block).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct Span {
+    pub start: usize,
+    pub end: usize,
+}
+
+/// A value with the place it was written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Spanned<T> {
+    pub value: T,
+    pub span: Span,
+}
+
+/// One statement: what it asks for, where it stands and its text as written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Statement {
+    pub kind: StatementKind,
+    pub span: Span,
+    /// 1-based line in the Markdown document.
+    pub line: usize,
+    /// The statement as written, without comment or surrounding blanks.
+    pub text: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum StatementKind {
+    Load {
+        path: Spanned<String>,
+        name: Option<Spanned<String>>,
+    },
+    Missing {
+        markers: Vec<String>,
+    },
+    Use {
+        name: Spanned<String>,
+    },
+    Factor {
+        column: Spanned<String>,
+        levels: Option<Vec<Spanned<String>>>,
+    },
+    Keep {
+        condition: Condition,
+    },
+    Show {
+        name: Option<Spanned<String>>,
+    },
+    Model(ModelDecl),
+    Table(TableRequest),
+}
+
+/// A row filter of `keep where`.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Condition {
+    Compare {
+        column: Spanned<String>,
+        op: CompareOp,
+        value: Spanned<Literal>,
+    },
+    In {
+        column: Spanned<String>,
+        values: Vec<Spanned<Literal>>,
+    },
+    Not(Box<Condition>),
+    And(Vec<Condition>),
+    Or(Vec<Condition>),
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CompareOp {
+    Eq,
+    Ne,
+    Lt,
+    Le,
+    Gt,
+    Ge,
+}
+
+/// A value written in a statement. A bare word and a quoted string are both
+/// text; a number keeps the text it was written with, so that it can also
+/// match a text cell or a factor level spelled the same way.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Literal {
+    Number(f64, String),
+    Text(String),
+}
+
+impl Literal {
+    /// The value as text, as the user wrote it.
+    pub fn as_text(&self) -> &str {
+        match self {
+            Literal::Number(_, text) | Literal::Text(text) => text,
+        }
+    }
+}
+
+/// `model NAME: RESPONSE on TERM + TERM ... [without intercept]`
+#[derive(Debug, Clone, PartialEq)]
+pub struct ModelDecl {
+    pub name: Spanned<String>,
+    pub response: Spanned<String>,
+    pub terms: Vec<TermDecl>,
+    pub intercept: bool,
+}
+
+/// A product of parts joined with `by`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TermDecl {
+    pub parts: Vec<PartDecl>,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct PartDecl {
+    pub column: Spanned<String>,
+    pub transform: TransformDecl,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TransformDecl {
+    None,
+    Power(u32),
+    Log,
+    Sqrt,
+}
+
+/// Which sums of squares an ANOVA table shows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SsKind {
+    Sequential,
+    Partial,
+    Marginal,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum AdjustMethod {
+    Tukey,
+    Holm,
+    Bonferroni,
+    Sidak,
+    None,
+}
+
+/// `at X = VALUE, ...`
+#[derive(Debug, Clone, PartialEq)]
+pub struct Setting {
+    pub column: Spanned<String>,
+    pub value: f64,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum TableRequest {
+    Summary {
+        column: Spanned<String>,
+        by: Option<Spanned<String>>,
+    },
+    Fit {
+        model: Spanned<String>,
+    },
+    Coefficients {
+        model: Spanned<String>,
+        level: Option<Spanned<f64>>,
+    },
+    Anova {
+        model: Spanned<String>,
+        kind: SsKind,
+    },
+    Compare {
+        first: Spanned<String>,
+        second: Spanned<String>,
+    },
+    Means {
+        model: Spanned<String>,
+        factor: Spanned<String>,
+        at: Vec<Setting>,
+        level: Option<Spanned<f64>>,
+    },
+    Pairs {
+        model: Spanned<String>,
+        factor: Spanned<String>,
+        at: Vec<Setting>,
+        adjust: AdjustMethod,
+        level: Option<Spanned<f64>>,
+    },
+    Slopes {
+        model: Spanned<String>,
+        covariate: Option<Spanned<String>>,
+        factor: Spanned<String>,
+        level: Option<Spanned<f64>>,
+    },
+    Contrast {
+        model: Spanned<String>,
+        factor: Spanned<String>,
+        weights: Spanned<Vec<f64>>,
+        at: Vec<Setting>,
+        level: Option<Spanned<f64>>,
+    },
+    Regions {
+        model: Spanned<String>,
+        covariate: Spanned<String>,
+        factor: Spanned<String>,
+        between: Option<(Spanned<String>, Spanned<String>)>,
+        alpha: Option<Spanned<f64>>,
+    },
+}

@@ -1,0 +1,30 @@
+//! The covey language: the pest grammar in grammar/covey.pest, the syntax
+//! tree, and the parser that turns a block's lines into statements.
+
+pub mod ast;
+pub mod parser;
+
+pub use ast::*;
+pub use parser::{parse_line, SyntaxError};
+
+/// Parses every line of a block. `lines` yields each line's text (without its
+/// line ending), its byte offset in the document and its 1-based line number.
+/// All syntax errors of the block are returned, not just the first.
+pub fn parse_block<'a>(
+    lines: impl IntoIterator<Item = (&'a str, usize, usize)>,
+) -> Result<Vec<Statement>, Vec<SyntaxError>> {
+    let mut statements = Vec::new();
+    let mut errors = Vec::new();
+    for (text, offset, line_no) in lines {
+        match parse_line(text, offset, line_no) {
+            Ok(Some(s)) => statements.push(s),
+            Ok(None) => {}
+            Err(e) => errors.push(e),
+        }
+    }
+    if errors.is_empty() {
+        Ok(statements)
+    } else {
+        Err(errors)
+    }
+}

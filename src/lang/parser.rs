@@ -1,0 +1,676 @@
+//! From the text of a covey block to [`Statement`]s, one line at a time.
+
+use pest::iterators::Pair;
+use pest::Parser;
+use pest_derive::Parser;
+
+use super::ast::*;
+
+#[derive(Parser)]
+#[grammar = "../grammar/covey.pest"]
+struct CoveyParser;
+
+/// A statement that does not follow the grammar.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SyntaxError {
+    /// Where in the Markdown document the parser gave up.
+    pub span: Span,
+    /// What was expected there, in plain words.
+    pub message: String,
+}
+
+/// Parses one line of a covey block. `offset` is the byte offset of the
+/// line's start in the Markdown document and `line_no` its 1-based number;
+/// spans in the result are document offsets. A blank or comment-only line
+/// gives `Ok(None)`.
+pub fn parse_line(
+    text: &str,
+    offset: usize,
+    line_no: usize,
+) -> Result<Option<Statement>, SyntaxError> {
+    let mut pairs = CoveyParser::parse(Rule::line, text).map_err(|e| syntax_error(&e, text, offset))?;
+    let Some(line) = pairs.next() else {
+        return Ok(None);
+    };
+    let Some(stmt) = line.into_inner().find(|p| p.as_rule() != Rule::EOI) else {
+        return Ok(None);
+    };
+    let b = Builder { offset };
+    let span = b.span(&stmt);
+    let kind = b.statement(stmt)?;
+    Ok(Some(Statement {
+        kind,
+        span,
+        line: line_no,
+        text: text[span.start - offset..span.end - offset].trim().to_string(),
+    }))
+}
+
+fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> SyntaxError {
+    use pest::error::{ErrorVariant, InputLocation};
+    let pos = match e.location {
+        InputLocation::Pos(p) => p,
+        InputLocation::Span((s, _)) => s,
+    };
+    // Point at the whole offending word, not just its first byte.
+    let rest = &text[pos.min(text.len())..];
+    let word_len = rest
+        .char_indices()
+        .find(|(_, c)| c.is_whitespace())
+        .map_or(rest.len(), |(i, _)| i);
+    let span = Span {
+        start: offset + pos,
+        end: offset + pos + word_len.max(usize::from(!rest.is_empty())),
+    };
+    let found = if rest.trim().is_empty() {
+        "the end of the line".to_string()
+    } else {
+        format!("`{}`", &rest[..word_len.max(1).min(rest.len())])
+    };
+    let message = match &e.variant {
+        ErrorVariant::ParsingError { positives, .. } => {
+            let mut wanted: Vec<&str> = positives.iter().map(|r| describe(*r)).collect();
+            wanted.sort_unstable();
+            wanted.dedup();
+            if pos == 0 || text[..pos].trim().is_empty() {
+                format!(
+                    "this line does not start with a statement (found {found}); a statement starts with {}",
+                    join_or(&wanted)
+                )
+            } else if wanted.is_empty() {
+                format!("unexpected {found}")
+            } else {
+                format!("expected {}, found {found}", join_or(&wanted))
+            }
+        }
+        ErrorVariant::CustomError { message } => message.clone(),
+    };
+    SyntaxError { span, message }
+}
+
+fn join_or(items: &[&str]) -> String {
+    match items {
+        [] => String::new(),
+        [one] => (*one).to_string(),
+        [rest @ .., last] => format!("{} or {last}", rest.join(", ")),
+    }
+}
+
+/// Plain words for what a grammar rule stands for, used in syntax errors.
+fn describe(rule: Rule) -> &'static str {
+    match rule {
+        Rule::string => "a double-quoted text",
+        Rule::ident => "a name",
+        Rule::name => "a column name",
+        Rule::number => "a number",
+        Rule::integer => "a whole number",
+        Rule::value | Rule::value_list => "a value (number, word or quoted text)",
+        Rule::compare_op => "a comparison (==, !=, <, <=, >, >=)",
+        Rule::condition
+        | Rule::conjunction
+        | Rule::negation
+        | Rule::primary
+        | Rule::comparison
+        | Rule::membership => "a condition such as `dose > 2` or `group in (A, B)`",
+        Rule::terms | Rule::term | Rule::part | Rule::transformed | Rule::powered => {
+            "a model term (a column, `A by B`, `x^2`, `log(x)` or `sqrt(x)`)"
+        }
+        Rule::transform => "`log` or `sqrt`",
+        Rule::ss_type => "1, 2 or 3",
+        Rule::adjust_method => "tukey, holm, bonferroni, sidak or none",
+        Rule::setting | Rule::at_clause => "a setting such as `x = 20`",
+        Rule::EOI => "the end of the line",
+        Rule::statement
+        | Rule::load_stmt
+        | Rule::missing_stmt
+        | Rule::use_stmt
+        | Rule::factor_stmt
+        | Rule::keep_stmt
+        | Rule::show_stmt
+        | Rule::model_stmt
+        | Rule::table_stmt => {
+            "load, missing, use, factor, keep, show, model or table"
+        }
+        Rule::summary_table
+        | Rule::fit_table
+        | Rule::coefficients_table
+        | Rule::anova_table
+        | Rule::compare_table
+        | Rule::means_table
+        | Rule::pairs_table
+        | Rule::slopes_table
+        | Rule::contrast_table
+        | Rule::regions_table => {
+            "a table kind (summary, fit, coefficients, anova, compare, means, pairs, slopes, contrast, regions)"
+        }
+        Rule::no_intercept => "`without intercept`",
+        Rule::level_opt => "`level` and a confidence level such as 0.99",
+        Rule::alpha_opt => "`alpha` and a significance level such as 0.05",
+        Rule::kw_load => "`load`",
+        Rule::kw_as => "`as`",
+        Rule::kw_missing => "`missing`",
+        Rule::kw_use => "`use`",
+        Rule::kw_factor => "`factor`",
+        Rule::kw_levels => "`levels`",
+        Rule::kw_keep => "`keep`",
+        Rule::kw_where => "`where`",
+        Rule::kw_show => "`show`",
+        Rule::kw_or => "`or`",
+        Rule::kw_and => "`and`",
+        Rule::kw_not => "`not`",
+        Rule::kw_in => "`in`",
+        Rule::kw_model => "`model`",
+        Rule::kw_on => "`on`",
+        Rule::kw_by => "`by`",
+        Rule::kw_without => "`without`",
+        Rule::kw_intercept => "`intercept`",
+        Rule::kw_table => "`table`",
+        Rule::kw_summary => "`summary`",
+        Rule::kw_fit => "`fit`",
+        Rule::kw_coefficients => "`coefficients`",
+        Rule::kw_anova => "`anova`",
+        Rule::kw_type => "`type`",
+        Rule::kw_compare => "`compare`",
+        Rule::kw_means => "`means`",
+        Rule::kw_for => "`for`",
+        Rule::kw_at => "`at`",
+        Rule::kw_pairs => "`pairs`",
+        Rule::kw_adjust => "`adjust`",
+        Rule::kw_slopes => "`slopes`",
+        Rule::kw_of => "`of`",
+        Rule::kw_contrast => "`contrast`",
+        Rule::kw_weights => "`weights`",
+        Rule::kw_regions => "`regions`",
+        Rule::kw_between => "`between`",
+        Rule::kw_level => "`level`",
+        Rule::kw_alpha => "`alpha`",
+        _ => "more text",
+    }
+}
+
+/// Builds AST nodes from pest pairs, turning line offsets into document
+/// offsets.
+struct Builder {
+    offset: usize,
+}
+
+fn is_keyword(rule: Rule) -> bool {
+    matches!(
+        rule,
+        Rule::kw_load
+            | Rule::kw_as
+            | Rule::kw_missing
+            | Rule::kw_use
+            | Rule::kw_factor
+            | Rule::kw_levels
+            | Rule::kw_keep
+            | Rule::kw_where
+            | Rule::kw_show
+            | Rule::kw_or
+            | Rule::kw_and
+            | Rule::kw_not
+            | Rule::kw_in
+            | Rule::kw_model
+            | Rule::kw_on
+            | Rule::kw_by
+            | Rule::kw_without
+            | Rule::kw_intercept
+            | Rule::kw_table
+            | Rule::kw_summary
+            | Rule::kw_fit
+            | Rule::kw_coefficients
+            | Rule::kw_anova
+            | Rule::kw_type
+            | Rule::kw_compare
+            | Rule::kw_means
+            | Rule::kw_for
+            | Rule::kw_at
+            | Rule::kw_pairs
+            | Rule::kw_adjust
+            | Rule::kw_slopes
+            | Rule::kw_of
+            | Rule::kw_contrast
+            | Rule::kw_weights
+            | Rule::kw_regions
+            | Rule::kw_between
+            | Rule::kw_level
+            | Rule::kw_alpha
+    )
+}
+
+/// The meaningful children of a pair: keywords dropped.
+fn children(pair: Pair<'_, Rule>) -> Vec<Pair<'_, Rule>> {
+    pair.into_inner().filter(|p| !is_keyword(p.as_rule())).collect()
+}
+
+impl Builder {
+    fn span(&self, pair: &Pair<'_, Rule>) -> Span {
+        let s = pair.as_span();
+        Span {
+            start: self.offset + s.start(),
+            end: self.offset + s.end(),
+        }
+    }
+
+    fn error(&self, pair: &Pair<'_, Rule>, message: String) -> SyntaxError {
+        SyntaxError {
+            span: self.span(pair),
+            message,
+        }
+    }
+
+    fn statement(&self, pair: Pair<'_, Rule>) -> Result<StatementKind, SyntaxError> {
+        let rule = pair.as_rule();
+        let mut kids = children(pair).into_iter();
+        Ok(match rule {
+            Rule::load_stmt => {
+                let path = next(&mut kids).map(|p| self.string(p))?;
+                let name = kids.next().map(|p| self.ident(p));
+                StatementKind::Load { path, name }
+            }
+            Rule::missing_stmt => StatementKind::Missing {
+                markers: kids.map(|p| self.string(p).value).collect(),
+            },
+            Rule::use_stmt => StatementKind::Use {
+                name: self.ident(next(&mut kids)?),
+            },
+            Rule::factor_stmt => {
+                let column = self.name(next(&mut kids)?);
+                let levels = kids.next().map(|list| {
+                    children(list)
+                        .into_iter()
+                        .map(|v| {
+                            let span = self.span(&v);
+                            Spanned {
+                                value: self.literal(v).as_text().to_string(),
+                                span,
+                            }
+                        })
+                        .collect()
+                });
+                StatementKind::Factor { column, levels }
+            }
+            Rule::keep_stmt => StatementKind::Keep {
+                condition: self.condition(next(&mut kids)?)?,
+            },
+            Rule::show_stmt => StatementKind::Show {
+                name: kids.next().map(|p| self.ident(p)),
+            },
+            Rule::model_stmt => StatementKind::Model(self.model(kids)?),
+            Rule::table_stmt => StatementKind::Table(self.table(next(&mut kids)?)?),
+            _ => unreachable_rule(rule)?,
+        })
+    }
+
+    fn model<'a>(&self, mut kids: impl Iterator<Item = Pair<'a, Rule>>) -> Result<ModelDecl, SyntaxError> {
+        let name = self.ident(next(&mut kids)?);
+        let response = self.name(next(&mut kids)?);
+        let terms_pair = next(&mut kids)?;
+        let mut terms = Vec::new();
+        for term in children(terms_pair) {
+            let span = self.span(&term);
+            let mut parts = Vec::new();
+            for part in children(term) {
+                parts.push(self.part(part)?);
+            }
+            terms.push(TermDecl { parts, span });
+        }
+        let intercept = kids.next().is_none();
+        Ok(ModelDecl {
+            name,
+            response,
+            terms,
+            intercept,
+        })
+    }
+
+    fn part(&self, pair: Pair<'_, Rule>) -> Result<PartDecl, SyntaxError> {
+        let span = self.span(&pair);
+        let inner = next(&mut children(pair).into_iter())?;
+        match inner.as_rule() {
+            Rule::name => Ok(PartDecl {
+                column: self.name(inner),
+                transform: TransformDecl::None,
+                span,
+            }),
+            Rule::transformed => {
+                let mut k = children(inner).into_iter();
+                let f = next(&mut k)?;
+                let transform = if f.as_str() == "log" {
+                    TransformDecl::Log
+                } else {
+                    TransformDecl::Sqrt
+                };
+                Ok(PartDecl {
+                    column: self.name(next(&mut k)?),
+                    transform,
+                    span,
+                })
+            }
+            Rule::powered => {
+                let mut k = children(inner).into_iter();
+                let column = self.name(next(&mut k)?);
+                let power_pair = next(&mut k)?;
+                let power: u32 = power_pair
+                    .as_str()
+                    .parse()
+                    .ok()
+                    .filter(|p| (2..=3).contains(p))
+                    .ok_or_else(|| {
+                        self.error(&power_pair, "a power must be 2 or 3 (write `x^2` or `x^3`)".into())
+                    })?;
+                Ok(PartDecl {
+                    column,
+                    transform: TransformDecl::Power(power),
+                    span,
+                })
+            }
+            r => unreachable_rule(r),
+        }
+    }
+
+    fn table(&self, pair: Pair<'_, Rule>) -> Result<TableRequest, SyntaxError> {
+        let rule = pair.as_rule();
+        let kids = children(pair);
+        // Optional clauses can appear in any subset; pick them out by rule.
+        let find = |r: Rule| kids.iter().find(|p| p.as_rule() == r).cloned();
+        let plain: Vec<Pair<'_, Rule>> = kids
+            .iter()
+            .filter(|p| matches!(p.as_rule(), Rule::ident | Rule::name | Rule::value))
+            .cloned()
+            .collect();
+        let first_ident = || -> Result<Spanned<String>, SyntaxError> {
+            let p = plain.first().cloned().ok_or_else(missing_part)?;
+            Ok(self.ident(p))
+        };
+        let level = find(Rule::level_opt).map(|p| self.option_number(p)).transpose()?;
+        let at = match find(Rule::at_clause) {
+            Some(p) => self.settings(p)?,
+            None => Vec::new(),
+        };
+        Ok(match rule {
+            Rule::summary_table => TableRequest::Summary {
+                column: self.name(plain.first().cloned().ok_or_else(missing_part)?),
+                by: plain.get(1).cloned().map(|p| self.name(p)),
+            },
+            Rule::fit_table => TableRequest::Fit { model: first_ident()? },
+            Rule::coefficients_table => TableRequest::Coefficients {
+                model: first_ident()?,
+                level,
+            },
+            Rule::anova_table => TableRequest::Anova {
+                model: first_ident()?,
+                kind: match find(Rule::ss_type).map(|p| p.as_str().to_string()).as_deref() {
+                    Some("1") => SsKind::Sequential,
+                    Some("3") => SsKind::Marginal,
+                    _ => SsKind::Partial,
+                },
+            },
+            Rule::compare_table => TableRequest::Compare {
+                first: first_ident()?,
+                second: self.ident(plain.get(1).cloned().ok_or_else(missing_part)?),
+            },
+            Rule::means_table => TableRequest::Means {
+                model: first_ident()?,
+                factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                at,
+                level,
+            },
+            Rule::pairs_table => TableRequest::Pairs {
+                model: first_ident()?,
+                factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                at,
+                adjust: match find(Rule::adjust_method).map(|p| p.as_str().to_string()).as_deref() {
+                    Some("holm") => AdjustMethod::Holm,
+                    Some("bonferroni") => AdjustMethod::Bonferroni,
+                    Some("sidak") => AdjustMethod::Sidak,
+                    Some("none") => AdjustMethod::None,
+                    _ => AdjustMethod::Tukey,
+                },
+                level,
+            },
+            Rule::slopes_table => {
+                let (covariate, factor) = if plain.len() >= 3 {
+                    (Some(self.name(plain[1].clone())), self.name(plain[2].clone()))
+                } else {
+                    (None, self.name(plain.get(1).cloned().ok_or_else(missing_part)?))
+                };
+                TableRequest::Slopes {
+                    model: first_ident()?,
+                    covariate,
+                    factor,
+                    level,
+                }
+            }
+            Rule::contrast_table => {
+                let numbers: Vec<Pair<'_, Rule>> =
+                    kids.iter().filter(|p| p.as_rule() == Rule::number).cloned().collect();
+                let weights = numbers
+                    .iter()
+                    .map(|p| self.number(p))
+                    .collect::<Result<Vec<f64>, _>>()?;
+                let span = match (numbers.first(), numbers.last()) {
+                    (Some(a), Some(b)) => Span {
+                        start: self.span(a).start,
+                        end: self.span(b).end,
+                    },
+                    _ => Span::default(),
+                };
+                TableRequest::Contrast {
+                    model: first_ident()?,
+                    factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                    weights: Spanned { value: weights, span },
+                    at,
+                    level,
+                }
+            }
+            Rule::regions_table => {
+                let between = match (plain.get(3), plain.get(4)) {
+                    (Some(a), Some(b)) => {
+                        let text = |p: &Pair<'_, Rule>| Spanned {
+                            value: self.literal(p.clone()).as_text().to_string(),
+                            span: self.span(p),
+                        };
+                        Some((text(a), text(b)))
+                    }
+                    _ => None,
+                };
+                TableRequest::Regions {
+                    model: first_ident()?,
+                    covariate: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                    factor: self.name(plain.get(2).cloned().ok_or_else(missing_part)?),
+                    between,
+                    alpha: find(Rule::alpha_opt).map(|p| self.option_number(p)).transpose()?,
+                }
+            }
+            r => unreachable_rule(r)?,
+        })
+    }
+
+    fn settings(&self, pair: Pair<'_, Rule>) -> Result<Vec<Setting>, SyntaxError> {
+        children(pair)
+            .into_iter()
+            .map(|s| {
+                let mut k = children(s).into_iter();
+                let column = self.name(next(&mut k)?);
+                let value = self.number(&next(&mut k)?)?;
+                Ok(Setting { column, value })
+            })
+            .collect()
+    }
+
+    fn option_number(&self, pair: Pair<'_, Rule>) -> Result<Spanned<f64>, SyntaxError> {
+        let n = next(&mut children(pair).into_iter())?;
+        Ok(Spanned {
+            value: self.number(&n)?,
+            span: self.span(&n),
+        })
+    }
+
+    fn condition(&self, pair: Pair<'_, Rule>) -> Result<Condition, SyntaxError> {
+        let rule = pair.as_rule();
+        let kids = children(pair);
+        match rule {
+            Rule::condition | Rule::conjunction => {
+                let mut parts = kids
+                    .into_iter()
+                    .map(|k| self.condition(k))
+                    .collect::<Result<Vec<_>, _>>()?;
+                if parts.len() == 1 {
+                    return parts.pop().ok_or_else(missing_part);
+                }
+                Ok(if rule == Rule::condition {
+                    Condition::Or(parts)
+                } else {
+                    Condition::And(parts)
+                })
+            }
+            Rule::negation => {
+                // `not` was dropped as a keyword: a negation with a negation
+                // inside means the word was there.
+                let inner = kids.into_iter().next().ok_or_else(missing_part)?;
+                if inner.as_rule() == Rule::negation {
+                    Ok(Condition::Not(Box::new(self.condition(inner)?)))
+                } else {
+                    self.condition(inner)
+                }
+            }
+            Rule::primary => self.condition(kids.into_iter().next().ok_or_else(missing_part)?),
+            Rule::comparison => {
+                let mut k = kids.into_iter();
+                let column = self.name(next(&mut k)?);
+                let op = match next(&mut k)?.as_str() {
+                    "==" => CompareOp::Eq,
+                    "!=" => CompareOp::Ne,
+                    "<" => CompareOp::Lt,
+                    "<=" => CompareOp::Le,
+                    ">" => CompareOp::Gt,
+                    _ => CompareOp::Ge,
+                };
+                let v = next(&mut k)?;
+                let span = self.span(&v);
+                Ok(Condition::Compare {
+                    column,
+                    op,
+                    value: Spanned {
+                        value: self.literal(v),
+                        span,
+                    },
+                })
+            }
+            Rule::membership => {
+                let mut k = kids.into_iter();
+                let column = self.name(next(&mut k)?);
+                let values = children(next(&mut k)?)
+                    .into_iter()
+                    .map(|v| {
+                        let span = self.span(&v);
+                        Spanned {
+                            value: self.literal(v),
+                            span,
+                        }
+                    })
+                    .collect();
+                Ok(Condition::In { column, values })
+            }
+            r => unreachable_rule(r),
+        }
+    }
+
+    fn literal(&self, pair: Pair<'_, Rule>) -> Literal {
+        let inner = if pair.as_rule() == Rule::value {
+            pair.into_inner().next()
+        } else {
+            Some(pair)
+        };
+        match inner {
+            Some(p) if p.as_rule() == Rule::number => {
+                let text = p.as_str().to_string();
+                match text.parse::<f64>() {
+                    Ok(v) if v.is_finite() => Literal::Number(v, text),
+                    _ => Literal::Text(text),
+                }
+            }
+            Some(p) if p.as_rule() == Rule::string => Literal::Text(unescape(p.as_str())),
+            Some(p) => Literal::Text(p.as_str().to_string()),
+            None => Literal::Text(String::new()),
+        }
+    }
+
+    fn number(&self, pair: &Pair<'_, Rule>) -> Result<f64, SyntaxError> {
+        match pair.as_str().parse::<f64>() {
+            Ok(v) if v.is_finite() => Ok(v),
+            _ => Err(self.error(pair, format!("`{}` is not a finite number", pair.as_str()))),
+        }
+    }
+
+    fn string(&self, pair: Pair<'_, Rule>) -> Spanned<String> {
+        Spanned {
+            span: self.span(&pair),
+            value: unescape(pair.as_str()),
+        }
+    }
+
+    fn ident(&self, pair: Pair<'_, Rule>) -> Spanned<String> {
+        Spanned {
+            span: self.span(&pair),
+            value: pair.as_str().to_string(),
+        }
+    }
+
+    /// A column name: a bare word or a quoted string.
+    fn name(&self, pair: Pair<'_, Rule>) -> Spanned<String> {
+        let span = self.span(&pair);
+        let inner = if pair.as_rule() == Rule::name {
+            pair.into_inner().next()
+        } else {
+            Some(pair)
+        };
+        let value = match inner {
+            Some(p) if p.as_rule() == Rule::string => unescape(p.as_str()),
+            Some(p) => p.as_str().to_string(),
+            None => String::new(),
+        };
+        Spanned { value, span }
+    }
+}
+
+/// The text of a double-quoted string without its quotes and escapes.
+fn unescape(quoted: &str) -> String {
+    let inner = quoted
+        .strip_prefix('"')
+        .and_then(|s| s.strip_suffix('"'))
+        .unwrap_or(quoted);
+    let mut out = String::with_capacity(inner.len());
+    let mut chars = inner.chars();
+    while let Some(c) = chars.next() {
+        if c == '\\' {
+            if let Some(n) = chars.next() {
+                out.push(n);
+            }
+        } else {
+            out.push(c);
+        }
+    }
+    out
+}
+
+fn next<'a>(it: &mut impl Iterator<Item = Pair<'a, Rule>>) -> Result<Pair<'a, Rule>, SyntaxError> {
+    it.next().ok_or_else(missing_part)
+}
+
+/// The grammar guarantees the shapes the builder reads; should the two ever
+/// disagree, the user gets an error instead of a panic.
+fn missing_part() -> SyntaxError {
+    SyntaxError {
+        span: Span::default(),
+        message: "internal error: the statement's parts are not where the grammar puts them (please report this)".into(),
+    }
+}
+
+fn unreachable_rule<T>(rule: Rule) -> Result<T, SyntaxError> {
+    Err(SyntaxError {
+        span: Span::default(),
+        message: format!("internal error: unexpected grammar rule {rule:?} (please report this)"),
+    })
+}

@@ -1,0 +1,85 @@
+//! The covey command line: parse arguments, call the library, print its
+//! report, and turn its verdict into an exit code.
+
+use std::io::Write;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use covey::{CheckOptions, RenderOptions, Verdict};
+
+/// Render analyses of covariance kept as Markdown documents.
+#[derive(Parser)]
+#[command(name = "covey", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Run every covey block of the documents and write their renderings.
+    Render {
+        /// Documents, or folders of documents (*.md).
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// Write the results into each source document, between covey's markers.
+        #[arg(long)]
+        in_place: bool,
+        /// Folder for the rendered documents (default: beside each source).
+        #[arg(long, value_name = "DIR", conflicts_with = "in_place")]
+        out: Option<PathBuf>,
+        /// Also write every table as JSON to this file (one document only).
+        #[arg(long, value_name = "PATH")]
+        json: Option<PathBuf>,
+        /// Go on with the remaining blocks after a statement fails.
+        #[arg(long)]
+        keep_going: bool,
+        /// Let `load` read files outside the document's folder.
+        #[arg(long)]
+        allow_outside: bool,
+    },
+    /// Tell whether the renderings on disk are current (exit 0) or stale (exit 1).
+    Check {
+        /// Documents, or folders of documents (*.md).
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// Folder the renderings were written to, if not beside each source.
+        #[arg(long, value_name = "DIR")]
+        out: Option<PathBuf>,
+        /// Let `load` read files outside the document's folder.
+        #[arg(long)]
+        allow_outside: bool,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let _ = e.print();
+            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+        }
+    };
+    let report = match cli.command {
+        Command::Render { paths, in_place, out, json, keep_going, allow_outside } => covey::render(
+            &paths,
+            &RenderOptions { in_place, out_dir: out, json, keep_going, allow_outside },
+        ),
+        Command::Check { paths, out, allow_outside } => {
+            covey::check(&paths, &CheckOptions { out_dir: out, allow_outside })
+        }
+    };
+    let mut err = std::io::stderr().lock();
+    for line in &report.lines {
+        // A closed stderr is not worth a panic.
+        if writeln!(err, "{line}").is_err() {
+            break;
+        }
+    }
+    ExitCode::from(match report.verdict {
+        Verdict::Ok => 0,
+        Verdict::Stale => 1,
+        Verdict::Failed => 2,
+    })
+}

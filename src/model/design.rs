@@ -1,0 +1,664 @@
+//! Building the design matrix term by term: validation of the input, the rows used,
+//! factor levels present, coding of each factor part, and evaluation of columns.
+//!
+//! Coding rule ("contained terms", Chambers & Hastie, "Statistical Models in S", 1992,
+//! section 2.4.1): a factor F in term T is coded by contrasts (levels but the first, or the
+//! sum-to-zero contrasts for Type III) when T without F is an earlier term (for T = F alone:
+//! when the model has an intercept, or has none but an earlier term is a factor alone);
+//! otherwise by indicators of all its levels. For `a by b` with `a` but not `b` in the model,
+//! this gives `b` contrasts and `a` indicators, so the columns span every cell.
+
+use super::{ModelError, ModelSpec, ModelWarning, Transform, Var};
+
+/// Which contrasts replace a contrast-coded factor.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Scheme {
+    /// Indicators of every level but the first (treatment coding).
+    Treatment,
+    /// Level j: +1 for level j, -1 for the last level (sum-to-zero coding).
+    Effect,
+}
+
+/// One factor of a column.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum ColPart {
+    /// A numeric variable through a transform.
+    Numeric { var: usize, transform: Transform },
+    /// 1 when the factor has `code`, else 0.
+    Indicator { var: usize, code: u32 },
+    /// 1 for `code`, -1 for `last`, else 0.
+    Effect { var: usize, code: u32, last: u32 },
+}
+
+/// One design column.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Column {
+    /// Term index (None for the intercept).
+    pub term: Option<usize>,
+    /// Coefficient name.
+    pub name: String,
+    /// Product of these (empty = the constant 1).
+    pub parts: Vec<ColPart>,
+}
+
+/// Levels of one factor that have rows in the fitted data.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct FactorLevels {
+    pub var: usize,
+    /// Codes with rows, in declared order.
+    pub present: Vec<u32>,
+}
+
+/// Everything about the rows and variables that both coding schemes share.
+#[derive(Debug, Clone)]
+pub(crate) struct Layout {
+    /// Indices of rows used.
+    pub used: Vec<usize>,
+    /// Number of rows in the input.
+    pub total_rows: usize,
+    pub factors: Vec<FactorLevels>,
+    pub warnings: Vec<ModelWarning>,
+    /// Term names.
+    pub term_names: Vec<String>,
+}
+
+/// Key of a part for set comparisons: (variable, transform).
+pub(crate) type PartKey = (usize, Transform);
+
+pub(crate) fn term_keys(spec: &ModelSpec, t: usize) -> Vec<PartKey> {
+    let mut k: Vec<PartKey> = spec
+        .terms
+        .get(t)
+        .map(|ts| {
+            ts.parts
+                .iter()
+                .map(|p| (p.var, norm_transform(p.transform)))
+                .collect()
+        })
+        .unwrap_or_default();
+    k.sort();
+    k
+}
+
+fn norm_transform(t: Transform) -> Transform {
+    match t {
+        Transform::Power(1) => Transform::Identity,
+        other => other,
+    }
+}
+
+/// Apply a transform (callers validate the domain first; out-of-domain gives NaN).
+pub(crate) fn apply(t: Transform, x: f64) -> f64 {
+    match t {
+        Transform::Identity => x,
+        Transform::Power(k) => x.powi(k.min(i32::MAX as u32) as i32),
+        Transform::Log => {
+            if x > 0.0 {
+                x.ln()
+            } else {
+                f64::NAN
+            }
+        }
+        Transform::Sqrt => {
+            if x >= 0.0 {
+                x.sqrt()
+            } else {
+                f64::NAN
+            }
+        }
+    }
+}
+
+/// Name of a numeric part: `x`, `x^2`, `log(x)`, `sqrt(x)`.
+pub(crate) fn part_name(name: &str, t: Transform) -> String {
+    match norm_transform(t) {
+        Transform::Identity => name.to_string(),
+        Transform::Power(k) => format!("{name}^{k}"),
+        Transform::Log => format!("log({name})"),
+        Transform::Sqrt => format!("sqrt({name})"),
+    }
+}
+
+pub(crate) fn var_name(spec: &ModelSpec, v: usize) -> String {
+    spec.vars
+        .get(v)
+        .map(|x| x.name().to_string())
+        .unwrap_or_default()
+}
+
+/// Name of a term from its parts in written order.
+pub(crate) fn term_name(spec: &ModelSpec, t: usize) -> String {
+    let Some(ts) = spec.terms.get(t) else {
+        return String::new();
+    };
+    ts.parts
+        .iter()
+        .map(|p| match spec.vars.get(p.var) {
+            Some(Var::Factor { name, .. }) => name.clone(),
+            Some(Var::Numeric { name, .. }) => part_name(name, p.transform),
+            None => String::new(),
+        })
+        .collect::<Vec<_>>()
+        .join(" by ")
+}
+
+/// Name of a set of part keys (for marginality warnings), in the order of the term.
+fn keys_name(spec: &ModelSpec, keys: &[PartKey]) -> String {
+    keys.iter()
+        .map(|&(v, t)| match spec.vars.get(v) {
+            Some(Var::Factor { name, .. }) => name.clone(),
+            Some(Var::Numeric { name, .. }) => part_name(name, t),
+            None => String::new(),
+        })
+        .collect::<Vec<_>>()
+        .join(" by ")
+}
+
+/// Validate the spec, choose the rows, and find the factor levels present.
+pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
+    let y = match &spec.response {
+        Var::Numeric { values, .. } => values,
+        Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
+    };
+    let n = y.len();
+    if spec.row_numbers.len() != n {
+        return Err(ModelError::RowNumbersMismatch {
+            expected: n,
+            found: spec.row_numbers.len(),
+        });
+    }
+    if spec.terms.is_empty() && !spec.intercept {
+        return Err(ModelError::EmptyModel);
+    }
+    let mut used_vars: Vec<usize> = Vec::new();
+    for (ti, term) in spec.terms.iter().enumerate() {
+        if term.parts.is_empty() {
+            return Err(ModelError::EmptyTerm { term: ti });
+        }
+        let mut seen: Vec<usize> = Vec::new();
+        for p in &term.parts {
+            let v = spec.vars.get(p.var).ok_or(ModelError::VarIndexOutOfRange {
+                term: ti,
+                index: p.var,
+            })?;
+            match v {
+                Var::Factor { .. } => {
+                    if p.transform != Transform::Identity {
+                        return Err(ModelError::TransformOnFactor { term: ti });
+                    }
+                }
+                Var::Numeric { .. } => {
+                    if p.transform == Transform::Power(0) {
+                        return Err(ModelError::ZeroPower { term: ti });
+                    }
+                }
+            }
+            if v.len() != n {
+                return Err(ModelError::LengthMismatch {
+                    variable: v.name().to_string(),
+                    expected: n,
+                    found: v.len(),
+                });
+            }
+            if seen.contains(&p.var) {
+                return Err(ModelError::RepeatedPart { term: ti });
+            }
+            seen.push(p.var);
+            if !used_vars.contains(&p.var) {
+                used_vars.push(p.var);
+            }
+        }
+        let keys = term_keys(spec, ti);
+        if (0..ti).any(|u| term_keys(spec, u) == keys) {
+            return Err(ModelError::DuplicateTerm { term: ti });
+        }
+    }
+    used_vars.sort_unstable();
+    let row_no = |i: usize| spec.row_numbers.get(i).copied().unwrap_or(i);
+
+    // Rows used.
+    let mut used = Vec::with_capacity(n);
+    'rows: for (i, &yi) in y.iter().enumerate() {
+        if yi.is_nan() {
+            continue;
+        }
+        if !yi.is_finite() {
+            return Err(ModelError::NonFiniteValue {
+                variable: spec.response.name().to_string(),
+                row: row_no(i),
+            });
+        }
+        for &v in &used_vars {
+            match spec.vars.get(v) {
+                Some(Var::Numeric { name, values }) => {
+                    let x = values.get(i).copied().unwrap_or(f64::NAN);
+                    if x.is_nan() {
+                        continue 'rows;
+                    }
+                    if !x.is_finite() {
+                        return Err(ModelError::NonFiniteValue {
+                            variable: name.clone(),
+                            row: row_no(i),
+                        });
+                    }
+                }
+                Some(Var::Factor {
+                    name,
+                    codes,
+                    levels,
+                }) => match codes.get(i).copied().flatten() {
+                    None => continue 'rows,
+                    Some(c) => {
+                        if c as usize >= levels.len() {
+                            return Err(ModelError::FactorCodeOutOfRange {
+                                variable: name.clone(),
+                                row: row_no(i),
+                            });
+                        }
+                    }
+                },
+                None => {}
+            }
+        }
+        used.push(i);
+    }
+    if used.is_empty() {
+        return Err(ModelError::NoRows);
+    }
+    let mut warnings = Vec::new();
+    if used.len() < n {
+        warnings.push(ModelWarning::RowsDropped {
+            count: n - used.len(),
+        });
+    }
+
+    // Transform domains.
+    for (ti, term) in spec.terms.iter().enumerate() {
+        for p in &term.parts {
+            if let Some(Var::Numeric { name, values }) = spec.vars.get(p.var) {
+                for &i in &used {
+                    let x = values.get(i).copied().unwrap_or(f64::NAN);
+                    match p.transform {
+                        Transform::Log if x <= 0.0 => {
+                            return Err(ModelError::LogOfNonPositive {
+                                term: Some(ti),
+                                variable: name.clone(),
+                                row: Some(row_no(i)),
+                                value: x,
+                            })
+                        }
+                        Transform::Sqrt if x < 0.0 => {
+                            return Err(ModelError::SqrtOfNegative {
+                                term: Some(ti),
+                                variable: name.clone(),
+                                row: Some(row_no(i)),
+                                value: x,
+                            })
+                        }
+                        _ => {}
+                    }
+                }
+            }
+        }
+    }
+
+    // Factor levels, covariate checks.
+    let first_term = |v: usize| {
+        spec.terms
+            .iter()
+            .position(|t| t.parts.iter().any(|p| p.var == v))
+            .unwrap_or(0)
+    };
+    let mut factors = Vec::new();
+    for &v in &used_vars {
+        match spec.vars.get(v) {
+            Some(Var::Factor {
+                name,
+                codes,
+                levels,
+            }) => {
+                let mut has = vec![false; levels.len()];
+                for &i in &used {
+                    if let Some(Some(c)) = codes.get(i) {
+                        if let Some(h) = has.get_mut(*c as usize) {
+                            *h = true;
+                        }
+                    }
+                }
+                let present: Vec<u32> = (0..levels.len())
+                    .filter(|&l| has[l])
+                    .map(|l| l as u32)
+                    .collect();
+                for (l, lab) in levels.iter().enumerate() {
+                    if !has[l] {
+                        warnings.push(ModelWarning::EmptyLevel {
+                            term: first_term(v),
+                            factor: name.clone(),
+                            level: lab.clone(),
+                        });
+                    }
+                }
+                if present.len() < 2 {
+                    return Err(ModelError::TooFewLevels {
+                        term: Some(first_term(v)),
+                        factor: name.clone(),
+                        levels: present.len(),
+                    });
+                }
+                factors.push(FactorLevels { var: v, present });
+            }
+            Some(Var::Numeric { name, values }) => {
+                let mut distinct: Vec<f64> = Vec::new();
+                let mut all_int = true;
+                for &i in &used {
+                    let x = values.get(i).copied().unwrap_or(0.0);
+                    if x.fract() != 0.0 {
+                        all_int = false;
+                    }
+                    if distinct.len() <= 6 && !distinct.contains(&x) {
+                        distinct.push(x);
+                    }
+                }
+                if distinct.len() < 2 {
+                    return Err(ModelError::CovariateZeroVariance {
+                        term: first_term(v),
+                        variable: name.clone(),
+                    });
+                }
+                if all_int && distinct.len() <= FEW_DISTINCT {
+                    warnings.push(ModelWarning::FewDistinctValues {
+                        term: first_term(v),
+                        variable: name.clone(),
+                        distinct: distinct.len(),
+                    });
+                }
+            }
+            None => {}
+        }
+    }
+
+    // Marginality: every non-empty strict subset of an interaction's parts should be a term.
+    let all_keys: Vec<Vec<PartKey>> = (0..spec.terms.len()).map(|t| term_keys(spec, t)).collect();
+    for (ti, keys) in all_keys.iter().enumerate() {
+        let k = keys.len();
+        if !(2..=MAX_MARGINALITY_PARTS).contains(&k) {
+            continue;
+        }
+        // Visit subsets in order of size, then lexicographically, for deterministic output.
+        let mut subsets: Vec<u32> = (1..(1u32 << k) - 1).collect();
+        subsets.sort_by_key(|m| (m.count_ones(), *m));
+        for mask in subsets {
+            let sub: Vec<PartKey> = (0..k)
+                .filter(|b| mask & (1 << b) != 0)
+                .filter_map(|b| keys.get(b).copied())
+                .collect();
+            if !all_keys.contains(&sub) {
+                // Name the missing term in the written order of the interaction.
+                let written: Vec<PartKey> = spec.terms[ti]
+                    .parts
+                    .iter()
+                    .map(|p| (p.var, norm_transform(p.transform)))
+                    .filter(|pk| sub.contains(pk))
+                    .collect();
+                warnings.push(ModelWarning::MarginalityBroken {
+                    term: ti,
+                    term_name: term_name(spec, ti),
+                    missing: keys_name(spec, &written),
+                });
+            }
+        }
+    }
+
+    let term_names = (0..spec.terms.len()).map(|t| term_name(spec, t)).collect();
+    Ok(Layout {
+        used,
+        total_rows: n,
+        factors,
+        warnings,
+        term_names,
+    })
+}
+
+/// A covariate with at most this many distinct whole-number values draws a warning.
+pub(crate) const FEW_DISTINCT: usize = 5;
+
+/// Interactions with more parts than this are not checked for marginality (the number of
+/// subsets grows as 2^parts).
+const MAX_MARGINALITY_PARTS: usize = 8;
+
+impl Layout {
+    pub fn factor(&self, var: usize) -> Option<&FactorLevels> {
+        self.factors.iter().find(|f| f.var == var)
+    }
+}
+
+/// Whether the factor part `var` of term `t` is coded by contrasts.
+fn contrast_coded(spec: &ModelSpec, t: usize, var: usize) -> bool {
+    let rest: Vec<PartKey> = term_keys(spec, t)
+        .into_iter()
+        .filter(|k| k.0 != var)
+        .collect();
+    if rest.is_empty() {
+        // A main effect: contrasts when the constant is already in the model, i.e. with an
+        // intercept, or (without one) after an earlier factor main effect coded by indicators.
+        let earlier_factor_main = (0..t).any(|u| {
+            let k = term_keys(spec, u);
+            k.len() == 1
+                && k.iter()
+                    .all(|p| matches!(spec.vars.get(p.0), Some(Var::Factor { .. })))
+        });
+        return spec.intercept || earlier_factor_main;
+    }
+    (0..t).any(|u| term_keys(spec, u) == rest)
+}
+
+/// The design columns (intercept first, then each term's columns) and, for each term, the
+/// indices of its columns.
+pub(crate) fn columns(
+    spec: &ModelSpec,
+    lay: &Layout,
+    scheme: Scheme,
+) -> (Vec<Column>, Vec<Vec<usize>>) {
+    let mut cols = Vec::new();
+    if spec.intercept {
+        cols.push(Column {
+            term: None,
+            name: "(intercept)".to_string(),
+            parts: Vec::new(),
+        });
+    }
+    let mut term_cols = Vec::new();
+    for (ti, term) in spec.terms.iter().enumerate() {
+        // Each part's alternatives: (column part, name piece).
+        let mut choices: Vec<Vec<(ColPart, String)>> = Vec::new();
+        for p in &term.parts {
+            match spec.vars.get(p.var) {
+                Some(Var::Numeric { name, .. }) => {
+                    choices.push(vec![(
+                        ColPart::Numeric {
+                            var: p.var,
+                            transform: p.transform,
+                        },
+                        part_name(name, p.transform),
+                    )]);
+                }
+                Some(Var::Factor { name, levels, .. }) => {
+                    let present = lay
+                        .factor(p.var)
+                        .map(|f| f.present.clone())
+                        .unwrap_or_default();
+                    let label = |c: u32| {
+                        format!(
+                            "{name} = {}",
+                            levels.get(c as usize).cloned().unwrap_or_default()
+                        )
+                    };
+                    let alts: Vec<(ColPart, String)> = if contrast_coded(spec, ti, p.var) {
+                        match scheme {
+                            Scheme::Treatment => present
+                                .iter()
+                                .skip(1)
+                                .map(|&c| {
+                                    (
+                                        ColPart::Indicator {
+                                            var: p.var,
+                                            code: c,
+                                        },
+                                        label(c),
+                                    )
+                                })
+                                .collect(),
+                            Scheme::Effect => {
+                                let last = present.last().copied().unwrap_or(0);
+                                present
+                                    .iter()
+                                    .take(present.len().saturating_sub(1))
+                                    .map(|&c| {
+                                        (
+                                            ColPart::Effect {
+                                                var: p.var,
+                                                code: c,
+                                                last,
+                                            },
+                                            label(c),
+                                        )
+                                    })
+                                    .collect()
+                            }
+                        }
+                    } else {
+                        present
+                            .iter()
+                            .map(|&c| {
+                                (
+                                    ColPart::Indicator {
+                                        var: p.var,
+                                        code: c,
+                                    },
+                                    label(c),
+                                )
+                            })
+                            .collect()
+                    };
+                    choices.push(alts);
+                }
+                None => choices.push(Vec::new()),
+            }
+        }
+        // Cartesian product, last part varying fastest (a2:b2, a2:b3, a3:b2, ...).
+        let total: usize = choices.iter().map(|c| c.len()).product();
+        let mut idx = Vec::new();
+        for k in 0..total {
+            let mut picks: Vec<&(ColPart, String)> = Vec::with_capacity(choices.len());
+            let mut rest = k;
+            for ch in choices.iter().rev() {
+                let len = ch.len().max(1);
+                if let Some(c) = ch.get(rest % len) {
+                    picks.push(c);
+                }
+                rest /= len;
+            }
+            picks.reverse();
+            let parts: Vec<ColPart> = picks.iter().map(|c| c.0.clone()).collect();
+            let names: Vec<String> = picks.iter().map(|c| c.1.clone()).collect();
+            idx.push(cols.len());
+            cols.push(Column {
+                term: Some(ti),
+                name: names.join(" by "),
+                parts,
+            });
+        }
+        term_cols.push(idx);
+    }
+    (cols, term_cols)
+}
+
+/// Value of a column at data row i.
+pub(crate) fn eval_row(spec: &ModelSpec, col: &Column, i: usize) -> f64 {
+    let mut v = 1.0;
+    for p in &col.parts {
+        v *= match p {
+            ColPart::Numeric { var, transform } => match spec.vars.get(*var) {
+                Some(Var::Numeric { values, .. }) => {
+                    apply(*transform, values.get(i).copied().unwrap_or(f64::NAN))
+                }
+                _ => f64::NAN,
+            },
+            ColPart::Indicator { var, code } => {
+                f64::from(u8::from(factor_code(spec, *var, i) == Some(*code)))
+            }
+            ColPart::Effect { var, code, last } => {
+                let c = factor_code(spec, *var, i);
+                if c == Some(*code) {
+                    1.0
+                } else if c == Some(*last) {
+                    -1.0
+                } else {
+                    0.0
+                }
+            }
+        };
+    }
+    v
+}
+
+fn factor_code(spec: &ModelSpec, var: usize, i: usize) -> Option<u32> {
+    match spec.vars.get(var) {
+        Some(Var::Factor { codes, .. }) => codes.get(i).copied().flatten(),
+        _ => None,
+    }
+}
+
+/// A point at which to evaluate a design row for adjusted means and slopes: each factor is
+/// a weight vector over its codes (one-hot for a fixed level, equal weights to average),
+/// each numeric variable has a value.
+pub(crate) struct Point {
+    /// (var, weights indexed by code).
+    pub factor_weights: Vec<(usize, Vec<f64>)>,
+    /// (var, value).
+    pub numeric: Vec<(usize, f64)>,
+    /// When Some(var): differentiate with respect to this numeric variable (identity parts
+    /// only; the caller rejects other transforms).
+    pub derivative: Option<usize>,
+}
+
+/// Value of a column at a point (linear in each factor's weights).
+pub(crate) fn eval_point(col: &Column, pt: &Point) -> f64 {
+    let mut v = 1.0;
+    let mut has_deriv = false;
+    for p in &col.parts {
+        v *= match p {
+            ColPart::Numeric { var, transform } => {
+                if pt.derivative == Some(*var) {
+                    has_deriv = true;
+                    1.0
+                } else {
+                    let x = pt
+                        .numeric
+                        .iter()
+                        .find(|(w, _)| w == var)
+                        .map(|(_, x)| *x)
+                        .unwrap_or(f64::NAN);
+                    apply(*transform, x)
+                }
+            }
+            ColPart::Indicator { var, code } => weight(pt, *var, *code),
+            ColPart::Effect { var, code, last } => {
+                weight(pt, *var, *code) - weight(pt, *var, *last)
+            }
+        };
+    }
+    if pt.derivative.is_some() && !has_deriv {
+        0.0
+    } else {
+        v
+    }
+}
+
+fn weight(pt: &Point, var: usize, code: u32) -> f64 {
+    pt.factor_weights
+        .iter()
+        .find(|(w, _)| *w == var)
+        .and_then(|(_, ws)| ws.get(code as usize).copied())
+        .unwrap_or(0.0)
+}

@@ -1,0 +1,581 @@
+//! Fitting: two passes over the rows for column centres and scales (Welford 1962,
+//! "Note on a method for calculating corrected sums of squares and products",
+//! Technometrics 4), then the chunked Householder triangularisation of the augmented,
+//! centred and scaled design [Z | y']; coefficients, covariances and every sub-model RSS come
+//! from that triangular factor.
+
+use statrs::distribution::{ContinuousCDF, FisherSnedecor, StudentsT};
+
+use super::design::{self, Column, Layout, Scheme};
+use super::qr::{self, Mat, RAccumulator, ALIAS_TOL, CHUNK_ROWS};
+use super::{Coefficient, Diagnostics, FitSummary, ModelError, ModelSpec, ModelWarning, Var};
+
+/// A fit is a perfect fit when RSS <= PERFECT_FIT_REL * TSS: the residuals are then rounding
+/// noise (their norm is below 1e-12 of the response's spread), so sigma and every test are
+/// meaningless.
+const PERFECT_FIT_REL: f64 = 1e-24;
+
+/// A linear function of the coefficients is declared not estimable when its component
+/// along the null space of the design exceeds this fraction of its norm (rounding in the
+/// null-space vectors is near 1e-12 for well-scaled designs).
+const ESTIMABLE_TOL: f64 = 1e-8;
+
+/// The triangular factor of one coding of the design, with the centring and scaling used.
+#[derive(Debug, Clone)]
+pub(crate) struct Engine {
+    pub cols: Vec<Column>,
+    pub term_cols: Vec<Vec<usize>>,
+    /// Centre of each design column (0 for the intercept and without an intercept).
+    pub centre: Vec<f64>,
+    /// Scale of each design column.
+    pub scale: Vec<f64>,
+    pub y_centre: f64,
+    pub y_scale: f64,
+    /// R of [Z | y'], (p+1) x (p+1).
+    pub r_aug: Mat,
+}
+
+impl Engine {
+    /// (rank, RSS in the response's units) of the sub-model made of the given design
+    /// columns: a re-triangularisation of those columns of R_aug plus its last column.
+    pub fn sub_rss(&self, cols: &[usize]) -> (usize, f64) {
+        let p = self.cols.len();
+        let mut sel: Vec<usize> = cols.iter().copied().filter(|&c| c < p).collect();
+        sel.sort_unstable();
+        sel.dedup();
+        sel.push(p);
+        let mut a = self.r_aug.select_cols(&sel);
+        let t = qr::triangularize(&mut a, Some(ALIAS_TOL), true);
+        let k = t.kept.len();
+        let d = if k > 0 { t.r.get(k - 1, k - 1) } else { 0.0 };
+        (k.saturating_sub(1), d * d * self.y_scale * self.y_scale)
+    }
+}
+
+/// A fitted linear model.
+#[derive(Debug, Clone)]
+pub struct Fit {
+    pub(crate) spec: ModelSpec,
+    pub(crate) lay: Layout,
+    pub(crate) treat: Engine,
+    pub(crate) effect: Engine,
+    /// Kept (non-aliased) design columns of the treatment coding.
+    pub(crate) kept: Vec<usize>,
+    /// R of the kept columns (rank x rank).
+    pub(crate) r: Mat,
+    /// Coefficients of the kept columns in the centred, scaled coordinates.
+    pub(crate) bz: Vec<f64>,
+    /// Null-space vectors of the design in scaled coordinates (one per aliased column).
+    pub(crate) null: Vec<Vec<f64>>,
+    pub(crate) rss: f64,
+    pub(crate) tss: f64,
+    pub(crate) df_res: usize,
+    pub(crate) sigma: f64,
+    /// Mean of each numeric variable of the model over the fitted rows: (var, mean).
+    pub(crate) cov_means: Vec<(usize, f64)>,
+    /// Warnings about this fit.
+    pub warnings: Vec<ModelWarning>,
+}
+
+/// Fit a linear model by least squares.
+pub fn fit(spec: &ModelSpec) -> Result<Fit, ModelError> {
+    let lay = design::layout(spec)?;
+    let n = lay.used.len();
+    let (tcols, tterms) = design::columns(spec, &lay, Scheme::Treatment);
+    let (ecols, eterms) = design::columns(spec, &lay, Scheme::Effect);
+    let p = tcols.len();
+    if p == 0 {
+        return Err(ModelError::EmptyModel);
+    }
+    if n < p {
+        return Err(ModelError::FewerRowsThanCoefficients {
+            rows: n,
+            coefficients: p,
+        });
+    }
+    let y: Vec<f64> = match &spec.response {
+        Var::Numeric { values, .. } => values.clone(),
+        Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
+    };
+    let treat = build_engine(spec, &lay, &y, tcols, tterms)?;
+    let effect = build_engine(spec, &lay, &y, ecols, eterms)?;
+
+    // Rank: triangularise with skipping of aliased columns, response last.
+    let mut a = treat.r_aug.clone();
+    let tri = qr::triangularize(&mut a, Some(ALIAS_TOL), true);
+    let kept: Vec<usize> = tri.kept.iter().copied().filter(|&c| c < p).collect();
+    let rank = kept.len();
+    let rr = tri.r.get(rank, rank);
+    let rss = rr * rr * treat.y_scale * treat.y_scale;
+    let mut r = Mat::zeros(rank, rank);
+    let mut qy = vec![0.0; rank];
+    for (c, q) in qy.iter_mut().enumerate() {
+        for i in 0..=c {
+            r.set(i, c, tri.r.get(i, c));
+        }
+        *q = tri.r.get(c, rank);
+    }
+    let bz = qr::solve_upper(&r, &qy);
+
+    let mut warnings = lay.warnings.clone();
+    let aliased: Vec<usize> = (0..p).filter(|c| !kept.contains(c)).collect();
+    let mut null = Vec::new();
+    if !aliased.is_empty() {
+        warnings.push(ModelWarning::Aliased {
+            names: aliased
+                .iter()
+                .filter_map(|&c| treat.cols.get(c).map(|x| x.name.clone()))
+                .collect(),
+            terms: aliased
+                .iter()
+                .map(|&c| treat.cols.get(c).and_then(|x| x.term))
+                .collect(),
+        });
+        for &c in &aliased {
+            // Coefficients of column c on the kept columns: least squares within R_aug.
+            let mut sel = kept.clone();
+            sel.push(c);
+            let mut m = treat.r_aug.select_cols(&sel);
+            let t = qr::triangularize(&mut m, None, false);
+            let w: Vec<f64> = (0..rank).map(|i| t.r.get(i, rank)).collect();
+            let mut rk = Mat::zeros(rank, rank);
+            for j in 0..rank {
+                for i in 0..=j {
+                    rk.set(i, j, t.r.get(i, j));
+                }
+            }
+            let coef = qr::solve_upper(&rk, &w);
+            let mut v = vec![0.0; p];
+            v[c] = 1.0;
+            for (k, &kc) in kept.iter().enumerate() {
+                v[kc] = -coef[k];
+            }
+            null.push(v);
+        }
+    }
+
+    let tss = {
+        let base: Vec<usize> = if spec.intercept { vec![0] } else { Vec::new() };
+        treat.sub_rss(&base).1
+    };
+    if treat_y_constant(&treat) {
+        return Err(ModelError::ResponseZeroVariance);
+    }
+    let df_res = n - rank;
+    if df_res == 0 {
+        return Err(ModelError::ZeroResidualDf);
+    }
+    if rss.is_nan() || rss <= PERFECT_FIT_REL * tss {
+        return Err(ModelError::PerfectFit);
+    }
+    let sigma = (rss / df_res as f64).sqrt();
+
+    let mut cov_means = Vec::new();
+    for (v, var) in spec.vars.iter().enumerate() {
+        if let Var::Numeric { values, .. } = var {
+            if spec
+                .terms
+                .iter()
+                .any(|t| t.parts.iter().any(|q| q.var == v))
+            {
+                let mut m = 0.0;
+                for (k, &i) in lay.used.iter().enumerate() {
+                    let x = values.get(i).copied().unwrap_or(0.0);
+                    m += (x - m) / (k as f64 + 1.0);
+                }
+                cov_means.push((v, m));
+            }
+        }
+    }
+
+    Ok(Fit {
+        spec: spec.clone(),
+        lay,
+        treat,
+        effect,
+        kept,
+        r,
+        bz,
+        null,
+        rss,
+        tss,
+        df_res,
+        sigma,
+        cov_means,
+        warnings,
+    })
+}
+
+fn treat_y_constant(e: &Engine) -> bool {
+    e.y_scale == 0.0
+}
+
+/// Centre and scale every column (pass 1), then accumulate R of [Z | y'] (pass 2).
+fn build_engine(
+    spec: &ModelSpec,
+    lay: &Layout,
+    y: &[f64],
+    cols: Vec<Column>,
+    term_cols: Vec<Vec<usize>>,
+) -> Result<Engine, ModelError> {
+    let p = cols.len();
+    let n = lay.used.len() as f64;
+    // Pass 1: Welford means and centred sums of squares.
+    let mut mean = vec![0.0; p + 1];
+    let mut m2 = vec![0.0; p + 1];
+    let mut row = vec![0.0; p + 1];
+    for (k, &i) in lay.used.iter().enumerate() {
+        fill_row(spec, &cols, y, i, &mut row);
+        if let Some(j) = row.iter().position(|v| !v.is_finite()) {
+            // A product or power overflowed (inputs themselves were checked in the layout).
+            let variable = cols
+                .get(j)
+                .map(|c| c.name.clone())
+                .unwrap_or_else(|| spec.response.name().to_string());
+            return Err(ModelError::NonFiniteValue {
+                variable,
+                row: spec.row_numbers.get(i).copied().unwrap_or(i),
+            });
+        }
+        let kf = k as f64 + 1.0;
+        for j in 0..=p {
+            let d = row[j] - mean[j];
+            mean[j] += d / kf;
+            m2[j] += d * (row[j] - mean[j]);
+        }
+    }
+    if m2[p] <= 0.0 || !m2[p].is_finite() {
+        return Err(ModelError::ResponseZeroVariance);
+    }
+    let mut centre = vec![0.0; p + 1];
+    let mut scale = vec![1.0; p + 1];
+    for j in 0..=p {
+        let is_intercept = spec.intercept && j == 0;
+        if is_intercept {
+            continue;
+        }
+        let (c, s) = if spec.intercept {
+            (mean[j], (m2[j] / n).sqrt())
+        } else {
+            (0.0, (m2[j] / n + mean[j] * mean[j]).sqrt())
+        };
+        centre[j] = c;
+        scale[j] = if s > 0.0 && s.is_finite() { s } else { 1.0 };
+    }
+    // Pass 2: chunked triangularisation.
+    let mut acc = RAccumulator::new(p + 1, CHUNK_ROWS);
+    for &i in &lay.used {
+        fill_row(spec, &cols, y, i, &mut row);
+        for j in 0..=p {
+            row[j] = (row[j] - centre[j]) / scale[j];
+        }
+        acc.push(&row);
+    }
+    let r_aug = acc.finish();
+    let y_centre = centre[p];
+    let y_scale = scale[p];
+    centre.truncate(p);
+    scale.truncate(p);
+    Ok(Engine {
+        cols,
+        term_cols,
+        centre,
+        scale,
+        y_centre,
+        y_scale,
+        r_aug,
+    })
+}
+
+fn fill_row(spec: &ModelSpec, cols: &[Column], y: &[f64], i: usize, row: &mut [f64]) {
+    for (j, c) in cols.iter().enumerate() {
+        if let Some(x) = row.get_mut(j) {
+            *x = design::eval_row(spec, c, i);
+        }
+    }
+    if let Some(x) = row.get_mut(cols.len()) {
+        *x = y.get(i).copied().unwrap_or(f64::NAN);
+    }
+}
+
+/// Two-sided p-value of a t statistic.
+pub(crate) fn t_p(t: f64, df: usize) -> f64 {
+    match StudentsT::new(0.0, 1.0, df as f64) {
+        Ok(d) if t.is_finite() => (2.0 * d.sf(t.abs())).min(1.0),
+        _ => f64::NAN,
+    }
+}
+
+/// Upper quantile t(q; df).
+pub(crate) fn t_quantile(q: f64, df: usize) -> f64 {
+    if !(0.0..=1.0).contains(&q) {
+        return f64::NAN;
+    }
+    match StudentsT::new(0.0, 1.0, df as f64) {
+        Ok(d) => d.inverse_cdf(q),
+        Err(_) => f64::NAN,
+    }
+}
+
+/// Upper-tail p-value of an F statistic.
+pub(crate) fn f_p(f: f64, df1: usize, df2: usize) -> f64 {
+    match FisherSnedecor::new(df1 as f64, df2 as f64) {
+        Ok(d) if f.is_finite() && f >= 0.0 => d.sf(f),
+        _ => f64::NAN,
+    }
+}
+
+pub(crate) fn check_level(level: f64) -> Result<(), ModelError> {
+    if level > 0.0 && level < 1.0 {
+        Ok(())
+    } else {
+        Err(ModelError::BadLevel { value: level })
+    }
+}
+
+impl Fit {
+    /// Estimate and standard error of L'b, where `l` holds one weight per design column
+    /// (treatment coding, original units). Err(()) when L is not estimable.
+    pub(crate) fn linear(&self, l: &[f64]) -> Result<(f64, f64), ()> {
+        let (est, w) = self.linear_parts(l)?;
+        Ok((est, w.iter().map(|v| v * v).sum::<f64>().sqrt()))
+    }
+
+    /// Estimate of L'b and the vector w = sigma R^-T (T'L), so that
+    /// Cov(L1'b, L2'b) = w1 . w2. The function is evaluated in the centred and scaled
+    /// coordinates (T maps them to original units), so no cancellation against large
+    /// column means happens. Err(()) when L has a component along the design's null space
+    /// (not estimable).
+    pub(crate) fn linear_parts(&self, l: &[f64]) -> Result<(f64, Vec<f64>), ()> {
+        self.linear_checked(l, true)
+    }
+
+    /// As [`Fit::linear_parts`]; `check = false` skips the estimability check (used for the
+    /// coefficients of the reduced design, which are reported as such).
+    fn linear_checked(&self, l: &[f64], check: bool) -> Result<(f64, Vec<f64>), ()> {
+        let p = self.treat.cols.len();
+        let e = &self.treat;
+        let l0 = if self.spec.intercept {
+            l.first().copied().unwrap_or(0.0)
+        } else {
+            0.0
+        };
+        let mut lz = vec![0.0; p];
+        for (j, z) in lz.iter_mut().enumerate() {
+            let lj = l.get(j).copied().unwrap_or(0.0);
+            *z = if self.spec.intercept && j == 0 {
+                lj
+            } else {
+                (lj - l0 * e.centre[j]) / e.scale[j]
+            };
+        }
+        let norm: f64 = lz.iter().map(|v| v * v).sum::<f64>().sqrt();
+        for nv in self.null.iter().filter(|_| check) {
+            let nn: f64 = nv.iter().map(|v| v * v).sum::<f64>().sqrt();
+            let d: f64 = nv.iter().zip(&lz).map(|(a, b)| a * b).sum();
+            if d.abs() > ESTIMABLE_TOL * norm * nn {
+                return Err(());
+            }
+        }
+        let lk: Vec<f64> = self.kept.iter().map(|&c| lz[c]).collect();
+        let est =
+            l0 * e.y_centre + e.y_scale * lk.iter().zip(&self.bz).map(|(a, b)| a * b).sum::<f64>();
+        let w = qr::solve_upper_transpose(&self.r, &lk)
+            .into_iter()
+            .map(|v| v * self.sigma)
+            .collect();
+        Ok((est, w))
+    }
+
+    /// Overall statistics of the fit.
+    pub fn summary(&self) -> FitSummary {
+        let n = self.lay.used.len();
+        let rank = self.kept.len();
+        let icpt = usize::from(self.spec.intercept);
+        let df_model = rank.saturating_sub(icpt);
+        let r2 = 1.0 - self.rss / self.tss;
+        let nf = n as f64;
+        let adj = 1.0 - (1.0 - r2) * (n - icpt) as f64 / self.df_res as f64;
+        let (f, p) = if df_model > 0 {
+            let f = ((self.tss - self.rss) / df_model as f64) / (self.rss / self.df_res as f64);
+            (Some(f), Some(f_p(f, df_model, self.df_res)))
+        } else {
+            (None, None)
+        };
+        let loglik = -nf / 2.0 * ((2.0 * std::f64::consts::PI).ln() + (self.rss / nf).ln() + 1.0);
+        let k = (rank + 1) as f64;
+        FitSummary {
+            n,
+            dropped_missing: self.lay.total_rows - n,
+            df_model,
+            df_residual: self.df_res,
+            sigma: self.sigma,
+            r_squared: r2,
+            adj_r_squared: adj,
+            f,
+            p,
+            aic: -2.0 * loglik + 2.0 * k,
+            bic: -2.0 * loglik + nf.ln() * k,
+            rss: self.rss,
+            tss: self.tss,
+        }
+    }
+
+    /// Estimated coefficients with t tests and confidence limits at `level` (e.g. 0.95).
+    /// Aliased coefficients are omitted. An invalid level gives NaN limits.
+    pub fn coefficients(&self, level: f64) -> Vec<Coefficient> {
+        let p = self.treat.cols.len();
+        let tq = if level > 0.0 && level < 1.0 {
+            t_quantile(0.5 + level / 2.0, self.df_res)
+        } else {
+            f64::NAN
+        };
+        let mut out = Vec::new();
+        for &c in &self.kept {
+            let mut l = vec![0.0; p];
+            l[c] = 1.0;
+            let Ok((est, w)) = self.linear_checked(&l, false) else {
+                continue;
+            };
+            let se = w.iter().map(|v| v * v).sum::<f64>().sqrt();
+            let t = est / se;
+            out.push(Coefficient {
+                name: self
+                    .treat
+                    .cols
+                    .get(c)
+                    .map(|x| x.name.clone())
+                    .unwrap_or_default(),
+                estimate: est,
+                se,
+                t,
+                p: t_p(t, self.df_res),
+                lower: est - tq * se,
+                upper: est + tq * se,
+            });
+        }
+        out
+    }
+
+    /// Warnings about this fit (also the public field `warnings`).
+    pub fn warnings(&self) -> &[ModelWarning] {
+        &self.warnings
+    }
+
+    /// Whether the model has a factor other than `factor` (adjusted means then average over
+    /// its levels).
+    pub fn has_other_factors(&self, factor: &str) -> bool {
+        self.lay
+            .factors
+            .iter()
+            .any(|f| design::var_name(&self.spec, f.var) != factor)
+    }
+
+    /// Each numeric covariate of the model (variable name) with its mean over the fitted
+    /// rows, in variable order: the values adjusted means use by default.
+    pub fn covariate_means(&self) -> Vec<(String, f64)> {
+        self.cov_means
+            .iter()
+            .map(|&(v, m)| (design::var_name(&self.spec, v), m))
+            .collect()
+    }
+
+    /// Names of the terms in written order.
+    pub fn term_names(&self) -> Vec<String> {
+        self.lay.term_names.clone()
+    }
+
+    /// Number of estimated (non-aliased) coefficients.
+    pub fn n_coef(&self) -> usize {
+        self.kept.len()
+    }
+
+    /// Names of all design columns, aliased ones included, in design order.
+    pub fn column_names(&self) -> Vec<String> {
+        self.treat.cols.iter().map(|c| c.name.clone()).collect()
+    }
+
+    /// Residual degrees of freedom.
+    pub fn df_residual(&self) -> usize {
+        self.df_res
+    }
+
+    /// Residual sum of squares.
+    pub fn rss(&self) -> f64 {
+        self.rss
+    }
+
+    /// Data-file line of each fitted row.
+    pub fn row_numbers(&self) -> Vec<usize> {
+        self.lay
+            .used
+            .iter()
+            .map(|&i| self.spec.row_numbers.get(i).copied().unwrap_or(i))
+            .collect()
+    }
+
+    /// The spec this model was fitted from.
+    pub fn spec(&self) -> &ModelSpec {
+        &self.spec
+    }
+
+    /// Row diagnostics: a second pass over the fitted rows. Leverage h_i = |R^-T z_i|^2;
+    /// Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized residual
+    /// e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
+    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2).
+    pub fn diagnostics(&self) -> Diagnostics {
+        let e = &self.treat;
+        let p = e.cols.len();
+        let y: &[f64] = match &self.spec.response {
+            Var::Numeric { values, .. } => values,
+            Var::Factor { .. } => &[],
+        };
+        let rank = self.kept.len() as f64;
+        let s2 = self.sigma * self.sigma;
+        let mut d = Diagnostics {
+            row_numbers: self.row_numbers(),
+            fitted: Vec::new(),
+            residuals: Vec::new(),
+            leverage: Vec::new(),
+            cooks_distance: Vec::new(),
+            studentized: Vec::new(),
+        };
+        let mut row = vec![0.0; p + 1];
+        for &i in &self.lay.used {
+            fill_row(&self.spec, &e.cols, y, i, &mut row);
+            let z: Vec<f64> = self
+                .kept
+                .iter()
+                .map(|&c| (row[c] - e.centre[c]) / e.scale[c])
+                .collect();
+            let yz = (row[p] - e.y_centre) / e.y_scale;
+            let fz: f64 = z.iter().zip(&self.bz).map(|(a, b)| a * b).sum();
+            let res = (yz - fz) * e.y_scale;
+            let fitted = e.y_centre + fz * e.y_scale;
+            let u = qr::solve_upper_transpose(&self.r, &z);
+            let h: f64 = u.iter().map(|v| v * v).sum();
+            let one_h = 1.0 - h;
+            let cook = if one_h > 0.0 {
+                res * res * h / (rank * s2 * one_h * one_h)
+            } else {
+                f64::NAN
+            };
+            let stud = if one_h > 0.0 && self.df_res > 1 {
+                let s2i = (self.rss - res * res / one_h) / (self.df_res - 1) as f64;
+                if s2i > 0.0 {
+                    res / (s2i.sqrt() * one_h.sqrt())
+                } else {
+                    f64::NAN
+                }
+            } else {
+                f64::NAN
+            };
+            d.fitted.push(fitted);
+            d.residuals.push(res);
+            d.leverage.push(h);
+            d.cooks_distance.push(cook);
+            d.studentized.push(stud);
+        }
+        d
+    }
+}

@@ -1,0 +1,344 @@
+//! Adjusted (least-squares) means, their pairwise comparisons and contrasts
+//! (Searle, Speed & Milliken 1980, "Population marginal means in the linear model",
+//! The American Statistician 34). Tukey-Kramer limits: Kramer 1956, Biometrics 12;
+//! Holm 1979, Scand. J. Statistics 6; Sidak 1967, JASA 62.
+
+use super::design::{self, Point};
+use super::fit::{check_level, t_p, t_quantile, Fit};
+use super::{Adjust, AdjustedMean, Contrast, ModelError, Pair, Transform, Var};
+use crate::stats::tukey::{ptukey_upper, qtukey};
+
+/// Weights whose sum is within this of 0 (relative to the sum of their absolute values)
+/// count as summing to zero; typed decimals like 1/3 do not add up exactly.
+const WEIGHT_SUM_TOL: f64 = 1e-9;
+
+impl Fit {
+    /// The variable index of a factor of the model, or the reason it is not one.
+    pub(crate) fn model_factor(&self, factor: &str) -> Result<usize, ModelError> {
+        let v = self
+            .spec
+            .vars
+            .iter()
+            .position(|x| x.name() == factor)
+            .ok_or_else(|| ModelError::UnknownVariable {
+                name: factor.to_string(),
+            })?;
+        match self.spec.vars.get(v) {
+            Some(Var::Factor { .. }) => {}
+            _ => {
+                return Err(ModelError::NotAFactor {
+                    name: factor.to_string(),
+                })
+            }
+        }
+        if self.lay.factor(v).is_none() {
+            return Err(ModelError::FactorNotInModel {
+                factor: factor.to_string(),
+            });
+        }
+        Ok(v)
+    }
+
+    /// Numeric values for a point: the given values, else the means over the fitted rows.
+    /// Checks that every given name is a covariate of the model and that its transforms are
+    /// defined there.
+    pub(crate) fn covariate_values(
+        &self,
+        at: &[(String, f64)],
+    ) -> Result<Vec<(usize, f64)>, ModelError> {
+        for (name, _) in at {
+            let known = self
+                .cov_means
+                .iter()
+                .any(|(v, _)| self.spec.vars.get(*v).map(|x| x.name()) == Some(name.as_str()));
+            if !known {
+                return Err(ModelError::CovariateNotInModel { name: name.clone() });
+            }
+        }
+        let mut out = Vec::new();
+        for &(v, m) in &self.cov_means {
+            let name = design::var_name(&self.spec, v);
+            let x = at
+                .iter()
+                .rev()
+                .find(|(n, _)| *n == name)
+                .map(|(_, x)| *x)
+                .unwrap_or(m);
+            for (ti, t) in self.spec.terms.iter().enumerate() {
+                for p in t.parts.iter().filter(|p| p.var == v) {
+                    match p.transform {
+                        Transform::Log if x.is_nan() || x <= 0.0 => {
+                            return Err(ModelError::LogOfNonPositive {
+                                term: Some(ti),
+                                variable: name,
+                                row: None,
+                                value: x,
+                            })
+                        }
+                        Transform::Sqrt if x.is_nan() || x < 0.0 => {
+                            return Err(ModelError::SqrtOfNegative {
+                                term: Some(ti),
+                                variable: name,
+                                row: None,
+                                value: x,
+                            })
+                        }
+                        _ => {}
+                    }
+                }
+            }
+            out.push((v, x));
+        }
+        Ok(out)
+    }
+
+    /// A point with factor `focal` at level `code` (or averaged when None), other factors
+    /// averaged with equal weights over their levels in the model.
+    pub(crate) fn point(
+        &self,
+        focal: usize,
+        code: Option<u32>,
+        numeric: Vec<(usize, f64)>,
+        derivative: Option<usize>,
+    ) -> Point {
+        let mut factor_weights = Vec::new();
+        for f in &self.lay.factors {
+            let nlev = match self.spec.vars.get(f.var) {
+                Some(Var::Factor { levels, .. }) => levels.len(),
+                _ => 0,
+            };
+            let mut w = vec![0.0; nlev];
+            match code {
+                Some(c) if f.var == focal => {
+                    if let Some(x) = w.get_mut(c as usize) {
+                        *x = 1.0;
+                    }
+                }
+                _ => {
+                    let k = f.present.len() as f64;
+                    for &c in &f.present {
+                        if let Some(x) = w.get_mut(c as usize) {
+                            *x = 1.0 / k;
+                        }
+                    }
+                }
+            }
+            factor_weights.push((f.var, w));
+        }
+        Point {
+            factor_weights,
+            numeric,
+            derivative,
+        }
+    }
+
+    /// The design row of a point (one entry per treatment-coded column).
+    pub(crate) fn row_at(&self, pt: &Point) -> Vec<f64> {
+        self.treat
+            .cols
+            .iter()
+            .map(|c| design::eval_point(c, pt))
+            .collect()
+    }
+
+    /// Level labels and design rows for the adjusted mean of each level of `factor`.
+    fn level_rows(
+        &self,
+        factor: &str,
+        at: &[(String, f64)],
+    ) -> Result<Vec<(String, Vec<f64>)>, ModelError> {
+        let v = self.model_factor(factor)?;
+        let numeric = self.covariate_values(at)?;
+        let levels = match self.spec.vars.get(v) {
+            Some(Var::Factor { levels, .. }) => levels.clone(),
+            _ => Vec::new(),
+        };
+        let present = self
+            .lay
+            .factor(v)
+            .map(|f| f.present.clone())
+            .unwrap_or_default();
+        if present.len() < 2 {
+            return Err(ModelError::TooFewLevels {
+                term: None,
+                factor: factor.to_string(),
+                levels: present.len(),
+            });
+        }
+        Ok(present
+            .iter()
+            .map(|&c| {
+                let pt = self.point(v, Some(c), numeric.clone(), None);
+                (
+                    levels.get(c as usize).cloned().unwrap_or_default(),
+                    self.row_at(&pt),
+                )
+            })
+            .collect())
+    }
+
+    /// Adjusted means of each level of `factor` (levels with rows, declared order), other
+    /// factors averaged with equal weights, covariates at `at` or at their means.
+    pub fn means(
+        &self,
+        factor: &str,
+        at: &[(String, f64)],
+        level: f64,
+    ) -> Result<Vec<AdjustedMean>, ModelError> {
+        check_level(level)?;
+        let rows = self.level_rows(factor, at)?;
+        let tq = t_quantile(0.5 + level / 2.0, self.df_res);
+        rows.into_iter()
+            .map(|(lab, l)| {
+                let (m, se) = self.linear(&l).map_err(|_| ModelError::NotEstimable {
+                    what: format!("the adjusted mean of {factor} = {lab}"),
+                })?;
+                Ok(AdjustedMean {
+                    level: lab,
+                    mean: m,
+                    se,
+                    df: self.df_res,
+                    lower: m - tq * se,
+                    upper: m + tq * se,
+                })
+            })
+            .collect()
+    }
+
+    /// Every pairwise difference of adjusted means (first minus second, levels i < j in
+    /// order) with the chosen multiplicity adjustment.
+    pub fn pairs(
+        &self,
+        factor: &str,
+        at: &[(String, f64)],
+        adjust: Adjust,
+        level: f64,
+    ) -> Result<Vec<Pair>, ModelError> {
+        check_level(level)?;
+        let rows = self.level_rows(factor, at)?;
+        let k = rows.len();
+        let m = k * (k - 1) / 2;
+        let mf = m as f64;
+        let df = self.df_res;
+        let alpha = 1.0 - level;
+        let mut out = Vec::with_capacity(m);
+        let mut raw = Vec::with_capacity(m);
+        for i in 0..k {
+            for j in (i + 1)..k {
+                let (Some((li, ri)), Some((lj, rj))) = (rows.get(i), rows.get(j)) else {
+                    continue;
+                };
+                let d: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a - b).collect();
+                let (est, se) = self.linear(&d).map_err(|_| ModelError::NotEstimable {
+                    what: format!("the difference {li} - {lj}"),
+                })?;
+                let t = est / se;
+                let p = t_p(t, df);
+                raw.push(p);
+                out.push(Pair {
+                    first: li.clone(),
+                    second: lj.clone(),
+                    estimate: est,
+                    se,
+                    t,
+                    df,
+                    p,
+                    lower: None,
+                    upper: None,
+                });
+            }
+        }
+        let half_width = |crit: f64, se: f64| crit * se;
+        match adjust {
+            Adjust::None => {
+                let c = t_quantile(1.0 - alpha / 2.0, df);
+                for q in &mut out {
+                    q.lower = Some(q.estimate - half_width(c, q.se));
+                    q.upper = Some(q.estimate + half_width(c, q.se));
+                }
+            }
+            Adjust::Bonferroni => {
+                let c = t_quantile(1.0 - alpha / (2.0 * mf), df);
+                for q in &mut out {
+                    q.p = (q.p * mf).min(1.0);
+                    q.lower = Some(q.estimate - half_width(c, q.se));
+                    q.upper = Some(q.estimate + half_width(c, q.se));
+                }
+            }
+            Adjust::Sidak => {
+                let c = t_quantile(1.0 - (1.0 - level.powf(1.0 / mf)) / 2.0, df);
+                for q in &mut out {
+                    // 1 - (1 - p)^m, computed without cancellation for small p.
+                    q.p = (-((mf) * (-q.p).ln_1p()).exp_m1()).clamp(0.0, 1.0);
+                    q.lower = Some(q.estimate - half_width(c, q.se));
+                    q.upper = Some(q.estimate + half_width(c, q.se));
+                }
+            }
+            Adjust::Holm => {
+                let mut order: Vec<usize> = (0..out.len()).collect();
+                order.sort_by(|&a, &b| raw[a].total_cmp(&raw[b]).then(a.cmp(&b)));
+                let mut running: f64 = 0.0;
+                for (rank, &idx) in order.iter().enumerate() {
+                    let adj = ((mf - rank as f64) * raw[idx]).min(1.0);
+                    running = running.max(adj);
+                    if let Some(q) = out.get_mut(idx) {
+                        q.p = running;
+                    }
+                }
+            }
+            Adjust::Tukey => {
+                let c = qtukey(level, k, df as f64) / std::f64::consts::SQRT_2;
+                for q in &mut out {
+                    q.p = ptukey_upper(q.t.abs() * std::f64::consts::SQRT_2, k, df as f64)
+                        .clamp(0.0, 1.0);
+                    q.lower = Some(q.estimate - half_width(c, q.se));
+                    q.upper = Some(q.estimate + half_width(c, q.se));
+                }
+            }
+        }
+        Ok(out)
+    }
+
+    /// A contrast sum_i w_i * mean_i of the adjusted means of `factor` (one weight per level
+    /// with rows, in declared order).
+    pub fn contrast(
+        &self,
+        factor: &str,
+        weights: &[f64],
+        at: &[(String, f64)],
+        level: f64,
+    ) -> Result<Contrast, ModelError> {
+        check_level(level)?;
+        let rows = self.level_rows(factor, at)?;
+        if weights.len() != rows.len() {
+            return Err(ModelError::WeightsLength {
+                expected: rows.len(),
+                found: weights.len(),
+            });
+        }
+        let p = self.treat.cols.len();
+        let mut l = vec![0.0; p];
+        for ((_, r), w) in rows.iter().zip(weights) {
+            for (a, b) in l.iter_mut().zip(r) {
+                *a += w * b;
+            }
+        }
+        let (est, se) = self.linear(&l).map_err(|_| ModelError::NotEstimable {
+            what: format!("this contrast of {factor}"),
+        })?;
+        let t = est / se;
+        let tq = t_quantile(0.5 + level / 2.0, self.df_res);
+        let sum: f64 = weights.iter().sum();
+        let abs: f64 = weights.iter().map(|w| w.abs()).sum();
+        Ok(Contrast {
+            estimate: est,
+            se,
+            t,
+            df: self.df_res,
+            p: t_p(t, self.df_res),
+            lower: est - tq * se,
+            upper: est + tq * se,
+            weights_sum_to_zero: sum.abs() <= WEIGHT_SUM_TOL * abs.max(f64::MIN_POSITIVE),
+        })
+    }
+}

@@ -1,0 +1,778 @@
+//! The linear-model engine: least-squares fits of a response on factors and numeric
+//! covariates, with sums of squares of Type I, II and III, adjusted means, pairwise
+//! comparisons, contrasts, slopes within groups, Johnson-Neyman regions and row diagnostics.
+//!
+//! The engine knows nothing of files or of covey's language: the caller builds a
+//! [`ModelSpec`] from its data set and calls [`fit`]. All results are typed numbers.
+//!
+//! Numerics: the design matrix is built term by term, its columns are centred against the
+//! intercept (when there is one) and scaled to unit root-mean-square, and the triangular
+//! factor R of the augmented matrix [X | y] is accumulated by Householder QR over fixed row
+//! chunks. Every sum of squares is read from a re-triangularisation of selected columns of
+//! that R; the normal equations are never formed.
+
+mod anova;
+mod design;
+mod fit;
+mod means;
+mod qr;
+mod slopes;
+
+#[cfg(test)]
+mod tests;
+
+use std::fmt;
+
+pub use anova::compare;
+pub use fit::{fit, Fit};
+
+/// One input variable, aligned with the response row by row.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Var {
+    /// A numeric column; NaN marks a missing value.
+    Numeric {
+        /// Variable name as the user wrote it.
+        name: String,
+        /// Values, one per row.
+        values: Vec<f64>,
+    },
+    /// A factor: integer codes into `levels` (declared order; the first is the reference).
+    Factor {
+        /// Variable name.
+        name: String,
+        /// Level index of each row; `None` marks a missing value.
+        codes: Vec<Option<u32>>,
+        /// Level labels in declared order.
+        levels: Vec<String>,
+    },
+}
+
+impl Var {
+    /// The variable's name.
+    pub fn name(&self) -> &str {
+        match self {
+            Var::Numeric { name, .. } | Var::Factor { name, .. } => name,
+        }
+    }
+    fn len(&self) -> usize {
+        match self {
+            Var::Numeric { values, .. } => values.len(),
+            Var::Factor { codes, .. } => codes.len(),
+        }
+    }
+}
+
+/// A transform applied to a numeric part of a term.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Transform {
+    /// x itself.
+    Identity,
+    /// x^k (k >= 1).
+    Power(u32),
+    /// Natural logarithm (x > 0).
+    Log,
+    /// Square root (x >= 0).
+    Sqrt,
+}
+
+/// One part of a term: a variable and, for numeric variables, a transform.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Part {
+    /// Index into [`ModelSpec::vars`].
+    pub var: usize,
+    /// Transform (use `Identity` for factors).
+    pub transform: Transform,
+}
+
+/// A model term: the product of its parts (`group`, `x^2`, `group by x`, ...).
+#[derive(Debug, Clone, PartialEq)]
+pub struct TermSpec {
+    /// The parts in written order.
+    pub parts: Vec<Part>,
+}
+
+/// Everything the engine needs to fit one model.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ModelSpec {
+    /// The response (must be numeric).
+    pub response: Var,
+    /// Variables the terms refer to.
+    pub vars: Vec<Var>,
+    /// Terms in written order.
+    pub terms: Vec<TermSpec>,
+    /// Whether the model has an intercept.
+    pub intercept: bool,
+    /// The data-file line of each row (for messages and diagnostics).
+    pub row_numbers: Vec<usize>,
+}
+
+/// Which kind of sums of squares an analysis-of-variance table holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SsType {
+    /// Sequential, in written term order.
+    I,
+    /// Each term after all terms that do not contain it.
+    II,
+    /// Each term after all others, factors in sum-to-zero coding.
+    III,
+}
+
+/// Multiplicity adjustment for pairwise comparisons.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Adjust {
+    /// Tukey-Kramer (studentized range).
+    Tukey,
+    /// Holm step-down (no simultaneous limits).
+    Holm,
+    /// Bonferroni.
+    Bonferroni,
+    /// Sidak.
+    Sidak,
+    /// No adjustment.
+    None,
+}
+
+/// Overall statistics of a fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitSummary {
+    /// Rows used.
+    pub n: usize,
+    /// Rows dropped for missing values.
+    pub dropped_missing: usize,
+    /// Model degrees of freedom (estimated coefficients, less the intercept).
+    pub df_model: usize,
+    /// Residual degrees of freedom.
+    pub df_residual: usize,
+    /// Residual standard deviation.
+    pub sigma: f64,
+    /// Coefficient of determination.
+    pub r_squared: f64,
+    /// Adjusted R^2.
+    pub adj_r_squared: f64,
+    /// Overall F statistic (None for a model with no column besides the intercept).
+    pub f: Option<f64>,
+    /// Upper-tail p-value of `f`.
+    pub p: Option<f64>,
+    /// Akaike information criterion.
+    pub aic: f64,
+    /// Bayesian information criterion.
+    pub bic: f64,
+    /// Residual sum of squares.
+    pub rss: f64,
+    /// Total sum of squares (about the mean with an intercept, about 0 without).
+    pub tss: f64,
+}
+
+/// One estimated coefficient.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Coefficient {
+    /// Coefficient name, e.g. `group = B by x`.
+    pub name: String,
+    /// Estimate.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// t statistic.
+    pub t: f64,
+    /// Two-sided p-value.
+    pub p: f64,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+}
+
+/// One row of an analysis-of-variance table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AnovaRow {
+    /// Term name.
+    pub term: String,
+    /// Index of the term in the model.
+    pub term_index: usize,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Sum of squares.
+    pub ss: f64,
+    /// Mean square (0 when df = 0).
+    pub ms: f64,
+    /// F statistic (None when df = 0).
+    pub f: Option<f64>,
+    /// Upper-tail p-value (None when df = 0).
+    pub p: Option<f64>,
+    /// Partial eta squared, SS / (SS + RSS).
+    pub partial_eta_sq: f64,
+}
+
+/// A note attached to an analysis-of-variance table.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Note {
+    /// A Type III test of a term containing a factor compares groups where the named
+    /// covariate is 0, because the model also has a term of that factor by the covariate.
+    AtCovariateZero {
+        /// Index of the tested term.
+        term: usize,
+        /// Name of the tested term.
+        term_name: String,
+        /// The covariate (part name, e.g. `x`).
+        covariate: String,
+    },
+}
+
+impl fmt::Display for Note {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Note::AtCovariateZero { term_name, covariate, .. } => write!(
+                f,
+                "the Type III test of `{term_name}` compares groups where {covariate} = 0, because the model lets the effect depend on {covariate}; centre {covariate} or give adjusted means at chosen values to compare elsewhere"
+            ),
+        }
+    }
+}
+
+/// An analysis-of-variance table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Anova {
+    /// One row per term.
+    pub rows: Vec<AnovaRow>,
+    /// Residual degrees of freedom.
+    pub residual_df: usize,
+    /// Residual sum of squares.
+    pub residual_ss: f64,
+    /// Total degrees of freedom (n - 1 with an intercept, n without).
+    pub total_df: usize,
+    /// Total sum of squares.
+    pub total_ss: f64,
+    /// Notes on the interpretation of rows.
+    pub notes: Vec<Note>,
+}
+
+/// The F test of a smaller model nested in a bigger one.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Comparison {
+    /// (residual df, RSS) of the smaller then the bigger model.
+    pub rows: [(usize, f64); 2],
+    /// Residual df of the smaller model (same as `rows[0].0`).
+    pub small_df_residual: usize,
+    /// RSS of the smaller model.
+    pub small_rss: f64,
+    /// Residual df of the bigger model.
+    pub big_df_residual: usize,
+    /// RSS of the bigger model.
+    pub big_rss: f64,
+    /// Difference in residual df.
+    pub df: usize,
+    /// Difference in RSS.
+    pub ss: f64,
+    /// F statistic.
+    pub f: f64,
+    /// Upper-tail p-value.
+    pub p: f64,
+}
+
+/// An adjusted (least-squares) mean.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AdjustedMean {
+    /// Level label.
+    pub level: String,
+    /// Adjusted mean.
+    pub mean: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Degrees of freedom (residual).
+    pub df: usize,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+}
+
+/// A pairwise comparison of adjusted means (first minus second).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Pair {
+    /// First level.
+    pub first: String,
+    /// Second level.
+    pub second: String,
+    /// Difference of adjusted means.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// t statistic.
+    pub t: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Adjusted p-value.
+    pub p: f64,
+    /// Lower limit (None for Holm, which has no simultaneous limits).
+    pub lower: Option<f64>,
+    /// Upper limit.
+    pub upper: Option<f64>,
+}
+
+/// A contrast of adjusted means.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Contrast {
+    /// Estimate.
+    pub estimate: f64,
+    /// Standard error.
+    pub se: f64,
+    /// t statistic.
+    pub t: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Two-sided p-value.
+    pub p: f64,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+    /// Whether the weights sum to 0 (a caller may warn when they do not).
+    pub weights_sum_to_zero: bool,
+}
+
+/// The slope of a covariate within one level of a factor.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Slope {
+    /// Level label.
+    pub level: String,
+    /// Slope.
+    pub slope: f64,
+    /// Standard error.
+    pub se: f64,
+    /// t statistic.
+    pub t: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Two-sided p-value.
+    pub p: f64,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+}
+
+/// Slopes within levels and the test that they are equal.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Slopes {
+    /// The covariate's name.
+    pub covariate: String,
+    /// One row per level.
+    pub rows: Vec<Slope>,
+    /// F statistic of the test of equal slopes.
+    pub equality_f: f64,
+    /// Numerator df.
+    pub df1: usize,
+    /// Denominator df.
+    pub df2: usize,
+    /// Upper-tail p-value.
+    pub equality_p: f64,
+    /// True when the model lacked the factor-by-covariate term and was refitted with it.
+    pub refitted: bool,
+}
+
+/// The set of covariate values where a difference is significant.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RegionKind {
+    /// Significant for every value.
+    Everywhere,
+    /// Significant for no value.
+    Nowhere,
+    /// Significant below the bound.
+    Below(f64),
+    /// Significant above the bound.
+    Above(f64),
+    /// Significant strictly between the two bounds.
+    Between(f64, f64),
+    /// Significant below the first or above the second bound.
+    Outside(f64, f64),
+}
+
+/// A Johnson-Neyman region for one pair of levels.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Region {
+    /// First level.
+    pub first: String,
+    /// Second level.
+    pub second: String,
+    /// The significant set.
+    pub kind: RegionKind,
+    /// The bounds, ascending (0, 1 or 2 of them).
+    pub boundaries: Vec<f64>,
+    /// True when the significant set lies between the bounds (or is everything).
+    pub significant_inside: bool,
+    /// The smaller boundary (for `Above`, the only one), if any.
+    pub lower_bound: Option<f64>,
+    /// The larger boundary (for `Below`, the only one), if any.
+    pub upper_bound: Option<f64>,
+    /// Where the two levels differ significantly, in words (bounds referred to by name).
+    pub description: String,
+    /// Smallest covariate value in the fitted rows.
+    pub observed_min: f64,
+    /// Largest covariate value in the fitted rows.
+    pub observed_max: f64,
+    /// True when the model was refitted with the factor-by-covariate term.
+    pub refitted: bool,
+}
+
+/// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Diagnostics {
+    /// Data-file line of each fitted row.
+    pub row_numbers: Vec<usize>,
+    /// Fitted values.
+    pub fitted: Vec<f64>,
+    /// Residuals.
+    pub residuals: Vec<f64>,
+    /// Leverages (hat values).
+    pub leverage: Vec<f64>,
+    /// Cook's distances.
+    pub cooks_distance: Vec<f64>,
+    /// Externally studentized residuals.
+    pub studentized: Vec<f64>,
+}
+
+/// Something the user should know about a fit that does not stop it.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ModelWarning {
+    /// An interaction is in the model without one of the lower-order terms it contains.
+    MarginalityBroken {
+        /// Index of the interaction term.
+        term: usize,
+        /// Its name.
+        term_name: String,
+        /// The missing lower-order term.
+        missing: String,
+    },
+    /// A numeric covariate takes few distinct integer values.
+    FewDistinctValues {
+        /// First term using it.
+        term: usize,
+        /// Variable name.
+        variable: String,
+        /// Number of distinct values.
+        distinct: usize,
+    },
+    /// Rows were dropped for missing values.
+    RowsDropped {
+        /// How many.
+        count: usize,
+    },
+    /// Columns were linear combinations of earlier ones and were left out.
+    Aliased {
+        /// Names of the aliased coefficients.
+        names: Vec<String>,
+        /// Terms they belong to (same order).
+        terms: Vec<Option<usize>>,
+    },
+    /// A level of a factor has no rows in the fitted data and is left out of this model.
+    EmptyLevel {
+        /// First term using the factor.
+        term: usize,
+        /// Factor name.
+        factor: String,
+        /// The level.
+        level: String,
+    },
+}
+
+impl fmt::Display for ModelWarning {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ModelWarning::MarginalityBroken { term_name, missing, .. } => write!(
+                f,
+                "the term `{term_name}` is in the model without `{missing}`, which it contains; its test and coefficients then mix in that effect; add `{missing}` unless this is intended"
+            ),
+            ModelWarning::FewDistinctValues { variable, distinct, .. } => write!(
+                f,
+                "the covariate `{variable}` takes only {distinct} distinct whole-number values; if these are categories, declare it a factor"
+            ),
+            ModelWarning::RowsDropped { count } => {
+                write!(f, "{count} row(s) with a missing value in a variable of the model were left out")
+            }
+            ModelWarning::Aliased { names, .. } => write!(
+                f,
+                "these coefficients cannot be estimated (their columns are combinations of earlier ones, e.g. an empty cell) and were left out: {}",
+                names.join(", ")
+            ),
+            ModelWarning::EmptyLevel { factor, level, .. } => write!(
+                f,
+                "level `{level}` of factor `{factor}` has no rows in the fitted data and is left out of this model"
+            ),
+        }
+    }
+}
+
+/// Why a model cannot be fitted or a result cannot be computed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ModelError {
+    /// The response is a factor.
+    ResponseNotNumeric,
+    /// A variable's length differs from the response's.
+    LengthMismatch {
+        /// Variable name.
+        variable: String,
+        /// Rows of the response.
+        expected: usize,
+        /// Rows of the variable.
+        found: usize,
+    },
+    /// `row_numbers` does not have one entry per row.
+    RowNumbersMismatch {
+        /// Rows of the response.
+        expected: usize,
+        /// Entries given.
+        found: usize,
+    },
+    /// A part refers to a variable that does not exist.
+    VarIndexOutOfRange {
+        /// Term index.
+        term: usize,
+        /// The bad index.
+        index: usize,
+    },
+    /// A term has no parts.
+    EmptyTerm {
+        /// Term index.
+        term: usize,
+    },
+    /// A term uses the same part twice.
+    RepeatedPart {
+        /// Term index.
+        term: usize,
+    },
+    /// A transform was applied to a factor.
+    TransformOnFactor {
+        /// Term index.
+        term: usize,
+    },
+    /// x^0 was asked for.
+    ZeroPower {
+        /// Term index.
+        term: usize,
+    },
+    /// The same term appears twice.
+    DuplicateTerm {
+        /// Index of the second occurrence.
+        term: usize,
+    },
+    /// A factor code does not name a level.
+    FactorCodeOutOfRange {
+        /// Factor name.
+        variable: String,
+        /// Data-file line.
+        row: usize,
+    },
+    /// An infinite value.
+    NonFiniteValue {
+        /// Variable name.
+        variable: String,
+        /// Data-file line.
+        row: usize,
+    },
+    /// log of a value <= 0.
+    LogOfNonPositive {
+        /// Term index (None for a value given for adjusted means).
+        term: Option<usize>,
+        /// Variable name.
+        variable: String,
+        /// Data-file line (None for a given value).
+        row: Option<usize>,
+        /// The value.
+        value: f64,
+    },
+    /// sqrt of a negative value.
+    SqrtOfNegative {
+        /// Term index (None for a value given for adjusted means).
+        term: Option<usize>,
+        /// Variable name.
+        variable: String,
+        /// Data-file line (None for a given value).
+        row: Option<usize>,
+        /// The value.
+        value: f64,
+    },
+    /// The model has no columns at all.
+    EmptyModel,
+    /// No row is left after dropping missing values.
+    NoRows,
+    /// The response is constant over the fitted rows.
+    ResponseZeroVariance,
+    /// A covariate is constant over the fitted rows.
+    CovariateZeroVariance {
+        /// First term using it.
+        term: usize,
+        /// Variable name.
+        variable: String,
+    },
+    /// A factor has fewer than two levels with rows.
+    TooFewLevels {
+        /// First term using it (None when asked for means etc.).
+        term: Option<usize>,
+        /// Factor name.
+        factor: String,
+        /// Levels with rows.
+        levels: usize,
+    },
+    /// Fewer rows than coefficients.
+    FewerRowsThanCoefficients {
+        /// Rows used.
+        rows: usize,
+        /// Coefficients.
+        coefficients: usize,
+    },
+    /// No residual degrees of freedom are left.
+    ZeroResidualDf,
+    /// The model fits the data exactly.
+    PerfectFit,
+    /// Type III asked for on a design with aliased columns.
+    TypeIIIWithAliased {
+        /// The aliased coefficients.
+        aliased: Vec<String>,
+    },
+    /// No variable of that name.
+    UnknownVariable {
+        /// The name.
+        name: String,
+    },
+    /// The variable is numeric where a factor is needed.
+    NotAFactor {
+        /// The name.
+        name: String,
+    },
+    /// The factor is not in the model.
+    FactorNotInModel {
+        /// The name.
+        factor: String,
+    },
+    /// A covariate given a value is not a numeric covariate of the model.
+    CovariateNotInModel {
+        /// The name.
+        name: String,
+    },
+    /// The model has no numeric covariate.
+    NoCovariate,
+    /// Several covariates and none named.
+    AmbiguousCovariate {
+        /// The candidates.
+        candidates: Vec<String>,
+    },
+    /// The covariate enters the model through a transform (slopes need it linear).
+    NonlinearCovariate {
+        /// The name.
+        covariate: String,
+    },
+    /// A quantity is not estimable from this design (aliased columns).
+    NotEstimable {
+        /// What was asked for (a level or pair label).
+        what: String,
+    },
+    /// Contrast weights do not match the number of levels.
+    WeightsLength {
+        /// Levels.
+        expected: usize,
+        /// Weights given.
+        found: usize,
+    },
+    /// A confidence level or alpha outside (0, 1).
+    BadLevel {
+        /// The value.
+        value: f64,
+    },
+    /// A level name is not a level of the factor.
+    UnknownLevel {
+        /// Factor.
+        factor: String,
+        /// Level.
+        level: String,
+    },
+    /// The smaller model is not nested in the bigger one.
+    NotNested,
+    /// The two models were fitted on different rows.
+    DifferentRows,
+    /// The two models have different responses.
+    DifferentResponse,
+    /// The two models have the same column space.
+    SameColumnSpace,
+}
+
+impl fmt::Display for ModelError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        use ModelError as E;
+        match self {
+            E::ResponseNotNumeric => write!(f, "the response is a factor; a linear model needs a numeric response"),
+            E::LengthMismatch { variable, expected, found } => write!(f, "variable `{variable}` has {found} rows but the response has {expected}; all columns must come from the same rows"),
+            E::RowNumbersMismatch { expected, found } => write!(f, "internal: {found} row numbers given for {expected} rows"),
+            E::VarIndexOutOfRange { index, .. } => write!(f, "this term refers to variable number {index}, which does not exist"),
+            E::EmptyTerm { .. } => write!(f, "this term has no variables"),
+            E::RepeatedPart { .. } => write!(f, "this term uses the same variable twice; write a power such as x^2 instead"),
+            E::TransformOnFactor { .. } => write!(f, "a power, log or sqrt cannot be applied to a factor"),
+            E::ZeroPower { .. } => write!(f, "x^0 is the constant 1, which the intercept already is; remove the term"),
+            E::DuplicateTerm { .. } => write!(f, "this term appears twice in the model; remove one"),
+            E::FactorCodeOutOfRange { variable, row } => write!(f, "factor `{variable}` has an unknown level at line {row}"),
+            E::NonFiniteValue { variable, row } => write!(f, "`{variable}` is infinite at line {row}; correct the value or mark it missing"),
+            E::LogOfNonPositive { variable, row: Some(r), value, .. } => write!(f, "log({variable}) is undefined at line {r}, where {variable} = {value}; log needs positive values (shift the variable or drop the row)"),
+            E::LogOfNonPositive { variable, row: None, value, .. } => write!(f, "log({variable}) is undefined at {variable} = {value}; give a positive value"),
+            E::SqrtOfNegative { variable, row: Some(r), value, .. } => write!(f, "sqrt({variable}) is undefined at line {r}, where {variable} = {value}; sqrt needs values >= 0"),
+            E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
+            E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
+            E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
+            E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
+            E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
+            E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
+            E::FewerRowsThanCoefficients { rows, coefficients } => write!(f, "the model has {coefficients} coefficients but only {rows} rows; use fewer terms or more data"),
+            E::ZeroResidualDf => write!(f, "no residual degrees of freedom are left (as many independent coefficients as rows), so no error variance can be estimated; use fewer terms or more data"),
+            E::PerfectFit => write!(f, "the model fits the data exactly (residual sum of squares is 0 up to rounding), so standard errors, tests and intervals cannot be computed; check that the response is not computed from the predictors"),
+            E::TypeIIIWithAliased { aliased } => write!(f, "Type III sums of squares test each term against a full-rank design, but these coefficients are not estimable (e.g. empty cells): {}; use Type I or II, or remove the interaction", aliased.join(", ")),
+            E::UnknownVariable { name } => write!(f, "there is no variable `{name}`"),
+            E::NotAFactor { name } => write!(f, "`{name}` is numeric, not a factor"),
+            E::FactorNotInModel { factor } => write!(f, "factor `{factor}` is not in this model; add it as a term first"),
+            E::CovariateNotInModel { name } => write!(f, "`{name}` is not a numeric covariate of this model, so it cannot be given a value"),
+            E::NoCovariate => write!(f, "the model has no numeric covariate"),
+            E::AmbiguousCovariate { candidates } => write!(f, "the model has several covariates ({}); name the one you mean", candidates.join(", ")),
+            E::NonlinearCovariate { covariate } => write!(f, "`{covariate}` enters the model through a power, log or sqrt, so it has no single slope; use it untransformed"),
+            E::NotEstimable { what } => write!(f, "{what} is not estimable from this design (some coefficients are aliased, e.g. an empty cell)"),
+            E::WeightsLength { expected, found } => write!(f, "{found} weights given but the factor has {expected} levels in this model; give one weight per level"),
+            E::BadLevel { value } => write!(f, "{value} is not between 0 and 1"),
+            E::UnknownLevel { factor, level } => write!(f, "`{level}` is not a level of `{factor}` in this model"),
+            E::NotNested => write!(f, "the smaller model is not nested in the bigger one (some of its columns are not combinations of the bigger model's columns); compare only a model with one that extends it"),
+            E::DifferentRows => write!(f, "the two models were fitted on different rows (missing values differ); fit both on the same rows"),
+            E::DifferentResponse => write!(f, "the two models have different responses, so their residual sums of squares cannot be compared"),
+            E::SameColumnSpace => write!(f, "the two models have the same columns, so there is nothing to test"),
+        }
+    }
+}
+
+impl std::error::Error for ModelError {}
+
+impl ModelError {
+    /// The index of the term at fault, when one term is.
+    pub fn term(&self) -> Option<usize> {
+        use ModelError as E;
+        match self {
+            E::VarIndexOutOfRange { term, .. }
+            | E::EmptyTerm { term }
+            | E::RepeatedPart { term }
+            | E::TransformOnFactor { term }
+            | E::ZeroPower { term }
+            | E::DuplicateTerm { term }
+            | E::CovariateZeroVariance { term, .. } => Some(*term),
+            E::LogOfNonPositive { term, .. }
+            | E::SqrtOfNegative { term, .. }
+            | E::TooFewLevels { term, .. } => *term,
+            _ => None,
+        }
+    }
+}
+
+impl ModelWarning {
+    /// The index of the term concerned, when there is one (for aliased columns: the first).
+    pub fn term(&self) -> Option<usize> {
+        match self {
+            ModelWarning::MarginalityBroken { term, .. }
+            | ModelWarning::FewDistinctValues { term, .. }
+            | ModelWarning::EmptyLevel { term, .. } => Some(*term),
+            ModelWarning::Aliased { terms, .. } => terms.iter().flatten().next().copied(),
+            ModelWarning::RowsDropped { .. } => None,
+        }
+    }
+}

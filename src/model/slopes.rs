@@ -1,0 +1,335 @@
+//! Slopes of a covariate within the levels of a factor, the test of equal slopes, and
+//! Johnson-Neyman regions of significance (Johnson & Neyman 1936, "Tests of certain linear
+//! hypotheses and their application to some educational problems", Statistical Research
+//! Memoirs 1; general form: Potthoff 1964, "On the Johnson-Neyman technique and some
+//! extensions thereof", Psychometrika 29).
+
+use super::design::term_keys;
+use super::fit::{check_level, f_p, fit, t_p, t_quantile, Fit};
+use super::{ModelError, Part, Region, RegionKind, Slope, Slopes, TermSpec, Transform, Var};
+
+/// When |A| (the x^2 coefficient of the Johnson-Neyman quadratic) is below this fraction of
+/// the size of its two parts, the quadratic is treated as linear: A is then the difference
+/// of two nearly equal numbers and its sign is rounding noise.
+const QUADRATIC_DEGENERATE: f64 = 1e-12;
+
+impl Fit {
+    /// The numeric covariate meant by `covariate` (None: the only one), checked to enter
+    /// the model untransformed.
+    fn slope_covariate(&self, covariate: Option<&str>) -> Result<usize, ModelError> {
+        let v = match covariate {
+            Some(name) => self
+                .cov_means
+                .iter()
+                .map(|(v, _)| *v)
+                .find(|v| self.spec.vars.get(*v).map(|x| x.name()) == Some(name))
+                .ok_or_else(|| ModelError::CovariateNotInModel {
+                    name: name.to_string(),
+                })?,
+            None => match self.cov_means.as_slice() {
+                [] => return Err(ModelError::NoCovariate),
+                [(v, _)] => *v,
+                many => {
+                    return Err(ModelError::AmbiguousCovariate {
+                        candidates: many
+                            .iter()
+                            .map(|(v, _)| super::design::var_name(&self.spec, *v))
+                            .collect(),
+                    })
+                }
+            },
+        };
+        let nonlinear = self
+            .spec
+            .terms
+            .iter()
+            .flat_map(|t| t.parts.iter())
+            .any(|p| {
+                p.var == v && !matches!(p.transform, Transform::Identity | Transform::Power(1))
+            });
+        if nonlinear {
+            return Err(ModelError::NonlinearCovariate {
+                covariate: super::design::var_name(&self.spec, v),
+            });
+        }
+        Ok(v)
+    }
+
+    /// This fit if it has the factor-by-covariate term, else a refit with it appended.
+    fn with_interaction(&self, f: usize, x: usize) -> Result<(Option<Fit>, usize), ModelError> {
+        let mut want = vec![(f, Transform::Identity), (x, Transform::Identity)];
+        want.sort();
+        if let Some(t) = (0..self.spec.terms.len()).find(|&t| term_keys(&self.spec, t) == want) {
+            return Ok((None, t));
+        }
+        let mut spec = self.spec.clone();
+        spec.terms.push(TermSpec {
+            parts: vec![
+                Part {
+                    var: f,
+                    transform: Transform::Identity,
+                },
+                Part {
+                    var: x,
+                    transform: Transform::Identity,
+                },
+            ],
+        });
+        let t = spec.terms.len() - 1;
+        Ok((Some(fit(&spec)?), t))
+    }
+
+    /// Slope of the covariate within each level of `factor`, from a model with the
+    /// factor-by-covariate term (refitted with it when absent), and the F test that the
+    /// slopes are equal (the model with versus without that term).
+    pub fn slopes(
+        &self,
+        covariate: Option<&str>,
+        factor: &str,
+        level: f64,
+    ) -> Result<Slopes, ModelError> {
+        check_level(level)?;
+        let f = self.model_factor(factor)?;
+        let x = self.slope_covariate(covariate)?;
+        let (refit, ti) = self.with_interaction(f, x)?;
+        let refitted = refit.is_some();
+        let m: &Fit = refit.as_ref().unwrap_or(self);
+        let numeric = m.covariate_values(&[])?;
+        let levels = match m.spec.vars.get(f) {
+            Some(Var::Factor { levels, .. }) => levels.clone(),
+            _ => Vec::new(),
+        };
+        let present = m
+            .lay
+            .factor(f)
+            .map(|x| x.present.clone())
+            .unwrap_or_default();
+        let df = m.df_res;
+        let tq = t_quantile(0.5 + level / 2.0, df);
+        let mut rows = Vec::new();
+        for &c in &present {
+            let lab = levels.get(c as usize).cloned().unwrap_or_default();
+            let pt = m.point(f, Some(c), numeric.clone(), Some(x));
+            let (s, se) = m
+                .linear(&m.row_at(&pt))
+                .map_err(|_| ModelError::NotEstimable {
+                    what: format!("the slope within {factor} = {lab}"),
+                })?;
+            let t = s / se;
+            rows.push(Slope {
+                level: lab,
+                slope: s,
+                se,
+                t,
+                df,
+                p: t_p(t, df),
+                lower: s - tq * se,
+                upper: s + tq * se,
+            });
+        }
+        let e = &m.treat;
+        let mine = e.term_cols.get(ti).cloned().unwrap_or_default();
+        let all: Vec<usize> = (0..e.cols.len()).collect();
+        let without: Vec<usize> = all.iter().copied().filter(|c| !mine.contains(c)).collect();
+        let (r0, s0) = e.sub_rss(&without);
+        let (r1, s1) = e.sub_rss(&all);
+        let df1 = r1.saturating_sub(r0);
+        let (ef, ep) = if df1 > 0 {
+            let fv = ((s0 - s1).max(0.0) / df1 as f64) / (m.rss / df as f64);
+            (fv, f_p(fv, df1, df))
+        } else {
+            (f64::NAN, f64::NAN)
+        };
+        Ok(Slopes {
+            covariate: super::design::var_name(&m.spec, x),
+            rows,
+            equality_f: ef,
+            df1,
+            df2: df,
+            equality_p: ep,
+            refitted,
+        })
+    }
+
+    /// Johnson-Neyman regions: for each pair of levels of `factor` (or the given pair), the
+    /// covariate values where the difference of the two fitted lines is significant at
+    /// `alpha` (two-sided t test with the residual df), from a model with the
+    /// factor-by-covariate term. Solves d(x)^2 = t^2 Var(d(x)), a quadratic in x.
+    pub fn regions(
+        &self,
+        covariate: &str,
+        factor: &str,
+        between: Option<(&str, &str)>,
+        alpha: f64,
+    ) -> Result<Vec<Region>, ModelError> {
+        check_level(alpha)?;
+        let f = self.model_factor(factor)?;
+        let x = self.slope_covariate(Some(covariate))?;
+        let (refit, _) = self.with_interaction(f, x)?;
+        let refitted = refit.is_some();
+        let m: &Fit = refit.as_ref().unwrap_or(self);
+        let numeric = m.covariate_values(&[])?;
+        let levels = match m.spec.vars.get(f) {
+            Some(Var::Factor { levels, .. }) => levels.clone(),
+            _ => Vec::new(),
+        };
+        let present = m
+            .lay
+            .factor(f)
+            .map(|x| x.present.clone())
+            .unwrap_or_default();
+        let label = |c: u32| levels.get(c as usize).cloned().unwrap_or_default();
+        let find = |name: &str| {
+            present
+                .iter()
+                .copied()
+                .find(|&c| label(c) == name)
+                .ok_or_else(|| ModelError::UnknownLevel {
+                    factor: factor.to_string(),
+                    level: name.to_string(),
+                })
+        };
+        let pairs: Vec<(u32, u32)> = match between {
+            Some((a, b)) => vec![(find(a)?, find(b)?)],
+            None => {
+                let mut v = Vec::new();
+                for (i, &a) in present.iter().enumerate() {
+                    for &b in present.iter().skip(i + 1) {
+                        v.push((a, b));
+                    }
+                }
+                v
+            }
+        };
+        // Covariate centre and spread over the fitted rows (for conditioning) and range.
+        let xs: Vec<f64> = match m.spec.vars.get(x) {
+            Some(Var::Numeric { values, .. }) => m
+                .lay
+                .used
+                .iter()
+                .filter_map(|&i| values.get(i).copied())
+                .collect(),
+            _ => Vec::new(),
+        };
+        let x0 = numeric
+            .iter()
+            .find(|(v, _)| *v == x)
+            .map(|(_, a)| *a)
+            .unwrap_or(0.0);
+        let sd = {
+            let ss: f64 = xs.iter().map(|v| (v - x0) * (v - x0)).sum();
+            let s = (ss / xs.len().max(1) as f64).sqrt();
+            if s > 0.0 && s.is_finite() {
+                s
+            } else {
+                1.0
+            }
+        };
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        for &v in &xs {
+            lo = lo.min(v);
+            hi = hi.max(v);
+        }
+        let t = t_quantile(1.0 - alpha / 2.0, m.df_res);
+        let t2 = t * t;
+        let mut out = Vec::new();
+        for (a, b) in pairs {
+            let what = || ModelError::NotEstimable {
+                what: format!("the difference {} - {}", label(a), label(b)),
+            };
+            let diff = |deriv: Option<usize>| {
+                let ra = m.row_at(&m.point(f, Some(a), numeric.clone(), deriv));
+                let rb = m.row_at(&m.point(f, Some(b), numeric.clone(), deriv));
+                ra.iter().zip(&rb).map(|(p, q)| p - q).collect::<Vec<f64>>()
+            };
+            let (ea, wa) = m.linear_parts(&diff(None)).map_err(|_| what())?;
+            let (eb, wb) = m.linear_parts(&diff(Some(x))).map_err(|_| what())?;
+            // d(x0 + sd u) = ea + (eb sd) u; Var = |wa + u sd wb|^2.
+            let bb = eb * sd;
+            let wbs: Vec<f64> = wb.iter().map(|v| v * sd).collect();
+            let dot = |p: &[f64], q: &[f64]| p.iter().zip(q).map(|(a, b)| a * b).sum::<f64>();
+            let qa = bb * bb - t2 * dot(&wbs, &wbs);
+            let qh = ea * bb - t2 * dot(&wa, &wbs);
+            let qc = ea * ea - t2 * dot(&wa, &wa);
+            let scale_a = bb * bb + t2 * dot(&wbs, &wbs);
+            let to_x = |u: f64| x0 + sd * u;
+            let kind = if qa.abs() <= QUADRATIC_DEGENERATE * scale_a {
+                if qh > 0.0 {
+                    RegionKind::Above(to_x(-qc / (2.0 * qh)))
+                } else if qh < 0.0 {
+                    RegionKind::Below(to_x(-qc / (2.0 * qh)))
+                } else if qc > 0.0 {
+                    RegionKind::Everywhere
+                } else {
+                    RegionKind::Nowhere
+                }
+            } else {
+                let disc = qh * qh - qa * qc;
+                if disc.is_nan() || disc <= 0.0 {
+                    if qa > 0.0 {
+                        RegionKind::Everywhere
+                    } else {
+                        RegionKind::Nowhere
+                    }
+                } else {
+                    // Stable roots of qa u^2 + 2 qh u + qc = 0.
+                    let q = -(qh + qh.signum() * disc.sqrt());
+                    let q = if q == 0.0 { -disc.sqrt() } else { q };
+                    let (r1, r2) = (q / qa, qc / q);
+                    let (u1, u2) = if r1 <= r2 { (r1, r2) } else { (r2, r1) };
+                    if qa > 0.0 {
+                        RegionKind::Outside(to_x(u1), to_x(u2))
+                    } else {
+                        RegionKind::Between(to_x(u1), to_x(u2))
+                    }
+                }
+            };
+            let xname = super::design::var_name(&m.spec, x);
+            let (lower_bound, upper_bound, description) = match kind {
+                RegionKind::Everywhere => (None, None, format!("for every value of {xname}")),
+                RegionKind::Nowhere => (None, None, format!("for no value of {xname}")),
+                RegionKind::Below(v) => (
+                    None,
+                    Some(v),
+                    format!("where {xname} is below the upper bound"),
+                ),
+                RegionKind::Above(v) => (
+                    Some(v),
+                    None,
+                    format!("where {xname} is above the lower bound"),
+                ),
+                RegionKind::Between(p, q) => (
+                    Some(p),
+                    Some(q),
+                    format!("where {xname} is between the bounds"),
+                ),
+                RegionKind::Outside(p, q) => (
+                    Some(p),
+                    Some(q),
+                    format!("where {xname} is below the lower or above the upper bound"),
+                ),
+            };
+            let (boundaries, inside) = match kind {
+                RegionKind::Everywhere => (Vec::new(), true),
+                RegionKind::Nowhere => (Vec::new(), false),
+                RegionKind::Below(v) | RegionKind::Above(v) => (vec![v], false),
+                RegionKind::Between(p, q) => (vec![p, q], true),
+                RegionKind::Outside(p, q) => (vec![p, q], false),
+            };
+            out.push(Region {
+                first: label(a),
+                second: label(b),
+                kind,
+                boundaries,
+                significant_inside: inside,
+                lower_bound,
+                upper_bound,
+                description,
+                observed_min: lo,
+                observed_max: hi,
+                refitted,
+            });
+        }
+        Ok(out)
+    }
+}

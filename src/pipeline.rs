@@ -1,0 +1,202 @@
+//! One document from text to rendered text, with no file system in sight:
+//! split the Markdown, parse every block, run the statements in one
+//! session, and lay the results out under their blocks.
+
+use crate::diagnostic::{self, Diagnostic};
+use crate::document::{self, Document};
+use crate::lang::{self, Span, Statement};
+use crate::report::{json, markdown, InputRecord, Item, Output};
+use crate::session::Session;
+use crate::world::World;
+
+/// How a run behaves on errors.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct RunOptions {
+    /// Run the remaining blocks after a statement fails.
+    pub keep_going: bool,
+}
+
+/// The result of running a document.
+#[derive(Debug, Clone)]
+pub struct Run {
+    /// The rendered document: the source with covey's regions filled in.
+    pub rendered: String,
+    /// The JSON export of every table.
+    pub json: serde_json::Value,
+    /// Every error, laid out for a terminal (file:line:column, caret).
+    pub errors: Vec<String>,
+    /// Warnings for the terminal.
+    pub warnings: Vec<String>,
+    /// The input files read, for provenance.
+    pub inputs: Vec<InputRecord>,
+    /// The parsed document (the source without regions, and its blocks).
+    pub document: Document,
+}
+
+impl Run {
+    /// True when a statement failed.
+    pub fn failed(&self) -> bool {
+        !self.errors.is_empty()
+    }
+}
+
+/// A document that cannot be run at all (its Markdown or its syntax is
+/// broken). Nothing is written for it.
+#[derive(Debug, Clone)]
+pub struct Unrunnable {
+    /// Every problem, laid out for a terminal.
+    pub errors: Vec<String>,
+}
+
+/// Runs the document `text`, whose file is called `file_name` in messages,
+/// reading data through `world`. Returns the rendered text, or every error
+/// that keeps the document from running.
+pub fn run(text: &str, file_name: &str, world: &dyn World, opts: RunOptions) -> Result<Run, Unrunnable> {
+    let doc = document::parse(text).map_err(|e| Unrunnable {
+        errors: vec![format!("{file_name}: {e}")],
+    })?;
+    let shift = Shift::new(&doc);
+    let show = |d: &Diagnostic| {
+        let mut d = d.clone();
+        d.span = shift.span(d.span);
+        diagnostic::render(file_name, text, &d)
+    };
+
+    // Parse every block first: a syntax error anywhere stops the render
+    // before anything runs or is written.
+    let mut blocks: Vec<Vec<Statement>> = Vec::with_capacity(doc.blocks.len());
+    let mut errors = Vec::new();
+    for block in &doc.blocks {
+        match lang::parse_block(block_lines(&doc.source, block)) {
+            Ok(s) => blocks.push(s),
+            Err(errs) => {
+                for e in errs {
+                    errors.push(show(&Diagnostic::new(e.span, e.message).label("here")));
+                }
+                blocks.push(Vec::new());
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(Unrunnable { errors });
+    }
+
+    let mut session = Session::new(world);
+    let mut outputs: Vec<Output> = Vec::new();
+    let mut bodies = Vec::with_capacity(blocks.len());
+    let mut stopped = false;
+    let mut warnings = Vec::new();
+    for (bi, statements) in blocks.iter().enumerate() {
+        if stopped {
+            bodies.push(
+                "\n*Not run: an earlier block failed. Fix that error, or render with --keep-going to run the rest.*\n\n"
+                    .to_string(),
+            );
+            continue;
+        }
+        let first = outputs.len();
+        for stmt in statements {
+            let items = match session.run(stmt) {
+                Ok(items) => items,
+                Err(d) => {
+                    let shown = show(&d);
+                    errors.push(shown.clone());
+                    let snippet = diagnostic::render(file_name, text, &{
+                        let mut d = d.clone();
+                        d.span = shift.span(d.span);
+                        d
+                    });
+                    if !opts.keep_going {
+                        stopped = true;
+                    }
+                    vec![Item::Error {
+                        message: d.message.clone(),
+                        snippet,
+                    }]
+                }
+            };
+            for it in &items {
+                if let Item::Warning(w) = it {
+                    let (line, _) = diagnostic::line_col(text, shift.offset(stmt.span.start));
+                    warnings.push(format!("{file_name}:{line}: warning: {w}"));
+                }
+            }
+            outputs.push(Output {
+                block: bi + 1,
+                line: diagnostic::line_col(&doc.source, stmt.span.start).0,
+                statement: stmt.text.clone(),
+                items,
+            });
+            if stopped {
+                break;
+            }
+        }
+        bodies.push(markdown::block_body(outputs[first..].iter().flat_map(|o| &o.items)));
+    }
+    for line in &doc.ignored_nested {
+        warnings.push(format!(
+            "{file_name}:{line}: warning: a covey block inside a list or quote is not run; move it to the top level"
+        ));
+    }
+
+    let inputs = session.inputs().to_vec();
+    let provenance = markdown::provenance(env!("CARGO_PKG_VERSION"), file_name, &inputs, &[]);
+    let rendered = document::assemble(&doc, &provenance, &bodies);
+    let json = json::document(&inputs, &outputs);
+    Ok(Run {
+        rendered,
+        json,
+        errors,
+        warnings,
+        inputs,
+        document: doc,
+    })
+}
+
+/// The lines of a block as (text, document offset, line number), read from
+/// the source so that offsets are exact whatever the fence indentation.
+fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, usize, usize)> {
+    let n = block.code.split_terminator('\n').count();
+    let mut out = Vec::with_capacity(n);
+    let mut offset = block.code_start;
+    for i in 0..n {
+        let Some(rest) = source.get(offset..) else { break };
+        let end = rest.find('\n').map_or(rest.len(), |e| e);
+        let line = rest[..end].strip_suffix('\r').unwrap_or(&rest[..end]);
+        out.push((line, offset, block.first_line + i));
+        offset += end + 1;
+    }
+    out
+}
+
+/// Maps offsets in the source without regions to offsets in the text as
+/// given (which may hold regions from an earlier in-place render), so that
+/// messages point at the lines the user sees in the file.
+struct Shift {
+    /// (offset in the source, bytes of regions inserted there), ascending.
+    inserts: Vec<(usize, usize)>,
+}
+
+impl Shift {
+    fn new(doc: &Document) -> Shift {
+        Shift {
+            inserts: doc.removed.clone(),
+        }
+    }
+
+    fn offset(&self, at: usize) -> usize {
+        at + self
+            .inserts
+            .iter()
+            .filter(|(pos, _)| *pos <= at)
+            .map(|(_, len)| len)
+            .sum::<usize>()
+    }
+
+    fn span(&self, s: Span) -> Span {
+        Span {
+            start: self.offset(s.start),
+            end: self.offset(s.end.max(s.start)),
+        }
+    }
+}

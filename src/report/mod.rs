@@ -1,0 +1,154 @@
+//! Results as typed values, and their views: Markdown, JSON (and HTML).
+//!
+//! A statement produces [`Item`]s. A [`Table`] holds numbers with the meaning
+//! of each column; only the renderers here turn them into text, and no
+//! renderer computes a number.
+
+pub mod json;
+pub mod markdown;
+pub mod number;
+
+/// How the numbers of one column are shown in Markdown. JSON always carries
+/// full precision.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// Text as it is.
+    Text,
+    /// Whole numbers (counts, degrees of freedom).
+    Count,
+    /// Decimals chosen per column so that values show about this many
+    /// significant digits.
+    Digits(u8),
+    /// Test statistics (t, F, W): two decimals, as reporting style guides
+    /// ask.
+    Statistic,
+    /// p-values in APA 7th edition style: three decimals, no leading zero,
+    /// "< .001" below that.
+    P,
+    /// A number shown exactly as stored (shortest round-trip form), for data
+    /// values.
+    Exact,
+}
+
+/// One column of a table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Column {
+    /// The JSON name (stable, documented in the README).
+    pub key: String,
+    /// The Markdown header.
+    pub header: String,
+    pub format: Format,
+}
+
+impl Column {
+    pub fn new(key: &str, header: &str, format: Format) -> Column {
+        Column {
+            key: key.to_string(),
+            header: header.to_string(),
+            format,
+        }
+    }
+}
+
+/// A table cell.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Cell {
+    Text(String),
+    Number(f64),
+    Missing,
+}
+
+impl From<f64> for Cell {
+    fn from(v: f64) -> Cell {
+        if v.is_finite() {
+            Cell::Number(v)
+        } else {
+            Cell::Missing
+        }
+    }
+}
+
+impl From<usize> for Cell {
+    fn from(v: usize) -> Cell {
+        Cell::Number(v as f64)
+    }
+}
+
+impl From<Option<f64>> for Cell {
+    fn from(v: Option<f64>) -> Cell {
+        v.map_or(Cell::Missing, Cell::from)
+    }
+}
+
+impl From<&str> for Cell {
+    fn from(v: &str) -> Cell {
+        Cell::Text(v.to_string())
+    }
+}
+
+impl From<String> for Cell {
+    fn from(v: String) -> Cell {
+        Cell::Text(v)
+    }
+}
+
+/// A computed table: its JSON kind, a caption that says what it is, typed
+/// columns and rows, and notes to read it by.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Table {
+    pub kind: &'static str,
+    pub caption: String,
+    pub columns: Vec<Column>,
+    pub rows: Vec<Vec<Cell>>,
+    pub notes: Vec<String>,
+}
+
+impl Table {
+    pub fn new(kind: &'static str, caption: impl Into<String>, columns: Vec<Column>) -> Table {
+        Table {
+            kind,
+            caption: caption.into(),
+            columns,
+            rows: Vec::new(),
+            notes: Vec::new(),
+        }
+    }
+
+    pub fn push(&mut self, row: Vec<Cell>) {
+        debug_assert_eq!(row.len(), self.columns.len());
+        self.rows.push(row);
+    }
+}
+
+/// What one statement produced, in order.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Item {
+    Table(Table),
+    /// A sentence of plain information ("Kept 28 of 30 rows.").
+    Text(String),
+    /// Something the reader must weigh before trusting the numbers.
+    Warning(String),
+    /// An error, already laid out with file, line, column and caret.
+    Error { message: String, snippet: String },
+}
+
+/// The results of one statement.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Output {
+    /// 1-based block number.
+    pub block: usize,
+    /// 1-based line of the statement in the Markdown document.
+    pub line: usize,
+    pub statement: String,
+    pub items: Vec<Item>,
+}
+
+/// An input file as the provenance section lists it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InputRecord {
+    /// The path as written in the document (relative to its folder).
+    pub path: String,
+    pub sha256: String,
+    pub rows: usize,
+    pub columns: usize,
+}

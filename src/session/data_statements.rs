@@ -1,0 +1,490 @@
+//! Handlers of the data statements: load, missing, use, factor, keep, show,
+//! and the summary table.
+
+use super::{Outcome, Session};
+use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, Values};
+use crate::diagnostic::Diagnostic;
+use crate::lang::{CompareOp, Condition, Literal, Span, Spanned};
+use crate::report::markdown::code;
+use crate::report::{Cell, Column as Col, Format, InputRecord, Item, Table};
+
+/// Rows that `show` lists.
+const PREVIEW_ROWS: usize = 8;
+
+impl Session<'_> {
+    pub(super) fn load(&mut self, path: &Spanned<String>, name: Option<&Spanned<String>>) -> Outcome {
+        let bytes = self.world.read(&path.value).map_err(|e| {
+            Diagnostic::new(path.span, e.to_string()).label("this file")
+        })?;
+        let lower = path.value.to_lowercase();
+        let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
+            b'\t'
+        } else if lower.ends_with(".csv") || lower.ends_with(".txt") {
+            b','
+        } else {
+            return Err(Diagnostic::new(path.span, format!("covey reads .csv and .tsv files, not \"{}\"", path.value))
+                .label("unknown kind of file")
+                .help("save the data as comma-separated (.csv) or tab-separated (.tsv) text"));
+        };
+        let set_name = match name {
+            Some(n) => n.value.clone(),
+            None => default_name(&path.value),
+        };
+        let opts = LoadOptions {
+            name: set_name.clone(),
+            delimiter,
+            missing: self.missing_markers.clone(),
+        };
+        let set = data::read_delimited(&bytes, &opts).map_err(|e| {
+            Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value)).label("while reading this file")
+        })?;
+        let sha = data::sha256_hex(&bytes);
+        let record = InputRecord {
+            path: path.value.clone(),
+            sha256: sha.clone(),
+            rows: set.n_rows(),
+            columns: set.columns.len(),
+        };
+        if !self.inputs.contains(&record) {
+            self.inputs.push(record);
+        }
+        let mut items = vec![Item::Text(format!(
+            "Loaded {} as data set {}: {} rows, {} columns (SHA-256 `{}`).",
+            code(&path.value),
+            code(&set_name),
+            set.n_rows(),
+            set.columns.len(),
+            sha
+        ))];
+        items.push(Item::Table(columns_table(&set, "Columns read")));
+        if let Some(i) = self.data_sets.iter().position(|d| d.name == set_name) {
+            self.data_sets[i] = set;
+            self.current = Some(i);
+        } else {
+            self.data_sets.push(set);
+            self.current = Some(self.data_sets.len() - 1);
+        }
+        Ok(items)
+    }
+
+    pub(super) fn missing(&mut self, markers: &[String]) -> Outcome {
+        self.missing_markers = markers.to_vec();
+        let list: Vec<String> = markers.iter().map(|m| code(m)).collect();
+        Ok(vec![Item::Text(format!(
+            "From here on, empty cells and {} count as missing values in loaded files.",
+            list.join(", ")
+        ))])
+    }
+
+    pub(super) fn use_data_set(&mut self, name: &Spanned<String>) -> Outcome {
+        match self.data_sets.iter().position(|d| d.name == name.value) {
+            Some(i) => {
+                self.current = Some(i);
+                let d = &self.data_sets[i];
+                Ok(vec![Item::Text(format!(
+                    "Now using data set {} ({} rows).",
+                    code(&d.name),
+                    d.n_rows()
+                ))])
+            }
+            None => {
+                let known: Vec<&str> = self.data_sets.iter().map(|d| d.name.as_str()).collect();
+                let help = match super::closest(&name.value, &known) {
+                    Some(c) => format!("did you mean `{c}`?"),
+                    None if known.is_empty() => "load a file first: `load \"FILE\" as NAME`".into(),
+                    None => format!("the data sets so far are {}", known.join(", ")),
+                };
+                Err(Diagnostic::new(name.span, format!("there is no data set called `{}`", name.value))
+                    .label("unknown data set")
+                    .help(help))
+            }
+        }
+    }
+
+    pub(super) fn factor(&mut self, column: &Spanned<String>, levels: Option<&[Spanned<String>]>) -> Outcome {
+        let set = self.current_mut(column.span)?;
+        let idx = column_index(set, column)?;
+        let declared: Option<Vec<String>> = levels.map(|l| l.iter().map(|s| s.value.clone()).collect());
+        if let Some(decl) = levels {
+            for (i, a) in decl.iter().enumerate() {
+                if decl[..i].iter().any(|b| b.value == a.value) {
+                    return Err(Diagnostic::new(a.span, format!("level `{}` is listed twice", a.value))
+                        .label("repeated")
+                        .help("list each level once"));
+                }
+            }
+        }
+        let factor = set.factor(&set.columns[idx], declared.as_deref()).map_err(|e| {
+            let span = levels
+                .and_then(|l| {
+                    let (first, last) = (l.first()?, l.last()?);
+                    Some(Span {
+                        start: first.span.start,
+                        end: last.span.end,
+                    })
+                })
+                .unwrap_or(column.span);
+            Diagnostic::new(span, e.to_string()).label("in this factor")
+        })?;
+        let unused: Vec<String> = data::unused_levels(&factor).iter().map(|s| s.to_string()).collect();
+        let order = factor.order;
+        let listed: Vec<String> = factor
+            .levels
+            .iter()
+            .enumerate()
+            .map(|(i, l)| {
+                if i == 0 {
+                    format!("{} (reference)", code(l))
+                } else {
+                    code(l)
+                }
+            })
+            .collect();
+        let n_levels = factor.levels.len();
+        set.columns[idx].values = Values::Factor(factor);
+        let mut items = vec![Item::Text(format!(
+            "{} is a factor with {n_levels} levels: {}{}.",
+            code(&column.value),
+            listed.join(", "),
+            match order {
+                LevelOrder::FirstAppearance => {
+                    " (in order of first appearance; fix the order with `levels`)"
+                }
+                LevelOrder::Declared => "",
+            }
+        ))];
+        for u in unused {
+            items.push(Item::Warning(format!(
+                "level {} is declared but no row has it.",
+                code(&u)
+            )));
+        }
+        Ok(items)
+    }
+
+    pub(super) fn keep(&mut self, condition: &Condition, span: Span) -> Outcome {
+        let set = self.current(span)?;
+        let mut keep = vec![true; set.n_rows()];
+        let mut missing = vec![false; set.n_rows()];
+        for (row, slot) in keep.iter_mut().enumerate() {
+            *slot = eval(set, condition, row, &mut missing[row])?;
+        }
+        let before = set.n_rows();
+        let filtered = set.filter(&keep);
+        let after = filtered.n_rows();
+        let n_missing = keep
+            .iter()
+            .zip(&missing)
+            .filter(|(k, m)| !**k && **m)
+            .count();
+        let name = filtered.name.clone();
+        let set = self.current_mut(span)?;
+        *set = filtered;
+        let mut text = format!(
+            "Kept {after} of {before} rows of {}; dropped {}.",
+            code(&name),
+            before - after
+        );
+        if n_missing > 0 {
+            text.push_str(&format!(
+                " Of the dropped rows, {n_missing} had a missing value in a column of the condition."
+            ));
+        }
+        let mut items = vec![Item::Text(text)];
+        if after == 0 {
+            items.push(Item::Warning("no rows are left.".into()));
+        }
+        Ok(items)
+    }
+
+    pub(super) fn show(&mut self, name: Option<&Spanned<String>>, span: Span) -> Outcome {
+        let set = match name {
+            Some(n) => self
+                .data_sets
+                .iter()
+                .find(|d| d.name == n.value)
+                .ok_or_else(|| {
+                    Diagnostic::new(n.span, format!("there is no data set called `{}`", n.value))
+                        .label("unknown data set")
+                })?,
+            None => self.current(span)?,
+        };
+        let mut preview = Table::new(
+            "preview",
+            format!(
+                "First {} of {} rows of {}",
+                set.n_rows().min(PREVIEW_ROWS),
+                set.n_rows(),
+                code(&set.name)
+            ),
+            std::iter::once(Col::new("row", "line in file", Format::Count))
+                .chain(set.columns.iter().map(|c| Col::new(&c.name, &c.name, Format::Text)))
+                .collect(),
+        );
+        for row in 0..set.n_rows().min(PREVIEW_ROWS) {
+            let mut cells = vec![Cell::from(set.row_numbers.get(row).copied().unwrap_or(0))];
+            for c in &set.columns {
+                cells.push(if c.is_missing(row) {
+                    Cell::Missing
+                } else {
+                    Cell::Text(c.display_value(row))
+                });
+            }
+            preview.push(cells);
+        }
+        Ok(vec![Item::Table(columns_table(set, "Columns")), Item::Table(preview)])
+    }
+
+    pub(super) fn summary(&mut self, column: &Spanned<String>, by: Option<&Spanned<String>>, span: Span) -> Outcome {
+        let set = self.current(span)?;
+        let idx = column_index(set, column)?;
+        let values = numeric_values(set, idx, column)?;
+        let mut t = Table::new(
+            "summary",
+            match by {
+                Some(b) => format!("Summary of {} by {}", code(&column.value), code(&b.value)),
+                None => format!("Summary of {}", code(&column.value)),
+            },
+            vec![
+                Col::new("level", "level", Format::Text),
+                Col::new("n", "n", Format::Count),
+                Col::new("missing", "missing", Format::Count),
+                Col::new("mean", "mean", Format::Digits(4)),
+                Col::new("sd", "SD", Format::Digits(4)),
+                Col::new("se", "SE", Format::Digits(4)),
+                Col::new("min", "min", Format::Digits(4)),
+                Col::new("median", "median", Format::Digits(4)),
+                Col::new("max", "max", Format::Digits(4)),
+            ],
+        );
+        match by {
+            None => t.push(summary_row("all", values.iter().copied())),
+            Some(b) => {
+                let bi = column_index(set, b)?;
+                let Values::Factor(f) = &set.columns[bi].values else {
+                    return Err(Diagnostic::new(b.span, format!("`{}` is not a factor", b.value))
+                        .label("not a factor")
+                        .help(format!("declare it first: `factor {}`", quote_name(&b.value))));
+                };
+                for (li, level) in f.levels.iter().enumerate() {
+                    let vals = f
+                        .codes
+                        .iter()
+                        .zip(values.iter())
+                        .filter(|(c, _)| **c == Some(li as u32))
+                        .map(|(_, v)| *v);
+                    t.push(summary_row(level, vals));
+                }
+                let no_level = f.codes.iter().filter(|c| c.is_none()).count();
+                if no_level > 0 {
+                    t.notes.push(format!(
+                        "{no_level} rows with a missing {} are not in any level.",
+                        code(&b.value)
+                    ));
+                }
+            }
+        }
+        t.notes.push("SD uses the n - 1 divisor; SE = SD / sqrt(n).".into());
+        Ok(vec![Item::Table(t)])
+    }
+}
+
+/// The name a data set gets from its file: the file stem.
+fn default_name(path: &str) -> String {
+    let file = path.rsplit(['/', '\\']).next().unwrap_or(path);
+    let stem = file.rsplit_once('.').map_or(file, |(s, _)| s);
+    if stem.is_empty() {
+        "data".into()
+    } else {
+        stem.to_string()
+    }
+}
+
+/// A column name as it must be written in a statement.
+pub(crate) fn quote_name(name: &str) -> String {
+    let bare = name.chars().next().is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
+        && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.');
+    if bare {
+        name.to_string()
+    } else {
+        format!("\"{}\"", name.replace('\\', "\\\\").replace('"', "\\\""))
+    }
+}
+
+/// The index of a column, or an error that suggests the closest name.
+pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<usize, Diagnostic> {
+    set.columns.iter().position(|c| c.name == column.value).ok_or_else(|| {
+        let mut d = Diagnostic::new(
+            column.span,
+            format!("data set `{}` has no column `{}`", set.name, column.value),
+        )
+        .label("unknown column");
+        d = match set.closest_name(&column.value) {
+            Some(c) => d.help(format!("did you mean `{c}`?")),
+            None => {
+                let names: Vec<&str> = set.columns.iter().map(|c| c.name.as_str()).collect();
+                d.help(format!("its columns are {}", names.join(", ")))
+            }
+        };
+        d
+    })
+}
+
+/// The values of a numeric column (NaN = missing), or an error that says
+/// why the column is not numeric and which row shows it.
+pub(crate) fn numeric_values<'a>(set: &'a DataSet, idx: usize, column: &Spanned<String>) -> Result<&'a [f64], Diagnostic> {
+    let col: &Column = &set.columns[idx];
+    match &col.values {
+        Values::Numeric(v) => Ok(v),
+        Values::Factor(_) => Err(Diagnostic::new(column.span, format!("`{}` is a factor, not a numeric column", column.value))
+            .label("needs numbers")),
+        Values::Text(t) => {
+            let mut d = Diagnostic::new(column.span, format!("`{}` is a text column, not a numeric one", column.value))
+                .label("needs numbers");
+            if let Some((row, text)) = data::first_non_number(t) {
+                let line = set.row_numbers.get(row).copied().unwrap_or(row + 2);
+                d = d.help(format!(
+                    "line {line} of the file holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
+                ));
+            }
+            Err(d)
+        }
+    }
+}
+
+fn summary_row(level: &str, values: impl Iterator<Item = f64>) -> Vec<crate::report::Cell> {
+    let all: Vec<f64> = values.collect();
+    let mut v: Vec<f64> = all.iter().copied().filter(|x| !x.is_nan()).collect();
+    let missing = all.len() - v.len();
+    let s = crate::stats::describe::describe(&mut v);
+    vec![
+        level.into(),
+        v.len().into(),
+        missing.into(),
+        s.mean.into(),
+        s.sd.into(),
+        s.se.into(),
+        s.min.into(),
+        s.median.into(),
+        s.max.into(),
+    ]
+}
+
+/// The column types and missing counts of a data set.
+fn columns_table(set: &DataSet, caption: &str) -> Table {
+    let mut t = Table::new(
+        "columns",
+        format!("{caption} of {}", code(&set.name)),
+        vec![
+            Col::new("column", "column", Format::Text),
+            Col::new("type", "type", Format::Text),
+            Col::new("missing", "missing", Format::Count),
+            Col::new("levels", "levels", Format::Text),
+        ],
+    );
+    for c in &set.columns {
+        let levels = match &c.values {
+            Values::Factor(f) => Cell::Text(f.levels.join(", ")),
+            _ => Cell::Missing,
+        };
+        t.push(vec![c.name.as_str().into(), c.kind_name().into(), c.missing_count().into(), levels]);
+    }
+    t
+}
+
+/// Evaluates a `keep where` condition on one row. A comparison with a
+/// missing cell is false, and `missing` records that it happened.
+fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<bool, Diagnostic> {
+    Ok(match c {
+        Condition::And(parts) => {
+            let mut all = true;
+            for p in parts {
+                all &= eval(set, p, row, missing)?;
+            }
+            all
+        }
+        Condition::Or(parts) => {
+            let mut any = false;
+            for p in parts {
+                any |= eval(set, p, row, missing)?;
+            }
+            any
+        }
+        Condition::Not(inner) => !eval(set, inner, row, missing)?,
+        Condition::Compare { column, op, value } => {
+            let idx = column_index(set, column)?;
+            match cell_value(&set.columns[idx], row) {
+                None => {
+                    *missing = true;
+                    false
+                }
+                Some(CellValue::Number(x)) => {
+                    let Literal::Number(v, _) = &value.value else {
+                        return Err(Diagnostic::new(value.span, format!("`{}` is numeric, so it is compared with a number", column.value))
+                            .label("not a number"));
+                    };
+                    compare_numbers(x, *op, *v)
+                }
+                Some(CellValue::Text(s)) => match op {
+                    CompareOp::Eq => s == value.value.as_text(),
+                    CompareOp::Ne => s != value.value.as_text(),
+                    _ => {
+                        return Err(Diagnostic::new(value.span, format!("`{}` holds text or levels, which can only be tested with ==, != or in", column.value))
+                            .label("order comparison on text"))
+                    }
+                },
+            }
+        }
+        Condition::In { column, values } => {
+            let idx = column_index(set, column)?;
+            match cell_value(&set.columns[idx], row) {
+                None => {
+                    *missing = true;
+                    false
+                }
+                Some(CellValue::Number(x)) => {
+                    let mut hit = false;
+                    for v in values {
+                        let Literal::Number(n, _) = &v.value else {
+                            return Err(Diagnostic::new(v.span, format!("`{}` is numeric, so its values are numbers", column.value))
+                                .label("not a number"));
+                        };
+                        hit |= x == *n;
+                    }
+                    hit
+                }
+                Some(CellValue::Text(s)) => values.iter().any(|v| s == v.value.as_text()),
+            }
+        }
+    })
+}
+
+enum CellValue<'a> {
+    Number(f64),
+    Text(&'a str),
+}
+
+fn cell_value(col: &Column, row: usize) -> Option<CellValue<'_>> {
+    match &col.values {
+        Values::Numeric(v) => v.get(row).copied().filter(|x| !x.is_nan()).map(CellValue::Number),
+        Values::Text(t) => t.get(row).and_then(|s| s.as_deref()).map(CellValue::Text),
+        Values::Factor(f) => f
+            .codes
+            .get(row)
+            .copied()
+            .flatten()
+            .and_then(|c| f.levels.get(c as usize))
+            .map(|s| CellValue::Text(s.as_str())),
+    }
+}
+
+fn compare_numbers(x: f64, op: CompareOp, v: f64) -> bool {
+    match op {
+        CompareOp::Eq => x == v,
+        CompareOp::Ne => x != v,
+        CompareOp::Lt => x < v,
+        CompareOp::Le => x <= v,
+        CompareOp::Gt => x > v,
+        CompareOp::Ge => x >= v,
+    }
+}

@@ -1,0 +1,132 @@
+//! The interpreter: runs statements in document order against one shared
+//! state (data sets, models) and returns typed results.
+//!
+//! Each statement kind has one handler. Handlers return [`Item`]s or a
+//! [`Diagnostic`] that points at the words in the document that caused it.
+
+mod data_statements;
+mod model_statements;
+
+use crate::data::DataSet;
+use crate::diagnostic::Diagnostic;
+use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
+use crate::model::Fit;
+use crate::report::{InputRecord, Item};
+use crate::world::World;
+
+/// A fitted model as the session keeps it.
+pub struct ModelEntry {
+    pub name: String,
+    pub data_set: String,
+    pub fit: Fit,
+}
+
+/// The state shared by every block of one document.
+pub struct Session<'w> {
+    world: &'w dyn World,
+    data_sets: Vec<DataSet>,
+    current: Option<usize>,
+    missing_markers: Vec<String>,
+    models: Vec<ModelEntry>,
+    inputs: Vec<InputRecord>,
+}
+
+type Outcome = Result<Vec<Item>, Diagnostic>;
+
+impl<'w> Session<'w> {
+    /// A fresh session that reads its data files through `world`.
+    pub fn new(world: &'w dyn World) -> Session<'w> {
+        Session {
+            world,
+            data_sets: Vec::new(),
+            current: None,
+            missing_markers: Vec::new(),
+            models: Vec::new(),
+            inputs: Vec::new(),
+        }
+    }
+
+    /// Every data file read so far, in order of first reading.
+    pub fn inputs(&self) -> &[InputRecord] {
+        &self.inputs
+    }
+
+    /// Runs one statement and returns what it produced.
+    pub fn run(&mut self, stmt: &Statement) -> Outcome {
+        match &stmt.kind {
+            StatementKind::Load { path, name } => self.load(path, name.as_ref()),
+            StatementKind::Missing { markers } => self.missing(markers),
+            StatementKind::Use { name } => self.use_data_set(name),
+            StatementKind::Factor { column, levels } => self.factor(column, levels.as_deref()),
+            StatementKind::Keep { condition } => self.keep(condition, stmt.span),
+            StatementKind::Show { name } => self.show(name.as_ref(), stmt.span),
+            StatementKind::Model(decl) => self.model(decl, stmt.span),
+            StatementKind::Table(request) => match request {
+                TableRequest::Summary { column, by } => self.summary(column, by.as_ref(), stmt.span),
+                other => self.model_table(other),
+            },
+        }
+    }
+
+    /// The current data set, or an error at `span` when none was loaded.
+    fn current(&self, span: Span) -> Result<&DataSet, Diagnostic> {
+        self.current
+            .and_then(|i| self.data_sets.get(i))
+            .ok_or_else(|| {
+                Diagnostic::new(span, "no data set is loaded yet")
+                    .label("needs data")
+                    .help("load a file first, for example `load \"data.csv\"`")
+            })
+    }
+
+    fn current_mut(&mut self, span: Span) -> Result<&mut DataSet, Diagnostic> {
+        let i = self.current.ok_or_else(|| {
+            Diagnostic::new(span, "no data set is loaded yet")
+                .label("needs data")
+                .help("load a file first, for example `load \"data.csv\"`")
+        })?;
+        self.data_sets
+            .get_mut(i)
+            .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
+    }
+
+    fn model_entry(&self, name: &Spanned<String>) -> Result<&ModelEntry, Diagnostic> {
+        self.models.iter().find(|m| m.name == name.value).ok_or_else(|| {
+            let known: Vec<&str> = self.models.iter().map(|m| m.name.as_str()).collect();
+            let help = match closest(&name.value, &known) {
+                Some(c) => format!("did you mean `{c}`?"),
+                None if known.is_empty() => "declare it first with `model NAME: RESPONSE on TERMS`".into(),
+                None => format!("the models so far are {}", known.join(", ")),
+            };
+            Diagnostic::new(name.span, format!("there is no model called `{}`", name.value))
+                .label("unknown model")
+                .help(help)
+        })
+    }
+}
+
+/// The closest of `candidates` to `name` by edit distance, if close enough
+/// to be a likely typo.
+pub(crate) fn closest<'a>(name: &str, candidates: &[&'a str]) -> Option<&'a str> {
+    let lower = name.to_lowercase();
+    candidates
+        .iter()
+        .map(|c| (edit_distance(&lower, &c.to_lowercase()), *c))
+        .filter(|(d, c)| *d <= (c.chars().count().max(name.chars().count()) / 3).max(1))
+        .min_by_key(|(d, _)| *d)
+        .map(|(_, c)| c)
+}
+
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut cur = vec![i + 1; b.len() + 1];
+        for (j, cb) in b.iter().enumerate() {
+            let cost = usize::from(ca != *cb);
+            cur[j + 1] = (prev[j] + cost).min(prev[j + 1] + 1).min(cur[j] + 1);
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}

@@ -1,0 +1,283 @@
+//! The grammar: every statement form parses to the expected tree, and every
+//! kind of syntax error is reported at the right column with plain words.
+
+use covey::lang::*;
+
+fn parse(text: &str) -> StatementKind {
+    match parse_line(text, 0, 1) {
+        Ok(Some(s)) => s.kind,
+        Ok(None) => panic!("no statement in {text:?}"),
+        Err(e) => panic!("{text:?} did not parse: {}", e.message),
+    }
+}
+
+fn error(text: &str) -> SyntaxError {
+    match parse_line(text, 100, 7) {
+        Err(e) => e,
+        Ok(s) => panic!("{text:?} parsed but should not: {s:?}"),
+    }
+}
+
+#[test]
+fn blank_and_comment_lines_are_no_statement() {
+    assert_eq!(parse_line("", 0, 1), Ok(None));
+    assert_eq!(parse_line("   \t", 0, 1), Ok(None));
+    assert_eq!(parse_line("# a comment", 0, 1), Ok(None));
+}
+
+#[test]
+fn load_with_and_without_name() {
+    match parse(r#"load "data/pens.csv" as pens   # the pens"#) {
+        StatementKind::Load { path, name } => {
+            assert_eq!(path.value, "data/pens.csv");
+            assert_eq!(name.map(|n| n.value).as_deref(), Some("pens"));
+        }
+        k => panic!("{k:?}"),
+    }
+    match parse(r#"load "a \"quoted\" name.csv""#) {
+        StatementKind::Load { path, name } => {
+            assert_eq!(path.value, r#"a "quoted" name.csv"#);
+            assert!(name.is_none());
+        }
+        k => panic!("{k:?}"),
+    }
+}
+
+#[test]
+fn missing_markers() {
+    assert_eq!(
+        parse(r#"missing "NA", ".""#),
+        StatementKind::Missing {
+            markers: vec!["NA".into(), ".".into()]
+        }
+    );
+}
+
+#[test]
+fn use_and_show() {
+    assert!(matches!(parse("use pens"), StatementKind::Use { name } if name.value == "pens"));
+    assert!(matches!(parse("show"), StatementKind::Show { name: None }));
+    assert!(matches!(parse("show pens"), StatementKind::Show { name: Some(n) } if n.value == "pens"));
+}
+
+#[test]
+fn factor_with_levels_of_every_spelling() {
+    match parse(r#"factor "feed type" levels barley, 2, "maize+soy""#) {
+        StatementKind::Factor { column, levels } => {
+            assert_eq!(column.value, "feed type");
+            let l: Vec<String> = levels.unwrap_or_default().into_iter().map(|s| s.value).collect();
+            assert_eq!(l, ["barley", "2", "maize+soy"]);
+        }
+        k => panic!("{k:?}"),
+    }
+    assert!(matches!(parse("factor ration"), StatementKind::Factor { levels: None, .. }));
+}
+
+#[test]
+fn keep_conditions_nest_with_precedence() {
+    // `and` binds tighter than `or`; `not` tighter than both.
+    match parse("keep where dose >= 2 and not group in (A, B) or site == \"north\"") {
+        StatementKind::Keep {
+            condition: Condition::Or(parts),
+        } => {
+            assert_eq!(parts.len(), 2);
+            match &parts[0] {
+                Condition::And(a) => {
+                    assert!(matches!(&a[0], Condition::Compare { op: CompareOp::Ge, value, .. } if value.value == Literal::Number(2.0, "2".into())));
+                    assert!(matches!(&a[1], Condition::Not(inner) if matches!(**inner, Condition::In { .. })));
+                }
+                c => panic!("{c:?}"),
+            }
+        }
+        k => panic!("{k:?}"),
+    }
+    assert!(matches!(
+        parse("keep where (a < 1 or a > 5)"),
+        StatementKind::Keep { condition: Condition::Or(_) }
+    ));
+}
+
+#[test]
+fn model_terms() {
+    match parse("model m: \"final weight\" on ration + start + ration by start + start^2 + log(dose) + sqrt(age) without intercept") {
+        StatementKind::Model(m) => {
+            assert_eq!(m.name.value, "m");
+            assert_eq!(m.response.value, "final weight");
+            assert!(!m.intercept);
+            let shapes: Vec<Vec<(String, TransformDecl)>> = m
+                .terms
+                .iter()
+                .map(|t| t.parts.iter().map(|p| (p.column.value.clone(), p.transform)).collect())
+                .collect();
+            assert_eq!(shapes[0], [("ration".to_string(), TransformDecl::None)]);
+            assert_eq!(shapes[2].len(), 2);
+            assert_eq!(shapes[3], [("start".to_string(), TransformDecl::Power(2))]);
+            assert_eq!(shapes[4], [("dose".to_string(), TransformDecl::Log)]);
+            assert_eq!(shapes[5], [("age".to_string(), TransformDecl::Sqrt)]);
+        }
+        k => panic!("{k:?}"),
+    }
+    match parse("model m: y on a by b by x") {
+        StatementKind::Model(m) => {
+            assert!(m.intercept);
+            assert_eq!(m.terms.len(), 1);
+            assert_eq!(m.terms[0].parts.len(), 3);
+        }
+        k => panic!("{k:?}"),
+    }
+}
+
+#[test]
+fn keywords_are_whole_words() {
+    // A column called `bytes` is not `by` followed by `tes`.
+    match parse("model m: y on x + bytes") {
+        StatementKind::Model(m) => assert_eq!(m.terms[1].parts[0].column.value, "bytes"),
+        k => panic!("{k:?}"),
+    }
+    match parse("table summary format by forest") {
+        StatementKind::Table(TableRequest::Summary { column, by }) => {
+            assert_eq!(column.value, "format");
+            assert_eq!(by.map(|b| b.value).as_deref(), Some("forest"));
+        }
+        k => panic!("{k:?}"),
+    }
+}
+
+#[test]
+fn every_table_form() {
+    use TableRequest as T;
+    let t = |s: &str| match parse(s) {
+        StatementKind::Table(t) => t,
+        k => panic!("{k:?}"),
+    };
+    assert!(matches!(t("table summary y"), T::Summary { by: None, .. }));
+    assert!(matches!(t("table fit m"), T::Fit { .. }));
+    assert!(matches!(t("table coefficients m level 0.99"), T::Coefficients { level: Some(l), .. } if l.value == 0.99));
+    assert!(matches!(t("table anova m"), T::Anova { kind: SsKind::Partial, .. }));
+    assert!(matches!(t("table anova m type 1"), T::Anova { kind: SsKind::Sequential, .. }));
+    assert!(matches!(t("table anova m type 3"), T::Anova { kind: SsKind::Marginal, .. }));
+    assert!(matches!(t("table compare small, big"), T::Compare { first, second } if first.value == "small" && second.value == "big"));
+    match t("table means m for ration at start = 12.5, age = 3 level 0.9") {
+        T::Means { at, level, .. } => {
+            assert_eq!(at.len(), 2);
+            assert_eq!(at[0].value, 12.5);
+            assert_eq!(level.map(|l| l.value), Some(0.9));
+        }
+        r => panic!("{r:?}"),
+    }
+    assert!(matches!(t("table pairs m for ration"), T::Pairs { adjust: AdjustMethod::Tukey, .. }));
+    assert!(matches!(t("table pairs m for ration adjust holm"), T::Pairs { adjust: AdjustMethod::Holm, .. }));
+    assert!(matches!(t("table pairs m for ration adjust none level 0.9"), T::Pairs { adjust: AdjustMethod::None, .. }));
+    assert!(matches!(t("table slopes m for ration"), T::Slopes { covariate: None, .. }));
+    assert!(matches!(t("table slopes m of start for ration"), T::Slopes { covariate: Some(c), .. } if c.value == "start"));
+    assert!(matches!(t("table contrast m for ration weights 1, -0.5, -0.5"), T::Contrast { weights, .. } if weights.value == vec![1.0, -0.5, -0.5]));
+    match t("table regions m of start for ration between barley and \"maize+soy\" alpha 0.01") {
+        T::Regions { between: Some((a, b)), alpha, .. } => {
+            assert_eq!((a.value.as_str(), b.value.as_str()), ("barley", "maize+soy"));
+            assert_eq!(alpha.map(|a| a.value), Some(0.01));
+        }
+        r => panic!("{r:?}"),
+    }
+}
+
+#[test]
+fn spans_are_document_offsets() {
+    let s = parse_line("table summary weight by ration", 1000, 42).ok().flatten();
+    let Some(s) = s else { panic!("no statement") };
+    assert_eq!(s.line, 42);
+    assert_eq!(s.span.start, 1000);
+    match s.kind {
+        StatementKind::Table(TableRequest::Summary { column, .. }) => {
+            assert_eq!(column.span, Span { start: 1014, end: 1020 });
+        }
+        k => panic!("{k:?}"),
+    }
+}
+
+// ---- errors: each says what was expected, at the right place.
+
+#[test]
+fn unknown_statement() {
+    let e = error("fit m: y on x");
+    assert_eq!(e.span.start, 100);
+    assert!(e.message.contains("does not start with a statement"), "{}", e.message);
+    assert!(e.message.contains("load"), "{}", e.message);
+}
+
+#[test]
+fn unquoted_path() {
+    let e = error("load data.csv");
+    assert_eq!(e.span.start, 105);
+    assert!(e.message.contains("double-quoted"), "{}", e.message);
+}
+
+#[test]
+fn unterminated_string() {
+    let e = error("load \"data.csv");
+    assert!(e.message.contains("double-quoted"), "{}", e.message);
+}
+
+#[test]
+fn missing_response_separator() {
+    let e = error("model m y on x");
+    assert_eq!(e.span.start, 108);
+    assert!(e.message.contains("expected"), "{}", e.message);
+}
+
+#[test]
+fn formula_with_tilde_is_refused() {
+    let e = error("model m: y ~ x");
+    assert!(e.message.contains("`on`"), "{}", e.message);
+}
+
+#[test]
+fn dangling_plus() {
+    let e = error("model m: y on x +");
+    assert!(e.message.contains("model term"), "{}", e.message);
+    assert!(e.message.contains("end of the line"), "{}", e.message);
+}
+
+#[test]
+fn bad_power() {
+    let e = error("model m: y on x^4");
+    assert!(e.message.contains("2 or 3"), "{}", e.message);
+}
+
+#[test]
+fn bad_anova_type() {
+    let e = error("table anova m type 4");
+    assert!(e.message.contains("1, 2 or 3"), "{}", e.message);
+}
+
+#[test]
+fn unknown_table_kind() {
+    let e = error("table medians m");
+    assert!(e.message.contains("table kind"), "{}", e.message);
+}
+
+#[test]
+fn unknown_adjustment() {
+    let e = error("table pairs m for g adjust scheffe");
+    assert!(e.message.contains("tukey"), "{}", e.message);
+}
+
+#[test]
+fn bad_condition() {
+    let e = error("keep where dose >> 2");
+    assert!(e.message.contains("value"), "{}", e.message);
+    let e = error("keep where");
+    assert!(e.message.contains("condition"), "{}", e.message);
+}
+
+#[test]
+fn trailing_words() {
+    let e = error("table fit m extra");
+    assert!(e.message.contains("end of the line"), "{}", e.message);
+    assert_eq!(e.span.start, 112);
+}
+
+#[test]
+fn empty_levels_list() {
+    let e = error("factor g levels");
+    assert!(e.message.contains("value"), "{}", e.message);
+}
