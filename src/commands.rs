@@ -64,12 +64,15 @@ impl Report {
 }
 
 fn display_name(doc: &Path) -> String {
-    doc.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default()
+    doc.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
 }
 
 /// Runs one document from disk.
 fn run_file(doc: &Path, keep_going: bool, allow_outside: bool) -> Result<Run, Vec<String>> {
-    let bytes = std::fs::read(doc).map_err(|e| vec![format!("{}: cannot read: {e}", doc.display())])?;
+    let bytes =
+        std::fs::read(doc).map_err(|e| vec![format!("{}: cannot read: {e}", doc.display())])?;
     let text = String::from_utf8(bytes).map_err(|e| {
         vec![format!(
             "{}: the document is not valid UTF-8 (first bad byte at offset {}); save it as UTF-8",
@@ -77,9 +80,13 @@ fn run_file(doc: &Path, keep_going: bool, allow_outside: bool) -> Result<Run, Ve
             e.utf8_error().valid_up_to()
         )]
     })?;
-    let folder = doc.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let folder = doc
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     let world = FsWorld::new(folder, allow_outside);
-    pipeline::run(&text, &display_name(doc), &world, RunOptions { keep_going }).map_err(|u| u.errors)
+    pipeline::run(&text, &display_name(doc), &world, RunOptions { keep_going })
+        .map_err(|u| u.errors)
 }
 
 /// Renders every document named by `paths` (files, or folders of `*.md`).
@@ -108,7 +115,10 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
                 for e in errors {
                     report.fail(e);
                 }
-                report.fail(format!("{}: not rendered; nothing was written", doc.display()));
+                report.fail(format!(
+                    "{}: not rendered; nothing was written",
+                    doc.display()
+                ));
                 continue;
             }
         };
@@ -139,7 +149,11 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
         }
         report.lines.push(format!(
             "{}: {} -> {}",
-            if run.failed() { "rendered with errors" } else { "rendered" },
+            if run.failed() {
+                "rendered with errors"
+            } else {
+                "rendered"
+            },
             doc.display(),
             target.display()
         ));
@@ -202,8 +216,12 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         match differences(&run, &on_disk) {
             None => report.lines.push(format!("current: {}", doc.display())),
             Some(details) => {
-                report.lines.push(format!("stale: {} ({})", doc.display(), target.display()));
-                report.lines.extend(details.into_iter().map(|d| format!("  {d}")));
+                report
+                    .lines
+                    .push(format!("stale: {} ({})", doc.display(), target.display()));
+                report
+                    .lines
+                    .extend(details.into_iter().map(|d| format!("  {d}")));
                 report.verdict = report.verdict.max(Verdict::Stale);
             }
         }

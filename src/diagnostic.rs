@@ -75,9 +75,15 @@ pub fn render(file_name: &str, source: &str, d: &Diagnostic) -> String {
     };
     let mut out = NoColor::new(Vec::new());
     let (line, col) = line_col(source, start);
-    let head = format!("{file_name}:{line}:{col}: {}\n", d.message);
+    let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
     match term::emit(&mut out, &config, &file, &diag) {
-        Ok(()) => head + &String::from_utf8_lossy(out.get_ref()),
+        Ok(()) => {
+            // codespan repeats the message on its first line; the head
+            // above already says it with the position.
+            let body = String::from_utf8_lossy(out.get_ref());
+            let snippet = body.split_once('\n').map_or("", |(_, rest)| rest);
+            head + snippet.trim_end() + "\n"
+        }
         Err(_) => head,
     }
 }
@@ -90,9 +96,19 @@ mod tests {
     fn points_at_line_and_column() {
         let src = "# Title\n\n```covey\nload \"x.csv\" az y\n```\n";
         let at = src.find("az").unwrap_or(0);
-        let d = Diagnostic::new(Span { start: at, end: at + 2 }, "expected `as`").help("write `as NAME`");
+        let d = Diagnostic::new(
+            Span {
+                start: at,
+                end: at + 2,
+            },
+            "expected `as`",
+        )
+        .help("write `as NAME`");
         let text = render("doc.md", src, &d);
-        assert!(text.starts_with("doc.md:4:14: expected `as`"), "{text}");
+        assert!(
+            text.starts_with("doc.md:4:14: error: expected `as`"),
+            "{text}"
+        );
         assert!(text.contains("^^"), "{text}");
         assert!(text.contains("help: write `as NAME`"), "{text}");
     }

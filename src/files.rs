@@ -59,13 +59,22 @@ pub fn documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FileError> {
 }
 
 fn is_source(p: &Path) -> bool {
-    let name = p.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
-    p.is_file() && name.ends_with(".md") && !name.ends_with(RENDERED_SUFFIX) && !name.starts_with('.')
+    let name = p
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    p.is_file()
+        && name.ends_with(".md")
+        && !name.ends_with(RENDERED_SUFFIX)
+        && !name.starts_with('.')
 }
 
 /// Where the rendering of `doc` goes: beside it, or in `out_dir`.
 pub fn rendered_path(doc: &Path, out_dir: Option<&Path>) -> PathBuf {
-    let name = doc.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = doc
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let stem = name.strip_suffix(".md").unwrap_or(&name);
     let folder = match out_dir {
         Some(d) => d.to_path_buf(),
@@ -77,7 +86,10 @@ pub fn rendered_path(doc: &Path, out_dir: Option<&Path>) -> PathBuf {
 /// The JSON or HTML file that goes with a rendering (`--json`, `--html`):
 /// the rendering's path with another extension.
 pub fn sibling(rendered: &Path, extension: &str) -> PathBuf {
-    let name = rendered.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = rendered
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let stem = name.strip_suffix(".md").unwrap_or(&name);
     rendered.with_file_name(format!("{stem}.{extension}"))
 }
@@ -154,7 +166,10 @@ impl Batch {
 }
 
 fn temp_name(path: &Path) -> PathBuf {
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     path.with_file_name(format!(".{name}.covey-{}.tmp", std::process::id()))
 }
 
@@ -170,11 +185,17 @@ mod tests {
 
     #[test]
     fn naming_rule() {
-        assert_eq!(rendered_path(Path::new("w/trial.md"), None), PathBuf::from("w/trial.rendered.md"));
+        assert_eq!(
+            rendered_path(Path::new("w/trial.md"), None),
+            PathBuf::from("w/trial.rendered.md")
+        );
         assert_eq!(
             rendered_path(Path::new("w/trial.md"), Some(Path::new("out"))),
             PathBuf::from("out/trial.rendered.md")
         );
-        assert_eq!(sibling(Path::new("out/trial.rendered.md"), "json"), PathBuf::from("out/trial.rendered.json"));
+        assert_eq!(
+            sibling(Path::new("out/trial.rendered.md"), "json"),
+            PathBuf::from("out/trial.rendered.json")
+        );
     }
 }

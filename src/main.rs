@@ -62,13 +62,34 @@ fn main() -> ExitCode {
         }
     };
     let report = match cli.command {
-        Command::Render { paths, in_place, out, json, keep_going, allow_outside } => covey::render(
+        Command::Render {
+            paths,
+            in_place,
+            out,
+            json,
+            keep_going,
+            allow_outside,
+        } => covey::render(
             &paths,
-            &RenderOptions { in_place, out_dir: out, json, keep_going, allow_outside },
+            &RenderOptions {
+                in_place,
+                out_dir: out,
+                json,
+                keep_going,
+                allow_outside,
+            },
         ),
-        Command::Check { paths, out, allow_outside } => {
-            covey::check(&paths, &CheckOptions { out_dir: out, allow_outside })
-        }
+        Command::Check {
+            paths,
+            out,
+            allow_outside,
+        } => covey::check(
+            &paths,
+            &CheckOptions {
+                out_dir: out,
+                allow_outside,
+            },
+        ),
     };
     let mut err = std::io::stderr().lock();
     for line in &report.lines {

@@ -51,7 +51,12 @@ pub struct Unrunnable {
 /// Runs the document `text`, whose file is called `file_name` in messages,
 /// reading data through `world`. Returns the rendered text, or every error
 /// that keeps the document from running.
-pub fn run(text: &str, file_name: &str, world: &dyn World, opts: RunOptions) -> Result<Run, Unrunnable> {
+pub fn run(
+    text: &str,
+    file_name: &str,
+    world: &dyn World,
+    opts: RunOptions,
+) -> Result<Run, Unrunnable> {
     let doc = document::parse(text).map_err(|e| Unrunnable {
         errors: vec![format!("{file_name}: {e}")],
     })?;
@@ -101,11 +106,10 @@ pub fn run(text: &str, file_name: &str, world: &dyn World, opts: RunOptions) -> 
                 Err(d) => {
                     let shown = show(&d);
                     errors.push(shown.clone());
-                    let snippet = diagnostic::render(file_name, text, &{
-                        let mut d = d.clone();
-                        d.span = shift.span(d.span);
-                        d
-                    });
+                    // The rendered copy points into the source without
+                    // covey's regions, so that outputs depend only on the
+                    // source and re-rendering in place changes nothing.
+                    let snippet = diagnostic::render(file_name, &doc.source, &d);
                     if !opts.keep_going {
                         stopped = true;
                     }
@@ -131,7 +135,9 @@ pub fn run(text: &str, file_name: &str, world: &dyn World, opts: RunOptions) -> 
                 break;
             }
         }
-        bodies.push(markdown::block_body(outputs[first..].iter().flat_map(|o| &o.items)));
+        bodies.push(markdown::block_body(
+            outputs[first..].iter().flat_map(|o| &o.items),
+        ));
     }
     for line in &doc.ignored_nested {
         warnings.push(format!(
@@ -160,7 +166,9 @@ fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, us
     let mut out = Vec::with_capacity(n);
     let mut offset = block.code_start;
     for i in 0..n {
-        let Some(rest) = source.get(offset..) else { break };
+        let Some(rest) = source.get(offset..) else {
+            break;
+        };
         let end = rest.find('\n').map_or(rest.len(), |e| e);
         let line = rest[..end].strip_suffix('\r').unwrap_or(&rest[..end]);
         out.push((line, offset, block.first_line + i));

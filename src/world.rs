@@ -50,15 +50,22 @@ pub struct FsWorld {
 impl FsWorld {
     /// A world rooted at `folder` (the document's folder).
     pub fn new(folder: &Path, allow_outside: bool) -> FsWorld {
-        let root = folder.canonicalize().unwrap_or_else(|_| folder.to_path_buf());
-        FsWorld { root, allow_outside }
+        let root = folder
+            .canonicalize()
+            .unwrap_or_else(|_| folder.to_path_buf());
+        FsWorld {
+            root,
+            allow_outside,
+        }
     }
 
     /// Where `path` points, after symlinks, if it exists.
     pub fn resolve(&self, path: &str) -> Result<PathBuf, WorldError> {
         let joined = self.root.join(path);
         let resolved = joined.canonicalize().map_err(|e| match e.kind() {
-            std::io::ErrorKind::NotFound => WorldError::NotFound { path: path.to_string() },
+            std::io::ErrorKind::NotFound => WorldError::NotFound {
+                path: path.to_string(),
+            },
             _ => WorldError::Io {
                 path: path.to_string(),
                 message: e.to_string(),
@@ -104,7 +111,8 @@ impl MemoryWorld {
     }
 
     pub fn with(mut self, path: &str, bytes: impl Into<Vec<u8>>) -> MemoryWorld {
-        self.files.insert(normalise(path).unwrap_or_default(), bytes.into());
+        self.files
+            .insert(normalise(path).unwrap_or_default(), bytes.into());
         self
     }
 }
@@ -133,6 +141,8 @@ impl World for MemoryWorld {
         self.files
             .get(&key)
             .cloned()
-            .ok_or_else(|| WorldError::NotFound { path: path.to_string() })
+            .ok_or_else(|| WorldError::NotFound {
+                path: path.to_string(),
+            })
     }
 }

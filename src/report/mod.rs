@@ -129,7 +129,10 @@ pub enum Item {
     /// Something the reader must weigh before trusting the numbers.
     Warning(String),
     /// An error, already laid out with file, line, column and caret.
-    Error { message: String, snippet: String },
+    Error {
+        message: String,
+        snippet: String,
+    },
 }
 
 /// The results of one statement.

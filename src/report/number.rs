@@ -80,8 +80,9 @@ fn fixed(v: Option<f64>, decimals: usize) -> String {
     }
 }
 
-/// One number of decimals for the whole column, so that its values line up
-/// and its smallest non-zero value still shows `sig` significant digits.
+/// One number of decimals for the whole column, so that its values line up:
+/// enough for its largest value to show `sig` significant digits, and for its
+/// smallest non-zero value to show at least two.
 /// Columns whose values are all very large or very small switch to
 /// scientific notation.
 fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
@@ -106,7 +107,7 @@ fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
     }
     let lo = min.log10().floor() as i32;
     let hi = max.log10().floor() as i32;
-    let wanted = sig - 1 - lo;
+    let wanted = (sig - 1 - hi).max(1 - lo);
     let cap = (MAX_SIGNIFICANT - 1 - hi).min(MAX_DECIMALS);
     let decimals = wanted.min(cap).max(0) as usize;
     values.iter().map(|v| fixed(*v, decimals)).collect()
@@ -137,7 +138,9 @@ mod tests {
     #[test]
     fn a_column_shares_its_decimals() {
         let v = [Some(40.383), Some(0.9541), Some(-2.5)];
-        assert_eq!(digits(&v, 4), vec!["40.3830", "0.9541", "-2.5000"]);
+        assert_eq!(digits(&v, 4), vec!["40.38", "0.95", "-2.50"]);
+        let small = [Some(0.0123), Some(0.5)];
+        assert_eq!(digits(&small, 3), vec!["0.012", "0.500"]);
     }
 
     #[test]
@@ -154,6 +157,9 @@ mod tests {
 
     #[test]
     fn counts_are_whole() {
-        assert_eq!(format_column(&[Some(12.0), None], Format::Count), vec!["12", MISSING]);
+        assert_eq!(
+            format_column(&[Some(12.0), None], Format::Count),
+            vec!["12", MISSING]
+        );
     }
 }

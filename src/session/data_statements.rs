@@ -12,19 +12,27 @@ use crate::report::{Cell, Column as Col, Format, InputRecord, Item, Table};
 const PREVIEW_ROWS: usize = 8;
 
 impl Session<'_> {
-    pub(super) fn load(&mut self, path: &Spanned<String>, name: Option<&Spanned<String>>) -> Outcome {
-        let bytes = self.world.read(&path.value).map_err(|e| {
-            Diagnostic::new(path.span, e.to_string()).label("this file")
-        })?;
+    pub(super) fn load(
+        &mut self,
+        path: &Spanned<String>,
+        name: Option<&Spanned<String>>,
+    ) -> Outcome {
+        let bytes = self
+            .world
+            .read(&path.value)
+            .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
         let lower = path.value.to_lowercase();
         let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
             b'\t'
         } else if lower.ends_with(".csv") || lower.ends_with(".txt") {
             b','
         } else {
-            return Err(Diagnostic::new(path.span, format!("covey reads .csv and .tsv files, not \"{}\"", path.value))
-                .label("unknown kind of file")
-                .help("save the data as comma-separated (.csv) or tab-separated (.tsv) text"));
+            return Err(Diagnostic::new(
+                path.span,
+                format!("covey reads .csv and .tsv files, not \"{}\"", path.value),
+            )
+            .label("unknown kind of file")
+            .help("save the data as comma-separated (.csv) or tab-separated (.tsv) text"));
         };
         let set_name = match name {
             Some(n) => n.value.clone(),
@@ -36,7 +44,8 @@ impl Session<'_> {
             missing: self.missing_markers.clone(),
         };
         let set = data::read_delimited(&bytes, &opts).map_err(|e| {
-            Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value)).label("while reading this file")
+            Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
+                .label("while reading this file")
         })?;
         let sha = data::sha256_hex(&bytes);
         let record = InputRecord {
@@ -94,39 +103,55 @@ impl Session<'_> {
                     None if known.is_empty() => "load a file first: `load \"FILE\" as NAME`".into(),
                     None => format!("the data sets so far are {}", known.join(", ")),
                 };
-                Err(Diagnostic::new(name.span, format!("there is no data set called `{}`", name.value))
-                    .label("unknown data set")
-                    .help(help))
+                Err(Diagnostic::new(
+                    name.span,
+                    format!("there is no data set called `{}`", name.value),
+                )
+                .label("unknown data set")
+                .help(help))
             }
         }
     }
 
-    pub(super) fn factor(&mut self, column: &Spanned<String>, levels: Option<&[Spanned<String>]>) -> Outcome {
+    pub(super) fn factor(
+        &mut self,
+        column: &Spanned<String>,
+        levels: Option<&[Spanned<String>]>,
+    ) -> Outcome {
         let set = self.current_mut(column.span)?;
         let idx = column_index(set, column)?;
-        let declared: Option<Vec<String>> = levels.map(|l| l.iter().map(|s| s.value.clone()).collect());
+        let declared: Option<Vec<String>> =
+            levels.map(|l| l.iter().map(|s| s.value.clone()).collect());
         if let Some(decl) = levels {
             for (i, a) in decl.iter().enumerate() {
                 if decl[..i].iter().any(|b| b.value == a.value) {
-                    return Err(Diagnostic::new(a.span, format!("level `{}` is listed twice", a.value))
-                        .label("repeated")
-                        .help("list each level once"));
+                    return Err(Diagnostic::new(
+                        a.span,
+                        format!("level `{}` is listed twice", a.value),
+                    )
+                    .label("repeated")
+                    .help("list each level once"));
                 }
             }
         }
-        let factor = set.factor(&set.columns[idx], declared.as_deref()).map_err(|e| {
-            let span = levels
-                .and_then(|l| {
-                    let (first, last) = (l.first()?, l.last()?);
-                    Some(Span {
-                        start: first.span.start,
-                        end: last.span.end,
+        let factor = set
+            .factor(&set.columns[idx], declared.as_deref())
+            .map_err(|e| {
+                let span = levels
+                    .and_then(|l| {
+                        let (first, last) = (l.first()?, l.last()?);
+                        Some(Span {
+                            start: first.span.start,
+                            end: last.span.end,
+                        })
                     })
-                })
-                .unwrap_or(column.span);
-            Diagnostic::new(span, e.to_string()).label("in this factor")
-        })?;
-        let unused: Vec<String> = data::unused_levels(&factor).iter().map(|s| s.to_string()).collect();
+                    .unwrap_or(column.span);
+                Diagnostic::new(span, e.to_string()).label("in this factor")
+            })?;
+        let unused: Vec<String> = data::unused_levels(&factor)
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
         let order = factor.order;
         let listed: Vec<String> = factor
             .levels
@@ -155,7 +180,7 @@ impl Session<'_> {
         ))];
         for u in unused {
             items.push(Item::Warning(format!(
-                "level {} is declared but no row has it.",
+                "Level {} is declared but no row has it.",
                 code(&u)
             )));
         }
@@ -192,7 +217,7 @@ impl Session<'_> {
         }
         let mut items = vec![Item::Text(text)];
         if after == 0 {
-            items.push(Item::Warning("no rows are left.".into()));
+            items.push(Item::Warning("No rows are left.".into()));
         }
         Ok(items)
     }
@@ -218,7 +243,11 @@ impl Session<'_> {
                 code(&set.name)
             ),
             std::iter::once(Col::new("row", "line in file", Format::Count))
-                .chain(set.columns.iter().map(|c| Col::new(&c.name, &c.name, Format::Text)))
+                .chain(
+                    set.columns
+                        .iter()
+                        .map(|c| Col::new(&c.name, &c.name, Format::Text)),
+                )
                 .collect(),
         );
         for row in 0..set.n_rows().min(PREVIEW_ROWS) {
@@ -232,10 +261,18 @@ impl Session<'_> {
             }
             preview.push(cells);
         }
-        Ok(vec![Item::Table(columns_table(set, "Columns")), Item::Table(preview)])
+        Ok(vec![
+            Item::Table(columns_table(set, "Columns")),
+            Item::Table(preview),
+        ])
     }
 
-    pub(super) fn summary(&mut self, column: &Spanned<String>, by: Option<&Spanned<String>>, span: Span) -> Outcome {
+    pub(super) fn summary(
+        &mut self,
+        column: &Spanned<String>,
+        by: Option<&Spanned<String>>,
+        span: Span,
+    ) -> Outcome {
         let set = self.current(span)?;
         let idx = column_index(set, column)?;
         let values = numeric_values(set, idx, column)?;
@@ -262,9 +299,14 @@ impl Session<'_> {
             Some(b) => {
                 let bi = column_index(set, b)?;
                 let Values::Factor(f) = &set.columns[bi].values else {
-                    return Err(Diagnostic::new(b.span, format!("`{}` is not a factor", b.value))
-                        .label("not a factor")
-                        .help(format!("declare it first: `factor {}`", quote_name(&b.value))));
+                    return Err(
+                        Diagnostic::new(b.span, format!("`{}` is not a factor", b.value))
+                            .label("not a factor")
+                            .help(format!(
+                                "declare it first: `factor {}`",
+                                quote_name(&b.value)
+                            )),
+                    );
                 };
                 for (li, level) in f.levels.iter().enumerate() {
                     let vals = f
@@ -284,7 +326,8 @@ impl Session<'_> {
                 }
             }
         }
-        t.notes.push("SD uses the n - 1 divisor; SE = SD / sqrt(n).".into());
+        t.notes
+            .push("SD uses the n - 1 divisor; SE = SD / sqrt(n).".into());
         Ok(vec![Item::Table(t)])
     }
 }
@@ -302,8 +345,13 @@ fn default_name(path: &str) -> String {
 
 /// A column name as it must be written in a statement.
 pub(crate) fn quote_name(name: &str) -> String {
-    let bare = name.chars().next().is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
-        && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.');
+    let bare = name
+        .chars()
+        .next()
+        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.');
     if bare {
         name.to_string()
     } else {
@@ -313,34 +361,47 @@ pub(crate) fn quote_name(name: &str) -> String {
 
 /// The index of a column, or an error that suggests the closest name.
 pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<usize, Diagnostic> {
-    set.columns.iter().position(|c| c.name == column.value).ok_or_else(|| {
-        let mut d = Diagnostic::new(
-            column.span,
-            format!("data set `{}` has no column `{}`", set.name, column.value),
-        )
-        .label("unknown column");
-        d = match set.closest_name(&column.value) {
-            Some(c) => d.help(format!("did you mean `{c}`?")),
-            None => {
-                let names: Vec<&str> = set.columns.iter().map(|c| c.name.as_str()).collect();
-                d.help(format!("its columns are {}", names.join(", ")))
-            }
-        };
-        d
-    })
+    set.columns
+        .iter()
+        .position(|c| c.name == column.value)
+        .ok_or_else(|| {
+            let mut d = Diagnostic::new(
+                column.span,
+                format!("data set `{}` has no column `{}`", set.name, column.value),
+            )
+            .label("unknown column");
+            d = match set.closest_name(&column.value) {
+                Some(c) => d.help(format!("did you mean `{c}`?")),
+                None => {
+                    let names: Vec<&str> = set.columns.iter().map(|c| c.name.as_str()).collect();
+                    d.help(format!("its columns are {}", names.join(", ")))
+                }
+            };
+            d
+        })
 }
 
 /// The values of a numeric column (NaN = missing), or an error that says
 /// why the column is not numeric and which row shows it.
-pub(crate) fn numeric_values<'a>(set: &'a DataSet, idx: usize, column: &Spanned<String>) -> Result<&'a [f64], Diagnostic> {
+pub(crate) fn numeric_values<'a>(
+    set: &'a DataSet,
+    idx: usize,
+    column: &Spanned<String>,
+) -> Result<&'a [f64], Diagnostic> {
     let col: &Column = &set.columns[idx];
     match &col.values {
         Values::Numeric(v) => Ok(v),
-        Values::Factor(_) => Err(Diagnostic::new(column.span, format!("`{}` is a factor, not a numeric column", column.value))
-            .label("needs numbers")),
+        Values::Factor(_) => Err(Diagnostic::new(
+            column.span,
+            format!("`{}` is a factor, not a numeric column", column.value),
+        )
+        .label("needs numbers")),
         Values::Text(t) => {
-            let mut d = Diagnostic::new(column.span, format!("`{}` is a text column, not a numeric one", column.value))
-                .label("needs numbers");
+            let mut d = Diagnostic::new(
+                column.span,
+                format!("`{}` is a text column, not a numeric one", column.value),
+            )
+            .label("needs numbers");
             if let Some((row, text)) = data::first_non_number(t) {
                 let line = set.row_numbers.get(row).copied().unwrap_or(row + 2);
                 d = d.help(format!(
@@ -387,7 +448,12 @@ fn columns_table(set: &DataSet, caption: &str) -> Table {
             Values::Factor(f) => Cell::Text(f.levels.join(", ")),
             _ => Cell::Missing,
         };
-        t.push(vec![c.name.as_str().into(), c.kind_name().into(), c.missing_count().into(), levels]);
+        t.push(vec![
+            c.name.as_str().into(),
+            c.kind_name().into(),
+            c.missing_count().into(),
+            levels,
+        ]);
     }
     t
 }
@@ -420,18 +486,28 @@ fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<
                 }
                 Some(CellValue::Number(x)) => {
                     let Literal::Number(v, _) = &value.value else {
-                        return Err(Diagnostic::new(value.span, format!("`{}` is numeric, so it is compared with a number", column.value))
-                            .label("not a number"));
+                        return Err(Diagnostic::new(
+                            value.span,
+                            format!(
+                                "`{}` is numeric, so it is compared with a number",
+                                column.value
+                            ),
+                        )
+                        .label("not a number"));
                     };
                     compare_numbers(x, *op, *v)
                 }
                 Some(CellValue::Text(s)) => match op {
                     CompareOp::Eq => s == value.value.as_text(),
                     CompareOp::Ne => s != value.value.as_text(),
-                    _ => {
-                        return Err(Diagnostic::new(value.span, format!("`{}` holds text or levels, which can only be tested with ==, != or in", column.value))
-                            .label("order comparison on text"))
-                    }
+                    _ => return Err(Diagnostic::new(
+                        value.span,
+                        format!(
+                            "`{}` holds text or levels, which can only be tested with ==, != or in",
+                            column.value
+                        ),
+                    )
+                    .label("order comparison on text")),
                 },
             }
         }
@@ -446,8 +522,11 @@ fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<
                     let mut hit = false;
                     for v in values {
                         let Literal::Number(n, _) = &v.value else {
-                            return Err(Diagnostic::new(v.span, format!("`{}` is numeric, so its values are numbers", column.value))
-                                .label("not a number"));
+                            return Err(Diagnostic::new(
+                                v.span,
+                                format!("`{}` is numeric, so its values are numbers", column.value),
+                            )
+                            .label("not a number"));
                         };
                         hit |= x == *n;
                     }
@@ -466,7 +545,11 @@ enum CellValue<'a> {
 
 fn cell_value(col: &Column, row: usize) -> Option<CellValue<'_>> {
     match &col.values {
-        Values::Numeric(v) => v.get(row).copied().filter(|x| !x.is_nan()).map(CellValue::Number),
+        Values::Numeric(v) => v
+            .get(row)
+            .copied()
+            .filter(|x| !x.is_nan())
+            .map(CellValue::Number),
         Values::Text(t) => t.get(row).and_then(|s| s.as_deref()).map(CellValue::Text),
         Values::Factor(f) => f
             .codes

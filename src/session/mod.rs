@@ -62,7 +62,9 @@ impl<'w> Session<'w> {
             StatementKind::Show { name } => self.show(name.as_ref(), stmt.span),
             StatementKind::Model(decl) => self.model(decl, stmt.span),
             StatementKind::Table(request) => match request {
-                TableRequest::Summary { column, by } => self.summary(column, by.as_ref(), stmt.span),
+                TableRequest::Summary { column, by } => {
+                    self.summary(column, by.as_ref(), stmt.span)
+                }
                 other => self.model_table(other),
             },
         }
@@ -91,17 +93,25 @@ impl<'w> Session<'w> {
     }
 
     fn model_entry(&self, name: &Spanned<String>) -> Result<&ModelEntry, Diagnostic> {
-        self.models.iter().find(|m| m.name == name.value).ok_or_else(|| {
-            let known: Vec<&str> = self.models.iter().map(|m| m.name.as_str()).collect();
-            let help = match closest(&name.value, &known) {
-                Some(c) => format!("did you mean `{c}`?"),
-                None if known.is_empty() => "declare it first with `model NAME: RESPONSE on TERMS`".into(),
-                None => format!("the models so far are {}", known.join(", ")),
-            };
-            Diagnostic::new(name.span, format!("there is no model called `{}`", name.value))
+        self.models
+            .iter()
+            .find(|m| m.name == name.value)
+            .ok_or_else(|| {
+                let known: Vec<&str> = self.models.iter().map(|m| m.name.as_str()).collect();
+                let help = match closest(&name.value, &known) {
+                    Some(c) => format!("did you mean `{c}`?"),
+                    None if known.is_empty() => {
+                        "declare it first with `model NAME: RESPONSE on TERMS`".into()
+                    }
+                    None => format!("the models so far are {}", known.join(", ")),
+                };
+                Diagnostic::new(
+                    name.span,
+                    format!("there is no model called `{}`", name.value),
+                )
                 .label("unknown model")
                 .help(help)
-        })
+            })
     }
 }
 

@@ -4,7 +4,9 @@ use super::data_statements::{column_index, numeric_values, quote_name};
 use super::{ModelEntry, Outcome, Session};
 use crate::data::Values;
 use crate::diagnostic::Diagnostic;
-use crate::lang::{AdjustMethod, ModelDecl, Setting, Span, Spanned, SsKind, TableRequest, TransformDecl};
+use crate::lang::{
+    AdjustMethod, ModelDecl, Setting, Span, Spanned, SsKind, TableRequest, TransformDecl,
+};
 use crate::model::{self, Adjust, ModelSpec, Part, SsType, TermSpec, Transform, Var};
 use crate::report::markdown::code;
 use crate::report::{Cell, Column as Col, Format, Item, Table};
@@ -57,8 +59,14 @@ impl Session<'_> {
                 };
                 let is_factor = matches!(vars[var], Var::Factor { .. });
                 if is_factor && part.transform != TransformDecl::None {
-                    return Err(Diagnostic::new(part.span, format!("`{}` is a factor; it cannot be transformed", part.column.value))
-                        .label("transform of a factor"));
+                    return Err(Diagnostic::new(
+                        part.span,
+                        format!(
+                            "`{}` is a factor; it cannot be transformed",
+                            part.column.value
+                        ),
+                    )
+                    .label("transform of a factor"));
                 }
                 parts.push(Part {
                     var,
@@ -82,7 +90,8 @@ impl Session<'_> {
             intercept: decl.intercept,
             row_numbers: set.row_numbers.clone(),
         };
-        let term_span = |i: Option<usize>| i.and_then(|i| decl.terms.get(i)).map_or(span, |t| t.span);
+        let term_span =
+            |i: Option<usize>| i.and_then(|i| decl.terms.get(i)).map_or(span, |t| t.span);
         let fit = model::fit(&spec).map_err(|e| {
             Diagnostic::new(term_span(e.term()), e.to_string()).label("in this model")
         })?;
@@ -96,16 +105,25 @@ impl Session<'_> {
                 .map(|t| code(t))
                 .collect::<Vec<_>>()
                 .join(" + "),
-            if decl.intercept { "" } else { " (without intercept)" },
-            s.n,
-            if s.dropped_missing > 0 {
-                format!(" ({} rows with a missing value dropped)", s.dropped_missing)
+            if decl.intercept {
+                ""
             } else {
-                String::new()
+                " (without intercept)"
+            },
+            s.n,
+            match s.dropped_missing {
+                0 => String::new(),
+                1 => " (1 row with a missing value left out)".to_string(),
+                k => format!(" ({k} rows with a missing value left out)"),
             }
         ))];
-        for w in fit.warnings() {
-            items.push(Item::Warning(w.to_string()));
+        // Rows left out are told in the sentence above, not as a warning.
+        for w in fit
+            .warnings()
+            .iter()
+            .filter(|w| !matches!(w, model::ModelWarning::RowsDropped { .. }))
+        {
+            items.push(Item::Warning(sentence(&w.to_string())));
         }
         let data_set = set.name.clone();
         let entry = ModelEntry {
@@ -121,7 +139,11 @@ impl Session<'_> {
     }
 
     pub(super) fn model_table(&mut self, request: &TableRequest) -> Outcome {
-        let fail = |s: Span| move |e: model::ModelError| Diagnostic::new(s, e.to_string()).label("cannot compute this");
+        let fail = |s: Span| {
+            move |e: model::ModelError| {
+                Diagnostic::new(s, e.to_string()).label("cannot compute this")
+            }
+        };
         match request {
             TableRequest::Summary { .. } => Ok(Vec::new()),
             TableRequest::Fit { model } => {
@@ -134,7 +156,11 @@ impl Session<'_> {
                 let rows = m.fit.coefficients(level);
                 let mut t = Table::new(
                     "coefficients",
-                    format!("Coefficients of model {} ({}% confidence limits)", code(&m.name), pct(level)),
+                    format!(
+                        "Coefficients of model {} ({}% confidence limits)",
+                        code(&m.name),
+                        pct(level)
+                    ),
                     vec![
                         Col::new("term", "term", Format::Text),
                         Col::new("estimate", "estimate", Format::Digits(4)),
@@ -146,7 +172,15 @@ impl Session<'_> {
                     ],
                 );
                 for c in rows {
-                    t.push(vec![c.name.into(), c.estimate.into(), c.se.into(), c.t.into(), c.p.into(), c.lower.into(), c.upper.into()]);
+                    t.push(vec![
+                        c.name.into(),
+                        c.estimate.into(),
+                        c.se.into(),
+                        c.t.into(),
+                        c.p.into(),
+                        c.lower.into(),
+                        c.upper.into(),
+                    ]);
                 }
                 t.notes.push("A factor's coefficients compare each level with the reference level (the first).".into());
                 Ok(vec![Item::Table(t)])
@@ -166,7 +200,10 @@ impl Session<'_> {
                 };
                 let mut t = Table::new(
                     "anova",
-                    format!("Analysis of variance of model {}: {what} sums of squares", code(&m.name)),
+                    format!(
+                        "Analysis of variance of model {}: {what} sums of squares",
+                        code(&m.name)
+                    ),
                     vec![
                         Col::new("term", "term", Format::Text),
                         Col::new("df", "df", Format::Count),
@@ -178,7 +215,15 @@ impl Session<'_> {
                     ],
                 );
                 for r in &a.rows {
-                    t.push(vec![r.term.clone().into(), r.df.into(), r.ss.into(), r.ms.into(), r.f.into(), r.p.into(), r.partial_eta_sq.into()]);
+                    t.push(vec![
+                        r.term.clone().into(),
+                        r.df.into(),
+                        r.ss.into(),
+                        r.ms.into(),
+                        r.f.into(),
+                        r.p.into(),
+                        r.partial_eta_sq.into(),
+                    ]);
                 }
                 t.push(vec![
                     "residual".into(),
@@ -189,9 +234,17 @@ impl Session<'_> {
                     Cell::Missing,
                     Cell::Missing,
                 ]);
-                t.push(vec!["total".into(), a.total_df.into(), a.total_ss.into(), Cell::Missing, Cell::Missing, Cell::Missing, Cell::Missing]);
+                t.push(vec![
+                    "total".into(),
+                    a.total_df.into(),
+                    a.total_ss.into(),
+                    Cell::Missing,
+                    Cell::Missing,
+                    Cell::Missing,
+                    Cell::Missing,
+                ]);
                 for n in &a.notes {
-                    t.notes.push(n.to_string());
+                    t.notes.push(sentence(&n.to_string()));
                 }
                 Ok(vec![Item::Table(t)])
             }
@@ -204,7 +257,11 @@ impl Session<'_> {
                 }))?;
                 let mut t = Table::new(
                     "compare",
-                    format!("Comparison of nested models {} and {} (extra sum of squares F test)", code(&a.name), code(&b.name)),
+                    format!(
+                        "Comparison of nested models {} and {} (extra sum of squares F test)",
+                        code(&a.name),
+                        code(&b.name)
+                    ),
                     vec![
                         Col::new("model", "model", Format::Text),
                         Col::new("df_residual", "residual df", Format::Count),
@@ -215,15 +272,39 @@ impl Session<'_> {
                         Col::new("p", "p", Format::P),
                     ],
                 );
-                t.push(vec![a.name.as_str().into(), c.small_df_residual.into(), c.small_rss.into(), Cell::Missing, Cell::Missing, Cell::Missing, Cell::Missing]);
-                t.push(vec![b.name.as_str().into(), c.big_df_residual.into(), c.big_rss.into(), c.df.into(), c.ss.into(), c.f.into(), c.p.into()]);
+                t.push(vec![
+                    a.name.as_str().into(),
+                    c.small_df_residual.into(),
+                    c.small_rss.into(),
+                    Cell::Missing,
+                    Cell::Missing,
+                    Cell::Missing,
+                    Cell::Missing,
+                ]);
+                t.push(vec![
+                    b.name.as_str().into(),
+                    c.big_df_residual.into(),
+                    c.big_rss.into(),
+                    c.df.into(),
+                    c.ss.into(),
+                    c.f.into(),
+                    c.p.into(),
+                ]);
                 Ok(vec![Item::Table(t)])
             }
-            TableRequest::Means { model, factor, at, level } => {
+            TableRequest::Means {
+                model,
+                factor,
+                at,
+                level,
+            } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
-                let rows = m.fit.means(&factor.value, &at, level).map_err(fail(factor.span))?;
+                let rows = m
+                    .fit
+                    .means(&factor.value, &at, level)
+                    .map_err(fail(factor.span))?;
                 let mut t = Table::new(
                     "means",
                     format!(
@@ -243,14 +324,29 @@ impl Session<'_> {
                     ],
                 );
                 for r in rows {
-                    t.push(vec![r.level.into(), r.mean.into(), r.se.into(), r.df.into(), r.lower.into(), r.upper.into()]);
+                    t.push(vec![
+                        r.level.into(),
+                        r.mean.into(),
+                        r.se.into(),
+                        r.df.into(),
+                        r.lower.into(),
+                        r.upper.into(),
+                    ]);
                 }
                 if m.fit.has_other_factors(&factor.value) {
-                    t.notes.push("Averaged over the levels of the other factors with equal weights.".into());
+                    t.notes.push(
+                        "Averaged over the levels of the other factors with equal weights.".into(),
+                    );
                 }
                 Ok(vec![Item::Table(t)])
             }
-            TableRequest::Pairs { model, factor, at, adjust, level } => {
+            TableRequest::Pairs {
+                model,
+                factor,
+                at,
+                adjust,
+                level,
+            } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
@@ -261,10 +357,15 @@ impl Session<'_> {
                     AdjustMethod::Sidak => Adjust::Sidak,
                     AdjustMethod::None => Adjust::None,
                 };
-                let rows = m.fit.pairs(&factor.value, &at, method, level).map_err(fail(factor.span))?;
+                let rows = m
+                    .fit
+                    .pairs(&factor.value, &at, method, level)
+                    .map_err(fail(factor.span))?;
                 let how = match adjust {
                     AdjustMethod::Tukey => "Tukey-Kramer adjusted p and simultaneous limits",
-                    AdjustMethod::Holm => "Holm step-down adjusted p; no simultaneous limits exist for this method",
+                    AdjustMethod::Holm => {
+                        "Holm step-down adjusted p; no simultaneous limits exist for this method"
+                    }
                     AdjustMethod::Bonferroni => "Bonferroni adjusted p and simultaneous limits",
                     AdjustMethod::Sidak => "Sidak adjusted p and simultaneous limits",
                     AdjustMethod::None => "unadjusted p and limits, one comparison at a time",
@@ -291,17 +392,36 @@ impl Session<'_> {
                     ],
                 );
                 for r in rows {
-                    t.push(vec![r.first.into(), r.second.into(), r.estimate.into(), r.se.into(), r.t.into(), r.df.into(), r.p.into(), r.lower.into(), r.upper.into()]);
+                    t.push(vec![
+                        r.first.into(),
+                        r.second.into(),
+                        r.estimate.into(),
+                        r.se.into(),
+                        r.t.into(),
+                        r.df.into(),
+                        r.p.into(),
+                        r.lower.into(),
+                        r.upper.into(),
+                    ]);
                 }
                 t.notes.push("difference = first - second.".into());
                 Ok(vec![Item::Table(t)])
             }
-            TableRequest::Slopes { model, covariate, factor, level } => {
+            TableRequest::Slopes {
+                model,
+                covariate,
+                factor,
+                level,
+            } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let s = m
                     .fit
-                    .slopes(covariate.as_ref().map(|c| c.value.as_str()), &factor.value, level)
+                    .slopes(
+                        covariate.as_ref().map(|c| c.value.as_str()),
+                        &factor.value,
+                        level,
+                    )
                     .map_err(fail(covariate.as_ref().map_or(factor.span, |c| c.span)))?;
                 let mut t = Table::new(
                     "slopes",
@@ -324,7 +444,16 @@ impl Session<'_> {
                     ],
                 );
                 for r in &s.rows {
-                    t.push(vec![r.level.clone().into(), r.slope.into(), r.se.into(), r.t.into(), r.df.into(), r.p.into(), r.lower.into(), r.upper.into()]);
+                    t.push(vec![
+                        r.level.clone().into(),
+                        r.slope.into(),
+                        r.se.into(),
+                        r.t.into(),
+                        r.df.into(),
+                        r.p.into(),
+                        r.lower.into(),
+                        r.upper.into(),
+                    ]);
                 }
                 if s.refitted {
                     t.notes.push(format!(
@@ -344,10 +473,21 @@ impl Session<'_> {
                         Col::new("p", "p", Format::P),
                     ],
                 );
-                eq.push(vec![s.equality_f.into(), s.df1.into(), s.df2.into(), s.equality_p.into()]);
+                eq.push(vec![
+                    s.equality_f.into(),
+                    s.df1.into(),
+                    s.df2.into(),
+                    s.equality_p.into(),
+                ]);
                 Ok(vec![Item::Table(t), Item::Table(eq)])
             }
-            TableRequest::Contrast { model, factor, weights, at, level } => {
+            TableRequest::Contrast {
+                model,
+                factor,
+                weights,
+                at,
+                level,
+            } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
@@ -374,23 +514,40 @@ impl Session<'_> {
                         Col::new("upper", "upper", Format::Digits(4)),
                     ],
                 );
-                t.push(vec![c.estimate.into(), c.se.into(), c.t.into(), c.df.into(), c.p.into(), c.lower.into(), c.upper.into()]);
+                t.push(vec![
+                    c.estimate.into(),
+                    c.se.into(),
+                    c.t.into(),
+                    c.df.into(),
+                    c.p.into(),
+                    c.lower.into(),
+                    c.upper.into(),
+                ]);
                 let mut items = vec![Item::Table(t)];
                 if (weights.value.iter().sum::<f64>()).abs() > 1e-9 {
-                    items.push(Item::Warning("the weights do not sum to zero, so this is not a contrast between levels but a weighted sum of adjusted means.".into()));
+                    items.push(Item::Warning("The weights do not sum to zero, so this is not a contrast between levels but a weighted sum of adjusted means.".into()));
                 }
                 Ok(items)
             }
-            TableRequest::Regions { model, covariate, factor, between, alpha } => {
+            TableRequest::Regions {
+                model,
+                covariate,
+                factor,
+                between,
+                alpha,
+            } => {
                 let m = self.model_entry(model)?;
                 let alpha = match alpha {
                     Some(a) if a.value > 0.0 && a.value < 1.0 => a.value,
                     Some(a) => {
-                        return Err(Diagnostic::new(a.span, "alpha must lie between 0 and 1").label("not a probability"))
+                        return Err(Diagnostic::new(a.span, "alpha must lie between 0 and 1")
+                            .label("not a probability"))
                     }
                     None => DEFAULT_ALPHA,
                 };
-                let pair = between.as_ref().map(|(a, b)| (a.value.as_str(), b.value.as_str()));
+                let pair = between
+                    .as_ref()
+                    .map(|(a, b)| (a.value.as_str(), b.value.as_str()));
                 let rows = m
                     .fit
                     .regions(&covariate.value, &factor.value, pair, alpha)
@@ -464,13 +621,29 @@ fn fit_table(m: &ModelEntry) -> Table {
     t
 }
 
+/// A message of the model engine as a Markdown sentence: escaped, with a
+/// capital letter and a full stop.
+fn sentence(text: &str) -> String {
+    let mut chars = text.trim().chars();
+    let mut out: String = match chars.next() {
+        Some(c) => c.to_uppercase().chain(chars).collect(),
+        None => String::new(),
+    };
+    if !out.ends_with('.') {
+        out.push('.');
+    }
+    crate::report::markdown::escape(&out)
+}
+
 fn confidence(level: Option<&Spanned<f64>>) -> Result<f64, Diagnostic> {
     match level {
         None => Ok(DEFAULT_LEVEL),
         Some(l) if l.value > 0.0 && l.value < 1.0 => Ok(l.value),
-        Some(l) => Err(Diagnostic::new(l.span, "a confidence level lies between 0 and 1")
-            .label("not a level")
-            .help("write it as a proportion, e.g. `level 0.99`")),
+        Some(l) => Err(
+            Diagnostic::new(l.span, "a confidence level lies between 0 and 1")
+                .label("not a level")
+                .help("write it as a proportion, e.g. `level 0.99`"),
+        ),
     }
 }
 
@@ -481,7 +654,9 @@ fn pct(level: f64) -> String {
 }
 
 fn settings(at: &[Setting]) -> Vec<(String, f64)> {
-    at.iter().map(|s| (s.column.value.clone(), s.value)).collect()
+    at.iter()
+        .map(|s| (s.column.value.clone(), s.value))
+        .collect()
 }
 
 fn at_text(fit: &model::Fit, at: &[(String, f64)]) -> String {
@@ -493,7 +668,11 @@ fn at_text(fit: &model::Fit, at: &[(String, f64)]) -> String {
         .iter()
         .map(|(name, mean)| match at.iter().find(|(n, _)| n == name) {
             Some((_, v)) => format!("{} = {v}", code(name)),
-            None => format!("{} at its mean {}", code(name), crate::report::number::format_column(&[Some(*mean)], Format::Digits(4)).join("")),
+            None => format!(
+                "{} at its mean {}",
+                code(name),
+                crate::report::number::format_column(&[Some(*mean)], Format::Digits(4)).join("")
+            ),
         })
         .collect();
     format!(", with {}", parts.join(", "))

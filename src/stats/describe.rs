@@ -50,7 +50,11 @@ pub fn describe(values: &mut [f64]) -> Description {
     // "corrected two-pass" form of Chan, Golub & LeVeque 1983).
     let dev = sum(values.iter().map(|x| x - mean));
     let ss = sum(values.iter().map(|x| (x - mean) * (x - mean))) - dev * dev / n as f64;
-    let sd = if n > 1 { (ss.max(0.0) / (n - 1) as f64).sqrt() } else { f64::NAN };
+    let sd = if n > 1 {
+        (ss.max(0.0) / (n - 1) as f64).sqrt()
+    } else {
+        f64::NAN
+    };
     values.sort_by(f64::total_cmp);
     let median = if n % 2 == 1 {
         values[n / 2]

@@ -1,0 +1,254 @@
+//! The command line: output modes, naming, staleness checks, JSON export,
+//! exit codes, path confinement and the all-or-nothing write.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// A scratch folder under the target directory, fresh for each test.
+fn scratch(name: &str) -> PathBuf {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(dir.join("data")).unwrap_or_else(|e| panic!("{e}"));
+    dir
+}
+
+const DATA: &str = "unit,group,x,y\n1,A,1.5,10.2\n2,A,2.5,11.9\n3,B,1.0,12.8\n4,B,3.0,16.1\n5,C,2.0,15.0\n6,C,2.2,15.9\n";
+
+const DOC: &str = "# Test\n\nProse stays.\n\n```covey\nload \"data/d.csv\"\nfactor group\ntable summary y by group\n```\n\nMore prose.\n";
+
+fn write(path: &Path, text: &str) {
+    std::fs::write(path, text).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+}
+
+fn read(path: &Path) -> String {
+    std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()))
+}
+
+fn covey(dir: &Path, args: &[&str]) -> (i32, String) {
+    let out = Command::new(env!("CARGO_BIN_EXE_covey"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run covey: {e}"));
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn setup(name: &str) -> PathBuf {
+    let dir = scratch(name);
+    write(&dir.join("data/d.csv"), DATA);
+    write(&dir.join("doc.md"), DOC);
+    dir
+}
+
+#[test]
+fn default_mode_leaves_the_source_alone() {
+    let dir = setup("default-mode");
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(read(&dir.join("doc.md")), DOC);
+    let rendered = read(&dir.join("doc.rendered.md"));
+    assert!(
+        rendered.contains("**Summary of `y` by `group`**"),
+        "{rendered}"
+    );
+    // Rendering twice gives the same bytes.
+    let (code, _) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0);
+    assert_eq!(read(&dir.join("doc.rendered.md")), rendered);
+}
+
+#[test]
+fn out_folder_holds_the_rendering() {
+    let dir = setup("out-folder");
+    let (code, err) = covey(&dir, &["render", "--out", "site", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(dir.join("site/doc.rendered.md").exists());
+    assert!(!dir.join("doc.rendered.md").exists());
+    let (code, err) = covey(&dir, &["check", "--out", "site", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+#[test]
+fn in_place_keeps_every_user_byte() {
+    let dir = setup("in-place");
+    let (code, err) = covey(&dir, &["render", "--in-place", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let once = read(&dir.join("doc.md"));
+    assert!(once.contains("<!-- covey:output -->"));
+    assert_eq!(covey::document::strip(&once).as_deref(), Ok(DOC));
+    // A user's edit outside the markers survives the next render.
+    let edited = once.replace("More prose.", "More prose, edited by a colleague.");
+    write(&dir.join("doc.md"), &edited);
+    let (code, _) = covey(&dir, &["render", "--in-place", "doc.md"]);
+    assert_eq!(code, 0);
+    let twice = read(&dir.join("doc.md"));
+    assert!(twice.contains("edited by a colleague"));
+    assert_eq!(
+        twice, edited,
+        "re-rendering an unchanged analysis changes nothing"
+    );
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+#[test]
+fn check_notices_changed_data_and_changed_text() {
+    let dir = setup("check-stale");
+    let (code, err) = covey(&dir, &["check", "."]);
+    assert_eq!(code, 1, "never rendered is stale: {err}");
+    assert!(err.contains("never been rendered"), "{err}");
+    covey(&dir, &["render", "."]);
+    let (code, err) = covey(&dir, &["check", "."]);
+    assert_eq!(code, 0, "{err}");
+    // The data change between two renders: check must notice.
+    write(&dir.join("data/d.csv"), &DATA.replace("16.1", "17.3"));
+    let (code, err) = covey(&dir, &["check", "."]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("stale: ./doc.md"), "{err}");
+    assert!(err.contains("the inputs changed"), "{err}");
+    assert!(err.contains("output of block 1 differs"), "{err}");
+    assert!(err.contains("first difference at line"), "{err}");
+    // The document's own text changes.
+    covey(&dir, &["render", "."]);
+    write(
+        &dir.join("doc.md"),
+        &DOC.replace("Prose stays.", "Prose changed."),
+    );
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.contains("the document's own text changed"), "{err}");
+}
+
+#[test]
+fn json_export_follows_the_schema() {
+    let dir = setup("json");
+    let (code, err) = covey(&dir, &["render", "--json", "out.json", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let v: serde_json::Value =
+        serde_json::from_str(&read(&dir.join("out.json"))).unwrap_or_default();
+    let inputs = v["inputs"].as_array().cloned().unwrap_or_default();
+    assert_eq!(inputs.len(), 1);
+    assert_eq!(inputs[0]["path"], "data/d.csv");
+    assert_eq!(inputs[0]["rows"], 6);
+    assert_eq!(inputs[0]["sha256"].as_str().map(str::len), Some(64));
+    let summary = v["outputs"]
+        .as_array()
+        .and_then(|o| o.iter().find(|t| t["kind"] == "summary").cloned())
+        .unwrap_or_default();
+    assert_eq!(summary["block"], 1);
+    assert_eq!(summary["line"], 8, "line of the statement in the document");
+    assert_eq!(summary["statement"], "table summary y by group");
+    let cols: Vec<&str> = summary["columns"]
+        .as_array()
+        .map(|c| c.iter().filter_map(|x| x.as_str()).collect())
+        .unwrap_or_default();
+    assert_eq!(
+        cols,
+        ["level", "n", "missing", "mean", "sd", "se", "min", "median", "max"]
+    );
+    let a = &summary["rows"][0];
+    assert_eq!(a["level"], "A");
+    assert_eq!(a["n"], 2.0);
+    // Full precision, shortest round trip: (10.2 + 11.9) / 2 in doubles.
+    assert_eq!(a["mean"].as_f64(), Some((10.2f64 + 11.9) / 2.0));
+    assert_eq!(a["mean"].to_string(), "11.05");
+}
+
+#[test]
+fn exit_codes() {
+    let dir = setup("exit-codes");
+    assert_eq!(covey(&dir, &["render", "doc.md"]).0, 0);
+    assert_eq!(covey(&dir, &["render", "nothing-here.md"]).0, 2);
+    assert_eq!(covey(&dir, &["frobnicate"]).0, 2, "usage error");
+    write(&dir.join("bad.md"), "```covey\nload data.csv\n```\n");
+    let (code, err) = covey(&dir, &["render", "bad.md"]);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("bad.md:2:6: error: expected a double-quoted text"),
+        "{err}"
+    );
+    assert!(
+        !dir.join("bad.rendered.md").exists(),
+        "a syntax error writes nothing"
+    );
+    write(
+        &dir.join("typo.md"),
+        "```covey\nload \"data/d.csv\"\ntable summary yy\n```\n",
+    );
+    let (code, err) = covey(&dir, &["render", "typo.md"]);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("typo.md:3:15: error: data set `d` has no column `yy`"),
+        "{err}"
+    );
+    assert!(err.contains("did you mean `y`?"), "{err}");
+    let rendered = read(&dir.join("typo.rendered.md"));
+    assert!(
+        rendered.contains("**Error:**"),
+        "the error is rendered under its block"
+    );
+}
+
+#[test]
+fn loads_outside_the_document_folder_are_refused() {
+    let dir = setup("confinement");
+    let inner = dir.join("docs");
+    std::fs::create_dir_all(&inner).unwrap_or_default();
+    write(
+        &inner.join("up.md"),
+        "```covey\nload \"../data/d.csv\"\n```\n",
+    );
+    let (code, err) = covey(&dir, &["render", "docs/up.md"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("outside the document's folder"), "{err}");
+    let (code, err) = covey(&dir, &["render", "--allow-outside", "docs/up.md"]);
+    assert_eq!(code, 0, "{err}");
+
+    let abs = dir.join("data/d.csv");
+    write(
+        &inner.join("abs.md"),
+        &format!("```covey\nload \"{}\"\n```\n", abs.display()),
+    );
+    let (code, err) = covey(&dir, &["render", "docs/abs.md"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("outside the document's folder"), "{err}");
+
+    #[cfg(unix)]
+    {
+        let link = inner.join("sneaky.csv");
+        let _ = std::os::unix::fs::symlink(&abs, &link);
+        write(
+            &inner.join("link.md"),
+            "```covey\nload \"sneaky.csv\"\n```\n",
+        );
+        let (code, err) = covey(&dir, &["render", "docs/link.md"]);
+        assert_eq!(code, 2);
+        assert!(err.contains("outside the document's folder"), "{err}");
+    }
+}
+
+#[test]
+fn a_failed_write_leaves_previous_files_intact() {
+    let dir = scratch("atomic");
+    let a = dir.join("a.md");
+    let b = dir.join("b.json");
+    write(&a, "old a");
+    write(&b, "old b");
+    let mut batch = covey::files::Batch::new();
+    batch.add(a.clone(), "new a");
+    batch.add(b.clone(), "new b");
+    assert!(batch.commit_with(Some(1)).is_err());
+    assert_eq!(read(&a), "old a");
+    assert_eq!(read(&b), "old b");
+    let leftovers: Vec<_> = std::fs::read_dir(&dir)
+        .map(|d| d.filter_map(|e| e.ok()).map(|e| e.file_name()).collect())
+        .unwrap_or_default();
+    assert_eq!(
+        leftovers.len(),
+        3,
+        "no temporary file is left behind: {leftovers:?}"
+    );
+}
