@@ -21,6 +21,8 @@ pub struct RenderOptions {
     pub keep_going: bool,
     /// Allow `load` to read files outside the document's folder.
     pub allow_outside: bool,
+    /// Also write a self-contained HTML page beside each rendering.
+    pub html: bool,
 }
 
 /// Options of `covey check`.
@@ -137,6 +139,17 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
         }
         let mut batch = Batch::new();
         batch.add(target.clone(), run.rendered.clone());
+        let folder = target.parent().map(Path::to_path_buf).unwrap_or_default();
+        for (rel, svg) in &run.figures {
+            batch.add(folder.join(rel), svg.clone());
+        }
+        if opts.html {
+            let title = display_name(doc);
+            batch.add(
+                files::sibling(&target, "html"),
+                crate::report::html::page(&title, &run.rendered, &run.figures),
+            );
+        }
         if let Some(j) = &opts.json {
             batch.add(j.clone(), json::to_text(&run.json));
         }
@@ -213,7 +226,24 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
                 continue;
             }
         };
-        match differences(&run, &on_disk) {
+        let folder = target.parent().map(Path::to_path_buf).unwrap_or_default();
+        let mut figure_problems = Vec::new();
+        for (rel, svg) in &run.figures {
+            match std::fs::read(folder.join(rel)) {
+                Ok(b) if b == svg.as_bytes() => {}
+                Ok(_) => figure_problems.push(format!("figure {rel} differs")),
+                Err(_) => figure_problems.push(format!("figure {rel} is missing")),
+            }
+        }
+        let diff = match (differences(&run, &on_disk), figure_problems.is_empty()) {
+            (None, true) => None,
+            (None, false) => Some(figure_problems),
+            (Some(mut d), _) => {
+                d.extend(figure_problems);
+                Some(d)
+            }
+        };
+        match diff {
             None => report.lines.push(format!("current: {}", doc.display())),
             Some(details) => {
                 report

@@ -38,6 +38,9 @@ enum Command {
         /// Let `load` read files outside the document's folder.
         #[arg(long)]
         allow_outside: bool,
+        /// Also write a self-contained HTML page beside each rendering.
+        #[arg(long)]
+        html: bool,
     },
     /// Tell whether the renderings on disk are current (exit 0) or stale (exit 1).
     Check {

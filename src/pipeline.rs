@@ -29,6 +29,8 @@ pub struct Run {
     pub warnings: Vec<String>,
     /// The input files read, for provenance.
     pub inputs: Vec<InputRecord>,
+    /// Figure files as (path relative to the rendered document, SVG text).
+    pub figures: Vec<(String, String)>,
     /// The parsed document (the source without regions, and its blocks).
     pub document: Document,
 }
@@ -91,7 +93,10 @@ pub fn run(
     let mut bodies = Vec::with_capacity(blocks.len());
     let mut stopped = false;
     let mut warnings = Vec::new();
+    let mut figures = Vec::new();
+    let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
     for (bi, statements) in blocks.iter().enumerate() {
+        let mut figure_count = 0;
         if stopped {
             bodies.push(
                 "\n*Not run: an earlier block failed. Fix that error, or render with --keep-going to run the rest.*\n\n"
@@ -102,7 +107,16 @@ pub fn run(
         let first = outputs.len();
         for stmt in statements {
             let items = match session.run(stmt) {
-                Ok(items) => items,
+                Ok(mut items) => {
+                    for it in &mut items {
+                        if let Item::Figure(f) = it {
+                            figure_count += 1;
+                            f.file = format!("{stem}.figures/block{}-{figure_count}.svg", bi + 1);
+                            figures.push((f.file.clone(), f.svg.clone()));
+                        }
+                    }
+                    items
+                }
                 Err(d) => {
                     let shown = show(&d);
                     errors.push(shown.clone());
@@ -155,6 +169,7 @@ pub fn run(
         errors,
         warnings,
         inputs,
+        figures,
         document: doc,
     })
 }

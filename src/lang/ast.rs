@@ -50,6 +50,39 @@ pub enum StatementKind {
     },
     Model(ModelDecl),
     Table(TableRequest),
+    /// `check M`: the assumption checks of a fitted model.
+    Check {
+        model: Spanned<String>,
+    },
+    /// `plot KIND M [of X] [for F]`: a figure.
+    Plot {
+        kind: PlotKind,
+        model: Spanned<String>,
+        covariate: Option<Spanned<String>>,
+        factor: Option<Spanned<String>>,
+    },
+    /// `unit COLUMN "TEXT"`: the unit that axis labels show for a column.
+    Unit {
+        column: Spanned<String>,
+        unit: Spanned<String>,
+    },
+}
+
+/// The figures of `plot`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PlotKind {
+    /// The data with the fitted line of each level.
+    Lines,
+    /// Residuals against fitted values.
+    Residuals,
+    /// Normal quantile plot of standardized residuals.
+    Quantiles,
+    /// Adjusted means with confidence intervals.
+    Means,
+    /// Cook's distance by observation.
+    Influence,
+    /// The raw response by level.
+    Groups,
 }
 
 /// A row filter of `keep where`.

@@ -77,7 +77,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model or table"
+                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot or unit"
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
@@ -130,9 +130,10 @@ fn describe(rule: Rule) -> &'static str {
         | Rule::keep_stmt
         | Rule::show_stmt
         | Rule::model_stmt
-        | Rule::table_stmt => {
-            "load, missing, use, factor, keep, show, model or table"
-        }
+        | Rule::table_stmt
+        | Rule::check_stmt
+        | Rule::plot_stmt
+        | Rule::unit_stmt => "load, missing, use, factor, keep, show, model, table, check, plot or unit",
         Rule::summary_table
         | Rule::fit_table
         | Rule::coefficients_table
@@ -193,6 +194,10 @@ fn describe(rule: Rule) -> &'static str {
         Rule::kw_between => "`between`",
         Rule::kw_level => "`level`",
         Rule::kw_alpha => "`alpha`",
+        Rule::kw_check => "`check`",
+        Rule::kw_plot => "`plot`",
+        Rule::kw_unit => "`unit`",
+        Rule::plot_kind => "a figure kind (lines, residuals, quantiles, means, influence, groups)",
         _ => "more text",
     }
 }
@@ -244,6 +249,9 @@ fn is_keyword(rule: Rule) -> bool {
             | Rule::kw_between
             | Rule::kw_level
             | Rule::kw_alpha
+            | Rule::kw_check
+            | Rule::kw_plot
+            | Rule::kw_unit
     )
 }
 
@@ -285,6 +293,7 @@ impl Builder {
 
     fn statement(&self, pair: Pair<'_, Rule>) -> Result<StatementKind, SyntaxError> {
         let rule = pair.as_rule();
+        let pair_kids: Vec<Pair<'_, Rule>> = pair.clone().into_inner().collect();
         let mut kids = children(pair).into_iter();
         Ok(match rule {
             Rule::load_stmt => {
@@ -322,6 +331,50 @@ impl Builder {
             },
             Rule::model_stmt => StatementKind::Model(self.model(kids)?),
             Rule::table_stmt => StatementKind::Table(self.table(next(&mut kids)?)?),
+            Rule::check_stmt => StatementKind::Check {
+                model: self.ident(next(&mut kids)?),
+            },
+            Rule::unit_stmt => StatementKind::Unit {
+                column: self.name(next(&mut kids)?),
+                unit: self.string(next(&mut kids)?),
+            },
+            Rule::plot_stmt => {
+                // `of` and `for` are dropped as keywords: tell the two
+                // optional names apart by the keyword before each.
+                let mut covariate = None;
+                let mut factor = None;
+                let mut kind = PlotKind::Lines;
+                let mut model = None;
+                let mut after: Option<Rule> = None;
+                let all: Vec<Pair<'_, Rule>> = pair_kids;
+                for p in all {
+                    match p.as_rule() {
+                        Rule::kw_of | Rule::kw_for => after = Some(p.as_rule()),
+                        Rule::plot_kind => {
+                            kind = match p.as_str() {
+                                "residuals" => PlotKind::Residuals,
+                                "quantiles" => PlotKind::Quantiles,
+                                "means" => PlotKind::Means,
+                                "influence" => PlotKind::Influence,
+                                "groups" => PlotKind::Groups,
+                                _ => PlotKind::Lines,
+                            }
+                        }
+                        Rule::ident if model.is_none() => model = Some(self.ident(p)),
+                        Rule::name => match after {
+                            Some(Rule::kw_of) => covariate = Some(self.name(p)),
+                            _ => factor = Some(self.name(p)),
+                        },
+                        _ => {}
+                    }
+                }
+                StatementKind::Plot {
+                    kind,
+                    model: model.ok_or_else(missing_part)?,
+                    covariate,
+                    factor,
+                }
+            }
             _ => unreachable_rule(rule)?,
         })
     }

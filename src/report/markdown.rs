@@ -132,6 +132,12 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
             Item::Table(t) => out.push_str(&table(t)),
             Item::Text(s) => out.push_str(&format!("{s}\n")),
             Item::Warning(s) => out.push_str(&format!("**Warning:** {s}\n")),
+            Item::Figure(f) => out.push_str(&format!(
+                "**{}**\n\n![{}]({})\n",
+                f.caption,
+                escape(&f.alt),
+                f.file
+            )),
             Item::Error { message, snippet } => {
                 let fence = "`".repeat(longest_run(snippet, '`').max(2) + 1);
                 out.push_str(&format!(

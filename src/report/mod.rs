@@ -4,6 +4,7 @@
 //! of each column; only the renderers here turn them into text, and no
 //! renderer computes a number.
 
+pub mod html;
 pub mod json;
 pub mod markdown;
 pub mod number;
@@ -133,6 +134,21 @@ pub enum Item {
         message: String,
         snippet: String,
     },
+    /// A figure, drawn as SVG.
+    Figure(Figure),
+}
+
+/// A figure: its SVG text and the words that describe it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Figure {
+    /// Where the rendering links it, relative to the rendered document
+    /// (set by the pipeline: `NAME.figures/blockB-K.svg`).
+    pub file: String,
+    pub svg: String,
+    /// Alternative text: what the figure shows, for readers who cannot see it.
+    pub alt: String,
+    /// The caption shown above it.
+    pub caption: String,
 }
 
 /// The results of one statement.

@@ -500,14 +500,16 @@ fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<
                 Some(CellValue::Text(s)) => match op {
                     CompareOp::Eq => s == value.value.as_text(),
                     CompareOp::Ne => s != value.value.as_text(),
-                    _ => return Err(Diagnostic::new(
-                        value.span,
-                        format!(
+                    _ => {
+                        return Err(Diagnostic::new(
+                            value.span,
+                            format!(
                             "`{}` holds text or levels, which can only be tested with ==, != or in",
                             column.value
                         ),
-                    )
-                    .label("order comparison on text")),
+                        )
+                        .label("order comparison on text"))
+                    }
                 },
             }
         }

@@ -4,8 +4,10 @@
 //! Each statement kind has one handler. Handlers return [`Item`]s or a
 //! [`Diagnostic`] that points at the words in the document that caused it.
 
+mod check_statements;
 mod data_statements;
 mod model_statements;
+mod plot_statements;
 
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
@@ -29,6 +31,8 @@ pub struct Session<'w> {
     missing_markers: Vec<String>,
     models: Vec<ModelEntry>,
     inputs: Vec<InputRecord>,
+    /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
+    units: Vec<(String, String)>,
 }
 
 type Outcome = Result<Vec<Item>, Diagnostic>;
@@ -43,6 +47,7 @@ impl<'w> Session<'w> {
             missing_markers: Vec::new(),
             models: Vec::new(),
             inputs: Vec::new(),
+            units: Vec::new(),
         }
     }
 
@@ -61,6 +66,14 @@ impl<'w> Session<'w> {
             StatementKind::Keep { condition } => self.keep(condition, stmt.span),
             StatementKind::Show { name } => self.show(name.as_ref(), stmt.span),
             StatementKind::Model(decl) => self.model(decl, stmt.span),
+            StatementKind::Check { model } => self.check(model),
+            StatementKind::Plot {
+                kind,
+                model,
+                covariate,
+                factor,
+            } => self.plot(*kind, model, covariate.as_ref(), factor.as_ref()),
+            StatementKind::Unit { column, unit } => self.unit(column, unit),
             StatementKind::Table(request) => match request {
                 TableRequest::Summary { column, by } => {
                     self.summary(column, by.as_ref(), stmt.span)
@@ -90,6 +103,23 @@ impl<'w> Session<'w> {
         self.data_sets
             .get_mut(i)
             .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
+    }
+
+    /// The unit declared for a column, if any.
+    pub fn unit_of(&self, column: &str) -> Option<&str> {
+        self.units
+            .iter()
+            .find(|(c, _)| c == column)
+            .map(|(_, u)| u.as_str())
+    }
+
+    /// An axis label: the column name, with its unit in brackets when one
+    /// was declared.
+    pub fn axis_label(&self, column: &str) -> String {
+        match self.unit_of(column) {
+            Some(u) => format!("{column} ({u})"),
+            None => column.to_string(),
+        }
     }
 
     fn model_entry(&self, name: &Spanned<String>) -> Result<&ModelEntry, Diagnostic> {
