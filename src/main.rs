@@ -72,6 +72,7 @@ fn main() -> ExitCode {
             json,
             keep_going,
             allow_outside,
+            html,
         } => covey::render(
             &paths,
             &RenderOptions {
@@ -80,6 +81,7 @@ fn main() -> ExitCode {
                 json,
                 keep_going,
                 allow_outside,
+                html,
             },
         ),
         Command::Check {
