@@ -41,5 +41,50 @@ def rations():
     write("rations.csv", ["pen", "ration", "start_kg", "final_kg"], rows)
 
 
+def machines():
+    """Two cutting machines; surface roughness against sheet thickness.
+    Machine B's roughness grows faster with thickness, so the lines cross:
+    the slopes differ by construction."""
+    rng = random.Random(7041)
+    rows = []
+    part = 0
+    for machine, (a, b) in {"press-A": (1.10, 0.10), "press-B": (0.35, 0.26)}.items():
+        for _ in range(22):
+            part += 1
+            thickness = round(rng.uniform(1.5, 10.0), 2)
+            rough = a + b * thickness + rng.gauss(0, 0.22)
+            rows.append([f"S{part:03d}", machine, thickness, round(rough, 3)])
+    rng.shuffle(rows)
+    write("machines.csv", ["sheet", "machine", "thickness_mm", "roughness_um"], rows)
+
+
+def clinics():
+    """A two-arm trial run at three clinics with unequal enrolment; the
+    outcome is a symptom score after eight weeks, adjusted for the baseline
+    score. Arm effects differ a little between clinics, and the cells are
+    unbalanced, so Type I, II and III sums of squares disagree."""
+    rng = random.Random(31337)
+    sizes = {
+        ("north", "control"): 14, ("north", "active"): 6,
+        ("river", "control"): 5, ("river", "active"): 13,
+        ("hill", "control"): 9, ("hill", "active"): 8,
+    }
+    clinic_shift = {"north": 0.0, "river": 2.5, "hill": -1.5}
+    arm_effect = {("north", "active"): -4.0, ("river", "active"): -1.5, ("hill", "active"): -3.0}
+    rows = []
+    pid = 0
+    for (clinic, arm), n in sizes.items():
+        for _ in range(n):
+            pid += 1
+            base = round(rng.gauss(24 + (3 if clinic == "river" else 0), 4), 0)
+            week8 = (6 + 0.7 * base + clinic_shift[clinic]
+                     + arm_effect.get((clinic, arm), 0.0) + rng.gauss(0, 2.6))
+            rows.append([f"T{pid:03d}", clinic, arm, int(base), round(week8, 1)])
+    rng.shuffle(rows)
+    write("clinics.csv", ["patient", "clinic", "arm", "baseline", "week8"], rows)
+
+
 if __name__ == "__main__":
     rations()
+    machines()
+    clinics()
