@@ -136,7 +136,10 @@ pub fn run(
             for it in &items {
                 if let Item::Warning(w) = it {
                     let (line, _) = diagnostic::line_col(text, shift.offset(stmt.span.start));
-                    warnings.push(format!("{file_name}:{line}: warning: {w}"));
+                    warnings.push(format!(
+                        "{file_name}:{line}: warning: {}",
+                        markdown::plain(w)
+                    ));
                 }
             }
             outputs.push(Output {

@@ -119,6 +119,11 @@ fn syntax_errors_are_all_reported() {
 }
 
 #[test]
+fn model_errors_and_designs_with_holes() {
+    render_fixture("model-errors-keep-going");
+}
+
+#[test]
 fn undeclared_missing_marker_is_refused() {
     render_fixture("undeclared-marker");
 }

@@ -5,8 +5,9 @@ use std::collections::BTreeMap;
 use csv::{ByteRecord, ReaderBuilder};
 
 use super::error::LoadError;
+use super::exact::{self, ExactScan};
 use super::number::{parse_trimmed, NumberParse, Suggestion};
-use super::{Column, DataSet, Values};
+use super::{Column, DataSet, ExactValues, Values};
 
 /// Longest physical line accepted, in bytes. Real data rows are far shorter; a longer line
 /// almost always means a wrong delimiter, a missing line break, or a file that is not text.
@@ -157,6 +158,8 @@ enum Builder {
     Numeric {
         values: Vec<f64>,
         refused: Option<Refused>,
+        /// Whether the column needs exact residuals (see [`super::ExactValues`]).
+        scan: ExactScan,
     },
     Text {
         values: Vec<Option<String>>,
@@ -188,14 +191,21 @@ impl Builder {
         let cell = trim_bytes(raw);
         let missing = is_missing_cell(cell, markers);
         match self {
-            Builder::Numeric { values, refused } => {
+            Builder::Numeric {
+                values,
+                refused,
+                scan,
+            } => {
                 if missing {
                     values.push(f64::NAN);
                     return Ok(());
                 }
                 let text = cell_text(cell, at)?;
                 match parse_trimmed(text) {
-                    NumberParse::Number(v) => values.push(v),
+                    NumberParse::Number(v) => {
+                        scan.observe(text);
+                        values.push(v);
+                    }
                     NumberParse::Suspicious(suggestion) => {
                         if refused.is_none() {
                             *refused = Some(Refused {
@@ -369,6 +379,7 @@ fn read_rows(
         .map(|_| Builder::Numeric {
             values: Vec::new(),
             refused: None,
+            scan: ExactScan::default(),
         })
         .collect();
 
@@ -458,16 +469,26 @@ pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadE
     }
 
     refill(body, delimiter, &markers, &mut builders)?;
+    let offsets: Vec<Option<i64>> = builders
+        .iter()
+        .map(|b| match b {
+            Builder::Numeric { scan, .. } => scan.wanted(),
+            Builder::Text { .. } => None,
+        })
+        .collect();
+    let mut exact = exact_pass(body, delimiter, &markers, &offsets, row_numbers.len())?;
 
     let columns = names
         .into_iter()
         .zip(builders)
-        .map(|(name, b)| Column {
+        .enumerate()
+        .map(|(j, (name, b))| Column {
             name,
             values: match b {
                 Builder::Numeric { values, .. } => Values::Numeric(values),
                 Builder::Text { values, .. } => Values::Text(values),
             },
+            exact: exact.get_mut(j).and_then(Option::take),
         })
         .collect();
     Ok(DataSet {
@@ -528,4 +549,65 @@ fn refill(
         }
     }
     Ok(())
+}
+
+/// Third pass, only for columns whose first pass asked for an exact offset (`offsets[j]`):
+/// each cell minus the offset by exact decimal subtraction (see [`super::ExactValues`]).
+/// A column whose cells cannot all be done (which the first pass rules out) gets none.
+fn exact_pass(
+    body: &[u8],
+    delimiter: u8,
+    markers: &[&[u8]],
+    offsets: &[Option<i64>],
+    n_rows: usize,
+) -> Result<Vec<Option<Box<ExactValues>>>, LoadError> {
+    if offsets.iter().all(Option::is_none) {
+        return Ok(Vec::new());
+    }
+    let mut residuals: Vec<Option<Vec<f64>>> = offsets
+        .iter()
+        .map(|o| o.map(|_| Vec::with_capacity(n_rows)))
+        .collect();
+    let mut rdr = reader(body, delimiter);
+    let mut record = ByteRecord::new();
+    let mut lines = LineCounter::new(body);
+    // Skip the header.
+    if read_record(&mut rdr, &mut record, &mut lines)? {
+        for _ in 0..n_rows {
+            if !read_record(&mut rdr, &mut record, &mut lines)? {
+                break;
+            }
+            for ((raw, slot), offset) in record.iter().zip(residuals.iter_mut()).zip(offsets) {
+                let (Some(res), Some(offset)) = (slot.as_mut(), offset) else {
+                    continue;
+                };
+                let cell = trim_bytes(raw);
+                let r = if is_missing_cell(cell, markers) {
+                    Some(f64::NAN)
+                } else {
+                    std::str::from_utf8(cell)
+                        .ok()
+                        .and_then(|t| exact::residual(t, *offset))
+                };
+                match r {
+                    Some(r) => res.push(r),
+                    None => *slot = None,
+                }
+            }
+        }
+    }
+    Ok(residuals
+        .into_iter()
+        .zip(offsets)
+        .map(|(r, o)| match (r, o) {
+            (Some(residuals), Some(o)) if residuals.len() == n_rows => {
+                // |o| < 2^53, so the conversion is exact.
+                Some(Box::new(ExactValues {
+                    offset: *o as f64,
+                    residuals,
+                }))
+            }
+            _ => None,
+        })
+        .collect())
 }

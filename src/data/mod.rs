@@ -2,6 +2,7 @@
 //! values, plus the helpers messages need (closest column name, first non-number cell).
 
 mod error;
+mod exact;
 mod factor;
 mod load;
 mod number;
@@ -35,6 +36,36 @@ pub struct Column {
     pub name: String,
     /// The cells.
     pub values: Values,
+    /// For a numeric column whose cells carry more digits than their nearest doubles keep
+    /// (see [`ExactValues`]): the cells as an exact offset plus small residuals. `None` for
+    /// other columns; meaningful only while `values` is numeric.
+    pub exact: Option<Box<ExactValues>>,
+}
+
+/// A numeric column's cells as `offset + residuals[i]`, where the offset is the integer part
+/// of the first non-missing cell (an integer a double holds exactly) and each residual is
+/// the cell's decimal text minus the offset, computed exactly and only then rounded to a
+/// double. For cells such as 1000000000000.4 the residual (0.4) keeps the digits that the
+/// nearest double of the whole value (1000000000000.4000244...) loses.
+///
+/// The loader keeps these when some cell has more than 7 significant digits and every cell
+/// is a plain decimal (no exponent notation) and the offset is non-zero with magnitude
+/// below 2^53.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ExactValues {
+    /// The integer part of the column's first non-missing value.
+    pub offset: f64,
+    /// Each cell minus `offset` (NaN for a missing cell), one per row.
+    pub residuals: Vec<f64>,
+}
+
+/// The entries of `v` whose `keep` entry is true (entries beyond `keep` are dropped).
+fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
+    v.iter()
+        .zip(keep)
+        .filter(|(_, k)| **k)
+        .map(|(x, _)| x.clone())
+        .collect()
 }
 
 /// The cells of a column.
@@ -65,13 +96,6 @@ impl Values {
 
     /// Keeps the rows whose `keep` entry is true (rows beyond `keep` are dropped).
     fn filter(&self, keep: &[bool]) -> Values {
-        fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
-            v.iter()
-                .zip(keep)
-                .filter(|(_, k)| **k)
-                .map(|(x, _)| x.clone())
-                .collect()
-        }
         match self {
             Values::Numeric(v) => Values::Numeric(pick(v, keep)),
             Values::Text(v) => Values::Text(pick(v, keep)),
@@ -210,6 +234,16 @@ impl DataSet {
                 .map(|c| Column {
                     name: c.name.clone(),
                     values: c.values.filter(keep),
+                    exact: c
+                        .exact
+                        .as_ref()
+                        .filter(|_| matches!(c.values, Values::Numeric(_)))
+                        .map(|e| {
+                            Box::new(ExactValues {
+                                offset: e.offset,
+                                residuals: pick(&e.residuals, keep),
+                            })
+                        }),
                 })
                 .collect(),
             row_numbers: self

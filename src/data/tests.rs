@@ -593,6 +593,7 @@ fn text_col(cells: &[Option<&str>]) -> Column {
     Column {
         name: "g".to_owned(),
         values: Values::Text(cells.iter().map(|c| c.map(str::to_owned)).collect()),
+        exact: None,
     }
 }
 
@@ -615,6 +616,7 @@ fn factor_from_numeric_codes() {
     let c = Column {
         name: "dose".to_owned(),
         values: Values::Numeric(vec![2.0, 1.0, f64::NAN, 2.5, -0.0, 0.0, 1.0]),
+        exact: None,
     };
     let f = make_factor(&c, None).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(f.levels, strings(&["2", "1", "2.5", "0"]));
@@ -648,6 +650,7 @@ fn factor_relevel_existing_factor() {
     let fc = Column {
         name: "g".to_owned(),
         values: Values::Factor(f),
+        exact: None,
     };
     let declared = strings(&["a", "b"]);
     let g = make_factor(&fc, Some(&declared)).unwrap_or_else(|e| panic!("{e}"));
@@ -709,6 +712,7 @@ fn factor_error_duplicate_declared() {
     let n = Column {
         name: "d".to_owned(),
         values: Values::Numeric(vec![1.0, 2.0]),
+        exact: None,
     };
     let e = make_factor(&n, Some(&strings(&["1", "1.0", "2"]))).err();
     assert!(matches!(
@@ -808,4 +812,64 @@ mod prop {
             }
         }
     }
+}
+
+fn exact(d: &DataSet, name: &str) -> Option<ExactValues> {
+    d.column(name).and_then(|c| c.exact.as_deref().cloned())
+}
+
+/// NaN-aware equality of two vectors, bit for bit.
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
+}
+
+#[test]
+fn long_cells_keep_an_exact_offset() {
+    // Values in the style of the NIST StRD ANOVA sets SmLs07-09 (invented rows).
+    let d = ok("g,y,z\na,1000000000000.4,1\nb,,2\nc,999999999999.9,3\nd,1000000000001.25,4\n");
+    let e = exact(&d, "y").unwrap_or_else(|| panic!("no exact values for y"));
+    assert_eq!(e.offset, 1e12);
+    let want: Vec<f64> = ["0.4", "NaN", "-0.1", "1.25"]
+        .iter()
+        .map(|t| t.parse::<f64>().unwrap_or(f64::NAN))
+        .collect();
+    assert!(same_bits(&e.residuals, &want), "{:?}", e.residuals);
+    // The values stay the nearest doubles of the cells.
+    assert!(same_bits(
+        &nums(&d, "y"),
+        &[1000000000000.4, f64::NAN, 999999999999.9, 1000000000001.25]
+    ));
+    // Short cells need no offset.
+    assert_eq!(exact(&d, "z"), None);
+    assert_eq!(exact(&d, "g"), None);
+}
+
+#[test]
+fn exact_offset_needs_plain_cells_and_a_small_integer_part() {
+    // Exponent notation anywhere in the column: none.
+    assert_eq!(exact(&ok("y\n1000000000000.4\n1e12\n"), "y"), None);
+    // Integer part of the first value beyond 2^53: none.
+    assert_eq!(exact(&ok("y\n90071992547409930.5\n1\n"), "y"), None);
+    // First value below 1 in size: a zero offset gains nothing.
+    assert_eq!(exact(&ok("y\n0.5\n1000000000000.4\n"), "y"), None);
+    // A column that turns text has none.
+    assert_eq!(exact(&ok("y\n1000000000000.4\nabc\n"), "y"), None);
+    // Missing markers are missing in the residuals too; the first value is negative.
+    let mut o = opts();
+    o.missing = vec!["NA".to_owned()];
+    let d = read_delimited(b"y\nNA\n-1000000000000.4\n-1000000000000.5\n", &o)
+        .unwrap_or_else(|e| panic!("{e}"));
+    let e = exact(&d, "y").unwrap_or_else(|| panic!("no exact values"));
+    assert_eq!(e.offset, -1e12);
+    assert!(same_bits(&e.residuals, &[f64::NAN, -0.4, -0.5]));
+}
+
+#[test]
+fn filter_keeps_exact_residuals_in_step() {
+    let d = ok("y\n1000000000000.4\n1000000000000.3\n1000000000000.5\n");
+    let f = d.filter(&[true, false, true]);
+    let e = exact(&f, "y").unwrap_or_else(|| panic!("no exact values"));
+    assert_eq!(e.offset, 1e12);
+    assert!(same_bits(&e.residuals, &[0.4, 0.5]));
+    assert_eq!(nums(&f, "y").len(), 2);
 }

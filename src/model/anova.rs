@@ -163,9 +163,7 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
     if small.row_numbers() != big.row_numbers() {
         return Err(ModelError::DifferentRows);
     }
-    let ys = response_used(small);
-    let yb = response_used(big);
-    if ys != yb {
+    if !same_response(small, big) {
         return Err(ModelError::DifferentResponse);
     }
     let by_names = (!small.spec.intercept || big.spec.intercept)
@@ -199,15 +197,28 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
     })
 }
 
-fn response_used(f: &Fit) -> Vec<u64> {
+/// The response values of the fitted rows as bit patterns, with `add` added first.
+fn response_used(f: &Fit, add: f64) -> Vec<u64> {
     match &f.spec.response {
         Var::Numeric { values, .. } => f
             .lay
             .used
             .iter()
-            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN).to_bits())
+            .map(|&i| (values.get(i).copied().unwrap_or(f64::NAN) + add).to_bits())
             .collect(),
         Var::Factor { .. } => Vec::new(),
+    }
+}
+
+/// Whether two fits have the same response over their fitted rows: the same values when
+/// their response offsets agree, else the same values once each offset is added (as a
+/// model without an intercept folds it in).
+fn same_response(a: &Fit, b: &Fit) -> bool {
+    let (oa, ob) = (a.spec.response_offset, b.spec.response_offset);
+    if oa.to_bits() == ob.to_bits() {
+        response_used(a, 0.0) == response_used(b, 0.0)
+    } else {
+        response_used(a, oa) == response_used(b, ob)
     }
 }
 

@@ -31,6 +31,9 @@ pub(crate) struct Engine {
     pub scale: Vec<f64>,
     pub y_centre: f64,
     pub y_scale: f64,
+    /// The response offset ([`ModelSpec::response_offset`]) added back to estimates on the
+    /// response scale; 0 without an intercept (the offset is folded into the values then).
+    pub y_offset: f64,
     /// R of [Z | y'], (p+1) x (p+1).
     pub r_aug: Mat,
 }
@@ -78,7 +81,38 @@ pub struct Fit {
 }
 
 /// Fit a linear model by least squares.
+///
+/// A response offset ([`ModelSpec::response_offset`]) stays outside the arithmetic in a
+/// model with an intercept (the intercept absorbs it, so the engine works on the small
+/// values and adds the offset back to estimates); without an intercept it is folded into
+/// the values first.
 pub fn fit(spec: &ModelSpec) -> Result<Fit, ModelError> {
+    if !spec.response_offset.is_finite() {
+        return Err(ModelError::NonFiniteValue {
+            variable: spec.response.name().to_string(),
+            row: spec.row_numbers.first().copied().unwrap_or(1),
+        });
+    }
+    if !spec.intercept && spec.response_offset != 0.0 {
+        return fit_spec(&fold_offset(spec));
+    }
+    fit_spec(spec)
+}
+
+/// The spec with its response offset added to the response values (offset 0 after).
+fn fold_offset(spec: &ModelSpec) -> ModelSpec {
+    let mut folded = spec.clone();
+    if let Var::Numeric { values, .. } = &mut folded.response {
+        for v in values.iter_mut() {
+            *v += spec.response_offset;
+        }
+        folded.response_offset = 0.0;
+    }
+    folded
+}
+
+/// [`fit`] once the offset is settled (0, or kept apart in a model with an intercept).
+fn fit_spec(spec: &ModelSpec) -> Result<Fit, ModelError> {
     let lay = design::layout(spec)?;
     let n = lay.used.len();
     let (tcols, tterms) = design::columns(spec, &lay, Scheme::Treatment);
@@ -274,6 +308,11 @@ fn build_engine(
     let r_aug = acc.finish();
     let y_centre = centre[p];
     let y_scale = scale[p];
+    let y_offset = if spec.intercept {
+        spec.response_offset
+    } else {
+        0.0
+    };
     centre.truncate(p);
     scale.truncate(p);
     Ok(Engine {
@@ -283,6 +322,7 @@ fn build_engine(
         scale,
         y_centre,
         y_scale,
+        y_offset,
         r_aug,
     })
 }
@@ -378,8 +418,10 @@ impl Fit {
             }
         }
         let lk: Vec<f64> = self.kept.iter().map(|&c| lz[c]).collect();
-        let est =
-            l0 * e.y_centre + e.y_scale * lk.iter().zip(&self.bz).map(|(a, b)| a * b).sum::<f64>();
+        // The offset goes on last, so the small part keeps its digits until then.
+        let est = l0 * e.y_offset
+            + (l0 * e.y_centre
+                + e.y_scale * lk.iter().zip(&self.bz).map(|(a, b)| a * b).sum::<f64>());
         let w = qr::solve_upper_transpose(&self.r, &lk)
             .into_iter()
             .map(|v| v * self.sigma)
@@ -514,7 +556,8 @@ impl Fit {
             .collect()
     }
 
-    /// The spec this model was fitted from.
+    /// The spec this model was fitted from (in a model without an intercept, with its
+    /// response offset folded into the response values).
     pub fn spec(&self) -> &ModelSpec {
         &self.spec
     }
@@ -551,7 +594,7 @@ impl Fit {
             let yz = (row[p] - e.y_centre) / e.y_scale;
             let fz: f64 = z.iter().zip(&self.bz).map(|(a, b)| a * b).sum();
             let res = (yz - fz) * e.y_scale;
-            let fitted = e.y_centre + fz * e.y_scale;
+            let fitted = e.y_offset + (e.y_centre + fz * e.y_scale);
             let u = qr::solve_upper_transpose(&self.r, &z);
             let h: f64 = u.iter().map(|v| v * v).sum();
             let one_h = 1.0 - h;

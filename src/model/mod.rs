@@ -13,6 +13,7 @@
 
 mod anova;
 mod design;
+pub mod dist;
 mod fit;
 mod means;
 mod qr;
@@ -104,6 +105,13 @@ pub struct ModelSpec {
     pub intercept: bool,
     /// The data-file line of each row (for messages and diagnostics).
     pub row_numbers: Vec<usize>,
+    /// The response values are given relative to this offset (0 for plain values): the
+    /// response is `response_offset + values[i]`. The engine adds the offset back to the
+    /// intercept, adjusted means, fitted values and every other estimate on the response
+    /// scale (differences, slopes, sums of squares and residuals do not change), so that
+    /// large responses such as 1000000000000.4 keep the digits that differ between rows.
+    /// In a model without an intercept the offset is folded into the values before fitting.
+    pub response_offset: f64,
 }
 
 /// Which kind of sums of squares an analysis-of-variance table holds.

@@ -171,6 +171,7 @@ fn reference_spec(rows: &[(&str, &str, f64, f64)], terms: Vec<TermSpec>) -> Mode
         terms,
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
+        response_offset: 0.0,
     }
 }
 
@@ -799,6 +800,7 @@ fn no_panic_on_degenerate_inputs() {
             terms,
             intercept: next(3) != 0,
             row_numbers: (0..n).collect(),
+            response_offset: 0.0,
         };
         if let Ok(f) = fit(&spec) {
             let _ = f.summary();
@@ -887,6 +889,7 @@ fn nist_anova(name: &str, exact_shift: bool) -> f64 {
         terms: vec![term(&[0])],
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
+        response_offset: 0.0,
     };
     let f = fit(&spec).expect("NIST anova fits");
     let a = f.anova(SsType::I).expect("anova");
@@ -939,6 +942,7 @@ fn nist_norris() {
         terms: vec![term(&[0])],
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
+        response_offset: 0.0,
     };
     let f = fit(&spec).expect("Norris fits");
     let c = f.coefficients(0.95);
@@ -1113,6 +1117,7 @@ fn design_fixtures() {
                 terms,
                 intercept: true,
                 row_numbers: (2..rows.len() + 2).collect(),
+                response_offset: 0.0,
             };
             let f = fit(&spec).expect("fixture model fits");
             let ctx = format!("d{d} {}", m["terms"]);
@@ -1372,6 +1377,7 @@ fn textbook_ancova_examples() {
             terms: vec![term(&[0]), term(&[1])],
             intercept: true,
             row_numbers: (2..rows.len() + 2).collect(),
+            response_offset: 0.0,
         };
         let f = fit(&spec).expect("fit");
         let c = &js["computed"];
@@ -1404,4 +1410,157 @@ fn textbook_ancova_examples() {
             );
         }
     }
+}
+
+// ---- Response offsets ----
+
+/// The reference ANCOVA (a, b, a by b, x) with the response given as `offset + y`.
+fn offset_spec(offset: f64, intercept: bool) -> ModelSpec {
+    let mut s = reference_spec(
+        DATA,
+        vec![term(&[0]), term(&[1]), term(&[0, 1]), term(&[2])],
+    );
+    s.response_offset = offset;
+    s.intercept = intercept;
+    s
+}
+
+/// `got` is `want + offset` to within one rounding of a number of the size of `got`.
+fn offset_close(got: f64, want: f64, offset: f64, what: &str) {
+    let expected = want + offset;
+    assert!(
+        (got - expected).abs() <= 2.0 * f64::EPSILON * expected.abs().max(1.0),
+        "{what}: got {got}, expected {expected}"
+    );
+}
+
+#[test]
+fn response_offset_leaves_tests_alone_and_moves_estimates() {
+    // Self-consistency: a response given as (offset 1e12, residuals y) is the response
+    // 1e12 + y; sums of squares, F and slopes are those of y, and every estimate on the
+    // response scale (intercept, adjusted means, fitted values) moves by exactly 1e12.
+    let offset = 1e12;
+    let direct = fit(&offset_spec(0.0, true)).expect("fit");
+    let shifted = fit(&offset_spec(offset, true)).expect("fit with offset");
+    for ty in [SsType::I, SsType::II, SsType::III] {
+        let a = direct.anova(ty).expect("anova");
+        let b = shifted.anova(ty).expect("anova with offset");
+        for (x, y) in a.rows.iter().zip(&b.rows) {
+            close(y.ss, x.ss, 1e-13, "SS with offset");
+            close(
+                y.f.unwrap_or(f64::NAN),
+                x.f.unwrap_or(f64::NAN),
+                1e-13,
+                "F with offset",
+            );
+        }
+        close(b.residual_ss, a.residual_ss, 1e-13, "RSS with offset");
+        close(b.total_ss, a.total_ss, 1e-13, "TSS with offset");
+    }
+    let (s0, s1) = (direct.summary(), shifted.summary());
+    close(s1.r_squared, s0.r_squared, 1e-13, "R^2 with offset");
+    close(s1.sigma, s0.sigma, 1e-13, "sigma with offset");
+    let (c0, c1) = (direct.coefficients(0.95), shifted.coefficients(0.95));
+    offset_close(c1[0].estimate, c0[0].estimate, offset, "intercept");
+    close(c1[0].se, c0[0].se, 1e-13, "intercept SE");
+    for (x, y) in c0.iter().zip(&c1).skip(1) {
+        close(
+            y.estimate,
+            x.estimate,
+            1e-13,
+            &format!("coefficient {}", x.name),
+        );
+    }
+    let m0 = direct.means("a", &[], 0.95).expect("means");
+    let m1 = shifted.means("a", &[], 0.95).expect("means with offset");
+    for (x, y) in m0.iter().zip(&m1) {
+        offset_close(y.mean, x.mean, offset, "adjusted mean");
+        offset_close(y.lower, x.lower, offset, "lower limit");
+        close(y.se, x.se, 1e-13, "adjusted mean SE");
+    }
+    let p0 = direct.pairs("a", &[], Adjust::Tukey, 0.95).expect("pairs");
+    let p1 = shifted
+        .pairs("a", &[], Adjust::Tukey, 0.95)
+        .expect("pairs with offset");
+    for (x, y) in p0.iter().zip(&p1) {
+        close(y.estimate, x.estimate, 1e-13, "pair difference");
+    }
+    let (d0, d1) = (direct.diagnostics(), shifted.diagnostics());
+    for (k, (x, y)) in d0.fitted.iter().zip(&d1.fitted).enumerate() {
+        offset_close(*y, *x, offset, "fitted value");
+        close(d1.residuals[k], d0.residuals[k], 1e-12, "residual");
+    }
+    // Same response for compare(): the offset fit against itself nests, against the
+    // direct values (a different response) it does not.
+    let small = {
+        let mut s = offset_spec(offset, true);
+        s.terms.truncate(2);
+        fit(&s).expect("small fit")
+    };
+    assert!(compare(&small, &shifted).is_ok());
+    assert_eq!(
+        compare(&small, &direct).err(),
+        Some(ModelError::DifferentResponse)
+    );
+}
+
+#[test]
+fn response_offset_keeps_digits_a_plain_response_loses() {
+    // Self-consistency: responses 1000000000000 + small values, given directly as doubles,
+    // carry an error of up to 6e-5 each; given as offset plus residuals, the sums of
+    // squares agree with those of the small values to rounding.
+    let direct = fit(&offset_spec(0.0, true)).expect("fit");
+    let mut s = offset_spec(0.0, true);
+    if let Var::Numeric { values, .. } = &mut s.response {
+        for v in values.iter_mut() {
+            *v += 1e12;
+        }
+    }
+    let plain = fit(&s).expect("fit of large values");
+    let with_offset = fit(&offset_spec(1e12, true)).expect("fit with offset");
+    let rss = direct.summary().rss;
+    assert!(
+        rel(plain.summary().rss, rss) > 1e-9,
+        "plain doubles lost digits"
+    );
+    close(with_offset.summary().rss, rss, 1e-13, "RSS with offset");
+}
+
+#[test]
+fn response_offset_without_intercept_is_folded_in() {
+    // Self-consistency: without an intercept, (offset 1000, residuals y) fits exactly as the
+    // values 1000 + y computed the same way.
+    let offset = 1000.0;
+    let shifted = fit(&offset_spec(offset, false)).expect("fit with offset");
+    let mut s = offset_spec(0.0, false);
+    if let Var::Numeric { values, .. } = &mut s.response {
+        for v in values.iter_mut() {
+            *v += offset;
+        }
+    }
+    let plain = fit(&s).expect("fit of shifted values");
+    assert_eq!(shifted.summary(), plain.summary());
+    assert_eq!(shifted.coefficients(0.95), plain.coefficients(0.95));
+    assert_eq!(shifted.spec().response_offset, 0.0);
+    // The folded response is the same response as (offset, y) kept apart: a model with an
+    // intercept and fewer terms nests in it (full coding of `a` spans the intercept).
+    let small = {
+        let mut s = offset_spec(offset, true);
+        s.terms.truncate(2);
+        fit(&s).expect("small fit")
+    };
+    assert!(
+        compare(&small, &shifted).is_ok(),
+        "{:?}",
+        compare(&small, &shifted)
+    );
+}
+
+#[test]
+fn non_finite_response_offset_is_refused() {
+    let err = fit(&offset_spec(f64::INFINITY, true)).err();
+    assert!(
+        matches!(err, Some(ModelError::NonFiniteValue { .. })),
+        "{err:?}"
+    );
 }

@@ -29,6 +29,26 @@ pub fn escape(text: &str) -> String {
     out
 }
 
+/// Plain text from covey's own escaped Markdown, for the terminal: drops
+/// the backslash before escaped punctuation.
+pub fn plain(markdown: &str) -> String {
+    let mut out = String::with_capacity(markdown.len());
+    let mut chars = markdown.chars().peekable();
+    while let Some(c) = chars.next() {
+        if c == '\\' {
+            if let Some(&n) = chars.peek() {
+                if n.is_ascii_punctuation() {
+                    out.push(n);
+                    chars.next();
+                    continue;
+                }
+            }
+        }
+        out.push(c);
+    }
+    out
+}
+
 /// Inline code for a name the user wrote (a column, a level, a file): the
 /// fence is longer than any backtick run inside, so any name survives.
 pub fn code(text: &str) -> String {

@@ -20,7 +20,13 @@ impl Session<'_> {
     pub(super) fn model(&mut self, decl: &ModelDecl, span: Span) -> Outcome {
         let set = self.current(span)?;
         let ridx = column_index(set, &decl.response)?;
-        let response = numeric_values(set, ridx, &decl.response)?.to_vec();
+        let mut response = numeric_values(set, ridx, &decl.response)?.to_vec();
+        // Long cells (e.g. 1000000000000.4) come with exact residuals about an offset.
+        let mut response_offset = 0.0;
+        if let Some(e) = set.columns.get(ridx).and_then(|c| c.exact.as_deref()) {
+            response.clone_from(&e.residuals);
+            response_offset = e.offset;
+        }
         let mut vars: Vec<Var> = Vec::new();
         let mut var_names: Vec<String> = Vec::new();
         let mut terms = Vec::new();
@@ -89,6 +95,7 @@ impl Session<'_> {
             terms,
             intercept: decl.intercept,
             row_numbers: set.row_numbers.clone(),
+            response_offset,
         };
         let term_span =
             |i: Option<usize>| i.and_then(|i| decl.terms.get(i)).map_or(span, |t| t.span);
