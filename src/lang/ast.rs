@@ -240,3 +240,22 @@ pub enum TableRequest {
         alpha: Option<Spanned<f64>>,
     },
 }
+
+impl TableRequest {
+    /// The model a table request is about (the first one for `compare`);
+    /// empty for `summary`, which is about a column of the data.
+    pub fn model_name(&self) -> &str {
+        match self {
+            TableRequest::Summary { .. } => "",
+            TableRequest::Fit { model }
+            | TableRequest::Coefficients { model, .. }
+            | TableRequest::Anova { model, .. }
+            | TableRequest::Means { model, .. }
+            | TableRequest::Pairs { model, .. }
+            | TableRequest::Slopes { model, .. }
+            | TableRequest::Contrast { model, .. }
+            | TableRequest::Regions { model, .. } => &model.value,
+            TableRequest::Compare { first, .. } => &first.value,
+        }
+    }
+}

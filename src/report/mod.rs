@@ -102,6 +102,9 @@ pub struct Table {
     pub columns: Vec<Column>,
     pub rows: Vec<Vec<Cell>>,
     pub notes: Vec<String>,
+    /// The model (or data set) the table describes, when it has one; live
+    /// references in prose find tables by it.
+    pub subject: Option<String>,
 }
 
 impl Table {
@@ -112,6 +115,7 @@ impl Table {
             columns,
             rows: Vec::new(),
             notes: Vec::new(),
+            subject: None,
         }
     }
 

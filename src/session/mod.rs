@@ -78,7 +78,16 @@ impl<'w> Session<'w> {
                 TableRequest::Summary { column, by } => {
                     self.summary(column, by.as_ref(), stmt.span)
                 }
-                other => self.model_table(other),
+                other => {
+                    let mut items = self.model_table(other)?;
+                    let subject = other.model_name().to_string();
+                    for it in &mut items {
+                        if let Item::Table(t) = it {
+                            t.subject = Some(subject.clone());
+                        }
+                    }
+                    Ok(items)
+                }
             },
         }
     }
