@@ -23,6 +23,10 @@ pub struct RenderOptions {
     pub allow_outside: bool,
     /// Also write a self-contained HTML page beside each rendering.
     pub html: bool,
+    /// Render past a failed gate, marking it at the top of the document.
+    pub override_gates: bool,
+    /// Parameter values (`--set NAME=VALUE`).
+    pub params: Vec<(String, String)>,
 }
 
 /// Options of `covey check`.
@@ -31,6 +35,10 @@ pub struct CheckOptions {
     /// Where the renderings were written, if not beside their sources.
     pub out_dir: Option<PathBuf>,
     pub allow_outside: bool,
+    /// Parameter values the renderings were made with (`--set NAME=VALUE`).
+    pub params: Vec<(String, String)>,
+    /// The renderings were made past failed gates.
+    pub override_gates: bool,
 }
 
 /// How a command ended, which decides the exit code.
@@ -72,7 +80,7 @@ fn display_name(doc: &Path) -> String {
 }
 
 /// Runs one document from disk.
-fn run_file(doc: &Path, keep_going: bool, allow_outside: bool) -> Result<Run, Vec<String>> {
+fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Result<Run, Vec<String>> {
     let bytes =
         std::fs::read(doc).map_err(|e| vec![format!("{}: cannot read: {e}", doc.display())])?;
     let text = String::from_utf8(bytes).map_err(|e| {
@@ -87,8 +95,7 @@ fn run_file(doc: &Path, keep_going: bool, allow_outside: bool) -> Result<Run, Ve
         .filter(|p| !p.as_os_str().is_empty())
         .unwrap_or(Path::new("."));
     let world = FsWorld::new(folder, allow_outside);
-    pipeline::run(&text, &display_name(doc), &world, RunOptions { keep_going })
-        .map_err(|u| u.errors)
+    pipeline::run(&text, &display_name(doc), &world, opts).map_err(|u| u.errors)
 }
 
 /// Renders every document named by `paths` (files, or folders of `*.md`).
@@ -111,7 +118,12 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
         return report;
     }
     for doc in &docs {
-        let run = match run_file(doc, opts.keep_going, opts.allow_outside) {
+        let run_opts = RunOptions {
+            keep_going: opts.keep_going,
+            override_gates: opts.override_gates,
+            params: opts.params.clone(),
+        };
+        let run = match run_file(doc, run_opts, opts.allow_outside) {
             Ok(r) => r,
             Err(errors) => {
                 for e in errors {
@@ -160,6 +172,11 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
         for e in &run.errors {
             report.fail(e.clone());
         }
+        if !run.gates_failed.is_empty() && !opts.override_gates {
+            // A failed gate is the procedure's own "no": exit 1, like a
+            // stale rendering, unless an error already says 2.
+            report.verdict = report.verdict.max(Verdict::Stale);
+        }
         report.lines.push(format!(
             "{}: {} -> {}",
             if run.failed() {
@@ -193,7 +210,12 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         }
     };
     for doc in &docs {
-        let run = match run_file(doc, false, opts.allow_outside) {
+        let run_opts = RunOptions {
+            keep_going: false,
+            override_gates: opts.override_gates,
+            params: opts.params.clone(),
+        };
+        let run = match run_file(doc, run_opts, opts.allow_outside) {
             Ok(r) => r,
             Err(errors) => {
                 for e in errors {

@@ -41,6 +41,12 @@ enum Command {
         /// Also write a self-contained HTML page beside each rendering.
         #[arg(long)]
         html: bool,
+        /// Give a parameter a value for this run (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE", value_parser = parse_setting)]
+        set: Vec<(String, String)>,
+        /// Render past a failed gate; the failure is marked at the top of the document.
+        #[arg(long)]
+        override_gates: bool,
     },
     /// Tell whether the renderings on disk are current (exit 0) or stale (exit 1).
     Check {
@@ -53,7 +59,21 @@ enum Command {
         /// Let `load` read files outside the document's folder.
         #[arg(long)]
         allow_outside: bool,
+        /// The parameter values the renderings were made with (repeatable).
+        #[arg(long = "set", value_name = "NAME=VALUE", value_parser = parse_setting)]
+        set: Vec<(String, String)>,
+        /// The renderings were made with --override-gates.
+        #[arg(long)]
+        override_gates: bool,
     },
+}
+
+/// `NAME=VALUE` of `--set`.
+fn parse_setting(s: &str) -> Result<(String, String), String> {
+    match s.split_once('=') {
+        Some((n, v)) if !n.trim().is_empty() => Ok((n.trim().to_string(), v.to_string())),
+        _ => Err(format!("expected NAME=VALUE, found `{s}`")),
+    }
 }
 
 fn main() -> ExitCode {
@@ -73,6 +93,8 @@ fn main() -> ExitCode {
             keep_going,
             allow_outside,
             html,
+            set,
+            override_gates,
         } => covey::render(
             &paths,
             &RenderOptions {
@@ -82,17 +104,23 @@ fn main() -> ExitCode {
                 keep_going,
                 allow_outside,
                 html,
+                params: set,
+                override_gates,
             },
         ),
         Command::Check {
             paths,
             out,
             allow_outside,
+            set,
+            override_gates,
         } => covey::check(
             &paths,
             &CheckOptions {
                 out_dir: out,
                 allow_outside,
+                params: set,
+                override_gates,
             },
         ),
     };

@@ -10,10 +10,14 @@ use crate::session::Session;
 use crate::world::World;
 
 /// How a run behaves on errors.
-#[derive(Debug, Clone, Copy, Default)]
+#[derive(Debug, Clone, Default)]
 pub struct RunOptions {
     /// Run the remaining blocks after a statement fails.
     pub keep_going: bool,
+    /// Run on past a failed gate, marking it at the top of the document.
+    pub override_gates: bool,
+    /// Parameter values set on the command line (`--set NAME=VALUE`).
+    pub params: Vec<(String, String)>,
 }
 
 /// The result of running a document.
@@ -31,6 +35,8 @@ pub struct Run {
     pub inputs: Vec<InputRecord>,
     /// Figure files as (path relative to the rendered document, SVG text).
     pub figures: Vec<(String, String)>,
+    /// The gates that did not hold, as sentences.
+    pub gates_failed: Vec<String>,
     /// The parsed document (the source without regions, and its blocks).
     pub document: Document,
 }
@@ -69,12 +75,37 @@ pub fn run(
         diagnostic::render(file_name, text, &d)
     };
 
+    // Parameters first, wherever they stand: `@NAME` may be used in any
+    // block, and `--set` overrides the declared defaults.
+    let mut errors = Vec::new();
+    let (params, param_notes) = match parameters(&doc, &opts.params) {
+        Ok(p) => p,
+        Err(d) => {
+            return Err(Unrunnable {
+                errors: d.iter().map(&show).collect(),
+            })
+        }
+    };
+    let unknown: Vec<&str> = opts
+        .params
+        .iter()
+        .map(|(n, _)| n.as_str())
+        .filter(|n| !params.contains_key(*n))
+        .collect();
+    if !unknown.is_empty() {
+        return Err(Unrunnable {
+            errors: unknown
+                .iter()
+                .map(|n| format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)"))
+                .collect(),
+        });
+    }
+
     // Parse every block first: a syntax error anywhere stops the render
     // before anything runs or is written.
     let mut blocks: Vec<Vec<Statement>> = Vec::with_capacity(doc.blocks.len());
-    let mut errors = Vec::new();
     for block in &doc.blocks {
-        match lang::parse_block(block_lines(&doc.source, block)) {
+        match lang::parse_block_with(block_lines(&doc.source, block), &params) {
             Ok(s) => blocks.push(s),
             Err(errs) => {
                 for e in errs {
@@ -92,6 +123,7 @@ pub fn run(
     let mut outputs: Vec<Output> = Vec::new();
     let mut bodies = Vec::with_capacity(blocks.len());
     let mut stopped = false;
+    let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
     let mut figures = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
@@ -108,6 +140,17 @@ pub fn run(
         for stmt in statements {
             let items = match session.run(stmt) {
                 Ok(mut items) => {
+                    for it in &items {
+                        if let Item::GateFailed(g) = it {
+                            gates_failed.push(format!("block {}: {}", bi + 1, markdown::plain(g)));
+                            let (line, _) =
+                                diagnostic::line_col(text, shift.offset(stmt.span.start));
+                            warnings.push(format!("{file_name}:{line}: {}", markdown::plain(g)));
+                            if !opts.override_gates {
+                                stopped = true;
+                            }
+                        }
+                    }
                     for it in &mut items {
                         if let Item::Figure(f) = it {
                             figure_count += 1;
@@ -163,7 +206,19 @@ pub fn run(
     }
 
     let inputs = session.inputs().to_vec();
-    let provenance = markdown::provenance(env!("CARGO_PKG_VERSION"), file_name, &inputs, &[]);
+    let mut notices = Vec::new();
+    if !gates_failed.is_empty() && opts.override_gates {
+        notices.push(format!(
+            "> **STOP: this report was rendered past a failed gate** (--override-gates). {}",
+            gates_failed
+                .iter()
+                .map(|g| markdown::escape(g))
+                .collect::<Vec<_>>()
+                .join(" ")
+        ));
+    }
+    notices.extend(param_notes);
+    let provenance = markdown::provenance(env!("CARGO_PKG_VERSION"), file_name, &inputs, &notices);
     let rendered = document::assemble(&doc, &provenance, &bodies);
     let json = json::document(&inputs, &outputs);
     Ok(Run {
@@ -173,8 +228,74 @@ pub fn run(
         warnings,
         inputs,
         figures,
+        gates_failed,
         document: doc,
     })
+}
+
+/// The document's parameters with their values in force, and a sentence for
+/// the provenance region listing them. A parameter declared twice is an
+/// error at its second declaration.
+fn parameters(
+    doc: &Document,
+    set: &[(String, String)],
+) -> Result<(lang::Params, Vec<String>), Vec<Diagnostic>> {
+    let mut params = lang::Params::new();
+    let mut shown = Vec::new();
+    let mut errors = Vec::new();
+    for block in &doc.blocks {
+        for (line, offset, no) in block_lines(&doc.source, block) {
+            if !line.trim_start().starts_with("param") {
+                continue;
+            }
+            if let Ok(Some(Statement {
+                kind: lang::StatementKind::Param { name, value },
+                ..
+            })) = lang::parse_line(line, offset, no)
+            {
+                if params.contains_key(&name.value) {
+                    errors.push(
+                        Diagnostic::new(
+                            name.span,
+                            format!("parameter `{}` is declared twice", name.value),
+                        )
+                        .label("declared again")
+                        .help("declare each parameter once"),
+                    );
+                    continue;
+                }
+                let (value, from) = match set.iter().rev().find(|(n, _)| *n == name.value) {
+                    Some((_, v)) => (
+                        match v.parse::<f64>() {
+                            Ok(x) if x.is_finite() => lang::Literal::Number(x, v.clone()),
+                            _ => lang::Literal::Text(v.clone()),
+                        },
+                        "set with --set",
+                    ),
+                    None => (value, "the document's default"),
+                };
+                let text = match &value {
+                    lang::Literal::Number(_, t) => t.clone(),
+                    lang::Literal::Text(t) => format!("\"{t}\""),
+                };
+                shown.push(format!(
+                    "{} = {} ({from})",
+                    markdown::code(&name.value),
+                    markdown::code(&text)
+                ));
+                params.insert(name.value, value);
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(errors);
+    }
+    let notes = if shown.is_empty() {
+        Vec::new()
+    } else {
+        vec![format!("Parameters: {}.", shown.join("; "))]
+    };
+    Ok((params, notes))
 }
 
 /// The lines of a block as (text, document offset, line number), read from

@@ -59,9 +59,11 @@ fn render_fixture(name: &str) {
     let world = FsWorld::new(&dir, false);
     let opts = RunOptions {
         keep_going: name.contains("keep-going"),
+        override_gates: name.contains("override"),
+        params: Vec::new(),
     };
     let file = format!("{name}.md");
-    match pipeline::run(&text, &file, &world, opts) {
+    match pipeline::run(&text, &file, &world, opts.clone()) {
         Ok(run) => {
             expect_file(&dir.join(format!("{name}.rendered.md")), &run.rendered);
             let errors_path = dir.join(format!("{name}.errors.txt"));

@@ -66,6 +66,63 @@ pub enum StatementKind {
         column: Spanned<String>,
         unit: Spanned<String>,
     },
+    /// `param NAME = VALUE`: a parameter and its default (the value here is
+    /// the one in force, after any `--set`).
+    Param {
+        name: Spanned<String>,
+        value: Literal,
+    },
+    /// `require ...`: a gate that fails the run when it does not hold.
+    Require(Gate),
+    /// `report M ...`: the conventional reporting sentence.
+    Report(ReportRequest),
+}
+
+/// A condition on computed results that must hold.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Gate {
+    /// `require equal slopes M for F [of X] [alpha A]`
+    EqualSlopes {
+        model: Spanned<String>,
+        factor: Spanned<String>,
+        covariate: Option<Spanned<String>>,
+        alpha: Option<Spanned<f64>>,
+    },
+    /// `require normality M [alpha A]`
+    Normality {
+        model: Spanned<String>,
+        alpha: Option<Spanned<f64>>,
+    },
+    /// `require N rows per F`
+    RowsPerLevel {
+        min: Spanned<f64>,
+        factor: Spanned<String>,
+    },
+    /// `require balance X by F [alpha A]`
+    Balance {
+        covariate: Spanned<String>,
+        factor: Spanned<String>,
+        alpha: Option<Spanned<f64>>,
+    },
+}
+
+/// What a `report` sentence is about.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ReportRequest {
+    /// `report M term T [type 1|2|3]`
+    Term {
+        model: Spanned<String>,
+        term: Spanned<String>,
+        kind: SsKind,
+    },
+    /// `report M pairs F between A and B [adjust METHOD]`
+    Pair {
+        model: Spanned<String>,
+        factor: Spanned<String>,
+        first: Spanned<String>,
+        second: Spanned<String>,
+        adjust: AdjustMethod,
+    },
 }
 
 /// The figures of `plot`.

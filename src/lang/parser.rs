@@ -28,6 +28,20 @@ pub fn parse_line(
     offset: usize,
     line_no: usize,
 ) -> Result<Option<Statement>, SyntaxError> {
+    parse_line_with(text, offset, line_no, &Params::new())
+}
+
+/// Parameter values by name, for `@NAME` references.
+pub type Params = std::collections::BTreeMap<String, Literal>;
+
+/// [`parse_line`] with the document's parameters, so that `@NAME`
+/// references resolve (an unknown one is a syntax error at the reference).
+pub fn parse_line_with(
+    text: &str,
+    offset: usize,
+    line_no: usize,
+    params: &Params,
+) -> Result<Option<Statement>, SyntaxError> {
     let mut pairs =
         CoveyParser::parse(Rule::line, text).map_err(|e| syntax_error(&e, text, offset))?;
     let Some(line) = pairs.next() else {
@@ -36,7 +50,7 @@ pub fn parse_line(
     let Some(stmt) = line.into_inner().find(|p| p.as_rule() != Rule::EOI) else {
         return Ok(None);
     };
-    let b = Builder { offset };
+    let b = Builder { offset, params };
     let span = b.span(&stmt);
     let kind = b.statement(stmt)?;
     Ok(Some(Statement {
@@ -77,7 +91,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot or unit"
+                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot, unit, param, require or report"
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
@@ -197,6 +211,28 @@ fn describe(rule: Rule) -> &'static str {
         Rule::kw_check => "`check`",
         Rule::kw_plot => "`plot`",
         Rule::kw_unit => "`unit`",
+        Rule::kw_param => "`param`",
+        Rule::kw_require => "`require`",
+        Rule::kw_equal => "`equal`",
+        Rule::kw_normality => "`normality`",
+        Rule::kw_rows => "`rows`",
+        Rule::kw_per => "`per`",
+        Rule::kw_balance => "`balance`",
+        Rule::kw_report => "`report`",
+        Rule::kw_term => "`term`",
+        Rule::param_ref => "a parameter such as `@alpha`",
+        Rule::text => "a double-quoted text or a parameter",
+        Rule::num => "a number or a parameter",
+        Rule::require_stmt
+        | Rule::require_slopes
+        | Rule::require_normality
+        | Rule::require_rows
+        | Rule::require_balance => {
+            "a gate: `equal slopes M for F`, `normality M`, `N rows per F` or `balance X by F`"
+        }
+        Rule::report_stmt | Rule::report_term | Rule::report_pair => {
+            "`term NAME` or `pairs F between A and B`"
+        }
         Rule::plot_kind => "a figure kind (lines, residuals, quantiles, means, influence, groups)",
         _ => "more text",
     }
@@ -204,8 +240,9 @@ fn describe(rule: Rule) -> &'static str {
 
 /// Builds AST nodes from pest pairs, turning line offsets into document
 /// offsets.
-struct Builder {
+struct Builder<'p> {
     offset: usize,
+    params: &'p Params,
 }
 
 fn is_keyword(rule: Rule) -> bool {
@@ -252,6 +289,15 @@ fn is_keyword(rule: Rule) -> bool {
             | Rule::kw_check
             | Rule::kw_plot
             | Rule::kw_unit
+            | Rule::kw_param
+            | Rule::kw_require
+            | Rule::kw_equal
+            | Rule::kw_normality
+            | Rule::kw_rows
+            | Rule::kw_per
+            | Rule::kw_balance
+            | Rule::kw_report
+            | Rule::kw_term
     )
 }
 
@@ -275,7 +321,7 @@ fn is_punctuation(rule: Rule) -> bool {
     )
 }
 
-impl Builder {
+impl Builder<'_> {
     fn span(&self, pair: &Pair<'_, Rule>) -> Span {
         let s = pair.as_span();
         Span {
@@ -297,30 +343,35 @@ impl Builder {
         let mut kids = children(pair).into_iter();
         Ok(match rule {
             Rule::load_stmt => {
-                let path = next(&mut kids).map(|p| self.string(p))?;
+                let path = self.string(next(&mut kids)?)?;
                 let name = kids.next().map(|p| self.ident(p));
                 StatementKind::Load { path, name }
             }
             Rule::missing_stmt => StatementKind::Missing {
-                markers: kids.map(|p| self.string(p).value).collect(),
+                markers: kids
+                    .map(|p| self.string(p).map(|s| s.value))
+                    .collect::<Result<_, _>>()?,
             },
             Rule::use_stmt => StatementKind::Use {
                 name: self.ident(next(&mut kids)?),
             },
             Rule::factor_stmt => {
                 let column = self.name(next(&mut kids)?);
-                let levels = kids.next().map(|list| {
-                    children(list)
-                        .into_iter()
-                        .map(|v| {
-                            let span = self.span(&v);
-                            Spanned {
-                                value: self.literal(v).as_text().to_string(),
-                                span,
-                            }
-                        })
-                        .collect()
-                });
+                let levels = kids
+                    .next()
+                    .map(|list| {
+                        children(list)
+                            .into_iter()
+                            .map(|v| {
+                                let span = self.span(&v);
+                                Ok(Spanned {
+                                    value: self.literal(v)?.as_text().to_string(),
+                                    span,
+                                })
+                            })
+                            .collect::<Result<Vec<_>, SyntaxError>>()
+                    })
+                    .transpose()?;
                 StatementKind::Factor { column, levels }
             }
             Rule::keep_stmt => StatementKind::Keep {
@@ -331,12 +382,66 @@ impl Builder {
             },
             Rule::model_stmt => StatementKind::Model(self.model(kids)?),
             Rule::table_stmt => StatementKind::Table(self.table(next(&mut kids)?)?),
+            Rule::param_stmt => {
+                let name = self.ident(next(&mut kids)?);
+                let v = next(&mut kids)?;
+                StatementKind::Param {
+                    name,
+                    value: self.literal(v)?,
+                }
+            }
+            Rule::require_stmt => StatementKind::Require(self.gate(next(&mut kids)?)?),
+            Rule::report_stmt => {
+                let model = self.ident(next(&mut kids)?);
+                let what = next(&mut kids)?;
+                let wrule = what.as_rule();
+                let parts = children(what.clone());
+                let find = |r: Rule| parts.iter().find(|p| p.as_rule() == r).cloned();
+                let names: Vec<Pair<'_, Rule>> = parts
+                    .iter()
+                    .filter(|p| matches!(p.as_rule(), Rule::name | Rule::value))
+                    .cloned()
+                    .collect();
+                let text_of = |p: Option<&Pair<'_, Rule>>| -> Result<Spanned<String>, SyntaxError> {
+                    let p = p.cloned().ok_or_else(missing_part)?;
+                    Ok(Spanned {
+                        span: self.span(&p),
+                        value: self.literal(p)?.as_text().to_string(),
+                    })
+                };
+                StatementKind::Report(if wrule == Rule::report_term {
+                    ReportRequest::Term {
+                        model,
+                        term: self.name(names.first().cloned().ok_or_else(missing_part)?),
+                        kind: match find(Rule::ss_type)
+                            .map(|p| p.as_str().to_string())
+                            .as_deref()
+                        {
+                            Some("1") => SsKind::Sequential,
+                            Some("3") => SsKind::Marginal,
+                            _ => SsKind::Partial,
+                        },
+                    }
+                } else {
+                    ReportRequest::Pair {
+                        model,
+                        factor: self.name(names.first().cloned().ok_or_else(missing_part)?),
+                        first: text_of(names.get(1))?,
+                        second: text_of(names.get(2))?,
+                        adjust: adjust_of(
+                            find(Rule::adjust_method)
+                                .map(|p| p.as_str().to_string())
+                                .as_deref(),
+                        ),
+                    }
+                })
+            }
             Rule::check_stmt => StatementKind::Check {
                 model: self.ident(next(&mut kids)?),
             },
             Rule::unit_stmt => StatementKind::Unit {
                 column: self.name(next(&mut kids)?),
-                unit: self.string(next(&mut kids)?),
+                unit: self.string(next(&mut kids)?)?,
             },
             Rule::plot_stmt => {
                 // `of` and `for` are dropped as keywords: tell the two
@@ -510,16 +615,11 @@ impl Builder {
                 model: first_ident()?,
                 factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
                 at,
-                adjust: match find(Rule::adjust_method)
-                    .map(|p| p.as_str().to_string())
-                    .as_deref()
-                {
-                    Some("holm") => AdjustMethod::Holm,
-                    Some("bonferroni") => AdjustMethod::Bonferroni,
-                    Some("sidak") => AdjustMethod::Sidak,
-                    Some("none") => AdjustMethod::None,
-                    _ => AdjustMethod::Tukey,
-                },
+                adjust: adjust_of(
+                    find(Rule::adjust_method)
+                        .map(|p| p.as_str().to_string())
+                        .as_deref(),
+                ),
                 level,
             },
             Rule::slopes_table => {
@@ -544,7 +644,7 @@ impl Builder {
             Rule::contrast_table => {
                 let numbers: Vec<Pair<'_, Rule>> = kids
                     .iter()
-                    .filter(|p| p.as_rule() == Rule::number)
+                    .filter(|p| p.as_rule() == Rule::num)
                     .cloned()
                     .collect();
                 let weights = numbers
@@ -572,11 +672,13 @@ impl Builder {
             Rule::regions_table => {
                 let between = match (plain.get(3), plain.get(4)) {
                     (Some(a), Some(b)) => {
-                        let text = |p: &Pair<'_, Rule>| Spanned {
-                            value: self.literal(p.clone()).as_text().to_string(),
-                            span: self.span(p),
+                        let text = |p: &Pair<'_, Rule>| -> Result<Spanned<String>, SyntaxError> {
+                            Ok(Spanned {
+                                value: self.literal(p.clone())?.as_text().to_string(),
+                                span: self.span(p),
+                            })
                         };
-                        Some((text(a), text(b)))
+                        Some((text(a)?, text(b)?))
                     }
                     _ => None,
                 };
@@ -590,6 +692,57 @@ impl Builder {
                         .transpose()?,
                 }
             }
+            r => unreachable_rule(r)?,
+        })
+    }
+
+    fn gate(&self, pair: Pair<'_, Rule>) -> Result<Gate, SyntaxError> {
+        let rule = pair.as_rule();
+        let kids = children(pair);
+        let alpha = kids
+            .iter()
+            .find(|p| p.as_rule() == Rule::alpha_opt)
+            .cloned()
+            .map(|p| self.option_number(p))
+            .transpose()?;
+        let names: Vec<Pair<'_, Rule>> = kids
+            .iter()
+            .filter(|p| matches!(p.as_rule(), Rule::name | Rule::ident))
+            .cloned()
+            .collect();
+        let name_at = |i: usize| -> Result<Spanned<String>, SyntaxError> {
+            Ok(self.name(names.get(i).cloned().ok_or_else(missing_part)?))
+        };
+        Ok(match rule {
+            Rule::require_slopes => Gate::EqualSlopes {
+                model: name_at(0)?,
+                factor: name_at(1)?,
+                covariate: names.get(2).cloned().map(|p| self.name(p)),
+                alpha,
+            },
+            Rule::require_normality => Gate::Normality {
+                model: name_at(0)?,
+                alpha,
+            },
+            Rule::require_rows => {
+                let n = kids
+                    .iter()
+                    .find(|p| p.as_rule() == Rule::num)
+                    .cloned()
+                    .ok_or_else(missing_part)?;
+                Gate::RowsPerLevel {
+                    min: Spanned {
+                        value: self.number(&n)?,
+                        span: self.span(&n),
+                    },
+                    factor: name_at(0)?,
+                }
+            }
+            Rule::require_balance => Gate::Balance {
+                covariate: name_at(0)?,
+                factor: name_at(1)?,
+                alpha,
+            },
             r => unreachable_rule(r)?,
         })
     }
@@ -660,7 +813,7 @@ impl Builder {
                     column,
                     op,
                     value: Spanned {
-                        value: self.literal(v),
+                        value: self.literal(v)?,
                         span,
                     },
                 })
@@ -672,25 +825,45 @@ impl Builder {
                     .into_iter()
                     .map(|v| {
                         let span = self.span(&v);
-                        Spanned {
-                            value: self.literal(v),
+                        Ok(Spanned {
+                            value: self.literal(v)?,
                             span,
-                        }
+                        })
                     })
-                    .collect();
+                    .collect::<Result<Vec<_>, SyntaxError>>()?;
                 Ok(Condition::In { column, values })
             }
             r => unreachable_rule(r),
         }
     }
 
-    fn literal(&self, pair: Pair<'_, Rule>) -> Literal {
+    /// The value of `@NAME`, or an error at the reference.
+    fn param(&self, pair: &Pair<'_, Rule>) -> Result<Literal, SyntaxError> {
+        let name = pair.as_str().trim_start_matches('@');
+        self.params.get(name).cloned().ok_or_else(|| {
+            let known: Vec<&str> = self.params.keys().map(String::as_str).collect();
+            self.error(
+                pair,
+                if known.is_empty() {
+                    format!("there is no parameter `{name}`; declare it with `param {name} = VALUE`")
+                } else {
+                    format!(
+                        "there is no parameter `{name}` (the document declares {}); declare it with `param {name} = VALUE`",
+                        known.join(", ")
+                    )
+                },
+            )
+        })
+    }
+
+    fn literal(&self, pair: Pair<'_, Rule>) -> Result<Literal, SyntaxError> {
         let inner = if pair.as_rule() == Rule::value {
             pair.into_inner().next()
         } else {
             Some(pair)
         };
-        match inner {
+        Ok(match inner {
+            Some(p) if p.as_rule() == Rule::param_ref => self.param(&p)?,
             Some(p) if p.as_rule() == Rule::number => {
                 let text = p.as_str().to_string();
                 match text.parse::<f64>() {
@@ -701,21 +874,46 @@ impl Builder {
             Some(p) if p.as_rule() == Rule::string => Literal::Text(unescape(p.as_str())),
             Some(p) => Literal::Text(p.as_str().to_string()),
             None => Literal::Text(String::new()),
-        }
+        })
     }
 
     fn number(&self, pair: &Pair<'_, Rule>) -> Result<f64, SyntaxError> {
+        if pair.as_rule() == Rule::num {
+            let inner = pair.clone().into_inner().next().ok_or_else(missing_part)?;
+            return self.number(&inner);
+        }
+        if pair.as_rule() == Rule::param_ref {
+            return match self.param(pair)? {
+                Literal::Number(v, _) => Ok(v),
+                Literal::Text(t) => Err(self.error(
+                    pair,
+                    format!(
+                        "parameter `{}` holds the text \"{t}\", but a number is needed here",
+                        pair.as_str().trim_start_matches('@')
+                    ),
+                )),
+            };
+        }
         match pair.as_str().parse::<f64>() {
             Ok(v) if v.is_finite() => Ok(v),
             _ => Err(self.error(pair, format!("`{}` is not a finite number", pair.as_str()))),
         }
     }
 
-    fn string(&self, pair: Pair<'_, Rule>) -> Spanned<String> {
-        Spanned {
-            span: self.span(&pair),
-            value: unescape(pair.as_str()),
-        }
+    /// A quoted text, or a parameter used in its place.
+    fn string(&self, pair: Pair<'_, Rule>) -> Result<Spanned<String>, SyntaxError> {
+        let span = self.span(&pair);
+        let inner = if pair.as_rule() == Rule::text {
+            pair.into_inner().next().ok_or_else(missing_part)?
+        } else {
+            pair
+        };
+        let value = if inner.as_rule() == Rule::param_ref {
+            self.param(&inner)?.as_text().to_string()
+        } else {
+            unescape(inner.as_str())
+        };
+        Ok(Spanned { span, value })
     }
 
     fn ident(&self, pair: Pair<'_, Rule>) -> Spanned<String> {
@@ -739,6 +937,16 @@ impl Builder {
             None => String::new(),
         };
         Spanned { value, span }
+    }
+}
+
+fn adjust_of(word: Option<&str>) -> AdjustMethod {
+    match word {
+        Some("holm") => AdjustMethod::Holm,
+        Some("bonferroni") => AdjustMethod::Bonferroni,
+        Some("sidak") => AdjustMethod::Sidak,
+        Some("none") => AdjustMethod::None,
+        _ => AdjustMethod::Tukey,
     }
 }
 

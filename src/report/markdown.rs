@@ -152,6 +152,7 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
             Item::Table(t) => out.push_str(&table(t)),
             Item::Text(s) => out.push_str(&format!("{s}\n")),
             Item::Warning(s) => out.push_str(&format!("**Warning:** {s}\n")),
+            Item::GateFailed(s) => out.push_str(&format!("> **STOP.** {s}\n")),
             Item::Figure(f) => out.push_str(&format!(
                 "**{}**\n\n![{}]({})\n",
                 f.caption,

@@ -140,6 +140,8 @@ pub enum Item {
     },
     /// A figure, drawn as SVG.
     Figure(Figure),
+    /// A gate of the procedure that did not hold.
+    GateFailed(String),
 }
 
 /// A figure: its SVG text and the words that describe it.

@@ -8,6 +8,7 @@ mod check_statements;
 mod data_statements;
 mod model_statements;
 mod plot_statements;
+mod procedure_statements;
 
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
@@ -74,6 +75,9 @@ impl<'w> Session<'w> {
                 factor,
             } => self.plot(*kind, model, covariate.as_ref(), factor.as_ref()),
             StatementKind::Unit { column, unit } => self.unit(column, unit),
+            StatementKind::Param { name, value } => self.param(name, value),
+            StatementKind::Require(gate) => self.require(gate),
+            StatementKind::Report(request) => self.report(request),
             StatementKind::Table(request) => match request {
                 TableRequest::Summary { column, by } => {
                     self.summary(column, by.as_ref(), stmt.span)

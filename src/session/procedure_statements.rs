@@ -1,0 +1,323 @@
+//! Handlers of the statements that make a document a procedure: `param`,
+//! the gates of `require`, and the reporting sentences of `report`.
+
+use super::data_statements::{column_index, numeric_values};
+use super::{Outcome, Session};
+use crate::data::Values;
+use crate::diagnostic::Diagnostic;
+use crate::lang::{AdjustMethod, Gate, Literal, ReportRequest, Spanned, SsKind};
+use crate::model::{self, Adjust, ModelSpec, Part, SsType, TermSpec, Transform, Var};
+use crate::report::markdown::code;
+use crate::report::number::p_value;
+use crate::report::Item;
+
+/// Significance level of a gate that gives none: the conventional 5%.
+const DEFAULT_GATE_ALPHA: f64 = 0.05;
+
+impl Session<'_> {
+    pub(super) fn param(&mut self, name: &Spanned<String>, value: &Literal) -> Outcome {
+        let shown = match value {
+            Literal::Number(_, text) => text.clone(),
+            Literal::Text(t) => format!("\"{t}\""),
+        };
+        Ok(vec![Item::Text(format!(
+            "Parameter {} is {} in this run.",
+            code(&name.value),
+            code(&shown)
+        ))])
+    }
+
+    pub(super) fn require(&mut self, gate: &Gate) -> Outcome {
+        let alpha_of = |a: &Option<Spanned<f64>>| -> Result<f64, Diagnostic> {
+            match a {
+                None => Ok(DEFAULT_GATE_ALPHA),
+                Some(a) if a.value > 0.0 && a.value < 1.0 => Ok(a.value),
+                Some(a) => Err(Diagnostic::new(a.span, "alpha must lie between 0 and 1")
+                    .label("not a probability")),
+            }
+        };
+        let (passed, what) = match gate {
+            Gate::EqualSlopes {
+                model,
+                factor,
+                covariate,
+                alpha,
+            } => {
+                let alpha = alpha_of(alpha)?;
+                let m = self.model_entry(model)?;
+                let s = m
+                    .fit
+                    .slopes(
+                        covariate.as_ref().map(|c| c.value.as_str()),
+                        &factor.value,
+                        0.95,
+                    )
+                    .map_err(|e| {
+                        Diagnostic::new(factor.span, e.to_string()).label("cannot test this")
+                    })?;
+                (
+                    s.equality_p >= alpha,
+                    format!(
+                        "equal slopes of {} across {} in model {}: F({}, {}) = {:.2}, p {} (alpha {alpha})",
+                        code(&s.covariate),
+                        code(&factor.value),
+                        code(&m.name),
+                        s.df1,
+                        s.df2,
+                        s.equality_f,
+                        p_phrase(Some(s.equality_p))
+                    ),
+                )
+            }
+            Gate::Normality { model, alpha } => {
+                let alpha = alpha_of(alpha)?;
+                let m = self.model_entry(model)?;
+                let residuals = m.fit.diagnostics().residuals;
+                let sw = crate::stats::shapiro::shapiro_wilk(&residuals).map_err(|e| {
+                    Diagnostic::new(model.span, e.to_string()).label("cannot test this")
+                })?;
+                (
+                    sw.p >= alpha,
+                    format!(
+                        "normal residuals in model {}: Shapiro-Wilk W = {:.3}, p {} (alpha {alpha})",
+                        code(&m.name),
+                        sw.w,
+                        p_phrase(Some(sw.p))
+                    ),
+                )
+            }
+            Gate::RowsPerLevel { min, factor } => {
+                let set = self.current(factor.span)?;
+                let fi = column_index(set, factor)?;
+                let Values::Factor(f) = &set.columns[fi].values else {
+                    return Err(Diagnostic::new(
+                        factor.span,
+                        format!("`{}` is not a factor", factor.value),
+                    )
+                    .label("not a factor"));
+                };
+                let counts = f.counts();
+                let short: Vec<String> = f
+                    .levels
+                    .iter()
+                    .zip(&counts)
+                    .filter(|(_, c)| (**c as f64) < min.value)
+                    .map(|(l, c)| format!("{} has {c}", code(l)))
+                    .collect();
+                let fewest = counts.iter().copied().min().unwrap_or(0);
+                (
+                    short.is_empty(),
+                    if short.is_empty() {
+                        format!(
+                            "at least {} rows per level of {} (the fewest: {fewest})",
+                            min.value,
+                            code(&factor.value)
+                        )
+                    } else {
+                        format!(
+                            "at least {} rows per level of {}: {}",
+                            min.value,
+                            code(&factor.value),
+                            short.join(", ")
+                        )
+                    },
+                )
+            }
+            Gate::Balance {
+                covariate,
+                factor,
+                alpha,
+            } => {
+                let alpha = alpha_of(alpha)?;
+                let set = self.current(factor.span)?;
+                let ci = column_index(set, covariate)?;
+                let x = numeric_values(set, ci, covariate)?.to_vec();
+                let fi = column_index(set, factor)?;
+                let Values::Factor(f) = &set.columns[fi].values else {
+                    return Err(Diagnostic::new(
+                        factor.span,
+                        format!("`{}` is not a factor", factor.value),
+                    )
+                    .label("not a factor"));
+                };
+                let spec = ModelSpec {
+                    response: Var::Numeric {
+                        name: covariate.value.clone(),
+                        values: x,
+                    },
+                    vars: vec![Var::Factor {
+                        name: factor.value.clone(),
+                        codes: f.codes.clone(),
+                        levels: f.levels.clone(),
+                    }],
+                    terms: vec![TermSpec {
+                        parts: vec![Part {
+                            var: 0,
+                            transform: Transform::Identity,
+                        }],
+                    }],
+                    intercept: true,
+                    row_numbers: set.row_numbers.clone(),
+                    response_offset: 0.0,
+                };
+                let fit = model::fit(&spec).map_err(|e| {
+                    Diagnostic::new(covariate.span, e.to_string()).label("cannot test this")
+                })?;
+                let a = fit.anova(SsType::II).map_err(|e| {
+                    Diagnostic::new(covariate.span, e.to_string()).label("cannot test this")
+                })?;
+                let row = a
+                    .rows
+                    .first()
+                    .ok_or_else(|| Diagnostic::new(covariate.span, "no test row"))?;
+                let p = row.p.unwrap_or(f64::NAN);
+                (
+                    p >= alpha,
+                    format!(
+                        "balance of {} across {} (one-way ANOVA): F({}, {}) = {:.2}, p {} (alpha {alpha})",
+                        code(&covariate.value),
+                        code(&factor.value),
+                        row.df,
+                        a.residual_df,
+                        row.f.unwrap_or(f64::NAN),
+                        p_phrase(Some(p))
+                    ),
+                )
+            }
+        };
+        Ok(vec![if passed {
+            Item::Text(format!("Gate passed: {what}."))
+        } else {
+            Item::GateFailed(format!("Gate failed: {what}."))
+        }])
+    }
+
+    pub(super) fn report(&mut self, request: &ReportRequest) -> Outcome {
+        match request {
+            ReportRequest::Term { model, term, kind } => {
+                let m = self.model_entry(model)?;
+                let ty = match kind {
+                    SsKind::Sequential => SsType::I,
+                    SsKind::Partial => SsType::II,
+                    SsKind::Marginal => SsType::III,
+                };
+                let a = m.fit.anova(ty).map_err(|e| {
+                    Diagnostic::new(model.span, e.to_string()).label("cannot compute this")
+                })?;
+                let row = a
+                    .rows
+                    .iter()
+                    .find(|r| r.term == term.value)
+                    .ok_or_else(|| {
+                        let names: Vec<&str> = a.rows.iter().map(|r| r.term.as_str()).collect();
+                        Diagnostic::new(
+                            term.span,
+                            format!("model `{}` has no term `{}`", m.name, term.value),
+                        )
+                        .label("unknown term")
+                        .help(format!("its terms are {}", names.join(", ")))
+                    })?;
+                let type_name = match kind {
+                    SsKind::Sequential => "Type I",
+                    SsKind::Partial => "Type II",
+                    SsKind::Marginal => "Type III",
+                };
+                Ok(vec![Item::Text(format!(
+                    "The effect of {} in model {} ({type_name} sums of squares): *F*({}, {}) = {:.2}, *p* {}, partial eta squared = {}.",
+                    code(&term.value),
+                    code(&m.name),
+                    row.df,
+                    a.residual_df,
+                    row.f.unwrap_or(f64::NAN),
+                    p_phrase(row.p),
+                    no_leading_zero(row.partial_eta_sq, 2)
+                ))])
+            }
+            ReportRequest::Pair {
+                model,
+                factor,
+                first,
+                second,
+                adjust,
+            } => {
+                let m = self.model_entry(model)?;
+                let method = match adjust {
+                    AdjustMethod::Tukey => Adjust::Tukey,
+                    AdjustMethod::Holm => Adjust::Holm,
+                    AdjustMethod::Bonferroni => Adjust::Bonferroni,
+                    AdjustMethod::Sidak => Adjust::Sidak,
+                    AdjustMethod::None => Adjust::None,
+                };
+                let pairs = m.fit.pairs(&factor.value, &[], method, 0.95).map_err(|e| {
+                    Diagnostic::new(factor.span, e.to_string()).label("cannot compute this")
+                })?;
+                let (pair, flip) = pairs
+                    .iter()
+                    .find_map(|p| {
+                        if p.first == first.value && p.second == second.value {
+                            Some((p, false))
+                        } else if p.first == second.value && p.second == first.value {
+                            Some((p, true))
+                        } else {
+                            None
+                        }
+                    })
+                    .ok_or_else(|| {
+                        Diagnostic::new(
+                            first.span,
+                            format!(
+                                "`{}` and `{}` are not two levels of `{}` in model `{}`",
+                                first.value, second.value, factor.value, m.name
+                            ),
+                        )
+                        .label("unknown pair")
+                    })?;
+                let sign = if flip { -1.0 } else { 1.0 };
+                let limits = match (pair.lower, pair.upper) {
+                    (Some(lo), Some(hi)) => {
+                        let (lo, hi) = if flip { (-hi, -lo) } else { (lo, hi) };
+                        format!(", 95% CI [{:.2}, {:.2}]", lo, hi)
+                    }
+                    _ => String::new(),
+                };
+                let how = match adjust {
+                    AdjustMethod::Tukey => "Tukey-Kramer adjusted",
+                    AdjustMethod::Holm => "Holm adjusted",
+                    AdjustMethod::Bonferroni => "Bonferroni adjusted",
+                    AdjustMethod::Sidak => "Sidak adjusted",
+                    AdjustMethod::None => "unadjusted",
+                };
+                Ok(vec![Item::Text(format!(
+                    "Adjusted means of {} minus {} in model {}: difference = {:.2}{limits}, *t*({}) = {:.2}, *p* {} ({how}).",
+                    code(&first.value),
+                    code(&second.value),
+                    code(&m.name),
+                    sign * pair.estimate,
+                    pair.df,
+                    sign * pair.t,
+                    p_phrase(Some(pair.p))
+                ))])
+            }
+        }
+    }
+}
+
+/// "= .023" or "< .001", as a p-value stands in a sentence.
+fn p_phrase(p: Option<f64>) -> String {
+    let s = p_value(p);
+    if s.starts_with('<') || s.starts_with('>') {
+        s
+    } else {
+        format!("= {s}")
+    }
+}
+
+/// A proportion without its leading zero (APA style for values that cannot
+/// exceed 1), e.g. `.37`.
+fn no_leading_zero(x: f64, decimals: usize) -> String {
+    if !x.is_finite() {
+        return crate::report::number::MISSING.into();
+    }
+    let s = format!("{x:.decimals$}");
+    s.strip_prefix('0').map(str::to_string).unwrap_or(s)
+}
