@@ -334,3 +334,72 @@ fn first_difference(a: &str, b: &str) -> (usize, String, String) {
         }
     }
 }
+
+/// The files a render depends on: the documents and every data file they
+/// read, with a fingerprint of each (length and modification time).
+fn watched(
+    paths: &[PathBuf],
+    opts: &RenderOptions,
+) -> Vec<(PathBuf, Option<(u64, std::time::SystemTime)>)> {
+    let mut files: Vec<PathBuf> = files::documents(paths).unwrap_or_default();
+    let docs = files.clone();
+    for doc in &docs {
+        let run_opts = RunOptions {
+            keep_going: true,
+            override_gates: true,
+            params: opts.params.clone(),
+        };
+        if let Ok(run) = run_file(doc, run_opts, opts.allow_outside) {
+            let folder = doc.parent().map(Path::to_path_buf).unwrap_or_default();
+            files.extend(run.inputs.iter().map(|i| folder.join(&i.path)));
+        }
+    }
+    files
+        .into_iter()
+        .map(|f| {
+            let stamp = std::fs::metadata(&f)
+                .ok()
+                .and_then(|m| Some((m.len(), m.modified().ok()?)));
+            (f, stamp)
+        })
+        .collect()
+}
+
+/// `covey render --watch`: renders, then re-renders whenever a document or
+/// a data file it loads changes, telling `say` what changed. Polls every
+/// `interval`; `rounds` bounds the polls (None: until interrupted).
+pub fn watch(
+    paths: &[PathBuf],
+    opts: &RenderOptions,
+    interval: std::time::Duration,
+    rounds: Option<usize>,
+    say: &mut dyn FnMut(&str),
+) -> Report {
+    let mut last = render(paths, opts);
+    for line in &last.lines {
+        say(line);
+    }
+    let mut seen = watched(paths, opts);
+    let mut round = 0;
+    while rounds.is_none_or(|r| round < r) {
+        round += 1;
+        std::thread::sleep(interval);
+        let now = watched(paths, opts);
+        let changed: Vec<String> = now
+            .iter()
+            .filter(|(f, stamp)| seen.iter().find(|(g, _)| g == f).map(|(_, s)| s) != Some(stamp))
+            .map(|(f, _)| f.display().to_string())
+            .collect();
+        if changed.is_empty() {
+            continue;
+        }
+        say(&format!("changed: {}", changed.join(", ")));
+        last = render(paths, opts);
+        for line in &last.lines {
+            say(line);
+        }
+        // Rendering wrote files; take the fingerprints after it.
+        seen = watched(paths, opts);
+    }
+    last
+}

@@ -51,6 +51,11 @@ pub fn documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FileError> {
                 });
             }
             out.extend(found);
+        } else if p.to_string_lossy().ends_with(RENDERED_SUFFIX) {
+            return Err(FileError {
+                path: p.clone(),
+                message: "this is a rendering, not a source document; render its source".into(),
+            });
         } else {
             out.push(p.clone());
         }

@@ -13,11 +13,13 @@ pub mod files;
 pub mod lang;
 pub mod model;
 pub mod pipeline;
+pub mod plot;
 pub mod report;
 pub mod session;
+pub mod starter;
 pub mod stats;
 pub mod world;
 
 mod commands;
 
-pub use commands::{check, render, CheckOptions, RenderOptions, Report, Verdict};
+pub use commands::{check, render, watch, CheckOptions, RenderOptions, Report, Verdict};

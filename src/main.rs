@@ -47,6 +47,14 @@ enum Command {
         /// Render past a failed gate; the failure is marked at the top of the document.
         #[arg(long)]
         override_gates: bool,
+        /// Keep running: re-render when a document or a data file it loads changes.
+        #[arg(long)]
+        watch: bool,
+    },
+    /// Write a starter procedure document with a small invented data set.
+    New {
+        /// Name of the folder and the document to create.
+        name: String,
     },
     /// Tell whether the renderings on disk are current (exit 0) or stale (exit 1).
     Check {
@@ -95,9 +103,9 @@ fn main() -> ExitCode {
             html,
             set,
             override_gates,
-        } => covey::render(
-            &paths,
-            &RenderOptions {
+            watch,
+        } => {
+            let opts = RenderOptions {
                 in_place,
                 out_dir: out,
                 json,
@@ -106,8 +114,34 @@ fn main() -> ExitCode {
                 html,
                 params: set,
                 override_gates,
-            },
-        ),
+            };
+            if watch {
+                let mut say = |line: &str| eprintln!("{line}");
+                covey::watch(
+                    &paths,
+                    &opts,
+                    std::time::Duration::from_millis(500),
+                    None,
+                    &mut say,
+                )
+            } else {
+                covey::render(&paths, &opts)
+            }
+        }
+        Command::New { name } => match covey::starter::create(std::path::Path::new("."), &name) {
+            Ok(doc) => {
+                println!(
+                    "wrote {} and its example data; render it with: covey render {}",
+                    doc.display(),
+                    doc.display()
+                );
+                return ExitCode::SUCCESS;
+            }
+            Err(e) => {
+                eprintln!("{e}");
+                return ExitCode::from(2);
+            }
+        },
         Command::Check {
             paths,
             out,

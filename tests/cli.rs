@@ -252,3 +252,179 @@ fn a_failed_write_leaves_previous_files_intact() {
         "no temporary file is left behind: {leftovers:?}"
     );
 }
+
+/// A procedure document with parameters and gates, on the worked batches.
+fn procedure(name: &str) -> PathBuf {
+    let dir = scratch(name);
+    let worked = Path::new(env!("CARGO_MANIFEST_DIR")).join("worked");
+    for f in ["batch-2026-11.csv", "batch-2026-12.csv"] {
+        std::fs::copy(worked.join("data").join(f), dir.join("data").join(f)).unwrap_or_default();
+    }
+    std::fs::copy(worked.join("batch-procedure.md"), dir.join("proc.md")).unwrap_or_default();
+    dir
+}
+
+#[test]
+fn parameters_are_overridden_and_recorded() {
+    let dir = procedure("params");
+    let (code, err) = covey(&dir, &["render", "proc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let nov = read(&dir.join("proc.rendered.md"));
+    assert!(
+        nov.contains("`batch` = `\"data/batch-2026-11.csv\"` (the document's default)"),
+        "{nov}"
+    );
+    let (code, err) = covey(
+        &dir,
+        &[
+            "render",
+            "proc.md",
+            "--set",
+            "alpha=0.01",
+            "--set",
+            "min_plants=12",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    let set = read(&dir.join("proc.rendered.md"));
+    assert!(set.contains("`alpha` = `0.01` (set with --set)"), "{set}");
+    assert!(set.contains("(alpha 0.01)"), "{set}");
+    // check with the same settings is current; without them it is stale.
+    assert_eq!(
+        covey(
+            &dir,
+            &[
+                "check",
+                "proc.md",
+                "--set",
+                "alpha=0.01",
+                "--set",
+                "min_plants=12"
+            ]
+        )
+        .0,
+        0
+    );
+    assert_eq!(covey(&dir, &["check", "proc.md"]).0, 1);
+    // A parameter the document does not declare is a usage error.
+    let (code, err) = covey(&dir, &["render", "proc.md", "--set", "nope=1"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("declares no parameter `nope`"), "{err}");
+}
+
+#[test]
+fn a_failed_gate_stops_the_run_unless_overridden() {
+    let dir = procedure("gates");
+    let dec = "batch=data/batch-2026-12.csv";
+    let (code, err) = covey(&dir, &["render", "proc.md", "--set", dec]);
+    assert_eq!(code, 1, "a failed gate exits 1: {err}");
+    assert!(err.contains("Gate failed: equal slopes"), "{err}");
+    let stopped = read(&dir.join("proc.rendered.md"));
+    assert!(
+        stopped.contains("> **STOP.** Gate failed: equal slopes"),
+        "{stopped}"
+    );
+    assert!(
+        stopped.contains("*Not run: an earlier block failed."),
+        "later blocks do not run"
+    );
+    let (code, err) = covey(
+        &dir,
+        &["render", "proc.md", "--set", dec, "--override-gates"],
+    );
+    assert_eq!(code, 0, "{err}");
+    let forced = read(&dir.join("proc.rendered.md"));
+    let top = forced
+        .split("<!-- covey:provenance-end -->")
+        .next()
+        .unwrap_or_default();
+    assert!(
+        top.contains("**STOP: this report was rendered past a failed gate**"),
+        "{top}"
+    );
+    assert!(forced.contains("The effect of `blend`"), "later blocks ran");
+}
+
+#[test]
+fn unknown_and_repeated_parameters_are_errors() {
+    let dir = setup("param-errors");
+    write(&dir.join("a.md"), "```covey\nload @where\n```\n");
+    let (code, err) = covey(&dir, &["render", "a.md"]);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("a.md:2:6: error: there is no parameter `where`"),
+        "{err}"
+    );
+    write(
+        &dir.join("b.md"),
+        "```covey\nparam x = 1\nparam x = 2\n```\n",
+    );
+    let (code, err) = covey(&dir, &["render", "b.md"]);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("b.md:3:7: error: parameter `x` is declared twice"),
+        "{err}"
+    );
+}
+
+#[test]
+fn a_rendering_is_not_rendered_again() {
+    let dir = setup("no-double");
+    assert_eq!(covey(&dir, &["render", "doc.md"]).0, 0);
+    let (code, err) = covey(&dir, &["render", "doc.rendered.md"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("this is a rendering"), "{err}");
+    assert!(!dir.join("doc.rendered.rendered.md").exists());
+}
+
+#[test]
+fn covey_new_writes_a_running_starter() {
+    let dir = scratch("starter");
+    let (code, err) = covey(&dir, &["new", "first-study"]);
+    assert_eq!(code, 0, "{err}");
+    let doc = dir.join("first-study/first-study.md");
+    assert!(doc.exists() && dir.join("first-study/data/example.csv").exists());
+    let (code, err) = covey(&dir, &["render", "first-study/first-study.md"]);
+    assert_eq!(code, 0, "the starter renders: {err}");
+    let rendered = read(&dir.join("first-study/first-study.rendered.md"));
+    assert!(rendered.contains("Gate passed: equal slopes"), "{rendered}");
+    // Never overwrites.
+    let (code, err) = covey(&dir, &["new", "first-study"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("already exists"), "{err}");
+}
+
+#[test]
+fn watch_renders_again_when_data_change() {
+    let dir = setup("watch");
+    let data = dir.join("data/d.csv");
+    let changer = std::thread::spawn(move || {
+        std::thread::sleep(std::time::Duration::from_millis(300));
+        std::fs::write(&data, DATA.replace("16.1", "18.4")).unwrap_or_default();
+    });
+    let mut heard = Vec::new();
+    let opts = covey::RenderOptions::default();
+    let report = covey::watch(
+        &[dir.join("doc.md")],
+        &opts,
+        std::time::Duration::from_millis(100),
+        Some(12),
+        &mut |line: &str| heard.push(line.to_string()),
+    );
+    let _ = changer.join();
+    assert_eq!(report.verdict, covey::Verdict::Ok);
+    assert!(
+        heard
+            .iter()
+            .any(|l| l.starts_with("changed: ") && l.contains("d.csv")),
+        "{heard:?}"
+    );
+    assert!(
+        heard.iter().filter(|l| l.starts_with("rendered:")).count() >= 2,
+        "{heard:?}"
+    );
+    assert!(
+        read(&dir.join("doc.rendered.md")).contains("18.4")
+            || read(&dir.join("doc.rendered.md")).contains("17.25")
+    );
+}

@@ -66,6 +66,17 @@ fn render_fixture(name: &str) {
     match pipeline::run(&text, &file, &world, opts.clone()) {
         Ok(run) => {
             expect_file(&dir.join(format!("{name}.rendered.md")), &run.rendered);
+            // Figure files, beside the fixture at the paths the rendering links.
+            for (path, svg) in &run.figures {
+                let file = dir.join(path);
+                if bless() {
+                    if let Some(parent) = file.parent() {
+                        std::fs::create_dir_all(parent)
+                            .unwrap_or_else(|e| panic!("{}: {e}", parent.display()));
+                    }
+                }
+                expect_file(&file, svg);
+            }
             let errors_path = dir.join(format!("{name}.errors.txt"));
             if !run.errors.is_empty() || errors_path.exists() {
                 expect_file(&errors_path, &run.errors.join("\n"));
@@ -116,6 +127,11 @@ fn keep_going_runs_the_rest() {
 }
 
 #[test]
+fn figures() {
+    render_fixture("figures");
+}
+
+#[test]
 fn syntax_errors_are_all_reported() {
     render_fixture("syntax-error");
 }
@@ -148,4 +164,9 @@ fn readme_examples_run() {
         run.document.blocks.len() >= 5,
         "README has too few covey examples"
     );
+}
+
+#[test]
+fn assumption_checks() {
+    render_fixture("checks");
 }

@@ -1,12 +1,509 @@
-//! Handler of `check M`: the assumption checks of a fitted model.
+//! Handler of `check M`: one table of assumption checks of a fitted model and, when some rows
+//! stand out, a second table that lists them.
+//!
+//! Every check uses the rows the model was fitted to:
+//! - normality of the residuals: the Shapiro-Wilk W with Royston's p-value
+//!   ([`crate::stats::shapiro`]);
+//! - equal residual spread across the levels of each factor: the Brown-Forsythe test
+//!   (Levene's test on absolute deviations from the group medians, [`crate::stats::levene`]);
+//! - equal slopes of each covariate across each factor whose interaction with it is not in the
+//!   model: the F test of adding that interaction ([`Fit::slopes`]);
+//! - balance of each covariate across each factor: the one-way analysis of variance of the
+//!   covariate on the factor (a model of its own, Type II F);
+//! - influence: leverage, Cook's distance and the externally studentized residual
+//!   ([`Fit::diagnostics`]) against rules of thumb of common practice.
 
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
 use crate::lang::Spanned;
+use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, Part, SsType, TermSpec, Var};
+use crate::report::markdown::code;
+use crate::report::number::format_column;
+use crate::report::{Cell, Column as Col, Format, Item, Table};
+use crate::stats::{levene, shapiro, StatsError};
+
+/// Significance level of every check. The 5% level is the convention readers expect; these
+/// checks screen the model's assumptions rather than test a hypothesis of interest, so no
+/// correction for the number of checks is made, and the table says that a large p is no proof.
+const ALPHA: f64 = 0.05;
+
+/// Confidence level handed to [`Fit::slopes`]; only the slopes' confidence limits depend on
+/// it, and the check reads none of them.
+const SLOPES_LEVEL: f64 = 0.95;
+
+/// A row is listed when its leverage exceeds this multiple of the mean leverage p/n: the
+/// 2p/n rule of Hoaglin & Welsch (1978, "The hat matrix in regression and ANOVA", The
+/// American Statistician 32, 17-22).
+const LEVERAGE_MULTIPLE: f64 = 2.0;
+
+/// A row is listed when its Cook's distance exceeds this number divided by n: the 4/n rule of
+/// thumb of common practice.
+const COOK_NUMERATOR: f64 = 4.0;
+
+/// A row is listed when its externally studentized residual is beyond this in absolute
+/// value: about 1 in 370 rows of a well-specified normal model, so few false alarms in data
+/// sets of ordinary size (common practice).
+const STUDENTIZED_LIMIT: f64 = 3.0;
 
 impl Session<'_> {
     pub(super) fn check(&mut self, model: &Spanned<String>) -> Outcome {
-        let _ = self.model_entry(model)?;
-        Err(Diagnostic::new(model.span, "`check` is not available yet").label("not yet"))
+        let m = self.model_entry(model)?;
+        let fit = &m.fit;
+        let spec = fit.spec();
+        let diag = fit.diagnostics();
+        let used = fitted_rows(spec, &diag.row_numbers).ok_or_else(|| {
+            Diagnostic::new(
+                model.span,
+                "internal: the rows of this model cannot be matched with its data",
+            )
+            .label("cannot check this model")
+        })?;
+        let factors = model_vars(spec, true);
+        let covariates = model_vars(spec, false);
+        let n = diag.residuals.len();
+
+        let mut t = Table::new(
+            "check",
+            format!("Assumption checks of model {}", code(&m.name)),
+            vec![
+                Col::new("check", "check", Format::Text),
+                // Count shows whole numbers without decimals and any other number with two,
+                // as Statistic does: this column holds W and F statistics and, on the
+                // influence row, a count of rows.
+                Col::new("statistic", "statistic", Format::Count),
+                Col::new("df", "df", Format::Text),
+                Col::new("p", "p", Format::P),
+                Col::new("verdict", "verdict", Format::Text),
+            ],
+        );
+        t.push(normality_row(&diag.residuals, &m.name));
+        for &f in &factors {
+            t.push(spread_row(spec, f, &used, &diag.residuals));
+        }
+        let mut have_interaction = Vec::new();
+        for &f in &factors {
+            for &x in &covariates {
+                match slopes_row(fit, spec, f, x) {
+                    Some(row) => t.push(row),
+                    None => have_interaction.push((f, x)),
+                }
+            }
+        }
+        for &f in &factors {
+            for &x in &covariates {
+                t.push(balance_row(spec, f, x, &used));
+            }
+        }
+        t.subject = Some(m.name.clone());
+        let influence = Influence::new(&diag, fit.n_coef());
+        t.push(influence.row());
+
+        t.notes.push(format!(
+            "Every check uses the {n} rows the model was fitted to and the {} level. A small p is evidence against an assumption; a large p does not show that it holds, least of all in small samples.",
+            percent(ALPHA)
+        ));
+        t.notes.push(
+            "df gives the degrees of freedom of an F test as text, numerator then denominator (for example \"2, 26\"), and is empty for the other checks.".into(),
+        );
+        for (f, x) in &have_interaction {
+            t.notes.push(format!(
+                "No equal-slopes check of {} across {}: the model already has their interaction, so each level has its own slope.",
+                code(var_name(spec, *x)),
+                code(var_name(spec, *f))
+            ));
+        }
+        // The thresholds are told once: under the table of flagged rows when there is one.
+        if influence.flagged.is_empty() {
+            t.notes.push(influence.thresholds_note());
+            Ok(vec![
+                Item::Table(t),
+                Item::Text(format!(
+                    "No row of model {} is past an influence threshold.",
+                    code(&m.name)
+                )),
+            ])
+        } else {
+            let mut listed = influence.table(&diag, &m.name);
+            listed.subject = Some(m.name.clone());
+            Ok(vec![Item::Table(t), Item::Table(listed)])
+        }
+    }
+}
+
+/// Indices of the model's input rows that it was fitted to: a response that is not missing
+/// and no missing value in a variable of its terms (the engine's rule). None when they do not
+/// give the data-file lines the fit reports, which would mean the rule and the engine
+/// disagree.
+fn fitted_rows(spec: &ModelSpec, lines: &[usize]) -> Option<Vec<usize>> {
+    let y = match &spec.response {
+        Var::Numeric { values, .. } => values,
+        Var::Factor { .. } => return None,
+    };
+    let in_terms: Vec<&Var> = spec
+        .vars
+        .iter()
+        .enumerate()
+        .filter(|(v, _)| uses(spec, *v))
+        .map(|(_, var)| var)
+        .collect();
+    let used: Vec<usize> = (0..y.len())
+        .filter(|&i| {
+            y.get(i).is_some_and(|v| !v.is_nan())
+                && in_terms.iter().all(|var| match var {
+                    Var::Numeric { values, .. } => values.get(i).is_some_and(|v| !v.is_nan()),
+                    Var::Factor { codes, .. } => codes.get(i).is_some_and(Option::is_some),
+                })
+        })
+        .collect();
+    let same = used.len() == lines.len()
+        && used
+            .iter()
+            .zip(lines)
+            .all(|(&i, &line)| spec.row_numbers.get(i) == Some(&line));
+    same.then_some(used)
+}
+
+/// Whether variable `v` appears in a term of the model.
+fn uses(spec: &ModelSpec, v: usize) -> bool {
+    spec.terms
+        .iter()
+        .any(|t| t.parts.iter().any(|p| p.var == v))
+}
+
+/// The factors (`factors = true`) or the numeric covariates of the model's terms, in
+/// variable order (the order they first appear in the model statement).
+fn model_vars(spec: &ModelSpec, factors: bool) -> Vec<usize> {
+    spec.vars
+        .iter()
+        .enumerate()
+        .filter(|(v, var)| matches!(var, Var::Factor { .. }) == factors && uses(spec, *v))
+        .map(|(v, _)| v)
+        .collect()
+}
+
+fn var_name(spec: &ModelSpec, v: usize) -> &str {
+    spec.vars.get(v).map_or("", Var::name)
+}
+
+/// The factor's codes and level labels, or empty ones for a numeric variable.
+fn factor_parts(spec: &ModelSpec, f: usize) -> (&[Option<u32>], &[String]) {
+    match spec.vars.get(f) {
+        Some(Var::Factor { codes, levels, .. }) => (codes, levels),
+        _ => (&[], &[]),
+    }
+}
+
+/// ALPHA as a percentage ("5%").
+fn percent(a: f64) -> String {
+    format!("{}%", a * 100.0)
+}
+
+/// ALPHA as a p-value bound in the tables' style (".05").
+fn bound(a: f64) -> String {
+    let s = format!("{a}");
+    s.strip_prefix('0').map_or(s.clone(), str::to_string)
+}
+
+/// A row of the check table.
+fn row(check: String, statistic: Cell, df: Cell, p: Cell, verdict: String) -> Vec<Cell> {
+    vec![check.into(), statistic, df, p, verdict.into()]
+}
+
+/// "2, 26" for an F test's degrees of freedom.
+fn df_text(df1: usize, df2: usize) -> Cell {
+    Cell::Text(format!("{df1}, {df2}"))
+}
+
+fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
+    let check = "normality of residuals (Shapiro-Wilk)".to_string();
+    match shapiro::shapiro_wilk(residuals) {
+        Ok(sw) => {
+            let verdict = if sw.p < ALPHA {
+                format!(
+                    "the residuals depart from a normal shape (p < {}): tests and limits are less exact, the more so in small groups; look at the normal quantile figure (`plot quantiles {model}`)",
+                    bound(ALPHA)
+                )
+            } else {
+                format!(
+                    "no evidence against normal residuals at the {} level",
+                    percent(ALPHA)
+                )
+            };
+            row(check, sw.w.into(), Cell::Missing, sw.p.into(), verdict)
+        }
+        Err(StatsError::SampleSizeOutOfRange { n, min, max }) if n > max => {
+            let verdict = format!(
+                "not tested: the Shapiro-Wilk p-value is calibrated for {min} to {max} residuals and this model has {n} (with so many, any test flags harmless departures); judge the shape from the normal quantile figure (`plot quantiles {model}`)"
+            );
+            row(check, Cell::Missing, Cell::Missing, Cell::Missing, verdict)
+        }
+        Err(e) => row(
+            check,
+            Cell::Missing,
+            Cell::Missing,
+            Cell::Missing,
+            format!("not tested: {e}"),
+        ),
+    }
+}
+
+fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> Vec<Cell> {
+    let name = var_name(spec, f);
+    let check = format!("equal residual spread across {name} (Brown-Forsythe)");
+    let (codes, levels) = factor_parts(spec, f);
+    let groups: Vec<Vec<f64>> = (0..levels.len())
+        .map(|level| {
+            used.iter()
+                .zip(residuals)
+                .filter(|(&i, _)| codes.get(i).copied().flatten() == u32::try_from(level).ok())
+                .map(|(_, &e)| e)
+                .collect::<Vec<f64>>()
+        })
+        .filter(|g| !g.is_empty())
+        .collect();
+    let refs: Vec<&[f64]> = groups.iter().map(Vec::as_slice).collect();
+    match levene::brown_forsythe(&refs) {
+        Ok(bf) => {
+            let verdict = if bf.p < ALPHA {
+                format!(
+                    "the residual spread differs between levels of {name} (p < {}): adjusted means stay unbiased, but their SEs and tests, which pool one residual SD, are less trustworthy, most of all when group sizes differ",
+                    bound(ALPHA)
+                )
+            } else {
+                format!("no evidence that the residual spread differs between levels of {name}")
+            };
+            // The degrees of freedom are whole numbers stored as f64.
+            let df = Cell::Text(format!("{:.0}, {:.0}", bf.df1, bf.df2));
+            row(check, bf.f.into(), df, bf.p.into(), verdict)
+        }
+        Err(e) => row(
+            check,
+            Cell::Missing,
+            Cell::Missing,
+            Cell::Missing,
+            format!("not tested: {e}"),
+        ),
+    }
+}
+
+/// The equal-slopes row of factor `f` and covariate `x`, or None when the model already has
+/// their interaction.
+fn slopes_row(fit: &Fit, spec: &ModelSpec, f: usize, x: usize) -> Option<Vec<Cell>> {
+    let (fname, xname) = (var_name(spec, f), var_name(spec, x));
+    let check = format!("equal slopes of {xname} across {fname}");
+    let not_tested = |why: String| {
+        row(
+            check.clone(),
+            Cell::Missing,
+            Cell::Missing,
+            Cell::Missing,
+            format!("not tested: {why}"),
+        )
+    };
+    match fit.slopes(Some(xname), fname, SLOPES_LEVEL) {
+        Ok(s) if !s.refitted => None,
+        Ok(s) if s.df1 == 0 || !s.equality_f.is_finite() => Some(not_tested(format!(
+            "the {fname} by {xname} term adds no estimable column to this design"
+        ))),
+        Ok(s) => {
+            let verdict = if s.equality_p < ALPHA {
+                format!(
+                    "the slope of {xname} differs between levels of {fname} (p < {}): a single adjusted difference does not describe the groups; add {fname} by {xname} to the model and compare levels at chosen values of {xname}",
+                    bound(ALPHA)
+                )
+            } else {
+                format!("no evidence that the slope of {xname} differs between levels of {fname}")
+            };
+            Some(row(
+                check,
+                s.equality_f.into(),
+                df_text(s.df1, s.df2),
+                s.equality_p.into(),
+                verdict,
+            ))
+        }
+        Err(ModelError::NonlinearCovariate { .. }) => Some(not_tested(format!(
+            "{xname} enters the model through a power, log or square root, so it has no single slope to compare"
+        ))),
+        Err(e) => Some(not_tested(e.to_string())),
+    }
+}
+
+fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &[usize]) -> Vec<Cell> {
+    let (fname, xname) = (var_name(spec, f), var_name(spec, x));
+    let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
+    let not_tested = |why: String| {
+        row(
+            check.clone(),
+            Cell::Missing,
+            Cell::Missing,
+            Cell::Missing,
+            format!("not tested: {why}"),
+        )
+    };
+    let (codes, levels) = factor_parts(spec, f);
+    let values: Vec<f64> = match spec.vars.get(x) {
+        Some(Var::Numeric { values, .. }) => used
+            .iter()
+            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
+            .collect(),
+        _ => Vec::new(),
+    };
+    let one_way = ModelSpec {
+        response: Var::Numeric {
+            name: xname.to_string(),
+            values,
+        },
+        vars: vec![Var::Factor {
+            name: fname.to_string(),
+            codes: used
+                .iter()
+                .map(|&i| codes.get(i).copied().flatten())
+                .collect(),
+            levels: levels.to_vec(),
+        }],
+        terms: vec![TermSpec {
+            parts: vec![Part {
+                var: 0,
+                transform: model::Transform::Identity,
+            }],
+        }],
+        intercept: true,
+        // The covariate's values are plain numbers, whatever offset the response has.
+        response_offset: 0.0,
+        row_numbers: used
+            .iter()
+            .map(|&i| spec.row_numbers.get(i).copied().unwrap_or(i))
+            .collect(),
+    };
+    let anova = model::fit(&one_way).and_then(|m| m.anova(SsType::II));
+    match anova {
+        Ok(a) => match a.rows.first() {
+            Some(r) => {
+                let significant = r.p.is_some_and(|p| p < ALPHA);
+                let verdict = if significant {
+                    format!(
+                        "warning sign: {xname} differs between levels of {fname} (p < {}): the treatment may have changed it, or the groups were not comparable at the start; adjusted means then rest on the straight-line model where the groups overlap little",
+                        bound(ALPHA)
+                    )
+                } else {
+                    format!("no evidence that {xname} differs between levels of {fname}")
+                };
+                row(
+                    check,
+                    r.f.into(),
+                    df_text(r.df, a.residual_df),
+                    r.p.into(),
+                    verdict,
+                )
+            }
+            None => not_tested("the one-way analysis has no term".into()),
+        },
+        Err(ModelError::PerfectFit) => not_tested(format!(
+            "{xname} takes a single value within each level of {fname}, so the covariate and the groups cannot be told apart"
+        )),
+        Err(e) => not_tested(e.to_string()),
+    }
+}
+
+/// The rows past an influence threshold.
+struct Influence {
+    n: usize,
+    coefficients: usize,
+    leverage_limit: f64,
+    cook_limit: f64,
+    /// Positions (in fitted-row order) of the rows past a threshold.
+    flagged: Vec<usize>,
+}
+
+impl Influence {
+    fn new(d: &Diagnostics, coefficients: usize) -> Influence {
+        let n = d.leverage.len();
+        let nf = n.max(1) as f64;
+        let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
+        let cook_limit = COOK_NUMERATOR / nf;
+        // NaN (undefined at leverage 1) compares false and flags nothing by itself.
+        let flagged = (0..n)
+            .filter(|&k| {
+                d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
+                    || d.cooks_distance.get(k).is_some_and(|&c| c > cook_limit)
+                    || d.studentized
+                        .get(k)
+                        .is_some_and(|&s| s.abs() > STUDENTIZED_LIMIT)
+            })
+            .collect();
+        Influence {
+            n,
+            coefficients,
+            leverage_limit,
+            cook_limit,
+            flagged,
+        }
+    }
+
+    fn row(&self) -> Vec<Cell> {
+        let k = self.flagged.len();
+        let verdict = match k {
+            0 => "no row is past a threshold".to_string(),
+            1 => format!(
+                "1 of {} rows is past a threshold (listed below): check it for a recording error, and refit without it to see how much the conclusions move",
+                self.n
+            ),
+            _ => format!(
+                "{k} of {} rows are past a threshold (listed below): check them for recording errors, and refit without them to see how much the conclusions move",
+                self.n
+            ),
+        };
+        row(
+            "influential rows".to_string(),
+            k.into(),
+            Cell::Missing,
+            Cell::Missing,
+            verdict,
+        )
+    }
+
+    fn thresholds_note(&self) -> String {
+        let show = |v: f64| format_column(&[Some(v)], Format::Digits(3)).join("");
+        format!(
+            "A row counts as influential when its leverage is above 2p/n = {}, its Cook's distance above 4/n = {}, or its externally studentized residual beyond ±{STUDENTIZED_LIMIT} (p = {} coefficients, n = {} rows); these are rules of thumb of common practice, not tests.",
+            show(self.leverage_limit),
+            show(self.cook_limit),
+            self.coefficients,
+            self.n
+        )
+    }
+
+    fn table(&self, d: &Diagnostics, model: &str) -> Table {
+        let mut t = Table::new(
+            "influence",
+            format!("Rows of model {} past an influence threshold", code(model)),
+            vec![
+                Col::new("row", "row", Format::Count),
+                Col::new("leverage", "leverage", Format::Digits(3)),
+                Col::new("cooks_distance", "Cook's distance", Format::Digits(3)),
+                Col::new(
+                    "studentized_residual",
+                    "studentized residual",
+                    Format::Statistic,
+                ),
+            ],
+        );
+        for &k in &self.flagged {
+            let get = |v: &[f64]| v.get(k).copied().unwrap_or(f64::NAN);
+            t.push(vec![
+                d.row_numbers
+                    .get(k)
+                    .copied()
+                    .map_or(Cell::Missing, Cell::from),
+                get(&d.leverage).into(),
+                get(&d.cooks_distance).into(),
+                get(&d.studentized).into(),
+            ]);
+        }
+        t.notes
+            .push("row is the line in the data file (the header is line 1); the studentized residual is externally studentized (the row's own residual left out of its SD).".into());
+        t.notes.push(self.thresholds_note());
+        t
     }
 }

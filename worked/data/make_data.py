@@ -84,7 +84,28 @@ def clinics():
     write("clinics.csv", ["patient", "clinic", "arm", "baseline", "week8"], rows)
 
 
+def batches():
+    """Monthly batches of a greenhouse procedure: three fertiliser blends,
+    yield per plant adjusted for plant height at transplanting. The
+    November batch behaves; in the December batch blend C's yield rises
+    much faster with height, so the procedure's slope gate fails."""
+    for name, seed, c_slope in (("batch-2026-11", 1101, 0.060), ("batch-2026-12", 1201, 0.150)):
+        rng = random.Random(seed)
+        rows = []
+        plant = 0
+        for blend, shift in {"A": 0.0, "B": 0.25, "C": 0.45}.items():
+            for _ in range(12):
+                plant += 1
+                height = round(rng.uniform(8.0, 20.0), 1)
+                slope = c_slope if blend == "C" else 0.060
+                yield_kg = 1.2 + slope * (height - 14.0) + shift + rng.gauss(0, 0.12)
+                rows.append([f"G{plant:03d}", blend, height, round(yield_kg, 3)])
+        rng.shuffle(rows)
+        write(f"{name}.csv", ["plant", "blend", "height_cm", "yield_kg"], rows)
+
+
 if __name__ == "__main__":
+    batches()
     rations()
     machines()
     clinics()

@@ -1,0 +1,736 @@
+//! The figures of `plot`, built from a fitted model: what each one shows, in numbers,
+//! before [`super::chart`] draws it.
+
+use std::collections::BTreeMap;
+
+use statrs::distribution::{ContinuousCDF, Normal};
+
+use super::chart::{Chart, Curve, Guide, Interval, Point};
+use super::{style, Drawn, PlotError, Request};
+use crate::model::{Fit, Transform, Var};
+
+/// Most markers one figure draws. Beyond it the points are thinned deterministically (and
+/// the caption says how), which keeps every SVG well under 1 MB at any number of rows.
+pub const MAX_POINTS: usize = 3000;
+
+/// Number of steps along the covariate at which a curved fitted line (from `x^2`, `log(x)`,
+/// `sqrt(x)` terms) is evaluated. The SVG backend rounds vertices to whole pixels, so many
+/// short steps look jagged; this many keeps the curve smooth at 720 pixels wide. A line
+/// straight in the covariate needs only its two ends.
+const CURVE_STEPS: usize = 24;
+
+/// Confidence level of the intervals of adjusted means.
+const MEANS_LEVEL: f64 = 0.95;
+
+/// Width of the band (in level spacings) over which the points of one level are spread.
+const JITTER_WIDTH: f64 = 0.5;
+
+/// Half-length of the level-mean bar of the groups figure, in level spacings.
+const MEAN_BAR: f64 = 0.3;
+
+/// Fractional part of the golden ratio: the additive (Weyl) sequence frac(i * phi) spreads
+/// points evenly with no random state (Weyl 1916, "Über die Gleichverteilung von Zahlen
+/// mod. Eins", Math. Annalen 77).
+const GOLDEN: f64 = 0.618_033_988_749_894_8;
+
+/// The rows of the fit, with what every figure needs of them.
+struct Rows {
+    /// Data-file row number of each fitted row.
+    row_numbers: Vec<usize>,
+    /// Index of each fitted row in the model's variables (None if not found).
+    index: Vec<Option<usize>>,
+}
+
+impl Rows {
+    fn of(fit: &Fit, row_numbers: Vec<usize>) -> Rows {
+        let mut at: BTreeMap<usize, usize> = BTreeMap::new();
+        for (i, r) in fit.spec().row_numbers.iter().enumerate() {
+            at.entry(*r).or_insert(i);
+        }
+        let index = row_numbers.iter().map(|r| at.get(r).copied()).collect();
+        Rows { row_numbers, index }
+    }
+
+    /// Numeric values of variable `var` on the fitted rows (NaN where unknown).
+    fn numeric(&self, fit: &Fit, var: Option<usize>) -> Vec<f64> {
+        let values: &[f64] = match var.and_then(|v| fit.spec().vars.get(v)) {
+            Some(Var::Numeric { values, .. }) => values,
+            _ => &[],
+        };
+        self.index
+            .iter()
+            .map(|i| i.and_then(|i| values.get(i).copied()).unwrap_or(f64::NAN))
+            .collect()
+    }
+
+    fn response(&self, fit: &Fit) -> Vec<f64> {
+        let values: &[f64] = match &fit.spec().response {
+            Var::Numeric { values, .. } => values,
+            Var::Factor { .. } => &[],
+        };
+        self.index
+            .iter()
+            .map(|i| i.and_then(|i| values.get(i).copied()).unwrap_or(f64::NAN))
+            .collect()
+    }
+}
+
+/// The levels of the factor that occur among the fitted rows (declared order), and the
+/// group of each fitted row: its position among those levels; all rows are group 0 when
+/// there is no factor.
+struct Groups {
+    labels: Vec<String>,
+    codes: Vec<u32>,
+    of_row: Vec<Option<usize>>,
+}
+
+impl Groups {
+    /// Refuses more levels than a legend can hold.
+    fn checked(self, req: &Request) -> Result<Groups, PlotError> {
+        if self.labels.len() > super::MAX_LEVELS {
+            return Err(PlotError::TooManyLevels {
+                factor: req.factor_name.clone().unwrap_or_default(),
+                levels: self.labels.len(),
+            });
+        }
+        Ok(self)
+    }
+
+    fn of(fit: &Fit, rows: &Rows, factor: Option<usize>) -> Groups {
+        let Some(Var::Factor { codes, levels, .. }) = factor.and_then(|v| fit.spec().vars.get(v))
+        else {
+            return Groups {
+                labels: Vec::new(),
+                codes: Vec::new(),
+                of_row: vec![Some(0); rows.index.len()],
+            };
+        };
+        let row_codes: Vec<Option<u32>> = rows
+            .index
+            .iter()
+            .map(|i| i.and_then(|i| codes.get(i).copied().flatten()))
+            .collect();
+        let mut present = vec![false; levels.len()];
+        for c in row_codes.iter().flatten() {
+            if let Some(p) = present.get_mut(*c as usize) {
+                *p = true;
+            }
+        }
+        let kept: Vec<u32> = (0..levels.len() as u32)
+            .filter(|c| present.get(*c as usize).copied().unwrap_or(false))
+            .collect();
+        let labels = kept
+            .iter()
+            .map(|c| levels.get(*c as usize).cloned().unwrap_or_default())
+            .collect();
+        let of_row = row_codes
+            .iter()
+            .map(|c| c.and_then(|c| kept.iter().position(|k| *k == c)))
+            .collect();
+        Groups {
+            labels,
+            codes: kept,
+            of_row,
+        }
+    }
+
+    /// Legend entries: the level labels, or one entry for all observations.
+    fn legend(&self) -> Vec<String> {
+        if self.labels.is_empty() {
+            vec!["observations".to_string()]
+        } else {
+            self.labels.clone()
+        }
+    }
+}
+
+/// Keeps every k-th point of each group, in row order, when there are more than
+/// [`MAX_POINTS`]; returns k (1 = all kept). Counting within groups keeps every level in
+/// view even when the levels recur in a fixed pattern down the rows.
+fn thin(points: &mut Vec<Point>) -> usize {
+    let n = points.len();
+    if n <= MAX_POINTS {
+        return 1;
+    }
+    let k = n.div_ceil(MAX_POINTS);
+    let mut seen: Vec<usize> = Vec::new();
+    points.retain(|p| {
+        if seen.len() <= p.group {
+            seen.resize(p.group + 1, 0);
+        }
+        match seen.get_mut(p.group) {
+            Some(c) => {
+                let keep = *c % k == 0;
+                *c += 1;
+                keep
+            }
+            None => false,
+        }
+    });
+    k
+}
+
+/// Caption and alt-text wording for thinned points.
+fn thinned_note(k: usize, n: usize) -> String {
+    if k <= 1 {
+        String::new()
+    } else {
+        format!(" (every {} of {} points shown)", ordinal(k), thousands(n))
+    }
+}
+
+fn ordinal(k: usize) -> String {
+    let suffix = match (k % 10, k % 100) {
+        (1, r) if r != 11 => "st",
+        (2, r) if r != 12 => "nd",
+        (3, r) if r != 13 => "rd",
+        _ => "th",
+    };
+    format!("{k}{suffix}")
+}
+
+fn thousands(n: usize) -> String {
+    let s = n.to_string();
+    let mut out = String::new();
+    for (i, ch) in s.chars().enumerate() {
+        if i > 0 && (s.len() - i) % 3 == 0 {
+            out.push(',');
+        }
+        out.push(ch);
+    }
+    out
+}
+
+/// A note when there are more levels than distinct styles.
+fn repeat_note(levels: usize) -> &'static str {
+    if levels > style::STYLES {
+        " Colours and markers repeat after the seventh level."
+    } else {
+        ""
+    }
+}
+
+fn by_factor(req: &Request) -> String {
+    match &req.factor_name {
+        Some(f) => format!(" by {f}"),
+        None => String::new(),
+    }
+}
+
+/// ", one marker shape per F" when points are told apart by a factor.
+fn marked_by(req: &Request) -> String {
+    match &req.factor_name {
+        Some(f) => format!(", one marker shape and colour per {f}"),
+        None => String::new(),
+    }
+}
+
+/// Whether the model's prediction is a straight line in variable `x`: every term part on
+/// `x` is `x` itself, and no term holds `x` twice.
+fn straight_in(fit: &Fit, x: usize) -> bool {
+    fit.spec().terms.iter().all(|t| {
+        let on_x: Vec<_> = t.parts.iter().filter(|p| p.var == x).collect();
+        on_x.len() <= 1 && on_x.iter().all(|p| p.transform == Transform::Identity)
+    })
+}
+
+/// The prediction of the model at covariate `x` = `value`, other covariates at their means,
+/// factor `factor` at level `code` (or averaged) and other factors averaged with equal weights:
+/// the adjusted-means convention, evaluated along the covariate.
+fn predict(fit: &Fit, x: &str, value: f64, factor: Option<(usize, u32)>) -> Result<f64, PlotError> {
+    let numeric = fit
+        .covariate_values(&[(x.to_string(), value)])
+        .map_err(PlotError::Model)?;
+    let pt = match factor {
+        Some((v, c)) => fit.point(v, Some(c), numeric, None),
+        None => fit.point(usize::MAX, None, numeric, None),
+    };
+    let row = fit.row_at(&pt);
+    fit.linear(&row)
+        .map(|(m, _)| m)
+        .map_err(|_| PlotError::NotEstimable {
+            what: format!("the fitted value at {x} = {value}"),
+        })
+}
+
+/// Whether some term of the model holds both `factor` and `x` (separate slopes).
+fn separate_slopes(fit: &Fit, factor: usize, x: usize) -> bool {
+    fit.spec()
+        .terms
+        .iter()
+        .any(|t| t.parts.iter().any(|p| p.var == factor) && t.parts.iter().any(|p| p.var == x))
+}
+
+/// `plot lines`: the data with the fitted line of each level.
+pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let xv = req.covariate.ok_or(PlotError::NoCovariate)?;
+    let x_name = fit
+        .spec()
+        .vars
+        .get(xv)
+        .map(|v| v.name().to_string())
+        .unwrap_or_default();
+    let d = fit.diagnostics();
+    let rows = Rows::of(fit, d.row_numbers);
+    let xs = rows.numeric(fit, Some(xv));
+    let ys = rows.response(fit);
+    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let mut points = Vec::new();
+    for ((x, y), g) in xs.iter().zip(&ys).zip(&groups.of_row) {
+        if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
+            points.push(Point {
+                group: *g,
+                x: *x,
+                y: *y,
+            });
+        }
+    }
+    let n = points.len();
+    let mut curves = Vec::new();
+    let nlines = groups.legend().len();
+    let steps = if straight_in(fit, xv) { 1 } else { CURVE_STEPS };
+    for g in 0..nlines {
+        let (lo, hi) = points
+            .iter()
+            .filter(|p| p.group == g)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
+                (a.min(p.x), b.max(p.x))
+            });
+        if lo > hi {
+            continue;
+        }
+        let level = match (req.factor, groups.codes.get(g)) {
+            (Some(v), Some(c)) => Some((v, *c)),
+            _ => None,
+        };
+        let mut line = Vec::with_capacity(steps + 1);
+        for s in 0..=steps {
+            let x = lo + (hi - lo) * s as f64 / steps as f64;
+            line.push((x, predict(fit, &x_name, x, level)?));
+        }
+        curves.push(Curve {
+            group: Some(g),
+            points: line,
+        });
+    }
+    let k = thin(&mut points);
+    let note = thinned_note(k, n);
+    let (what, shape) = match req.factor {
+        Some(f) => {
+            let fname = req.factor_name.clone().unwrap_or_default();
+            let shape = if separate_slopes(fit, f, xv) {
+                "separate slopes"
+            } else {
+                "parallel lines"
+            };
+            (
+                format!(", with one fitted line per {fname}"),
+                format!(" ({shape})"),
+            )
+        }
+        None => (", with the fitted line".to_string(), String::new()),
+    };
+    let others = if fit.covariate_means().len() > 1 {
+        "; other covariates at their means"
+    } else {
+        ""
+    };
+    let alt = format!(
+        "Scatter of {} against {}{}{}{}{}. {} the observed range of {}{}{}.{}",
+        req.response_name,
+        x_name,
+        by_factor(req),
+        what,
+        shape,
+        note,
+        if req.factor.is_some() {
+            "Each line spans"
+        } else {
+            "The line spans"
+        },
+        x_name,
+        if req.factor.is_some() {
+            " in its group"
+        } else {
+            ""
+        },
+        others,
+        repeat_note(groups.labels.len()),
+    );
+    let caption = format!(
+        "{} against {}{}, fitted lines{}",
+        req.response_name,
+        x_name,
+        by_factor(req),
+        note
+    );
+    let chart = Chart {
+        x_label: req.covariate_label.clone().unwrap_or_default(),
+        y_label: req.response_label.clone(),
+        legend_title: req.factor_name.clone(),
+        groups: if req.factor.is_some() {
+            groups.legend()
+        } else {
+            vec!["data and fit".to_string()]
+        },
+        points,
+        curves,
+        group_lines: true,
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// `plot residuals`: residuals against fitted values (or against covariate X), zero line.
+pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let d = fit.diagnostics();
+    let rows = Rows::of(fit, d.row_numbers.clone());
+    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let xs = match req.covariate {
+        Some(v) => rows.numeric(fit, Some(v)),
+        None => d.fitted.clone(),
+    };
+    let mut points = Vec::new();
+    for ((x, y), g) in xs.iter().zip(&d.residuals).zip(&groups.of_row) {
+        if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
+            points.push(Point {
+                group: *g,
+                x: *x,
+                y: *y,
+            });
+        }
+    }
+    let n = points.len();
+    let k = thin(&mut points);
+    let note = thinned_note(k, n);
+    let against = match &req.covariate_name {
+        Some(x) => x.clone(),
+        None => "fitted values".to_string(),
+    };
+    let alt = format!(
+        "Scatter of the residuals of {} against {}{}, with a horizontal line at zero{}.{}",
+        req.response_name,
+        against,
+        marked_by(req),
+        note,
+        repeat_note(groups.labels.len())
+    );
+    let caption = format!("Residuals against {against}{note}");
+    let chart = Chart {
+        x_label: match &req.covariate_label {
+            Some(l) => l.clone(),
+            None => format!("fitted {}", req.response_label),
+        },
+        y_label: format!("residual of {}", req.response_label),
+        legend_title: req.factor_name.clone(),
+        groups: groups.legend(),
+        points,
+        guides: vec![Guide::Horizontal {
+            y: 0.0,
+            label: "zero".to_string(),
+        }],
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// `plot quantiles`: normal quantile plot of standardized residuals with the y = x line.
+/// Standardized (internally studentized) residual r = e / (s sqrt(1 - h)); theoretical
+/// quantiles at Blom's plotting positions (i - 3/8) / (n + 1/4) (Blom 1958, "Statistical
+/// Estimates and Transformed Beta-Variables", Wiley).
+pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let d = fit.diagnostics();
+    let rows = Rows::of(fit, d.row_numbers.clone());
+    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let s = fit.summary().sigma;
+    let mut r: Vec<(f64, usize)> = Vec::new();
+    for ((e, h), g) in d.residuals.iter().zip(&d.leverage).zip(&groups.of_row) {
+        let one_h = 1.0 - h;
+        if let Some(g) = g {
+            if one_h > 0.0 && s > 0.0 {
+                let v = e / (s * one_h.sqrt());
+                if v.is_finite() {
+                    r.push((v, *g));
+                }
+            }
+        }
+    }
+    r.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+    let n = r.len();
+    let normal = Normal::new(0.0, 1.0).map_err(|_| PlotError::NothingToDraw)?;
+    let nf = n as f64;
+    let mut points: Vec<Point> = r
+        .iter()
+        .enumerate()
+        .map(|(i, (v, g))| Point {
+            group: *g,
+            x: normal.inverse_cdf((i as f64 + 1.0 - 0.375) / (nf + 0.25)),
+            y: *v,
+        })
+        .collect();
+    let k = thin(&mut points);
+    let note = thinned_note(k, n);
+    let alt = format!(
+        "Normal quantile plot of the standardized residuals of {} against normal quantiles at Blom's plotting positions{}, with the line y = x{}.{}",
+        req.response_name,
+        marked_by(req),
+        note,
+        repeat_note(groups.labels.len())
+    );
+    let caption = format!("Normal quantiles of standardized residuals{note}");
+    let chart = Chart {
+        x_label: "normal quantile (Blom)".to_string(),
+        y_label: "standardized residual".to_string(),
+        legend_title: req.factor_name.clone(),
+        groups: groups.legend(),
+        points,
+        guides: vec![Guide::Identity {
+            label: "y = x".to_string(),
+        }],
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// `plot means`: adjusted means with their confidence intervals per level.
+pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let fname = req.factor_name.clone().ok_or(PlotError::NoFactor)?;
+    let at: Vec<(String, f64)> = Vec::new();
+    let means = fit
+        .means(&fname, &at, MEANS_LEVEL)
+        .map_err(PlotError::Model)?;
+    let labels: Vec<String> = means.iter().map(|m| m.level.clone()).collect();
+    if labels.len() > super::MAX_LEVELS {
+        return Err(PlotError::TooManyLevels {
+            factor: fname,
+            levels: labels.len(),
+        });
+    }
+    let intervals = means
+        .iter()
+        .enumerate()
+        .map(|(i, m)| Interval {
+            group: i,
+            x: i as f64,
+            centre: m.mean,
+            lower: m.lower,
+            upper: m.upper,
+        })
+        .collect();
+    let covs: Vec<String> = fit.covariate_means().into_iter().map(|(n, _)| n).collect();
+    let adjusted = if covs.is_empty() {
+        String::new()
+    } else {
+        format!(
+            ", with {} at {}",
+            covs.join(", "),
+            if covs.len() == 1 {
+                "its mean"
+            } else {
+                "their means"
+            }
+        )
+    };
+    let others = if fit.has_other_factors(&fname) {
+        ", other factors averaged with equal weights"
+    } else {
+        ""
+    };
+    let alt = format!(
+        "Adjusted means of {} for each {} with 95% confidence intervals{}{}.{}",
+        req.response_name,
+        fname,
+        adjusted,
+        others,
+        repeat_note(labels.len())
+    );
+    let caption = format!(
+        "Adjusted means of {} by {fname}, 95% intervals",
+        req.response_name
+    );
+    let chart = Chart {
+        x_label: fname.clone(),
+        y_label: format!("adjusted mean of {}", req.response_label),
+        legend_title: Some(fname),
+        groups: labels.clone(),
+        categories: Some(labels),
+        intervals,
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// `plot influence`: Cook's distance by data-file row, with the 4/n line. Beyond
+/// [`MAX_POINTS`] rows, the rows are cut into that many consecutive runs and the largest
+/// distance of each run is drawn, so that no influential row disappears.
+pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let d = fit.diagnostics();
+    let rows = Rows::of(fit, d.row_numbers.clone());
+    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let mut points = Vec::new();
+    for ((r, c), g) in rows
+        .row_numbers
+        .iter()
+        .zip(&d.cooks_distance)
+        .zip(&groups.of_row)
+    {
+        if let (Some(g), true) = (g, c.is_finite()) {
+            points.push(Point {
+                group: *g,
+                x: *r as f64,
+                y: *c,
+            });
+        }
+    }
+    let n = d.cooks_distance.len();
+    let shown = points.len();
+    let note = if shown > MAX_POINTS {
+        let run = shown.div_ceil(MAX_POINTS);
+        let mut kept = Vec::with_capacity(MAX_POINTS);
+        for chunk in points.chunks(run) {
+            if let Some(p) = chunk.iter().max_by(|a, b| a.y.total_cmp(&b.y)) {
+                kept.push(*p);
+            }
+        }
+        points = kept;
+        format!(
+            " (largest of each run of {run} consecutive rows shown, {} rows)",
+            thousands(shown)
+        )
+    } else {
+        String::new()
+    };
+    let threshold = if n > 0 { 4.0 / n as f64 } else { 0.0 };
+    let above = d
+        .cooks_distance
+        .iter()
+        .filter(|c| c.is_finite() && **c > threshold)
+        .count();
+    let alt = format!(
+        "Cook's distance of each observation of {} by row number in the data file{}, with a horizontal line at 4/n = {}; rows above it: {} of {}{}.{}",
+        req.response_name,
+        marked_by(req),
+        short_number(threshold),
+        above,
+        n,
+        note,
+        repeat_note(groups.labels.len())
+    );
+    let caption = format!("Cook's distance by row{note}");
+    let chart = Chart {
+        x_label: "row in data file".to_string(),
+        y_label: "Cook's distance".to_string(),
+        legend_title: req.factor_name.clone(),
+        groups: groups.legend(),
+        points,
+        y_from_zero: true,
+        guides: vec![Guide::Horizontal {
+            y: threshold,
+            label: format!("4/n = {}", short_number(threshold)),
+        }],
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// A number with three significant digits, for labels.
+fn short_number(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    if v.abs() < 1e-3 {
+        return format!("{v:.2e}");
+    }
+    let digits = (2 - v.abs().log10().floor() as i32).max(0) as usize;
+    format!("{v:.digits$}")
+}
+
+/// `plot groups`: the raw response by level, spread sideways by a fixed low-discrepancy
+/// sequence, with each level's raw mean as a bar.
+pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let fname = req.factor_name.clone().ok_or(PlotError::NoFactor)?;
+    let d = fit.diagnostics();
+    let rows = Rows::of(fit, d.row_numbers);
+    let ys = rows.response(fit);
+    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let k = groups.labels.len();
+    let mut count = vec![0usize; k];
+    let mut sum = vec![0.0; k];
+    let mut points = Vec::new();
+    for (y, g) in ys.iter().zip(&groups.of_row) {
+        let (Some(g), true) = (g, y.is_finite()) else {
+            continue;
+        };
+        let (Some(c), Some(s)) = (count.get_mut(*g), sum.get_mut(*g)) else {
+            continue;
+        };
+        let offset = ((*c as f64 + 1.0) * GOLDEN).fract() - 0.5;
+        *c += 1;
+        *s += y;
+        points.push(Point {
+            group: *g,
+            x: *g as f64 + offset * JITTER_WIDTH,
+            y: *y,
+        });
+    }
+    let n = points.len();
+    let curves = count
+        .iter()
+        .zip(&sum)
+        .enumerate()
+        .filter(|(_, (c, _))| **c > 0)
+        .map(|(g, (c, s))| {
+            let m = s / *c as f64;
+            Curve {
+                group: None,
+                points: vec![(g as f64 - MEAN_BAR, m), (g as f64 + MEAN_BAR, m)],
+            }
+        })
+        .collect();
+    let kk = thin(&mut points);
+    let note = thinned_note(kk, n);
+    let alt = format!(
+        "Dot plot of {} for each {}, points spread sideways by a fixed sequence, with a bar at each level's raw mean{}.{}",
+        req.response_name,
+        fname,
+        note,
+        repeat_note(k)
+    );
+    let caption = format!("{} by {fname}{note}", req.response_name);
+    let chart = Chart {
+        x_label: fname.clone(),
+        y_label: req.response_label.clone(),
+        legend_title: Some(fname),
+        groups: groups.labels.clone(),
+        categories: Some(groups.labels),
+        points,
+        curves,
+        neutral_curve_label: Some("level mean".to_string()),
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}

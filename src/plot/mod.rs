@@ -1,0 +1,98 @@
+//! Figures of fitted models, drawn as SVG with plotters: the data with fitted lines,
+//! residuals, normal quantiles, adjusted means, influence and the raw data by level.
+//!
+//! Every figure has the same size and look ([`style`]), a legend beside the panel, one
+//! colour and one marker shape per level, and is byte-for-byte the same on every run: no
+//! random state, no hash-map order, the font embedded. At most
+//! [`figures::MAX_POINTS`] markers are drawn; beyond that, points are thinned
+//! deterministically and the caption says so.
+
+pub mod chart;
+pub mod figures;
+pub mod style;
+
+use std::fmt;
+
+use crate::lang::PlotKind;
+use crate::model::{Fit, ModelError};
+
+/// Most levels a figure tells apart: what the legend column can list (each of the seven
+/// styles used twice at most).
+pub const MAX_LEVELS: usize = 14;
+
+/// What a figure is asked for, with names already resolved against the model.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Request {
+    /// Index of the covariate (`of X`) in the model's variables.
+    pub covariate: Option<usize>,
+    pub covariate_name: Option<String>,
+    /// Axis label of the covariate (name with unit).
+    pub covariate_label: Option<String>,
+    /// Index of the factor (`for F`) in the model's variables.
+    pub factor: Option<usize>,
+    pub factor_name: Option<String>,
+    pub response_name: String,
+    /// Axis label of the response (name with unit).
+    pub response_label: String,
+}
+
+/// A drawn figure: SVG text, alternative text and caption.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Drawn {
+    pub svg: String,
+    pub alt: String,
+    pub caption: String,
+}
+
+/// Why a figure could not be drawn.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PlotError {
+    /// The figure needs a covariate and none was given or found.
+    NoCovariate,
+    /// The figure needs a factor and none was given or found.
+    NoFactor,
+    /// The model could not compute what the figure shows.
+    Model(ModelError),
+    /// A prediction is not estimable (aliased columns).
+    NotEstimable { what: String },
+    /// The embedded font could not be read.
+    Font,
+    /// The drawing backend failed (its message).
+    Drawing(String),
+    /// There is nothing to draw.
+    NothingToDraw,
+    /// The factor has more levels than a figure can tell apart.
+    TooManyLevels { factor: String, levels: usize },
+}
+
+impl fmt::Display for PlotError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            PlotError::NoCovariate => write!(f, "this figure needs a covariate"),
+            PlotError::NoFactor => write!(f, "this figure needs a factor"),
+            PlotError::Model(e) => write!(f, "{e}"),
+            PlotError::NotEstimable { what } => write!(f, "{what} is not estimable"),
+            PlotError::Font => write!(f, "the embedded font could not be read"),
+            PlotError::Drawing(m) => write!(f, "drawing failed: {m}"),
+            PlotError::NothingToDraw => write!(f, "there is nothing to draw"),
+            PlotError::TooManyLevels { factor, levels } => write!(
+                f,
+                "`{factor}` has {levels} levels; a figure tells at most {MAX_LEVELS} apart"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for PlotError {}
+
+/// Draws the figure `kind` of `fit`.
+pub fn draw(kind: PlotKind, fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    match kind {
+        PlotKind::Lines => figures::lines(fit, req),
+        PlotKind::Residuals => figures::residuals(fit, req),
+        PlotKind::Quantiles => figures::quantiles(fit, req),
+        PlotKind::Means => figures::means(fit, req),
+        PlotKind::Influence => figures::influence(fit, req),
+        PlotKind::Groups => figures::groups(fit, req),
+    }
+}
