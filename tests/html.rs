@@ -449,3 +449,55 @@ fn a_browser_draws_the_page() {
         eprintln!("{name}: {} ({:.1}% ink)", png.display(), share * 100.0);
     }
 }
+
+/// Every worked document, rendered with its figures, opens in the browser
+/// and shows content at a reading width.
+#[test]
+fn every_worked_document_opens_in_the_browser() {
+    if !Path::new(CHROMIUM).exists() {
+        if std::env::var_os("CI").is_some() {
+            panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
+        }
+        eprintln!("note: {CHROMIUM} is not installed; the browser test did not run");
+        return;
+    }
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("worked");
+    let work = Path::new(env!("CARGO_TARGET_TMPDIR")).join("html-worked");
+    let _ = std::fs::remove_dir_all(&work);
+    std::fs::create_dir_all(&work).unwrap_or_else(|e| panic!("{e}"));
+    let mut docs: Vec<_> = std::fs::read_dir(&dir)
+        .map(|d| d.filter_map(|e| e.ok().map(|e| e.path())).collect())
+        .unwrap_or_default();
+    docs.retain(|p| {
+        let n = p.to_string_lossy();
+        n.ends_with(".md") && !n.ends_with(".rendered.md")
+    });
+    docs.sort();
+    assert!(docs.len() >= 4, "the worked documents are missing");
+    for doc in docs {
+        let name = doc
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
+        let text =
+            std::fs::read_to_string(&doc).unwrap_or_else(|e| panic!("{}: {e}", doc.display()));
+        let world = FsWorld::new(&dir, false);
+        let run = pipeline::run(&text, &name, &world, RunOptions::default())
+            .unwrap_or_else(|e| panic!("{name} does not run: {:?}", e.errors));
+        assert!(run.errors.is_empty(), "{name}: {:?}", run.errors);
+        let html = page(&name, &run.rendered, &run.figures);
+        assert!(
+            run.figures.is_empty() || html.contains("<svg"),
+            "{name}: figures are inline"
+        );
+        let file = work.join(format!("{name}.html"));
+        std::fs::write(&file, html).unwrap_or_else(|e| panic!("{e}"));
+        let png = screenshot(&work, &file, "1000,1400", &name.replace('.', "-"));
+        let (share, _, _) = ink_share(&png);
+        assert!(
+            share >= MIN_INK_SHARE,
+            "{name} looks blank: {:.2}%",
+            share * 100.0
+        );
+    }
+}
