@@ -155,7 +155,7 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
             Item::GateFailed(s) => out.push_str(&format!("> **STOP.** {s}\n")),
             Item::Figure(f) => out.push_str(&format!(
                 "**{}**\n\n![{}]({})\n",
-                f.caption,
+                escape(&f.caption),
                 escape(&f.alt),
                 f.file
             )),

@@ -96,7 +96,7 @@ fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
         return values.iter().map(|v| fixed(*v, 0)).collect();
     };
     let max = mags.iter().copied().fold(min, f64::max);
-    if max >= 1e10 || max < 1e-4 {
+    if !(1e-4..1e10).contains(&max) {
         return values
             .iter()
             .map(|v| match v {
