@@ -201,7 +201,7 @@ impl fmt::Display for LoadError {
     }
 }
 
-impl std::error::Error for LoadError {}
+impl core::error::Error for LoadError {}
 
 /// Why a column could not be made into a factor.
 #[derive(Debug, Clone, PartialEq)]
@@ -292,4 +292,4 @@ impl fmt::Display for FactorError {
     }
 }
 
-impl std::error::Error for FactorError {}
+impl core::error::Error for FactorError {}

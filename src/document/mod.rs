@@ -194,7 +194,7 @@ impl fmt::Display for DocumentError {
     }
 }
 
-impl std::error::Error for DocumentError {}
+impl core::error::Error for DocumentError {}
 
 /// Parse an analysis: remove covey's regions, then find the covey blocks in what remains.
 ///

@@ -750,7 +750,7 @@ impl fmt::Display for ModelError {
     }
 }
 
-impl std::error::Error for ModelError {}
+impl core::error::Error for ModelError {}
 
 impl ModelError {
     /// The index of the term at fault, when one term is.

@@ -83,7 +83,7 @@ impl fmt::Display for PlotError {
     }
 }
 
-impl std::error::Error for PlotError {}
+impl core::error::Error for PlotError {}
 
 /// Draws the figure `kind` of `fit`.
 pub fn draw(kind: PlotKind, fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {

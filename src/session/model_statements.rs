@@ -357,13 +357,7 @@ impl Session<'_> {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
-                let method = match adjust {
-                    AdjustMethod::Tukey => Adjust::Tukey,
-                    AdjustMethod::Holm => Adjust::Holm,
-                    AdjustMethod::Bonferroni => Adjust::Bonferroni,
-                    AdjustMethod::Sidak => Adjust::Sidak,
-                    AdjustMethod::None => Adjust::None,
-                };
+                let method = adjustment(*adjust);
                 let rows = m
                     .fit
                     .pairs(&factor.value, &at, method, level)
@@ -591,6 +585,17 @@ impl Session<'_> {
                 Ok(vec![Item::Table(t)])
             }
         }
+    }
+}
+
+/// The engine's adjustment for the one the statement names.
+pub(super) fn adjustment(a: AdjustMethod) -> Adjust {
+    match a {
+        AdjustMethod::Tukey => Adjust::Tukey,
+        AdjustMethod::Holm => Adjust::Holm,
+        AdjustMethod::Bonferroni => Adjust::Bonferroni,
+        AdjustMethod::Sidak => Adjust::Sidak,
+        AdjustMethod::None => Adjust::None,
     }
 }
 

@@ -6,7 +6,7 @@ use super::{Outcome, Session};
 use crate::data::Values;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{AdjustMethod, Gate, Literal, ReportRequest, Spanned, SsKind};
-use crate::model::{self, Adjust, ModelSpec, Part, SsType, TermSpec, Transform, Var};
+use crate::model::{self, ModelSpec, Part, SsType, TermSpec, Transform, Var};
 use crate::report::markdown::code;
 use crate::report::number::p_value;
 use crate::report::Item;
@@ -241,13 +241,7 @@ impl Session<'_> {
                 adjust,
             } => {
                 let m = self.model_entry(model)?;
-                let method = match adjust {
-                    AdjustMethod::Tukey => Adjust::Tukey,
-                    AdjustMethod::Holm => Adjust::Holm,
-                    AdjustMethod::Bonferroni => Adjust::Bonferroni,
-                    AdjustMethod::Sidak => Adjust::Sidak,
-                    AdjustMethod::None => Adjust::None,
-                };
+                let method = super::model_statements::adjustment(*adjust);
                 let pairs = m.fit.pairs(&factor.value, &[], method, 0.95).map_err(|e| {
                     Diagnostic::new(factor.span, e.to_string()).label("cannot compute this")
                 })?;

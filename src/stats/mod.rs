@@ -56,4 +56,4 @@ impl fmt::Display for StatsError {
     }
 }
 
-impl std::error::Error for StatsError {}
+impl core::error::Error for StatsError {}
