@@ -5,7 +5,7 @@
 use crate::diagnostic::{self, Diagnostic};
 use crate::document::{self, Document};
 use crate::lang::{self, Span, Statement};
-use crate::report::{json, markdown, InputRecord, Item, Output};
+use crate::report::{json, live, markdown, InputRecord, Item, Output};
 use crate::session::Session;
 use crate::world::World;
 
@@ -219,7 +219,47 @@ pub fn run(
     }
     notices.extend(param_notes);
     let provenance = markdown::provenance(env!("CARGO_PKG_VERSION"), file_name, &inputs, &notices);
-    let rendered = document::assemble(&doc, &provenance, &bodies);
+    // Live references in prose: resolved once every block has run, against every table of the
+    // document (the last of its kind and subject counts).
+    let mut values = Vec::with_capacity(doc.references.len());
+    for reference in &doc.references {
+        match live::resolve(&reference.text, &outputs) {
+            Ok(value) => values.push(value),
+            Err(e) => {
+                let span = Span {
+                    start: reference.start,
+                    end: reference.end,
+                };
+                errors.push(show(
+                    &Diagnostic::new(span, e.to_string())
+                        .label("this reference")
+                        .help(e.help()),
+                ));
+                values.push(live::unresolved(&reference.text));
+            }
+        }
+    }
+    let values: Vec<Option<&str>> = values.iter().map(|v| Some(v.as_str())).collect();
+    let regions: Vec<Option<&str>> = bodies.iter().map(|b| Some(b.as_str())).collect();
+    let assembled = document::assemble_with_values(&doc, Some(&provenance), &regions, &values);
+    for &i in &assembled.left {
+        if let Some(reference) = doc.references.get(i) {
+            let span = Span {
+                start: reference.start,
+                end: reference.end,
+            };
+            errors.push(show(
+                &Diagnostic::new(span, "covey cannot show this value here")
+                    .label("left as written")
+                    .help(
+                        "HTML before it in this paragraph is left open (an unclosed `<!--` or \
+                         tag), and the value's marker would close it; close that HTML, or \
+                         start a new paragraph",
+                    ),
+            ));
+        }
+    }
+    let rendered = assembled.text;
     let json = json::document(&inputs, &outputs);
     Ok(Run {
         rendered,

@@ -1,6 +1,7 @@
 //! Properties of whole renders over generated documents: real covey blocks
 //! among prose with CRLF and LF, tabs, Unicode, nested and tilde fences,
-//! and text that looks like covey's own markers.
+//! live references in prose and code spans, and text that looks like
+//! covey's own markers.
 
 use covey::pipeline::{self, RunOptions};
 use covey::world::MemoryWorld;
@@ -30,6 +31,12 @@ fn piece() -> impl Strategy<Value = String> {
         Just("````covey\n\ttable summary y\n````".to_string()),
         Just("| a | b |\n|---|---|\n| 1 | 2 |".to_string()),
         Just(String::new()),
+        Just(
+            "Live: n = @[fit m n], R squared @[fit m r_squared] and `@[fit m n]` in code."
+                .to_string()
+        ),
+        Just("@[fit m sigma] begins a line, *@[coefficients m x p]* in emphasis".to_string()),
+        Just("| term | p |\n|---|---|\n| x | @[coefficients m x p] |".to_string()),
         "[a-zA-Z0-9 .,;:!?()-]{0,40}",
     ]
 }
@@ -44,7 +51,7 @@ fn document() -> impl Strategy<Value = String> {
     )
         .prop_map(|(pieces, crlf_first, final_newline)| {
             let mut doc = String::new();
-            let first = "```covey\nload \"d.csv\"\nfactor g\n```";
+            let first = "```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\ntable fit m\ntable coefficients m\n```";
             let mut parts = vec![(first.to_string(), crlf_first)];
             parts.extend(pieces);
             for (i, (p, crlf)) in parts.iter().enumerate() {

@@ -170,3 +170,106 @@ fn readme_examples_run() {
 fn assumption_checks() {
     render_fixture("checks");
 }
+
+#[test]
+fn live_numbers() {
+    render_fixture("live");
+}
+
+mod live {
+    use covey::pipeline::{self, RunOptions};
+    use covey::world::MemoryWorld;
+
+    /// Invented data: two groups and a covariate.
+    const FIRST: &str = "g,x,y\nA,1,2.0\nA,2,3.1\nA,3,3.9\nB,1,4.2\nB,2,5.1\nB,3,5.8\n";
+    /// The same design with other responses (invented).
+    const SECOND: &str = "g,x,y\nA,1,1.0\nA,2,1.4\nA,3,2.2\nB,1,1.1\nB,2,1.9\nB,3,2.4\n";
+
+    const DOC: &str = "# Demo\n\n```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\ntable means m for g\n```\n\nThe mean of A is @[means m A mean] and `@[means m A mean]` is code.\n";
+
+    fn render(doc: &str, data: &str) -> pipeline::Run {
+        let world = MemoryWorld::new().with("d.csv", data);
+        pipeline::run(doc, "doc.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")))
+    }
+
+    /// The region shown for the first reference of a rendering.
+    fn first_value(rendered: &str) -> &str {
+        let begin = "<!-- covey:value @[means m A mean] -->";
+        let start = rendered.find(begin).map_or(0, |i| i + begin.len());
+        let rest = rendered.get(start..).unwrap_or("");
+        rest.get(..rest.find("<!-- covey:value-end -->").unwrap_or(0))
+            .unwrap_or("")
+    }
+
+    #[test]
+    fn the_value_follows_the_data() {
+        let one = render(DOC, FIRST);
+        let two = render(DOC, SECOND);
+        assert!(one.errors.is_empty(), "{}", one.errors.join("\n"));
+        // Adjusted means at mean x = 2 equal the group means here: A's are 3.0 and 1.533...
+        // (arithmetic by hand: (2.0 + 3.1 + 3.9) / 3 and (1.0 + 1.4 + 2.2) / 3).
+        assert_eq!(first_value(&one.rendered), "3.000");
+        assert_eq!(first_value(&two.rendered), "1.533");
+        for run in [&one, &two] {
+            assert_eq!(covey::document::strip(&run.rendered).as_deref(), Ok(DOC));
+        }
+    }
+
+    #[test]
+    fn a_reference_in_a_code_span_is_left_alone() {
+        let run = render(DOC, FIRST);
+        assert_eq!(run.document.references.len(), 1);
+        assert!(
+            run.rendered.contains(" and `@[means m A mean]` is code."),
+            "{}",
+            run.rendered
+        );
+    }
+
+    #[test]
+    fn an_unknown_reference_is_an_error_at_its_place() {
+        let doc = DOC.replace("is code.", "is code.\nBut ünï @[means m Z mean] is not.");
+        let run = render(&doc, FIRST);
+        assert!(run.failed());
+        assert_eq!(run.errors.len(), 1, "{}", run.errors.join("\n"));
+        let error = run.errors.first().map_or("", String::as_str);
+        // Line 11, column 9 (in characters: "But ünï " is 8 characters).
+        assert!(
+            error.starts_with("doc.md:11:9: error: the `means` table has no row `Z`"),
+            "{error}"
+        );
+        assert!(error.contains("its rows are: A, B"), "{error}");
+        assert!(
+            run.rendered
+                .contains("<!-- covey:value @[means m Z mean] -->⟨unresolved: @\\[means m Z mean\\]⟩<!-- covey:value-end -->"),
+            "{}",
+            run.rendered
+        );
+        // The position is the same when the text given holds regions already.
+        let again = pipeline::run(
+            &run.rendered,
+            "doc.md",
+            &MemoryWorld::new().with("d.csv", FIRST),
+            RunOptions::default(),
+        )
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+        let error = again.errors.first().map_or("", String::as_str);
+        assert!(
+            error.contains("the `means` table has no row `Z`"),
+            "{error}"
+        );
+        let line = run
+            .rendered
+            .lines()
+            .position(|l| l.contains("@[means m Z mean]"));
+        let (want_line, want_col) = (
+            line.map_or(0, |l| l + 1),
+            "But ünï <!-- covey:value ".chars().count() + 1,
+        );
+        assert!(
+            error.starts_with(&format!("doc.md:{want_line}:{want_col}:")),
+            "{error}"
+        );
+    }
+}

@@ -15,12 +15,18 @@
 //! * at the top (after any front matter): `"<!-- covey:provenance -->" LE BODY
 //!   "<!-- covey:provenance-end -->" LE`.
 //!
+//! * in prose, in place of each live reference `@[...]` (see [`values`] and
+//!   [`crate::report::live`]): `"<!-- covey:value " REF " -->" VALUE "<!-- covey:value-end -->"`,
+//!   with `<wbr>` in front when it would begin its line.
+//!
 //! Every byte that is not inside such a region belongs to the user and passes through unchanged:
-//! [`strip`] of an [`assemble`]d document gives back the source byte for byte.
+//! [`strip`] of an [`assemble`]d document gives back the source byte for byte (a value region
+//! gives back its reference).
 
 mod lines;
 mod outline;
 mod regions;
+pub mod values;
 
 #[cfg(test)]
 mod proptests;
@@ -31,7 +37,8 @@ use std::fmt;
 
 pub use lines::line_col;
 use lines::{ending_at, predominant, to_lf, LineIndex};
-use regions::{strip_regions, Kind, Stripped};
+use regions::{strip_regions, Kind, Removal, Stripped};
+pub use values::{LINE_GUARD, VALUE_BEGIN, VALUE_BEGIN_CLOSE, VALUE_END};
 
 /// Begin marker of a block's output region.
 pub const OUTPUT_BEGIN: &str = "<!-- covey:output -->";
@@ -69,6 +76,24 @@ pub struct Block {
     pub line_ending: &'static str,
 }
 
+/// A live reference `@[...]` in the prose of the source.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Reference {
+    /// The reference as written, `@[` to `]`.
+    pub text: String,
+    /// Byte offset in the source where it starts.
+    pub start: usize,
+    /// Byte offset in the source just after its `]`.
+    pub end: usize,
+    /// 1-based line in the source.
+    pub line: usize,
+    /// 1-based column (in characters) in the source.
+    pub column: usize,
+    /// Whether only whitespace (and `<wbr>` guards) precede it on its line: its value region then
+    /// gets a guard, so that the line does not begin with an HTML comment.
+    pub begins_line: bool,
+}
+
 /// A parsed analysis: the user's source (covey's regions removed) and its covey blocks.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Document {
@@ -85,8 +110,12 @@ pub struct Document {
     /// Whether the text held any covey region.
     pub had_regions: bool,
     /// The regions that were removed, as (offset in the source, length in
-    /// bytes), ascending: maps a source offset back to the text as given.
+    /// bytes), ascending: maps a source offset back to the text as given. A value region is two
+    /// entries, before and after its reference, so that an offset inside the reference maps to
+    /// the copy kept in the region's opening comment.
     pub removed: Vec<(usize, usize)>,
+    /// The live references in the source's prose, in document order.
+    pub references: Vec<Reference>,
 }
 
 /// What a rendered document holds, for staleness checks.
@@ -200,18 +229,86 @@ impl core::error::Error for DocumentError {}
 ///
 /// Errors: a covey block that is never closed, and damaged regions (see [`DocumentError`]).
 pub fn parse(text: &str) -> Result<Document, DocumentError> {
-    let stripped = strip_regions(text)?;
-    document_of(text, stripped)
+    let (stripped, references) = strip_all(text, true)?;
+    document_of(text, stripped, references)
 }
 
 /// Remove every covey region: the source again, byte for byte.
 pub fn strip(text: &str) -> Result<String, DocumentError> {
-    strip_regions(text).map(|s| s.text)
+    strip_all(text, false).map(|(s, _)| s.text)
+}
+
+/// Remove the block and provenance regions, then the value regions in the prose that remains;
+/// with `want_references`, also find the references of the result.
+fn strip_all(
+    text: &str,
+    want_references: bool,
+) -> Result<(Stripped, Vec<values::FoundReference>), DocumentError> {
+    let mut stripped = strip_regions(text)?;
+    let prose = values::scan(&stripped.text);
+    if prose.regions.is_empty() {
+        return Ok((stripped, prose.references));
+    }
+    // Each value region gives back its reference. Value regions sit inside lines of prose, so
+    // line numbers (all the outline keeps) do not change; offsets after a region move back.
+    let old = std::mem::take(&mut stripped.text);
+    let mut text_out = String::with_capacity(old.len());
+    let mut value_removals = Vec::new();
+    // (offset in `old` where a region starts, bytes it shrank by)
+    let mut shrinks: Vec<(usize, usize)> = Vec::new();
+    let mut last = 0usize;
+    let mut shrunk = 0usize;
+    for region in &prose.regions {
+        let Some(piece) = old.get(last..region.start).filter(|_| region.start >= last) else {
+            continue;
+        };
+        text_out.push_str(piece);
+        let len = region.end - region.start;
+        let prefix = region.guard + VALUE_BEGIN.len();
+        let Some(suffix) = len.checked_sub(prefix + region.reference.len()) else {
+            continue;
+        };
+        let at = region.start - shrunk;
+        value_removals.push(Removal {
+            kind: Kind::Value,
+            at,
+            len: prefix,
+            body: String::new(),
+        });
+        value_removals.push(Removal {
+            kind: Kind::Value,
+            at: at + region.reference.len(),
+            len: suffix,
+            body: String::new(),
+        });
+        text_out.push_str(&region.reference);
+        shrunk += len - region.reference.len();
+        shrinks.push((region.start, len - region.reference.len()));
+        last = region.end;
+    }
+    text_out.push_str(old.get(last..).unwrap_or(""));
+    for removal in &mut stripped.removals {
+        let before: usize = shrinks
+            .iter()
+            .filter(|(start, _)| *start < removal.at)
+            .map(|(_, by)| by)
+            .sum();
+        removal.at = removal.at.saturating_sub(before);
+    }
+    stripped.removals.extend(value_removals);
+    stripped.removals.sort_by_key(|r| r.at);
+    stripped.text = text_out;
+    let references = if want_references {
+        values::scan(&stripped.text).references
+    } else {
+        Vec::new()
+    };
+    Ok((stripped, references))
 }
 
 /// What a rendered document holds: its source, and the bodies of its regions.
 pub fn split_rendered(text: &str) -> Result<Rendered, DocumentError> {
-    let stripped = strip_regions(text)?;
+    let (stripped, references) = strip_all(text, true)?;
     let provenance = stripped
         .removals
         .iter()
@@ -223,7 +320,7 @@ pub fn split_rendered(text: &str) -> Result<Rendered, DocumentError> {
         .filter(|r| r.kind == Kind::Output)
         .map(|r| (r.at, to_lf(&r.body)))
         .collect();
-    let doc = document_of(text, stripped)?;
+    let doc = document_of(text, stripped, references)?;
     let outputs = doc
         .blocks
         .iter()
@@ -242,7 +339,11 @@ pub fn split_rendered(text: &str) -> Result<Rendered, DocumentError> {
 }
 
 /// Build the [`Document`] of a stripped text; `original` is the text given, for error positions.
-fn document_of(original: &str, stripped: Stripped) -> Result<Document, DocumentError> {
+fn document_of(
+    original: &str,
+    stripped: Stripped,
+    references: Vec<values::FoundReference>,
+) -> Result<Document, DocumentError> {
     let source = &stripped.text;
     let outline = &stripped.outline;
     if let Some(fence) = outline.fences.iter().find(|f| f.closing_line.is_none()) {
@@ -293,7 +394,23 @@ fn document_of(original: &str, stripped: Stripped) -> Result<Document, DocumentE
         )
         .collect();
 
+    let references = references
+        .into_iter()
+        .filter_map(|r| {
+            let text = source.get(r.start..r.end)?.to_string();
+            let (line, column) = line_col(source, r.start);
+            Some(Reference {
+                text,
+                start: r.start,
+                end: r.end,
+                line,
+                column,
+                begins_line: r.begins_line,
+            })
+        })
+        .collect();
     Ok(Document {
+        references,
         had_regions: !stripped.removals.is_empty(),
         removed: stripped.removals.iter().map(|r| (r.at, r.len)).collect(),
         provenance_at: outline.provenance_at,
@@ -350,8 +467,138 @@ pub fn assemble_parts(
     provenance: Option<&str>,
     outputs: &[Option<&str>],
 ) -> String {
+    assemble_unchecked(doc, provenance, outputs, &[])
+}
+
+/// A value made ready for a value region: one line, markers defused, no backtick (a backtick
+/// could close a code span opened before the region and swallow its end marker; it becomes
+/// U+02CB, which looks alike), and no odd run of backslashes at the end (it would escape the
+/// end marker's `<`).
+fn prepare_value(value: &str) -> String {
+    let mut v = to_lf(value)
+        .replace('\n', " ")
+        .replace(MARKER_PREFIX, MARKER_PREFIX_ESCAPED)
+        .replace('`', "\u{2cb}");
+    let trailing = v.len() - v.trim_end_matches('\\').len();
+    if trailing % 2 == 1 {
+        v.push(' ');
+    }
+    v
+}
+
+/// A rendering with values, and the references whose value could not be shown.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Assembled {
+    /// The rendered text.
+    pub text: String,
+    /// Indices into `Document::references` of references that had a value but stay as written:
+    /// HTML left open before them in their paragraph (an unclosed `<!--`, say) would be closed
+    /// by their region's comment, and the region would not read back.
+    pub left: Vec<usize>,
+}
+
+/// Like [`assemble_parts`], and each reference `doc.references[i]` with a value `values[i]`
+/// becomes a value region showing it; a reference without one stays as written.
+///
+/// A value is inline Markdown on one line (covey's values are numbers, or text escaped with
+/// [`crate::report::markdown::escape`]). Every region is checked to read back as written; one
+/// that does not is left out (see [`Assembled::left`]), so stripping always gives the source.
+pub fn assemble_with_values(
+    doc: &Document,
+    provenance: Option<&str>,
+    outputs: &[Option<&str>],
+    values: &[Option<&str>],
+) -> Assembled {
+    let (settled, left) = settle(doc, values);
+    Assembled {
+        text: assemble_unchecked(doc, provenance, outputs, &settled),
+        left,
+    }
+}
+
+/// The value region of a reference.
+fn value_region(reference: &Reference, value: &str) -> String {
+    let guard = if reference.begins_line {
+        LINE_GUARD
+    } else {
+        ""
+    };
+    format!(
+        "{guard}{VALUE_BEGIN}{}{VALUE_BEGIN_CLOSE}{}{VALUE_END}",
+        reference.text,
+        prepare_value(value)
+    )
+}
+
+/// The values that read back as regions where they were put, and the indices of those left out.
+///
+/// Text before a reference can be completed by its region (an unclosed `<!--` before it in the
+/// paragraph takes the region's `-->` as its end); such a region would not read back. The value
+/// regions alone are put into the source and read back with comrak; the first region not found
+/// where it was put loses its value, until all are found. (Block regions do not matter here: they
+/// are removed before value regions are looked for.)
+fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str>>, Vec<usize>) {
+    let mut settled: Vec<Option<&str>> =
+        values.iter().take(doc.references.len()).copied().collect();
+    let mut left = Vec::new();
+    loop {
+        let mut expected: Vec<(usize, usize, usize)> = Vec::new();
+        let mut grown = 0usize;
+        for (i, (reference, value)) in doc.references.iter().zip(&settled).enumerate() {
+            if let Some(value) = value {
+                let len = value_region(reference, value).len();
+                let start = reference.start + grown;
+                expected.push((i, start, start + len));
+                grown = (grown + len).saturating_sub(reference.end.saturating_sub(reference.start));
+            }
+        }
+        if expected.is_empty() {
+            break;
+        }
+        let text = assemble_unchecked(doc, None, &[], &settled);
+        let found: Vec<(usize, usize)> = values::scan(&text)
+            .regions
+            .iter()
+            .map(|r| (r.start, r.end))
+            .collect();
+        let missing = expected
+            .iter()
+            .find(|(_, start, end)| !found.contains(&(*start, *end)))
+            .map(|(i, _, _)| *i);
+        // A region found where none was put: blame the last region put before it.
+        let extra = || {
+            let (at, _) = found
+                .iter()
+                .find(|f| !expected.iter().any(|(_, s, e)| (*s, *e) == **f))?;
+            expected
+                .iter()
+                .rev()
+                .find(|(_, start, _)| start < at)
+                .or(expected.first())
+                .map(|(i, _, _)| *i)
+        };
+        let Some(bad) = missing.or_else(extra) else {
+            break;
+        };
+        if let Some(slot) = settled.get_mut(bad) {
+            *slot = None;
+        }
+        left.push(bad);
+    }
+    left.sort_unstable();
+    (settled, left)
+}
+
+/// [`assemble_with_values`] without the check that value regions read back.
+fn assemble_unchecked(
+    doc: &Document,
+    provenance: Option<&str>,
+    outputs: &[Option<&str>],
+    values: &[Option<&str>],
+) -> String {
     let source = &doc.source;
-    let mut inserts: Vec<(usize, String)> = Vec::new();
+    // (offset, bytes of the source replaced, text put there)
+    let mut inserts: Vec<(usize, usize, String)> = Vec::new();
     if let Some(body) = provenance {
         let le = predominant(source);
         let body = prepare_body(body, le);
@@ -370,7 +617,7 @@ pub fn assemble_parts(
         } else {
             format!("{PROVENANCE_BEGIN}{le}{body}{PROVENANCE_END}{le}")
         };
-        inserts.push((at, region));
+        inserts.push((at, 0, region));
     }
     for (block, body) in doc.blocks.iter().zip(outputs) {
         if let Some(body) = body {
@@ -379,21 +626,31 @@ pub fn assemble_parts(
                 "{le}{OUTPUT_BEGIN}{le}{}{OUTPUT_END}",
                 prepare_body(body, le)
             );
-            inserts.push((block.insert_at, region));
+            inserts.push((block.insert_at, 0, region));
+        }
+    }
+    for (reference, value) in doc.references.iter().zip(values) {
+        if let Some(value) = value {
+            let region = value_region(reference, value);
+            inserts.push((
+                reference.start,
+                reference.end.saturating_sub(reference.start),
+                region,
+            ));
         }
     }
     // Stable sort: the provenance region stays first at an equal offset.
-    inserts.sort_by_key(|(at, _)| *at);
+    inserts.sort_by_key(|(at, _, _)| *at);
 
-    let extra: usize = inserts.iter().map(|(_, r)| r.len()).sum();
+    let extra: usize = inserts.iter().map(|(_, _, r)| r.len()).sum();
     let mut out = String::with_capacity(source.len() + extra);
     let mut last = 0usize;
-    for (at, region) in &inserts {
+    for (at, replaced, region) in &inserts {
         // Offsets come from `parse`; one that does not fit (a hand-made Document) is skipped.
         if let Some(piece) = source.get(last..*at) {
             out.push_str(piece);
             out.push_str(region);
-            last = *at;
+            last = *at + replaced;
         }
     }
     out.push_str(source.get(last..).unwrap_or(""));

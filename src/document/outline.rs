@@ -49,7 +49,7 @@ pub(super) struct Outline {
 /// comrak options that match what readers of the document see: GitHub-flavoured Markdown
 /// (tables, strikethrough, task lists, autolinks, footnotes). Front matter is found by
 /// [`front_matter_end`] and blanked before parsing.
-fn options() -> Options<'static> {
+pub(super) fn options() -> Options<'static> {
     let mut options = Options::default();
     options.extension.table = true;
     options.extension.strikethrough = true;
@@ -171,7 +171,7 @@ fn bom_len(text: &str) -> usize {
 /// consistent. comrak (0.59) looks for a closing "\n---\r\n" anywhere before it looks for
 /// "\n---\n", so with mixed line endings it can take a `---` line far down the document (say, in
 /// a code block) as the end of the front matter; covey finds the front matter itself instead.
-fn front_matter_end(text: &str) -> Option<usize> {
+pub(super) fn front_matter_end(text: &str) -> Option<usize> {
     let start = bom_len(text);
     let rest = text.get(start..)?;
     let after_open = rest.strip_prefix(FRONT_MATTER_DELIMITER)?;
@@ -197,7 +197,7 @@ fn front_matter_end(text: &str) -> Option<usize> {
 
 /// `text` with the front matter's lines emptied (their line endings kept), so comrak numbers
 /// the lines as in `text` but sees nothing in the front matter.
-fn blank_front_matter(text: &str, end: usize) -> String {
+pub(super) fn blank_front_matter(text: &str, end: usize) -> String {
     let head = text.get(..end).unwrap_or("");
     let mut out: String = head.chars().filter(|&c| c == '\n' || c == '\r').collect();
     out.push_str(text.get(end..).unwrap_or(""));

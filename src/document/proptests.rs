@@ -20,6 +20,18 @@ const PROSE: &[&str] = &[
     "| a | b |",
     "~~struck~~ and https://example.com",
     "[^1]",
+    "a value @[fit m n] here, and @[anova m \"x by y\" p].",
+    "@[means m A mean] begins the line",
+    "  @[means m A se] after spaces",
+    "in a code span `@[fit m n]` and ``@[fit m p]``",
+    "escaped @\\[fit m n] and unclosed @[fit m",
+    "<wbr>@[fit m n] after a guard, x<wbr>@[fit m p] mid-line",
+    "near <!-- covey:output --> @[fit m n] a marker",
+    "| @[means m A mean] | b |",
+    "*@[fit m sigma]* and [@[fit m n]](http://example.com) and ![@[fit m n]](i.png)",
+    "a ` b @[fit m n] c",
+    "<!-- covey:value-end --> text",
+    "a <!-- covey:value @[fit m n] -->broken",
 ];
 
 /// Lines for inside code blocks (none of them closes a fence).
@@ -33,6 +45,8 @@ const CODE: &[&str] = &[
     "<!-- covey:output-end -->",
     "<!-- covey:output -->",
     "---",
+    "@[fit m n]",
+    "<!-- covey:value @[fit m n] -->1<!-- covey:value-end -->",
 ];
 
 /// Output bodies (without markers, so split gives them back exactly).
@@ -46,6 +60,18 @@ const BODIES: &[&str] = &[
     "> quoted ✓\n> more\n",
     "- item\n\n  ```covey\n  nested\n  ```\n",
     "Grüße\t統計\n\n---\n",
+];
+
+/// Values shown for references, including awkward ones that must not break their region.
+const VALUES: &[&str] = &[
+    "1.5",
+    "< .001",
+    "—",
+    "x`y",
+    "back\\",
+    "⟨unresolved: @\\[a b\\]⟩",
+    "<!-- covey:value-end -->",
+    "two\nlines",
 ];
 
 /// One element of a generated document, as lines (without line endings).
@@ -221,7 +247,7 @@ proptest! {
 
     /// Properties 1-6 of the module over generated documents.
     #[test]
-    fn round_trip_properties(g in generated(), (prov, mut outs) in bodies(), pick in any::<usize>()) {
+    fn round_trip_properties(g in generated(), (prov, mut outs) in bodies(), pick in any::<usize>(), vals in prop::collection::vec(prop::sample::select(VALUES), 0..12)) {
         let doc = parse(&g.text).map_err(|e| TestCaseError::fail(format!("{e}")))?;
         // (3) a document without regions passes through unchanged.
         prop_assert_eq!(&doc.source, &g.text);
@@ -236,6 +262,25 @@ proptest! {
             prop_assert_eq!(line_col(&doc.source, b.code_start).0, b.first_line);
         }
         outs.resize(doc.blocks.len(), "o\n".to_string());
+        // References are found exactly where the text holds them.
+        for r in &doc.references {
+            prop_assert_eq!(doc.source.get(r.start..r.end), Some(r.text.as_str()));
+        }
+        // With values for the references (some left without one).
+        let values: Vec<Option<&str>> = (0..doc.references.len())
+            .map(|i| vals.get(i).copied())
+            .collect();
+        let regions: Vec<Option<&str>> = outs.iter().map(|o| Some(o.as_str())).collect();
+        let assembled = assemble_with_values(&doc, Some(&prov), &regions, &values);
+        let live = assembled.text.clone();
+        prop_assert_eq!(strip(&live).map_err(|e| TestCaseError::fail(format!("{e}")))?, doc.source.clone());
+        let live_again = parse(&live).map_err(|e| TestCaseError::fail(format!("{e}")))?;
+        prop_assert_eq!(&live_again.source, &doc.source);
+        prop_assert_eq!(&live_again.blocks, &doc.blocks);
+        prop_assert_eq!(&live_again.references, &doc.references);
+        prop_assert_eq!(assemble_with_values(&live_again, Some(&prov), &regions, &values), assembled.clone());
+        let live_split = split_rendered(&live).map_err(|e| TestCaseError::fail(format!("{e}")))?;
+        prop_assert_eq!(&live_split.source, &doc.source);
         let rendered = assemble(&doc, &prov, &outs);
         // (1) strip gives the source back.
         prop_assert_eq!(strip(&rendered).map_err(|e| TestCaseError::fail(format!("{e}")))?, doc.source.clone());
@@ -279,7 +324,22 @@ proptest! {
             }
             let mut edited = rendered.clone();
             edited.insert_str(at + regions_before, &edit);
-            prop_assert_eq!(strip(&edited).map_err(|e| TestCaseError::fail(format!("{e}")))?, edited_source);
+            prop_assert_eq!(strip(&edited).map_err(|e| TestCaseError::fail(format!("{e}")))?, edited_source.clone());
+            // The same edit in the rendering with values: value regions before `at` grew the
+            // text by their length less their reference's.
+            let grown: usize = doc.references.iter().zip(&values)
+                .enumerate()
+                .filter(|(i, (r, v))| r.end <= at && v.is_some() && !assembled.left.contains(i))
+                .map(|(_, rv)| rv)
+                .map(|(r, v)| {
+                    let guard = if r.begins_line { LINE_GUARD.len() } else { 0 };
+                    guard + VALUE_BEGIN.len() + VALUE_BEGIN_CLOSE.len() + VALUE_END.len()
+                        + prepare_value(v.unwrap_or("")).len()
+                })
+                .sum();
+            let mut edited_live = live.clone();
+            edited_live.insert_str(at + regions_before + grown, &edit);
+            prop_assert_eq!(strip(&edited_live).map_err(|e| TestCaseError::fail(format!("{e}")))?, edited_source);
         }
     }
 
@@ -290,15 +350,23 @@ proptest! {
         ">", "> ", "- ", "1. ", "* ", "---", "---\n", "[", "]", "(", ")", "*", "_", "|", "|-|",
         "é", "統", "\u{feff}", "\0", "x", "# ", "[^1]: ", "<div>", "<!--", "-->",
         "<!-- covey:output -->", "<!-- covey:output-end -->", "<!-- covey:provenance -->",
-        "<!-- covey:provenance-end -->", "<!-- covey:",
+        "<!-- covey:provenance-end -->", "<!-- covey:", "@[", "@[fit m n]", "<wbr>", "\\",
+        "<!-- covey:value @[fit m n] -->", "<!-- covey:value-end -->",
     ]), 0..60), prov in prop::sample::select(BODIES), out in prop::sample::select(BODIES)) {
         let text: String = pieces.concat();
-        let _ = strip(&text);
+        // Stripping what was stripped changes nothing more.
+        if let Ok(once) = strip(&text) {
+            prop_assert_eq!(strip(&once).ok(), Some(once.clone()));
+        }
         let _ = split_rendered(&text);
         if let Ok(doc) = parse(&text) {
             let (line, column) = line_col(&text, text.len());
             prop_assert!(line >= 1 && column >= 1);
             let outs = vec![out.to_string(); doc.blocks.len()];
+            let values = vec![Some("1.5"); doc.references.len()];
+            let regions: Vec<Option<&str>> = outs.iter().map(|o| Some(o.as_str())).collect();
+            let live = assemble_with_values(&doc, Some(prov), &regions, &values).text;
+            prop_assert_eq!(strip(&live).map_err(|e| TestCaseError::fail(format!("{e}")))?, doc.source.clone());
             let rendered = assemble(&doc, prov, &outs);
             prop_assert_eq!(strip(&rendered).map_err(|e| TestCaseError::fail(format!("{e}")))?, doc.source.clone());
             let again = parse(&rendered).map_err(|e| TestCaseError::fail(format!("{e}")))?;

@@ -20,6 +20,9 @@ use super::{
 pub(super) enum Kind {
     Provenance,
     Output,
+    /// A value region in prose (see `values`); each is two removals, before and after its
+    /// reference.
+    Value,
 }
 
 /// One removed region.

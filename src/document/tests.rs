@@ -375,8 +375,17 @@ fn hand_made_document_does_not_panic() {
         ignored_nested: vec![],
         removed: vec![],
         had_regions: false,
+        references: vec![Reference {
+            text: "@[a b c]".to_string(),
+            start: 1,
+            end: 0,
+            line: 1,
+            column: 1,
+            begins_line: true,
+        }],
     };
     assert_eq!(assemble(&d, "p", &outs(&["o"])), "é");
+    let _ = assemble_with_values(&d, None, &[], &[Some("v")]);
 }
 
 /// Pathological inputs must parse quickly (comrak is linear on these; the limit is generous for
@@ -481,4 +490,160 @@ fn many_marker_lines_in_user_text_are_cheap() {
     let fences = "```covey\n```\n\n```\n<!-- covey:output -->\n".repeat(2000);
     let _ = strip(&fences);
     assert!(start.elapsed() < LIMIT);
+}
+
+/// Render with one value per reference, then check strip, re-parse and re-render.
+fn values_round_trip(text: &str, values: &[&str]) -> String {
+    let d = doc(text);
+    let vals: Vec<Option<&str>> = values.iter().map(|v| Some(*v)).collect();
+    let bodies = vec![Some("o\n"); d.blocks.len()];
+    let rendered = assemble_with_values(&d, Some("p\n"), &bodies, &vals).text;
+    assert_eq!(
+        strip(&rendered).as_deref(),
+        Ok(d.source.as_str()),
+        "{rendered}"
+    );
+    let again = doc(&rendered);
+    assert_eq!(again.source, d.source);
+    assert_eq!(again.references, d.references);
+    assert_eq!(again.blocks, d.blocks);
+    assert_eq!(
+        assemble_with_values(&again, Some("p\n"), &bodies, &vals).text,
+        rendered
+    );
+    let split = split_rendered(&rendered).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(split.source, d.source);
+    rendered
+}
+
+fn reference_texts(d: &Document) -> Vec<&str> {
+    d.references.iter().map(|r| r.text.as_str()).collect()
+}
+
+#[test]
+fn references_are_found_in_prose_only() {
+    let text = "# Head @[fit m n]\n\nSome @[anova m x p] and `@[anova m x p]` code, @\\[a b c] \
+                escaped, <span title=\"@[q r s]\">html</span>, [l](https://e.com/@[x]), \
+                ![@[fit m n]](i.png), *@[fit m sigma]*.\n\n```text\n@[fit m n]\n```\n\n    \
+                @[fit m n]\n\n<div>\n@[fit m n]\n</div>\n\n| a |\n|---|\n| @[means m A mean] |\n";
+    let d = doc(text);
+    assert_eq!(
+        reference_texts(&d),
+        vec![
+            "@[fit m n]",
+            "@[anova m x p]",
+            "@[fit m sigma]",
+            "@[means m A mean]"
+        ]
+    );
+    for r in &d.references {
+        assert_eq!(text.get(r.start..r.end), Some(r.text.as_str()));
+        assert_eq!(line_col(text, r.start), (r.line, r.column));
+    }
+    values_round_trip(text, &["1", "2", "3", "4"]);
+}
+
+#[test]
+fn references_after_tabs_unicode_and_a_byte_order_mark() {
+    let text = "\u{feff}Grüße\t統計 @[fit m n] x\r\n\r\n- \titem ✓ @[fit m sigma]\r\n";
+    let d = doc(text);
+    assert_eq!(reference_texts(&d), vec!["@[fit m n]", "@[fit m sigma]"]);
+    let first = &d.references[0];
+    // The byte-order mark counts as a character, as in every message's column.
+    assert_eq!((first.line, first.column), (1, 11));
+    values_round_trip(text, &["12", "0.5"]);
+}
+
+#[test]
+fn a_region_that_begins_a_line_gets_a_guard() {
+    let text = "Text\n@[fit m n] first on a line\n\n- @[fit m sigma]\n\n> @[fit m p]\n\nA\n===\n\n@[a b c]\n===\n";
+    let d = doc(text);
+    let begins: Vec<bool> = d.references.iter().map(|r| r.begins_line).collect();
+    assert_eq!(begins, vec![true, true, true, true]);
+    let r = values_round_trip(text, &["1", "2", "3", "4"]);
+    assert!(r.contains("Text\n<wbr><!-- covey:value @[fit m n] -->1<!-- covey:value-end --> first"));
+    // The rendered line is still a paragraph line: no HTML block starts there.
+    let again = doc(&r);
+    assert_eq!(again.references.len(), 4);
+}
+
+#[test]
+fn a_guard_the_user_wrote_survives() {
+    let text = "<wbr>@[fit m n] and x<wbr>@[fit m p] and\n<wbr> <wbr>@[fit m sigma]\n";
+    let d = doc(text);
+    let begins: Vec<bool> = d.references.iter().map(|r| r.begins_line).collect();
+    assert_eq!(begins, vec![true, false, true]);
+    values_round_trip(text, &["1", "2", "3"]);
+}
+
+#[test]
+fn awkward_values_cannot_break_their_region() {
+    // One backtick: no code span, unless a value closed it.
+    let text = "a ` b @[fit m n] c and @[fit m p] \\\n";
+    let r = values_round_trip(text, &["x`y\nz", "back\\"]);
+    assert!(r.contains("-->xˋy z<!-- covey:value-end -->"), "{r}");
+    assert!(r.contains("-->back\\ <!-- covey:value-end -->"), "{r}");
+    let marker = "<!-- covey:output -->";
+    values_round_trip("q @[fit m n]\n", &[marker]);
+}
+
+#[test]
+fn damaged_value_regions_stay_as_written() {
+    // A region split over two lines, or without its end, is not covey's any more.
+    for text in [
+        "a <!-- covey:value @[fit m n] -->1\n<!-- covey:value-end --> b\n",
+        "a <!-- covey:value @[fit m n] -->1 b\n",
+        "a <!-- covey:value not a ref -->1<!-- covey:value-end --> b\n",
+        "`<!-- covey:value @[fit m n] -->1<!-- covey:value-end -->`\n",
+    ] {
+        let d = doc(text);
+        assert_eq!(d.source, text);
+        assert!(d.references.is_empty(), "{text}");
+    }
+    // One opened inside another spoils both, so stripping twice changes nothing more.
+    let nested = "[<!-- covey:value @[fit m n] --><!-- covey:value @[fit m n] --><!-- covey:value-end --><!-- covey:value-end -->\n";
+    assert_eq!(strip(nested).as_deref(), Ok(nested));
+    // A whole one in prose is a region: it gives back its reference.
+    let text = "a <!-- covey:value @[fit m n] -->1<!-- covey:value-end --> b\n";
+    assert_eq!(strip(text).as_deref(), Ok("a @[fit m n] b\n"));
+}
+
+#[test]
+fn value_regions_and_block_regions_together() {
+    let text = "Before @[fit m n].\n\n```covey\nx\n```\nAfter @[fit m p] and @[fit m q].\n";
+    let r = values_round_trip(text, &["1", "22", "333"]);
+    let d = doc(&r);
+    // Offsets in the source map back to the text given: the block's code, and each reference's
+    // copy in its opening comment.
+    assert_eq!(d.blocks[0].code, "x\n");
+    let shift = |at: usize| {
+        at + d
+            .removed
+            .iter()
+            .filter(|(pos, _)| *pos <= at)
+            .map(|(_, len)| len)
+            .sum::<usize>()
+    };
+    for reference in &d.references {
+        let at = shift(reference.start);
+        assert_eq!(
+            r.get(at..at + reference.text.len()),
+            Some(reference.text.as_str())
+        );
+    }
+}
+
+#[test]
+fn a_value_that_would_close_open_html_is_left_out() {
+    let text = "`<!-- covey:@[fit m n] and @[fit m p]\n\nNext paragraph @[fit m q].\n";
+    let d = doc(text);
+    assert_eq!(d.references.len(), 3);
+    let a = assemble_with_values(&d, None, &[], &[Some("1"), Some("2"), Some("3")]);
+    // Each region's `-->` would end the comment left open before it; the next paragraph is
+    // clear of it.
+    assert_eq!(a.left, vec![0, 1]);
+    assert_eq!(strip(&a.text).as_deref(), Ok(text));
+    assert!(a
+        .text
+        .contains("Next paragraph <!-- covey:value @[fit m q] -->3<!--"));
 }

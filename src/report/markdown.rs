@@ -79,40 +79,47 @@ fn longest_run(text: &str, ch: char) -> usize {
     best
 }
 
+/// The cells of column `j` of a table as its Markdown shows them (empty when there is no such
+/// column): text escaped, numbers formatted by the column's [`Format`].
+pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
+    let Some(c) = t.columns.get(j) else {
+        return Vec::new();
+    };
+    let cells = t.rows.iter().map(|r| r.get(j).unwrap_or(&Cell::Missing));
+    if c.format == Format::Text {
+        cells
+            .map(|cell| match cell {
+                Cell::Text(s) => escape(s),
+                Cell::Number(x) => super::number::exact(Some(*x)),
+                Cell::Missing => MISSING.to_string(),
+            })
+            .collect()
+    } else {
+        // Text cells in a numeric column (rare: a label row) keep their text.
+        let nums: Vec<Option<f64>> = t
+            .rows
+            .iter()
+            .map(|r| match r.get(j) {
+                Some(Cell::Number(x)) => Some(*x),
+                _ => None,
+            })
+            .collect();
+        let mut f = format_column(&nums, c.format);
+        for (i, r) in t.rows.iter().enumerate() {
+            if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), f.get_mut(i)) {
+                *slot = escape(s);
+            }
+        }
+        f
+    }
+}
+
 /// A table with its caption and notes. Numbers are right-aligned, text
 /// left-aligned.
 pub fn table(t: &Table) -> String {
-    let mut cols: Vec<Vec<String>> = Vec::with_capacity(t.columns.len());
-    for (j, c) in t.columns.iter().enumerate() {
-        let cells = t.rows.iter().map(|r| r.get(j).unwrap_or(&Cell::Missing));
-        let formatted = if c.format == Format::Text {
-            cells
-                .map(|cell| match cell {
-                    Cell::Text(s) => escape(s),
-                    Cell::Number(x) => super::number::exact(Some(*x)),
-                    Cell::Missing => MISSING.to_string(),
-                })
-                .collect()
-        } else {
-            // Text cells in a numeric column (rare: a label row) keep their text.
-            let nums: Vec<Option<f64>> = t
-                .rows
-                .iter()
-                .map(|r| match r.get(j) {
-                    Some(Cell::Number(x)) => Some(*x),
-                    _ => None,
-                })
-                .collect();
-            let mut f = format_column(&nums, c.format);
-            for (i, r) in t.rows.iter().enumerate() {
-                if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), f.get_mut(i)) {
-                    *slot = escape(s);
-                }
-            }
-            f
-        };
-        cols.push(formatted);
-    }
+    let cols: Vec<Vec<String>> = (0..t.columns.len())
+        .map(|j| formatted_column(t, j))
+        .collect();
     let mut out = String::new();
     out.push_str(&format!("**{}**\n\n", t.caption));
     out.push('|');

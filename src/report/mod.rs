@@ -6,6 +6,7 @@
 
 pub mod html;
 pub mod json;
+pub mod live;
 pub mod markdown;
 pub mod number;
 
@@ -105,6 +106,9 @@ pub struct Table {
     /// The model (or data set) the table describes, when it has one; live
     /// references in prose find tables by it.
     pub subject: Option<String>,
+    /// The confidence level of the table's limits, when it has limits; live references to
+    /// pairs say it.
+    pub level: Option<f64>,
 }
 
 impl Table {
@@ -116,6 +120,7 @@ impl Table {
             rows: Vec::new(),
             notes: Vec::new(),
             subject: None,
+            level: None,
         }
     }
 

@@ -294,6 +294,8 @@ impl Session<'_> {
                 Col::new("max", "max", Format::Digits(4)),
             ],
         );
+        // Live references in prose name a summary by its column.
+        t.subject = Some(column.value.clone());
         match by {
             None => t.push(summary_row("all", values.iter().copied())),
             Some(b) => {

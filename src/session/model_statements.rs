@@ -392,6 +392,7 @@ impl Session<'_> {
                         Col::new("upper", "upper", Format::Digits(4)),
                     ],
                 );
+                t.level = Some(level);
                 for r in rows {
                     t.push(vec![
                         r.first.into(),
