@@ -365,10 +365,18 @@ fn value(parsed: &Parsed, table: &Table) -> Result<String, LiveError> {
                     .map(|c| c.key.clone())
                     .collect(),
             })?;
-        Ok(formatted_column(table, j)
+        let text = formatted_column(table, j)
             .get(row)
             .cloned()
-            .unwrap_or_else(|| MISSING.to_string()))
+            .unwrap_or_else(|| MISSING.to_string());
+        // A p-value carries its relation ("= .003", "< .001"), so that prose
+        // reads "*p* @[...]" correctly whichever side of .001 it falls.
+        let is_p = table.columns.get(j).is_some_and(|c| c.format == Format::P);
+        Ok(if is_p && text != MISSING && !text.starts_with(['<', '>']) {
+            format!("= {text}")
+        } else {
+            text
+        })
     };
     match column {
         Some(name) => cell(name),
@@ -450,7 +458,7 @@ mod tests {
     fn values_are_formatted_as_in_the_table() {
         let out = outputs(anova());
         // p in APA style (Format::P), F with two decimals (Format::Statistic).
-        assert_eq!(resolve("@[anova m group p]", &out).as_deref(), Ok(".003"));
+        assert_eq!(resolve("@[anova m group p]", &out).as_deref(), Ok("= .003"));
         assert_eq!(
             resolve("@[anova m \"x by y\" p]", &out).as_deref(),
             Ok("< .001")
@@ -491,6 +499,6 @@ mod tests {
         }
         let mut out = outputs(anova());
         out.extend(outputs(second));
-        assert_eq!(resolve("@[anova m group p]", &out).as_deref(), Ok(".500"));
+        assert_eq!(resolve("@[anova m group p]", &out).as_deref(), Ok("= .500"));
     }
 }
