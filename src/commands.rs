@@ -169,6 +169,7 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
             report.fail(e.to_string());
             continue;
         }
+        remove_stale_figures(&folder, doc, &run.figures);
         for e in &run.errors {
             report.fail(e.clone());
         }
@@ -189,6 +190,26 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
         ));
     }
     report
+}
+
+/// Removes figure files of an earlier render that this one no longer
+/// draws. Only files named as covey names figures (`blockB-K.svg`) in the
+/// document's own figures folder are touched.
+fn remove_stale_figures(folder: &Path, doc: &Path, figures: &[(String, String)]) {
+    let stem = display_name(doc);
+    let stem = stem.strip_suffix(".md").unwrap_or(&stem);
+    let dir_name = format!("{stem}.figures");
+    let Ok(entries) = std::fs::read_dir(folder.join(&dir_name)) else {
+        return;
+    };
+    for entry in entries.flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        let ours = name.starts_with("block") && name.ends_with(".svg");
+        let rel = format!("{dir_name}/{name}");
+        if ours && !figures.iter().any(|(f, _)| *f == rel) {
+            let _ = std::fs::remove_file(entry.path());
+        }
+    }
 }
 
 fn same_file(a: &Path, b: &Path) -> bool {

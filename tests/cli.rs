@@ -428,3 +428,43 @@ fn watch_renders_again_when_data_change() {
             || read(&dir.join("doc.rendered.md")).contains("17.25")
     );
 }
+
+#[test]
+fn figures_are_written_and_stale_ones_removed() {
+    let dir = setup("figures");
+    let with_two = DOC.replace(
+        "table summary y by group\n",
+        "table summary y by group\nmodel m: y on group + x\nplot lines m\nplot residuals m\n",
+    );
+    write(&dir.join("doc.md"), &with_two);
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(dir.join("doc.figures/block1-1.svg").exists());
+    assert!(dir.join("doc.figures/block1-2.svg").exists());
+    assert!(read(&dir.join("doc.rendered.md")).contains("](doc.figures/block1-2.svg)"));
+    write(&dir.join("doc.figures/notes.txt"), "the user's own file");
+    write(
+        &dir.join("doc.md"),
+        &with_two.replace("plot residuals m\n", ""),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(dir.join("doc.figures/block1-1.svg").exists());
+    assert!(
+        !dir.join("doc.figures/block1-2.svg").exists(),
+        "a figure no longer drawn is removed"
+    );
+    assert!(
+        dir.join("doc.figures/notes.txt").exists(),
+        "other files are left alone"
+    );
+    // check compares the figures too.
+    assert_eq!(covey(&dir, &["check", "doc.md"]).0, 0);
+    write(&dir.join("doc.figures/block1-1.svg"), "<svg/>");
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 1);
+    assert!(
+        err.contains("figure doc.figures/block1-1.svg differs"),
+        "{err}"
+    );
+}

@@ -372,11 +372,13 @@ fn value(parsed: &Parsed, table: &Table) -> Result<String, LiveError> {
         // A p-value carries its relation ("= .003", "< .001"), so that prose
         // reads "*p* @[...]" correctly whichever side of .001 it falls.
         let is_p = table.columns.get(j).is_some_and(|c| c.format == Format::P);
-        Ok(if is_p && text != MISSING && !text.starts_with(['<', '>']) {
-            format!("= {text}")
-        } else {
-            text
-        })
+        Ok(
+            if is_p && text != MISSING && !text.starts_with(['<', '>']) {
+                format!("= {text}")
+            } else {
+                text
+            },
+        )
     };
     match column {
         Some(name) => cell(name),
