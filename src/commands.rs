@@ -318,6 +318,14 @@ fn differences(run: &Run, on_disk: &str) -> Option<Vec<String>> {
             if let Some(fresh) = &fresh {
                 if old.provenance != fresh.provenance {
                     out.push("the inputs changed (a data file's contents or row count, or covey's version)".into());
+                    // Name each input whose current digest the old provenance lacks.
+                    let old_text = old.provenance.as_deref().unwrap_or("");
+                    for input in run.inputs.iter().filter(|i| !old_text.contains(&i.sha256)) {
+                        out.push(format!(
+                            "changed input: {} (SHA-256 now {})",
+                            input.path, input.sha256
+                        ));
+                    }
                 }
                 let n = old.outputs.len().max(fresh.outputs.len());
                 let changed: Vec<String> = (0..n)

@@ -225,6 +225,9 @@ pub fn run(
     for reference in &doc.references {
         match live::resolve(&reference.text, &outputs) {
             Ok(value) => values.push(value),
+            // After a failure stopped the run, a table the reference needs
+            // may simply not have been computed: that is no new error.
+            Err(_) if stopped => values.push(live::unresolved(&reference.text)),
             Err(e) => {
                 let span = Span {
                     start: reference.start,

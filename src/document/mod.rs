@@ -194,8 +194,8 @@ impl fmt::Display for DocumentError {
                 fence,
             } => write!(
                 f,
-                "line {line}, column {column}: this covey block is never closed; add a closing \
-                 fence `{fence}` on a line of its own after the block's last line"
+                "line {line}, column {column}: this covey block is never closed; add a line holding \
+                 only {fence} (the closing fence) after the block's last line"
             ),
             DocumentError::MissingEndMarker {
                 line,

@@ -181,7 +181,9 @@ fn unclosed_fence_is_an_error_with_position() {
     let e = err("text\n\n  ~~~~covey\nx\n");
     assert_eq!((e.line(), e.column()), (3, 3));
     assert!(matches!(&e, DocumentError::UnclosedFence { fence, .. } if fence == "~~~~"));
-    assert!(e.to_string().contains("add a closing fence `~~~~`"));
+    assert!(e
+        .to_string()
+        .contains("add a line holding only ~~~~ (the closing fence)"));
     // strip does not care about fences.
     assert_eq!(strip("```covey\nx\n").as_deref(), Ok("```covey\nx\n"));
 }

@@ -71,18 +71,21 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
     };
     // Point at the whole offending word, not just its first byte.
     let rest = &text[pos.min(text.len())..];
-    let word_len = rest
-        .char_indices()
-        .find(|(_, c)| c.is_whitespace())
-        .map_or(rest.len(), |(i, _)| i);
+    // At least one whole character (a leading space such as U+00A0 is
+    // several bytes), so the span and the quoted word end on a boundary.
+    let word_len = match rest.char_indices().find(|(_, c)| c.is_whitespace()) {
+        Some((0, c)) => c.len_utf8(),
+        Some((i, _)) => i,
+        None => rest.len(),
+    };
     let span = Span {
         start: offset + pos,
-        end: offset + pos + word_len.max(usize::from(!rest.is_empty())),
+        end: offset + pos + word_len,
     };
     let found = if rest.trim().is_empty() {
         "the end of the line".to_string()
     } else {
-        format!("`{}`", &rest[..word_len.max(1).min(rest.len())])
+        format!("`{}`", rest.get(..word_len).unwrap_or(rest))
     };
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, .. } => {

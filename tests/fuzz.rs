@@ -1,0 +1,304 @@
+//! Bounded fuzzing with proptest: arbitrary and covey-shaped document text
+//! through the whole pipeline, arbitrary lines through the parser, and
+//! arbitrary bytes through the delimited-file reader. Every case must end
+//! without a panic and within `CASE_LIMIT`; inputs are capped at about
+//! `MAX_INPUT` bytes, which bounds memory too.
+
+use covey::data::{read_delimited, LoadOptions};
+use covey::lang::parse_line;
+use covey::pipeline::{self, RunOptions};
+use covey::world::MemoryWorld;
+use proptest::prelude::*;
+use std::time::{Duration, Instant};
+
+/// Generous per-case time limit: a 10 kB input takes milliseconds in
+/// release, so one second only trips on runaway (super-linear) behaviour.
+const CASE_LIMIT: Duration = Duration::from_secs(1);
+
+/// Size cap of a generated input, in bytes (about 10 kB).
+const MAX_INPUT: usize = 10_000;
+
+/// Invented data for the documents to load.
+const DATA: &str = "g,x,y,z\nA,1.5,2.0,1\nA,2.5,2.9,2\nA,3.1,3.8,3\nB,1.0,3.1,1\nB,3.0,4.4,2\nB,2.2,4.0,2\nC,2.0,5.2,3\nC,2.4,5.0,1\nC,0.9,4.1,2\n";
+
+fn world() -> MemoryWorld {
+    MemoryWorld::new()
+        .with("d.csv", DATA)
+        .with("t.tsv", DATA.replace(',', "\t"))
+}
+
+/// Words of the covey language and near misses, to reach deep into the grammar.
+const WORDS: &[&str] = &[
+    "load",
+    "\"d.csv\"",
+    "\"t.tsv\"",
+    "as",
+    "d",
+    "missing",
+    "\"NA\"",
+    "use",
+    "factor",
+    "g",
+    "levels",
+    "A",
+    "B",
+    "C",
+    "keep",
+    "where",
+    "x",
+    ">",
+    "<=",
+    "==",
+    "!=",
+    "in",
+    "(",
+    ")",
+    "and",
+    "or",
+    "not",
+    "show",
+    "model",
+    "m",
+    "n",
+    ":",
+    "y",
+    "on",
+    "+",
+    "by",
+    "x^2",
+    "x^3",
+    "x^9",
+    "log(x)",
+    "sqrt(x)",
+    "log(",
+    "without",
+    "intercept",
+    "table",
+    "summary",
+    "fit",
+    "coefficients",
+    "anova",
+    "type",
+    "1",
+    "2",
+    "3",
+    "compare",
+    "m,",
+    "means",
+    "for",
+    "at",
+    "=",
+    "pairs",
+    "adjust",
+    "tukey",
+    "holm",
+    "sidak",
+    "none",
+    "slopes",
+    "of",
+    "contrast",
+    "weights",
+    "1,",
+    "-1",
+    "0.5",
+    "regions",
+    "between",
+    "alpha",
+    "0.05",
+    "level",
+    "0.99",
+    "check",
+    "plot",
+    "lines",
+    "residuals",
+    "quantiles",
+    "influence",
+    "groups",
+    "unit",
+    "\"kg\"",
+    "param",
+    "@p",
+    "@q",
+    "require",
+    "equal",
+    "rows",
+    "per",
+    "balance",
+    "normality",
+    "report",
+    "term",
+    "#",
+    "\"",
+    "\\",
+    "~",
+    "1e400",
+    "-0",
+    "NaN",
+    "z",
+    "é",
+    "\t",
+];
+
+/// A covey-shaped line: words of the language in random order.
+fn covey_line() -> impl Strategy<Value = String> {
+    prop::collection::vec(prop::sample::select(WORDS), 0..12).prop_map(|w| w.join(" "))
+}
+
+/// Plausible statements, so that models really get fitted.
+const STATEMENTS: &[&str] = &[
+    "load \"d.csv\"",
+    "factor g levels A, B, C",
+    "factor g",
+    "factor z",
+    "model m: y on g + x",
+    "model n: y on g + x + g by x",
+    "model m: y on x^2 + log(x) without intercept",
+    "keep where x > 1 and not g in (C)",
+    "table anova m type 3",
+    "table pairs m for g adjust holm",
+    "table slopes n of x for g",
+    "table regions n of x for g between A and C",
+    "table means m for g at x = 2",
+    "table compare m, n",
+    "check m",
+    "plot lines m",
+    "require 2 rows per g",
+    "param p = 0.5",
+    "report m term g",
+];
+
+fn document() -> impl Strategy<Value = String> {
+    let line = prop_oneof![
+        3 => prop::sample::select(STATEMENTS).prop_map(str::to_string),
+        2 => covey_line(),
+        1 => "\\PC{0,40}",
+    ];
+    let block = prop::collection::vec(line, 0..10).prop_map(|ls| ls.join("\n"));
+    let piece = prop_oneof![
+        block.prop_map(|b| format!("```covey\n{b}\n```")),
+        Just("<!-- covey:output -->".to_string()),
+        Just("<!-- covey:output-end -->".to_string()),
+        Just("<!-- covey:provenance -->".to_string()),
+        Just("```covey".to_string()),
+        "\\PC{0,60}",
+    ];
+    prop::collection::vec(piece, 0..8).prop_map(|ps| {
+        let mut text = ps.join("\n");
+        // Cap the size at a character boundary.
+        while text.len() > MAX_INPUT {
+            text.pop();
+        }
+        text
+    })
+}
+
+/// Delimited-file bytes: mostly CSV-shaped, sometimes anything.
+fn delimited_bytes() -> impl Strategy<Value = Vec<u8>> {
+    let cell = prop_oneof![
+        Just(b"1.5".to_vec()),
+        Just(b"-2e3".to_vec()),
+        Just(b"A".to_vec()),
+        Just(b"\"q,\"\"x\"".to_vec()),
+        Just(b"\"".to_vec()),
+        Just(b"".to_vec()),
+        Just(b"NA".to_vec()),
+        Just(b"1,234".to_vec()),
+        Just(b"\xef\xbb\xbf".to_vec()),
+        Just(b"\xff\xfe".to_vec()),
+        Just(b"\0".to_vec()),
+        Just(b"\r\n".to_vec()),
+        prop::collection::vec(any::<u8>(), 0..8),
+    ];
+    let sep = prop_oneof![
+        Just(b",".to_vec()),
+        Just(b"\n".to_vec()),
+        Just(b"\t".to_vec())
+    ];
+    let shaped = prop::collection::vec((cell, sep), 0..400).prop_map(|parts| {
+        let mut out = Vec::new();
+        for (c, s) in parts {
+            out.extend(c);
+            out.extend(s);
+        }
+        out.truncate(MAX_INPUT);
+        out
+    });
+    prop_oneof![shaped, prop::collection::vec(any::<u8>(), 0..MAX_INPUT)]
+}
+
+fn timed<T>(what: &str, f: impl FnOnce() -> T) -> T {
+    let start = Instant::now();
+    let out = f();
+    let took = start.elapsed();
+    assert!(took < CASE_LIMIT, "{what} took {took:?}");
+    out
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 800, failure_persistence: None, ..ProptestConfig::default() })]
+
+    #[test]
+    fn documents_never_panic(text in document()) {
+        let w = world();
+        let _ = timed("pipeline::run", || pipeline::run(&text, "fuzz.md", &w, RunOptions::default()));
+    }
+
+    #[test]
+    fn documents_with_options_never_panic(text in document(), set in "[a-z@=0-9.\"]{0,12}") {
+        let w = world();
+        let opts = RunOptions {
+            keep_going: true,
+            override_gates: true,
+            params: vec![("p".to_string(), set)],
+        };
+        let _ = timed("pipeline::run", || pipeline::run(&text, "fuzz.md", &w, opts));
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 6000, failure_persistence: None, ..ProptestConfig::default() })]
+
+    #[test]
+    fn lines_never_panic(line in prop_oneof![covey_line(), "\\PC{0,200}", ".{0,200}"]) {
+        let _ = timed("parse_line", || parse_line(&line, 0, 1));
+    }
+
+    #[test]
+    fn long_lines_never_panic(line in prop::collection::vec(prop::sample::select(WORDS), 0..2000)) {
+        let mut text = line.join(" ");
+        text.truncate(text.char_indices().map(|(i, _)| i).take_while(|i| *i <= MAX_INPUT).last().unwrap_or(0));
+        let _ = timed("parse_line", || parse_line(&text, 17, 3));
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 3000, failure_persistence: None, ..ProptestConfig::default() })]
+
+    #[test]
+    fn bytes_never_panic(bytes in delimited_bytes(), tab in any::<bool>(), marker in any::<bool>()) {
+        let opts = LoadOptions {
+            name: "fuzz".to_string(),
+            delimiter: if tab { b'\t' } else { b',' },
+            missing: if marker { vec!["NA".to_string(), String::new()] } else { Vec::new() },
+        };
+        let _ = timed("read_delimited", || read_delimited(&bytes, &opts));
+    }
+}
+
+/// Regression (found by `lines_never_panic`): a line starting with a
+/// multi-byte space such as U+00A0 or U+2009 sliced the line inside the
+/// character when the syntax error quoted the offending word.
+#[test]
+fn a_line_starting_with_a_wide_space_is_an_error_not_a_panic() {
+    for line in [
+        "\u{a0}0",
+        "\u{2009}&x",
+        "load\u{a0}\"d.csv\"",
+        "model m:\u{3000}y on x",
+    ] {
+        assert!(parse_line(line, 0, 1).is_err(), "{line:?}");
+    }
+    let doc = "```covey\n\u{a0}load \"d.csv\"\n```\n";
+    let run = pipeline::run(doc, "fuzz.md", &world(), RunOptions::default());
+    assert!(run.is_err());
+}
