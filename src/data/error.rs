@@ -86,6 +86,13 @@ pub enum LoadError {
         /// Why it is refused and what to do.
         suggestion: Suggestion,
     },
+    /// A text column with more distinct cell texts than covey can number (about 4.3e9).
+    TooManyTexts {
+        /// Line where the row starts.
+        line: usize,
+        /// Column name.
+        name: String,
+    },
     /// The delimited-text reader failed on this line for another reason.
     Malformed {
         /// Line where the reader stopped.
@@ -192,6 +199,11 @@ impl fmt::Display for LoadError {
                 "line {line}, column {column} ('{name}'): '{text}' {} in a column of numbers; {}",
                 suggestion.reason(),
                 suggestion.advice(text)
+            ),
+            LoadError::TooManyTexts { line, name } => write!(
+                f,
+                "line {line}: column '{name}' has more distinct texts than covey can hold; \
+                 split the file"
             ),
             LoadError::Malformed { line } => write!(
                 f,

@@ -124,6 +124,13 @@ impl ExactScan {
         }
     }
 
+    /// Whether [`ExactScan::observe`] could learn anything from a plain decimal cell with
+    /// `digits` digits in all (a bound on its significant digits): only from the first cell,
+    /// or from a long one while no cell has been long or non-plain yet.
+    pub(crate) fn wants_plain(&self, digits: usize) -> bool {
+        self.first.is_none() || (!self.not_plain && !self.long && digits > EXACT_MIN_DIGITS)
+    }
+
     /// The offset to use, when the column should keep exact residuals: some cell is long,
     /// every cell is a plain decimal, and the first cell's integer part is a usable,
     /// non-zero offset (a zero offset would gain nothing).

@@ -135,7 +135,7 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                 .copied()
                 .filter(|x| !x.is_nan())
                 .map(|x| Key::Num(num_key(x))),
-            Values::Text(v) => v.get(row).and_then(|s| s.as_deref()).map(Key::Text),
+            Values::Text(v) => v.get(row).map(Key::Text),
             Values::Factor(f) => f.level_of(row).map(Key::Text),
         };
         let Some(key) = key else {

@@ -1,13 +1,13 @@
 //! Reading delimited text (CSV, TSV) into typed columns.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap};
 
 use csv::{ByteRecord, ReaderBuilder};
 
 use super::error::LoadError;
 use super::exact::{self, ExactScan};
 use super::number::{parse_trimmed, NumberParse, Suggestion};
-use super::{Column, DataSet, ExactValues, Values};
+use super::{Column, DataSet, ExactValues, TextValues, Values};
 
 /// Longest physical line accepted, in bytes. Real data rows are far shorter; a longer line
 /// almost always means a wrong delimiter, a missing line break, or a file that is not text.
@@ -162,9 +162,98 @@ enum Builder {
         scan: ExactScan,
     },
     Text {
-        values: Vec<Option<String>>,
+        values: TextValues,
+        /// Code of each distinct cell text seen so far (looked up, never iterated).
+        seen: HashMap<Vec<u8>, u32, FnvBuild>,
         refill_upto: usize,
     },
+}
+
+/// The 64-bit FNV-1a hash (Fowler, Noll & Vo; as specified in the IETF draft
+/// draft-eastlake-fnv): much cheaper than the standard library's keyed hash for the short cell
+/// texts of a text column. The map it serves is only looked up, never iterated, so the hash
+/// cannot reach any output.
+#[derive(Default, Clone, Copy)]
+struct Fnv(u64);
+
+/// FNV-1a offset basis and prime for 64 bits.
+const FNV_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
+const FNV_PRIME: u64 = 0x0000_0100_0000_01b3;
+
+impl std::hash::Hasher for Fnv {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            self.0 = (self.0 ^ u64::from(b)).wrapping_mul(FNV_PRIME);
+        }
+    }
+}
+
+/// Builds [`Fnv`] hashers.
+#[derive(Default, Clone, Copy)]
+struct FnvBuild;
+
+impl std::hash::BuildHasher for FnvBuild {
+    type Hasher = Fnv;
+    fn build_hasher(&self) -> Fnv {
+        Fnv(FNV_OFFSET)
+    }
+}
+
+/// Text columns with at most this many distinct texts are looked up by comparing with each
+/// (cheaper than hashing for a factor's few levels); beyond, by the hash map.
+const LINEAR_LOOKUP_TEXTS: usize = 8;
+
+/// Powers of ten a double holds exactly (10^0 to 10^22).
+const EXACT_POWERS_OF_TEN: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+/// Largest integer below which every integer is a double (2^53).
+const EXACT_INTEGER_LIMIT: u64 = 1 << 53;
+
+/// Fast path for a plain decimal cell (optional sign, digits, optional point, at least one
+/// digit, no exponent) whose digits form an integer `m < 2^53` with at most 22 digits after
+/// the point: the value is `m / 10^d` with both operands exact, so the one division is
+/// correctly rounded and equals what `f64::from_str` returns (the "fast path" of Clinger
+/// 1990, "How to read floating point numbers accurately", PLDI). `None` sends the cell to
+/// the general parser. Also returns the number of digits.
+fn fast_decimal(cell: &[u8]) -> Option<(f64, usize)> {
+    let (negative, digits) = match cell {
+        [b'-', rest @ ..] => (true, rest),
+        [b'+', rest @ ..] => (false, rest),
+        _ => (false, cell),
+    };
+    let mut m: u64 = 0;
+    let mut seen_digit = false;
+    let mut point = false;
+    let mut frac = 0usize;
+    let mut count = 0usize;
+    for &b in digits {
+        if b.is_ascii_digit() {
+            count += 1;
+            m = m * 10 + u64::from(b - b'0');
+            if m >= EXACT_INTEGER_LIMIT {
+                return None;
+            }
+            seen_digit = true;
+            if point {
+                frac += 1;
+            }
+        } else if b == b'.' && !point {
+            point = true;
+        } else {
+            return None;
+        }
+    }
+    if !seen_digit {
+        return None;
+    }
+    // m < 2^53, so the conversion is exact.
+    let v = m as f64 / *EXACT_POWERS_OF_TEN.get(frac)?;
+    Some((if negative { -v } else { v }, count))
 }
 
 /// Where a cell sits, for messages.
@@ -200,6 +289,15 @@ impl Builder {
                     values.push(f64::NAN);
                     return Ok(());
                 }
+                if let Some((v, digits)) = fast_decimal(cell) {
+                    // The cell is ASCII, so the text check cannot fail; it is only needed
+                    // when the exact scan can learn from the cell.
+                    if scan.wants_plain(digits) {
+                        scan.observe(cell_text(cell, at)?);
+                    }
+                    values.push(v);
+                    return Ok(());
+                }
                 let text = cell_text(cell, at)?;
                 match parse_trimmed(text) {
                     NumberParse::Number(v) => {
@@ -218,26 +316,68 @@ impl Builder {
                     }
                     NumberParse::NotNumber => {
                         let done = values.len();
-                        let mut texts: Vec<Option<String>> = Vec::with_capacity(values.capacity());
-                        texts.resize(done, None);
-                        texts.push(Some(text.to_owned()));
+                        let mut texts = TextValues::with_capacity(values.capacity());
+                        for _ in 0..done {
+                            texts.push_code(TextValues::MISSING);
+                        }
+                        let mut seen = HashMap::with_hasher(FnvBuild);
+                        let code = texts.add_text(text.to_owned()).ok_or_else(|| {
+                            LoadError::TooManyTexts {
+                                line: at.line,
+                                name: at.name.to_owned(),
+                            }
+                        })?;
+                        seen.insert(cell.to_vec(), code);
+                        texts.push_code(code);
                         *self = Builder::Text {
                             values: texts,
+                            seen,
                             refill_upto: done,
                         };
                     }
                 }
             }
-            Builder::Text { values, .. } => {
-                if missing {
-                    values.push(None);
+            Builder::Text { values, seen, .. } => {
+                let code = if missing {
+                    TextValues::MISSING
                 } else {
-                    values.push(Some(cell_text(cell, at)?.to_owned()));
-                }
+                    intern(values, seen, cell, at)?
+                };
+                values.push_code(code);
             }
         }
         Ok(())
     }
+}
+
+/// The code of a cell's text in a text column, adding the text when it is new (only new
+/// texts are checked for UTF-8; a known one was checked when first seen).
+fn intern(
+    values: &mut TextValues,
+    seen: &mut HashMap<Vec<u8>, u32, FnvBuild>,
+    cell: &[u8],
+    at: &Place<'_>,
+) -> Result<u32, LoadError> {
+    if values.texts.len() <= LINEAR_LOOKUP_TEXTS {
+        // A few distinct texts (a factor's levels): comparing beats hashing.
+        if let Some(code) = values.texts.iter().position(|t| t.as_bytes() == cell) {
+            return u32::try_from(code).map_err(|_| LoadError::TooManyTexts {
+                line: at.line,
+                name: at.name.to_owned(),
+            });
+        }
+    } else if let Some(code) = seen.get(cell) {
+        return Ok(*code);
+    }
+    let text = cell_text(cell, at)?;
+    let code = values
+        .add_text(text.to_owned())
+        .ok_or_else(|| LoadError::TooManyTexts {
+            line: at.line,
+            name: at.name.to_owned(),
+        })?;
+    seen.insert(cell.to_vec(), code);
+    Ok(code)
 }
 
 /// Turns the byte offsets where records start into 1-based line numbers.
@@ -374,16 +514,19 @@ fn read_rows(
     check_record_length(body, &record, lines.pos, header_line)?;
     let names = header_names(&record, header_line)?;
     let width = names.len();
+    // Room for every row at once (one per line break, an upper bound), so that no column
+    // grows by copying.
+    let rows_bound = body.iter().filter(|b| **b == b'\n').count() + 1;
     let mut builders: Vec<Builder> = names
         .iter()
         .map(|_| Builder::Numeric {
-            values: Vec::new(),
+            values: Vec::with_capacity(rows_bound),
             refused: None,
             scan: ExactScan::default(),
         })
         .collect();
 
-    let mut row_numbers: Vec<usize> = Vec::new();
+    let mut row_numbers: Vec<usize> = Vec::with_capacity(rows_bound);
     while read_record(&mut rdr, &mut record, &mut lines)? {
         let line = lines.record_line(&record);
         *last = (lines.pos, line);
@@ -531,6 +674,7 @@ fn refill(
         for (raw, b) in record.iter().zip(builders.iter_mut()) {
             let Builder::Text {
                 values,
+                seen,
                 refill_upto,
             } = b
             else {
@@ -543,8 +687,13 @@ fn refill(
             if is_missing_cell(cell, markers) {
                 continue;
             }
-            if let (Ok(text), Some(slot)) = (std::str::from_utf8(cell), values.get_mut(row)) {
-                *slot = Some(text.to_owned());
+            if let Some(code) = seen.get(cell) {
+                values.set(row, *code);
+            } else if let Ok(text) = std::str::from_utf8(cell) {
+                if let Some(code) = values.add_text(text.to_owned()) {
+                    seen.insert(cell.to_vec(), code);
+                    values.set(row, code);
+                }
             }
         }
     }

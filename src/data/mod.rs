@@ -73,10 +73,133 @@ fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
 pub enum Values {
     /// Numbers; `f64::NAN` marks a missing cell (no other NaN can be loaded).
     Numeric(Vec<f64>),
-    /// Text; `None` marks a missing cell.
-    Text(Vec<Option<String>>),
+    /// Text; a missing cell has no text.
+    Text(TextValues),
     /// Group labels coded as levels.
     Factor(Factor),
+}
+
+/// The cells of a text column, each distinct text stored once: a row holds the position of
+/// its text in `texts` (in order of first appearance), or [`TextValues::MISSING`]. A factor
+/// column of a million rows then costs four bytes a row instead of a string each.
+#[derive(Debug, Clone, Default)]
+pub struct TextValues {
+    /// Distinct texts, in order of first appearance.
+    texts: Vec<String>,
+    /// Per row: the position of its text, or [`TextValues::MISSING`].
+    codes: Vec<u32>,
+}
+
+impl TextValues {
+    /// The code of a missing cell.
+    pub const MISSING: u32 = u32::MAX;
+
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.codes.len()
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.codes.is_empty()
+    }
+
+    /// The text of a row; `None` when missing or out of range.
+    pub fn get(&self, row: usize) -> Option<&str> {
+        let code = *self.codes.get(row)?;
+        self.texts
+            .get(usize::try_from(code).ok()?)
+            .map(String::as_str)
+    }
+
+    /// The cells in row order (`None` for a missing cell).
+    pub fn iter(&self) -> impl Iterator<Item = Option<&str>> + '_ {
+        self.codes.iter().map(|&c| {
+            usize::try_from(c)
+                .ok()
+                .and_then(|c| self.texts.get(c))
+                .map(String::as_str)
+        })
+    }
+
+    /// The first row whose text is not a plain number, with that text (see
+    /// [`first_non_number`]).
+    pub fn first_non_number(&self) -> Option<(usize, &str)> {
+        first_non_number_in(self.iter())
+    }
+
+    /// The cells as owned strings (`None` for a missing cell).
+    pub fn to_vec(&self) -> Vec<Option<String>> {
+        self.iter().map(|c| c.map(str::to_owned)).collect()
+    }
+
+    /// An empty column with room for `rows` rows.
+    pub(crate) fn with_capacity(rows: usize) -> Self {
+        TextValues {
+            texts: Vec::new(),
+            codes: Vec::with_capacity(rows),
+        }
+    }
+
+    /// Appends a row by the code of its text; the caller keeps codes below `texts.len()`.
+    pub(crate) fn push_code(&mut self, code: u32) {
+        self.codes.push(code);
+    }
+
+    /// Adds a distinct text and returns its code, or `None` when no code is left.
+    pub(crate) fn add_text(&mut self, text: String) -> Option<u32> {
+        let code = u32::try_from(self.texts.len())
+            .ok()
+            .filter(|c| *c != Self::MISSING)?;
+        self.texts.push(text);
+        Some(code)
+    }
+
+    /// Sets the text of an existing row (used when a column turns text after numeric rows).
+    pub(crate) fn set(&mut self, row: usize, code: u32) {
+        if let Some(slot) = self.codes.get_mut(row) {
+            *slot = code;
+        }
+    }
+
+    /// Keeps the rows whose `keep` entry is true (rows beyond `keep` are dropped).
+    fn filter(&self, keep: &[bool]) -> TextValues {
+        TextValues {
+            texts: self.texts.clone(),
+            codes: pick(&self.codes, keep),
+        }
+    }
+}
+
+impl PartialEq for TextValues {
+    /// Equal when the cells are, whatever the order of the stored texts.
+    fn eq(&self, other: &Self) -> bool {
+        self.len() == other.len() && self.iter().eq(other.iter())
+    }
+}
+
+impl From<Vec<Option<String>>> for TextValues {
+    fn from(cells: Vec<Option<String>>) -> Self {
+        let mut out = TextValues::with_capacity(cells.len());
+        let mut seen: std::collections::HashMap<String, u32> = std::collections::HashMap::new();
+        for cell in cells {
+            let code = match cell {
+                None => Self::MISSING,
+                Some(t) => match seen.get(&t) {
+                    Some(c) => *c,
+                    None => match out.add_text(t.clone()) {
+                        Some(c) => {
+                            seen.insert(t, c);
+                            c
+                        }
+                        None => Self::MISSING,
+                    },
+                },
+            };
+            out.push_code(code);
+        }
+        out
+    }
 }
 
 impl Values {
@@ -98,7 +221,7 @@ impl Values {
     fn filter(&self, keep: &[bool]) -> Values {
         match self {
             Values::Numeric(v) => Values::Numeric(pick(v, keep)),
-            Values::Text(v) => Values::Text(pick(v, keep)),
+            Values::Text(v) => Values::Text(v.filter(keep)),
             Values::Factor(f) => Values::Factor(Factor {
                 codes: pick(&f.codes, keep),
                 levels: f.levels.clone(),
@@ -123,7 +246,11 @@ impl Column {
     pub fn missing_count(&self) -> usize {
         match &self.values {
             Values::Numeric(v) => v.iter().filter(|x| x.is_nan()).count(),
-            Values::Text(v) => v.iter().filter(|x| x.is_none()).count(),
+            Values::Text(v) => v
+                .codes
+                .iter()
+                .filter(|c| **c == TextValues::MISSING)
+                .count(),
             Values::Factor(f) => f.codes.iter().filter(|x| x.is_none()).count(),
         }
     }
@@ -141,7 +268,7 @@ impl Column {
     pub fn is_missing(&self, row: usize) -> bool {
         match &self.values {
             Values::Numeric(v) => v.get(row).is_none_or(|x| x.is_nan()),
-            Values::Text(v) => v.get(row).is_none_or(|x| x.is_none()),
+            Values::Text(v) => v.get(row).is_none(),
             Values::Factor(f) => f.level_of(row).is_none(),
         }
     }
@@ -151,7 +278,7 @@ impl Column {
     pub fn display_value(&self, row: usize) -> String {
         match &self.values {
             Values::Numeric(v) => v.get(row).map(|x| format_number(*x)).unwrap_or_default(),
-            Values::Text(v) => v.get(row).and_then(Clone::clone).unwrap_or_default(),
+            Values::Text(v) => v.get(row).map(str::to_owned).unwrap_or_default(),
             Values::Factor(f) => f.level_of(row).map(str::to_owned).unwrap_or_default(),
         }
     }
@@ -275,8 +402,15 @@ impl DataSet {
 /// The first cell that is present but not a plain number, as (0-based row, text), for
 /// "column x is text: line 41 holds 'n/a'" messages (map the row through `row_numbers`).
 pub fn first_non_number(values: &[Option<String>]) -> Option<(usize, &str)> {
-    values.iter().enumerate().find_map(|(i, v)| {
-        let s = v.as_deref()?;
+    first_non_number_in(values.iter().map(Option::as_deref))
+}
+
+/// [`first_non_number`] over cells given in row order.
+fn first_non_number_in<'a>(
+    cells: impl Iterator<Item = Option<&'a str>>,
+) -> Option<(usize, &'a str)> {
+    cells.enumerate().find_map(|(i, v)| {
+        let s = v?;
         match parse_number(s) {
             NumberParse::Number(_) => None,
             _ => Some((i, s)),

@@ -36,7 +36,7 @@ fn nums(d: &DataSet, name: &str) -> Vec<f64> {
 
 fn texts(d: &DataSet, name: &str) -> Vec<Option<String>> {
     match d.column(name).map(|c| &c.values) {
-        Some(Values::Text(v)) => v.clone(),
+        Some(Values::Text(v)) => v.to_vec(),
         other => panic!("{name} not text: {other:?}"),
     }
 }
@@ -592,7 +592,13 @@ fn sha256_known_values() {
 fn text_col(cells: &[Option<&str>]) -> Column {
     Column {
         name: "g".to_owned(),
-        values: Values::Text(cells.iter().map(|c| c.map(str::to_owned)).collect()),
+        values: Values::Text(
+            cells
+                .iter()
+                .map(|c| c.map(str::to_owned))
+                .collect::<Vec<_>>()
+                .into(),
+        ),
         exact: None,
     }
 }

@@ -81,7 +81,7 @@ impl Fit {
                         .collect();
                     return Err(ModelError::TypeIIIWithAliased { aliased });
                 }
-                let ef = &self.effect;
+                let ef = self.effect_engine()?;
                 let all: Vec<usize> = (0..ef.cols.len()).collect();
                 let (rank_full, rss_full) = ef.sub_rss(&all);
                 if rank_full < ef.cols.len() {

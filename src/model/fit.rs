@@ -4,6 +4,8 @@
 //! centred and scaled design [Z | y']; coefficients, covariances and every sub-model RSS come
 //! from that triangular factor.
 
+use std::sync::OnceLock;
+
 use statrs::distribution::{ContinuousCDF, FisherSnedecor, StudentsT};
 
 use super::design::{self, Column, Layout, Scheme};
@@ -61,7 +63,9 @@ pub struct Fit {
     pub(crate) spec: ModelSpec,
     pub(crate) lay: Layout,
     pub(crate) treat: Engine,
-    pub(crate) effect: Engine,
+    /// The effect-coded engine, used only by Type III sums of squares: built on first use,
+    /// since it costs a pass over every row.
+    pub(crate) effect: OnceLock<Result<Engine, ModelError>>,
     /// Kept (non-aliased) design columns of the treatment coding.
     pub(crate) kept: Vec<usize>,
     /// R of the kept columns (rank x rank).
@@ -87,6 +91,11 @@ pub struct Fit {
 /// values and adds the offset back to estimates); without an intercept it is folded into
 /// the values first.
 pub fn fit(spec: &ModelSpec) -> Result<Fit, ModelError> {
+    fit_owned(spec.clone())
+}
+
+/// [`fit`] taking the spec by value, so that the fit keeps it without a copy of the data.
+pub fn fit_owned(spec: ModelSpec) -> Result<Fit, ModelError> {
     if !spec.response_offset.is_finite() {
         return Err(ModelError::NonFiniteValue {
             variable: spec.response.name().to_string(),
@@ -94,29 +103,28 @@ pub fn fit(spec: &ModelSpec) -> Result<Fit, ModelError> {
         });
     }
     if !spec.intercept && spec.response_offset != 0.0 {
-        return fit_spec(&fold_offset(spec));
+        return fit_spec(fold_offset(spec));
     }
     fit_spec(spec)
 }
 
 /// The spec with its response offset added to the response values (offset 0 after).
-fn fold_offset(spec: &ModelSpec) -> ModelSpec {
-    let mut folded = spec.clone();
-    if let Var::Numeric { values, .. } = &mut folded.response {
+fn fold_offset(mut spec: ModelSpec) -> ModelSpec {
+    let offset = spec.response_offset;
+    if let Var::Numeric { values, .. } = &mut spec.response {
         for v in values.iter_mut() {
-            *v += spec.response_offset;
+            *v += offset;
         }
-        folded.response_offset = 0.0;
+        spec.response_offset = 0.0;
     }
-    folded
+    spec
 }
 
 /// [`fit`] once the offset is settled (0, or kept apart in a model with an intercept).
-fn fit_spec(spec: &ModelSpec) -> Result<Fit, ModelError> {
-    let lay = design::layout(spec)?;
+fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
+    let lay = design::layout(&spec)?;
     let n = lay.used.len();
-    let (tcols, tterms) = design::columns(spec, &lay, Scheme::Treatment);
-    let (ecols, eterms) = design::columns(spec, &lay, Scheme::Effect);
+    let (tcols, tterms) = design::columns(&spec, &lay, Scheme::Treatment);
     let p = tcols.len();
     if p == 0 {
         return Err(ModelError::EmptyModel);
@@ -127,12 +135,11 @@ fn fit_spec(spec: &ModelSpec) -> Result<Fit, ModelError> {
             coefficients: p,
         });
     }
-    let y: Vec<f64> = match &spec.response {
-        Var::Numeric { values, .. } => values.clone(),
+    let y: &[f64] = match &spec.response {
+        Var::Numeric { values, .. } => values,
         Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
     };
-    let treat = build_engine(spec, &lay, &y, tcols, tterms)?;
-    let effect = build_engine(spec, &lay, &y, ecols, eterms)?;
+    let treat = build_engine(&spec, &lay, y, tcols, tterms)?;
 
     // Rank: triangularise with skipping of aliased columns, response last.
     let mut a = treat.r_aug.clone();
@@ -223,10 +230,10 @@ fn fit_spec(spec: &ModelSpec) -> Result<Fit, ModelError> {
     }
 
     Ok(Fit {
-        spec: spec.clone(),
+        spec,
         lay,
         treat,
-        effect,
+        effect: OnceLock::new(),
         kept,
         r,
         bz,
@@ -238,6 +245,24 @@ fn fit_spec(spec: &ModelSpec) -> Result<Fit, ModelError> {
         cov_means,
         warnings,
     })
+}
+
+impl Fit {
+    /// The effect-coded engine (sum-to-zero coding of factors, for Type III), built on first
+    /// use from the kept spec and layout.
+    pub(crate) fn effect_engine(&self) -> Result<&Engine, ModelError> {
+        self.effect
+            .get_or_init(|| {
+                let y: &[f64] = match &self.spec.response {
+                    Var::Numeric { values, .. } => values,
+                    Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
+                };
+                let (ecols, eterms) = design::columns(&self.spec, &self.lay, Scheme::Effect);
+                build_engine(&self.spec, &self.lay, y, ecols, eterms)
+            })
+            .as_ref()
+            .map_err(Clone::clone)
+    }
 }
 
 fn treat_y_constant(e: &Engine) -> bool {

@@ -25,7 +25,7 @@ mod tests;
 use std::fmt;
 
 pub use anova::compare;
-pub use fit::{fit, Fit};
+pub use fit::{fit, fit_owned, Fit};
 
 /// One input variable, aligned with the response row by row.
 #[derive(Debug, Clone, PartialEq)]

@@ -404,7 +404,7 @@ pub(crate) fn numeric_values<'a>(
                 format!("`{}` is a text column, not a numeric one", column.value),
             )
             .label("needs numbers");
-            if let Some((row, text)) = data::first_non_number(t) {
+            if let Some((row, text)) = t.first_non_number() {
                 let line = set.row_numbers.get(row).copied().unwrap_or(row + 2);
                 d = d.help(format!(
                     "line {line} of the file holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
@@ -554,7 +554,7 @@ fn cell_value(col: &Column, row: usize) -> Option<CellValue<'_>> {
             .copied()
             .filter(|x| !x.is_nan())
             .map(CellValue::Number),
-        Values::Text(t) => t.get(row).and_then(|s| s.as_deref()).map(CellValue::Text),
+        Values::Text(t) => t.get(row).map(CellValue::Text),
         Values::Factor(f) => f
             .codes
             .get(row)

@@ -99,7 +99,7 @@ impl Session<'_> {
         };
         let term_span =
             |i: Option<usize>| i.and_then(|i| decl.terms.get(i)).map_or(span, |t| t.span);
-        let fit = model::fit(&spec).map_err(|e| {
+        let fit = model::fit_owned(spec).map_err(|e| {
             Diagnostic::new(term_span(e.term()), e.to_string()).label("in this model")
         })?;
         let s = fit.summary();
