@@ -45,6 +45,11 @@ const COOK_NUMERATOR: f64 = 4.0;
 /// sets of ordinary size (common practice).
 const STUDENTIZED_LIMIT: f64 = 3.0;
 
+/// Most flagged rows the influence table lists: on large data sets the
+/// thresholds flag thousands of rows, and a reader looks at the worst first.
+/// The rows with the largest Cook's distance are listed, and a note says so.
+const MAX_LISTED: usize = 50;
+
 impl Session<'_> {
     pub(super) fn check(&mut self, model: &Spanned<String>) -> Outcome {
         let m = self.model_entry(model)?;
@@ -489,7 +494,24 @@ impl Influence {
                 ),
             ],
         );
-        for &k in &self.flagged {
+        let mut listed = self.flagged.clone();
+        if listed.len() > MAX_LISTED {
+            let cook = |k: usize| d.cooks_distance.get(k).copied().unwrap_or(f64::NAN);
+            // Largest Cook's distance first (NaN last), ties in row order: deterministic.
+            listed.sort_by(|&a, &b| {
+                cook(b)
+                    .partial_cmp(&cook(a))
+                    .unwrap_or_else(|| cook(a).is_nan().cmp(&cook(b).is_nan()))
+                    .then(a.cmp(&b))
+            });
+            listed.truncate(MAX_LISTED);
+            listed.sort_unstable();
+            t.notes.push(format!(
+                "{} rows are past a threshold; the {MAX_LISTED} with the largest Cook's distance are listed.",
+                self.flagged.len()
+            ));
+        }
+        for &k in &listed {
             let get = |v: &[f64]| v.get(k).copied().unwrap_or(f64::NAN);
             t.push(vec![
                 d.row_numbers
