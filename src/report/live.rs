@@ -103,7 +103,7 @@ impl fmt::Display for LiveError {
     }
 }
 
-impl std::error::Error for LiveError {}
+impl core::error::Error for LiveError {}
 
 impl LiveError {
     /// What the writer can do about it.
