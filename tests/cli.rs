@@ -468,3 +468,18 @@ fn figures_are_written_and_stale_ones_removed() {
         "{err}"
     );
 }
+
+#[test]
+fn redefining_a_model_is_said() {
+    let dir = setup("redefine");
+    write(
+        &dir.join("m.md"),
+        "```covey\nload \"data/d.csv\"\nfactor group\nmodel m: y on group\nmodel m: y on group + x\n```\n",
+    );
+    let (code, err) = covey(&dir, &["render", "m.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        err.contains("m.md:5: warning: This replaces the earlier model `m`"),
+        "{err}"
+    );
+}

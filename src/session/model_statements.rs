@@ -139,7 +139,13 @@ impl Session<'_> {
             fit,
         };
         match self.models.iter().position(|m| m.name == entry.name) {
-            Some(i) => self.models[i] = entry,
+            Some(i) => {
+                items.push(Item::Warning(format!(
+                    "This replaces the earlier model {}; tables from here on use the new one.",
+                    code(&entry.name)
+                )));
+                self.models[i] = entry;
+            }
             None => self.models.push(entry),
         }
         Ok(items)
