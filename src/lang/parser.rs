@@ -416,14 +416,11 @@ impl Builder<'_> {
                     ReportRequest::Term {
                         model,
                         term: self.name(names.first().cloned().ok_or_else(missing_part)?),
-                        kind: match find(Rule::ss_type)
-                            .map(|p| p.as_str().to_string())
-                            .as_deref()
-                        {
-                            Some("1") => SsKind::Sequential,
-                            Some("3") => SsKind::Marginal,
-                            _ => SsKind::Partial,
-                        },
+                        kind: ss_kind_of(
+                            find(Rule::ss_type)
+                                .map(|p| p.as_str().to_string())
+                                .as_deref(),
+                        ),
                     }
                 } else {
                     ReportRequest::Pair {
@@ -595,14 +592,11 @@ impl Builder<'_> {
             },
             Rule::anova_table => TableRequest::Anova {
                 model: first_ident()?,
-                kind: match find(Rule::ss_type)
-                    .map(|p| p.as_str().to_string())
-                    .as_deref()
-                {
-                    Some("1") => SsKind::Sequential,
-                    Some("3") => SsKind::Marginal,
-                    _ => SsKind::Partial,
-                },
+                kind: ss_kind_of(
+                    find(Rule::ss_type)
+                        .map(|p| p.as_str().to_string())
+                        .as_deref(),
+                ),
             },
             Rule::compare_table => TableRequest::Compare {
                 first: first_ident()?,
@@ -940,6 +934,14 @@ impl Builder<'_> {
             None => String::new(),
         };
         Spanned { value, span }
+    }
+}
+
+fn ss_kind_of(word: Option<&str>) -> SsKind {
+    match word {
+        Some("1") => SsKind::Sequential,
+        Some("3") => SsKind::Marginal,
+        _ => SsKind::Partial,
     }
 }
 

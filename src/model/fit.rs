@@ -6,8 +6,6 @@
 
 use std::sync::OnceLock;
 
-use statrs::distribution::{ContinuousCDF, FisherSnedecor, StudentsT};
-
 use super::design::{self, Column, Layout, Scheme};
 use super::qr::{self, Mat, RAccumulator, ALIAS_TOL, CHUNK_ROWS};
 use super::{Coefficient, Diagnostics, FitSummary, ModelError, ModelSpec, ModelWarning, Var};
@@ -363,32 +361,8 @@ fn fill_row(spec: &ModelSpec, cols: &[Column], y: &[f64], i: usize, row: &mut [f
     }
 }
 
-/// Two-sided p-value of a t statistic.
-pub(crate) fn t_p(t: f64, df: usize) -> f64 {
-    match StudentsT::new(0.0, 1.0, df as f64) {
-        Ok(d) if t.is_finite() => (2.0 * d.sf(t.abs())).min(1.0),
-        _ => f64::NAN,
-    }
-}
-
-/// Upper quantile t(q; df).
-pub(crate) fn t_quantile(q: f64, df: usize) -> f64 {
-    if !(0.0..=1.0).contains(&q) {
-        return f64::NAN;
-    }
-    match StudentsT::new(0.0, 1.0, df as f64) {
-        Ok(d) => d.inverse_cdf(q),
-        Err(_) => f64::NAN,
-    }
-}
-
-/// Upper-tail p-value of an F statistic.
-pub(crate) fn f_p(f: f64, df1: usize, df2: usize) -> f64 {
-    match FisherSnedecor::new(df1 as f64, df2 as f64) {
-        Ok(d) if f.is_finite() && f >= 0.0 => d.sf(f),
-        _ => f64::NAN,
-    }
-}
+// The t and F functions live in `dist`, the one place they are defined.
+pub(crate) use super::dist::{f_upper_p as f_p, t_quantile, t_two_sided_p as t_p};
 
 pub(crate) fn check_level(level: f64) -> Result<(), ModelError> {
     if level > 0.0 && level < 1.0 {

@@ -299,17 +299,7 @@ impl Session<'_> {
         match by {
             None => t.push(summary_row("all", values.iter().copied())),
             Some(b) => {
-                let bi = column_index(set, b)?;
-                let Values::Factor(f) = &set.columns[bi].values else {
-                    return Err(
-                        Diagnostic::new(b.span, format!("`{}` is not a factor", b.value))
-                            .label("not a factor")
-                            .help(format!(
-                                "declare it first: `factor {}`",
-                                quote_name(&b.value)
-                            )),
-                    );
-                };
+                let f = factor_column(set, b)?;
                 for (li, level) in f.levels.iter().enumerate() {
                     let vals = f
                         .codes
@@ -381,6 +371,25 @@ pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<us
             };
             d
         })
+}
+
+/// A factor column of the data set, or an error that says how to declare it.
+pub(crate) fn factor_column<'a>(
+    set: &'a DataSet,
+    column: &Spanned<String>,
+) -> Result<&'a crate::data::Factor, Diagnostic> {
+    let i = column_index(set, column)?;
+    match &set.columns[i].values {
+        Values::Factor(f) => Ok(f),
+        _ => Err(
+            Diagnostic::new(column.span, format!("`{}` is not a factor", column.value))
+                .label("not a factor")
+                .help(format!(
+                    "declare it first: `factor {}`",
+                    quote_name(&column.value)
+                )),
+        ),
+    }
 }
 
 /// The values of a numeric column (NaN = missing), or an error that says

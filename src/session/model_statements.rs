@@ -200,12 +200,7 @@ impl Session<'_> {
             }
             TableRequest::Anova { model, kind } => {
                 let m = self.model_entry(model)?;
-                let ty = match kind {
-                    SsKind::Sequential => SsType::I,
-                    SsKind::Partial => SsType::II,
-                    SsKind::Marginal => SsType::III,
-                };
-                let a = m.fit.anova(ty).map_err(fail(model.span))?;
+                let a = m.fit.anova(ss_type(*kind)).map_err(fail(model.span))?;
                 let what = match kind {
                     SsKind::Sequential => "Type I (sequential, in the order written)",
                     SsKind::Partial => "Type II (each term after all terms that do not contain it)",
@@ -592,6 +587,15 @@ impl Session<'_> {
                 Ok(vec![Item::Table(t)])
             }
         }
+    }
+}
+
+/// The engine's sums of squares for the kind the statement names.
+pub(super) fn ss_type(kind: SsKind) -> SsType {
+    match kind {
+        SsKind::Sequential => SsType::I,
+        SsKind::Partial => SsType::II,
+        SsKind::Marginal => SsType::III,
     }
 }
 

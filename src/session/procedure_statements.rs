@@ -1,9 +1,8 @@
 //! Handlers of the statements that make a document a procedure: `param`,
 //! the gates of `require`, and the reporting sentences of `report`.
 
-use super::data_statements::{column_index, numeric_values};
+use super::data_statements::{column_index, factor_column, numeric_values};
 use super::{Outcome, Session};
-use crate::data::Values;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{AdjustMethod, Gate, Literal, ReportRequest, Spanned, SsKind};
 use crate::model::{self, ModelSpec, Part, SsType, TermSpec, Transform, Var};
@@ -88,14 +87,7 @@ impl Session<'_> {
             }
             Gate::RowsPerLevel { min, factor } => {
                 let set = self.current(factor.span)?;
-                let fi = column_index(set, factor)?;
-                let Values::Factor(f) = &set.columns[fi].values else {
-                    return Err(Diagnostic::new(
-                        factor.span,
-                        format!("`{}` is not a factor", factor.value),
-                    )
-                    .label("not a factor"));
-                };
+                let f = factor_column(set, factor)?;
                 let counts = f.counts();
                 let short: Vec<String> = f
                     .levels
@@ -132,14 +124,7 @@ impl Session<'_> {
                 let set = self.current(factor.span)?;
                 let ci = column_index(set, covariate)?;
                 let x = numeric_values(set, ci, covariate)?.to_vec();
-                let fi = column_index(set, factor)?;
-                let Values::Factor(f) = &set.columns[fi].values else {
-                    return Err(Diagnostic::new(
-                        factor.span,
-                        format!("`{}` is not a factor", factor.value),
-                    )
-                    .label("not a factor"));
-                };
+                let f = factor_column(set, factor)?;
                 let spec = ModelSpec {
                     response: Var::Numeric {
                         name: covariate.value.clone(),
@@ -196,14 +181,12 @@ impl Session<'_> {
         match request {
             ReportRequest::Term { model, term, kind } => {
                 let m = self.model_entry(model)?;
-                let ty = match kind {
-                    SsKind::Sequential => SsType::I,
-                    SsKind::Partial => SsType::II,
-                    SsKind::Marginal => SsType::III,
-                };
-                let a = m.fit.anova(ty).map_err(|e| {
-                    Diagnostic::new(model.span, e.to_string()).label("cannot compute this")
-                })?;
+                let a = m
+                    .fit
+                    .anova(super::model_statements::ss_type(*kind))
+                    .map_err(|e| {
+                        Diagnostic::new(model.span, e.to_string()).label("cannot compute this")
+                    })?;
                 let row = a
                     .rows
                     .iter()
