@@ -12,6 +12,7 @@ pub mod document;
 pub mod files;
 pub mod lang;
 pub mod model;
+pub mod parallel;
 pub mod pipeline;
 pub mod plot;
 pub mod report;

@@ -85,6 +85,7 @@ fn parse_setting(s: &str) -> Result<(String, String), String> {
 }
 
 fn main() -> ExitCode {
+    covey::parallel::configure();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {

@@ -602,6 +602,112 @@ pub(crate) fn eval_row(spec: &ModelSpec, col: &Column, i: usize) -> f64 {
     v
 }
 
+/// Values of a column at the data rows `rows`, one per row into `out` (which has the same
+/// length): the same numbers as [`eval_row`] row by row, computed part by part over the whole
+/// block so that each inner loop is a plain pass over the rows.
+pub(crate) fn eval_block(spec: &ModelSpec, col: &Column, rows: &[usize], out: &mut [f64]) {
+    // Consecutive rows (the usual case: nothing filtered out, no missing values) are read
+    // as slices, without an index per row.
+    if let (Some(&first), Some(&last)) = (rows.first(), rows.last()) {
+        if last - first + 1 == rows.len() {
+            eval_range(spec, col, first..last + 1, out);
+            return;
+        }
+    }
+    out.fill(1.0);
+    for p in &col.parts {
+        match p {
+            ColPart::Numeric { var, transform } => match spec.vars.get(*var) {
+                Some(Var::Numeric { values, .. }) => {
+                    for (o, &i) in out.iter_mut().zip(rows) {
+                        *o *= apply(*transform, values.get(i).copied().unwrap_or(f64::NAN));
+                    }
+                }
+                _ => out.fill(f64::NAN),
+            },
+            ColPart::Indicator { var, code } => {
+                let codes = factor_codes(spec, *var);
+                for (o, &i) in out.iter_mut().zip(rows) {
+                    let c = codes.get(i).copied().flatten();
+                    *o *= f64::from(u8::from(c == Some(*code)));
+                }
+            }
+            ColPart::Effect { var, code, last } => {
+                let codes = factor_codes(spec, *var);
+                for (o, &i) in out.iter_mut().zip(rows) {
+                    let c = codes.get(i).copied().flatten();
+                    *o *= if c == Some(*code) {
+                        1.0
+                    } else if c == Some(*last) {
+                        -1.0
+                    } else {
+                        0.0
+                    };
+                }
+            }
+        }
+    }
+}
+
+/// [`eval_block`] for the consecutive rows `range` (the same numbers).
+fn eval_range(spec: &ModelSpec, col: &Column, range: std::ops::Range<usize>, out: &mut [f64]) {
+    out.fill(1.0);
+    for p in &col.parts {
+        match p {
+            ColPart::Numeric { var, transform } => match spec.vars.get(*var) {
+                Some(Var::Numeric { values, .. }) if range.end <= values.len() => {
+                    let t = *transform;
+                    let xs = &values[range.clone()];
+                    if t == Transform::Identity {
+                        for (o, &x) in out.iter_mut().zip(xs) {
+                            *o *= x;
+                        }
+                    } else {
+                        for (o, &x) in out.iter_mut().zip(xs) {
+                            *o *= apply(t, x);
+                        }
+                    }
+                }
+                _ => out.fill(f64::NAN),
+            },
+            ColPart::Indicator { var, code } => {
+                let codes = factor_codes(spec, *var);
+                let Some(cs) = codes.get(range.clone()) else {
+                    out.iter_mut().for_each(|o| *o *= 0.0);
+                    continue;
+                };
+                for (o, &c) in out.iter_mut().zip(cs) {
+                    *o *= f64::from(u8::from(c == Some(*code)));
+                }
+            }
+            ColPart::Effect { var, code, last } => {
+                let codes = factor_codes(spec, *var);
+                let Some(cs) = codes.get(range.clone()) else {
+                    out.iter_mut().for_each(|o| *o *= 0.0);
+                    continue;
+                };
+                for (o, &c) in out.iter_mut().zip(cs) {
+                    *o *= if c == Some(*code) {
+                        1.0
+                    } else if c == Some(*last) {
+                        -1.0
+                    } else {
+                        0.0
+                    };
+                }
+            }
+        }
+    }
+}
+
+/// The codes of factor `var` (empty for a numeric variable).
+fn factor_codes(spec: &ModelSpec, var: usize) -> &[Option<u32>] {
+    match spec.vars.get(var) {
+        Some(Var::Factor { codes, .. }) => codes,
+        _ => &[],
+    }
+}
+
 fn factor_code(spec: &ModelSpec, var: usize, i: usize) -> Option<u32> {
     match spec.vars.get(var) {
         Some(Var::Factor { codes, .. }) => codes.get(i).copied().flatten(),

@@ -1,13 +1,15 @@
-//! Fitting: two passes over the rows for column centres and scales (Welford 1962,
-//! "Note on a method for calculating corrected sums of squares and products",
-//! Technometrics 4), then the chunked Householder triangularisation of the augmented,
-//! centred and scaled design [Z | y']; coefficients, covariances and every sub-model RSS come
-//! from that triangular factor.
+//! Fitting: column centres and scales from the first block of rows, then one pass of
+//! blocked Householder triangularisation of the augmented, centred and scaled design
+//! [Z | y'], block factors merged in a fixed order; coefficients, covariances and every
+//! sub-model RSS come from that triangular factor. Row diagnostics are a second pass, made
+//! only when something asks for them.
 
 use std::sync::OnceLock;
 
 use super::design::{self, Column, Layout, Scheme};
-use super::qr::{self, Mat, RAccumulator, ALIAS_TOL, CHUNK_ROWS};
+use rayon::prelude::*;
+
+use super::qr::{self, Mat, ALIAS_TOL, CHUNK_ROWS};
 use super::{Coefficient, Diagnostics, FitSummary, ModelError, ModelSpec, ModelWarning, Var};
 
 /// A fit is a perfect fit when RSS <= PERFECT_FIT_REL * TSS: the residuals are then rounding
@@ -64,6 +66,9 @@ pub struct Fit {
     /// The effect-coded engine, used only by Type III sums of squares: built on first use,
     /// since it costs a pass over every row.
     pub(crate) effect: OnceLock<Result<Engine, ModelError>>,
+    /// Row diagnostics, computed on first use (a pass over every row) and shared by the
+    /// checks and figures that read them.
+    pub(crate) diag: OnceLock<Diagnostics>,
     /// Kept (non-aliased) design columns of the treatment coding.
     pub(crate) kept: Vec<usize>,
     /// R of the kept columns (rank x rank).
@@ -232,6 +237,7 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
         lay,
         treat,
         effect: OnceLock::new(),
+        diag: OnceLock::new(),
         kept,
         r,
         bz,
@@ -267,7 +273,12 @@ fn treat_y_constant(e: &Engine) -> bool {
     e.y_scale == 0.0
 }
 
-/// Centre and scale every column (pass 1), then accumulate R of [Z | y'] (pass 2).
+/// Centre and scale every column by its mean and spread over the first block of rows, then
+/// triangularise [Z | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows, computed in
+/// parallel and merged in block order (see [`crate::parallel`]) by re-triangularising the
+/// block factors two at a time. The response's variance, for the zero-variance check, is
+/// pooled from per-block moments by the formula of Chan, Golub & LeVeque (1983, "Algorithms
+/// for computing the sample variance", The American Statistician 37).
 fn build_engine(
     spec: &ModelSpec,
     lay: &Layout,
@@ -277,33 +288,15 @@ fn build_engine(
 ) -> Result<Engine, ModelError> {
     let p = cols.len();
     let n = lay.used.len() as f64;
-    // Pass 1: Welford means and centred sums of squares.
-    let mut mean = vec![0.0; p + 1];
-    let mut m2 = vec![0.0; p + 1];
-    let mut row = vec![0.0; p + 1];
-    for (k, &i) in lay.used.iter().enumerate() {
-        fill_row(spec, &cols, y, i, &mut row);
-        if let Some(j) = row.iter().position(|v| !v.is_finite()) {
-            // A product or power overflowed (inputs themselves were checked in the layout).
-            let variable = cols
-                .get(j)
-                .map(|c| c.name.clone())
-                .unwrap_or_else(|| spec.response.name().to_string());
-            return Err(ModelError::NonFiniteValue {
-                variable,
-                row: spec.row_numbers.get(i).copied().unwrap_or(i),
-            });
-        }
-        let kf = k as f64 + 1.0;
-        for j in 0..=p {
-            let d = row[j] - mean[j];
-            mean[j] += d / kf;
-            m2[j] += d * (row[j] - mean[j]);
-        }
-    }
-    if m2[p] <= 0.0 || !m2[p].is_finite() {
-        return Err(ModelError::ResponseZeroVariance);
-    }
+    let blocks: Vec<&[usize]> = lay.used.chunks(CHUNK_ROWS).collect();
+
+    // Centre and scale of each column, from the first block of rows (every row when there
+    // are at most CHUNK_ROWS of them): any centre within the data's range takes the offset
+    // out of a column well enough for the factorisation (the intercept absorbs the rest),
+    // and it saves a pass over the rows.
+    let first = blocks.first().copied().unwrap_or(&[]);
+    let lead = Block::fill(spec, &cols, y, first).moments();
+    let n_lead = lead.count.max(1.0);
     let mut centre = vec![0.0; p + 1];
     let mut scale = vec![1.0; p + 1];
     for j in 0..=p {
@@ -311,24 +304,43 @@ fn build_engine(
         if is_intercept {
             continue;
         }
+        let (mean, m2) = (lead.mean[j], lead.m2[j]);
         let (c, s) = if spec.intercept {
-            (mean[j], (m2[j] / n).sqrt())
+            (mean, (m2 / n_lead).sqrt())
         } else {
-            (0.0, (m2[j] / n + mean[j] * mean[j]).sqrt())
+            (0.0, (m2 / n_lead + mean * mean).sqrt())
         };
-        centre[j] = c;
+        centre[j] = if c.is_finite() { c } else { 0.0 };
         scale[j] = if s > 0.0 && s.is_finite() { s } else { 1.0 };
     }
-    // Pass 2: chunked triangularisation.
-    let mut acc = RAccumulator::new(p + 1, CHUNK_ROWS);
-    for &i in &lay.used {
-        fill_row(spec, &cols, y, i, &mut row);
-        for j in 0..=p {
-            row[j] = (row[j] - centre[j]) / scale[j];
-        }
-        acc.push(&row);
+
+    // One pass: the triangular factor of each block, merged in block order, with the
+    // response's moments for the zero-variance check.
+    let partial: Vec<Result<(Moments, Mat), ModelError>> = blocks
+        .par_iter()
+        .map(|rows| {
+            let mut block = Block::fill(spec, &cols, y, rows);
+            block.check_finite(spec, &cols, rows)?;
+            let ym = block.column_moments(p);
+            block.standardise(&centre, &scale);
+            Ok((ym, qr::block_factor(&mut block.a)))
+        })
+        .collect();
+    let mut y_moments = Moments::empty(1);
+    let mut r_aug = Mat::zeros(p + 1, p + 1);
+    for (k, part) in partial.into_iter().enumerate() {
+        let (ym, f) = part?;
+        y_moments.pool(&ym);
+        r_aug = if k == 0 {
+            f
+        } else {
+            qr::merge_factors(&r_aug, &f)
+        };
     }
-    let r_aug = acc.finish();
+    let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
+    if y_m2 <= 0.0 || !y_m2.is_finite() || n == 0.0 {
+        return Err(ModelError::ResponseZeroVariance);
+    }
     let y_centre = centre[p];
     let y_scale = scale[p];
     let y_offset = if spec.intercept {
@@ -350,14 +362,173 @@ fn build_engine(
     })
 }
 
-fn fill_row(spec: &ModelSpec, cols: &[Column], y: &[f64], i: usize, row: &mut [f64]) {
-    for (j, c) in cols.iter().enumerate() {
-        if let Some(x) = row.get_mut(j) {
-            *x = design::eval_row(spec, c, i);
+/// The design columns and the response at a block of rows, column-major, below as many
+/// rows of zeros as there are columns (see [`qr::block_factor`]).
+struct Block {
+    a: Mat,
+    /// Rows of zeros above the data.
+    top: usize,
+}
+
+impl Block {
+    fn fill(spec: &ModelSpec, cols: &[Column], y: &[f64], rows: &[usize]) -> Block {
+        let width = cols.len() + 1;
+        let m = rows.len();
+        let ld = width + m;
+        let mut a = Mat::zeros(ld, width);
+        for (j, col) in a.data.chunks_exact_mut(ld).enumerate() {
+            let data = &mut col[width..];
+            match cols.get(j) {
+                Some(c) => design::eval_block(spec, c, rows, data),
+                None => {
+                    for (o, &i) in data.iter_mut().zip(rows) {
+                        *o = y.get(i).copied().unwrap_or(f64::NAN);
+                    }
+                }
+            }
+        }
+        Block { a, top: width }
+    }
+
+    /// Column j's values at the block's rows.
+    fn column(&self, j: usize) -> &[f64] {
+        self.a.col(j).get(self.top..).unwrap_or(&[])
+    }
+
+    /// The first non-finite value in row order (a product or power overflowed; the inputs
+    /// themselves were checked in the layout), as an error naming the column and the row.
+    fn check_finite(
+        &self,
+        spec: &ModelSpec,
+        cols: &[Column],
+        rows: &[usize],
+    ) -> Result<(), ModelError> {
+        let width = self.a.cols;
+        let bad = |j: usize| self.column(j).iter().any(|v| !v.is_finite());
+        if !(0..width).any(bad) {
+            return Ok(());
+        }
+        for (r, &i) in rows.iter().enumerate() {
+            let first =
+                (0..width).find(|&j| self.column(j).get(r).is_some_and(|v: &f64| !v.is_finite()));
+            if let Some(j) = first {
+                let variable = cols
+                    .get(j)
+                    .map(|c| c.name.clone())
+                    .unwrap_or_else(|| spec.response.name().to_string());
+                return Err(ModelError::NonFiniteValue {
+                    variable,
+                    row: spec.row_numbers.get(i).copied().unwrap_or(i),
+                });
+            }
+        }
+        Ok(())
+    }
+
+    /// Mean ([`mean_of`]) and centred sum of squares of each column over the block.
+    fn moments(&self) -> Moments {
+        let width = self.a.cols;
+        let mut out = Moments::empty(width);
+        for j in 0..width {
+            let x = self.column(j);
+            let k = x.len() as f64;
+            let mean = mean_of(x);
+            out.mean[j] = mean;
+            out.m2[j] = x.iter().map(|v| (v - mean) * (v - mean)).sum();
+            out.count = k;
+        }
+        out
+    }
+
+    /// Replaces the first `k` columns Z by U = Z R^-1, i.e. u = R^-T z for every row
+    /// (forward substitution on whole columns; zero pivots give 0, as in
+    /// [`qr::solve_upper_transpose`]).
+    fn solve_transpose_in_place(&mut self, r: &Mat, k: usize) {
+        let (ld, top) = (self.a.rows, self.top);
+        for i in 0..k.min(r.cols) {
+            let (done, rest) = self.a.data.split_at_mut(i * ld);
+            let Some(zi) = rest.get_mut(top..ld) else {
+                return;
+            };
+            for kk in 0..i {
+                let rki = r.get(kk, i);
+                let Some(uk) = done.get(kk * ld + top..(kk + 1) * ld) else {
+                    continue;
+                };
+                for (z, u) in zi.iter_mut().zip(uk) {
+                    *z -= rki * u;
+                }
+            }
+            let d = r.get(i, i);
+            for z in zi.iter_mut() {
+                *z = if d != 0.0 { *z / d } else { 0.0 };
+            }
         }
     }
-    if let Some(x) = row.get_mut(cols.len()) {
-        *x = y.get(i).copied().unwrap_or(f64::NAN);
+
+    /// Moments of column j alone.
+    fn column_moments(&self, j: usize) -> Moments {
+        let x = self.column(j);
+        let k = x.len() as f64;
+        let mean = mean_of(x);
+        Moments {
+            count: k,
+            mean: vec![mean],
+            m2: vec![x.iter().map(|v| (v - mean) * (v - mean)).sum()],
+        }
+    }
+
+    /// Centre and scale every column in place.
+    fn standardise(&mut self, centre: &[f64], scale: &[f64]) {
+        let (ld, top) = (self.a.rows, self.top);
+        for (j, col) in self.a.data.chunks_exact_mut(ld).enumerate() {
+            let (c, s) = (centre[j], scale[j]);
+            for v in col.iter_mut().skip(top) {
+                *v = (*v - c) / s;
+            }
+        }
+    }
+}
+
+/// The sum over the count, corrected once by the mean of the deviations from it (which
+/// recovers the rounding of the first sum); 0 for no values.
+fn mean_of(x: &[f64]) -> f64 {
+    if x.is_empty() {
+        return 0.0;
+    }
+    let k = x.len() as f64;
+    let first = x.iter().sum::<f64>() / k;
+    first + x.iter().map(|v| v - first).sum::<f64>() / k
+}
+
+/// Count, means and centred sums of squares of a set of columns.
+struct Moments {
+    count: f64,
+    mean: Vec<f64>,
+    m2: Vec<f64>,
+}
+
+impl Moments {
+    fn empty(width: usize) -> Moments {
+        Moments {
+            count: 0.0,
+            mean: vec![0.0; width],
+            m2: vec![0.0; width],
+        }
+    }
+
+    /// Adds the rows behind `b` (Chan, Golub & LeVeque's pairwise update).
+    fn pool(&mut self, b: &Moments) {
+        let n = self.count + b.count;
+        if b.count == 0.0 {
+            return;
+        }
+        for j in 0..self.mean.len() {
+            let d = b.mean[j] - self.mean[j];
+            self.mean[j] += d * (b.count / n);
+            self.m2[j] += b.m2[j] + d * d * (self.count * b.count / n);
+        }
+        self.count = n;
     }
 }
 
@@ -555,69 +726,112 @@ impl Fit {
             .collect()
     }
 
+    /// Indices (into the spec's variables) of the rows the model was fitted to, in order.
+    pub(crate) fn used_rows(&self) -> &[usize] {
+        &self.lay.used
+    }
+
     /// The spec this model was fitted from (in a model without an intercept, with its
     /// response offset folded into the response values).
     pub fn spec(&self) -> &ModelSpec {
         &self.spec
     }
 
-    /// Row diagnostics: a second pass over the fitted rows. Leverage h_i = |R^-T z_i|^2;
-    /// Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized residual
-    /// e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
+    /// Row diagnostics: a second pass over the fitted rows, made once per fit. Leverage
+    /// h_i = |R^-T z_i|^2; Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized
+    /// residual e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
     /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2).
-    pub fn diagnostics(&self) -> Diagnostics {
+    pub fn diagnostics(&self) -> &Diagnostics {
+        self.diag.get_or_init(|| self.compute_diagnostics())
+    }
+
+    fn compute_diagnostics(&self) -> Diagnostics {
         let e = &self.treat;
-        let p = e.cols.len();
         let y: &[f64] = match &self.spec.response {
             Var::Numeric { values, .. } => values,
             Var::Factor { .. } => &[],
         };
-        let rank = self.kept.len() as f64;
+        let kept_cols: Vec<Column> = self
+            .kept
+            .iter()
+            .filter_map(|&c| e.cols.get(c).cloned())
+            .collect();
+        let k = kept_cols.len();
+        let mut centre: Vec<f64> = self.kept.iter().map(|&c| e.centre[c]).collect();
+        let mut scale: Vec<f64> = self.kept.iter().map(|&c| e.scale[c]).collect();
+        centre.push(e.y_centre);
+        scale.push(e.y_scale);
+        let rank = k as f64;
         let s2 = self.sigma * self.sigma;
+        let n = self.lay.used.len();
         let mut d = Diagnostics {
             row_numbers: self.row_numbers(),
-            fitted: Vec::new(),
-            residuals: Vec::new(),
-            leverage: Vec::new(),
-            cooks_distance: Vec::new(),
-            studentized: Vec::new(),
+            fitted: vec![0.0; n],
+            residuals: vec![0.0; n],
+            leverage: vec![0.0; n],
+            cooks_distance: vec![0.0; n],
+            studentized: vec![0.0; n],
         };
-        let mut row = vec![0.0; p + 1];
-        for &i in &self.lay.used {
-            fill_row(&self.spec, &e.cols, y, i, &mut row);
-            let z: Vec<f64> = self
-                .kept
-                .iter()
-                .map(|&c| (row[c] - e.centre[c]) / e.scale[c])
-                .collect();
-            let yz = (row[p] - e.y_centre) / e.y_scale;
-            let fz: f64 = z.iter().zip(&self.bz).map(|(a, b)| a * b).sum();
-            let res = (yz - fz) * e.y_scale;
-            let fitted = e.y_offset + (e.y_centre + fz * e.y_scale);
-            let u = qr::solve_upper_transpose(&self.r, &z);
-            let h: f64 = u.iter().map(|v| v * v).sum();
-            let one_h = 1.0 - h;
-            let cook = if one_h > 0.0 {
-                res * res * h / (rank * s2 * one_h * one_h)
-            } else {
-                f64::NAN
-            };
-            let stud = if one_h > 0.0 && self.df_res > 1 {
-                let s2i = (self.rss - res * res / one_h) / (self.df_res - 1) as f64;
-                if s2i > 0.0 {
-                    res / (s2i.sqrt() * one_h.sqrt())
-                } else {
-                    f64::NAN
+        let outputs = d
+            .fitted
+            .par_chunks_mut(CHUNK_ROWS)
+            .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
+            .zip(d.leverage.par_chunks_mut(CHUNK_ROWS))
+            .zip(d.cooks_distance.par_chunks_mut(CHUNK_ROWS))
+            .zip(d.studentized.par_chunks_mut(CHUNK_ROWS));
+        self.lay.used.par_chunks(CHUNK_ROWS).zip(outputs).for_each(
+            |(rows, ((((fitted, res), lev), cook), stud))| {
+                let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
+                block.standardise(&centre, &scale);
+                // Fitted values and residuals in the scaled coordinates, column by column.
+                let mut fz = vec![0.0; rows.len()];
+                for (j, b) in self.bz.iter().enumerate() {
+                    for (f, z) in fz.iter_mut().zip(block.column(j)) {
+                        *f += b * z;
+                    }
                 }
-            } else {
-                f64::NAN
-            };
-            d.fitted.push(fitted);
-            d.residuals.push(res);
-            d.leverage.push(h);
-            d.cooks_distance.push(cook);
-            d.studentized.push(stud);
-        }
+                for ((o_fit, o_res), (f, yz)) in fitted
+                    .iter_mut()
+                    .zip(res.iter_mut())
+                    .zip(fz.iter().zip(block.column(k)))
+                {
+                    *o_res = (yz - f) * e.y_scale;
+                    *o_fit = e.y_offset + (e.y_centre + f * e.y_scale);
+                }
+                // u = R^-T z for every row at once: forward substitution over whole columns,
+                // each u_i overwriting z_i (it needs only z_i and the u before it).
+                block.solve_transpose_in_place(&self.r, k);
+                lev.fill(0.0);
+                for i in 0..k {
+                    for (h, u) in lev.iter_mut().zip(block.column(i)) {
+                        *h += u * u;
+                    }
+                }
+                for (((c, s), &h), &r) in cook
+                    .iter_mut()
+                    .zip(stud.iter_mut())
+                    .zip(lev.iter())
+                    .zip(res.iter())
+                {
+                    let one_h = 1.0 - h;
+                    *c = if one_h > 0.0 {
+                        r * r * h / (rank * s2 * one_h * one_h)
+                    } else {
+                        f64::NAN
+                    };
+                    *s = if one_h > 0.0 && self.df_res > 1 {
+                        let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
+                        if s2i > 0.0 {
+                            r / (s2i.sqrt() * one_h.sqrt())
+                        } else {
+                            f64::NAN
+                        }
+                    } else {
+                        f64::NAN
+                    };
+                }
+            },
+        );
         d
     }
 }

@@ -158,17 +158,43 @@ fn reflect(a: &mut Mat, r: usize, j: usize, norm: f64) {
     if vtv == 0.0 {
         return;
     }
-    for k in (j + 1)..n {
-        let colk = &mut a.data[k * m + r..(k + 1) * m];
-        let s: f64 = v.iter().zip(colk.iter()).map(|(p, q)| p * q).sum();
-        let f = 2.0 * s / vtv;
-        for (q, p) in colk.iter_mut().zip(v.iter()) {
-            *q -= f * p;
+    // Columns j+1.. in groups of four: the four dot products with v run side by side (each
+    // summed in row order, as one at a time would), which keeps the processor busy while
+    // each running sum waits for the previous addition.
+    let mut k = j + 1;
+    while k < n {
+        let group = (n - k).min(4);
+        let mut s = [0.0f64; 4];
+        {
+            let cols: Vec<&[f64]> = (k..k + group)
+                .map(|c| &a.data[c * m + r..(c + 1) * m])
+                .collect();
+            if let [c0, c1, c2, c3] = cols.as_slice() {
+                for ((((&vi, &x0), &x1), &x2), &x3) in v.iter().zip(*c0).zip(*c1).zip(*c2).zip(*c3)
+                {
+                    s[0] += vi * x0;
+                    s[1] += vi * x1;
+                    s[2] += vi * x2;
+                    s[3] += vi * x3;
+                }
+            } else {
+                for (g, col) in cols.iter().enumerate() {
+                    s[g] = v.iter().zip(col.iter()).map(|(p, q)| p * q).sum::<f64>();
+                }
+            }
         }
+        for (g, sg) in s.iter().enumerate().take(group) {
+            let f = 2.0 * sg / vtv;
+            let colk = &mut a.data[(k + g) * m + r..(k + g + 1) * m];
+            for (q, p) in colk.iter_mut().zip(v.iter()) {
+                *q -= f * p;
+            }
+        }
+        k += group;
     }
     a.set(r, j, alpha);
-    for i in (r + 1)..m {
-        a.set(i, j, 0.0);
+    if let Some(below) = a.data.get_mut(j * m + r + 1..(j + 1) * m) {
+        below.fill(0.0);
     }
 }
 
@@ -232,6 +258,41 @@ impl RAccumulator {
     }
 }
 
+/// The triangular factor (`cols` x `cols`, non-negative diagonal) of a block of rows held
+/// column-major in `a` with `cols` leading rows of zeros, which make the result square even
+/// for a block shorter than it is wide.
+pub(crate) fn block_factor(a: &mut Mat) -> Mat {
+    let c = a.cols;
+    let t = triangularize(a, None, false);
+    if t.r.rows == c {
+        t.r
+    } else {
+        // Fewer rows than columns cannot happen with the leading zero rows; keep a square
+        // factor anyway.
+        let mut r = Mat::zeros(c, c);
+        for (k, &j) in t.kept.iter().enumerate() {
+            for i in 0..=k {
+                r.set(i, j, t.r.get(i, k));
+            }
+        }
+        r
+    }
+}
+
+/// The triangular factor of two stacked triangular factors `[a; b]` (both `c` x `c`): the
+/// factor of the union of the rows behind them.
+pub(crate) fn merge_factors(a: &Mat, b: &Mat) -> Mat {
+    let c = a.cols;
+    let mut s = Mat::zeros(2 * c, c);
+    for j in 0..c {
+        for i in 0..=j {
+            s.set(i, j, a.get(i, j));
+            s.set(c + i, j, b.get(i, j));
+        }
+    }
+    block_factor(&mut s)
+}
+
 /// Solve R x = b for upper-triangular R (back substitution). Zero pivots give 0 entries
 /// (callers only pass factors of kept, non-aliased columns).
 pub(crate) fn solve_upper(r: &Mat, b: &[f64]) -> Vec<f64> {
@@ -250,15 +311,23 @@ pub(crate) fn solve_upper(r: &Mat, b: &[f64]) -> Vec<f64> {
 
 /// Solve R' x = b for upper-triangular R (forward substitution on the transpose).
 pub(crate) fn solve_upper_transpose(r: &Mat, b: &[f64]) -> Vec<f64> {
-    let n = r.cols.min(b.len());
-    let mut x = vec![0.0; n];
+    let mut x = vec![0.0; r.cols.min(b.len())];
+    solve_upper_transpose_into(r, b, &mut x);
+    x
+}
+
+/// [`solve_upper_transpose`] into `x` (whose length sets how many entries are solved for),
+/// without allocating.
+pub(crate) fn solve_upper_transpose_into(r: &Mat, b: &[f64], x: &mut [f64]) {
+    let n = r.cols.min(b.len()).min(x.len());
     for i in 0..n {
+        // Column i of R holds the coefficients of row i of R'.
+        let ri = r.col(i);
         let mut s = b[i];
-        for (k, xk) in x.iter().enumerate().take(i) {
-            s -= r.get(k, i) * xk;
+        for (rk, xk) in ri.iter().zip(x.iter()).take(i) {
+            s -= rk * xk;
         }
-        let d = r.get(i, i);
+        let d = ri.get(i).copied().unwrap_or(0.0);
         x[i] = if d != 0.0 { s / d } else { 0.0 };
     }
-    x
 }

@@ -5,8 +5,10 @@
 //! extensions thereof", Psychometrika 29).
 
 use super::design::term_keys;
-use super::fit::{check_level, f_p, fit, t_p, t_quantile, Fit};
-use super::{ModelError, Part, Region, RegionKind, Slope, Slopes, TermSpec, Transform, Var};
+use super::fit::{check_level, f_p, fit_owned, t_p, t_quantile, Fit};
+use super::{
+    ModelError, ModelSpec, Part, Region, RegionKind, Slope, Slopes, TermSpec, Transform, Var,
+};
 
 /// When |A| (the x^2 coefficient of the Johnson-Neyman quadratic) is below this fraction of
 /// the size of its two parts, the quadratic is treated as linear: A is then the difference
@@ -55,15 +57,21 @@ impl Fit {
         Ok(v)
     }
 
-    /// This fit if it has the factor-by-covariate term, else a refit with it appended.
-    fn with_interaction(&self, f: usize, x: usize) -> Result<(Option<Fit>, usize), ModelError> {
+    /// This fit if it has the factor-by-covariate term; else one of `known` that is this
+    /// model with that term appended (same data, terms in the same order), so no new pass
+    /// over the rows is made; else a refit with the term appended.
+    fn with_interaction<'a>(
+        &'a self,
+        f: usize,
+        x: usize,
+        known: &[&'a Fit],
+    ) -> Result<(Refit<'a>, usize), ModelError> {
         let mut want = vec![(f, Transform::Identity), (x, Transform::Identity)];
         want.sort();
         if let Some(t) = (0..self.spec.terms.len()).find(|&t| term_keys(&self.spec, t) == want) {
-            return Ok((None, t));
+            return Ok((Refit::Same(self), t));
         }
-        let mut spec = self.spec.clone();
-        spec.terms.push(TermSpec {
+        let term = TermSpec {
             parts: vec![
                 Part {
                     var: f,
@@ -74,9 +82,17 @@ impl Fit {
                     transform: Transform::Identity,
                 },
             ],
-        });
-        let t = spec.terms.len() - 1;
-        Ok((Some(fit(&spec)?), t))
+        };
+        let t = self.spec.terms.len();
+        if let Some(k) = known
+            .iter()
+            .find(|k| extends_by(&k.spec, &self.spec, &term))
+        {
+            return Ok((Refit::Known(k), t));
+        }
+        let mut spec = self.spec.clone();
+        spec.terms.push(term);
+        Ok((Refit::New(Box::new(fit_owned(spec)?)), t))
     }
 
     /// Slope of the covariate within each level of `factor`, from a model with the
@@ -88,12 +104,24 @@ impl Fit {
         factor: &str,
         level: f64,
     ) -> Result<Slopes, ModelError> {
+        self.slopes_among(covariate, factor, level, &[])
+    }
+
+    /// [`Fit::slopes`], taking the model with the interaction from `known` when one of
+    /// them is exactly that model (the session passes its fitted models).
+    pub fn slopes_among(
+        &self,
+        covariate: Option<&str>,
+        factor: &str,
+        level: f64,
+        known: &[&Fit],
+    ) -> Result<Slopes, ModelError> {
         check_level(level)?;
         let f = self.model_factor(factor)?;
         let x = self.slope_covariate(covariate)?;
-        let (refit, ti) = self.with_interaction(f, x)?;
-        let refitted = refit.is_some();
-        let m: &Fit = refit.as_ref().unwrap_or(self);
+        let (refit, ti) = self.with_interaction(f, x, known)?;
+        let refitted = !matches!(refit, Refit::Same(_));
+        let m: &Fit = refit.fit();
         let numeric = m.covariate_values(&[])?;
         let levels = match m.spec.vars.get(f) {
             Some(Var::Factor { levels, .. }) => levels.clone(),
@@ -165,9 +193,9 @@ impl Fit {
         check_level(alpha)?;
         let f = self.model_factor(factor)?;
         let x = self.slope_covariate(Some(covariate))?;
-        let (refit, _) = self.with_interaction(f, x)?;
-        let refitted = refit.is_some();
-        let m: &Fit = refit.as_ref().unwrap_or(self);
+        let (refit, _) = self.with_interaction(f, x, &[])?;
+        let refitted = !matches!(refit, Refit::Same(_));
+        let m: &Fit = refit.fit();
         let numeric = m.covariate_values(&[])?;
         let levels = match m.spec.vars.get(f) {
             Some(Var::Factor { levels, .. }) => levels.clone(),
@@ -331,5 +359,70 @@ impl Fit {
             });
         }
         Ok(out)
+    }
+}
+
+/// The model the slopes are read from.
+enum Refit<'a> {
+    /// The model itself (it has the interaction).
+    Same(&'a Fit),
+    /// An already fitted model that is this one plus the interaction.
+    Known(&'a Fit),
+    /// A new fit with the interaction appended.
+    New(Box<Fit>),
+}
+
+impl Refit<'_> {
+    fn fit(&self) -> &Fit {
+        match self {
+            Refit::Same(f) | Refit::Known(f) => f,
+            Refit::New(f) => f,
+        }
+    }
+}
+
+/// Whether `big` is `base` with `term` appended: the same variables, values (bit for bit, so
+/// missing values compare equal), rows, response and intercept, and base's terms then `term`.
+fn extends_by(big: &ModelSpec, base: &ModelSpec, term: &TermSpec) -> bool {
+    big.terms.len() == base.terms.len() + 1
+        && big.terms.last() == Some(term)
+        && big.terms.iter().zip(&base.terms).all(|(a, b)| a == b)
+        && big.intercept == base.intercept
+        && big.response_offset.to_bits() == base.response_offset.to_bits()
+        && big.row_numbers == base.row_numbers
+        && same_var(&big.response, &base.response)
+        && big.vars.len() == base.vars.len()
+        && big.vars.iter().zip(&base.vars).all(|(a, b)| same_var(a, b))
+}
+
+fn same_var(a: &Var, b: &Var) -> bool {
+    match (a, b) {
+        (
+            Var::Numeric {
+                name: na,
+                values: va,
+            },
+            Var::Numeric {
+                name: nb,
+                values: vb,
+            },
+        ) => {
+            na == nb
+                && va.len() == vb.len()
+                && va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits())
+        }
+        (
+            Var::Factor {
+                name: na,
+                codes: ca,
+                levels: la,
+            },
+            Var::Factor {
+                name: nb,
+                codes: cb,
+                levels: lb,
+            },
+        ) => na == nb && ca == cb && la == lb,
+        _ => false,
     }
 }

@@ -1,8 +1,6 @@
 //! The figures of `plot`, built from a fitted model: what each one shows, in numbers,
 //! before [`super::chart`] draws it.
 
-use std::collections::BTreeMap;
-
 use statrs::distribution::{ContinuousCDF, Normal};
 
 use super::chart::{Chart, Curve, Guide, Interval, Point};
@@ -35,20 +33,16 @@ const GOLDEN: f64 = 0.618_033_988_749_894_8;
 
 /// The rows of the fit, with what every figure needs of them.
 struct Rows {
-    /// Data-file row number of each fitted row.
-    row_numbers: Vec<usize>,
     /// Index of each fitted row in the model's variables (None if not found).
     index: Vec<Option<usize>>,
 }
 
 impl Rows {
-    fn of(fit: &Fit, row_numbers: Vec<usize>) -> Rows {
-        let mut at: BTreeMap<usize, usize> = BTreeMap::new();
-        for (i, r) in fit.spec().row_numbers.iter().enumerate() {
-            at.entry(*r).or_insert(i);
+    /// The fitted rows of a model, in the order of its diagnostics.
+    fn of(fit: &Fit) -> Rows {
+        Rows {
+            index: fit.used_rows().iter().copied().map(Some).collect(),
         }
-        let index = row_numbers.iter().map(|r| at.get(r).copied()).collect();
-        Rows { row_numbers, index }
     }
 
     /// Numeric values of variable `var` on the fitted rows (NaN where unknown).
@@ -270,8 +264,7 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .get(xv)
         .map(|v| v.name().to_string())
         .unwrap_or_default();
-    let d = fit.diagnostics();
-    let rows = Rows::of(fit, d.row_numbers);
+    let rows = Rows::of(fit);
     let xs = rows.numeric(fit, Some(xv));
     let ys = rows.response(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
@@ -388,7 +381,7 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// `plot residuals`: residuals against fitted values (or against covariate X), zero line.
 pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
-    let rows = Rows::of(fit, d.row_numbers.clone());
+    let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let xs = match req.covariate {
         Some(v) => rows.numeric(fit, Some(v)),
@@ -448,7 +441,7 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// Estimates and Transformed Beta-Variables", Wiley).
 pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
-    let rows = Rows::of(fit, d.row_numbers.clone());
+    let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let s = fit.summary().sigma;
     let mut r: Vec<(f64, usize)> = Vec::new();
@@ -581,10 +574,10 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// distance of each run is drawn, so that no influential row disappears.
 pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
-    let rows = Rows::of(fit, d.row_numbers.clone());
+    let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
-    for ((r, c), g) in rows
+    for ((r, c), g) in d
         .row_numbers
         .iter()
         .zip(&d.cooks_distance)
@@ -669,8 +662,7 @@ fn short_number(v: f64) -> String {
 /// sequence, with each level's raw mean as a bar.
 pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let fname = req.factor_name.clone().ok_or(PlotError::NoFactor)?;
-    let d = fit.diagnostics();
-    let rows = Rows::of(fit, d.row_numbers);
+    let rows = Rows::of(fit);
     let ys = rows.response(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let k = groups.labels.len();

@@ -85,10 +85,11 @@ impl Session<'_> {
         for &f in &factors {
             t.push(spread_row(spec, f, &used, &diag.residuals));
         }
+        let known: Vec<&Fit> = self.models.iter().map(|m| &m.fit).collect();
         let mut have_interaction = Vec::new();
         for &f in &factors {
             for &x in &covariates {
-                match slopes_row(fit, spec, f, x) {
+                match slopes_row(fit, spec, f, x, &known) {
                     Some(row) => t.push(row),
                     None => have_interaction.push((f, x)),
                 }
@@ -100,7 +101,7 @@ impl Session<'_> {
             }
         }
         t.subject = Some(m.name.clone());
-        let influence = Influence::new(&diag, fit.n_coef());
+        let influence = Influence::new(diag, fit.n_coef());
         t.push(influence.row());
 
         t.notes.push(format!(
@@ -128,7 +129,7 @@ impl Session<'_> {
                 )),
             ])
         } else {
-            let mut listed = influence.table(&diag, &m.name);
+            let mut listed = influence.table(diag, &m.name);
             listed.subject = Some(m.name.clone());
             Ok(vec![Item::Table(t), Item::Table(listed)])
         }
@@ -293,7 +294,13 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> 
 
 /// The equal-slopes row of factor `f` and covariate `x`, or None when the model already has
 /// their interaction.
-fn slopes_row(fit: &Fit, spec: &ModelSpec, f: usize, x: usize) -> Option<Vec<Cell>> {
+fn slopes_row(
+    fit: &Fit,
+    spec: &ModelSpec,
+    f: usize,
+    x: usize,
+    known: &[&Fit],
+) -> Option<Vec<Cell>> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("equal slopes of {xname} across {fname}");
     let not_tested = |why: String| {
@@ -305,7 +312,7 @@ fn slopes_row(fit: &Fit, spec: &ModelSpec, f: usize, x: usize) -> Option<Vec<Cel
             format!("not tested: {why}"),
         )
     };
-    match fit.slopes(Some(xname), fname, SLOPES_LEVEL) {
+    match fit.slopes_among(Some(xname), fname, SLOPES_LEVEL, known) {
         Ok(s) if !s.refitted => None,
         Ok(s) if s.df1 == 0 || !s.equality_f.is_finite() => Some(not_tested(format!(
             "the {fname} by {xname} term adds no estimable column to this design"

@@ -417,13 +417,15 @@ impl Session<'_> {
                 level,
             } => {
                 let m = self.model_entry(model)?;
+                let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let level = confidence(level.as_ref())?;
                 let s = m
                     .fit
-                    .slopes(
+                    .slopes_among(
                         covariate.as_ref().map(|c| c.value.as_str()),
                         &factor.value,
                         level,
+                        &known,
                     )
                     .map_err(fail(covariate.as_ref().map_or(factor.span, |c| c.span)))?;
                 let mut t = Table::new(

@@ -44,12 +44,14 @@ impl Session<'_> {
             } => {
                 let alpha = alpha_of(alpha)?;
                 let m = self.model_entry(model)?;
+                let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let s = m
                     .fit
-                    .slopes(
+                    .slopes_among(
                         covariate.as_ref().map(|c| c.value.as_str()),
                         &factor.value,
                         0.95,
+                        &known,
                     )
                     .map_err(|e| {
                         Diagnostic::new(factor.span, e.to_string()).label("cannot test this")
@@ -71,8 +73,8 @@ impl Session<'_> {
             Gate::Normality { model, alpha } => {
                 let alpha = alpha_of(alpha)?;
                 let m = self.model_entry(model)?;
-                let residuals = m.fit.diagnostics().residuals;
-                let sw = crate::stats::shapiro::shapiro_wilk(&residuals).map_err(|e| {
+                let residuals = &m.fit.diagnostics().residuals;
+                let sw = crate::stats::shapiro::shapiro_wilk(residuals).map_err(|e| {
                     Diagnostic::new(model.span, e.to_string()).label("cannot test this")
                 })?;
                 (

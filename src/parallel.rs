@@ -1,0 +1,26 @@
+//! How covey uses the machine's cores: the one place that reads `COVEY_THREADS`.
+//!
+//! Work on many rows is split into blocks whose boundaries depend only on the input (a fixed
+//! number of rows per block), each block is computed on its own, and the partial results are
+//! combined in block order. So every output byte is the same whatever the number of threads;
+//! threads only change how soon it is ready.
+
+/// Environment variable that sets the number of worker threads (a whole number >= 1). Unset,
+/// empty or unreadable: one per core.
+pub const THREADS_VAR: &str = "COVEY_THREADS";
+
+/// Sets up the thread pool from [`THREADS_VAR`]; call once, before any parallel work. A value
+/// that is not a whole number >= 1 is ignored (the default is kept), since the number of
+/// threads cannot change any result.
+pub fn configure() {
+    let wanted = std::env::var(THREADS_VAR)
+        .ok()
+        .and_then(|v| v.trim().parse::<usize>().ok())
+        .filter(|&n| n >= 1);
+    if let Some(n) = wanted {
+        // Fails only when a pool was already built, which leaves that pool in place.
+        let _ = rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global();
+    }
+}
