@@ -262,7 +262,18 @@ impl Fit {
                     Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
                 };
                 let (ecols, eterms) = design::columns(&self.spec, &self.lay, Scheme::Effect);
-                build_engine(&self.spec, &self.lay, y, ecols, eterms)
+                let derived = super::recode::effect_from_treatment(
+                    &self.spec,
+                    &self.lay,
+                    &self.treat,
+                    ecols.clone(),
+                    eterms.clone(),
+                    self.lay.used.len(),
+                );
+                match derived {
+                    Some(e) => Ok(e),
+                    None => build_engine(&self.spec, &self.lay, y, ecols, eterms),
+                }
             })
             .as_ref()
             .map_err(Clone::clone)
@@ -279,7 +290,7 @@ fn treat_y_constant(e: &Engine) -> bool {
 /// block factors two at a time. The response's variance, for the zero-variance check, is
 /// pooled from per-block moments by the formula of Chan, Golub & LeVeque (1983, "Algorithms
 /// for computing the sample variance", The American Statistician 37).
-fn build_engine(
+pub(crate) fn build_engine(
     spec: &ModelSpec,
     lay: &Layout,
     y: &[f64],

@@ -17,6 +17,7 @@ pub mod dist;
 mod fit;
 mod means;
 mod qr;
+mod recode;
 mod slopes;
 
 #[cfg(test)]
