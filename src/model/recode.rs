@@ -227,7 +227,7 @@ fn coding_map(t: &[Column], e: &[Column], points: &[Point]) -> Option<Mat> {
         let coef = qr::solve_upper(&rt, &rhs);
         let resid = tri.r.get(p, p).abs();
         let norm = em.col(j).iter().map(|v| v * v).sum::<f64>().sqrt();
-        if !(resid <= IDENTITY_TOL * norm.max(1.0)) {
+        if resid.is_nan() || resid > IDENTITY_TOL * norm.max(1.0) {
             return None;
         }
         for (i, c) in coef.iter().enumerate() {

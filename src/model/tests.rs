@@ -1587,7 +1587,7 @@ fn derived_effect_engine_matches_the_rows() {
             transform: Transform::Log,
         }],
     };
-    let specs = vec![
+    let specs = [
         with(vec![term(&[0]), term(&[2])], false),
         with(vec![term(&[0]), term(&[2]), term(&[0, 2])], false),
         with(
