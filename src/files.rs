@@ -117,41 +117,59 @@ impl Batch {
     }
 
     /// Writes every file; `fail_after` injects a failure after that many
-    /// temporary files (for tests of the all-or-nothing promise).
+    /// temporary files (for tests of the all-or-nothing promise). A file whose
+    /// current content is already the new bytes is left untouched (so an
+    /// unchanged rendering keeps its modification time and costs no disk
+    /// flush); the others are written to temporary files and flushed to disk
+    /// side by side on the thread pool, then renamed in order.
     pub fn commit_with(self, fail_after: Option<usize>) -> Result<(), FileError> {
-        let mut staged: Vec<(PathBuf, PathBuf)> = Vec::new();
         let cleanup = |staged: &[(PathBuf, PathBuf)]| {
             for (tmp, _) in staged {
                 let _ = fs::remove_file(tmp);
             }
         };
+        let mut todo: Vec<(&PathBuf, &Vec<u8>)> = Vec::new();
         for (i, (path, bytes)) in self.files.iter().enumerate() {
             if fail_after == Some(i) {
-                cleanup(&staged);
                 return Err(FileError {
                     path: path.clone(),
                     message: "injected failure before writing (test hook)".into(),
                 });
             }
+            if fs::read(path).is_ok_and(|old| old == *bytes) {
+                continue;
+            }
             if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
                 if let Err(e) = fs::create_dir_all(dir) {
-                    cleanup(&staged);
                     return Err(FileError {
                         path: dir.to_path_buf(),
                         message: format!("cannot create the folder: {e}"),
                     });
                 }
             }
-            let tmp = temp_name(path);
-            if let Err(e) = write_synced(&tmp, bytes) {
-                let _ = fs::remove_file(&tmp);
-                cleanup(&staged);
-                return Err(FileError {
-                    path: path.clone(),
-                    message: format!("cannot write: {e}"),
-                });
-            }
-            staged.push((tmp, path.clone()));
+            todo.push((path, bytes));
+        }
+        let written: Vec<Result<(PathBuf, PathBuf), FileError>> =
+            crate::parallel::map(&todo, |(path, bytes)| {
+                let tmp = temp_name(path);
+                match write_synced(&tmp, bytes) {
+                    Ok(()) => Ok((tmp, (*path).clone())),
+                    Err(e) => {
+                        let _ = fs::remove_file(&tmp);
+                        Err(FileError {
+                            path: (*path).clone(),
+                            message: format!("cannot write: {e}"),
+                        })
+                    }
+                }
+            });
+        let staged: Vec<(PathBuf, PathBuf)> = written
+            .iter()
+            .filter_map(|w| w.as_ref().ok().cloned())
+            .collect();
+        if let Some(Err(e)) = written.into_iter().find(Result::is_err) {
+            cleanup(&staged);
+            return Err(e);
         }
         for (tmp, path) in &staged {
             if let Err(e) = fs::rename(tmp, path) {

@@ -24,3 +24,14 @@ pub fn configure() {
             .build_global();
     }
 }
+
+/// `f` applied to every item, results in item order: on the thread pool when there is more
+/// than one item, else on this thread (so small inputs never start the pool).
+pub fn map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync + Send) -> Vec<R> {
+    use rayon::prelude::*;
+    if items.len() > 1 {
+        items.par_iter().map(f).collect()
+    } else {
+        items.iter().map(f).collect()
+    }
+}

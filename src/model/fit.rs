@@ -327,16 +327,13 @@ pub(crate) fn build_engine(
 
     // One pass: the triangular factor of each block, merged in block order, with the
     // response's moments for the zero-variance check.
-    let partial: Vec<Result<(Moments, Mat), ModelError>> = blocks
-        .par_iter()
-        .map(|rows| {
-            let mut block = Block::fill(spec, &cols, y, rows);
-            block.check_finite(spec, &cols, rows)?;
-            let ym = block.column_moments(p);
-            block.standardise(&centre, &scale);
-            Ok((ym, qr::block_factor(&mut block.a)))
-        })
-        .collect();
+    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |rows| {
+        let mut block = Block::fill(spec, &cols, y, rows);
+        block.check_finite(spec, &cols, rows)?;
+        let ym = block.column_moments(p);
+        block.standardise(&centre, &scale);
+        Ok((ym, qr::block_factor(&mut block.a)))
+    });
     let mut y_moments = Moments::empty(1);
     let mut r_aug = Mat::zeros(p + 1, p + 1);
     for (k, part) in partial.into_iter().enumerate() {
@@ -783,66 +780,99 @@ impl Fit {
             cooks_distance: vec![0.0; n],
             studentized: vec![0.0; n],
         };
-        let outputs = d
-            .fitted
-            .par_chunks_mut(CHUNK_ROWS)
-            .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
-            .zip(d.leverage.par_chunks_mut(CHUNK_ROWS))
-            .zip(d.cooks_distance.par_chunks_mut(CHUNK_ROWS))
-            .zip(d.studentized.par_chunks_mut(CHUNK_ROWS));
-        self.lay.used.par_chunks(CHUNK_ROWS).zip(outputs).for_each(
-            |(rows, ((((fitted, res), lev), cook), stud))| {
-                let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
-                block.standardise(&centre, &scale);
-                // Fitted values and residuals in the scaled coordinates, column by column.
-                let mut fz = vec![0.0; rows.len()];
-                for (j, b) in self.bz.iter().enumerate() {
-                    for (f, z) in fz.iter_mut().zip(block.column(j)) {
-                        *f += b * z;
-                    }
+        let work = |(rows, ((((fitted, res), lev), cook), stud)): Outputs<'_>| {
+            let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
+            block.standardise(&centre, &scale);
+            // Fitted values and residuals in the scaled coordinates, column by column.
+            let mut fz = vec![0.0; rows.len()];
+            for (j, b) in self.bz.iter().enumerate() {
+                for (f, z) in fz.iter_mut().zip(block.column(j)) {
+                    *f += b * z;
                 }
-                for ((o_fit, o_res), (f, yz)) in fitted
-                    .iter_mut()
-                    .zip(res.iter_mut())
-                    .zip(fz.iter().zip(block.column(k)))
-                {
-                    *o_res = (yz - f) * e.y_scale;
-                    *o_fit = e.y_offset + (e.y_centre + f * e.y_scale);
+            }
+            for ((o_fit, o_res), (f, yz)) in fitted
+                .iter_mut()
+                .zip(res.iter_mut())
+                .zip(fz.iter().zip(block.column(k)))
+            {
+                *o_res = (yz - f) * e.y_scale;
+                *o_fit = e.y_offset + (e.y_centre + f * e.y_scale);
+            }
+            // u = R^-T z for every row at once: forward substitution over whole columns,
+            // each u_i overwriting z_i (it needs only z_i and the u before it).
+            block.solve_transpose_in_place(&self.r, k);
+            lev.fill(0.0);
+            for i in 0..k {
+                for (h, u) in lev.iter_mut().zip(block.column(i)) {
+                    *h += u * u;
                 }
-                // u = R^-T z for every row at once: forward substitution over whole columns,
-                // each u_i overwriting z_i (it needs only z_i and the u before it).
-                block.solve_transpose_in_place(&self.r, k);
-                lev.fill(0.0);
-                for i in 0..k {
-                    for (h, u) in lev.iter_mut().zip(block.column(i)) {
-                        *h += u * u;
-                    }
-                }
-                for (((c, s), &h), &r) in cook
-                    .iter_mut()
-                    .zip(stud.iter_mut())
-                    .zip(lev.iter())
-                    .zip(res.iter())
-                {
-                    let one_h = 1.0 - h;
-                    *c = if one_h > 0.0 {
-                        r * r * h / (rank * s2 * one_h * one_h)
+            }
+            for (((c, s), &h), &r) in cook
+                .iter_mut()
+                .zip(stud.iter_mut())
+                .zip(lev.iter())
+                .zip(res.iter())
+            {
+                let one_h = 1.0 - h;
+                *c = if one_h > 0.0 {
+                    r * r * h / (rank * s2 * one_h * one_h)
+                } else {
+                    f64::NAN
+                };
+                *s = if one_h > 0.0 && self.df_res > 1 {
+                    let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
+                    if s2i > 0.0 {
+                        r / (s2i.sqrt() * one_h.sqrt())
                     } else {
                         f64::NAN
-                    };
-                    *s = if one_h > 0.0 && self.df_res > 1 {
-                        let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
-                        if s2i > 0.0 {
-                            r / (s2i.sqrt() * one_h.sqrt())
-                        } else {
-                            f64::NAN
-                        }
-                    } else {
-                        f64::NAN
-                    };
-                }
-            },
-        );
+                    }
+                } else {
+                    f64::NAN
+                };
+            }
+        };
+        if n > CHUNK_ROWS {
+            let outputs = d
+                .fitted
+                .par_chunks_mut(CHUNK_ROWS)
+                .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
+                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS))
+                .zip(d.cooks_distance.par_chunks_mut(CHUNK_ROWS))
+                .zip(d.studentized.par_chunks_mut(CHUNK_ROWS));
+            self.lay
+                .used
+                .par_chunks(CHUNK_ROWS)
+                .zip(outputs)
+                .for_each(work);
+        } else {
+            // One block: on this thread, without starting the pool.
+            work((
+                &self.lay.used,
+                (
+                    (
+                        (
+                            (&mut d.fitted[..], &mut d.residuals[..]),
+                            &mut d.leverage[..],
+                        ),
+                        &mut d.cooks_distance[..],
+                    ),
+                    &mut d.studentized[..],
+                ),
+            ));
+        }
         d
     }
 }
+
+/// One block's rows and its slices of the five diagnostic outputs (fitted, residual,
+/// leverage, Cook's distance, studentized residual), nested as rayon's zip delivers them.
+type Outputs<'a> = (
+    &'a [usize],
+    (
+        (
+            ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]),
+            &'a mut [f64],
+        ),
+        &'a mut [f64],
+    ),
+);
