@@ -9,14 +9,14 @@
 //! - equal slopes of each covariate across each factor whose interaction with it is not in the
 //!   model: the F test of adding that interaction ([`Fit::slopes`]);
 //! - balance of each covariate across each factor: the one-way analysis of variance of the
-//!   covariate on the factor (a model of its own, Type II F);
+//!   covariate on the factor (the F of a model of the covariate on the factor, computed from
+//!   the level means without fitting one);
 //! - influence: leverage, Cook's distance and the externally studentized residual
 //!   ([`Fit::diagnostics`]) against rules of thumb of common practice.
 
 use super::{Outcome, Session};
-use crate::diagnostic::Diagnostic;
 use crate::lang::Spanned;
-use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, Part, SsType, TermSpec, Var};
+use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, Var};
 use crate::report::markdown::code;
 use crate::report::number::format_column;
 use crate::report::{Cell, Column as Col, Format, Item, Table};
@@ -56,13 +56,7 @@ impl Session<'_> {
         let fit = &m.fit;
         let spec = fit.spec();
         let diag = fit.diagnostics();
-        let used = fitted_rows(spec, &diag.row_numbers).ok_or_else(|| {
-            Diagnostic::new(
-                model.span,
-                "internal: the rows of this model cannot be matched with its data",
-            )
-            .label("cannot check this model")
-        })?;
+        let used = fit.used_rows();
         let factors = model_vars(spec, true);
         let covariates = model_vars(spec, false);
         let n = diag.residuals.len();
@@ -83,7 +77,7 @@ impl Session<'_> {
         );
         t.push(normality_row(&diag.residuals, &m.name));
         for &f in &factors {
-            t.push(spread_row(spec, f, &used, &diag.residuals));
+            t.push(spread_row(spec, f, used, &diag.residuals));
         }
         let known: Vec<&Fit> = self.models.iter().map(|m| &m.fit).collect();
         let mut have_interaction = Vec::new();
@@ -97,7 +91,7 @@ impl Session<'_> {
         }
         for &f in &factors {
             for &x in &covariates {
-                t.push(balance_row(spec, f, x, &used));
+                t.push(balance_row(spec, f, x, used));
             }
         }
         t.subject = Some(m.name.clone());
@@ -134,39 +128,6 @@ impl Session<'_> {
             Ok(vec![Item::Table(t), Item::Table(listed)])
         }
     }
-}
-
-/// Indices of the model's input rows that it was fitted to: a response that is not missing
-/// and no missing value in a variable of its terms (the engine's rule). None when they do not
-/// give the data-file lines the fit reports, which would mean the rule and the engine
-/// disagree.
-fn fitted_rows(spec: &ModelSpec, lines: &[usize]) -> Option<Vec<usize>> {
-    let y = match &spec.response {
-        Var::Numeric { values, .. } => values,
-        Var::Factor { .. } => return None,
-    };
-    let in_terms: Vec<&Var> = spec
-        .vars
-        .iter()
-        .enumerate()
-        .filter(|(v, _)| uses(spec, *v))
-        .map(|(_, var)| var)
-        .collect();
-    let used: Vec<usize> = (0..y.len())
-        .filter(|&i| {
-            y.get(i).is_some_and(|v| !v.is_nan())
-                && in_terms.iter().all(|var| match var {
-                    Var::Numeric { values, .. } => values.get(i).is_some_and(|v| !v.is_nan()),
-                    Var::Factor { codes, .. } => codes.get(i).is_some_and(Option::is_some),
-                })
-        })
-        .collect();
-    let same = used.len() == lines.len()
-        && used
-            .iter()
-            .zip(lines)
-            .all(|(&i, &line)| spec.row_numbers.get(i) == Some(&line));
-    same.then_some(used)
 }
 
 /// Whether variable `v` appears in a term of the model.
@@ -354,68 +315,105 @@ fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &[usize]) -> Vec<Cell
         )
     };
     let (codes, levels) = factor_parts(spec, f);
-    let values: Vec<f64> = match spec.vars.get(x) {
-        Some(Var::Numeric { values, .. }) => used
-            .iter()
-            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
-            .collect(),
-        _ => Vec::new(),
+    let values: &[f64] = match spec.vars.get(x) {
+        Some(Var::Numeric { values, .. }) => values,
+        _ => &[],
     };
-    let one_way = ModelSpec {
-        response: Var::Numeric {
-            name: xname.to_string(),
-            values,
-        },
-        vars: vec![Var::Factor {
-            name: fname.to_string(),
-            codes: used
-                .iter()
-                .map(|&i| codes.get(i).copied().flatten())
-                .collect(),
-            levels: levels.to_vec(),
-        }],
-        terms: vec![TermSpec {
-            parts: vec![Part {
-                var: 0,
-                transform: model::Transform::Identity,
-            }],
-        }],
-        intercept: true,
-        // The covariate's values are plain numbers, whatever offset the response has.
-        response_offset: 0.0,
-        row_numbers: used
-            .iter()
-            .map(|&i| spec.row_numbers.get(i).copied().unwrap_or(i))
-            .collect(),
-    };
-    let anova = model::fit(&one_way).and_then(|m| m.anova(SsType::II));
-    match anova {
-        Ok(a) => match a.rows.first() {
-            Some(r) => {
-                let significant = r.p.is_some_and(|p| p < ALPHA);
-                let verdict = if significant {
-                    format!(
-                        "warning sign: {xname} differs between levels of {fname} (p < {}): the treatment may have changed it, or the groups were not comparable at the start; adjusted means then rest on the straight-line model where the groups overlap little",
-                        bound(ALPHA)
-                    )
-                } else {
-                    format!("no evidence that {xname} differs between levels of {fname}")
-                };
-                row(
-                    check,
-                    r.f.into(),
-                    df_text(r.df, a.residual_df),
-                    r.p.into(),
-                    verdict,
+    match one_way(values, codes, levels.len(), used) {
+        Ok((fv, df1, df2)) => {
+            let p = model::dist::f_upper_p(fv, df1, df2);
+            let verdict = if p < ALPHA {
+                format!(
+                    "warning sign: {xname} differs between levels of {fname} (p < {}): the treatment may have changed it, or the groups were not comparable at the start; adjusted means then rest on the straight-line model where the groups overlap little",
+                    bound(ALPHA)
                 )
-            }
-            None => not_tested("the one-way analysis has no term".into()),
-        },
+            } else {
+                format!("no evidence that {xname} differs between levels of {fname}")
+            };
+            row(check, fv.into(), df_text(df1, df2), p.into(), verdict)
+        }
         Err(ModelError::PerfectFit) => not_tested(format!(
             "{xname} takes a single value within each level of {fname}, so the covariate and the groups cannot be told apart"
         )),
+        Err(ModelError::ResponseZeroVariance) => not_tested(format!(
+            "{xname} has the same value in every fitted row"
+        )),
+        Err(ModelError::TooFewLevels { levels, .. }) => not_tested(format!(
+            "{fname} has {levels} level(s) with rows; at least two are needed"
+        )),
         Err(e) => not_tested(e.to_string()),
     }
+}
+
+/// The one-way analysis of variance of `values` on the factor `codes` over the rows `used`:
+/// (F, numerator df, denominator df). Group means by a corrected two-pass sum, then the
+/// between- and within-level sums of squares about them; the same F as the Type II test of a
+/// model of the covariate on the factor, without building one.
+fn one_way(
+    values: &[f64],
+    codes: &[Option<u32>],
+    nlevels: usize,
+    used: &[usize],
+) -> Result<(f64, usize, usize), ModelError> {
+    let cell = |i: usize| -> Option<(usize, f64)> {
+        let c = codes.get(i).copied().flatten()? as usize;
+        let v = values.get(i).copied()?;
+        (c < nlevels && v.is_finite()).then_some((c, v))
+    };
+    let mut count = vec![0usize; nlevels];
+    let mut sum = vec![0.0; nlevels];
+    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+        count[c] += 1;
+        sum[c] += v;
+    }
+    let first: Vec<f64> = sum
+        .iter()
+        .zip(&count)
+        .map(|(s, &n)| if n > 0 { s / n as f64 } else { 0.0 })
+        .collect();
+    let mut dev = vec![0.0; nlevels];
+    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+        dev[c] += v - first[c];
+    }
+    let mean: Vec<f64> = (0..nlevels)
+        .map(|c| {
+            if count[c] > 0 {
+                first[c] + dev[c] / count[c] as f64
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let n: usize = count.iter().sum();
+    let groups = count.iter().filter(|&&k| k > 0).count();
+    if groups < 2 {
+        return Err(ModelError::TooFewLevels {
+            term: None,
+            factor: String::new(),
+            levels: groups,
+        });
+    }
+    if n <= groups {
+        return Err(ModelError::ZeroResidualDf);
+    }
+    let grand = (0..nlevels).map(|c| count[c] as f64 * mean[c]).sum::<f64>() / n as f64;
+    let between: f64 = (0..nlevels)
+        .map(|c| count[c] as f64 * (mean[c] - grand) * (mean[c] - grand))
+        .sum();
+    let mut within = 0.0;
+    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+        within += (v - mean[c]) * (v - mean[c]);
+    }
+    let total = between + within;
+    if total <= 0.0 {
+        return Err(ModelError::ResponseZeroVariance);
+    }
+    // The model engine's rule for a fit with nothing left to estimate the error from.
+    if within <= 1e-24 * total {
+        return Err(ModelError::PerfectFit);
+    }
+    let (df1, df2) = (groups - 1, n - groups);
+    Ok(((between / df1 as f64) / (within / df2 as f64), df1, df2))
 }
 
 /// The rows past an influence threshold.
