@@ -6,7 +6,7 @@
 //! threads only change how soon it is ready.
 
 /// Environment variable that sets the number of worker threads (a whole number >= 1). Unset,
-/// empty or unreadable: one per core.
+/// 0, empty or unreadable: one per core.
 pub const THREADS_VAR: &str = "COVEY_THREADS";
 
 /// Sets up the thread pool from [`THREADS_VAR`]; call once, before any parallel work. A value

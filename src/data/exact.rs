@@ -124,6 +124,19 @@ impl ExactScan {
         }
     }
 
+    /// Takes note of the cells `later` has seen, as if they had been observed here after
+    /// the cells seen so far.
+    pub(crate) fn then(&mut self, later: &ExactScan) {
+        if self.not_plain {
+            return;
+        }
+        if self.first.is_none() {
+            self.first = later.first;
+        }
+        self.long |= later.long;
+        self.not_plain = later.not_plain;
+    }
+
     /// Whether [`ExactScan::observe`] could learn anything from a plain decimal cell with
     /// `digits` digits in all (a bound on its significant digits): only from the first cell,
     /// or from a long one while no cell has been long or non-plain yet.

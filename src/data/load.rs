@@ -1,12 +1,18 @@
 //! Reading delimited text (CSV, TSV) into typed columns.
+//!
+//! The header is read first; the data rows after it are cut at record boundaries into parts
+//! of about [`PART_BYTES`], which are split into fields (see [`super::split`]) and typed on
+//! all threads of the current rayon pool, then merged in file order. Two more passes run
+//! only when needed: one puts back the text of cells read as numbers in a column that
+//! turned out to be text, one computes exact residuals (see [`super::ExactValues`]).
 
-use std::collections::{BTreeMap, HashMap};
-
-use csv::{ByteRecord, ReaderBuilder};
+use std::collections::BTreeMap;
 
 use super::error::LoadError;
 use super::exact::{self, ExactScan};
+use super::intern::Index;
 use super::number::{parse_trimmed, NumberParse, Suggestion};
+use super::split::{chunk_starts, span_bytes, span_len, Fields, RecordStart, Splitter};
 use super::{Column, DataSet, ExactValues, TextValues, Values};
 
 /// Longest physical line accepted, in bytes. Real data rows are far shorter; a longer line
@@ -14,6 +20,16 @@ use super::{Column, DataSet, ExactValues, TextValues, Values};
 pub const MAX_LINE_BYTES: usize = 1 << 20;
 
 const UTF8_BOM: &[u8] = b"\xEF\xBB\xBF";
+
+/// Size of the parts the data rows are cut into: large enough that a part's fixed costs (a
+/// thread hand-off, merging its distinct texts) are small against splitting it, small enough
+/// that a batch of parts is a small share of a large file's memory and keeps two or more
+/// threads busy.
+const PART_BYTES: usize = 1 << 19;
+
+/// Parts read at once before they are merged: the memory a load needs beyond its columns is
+/// about this many parts' worth of columns.
+const BATCH_PARTS: usize = 4;
 
 /// How to read a delimited file.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -37,6 +53,7 @@ impl Default for LoadOptions {
 }
 
 /// Trims spaces and tabs from both ends of a cell.
+#[inline]
 fn trim_bytes(mut b: &[u8]) -> &[u8] {
     while let [b' ' | b'\t', rest @ ..] = b {
         b = rest;
@@ -53,8 +70,7 @@ fn is_break(b: u8) -> bool {
 
 /// Refuses NUL bytes (a byte search at memchr speed; the line is worked out only on a find).
 fn check_nul(body: &[u8]) -> Result<(), LoadError> {
-    if body.contains(&0) {
-        let at = body.iter().position(|b| *b == 0).unwrap_or(0);
+    if let Some(at) = memchr::memchr(0, body) {
         let line = 1 + body
             .get(..at)
             .map_or(0, |s| s.iter().filter(|b| **b == b'\n').count());
@@ -65,20 +81,20 @@ fn check_nul(body: &[u8]) -> Result<(), LoadError> {
 
 /// Refuses a record whose text may hold a line longer than [`MAX_LINE_BYTES`].
 ///
-/// A record's raw text is at most twice its unquoted content (escaped quotes) plus three bytes
-/// per field (two quotes and a delimiter) plus a CR LF; only when that bound exceeds the limit
-/// are the raw bytes from `start` split into lines and measured, so normal files pay nothing.
+/// A record's raw text is at most twice its unquoted content (`content` bytes, escaped
+/// quotes) plus three bytes per field (two quotes and a delimiter) plus a CR LF; only when
+/// that bound exceeds the limit are the raw bytes from `start` split into lines and
+/// measured, so normal files pay nothing.
 fn check_record_length(
     body: &[u8],
-    record: &ByteRecord,
+    content: usize,
+    n_fields: usize,
     start: usize,
     first_line: usize,
 ) -> Result<(), LoadError> {
-    let bound = record
-        .as_slice()
-        .len()
+    let bound = content
         .saturating_mul(2)
-        .saturating_add(record.len().saturating_mul(3))
+        .saturating_add(n_fields.saturating_mul(3))
         .saturating_add(2);
     if bound <= MAX_LINE_BYTES {
         return Ok(());
@@ -151,61 +167,6 @@ struct Refused {
     suggestion: Suggestion,
 }
 
-/// A column under construction. Columns start numeric and turn text at the first cell that is
-/// not a number; the rows read before that are filled in by a second, partial pass.
-#[derive(Debug)]
-enum Builder {
-    Numeric {
-        values: Vec<f64>,
-        refused: Option<Refused>,
-        /// Whether the column needs exact residuals (see [`super::ExactValues`]).
-        scan: ExactScan,
-    },
-    Text {
-        values: TextValues,
-        /// Code of each distinct cell text seen so far (looked up, never iterated).
-        seen: HashMap<Vec<u8>, u32, FnvBuild>,
-        refill_upto: usize,
-    },
-}
-
-/// The 64-bit FNV-1a hash (Fowler, Noll & Vo; as specified in the IETF draft
-/// draft-eastlake-fnv): much cheaper than the standard library's keyed hash for the short cell
-/// texts of a text column. The map it serves is only looked up, never iterated, so the hash
-/// cannot reach any output.
-#[derive(Default, Clone, Copy)]
-struct Fnv(u64);
-
-/// FNV-1a offset basis and prime for 64 bits.
-const FNV_OFFSET: u64 = 0xcbf2_9ce4_8422_2325;
-const FNV_PRIME: u64 = 0x0000_0100_0000_01b3;
-
-impl std::hash::Hasher for Fnv {
-    fn finish(&self) -> u64 {
-        self.0
-    }
-    fn write(&mut self, bytes: &[u8]) {
-        for &b in bytes {
-            self.0 = (self.0 ^ u64::from(b)).wrapping_mul(FNV_PRIME);
-        }
-    }
-}
-
-/// Builds [`Fnv`] hashers.
-#[derive(Default, Clone, Copy)]
-struct FnvBuild;
-
-impl std::hash::BuildHasher for FnvBuild {
-    type Hasher = Fnv;
-    fn build_hasher(&self) -> Fnv {
-        Fnv(FNV_OFFSET)
-    }
-}
-
-/// Text columns with at most this many distinct texts are looked up by comparing with each
-/// (cheaper than hashing for a factor's few levels); beyond, by the hash map.
-const LINEAR_LOOKUP_TEXTS: usize = 8;
-
 /// Powers of ten a double holds exactly (10^0 to 10^22).
 const EXACT_POWERS_OF_TEN: [f64; 23] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
@@ -214,41 +175,44 @@ const EXACT_POWERS_OF_TEN: [f64; 23] = [
 /// Largest integer below which every integer is a double (2^53).
 const EXACT_INTEGER_LIMIT: u64 = 1 << 53;
 
+/// Longest cell (sign excluded) that [`fast_decimal`] reads: its digits then form an
+/// integer below 10^19, which a `u64` holds without overflow.
+const FAST_DECIMAL_BYTES: usize = 19;
+
 /// Fast path for a plain decimal cell (optional sign, digits, optional point, at least one
 /// digit, no exponent) whose digits form an integer `m < 2^53` with at most 22 digits after
 /// the point: the value is `m / 10^d` with both operands exact, so the one division is
 /// correctly rounded and equals what `f64::from_str` returns (the "fast path" of Clinger
 /// 1990, "How to read floating point numbers accurately", PLDI). `None` sends the cell to
 /// the general parser. Also returns the number of digits.
+#[inline]
 fn fast_decimal(cell: &[u8]) -> Option<(f64, usize)> {
-    let (negative, digits) = match cell {
+    let (negative, text) = match cell {
         [b'-', rest @ ..] => (true, rest),
         [b'+', rest @ ..] => (false, rest),
         _ => (false, cell),
     };
+    if text.len() > FAST_DECIMAL_BYTES {
+        return None;
+    }
     let mut m: u64 = 0;
-    let mut seen_digit = false;
-    let mut point = false;
+    let mut rest = text;
+    while let [d @ b'0'..=b'9', tail @ ..] = rest {
+        m = m * 10 + u64::from(d - b'0');
+        rest = tail;
+    }
+    let int_digits = text.len() - rest.len();
     let mut frac = 0usize;
-    let mut count = 0usize;
-    for &b in digits {
-        if b.is_ascii_digit() {
-            count += 1;
-            m = m * 10 + u64::from(b - b'0');
-            if m >= EXACT_INTEGER_LIMIT {
-                return None;
-            }
-            seen_digit = true;
-            if point {
-                frac += 1;
-            }
-        } else if b == b'.' && !point {
-            point = true;
-        } else {
-            return None;
+    if let [b'.', tail @ ..] = rest {
+        rest = tail;
+        while let [d @ b'0'..=b'9', tail @ ..] = rest {
+            m = m * 10 + u64::from(d - b'0');
+            rest = tail;
+            frac += 1;
         }
     }
-    if !seen_digit {
+    let count = int_digits + frac;
+    if !rest.is_empty() || count == 0 || m >= EXACT_INTEGER_LIMIT {
         return None;
     }
     // m < 2^53, so the conversion is exact.
@@ -275,7 +239,43 @@ fn cell_text<'a>(cell: &'a [u8], at: &Place<'_>) -> Result<&'a str, LoadError> {
     })
 }
 
+/// A column of one part of the file under construction. Columns start numeric and turn text
+/// at the first cell that is not a number; the cells read before that are put back later
+/// (see [`refill`]).
+#[derive(Debug)]
+enum Builder {
+    Numeric {
+        values: Vec<f64>,
+        refused: Option<Refused>,
+        /// Whether the column needs exact residuals (see [`super::ExactValues`]).
+        scan: ExactScan,
+    },
+    Text {
+        values: TextValues,
+        index: Index,
+        /// Rows before this one still lack their text.
+        refill_upto: usize,
+    },
+}
+
 impl Builder {
+    fn numeric(rows: usize) -> Self {
+        Builder::Numeric {
+            values: Vec::with_capacity(rows),
+            refused: None,
+            scan: ExactScan::default(),
+        }
+    }
+
+    fn text(rows: usize) -> Self {
+        Builder::Text {
+            values: TextValues::with_capacity(rows),
+            index: Index::default(),
+            refill_upto: 0,
+        }
+    }
+
+    #[inline]
     fn push(&mut self, raw: &[u8], markers: &[&[u8]], at: &Place<'_>) -> Result<(), LoadError> {
         let cell = trim_bytes(raw);
         let missing = is_missing_cell(cell, markers);
@@ -317,31 +317,32 @@ impl Builder {
                     NumberParse::NotNumber => {
                         let done = values.len();
                         let mut texts = TextValues::with_capacity(values.capacity());
-                        for _ in 0..done {
-                            texts.push_code(TextValues::MISSING);
-                        }
-                        let mut seen = HashMap::with_hasher(FnvBuild);
-                        let code = texts.add_text(text.to_owned()).ok_or_else(|| {
-                            LoadError::TooManyTexts {
-                                line: at.line,
-                                name: at.name.to_owned(),
-                            }
-                        })?;
-                        seen.insert(cell.to_vec(), code);
+                        texts.push_missing(done);
+                        let mut index = Index::default();
+                        let code = index
+                            .add(&mut texts, text)
+                            .ok_or_else(|| too_many_texts(at))?;
                         texts.push_code(code);
                         *self = Builder::Text {
                             values: texts,
-                            seen,
+                            index,
                             refill_upto: done,
                         };
                     }
                 }
             }
-            Builder::Text { values, seen, .. } => {
+            Builder::Text { values, index, .. } => {
                 let code = if missing {
                     TextValues::MISSING
                 } else {
-                    intern(values, seen, cell, at)?
+                    match index.find(values, cell) {
+                        Some(code) => code,
+                        // Only new texts are checked for UTF-8; a known one was checked
+                        // when first seen.
+                        None => index
+                            .add(values, cell_text(cell, at)?)
+                            .ok_or_else(|| too_many_texts(at))?,
+                    }
                 };
                 values.push_code(code);
             }
@@ -350,113 +351,17 @@ impl Builder {
     }
 }
 
-/// The code of a cell's text in a text column, adding the text when it is new (only new
-/// texts are checked for UTF-8; a known one was checked when first seen).
-fn intern(
-    values: &mut TextValues,
-    seen: &mut HashMap<Vec<u8>, u32, FnvBuild>,
-    cell: &[u8],
-    at: &Place<'_>,
-) -> Result<u32, LoadError> {
-    if values.texts.len() <= LINEAR_LOOKUP_TEXTS {
-        // A few distinct texts (a factor's levels): comparing beats hashing.
-        if let Some(code) = values.texts.iter().position(|t| t.as_bytes() == cell) {
-            return u32::try_from(code).map_err(|_| LoadError::TooManyTexts {
-                line: at.line,
-                name: at.name.to_owned(),
-            });
-        }
-    } else if let Some(code) = seen.get(cell) {
-        return Ok(*code);
+fn too_many_texts(at: &Place<'_>) -> LoadError {
+    LoadError::TooManyTexts {
+        line: at.line,
+        name: at.name.to_owned(),
     }
-    let text = cell_text(cell, at)?;
-    let code = values
-        .add_text(text.to_owned())
-        .ok_or_else(|| LoadError::TooManyTexts {
-            line: at.line,
-            name: at.name.to_owned(),
-        })?;
-    seen.insert(cell.to_vec(), code);
-    Ok(code)
-}
-
-/// Turns the byte offsets where records start into 1-based line numbers.
-///
-/// The csv reader's own line count lags behind after a CR LF pair (the LF is consumed as the
-/// start of the next record), so lines are counted here from the byte offsets, which are
-/// exact. Offsets only grow, so each byte is counted once.
-struct LineCounter<'a> {
-    body: &'a [u8],
-    pos: usize,
-    line: usize,
-}
-
-impl<'a> LineCounter<'a> {
-    fn new(body: &'a [u8]) -> Self {
-        LineCounter {
-            body,
-            pos: 0,
-            line: 1,
-        }
-    }
-
-    /// The line of the first byte at or after `offset` that is not a line break (the reader
-    /// skips line breaks before a record).
-    fn line_at(&mut self, offset: u64) -> usize {
-        let mut start = usize::try_from(offset)
-            .unwrap_or(usize::MAX)
-            .min(self.body.len());
-        while self.body.get(start).is_some_and(|b| is_break(*b)) {
-            start += 1;
-        }
-        if start < self.pos {
-            self.pos = 0;
-            self.line = 1;
-        }
-        let newlines = self
-            .body
-            .get(self.pos..start)
-            .map_or(0, |s| s.iter().filter(|b| **b == b'\n').count());
-        self.line += newlines;
-        self.pos = start;
-        self.line
-    }
-
-    /// The line of a record.
-    fn record_line(&mut self, record: &ByteRecord) -> usize {
-        match record.position() {
-            Some(p) => self.line_at(p.byte()),
-            None => self.line,
-        }
-    }
-}
-
-fn reader(body: &[u8], delimiter: u8) -> csv::Reader<&[u8]> {
-    ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .delimiter(delimiter)
-        .from_reader(body)
-}
-
-fn read_record(
-    rdr: &mut csv::Reader<&[u8]>,
-    record: &mut ByteRecord,
-    lines: &mut LineCounter<'_>,
-) -> Result<bool, LoadError> {
-    rdr.read_byte_record(record)
-        .map_err(|e| LoadError::Malformed {
-            line: match e.position() {
-                Some(p) => lines.line_at(p.byte()),
-                None => lines.line,
-            },
-        })
 }
 
 /// Checks and trims the header names.
-fn header_names(record: &ByteRecord, line: usize) -> Result<Vec<String>, LoadError> {
-    let mut names = Vec::with_capacity(record.len());
-    for (j, raw) in record.iter().enumerate() {
+fn header_names(fields: &Fields, body: &[u8], line: usize) -> Result<Vec<String>, LoadError> {
+    let mut names = Vec::with_capacity(fields.len());
+    for (j, raw) in fields.iter(body).enumerate() {
         let text = std::str::from_utf8(trim_bytes(raw)).map_err(|_| LoadError::NonUtf8 {
             line,
             column: j + 1,
@@ -493,66 +398,457 @@ fn header_names(record: &ByteRecord, line: usize) -> Result<Vec<String>, LoadErr
     Ok(names)
 }
 
-/// Column names, column builders and row line numbers, as read by [`read_rows`].
-type Rows = (Vec<String>, Vec<Builder>, Vec<usize>);
+/// One part of the data rows: a run of whole records.
+#[derive(Debug, Clone)]
+struct Part {
+    /// Byte range in the file.
+    start: usize,
+    end: usize,
+    /// Line of `start`.
+    line: usize,
+    /// Line breaks in the part plus one: a bound on its records.
+    rows_bound: usize,
+    /// Data rows before the part (known once the parts before it are merged).
+    first_row: usize,
+    /// Data rows in the part (known once it is read).
+    n_rows: usize,
+}
+
+/// A part as read: its columns and the line of each row.
+struct PartRows {
+    columns: Vec<Builder>,
+    lines: Vec<usize>,
+    /// The latest record read.
+    last: Option<RecordStart>,
+}
+
+/// Why a part could not be read, and the record where that showed.
+struct PartError {
+    error: LoadError,
+    at: RecordStart,
+}
+
+/// Records split at a time within a part before their cells are typed column by column:
+/// their field spans then stay in the core's cache.
+const BLOCK_ROWS: usize = 4096;
+
+/// Reads the records of one part. Columns listed in `text` start as text (an earlier part
+/// has shown them to be text), the others numeric.
+///
+/// Records are split a block at a time, then each column's cells of the block are typed in
+/// one run. The error reported is the one reading row by row would meet first: the earliest
+/// row with a bad record or cell, and in that row a bad record before a bad cell, and the
+/// leftmost bad cell.
+fn read_part(
+    body: &[u8],
+    part: &Part,
+    delimiter: u8,
+    markers: &[&[u8]],
+    names: &[String],
+    text: &[bool],
+) -> Result<PartRows, PartError> {
+    let width = names.len();
+    let rows = part.rows_bound;
+    let mut columns: Vec<Builder> = text
+        .iter()
+        .map(|&t| {
+            if t {
+                Builder::text(rows)
+            } else {
+                Builder::numeric(rows)
+            }
+        })
+        .collect();
+    let mut lines = Vec::with_capacity(rows);
+    let mut split = Splitter::new(body, part.start, part.end, part.line, delimiter);
+    let block_rows = BLOCK_ROWS.min(rows);
+    let mut spans: Vec<(usize, usize)> = Vec::with_capacity(block_rows.saturating_mul(width));
+    let mut side = Vec::new();
+    let mut starts: Vec<RecordStart> = Vec::with_capacity(block_rows);
+    let mut last = None;
+    loop {
+        spans.clear();
+        side.clear();
+        starts.clear();
+        // A bad record ends the part; the cells before it are still typed, since one of them
+        // may be bad too (and come first).
+        let mut bad_record = None;
+        while starts.len() < BLOCK_ROWS {
+            let before = spans.len();
+            let Some(at) = split.split_record(&mut spans, &mut side) else {
+                break;
+            };
+            last = Some(at);
+            let fields = spans.get(before..).unwrap_or_default();
+            let content = fields.iter().map(|s| span_len(*s)).sum();
+            let n = fields.len();
+            let checked =
+                check_record_length(body, content, n, at.offset, at.line).and_then(|()| {
+                    if n == width {
+                        return Ok(());
+                    }
+                    Err(LoadError::RaggedRow {
+                        line: at.line,
+                        expected: width,
+                        found: n,
+                    })
+                });
+            if let Err(error) = checked {
+                spans.truncate(before);
+                bad_record = Some(PartError { error, at });
+                break;
+            }
+            starts.push(at);
+        }
+        if starts.is_empty() && bad_record.is_none() {
+            break;
+        }
+        // The earliest bad cell: (row in the block, error).
+        let mut bad_cell: Option<(usize, LoadError)> = None;
+        for (j, (b, name)) in columns.iter_mut().zip(names).enumerate() {
+            let limit = bad_cell.as_ref().map_or(starts.len(), |(r, _)| *r);
+            let cells = spans.iter().skip(j).step_by(width.max(1));
+            for (r, (span, at)) in cells.zip(&starts).take(limit).enumerate() {
+                let place = Place {
+                    line: at.line,
+                    column: j + 1,
+                    name,
+                };
+                if let Err(e) = b.push(span_bytes(body, &side, *span), markers, &place) {
+                    bad_cell = Some((r, e));
+                    break;
+                }
+            }
+        }
+        if let Some((r, error)) = bad_cell {
+            let at = starts.get(r).copied().unwrap_or(RecordStart {
+                offset: part.start,
+                line: part.line,
+            });
+            return Err(PartError { error, at });
+        }
+        if let Some(e) = bad_record {
+            return Err(e);
+        }
+        lines.extend(starts.iter().map(|s| s.line));
+    }
+    Ok(PartRows {
+        columns,
+        lines,
+        last,
+    })
+}
+
+/// A whole column, put together from the parts in file order.
+enum Merged {
+    Numeric {
+        values: Vec<f64>,
+        refused: Option<Refused>,
+        scan: ExactScan,
+    },
+    Text {
+        values: TextValues,
+        index: Index,
+    },
+}
+
+/// Rows of a part whose text a text column still lacks: rows `0..rows` of part `part`, in
+/// column `column`.
+#[derive(Debug, Clone, Copy)]
+struct Refill {
+    part: usize,
+    column: usize,
+    rows: usize,
+}
+
+/// Appends the texts of a part's text column to a whole text column: each distinct text of
+/// the part is found or added once, then the rows' codes are translated.
+fn append_texts(
+    values: &mut TextValues,
+    index: &mut Index,
+    part: &TextValues,
+    lines: &[usize],
+    name: &str,
+) -> Result<(), LoadError> {
+    let mut map = Vec::with_capacity(part.n_texts());
+    for code in 0..part.n_texts() {
+        let text = u32::try_from(code)
+            .ok()
+            .and_then(|c| part.text_of(c))
+            .unwrap_or_default();
+        let global = match index.find(values, text.as_bytes()) {
+            Some(g) => g,
+            None => index.add(values, text).ok_or_else(|| {
+                // The row where the text first occurs.
+                let row = part
+                    .codes()
+                    .iter()
+                    .position(|c| usize::try_from(*c).ok() == Some(code));
+                LoadError::TooManyTexts {
+                    line: row.and_then(|r| lines.get(r)).copied().unwrap_or(0),
+                    name: name.to_owned(),
+                }
+            })?,
+        };
+        map.push(global);
+    }
+    values.extend_mapped(part.codes(), &map);
+    Ok(())
+}
+
+/// Column names, whole columns, row line numbers, the parts and the rows that need their
+/// text put back, as read by [`read_rows`].
+struct Rows {
+    names: Vec<String>,
+    columns: Vec<Merged>,
+    row_numbers: Vec<usize>,
+    parts: Vec<Part>,
+    refills: Vec<Refill>,
+    /// Where the data rows start (byte offset, line).
+    data: (usize, usize),
+}
 
 /// Reads the header and every data row. `last` follows the start of the latest record.
+///
+/// The data rows are cut into parts of about `part_bytes` (at record boundaries, so that
+/// the parts depend on the text alone), read in parallel a batch of [`BATCH_PARTS`] at a
+/// time, and merged in file order; the result is the same for any number of threads.
 fn read_rows(
     body: &[u8],
     delimiter: u8,
     markers: &[&[u8]],
-    last: &mut (usize, usize),
+    part_bytes: usize,
+    last: &mut RecordStart,
 ) -> Result<Rows, LoadError> {
-    let mut rdr = reader(body, delimiter);
-    let mut record = ByteRecord::new();
-    let mut lines = LineCounter::new(body);
-    if !read_record(&mut rdr, &mut record, &mut lines)? {
+    let mut split = Splitter::new(body, 0, body.len(), 1, delimiter);
+    let mut fields = Fields::default();
+    let Some(header) = split.next_record(&mut fields) else {
         return Err(LoadError::Empty);
-    }
-    let header_line = lines.record_line(&record);
-    *last = (lines.pos, header_line);
-    check_record_length(body, &record, lines.pos, header_line)?;
-    let names = header_names(&record, header_line)?;
+    };
+    *last = header;
+    check_record_length(
+        body,
+        fields.content_len(),
+        fields.len(),
+        header.offset,
+        header.line,
+    )?;
+    let names = header_names(&fields, body, header.line)?;
     let width = names.len();
+    let data = (split.pos(), split.line());
+
+    let starts = chunk_starts(body, data.0, delimiter, part_bytes);
+    let ranges: Vec<(usize, usize)> = starts
+        .iter()
+        .zip(starts.iter().skip(1).chain([&body.len()]))
+        .map(|(a, b)| (*a, *b))
+        .collect();
+    let breaks: Vec<usize> = crate::parallel::map(&ranges, |(a, b)| {
+        count_lf(body.get(*a..*b).unwrap_or_default())
+    });
+    let mut parts = Vec::with_capacity(ranges.len());
+    let mut line = data.1;
+    for ((start, end), n) in ranges.into_iter().zip(breaks) {
+        parts.push(Part {
+            start,
+            end,
+            line,
+            rows_bound: n + 1,
+            first_row: 0,
+            n_rows: 0,
+        });
+        line += n;
+    }
     // Room for every row at once (one per line break, an upper bound), so that no column
     // grows by copying.
-    let rows_bound = body.iter().filter(|b| **b == b'\n').count() + 1;
-    let mut builders: Vec<Builder> = names
-        .iter()
-        .map(|_| Builder::Numeric {
+    let rows_bound: usize = parts.iter().map(|p| p.rows_bound).sum();
+
+    let mut columns: Vec<Merged> = (0..width)
+        .map(|_| Merged::Numeric {
             values: Vec::with_capacity(rows_bound),
             refused: None,
             scan: ExactScan::default(),
         })
         .collect();
-
     let mut row_numbers: Vec<usize> = Vec::with_capacity(rows_bound);
-    while read_record(&mut rdr, &mut record, &mut lines)? {
-        let line = lines.record_line(&record);
-        *last = (lines.pos, line);
-        check_record_length(body, &record, lines.pos, line)?;
-        if record.len() != width {
-            return Err(LoadError::RaggedRow {
-                line,
-                expected: width,
-                found: record.len(),
-            });
-        }
-        for (j, ((raw, b), name)) in record.iter().zip(&mut builders).zip(&names).enumerate() {
-            let at = Place {
-                line,
-                column: j + 1,
-                name,
+    let mut refills = Vec::new();
+    let mut first = 0;
+    while first < parts.len() {
+        let upto = first.saturating_add(BATCH_PARTS).min(parts.len());
+        let text: Vec<bool> = columns
+            .iter()
+            .map(|c| matches!(c, Merged::Text { .. }))
+            .collect();
+        let batch = parts.get(first..upto).unwrap_or_default();
+        let read: Vec<Result<PartRows, PartError>> = crate::parallel::map(batch, |p| {
+            read_part(body, p, delimiter, markers, &names, &text)
+        });
+        for (k, result) in (first..upto).zip(read) {
+            let rows = match result {
+                Ok(rows) => rows,
+                Err(e) => {
+                    *last = e.at;
+                    return Err(e.error);
+                }
             };
-            b.push(raw, markers, &at)?;
+            if let Some(at) = rows.last {
+                *last = at;
+            }
+            let done = row_numbers.len();
+            let n = rows.lines.len();
+            if let Some(p) = parts.get_mut(k) {
+                p.first_row = done;
+                p.n_rows = n;
+            }
+            for (j, ((whole, part), name)) in
+                columns.iter_mut().zip(rows.columns).zip(&names).enumerate()
+            {
+                merge_column(
+                    whole,
+                    part,
+                    &rows.lines,
+                    name,
+                    (k, j),
+                    (done, rows_bound),
+                    &parts,
+                    &mut refills,
+                )?;
+            }
+            row_numbers.extend_from_slice(&rows.lines);
         }
-        row_numbers.push(line);
+        first = upto;
     }
     if row_numbers.is_empty() {
-        return Err(LoadError::NoDataRows { line: header_line });
+        return Err(LoadError::NoDataRows { line: header.line });
     }
+    Ok(Rows {
+        names,
+        columns,
+        row_numbers,
+        parts,
+        refills,
+        data,
+    })
+}
 
-    Ok((names, builders, row_numbers))
+/// Appends column `at.1` of part `at.0` to its whole column; `rows` is (rows before the part,
+/// room to keep for the column). Notes in `refills` which rows will need their text put back.
+#[allow(clippy::too_many_arguments)]
+fn merge_column(
+    whole: &mut Merged,
+    part: Builder,
+    lines: &[usize],
+    name: &str,
+    at: (usize, usize),
+    rows: (usize, usize),
+    parts: &[Part],
+    refills: &mut Vec<Refill>,
+) -> Result<(), LoadError> {
+    let (k, column) = at;
+    let (done, room) = rows;
+    match (whole, part) {
+        (
+            Merged::Numeric {
+                values,
+                refused,
+                scan,
+            },
+            Builder::Numeric {
+                values: v,
+                refused: r,
+                scan: s,
+            },
+        ) => {
+            values.extend_from_slice(&v);
+            if refused.is_none() {
+                *refused = r;
+            }
+            scan.then(&s);
+        }
+        (Merged::Text { values, .. }, Builder::Numeric { values: v, .. }) => {
+            values.push_missing(v.len());
+            if !v.is_empty() {
+                refills.push(Refill {
+                    part: k,
+                    column,
+                    rows: v.len(),
+                });
+            }
+        }
+        (
+            Merged::Text { values, index },
+            Builder::Text {
+                values: v,
+                refill_upto,
+                ..
+            },
+        ) => {
+            append_texts(values, index, &v, lines, name)?;
+            if refill_upto > 0 {
+                refills.push(Refill {
+                    part: k,
+                    column,
+                    rows: refill_upto,
+                });
+            }
+        }
+        (
+            whole @ Merged::Numeric { .. },
+            Builder::Text {
+                values: v,
+                refill_upto,
+                ..
+            },
+        ) => {
+            // The column turns text: every earlier row needs its text.
+            let mut values = TextValues::with_capacity(room);
+            let mut index = Index::default();
+            values.push_missing(done);
+            append_texts(&mut values, &mut index, &v, lines, name)?;
+            refills.extend(
+                parts
+                    .iter()
+                    .enumerate()
+                    .take(k)
+                    .filter(|(_, p)| p.n_rows > 0)
+                    .map(|(i, p)| Refill {
+                        part: i,
+                        column,
+                        rows: p.n_rows,
+                    }),
+            );
+            if refill_upto > 0 {
+                refills.push(Refill {
+                    part: k,
+                    column,
+                    rows: refill_upto,
+                });
+            }
+            *whole = Merged::Text { values, index };
+        }
+    }
+    Ok(())
+}
+
+/// Number of line feeds in `bytes`, eight bytes at a time: the exact zero-byte test of
+/// Warren, *Hacker's Delight*, 2nd ed., section 6-1, on each word XOR a word of line feeds
+/// sets the top bit of exactly the bytes that were line feeds.
+fn count_lf(bytes: &[u8]) -> usize {
+    const LF: u64 = 0x0A0A_0A0A_0A0A_0A0A;
+    const LOW7: u64 = 0x7F7F_7F7F_7F7F_7F7F;
+    let words = bytes.chunks_exact(8);
+    let tail = words.remainder().iter().filter(|b| **b == b'\n').count();
+    let full: u64 = words
+        .map(|w| {
+            let mut word = [0u8; 8];
+            word.copy_from_slice(w);
+            let x = u64::from_le_bytes(word) ^ LF;
+            u64::from((!(((x & LOW7).wrapping_add(LOW7)) | x | LOW7)).count_ones())
+        })
+        .sum();
+    usize::try_from(full)
+        .unwrap_or(usize::MAX)
+        .saturating_add(tail)
 }
 
 /// Reads delimited text (a header row, then data rows) into typed columns.
@@ -562,7 +858,28 @@ fn read_rows(
 /// non-missing cell is a plain number (see [`super::parse_number`]), an error when the only
 /// other cells are number-like but refused, and text otherwise. A column with no values is
 /// numeric (all missing).
+///
+/// Large files are read in parts on the threads of the current rayon pool (the command line
+/// sizes it from `COVEY_THREADS`); the parts depend on the text alone and are put together
+/// in file order, so the result does not depend on the number of threads.
+///
+/// ```
+/// use covey::data::{read_delimited, LoadOptions, Values};
+///
+/// let set = read_delimited(b"y,g\n1.5,a\n2,b\n", &LoadOptions::default()).unwrap();
+/// assert_eq!(set.row_numbers, vec![2, 3]);
+/// assert!(matches!(&set.columns[0].values, Values::Numeric(v) if v == &vec![1.5, 2.0]));
+/// ```
 pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadError> {
+    read_in_parts(bytes, opts, PART_BYTES)
+}
+
+/// [`read_delimited`] with parts of about `part_bytes` bytes.
+pub(super) fn read_in_parts(
+    bytes: &[u8],
+    opts: &LoadOptions,
+    part_bytes: usize,
+) -> Result<DataSet, LoadError> {
     let delimiter = opts.delimiter;
     if delimiter == b'"' || is_break(delimiter) || !delimiter.is_ascii() {
         return Err(LoadError::BadDelimiter { delimiter });
@@ -582,20 +899,30 @@ pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadE
         .filter(|m| !m.is_empty())
         .collect();
 
-    // Where the latest record starts (byte offset, line), for the open-quote check.
-    let mut last = (0usize, 1usize);
-    let rows = read_rows(body, delimiter, &markers, &mut last);
+    // Where the latest record starts, for the open-quote check.
+    let mut last = RecordStart { offset: 0, line: 1 };
+    let rows = read_rows(body, delimiter, &markers, part_bytes, &mut last);
     // A quote left open at the end of the file explains any other complaint about its record
     // (wrong field count, for one), so it is reported first.
-    check_open_quote(body.get(last.0..).unwrap_or_default(), last.1, delimiter)?;
-    let (names, mut builders, row_numbers) = rows?;
+    let tail = body.get(last.offset..).unwrap_or_default();
+    if memchr::memchr(b'"', tail).is_some() {
+        check_open_quote(tail, last.line, delimiter)?;
+    }
+    let Rows {
+        names,
+        mut columns,
+        row_numbers,
+        parts,
+        refills,
+        data,
+    } = rows?;
 
     // A numeric column holding refused number-like cells: report the earliest such cell.
-    let refused = builders
+    let refused = columns
         .iter()
         .enumerate()
-        .filter_map(|(j, b)| match b {
-            Builder::Numeric {
+        .filter_map(|(j, c)| match c {
+            Merged::Numeric {
                 refused: Some(r), ..
             } => Some((r.line, j, r)),
             _ => None,
@@ -611,25 +938,28 @@ pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadE
         });
     }
 
-    refill(body, delimiter, &markers, &mut builders)?;
-    let offsets: Vec<Option<i64>> = builders
+    refill(body, delimiter, &markers, &mut columns, &parts, &refills);
+    let offsets: Vec<Option<i64>> = columns
         .iter()
-        .map(|b| match b {
-            Builder::Numeric { scan, .. } => scan.wanted(),
-            Builder::Text { .. } => None,
+        .map(|c| match c {
+            Merged::Numeric { scan, .. } => scan.wanted(),
+            Merged::Text { .. } => None,
         })
         .collect();
-    let mut exact = exact_pass(body, delimiter, &markers, &offsets, row_numbers.len())?;
+    let mut exact = exact_pass(body, data, delimiter, &markers, &offsets, row_numbers.len());
 
     let columns = names
         .into_iter()
-        .zip(builders)
+        .zip(columns)
         .enumerate()
-        .map(|(j, (name, b))| Column {
+        .map(|(j, (name, c))| Column {
             name,
-            values: match b {
-                Builder::Numeric { values, .. } => Values::Numeric(values),
-                Builder::Text { values, .. } => Values::Text(values),
+            values: match c {
+                Merged::Numeric { values, .. } => Values::Numeric(values),
+                Merged::Text { mut values, .. } => {
+                    values.shrink_to_fit();
+                    Values::Text(values)
+                }
             },
             exact: exact.get_mut(j).and_then(Option::take),
         })
@@ -641,111 +971,101 @@ pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadE
     })
 }
 
-/// Second pass for columns that turned text after some numeric rows: puts the original cell
-/// text of those rows back. Reads only as many rows as the latest switch needs.
+/// Puts back the cell text of the rows that were read as numbers in a column that turned
+/// out to be text (`refills`), part by part, reading each part only as far as needed.
 fn refill(
     body: &[u8],
     delimiter: u8,
     markers: &[&[u8]],
-    builders: &mut [Builder],
-) -> Result<(), LoadError> {
-    let upto = builders
-        .iter()
-        .map(|b| match b {
-            Builder::Text { refill_upto, .. } => *refill_upto,
-            Builder::Numeric { .. } => 0,
-        })
-        .max()
-        .unwrap_or(0);
-    if upto == 0 {
-        return Ok(());
+    columns: &mut [Merged],
+    parts: &[Part],
+    refills: &[Refill],
+) {
+    // Part -> (column, rows), in part order.
+    let mut by_part: BTreeMap<usize, Vec<(usize, usize)>> = BTreeMap::new();
+    for r in refills {
+        by_part.entry(r.part).or_default().push((r.column, r.rows));
     }
-    let mut rdr = reader(body, delimiter);
-    let mut record = ByteRecord::new();
-    let mut lines = LineCounter::new(body);
-    // Skip the header.
-    if !read_record(&mut rdr, &mut record, &mut lines)? {
-        return Ok(());
-    }
-    for row in 0..upto {
-        if !read_record(&mut rdr, &mut record, &mut lines)? {
-            break;
-        }
-        for (raw, b) in record.iter().zip(builders.iter_mut()) {
-            let Builder::Text {
-                values,
-                seen,
-                refill_upto,
-            } = b
-            else {
-                continue;
-            };
-            if row >= *refill_upto {
-                continue;
+    let mut fields = Fields::default();
+    for (k, wanted) in by_part {
+        let Some(part) = parts.get(k) else {
+            continue;
+        };
+        let upto = wanted.iter().map(|(_, rows)| *rows).max().unwrap_or(0);
+        let mut split = Splitter::new(body, part.start, part.end, part.line, delimiter);
+        for row in 0..upto {
+            if split.next_record(&mut fields).is_none() {
+                break;
             }
-            let cell = trim_bytes(raw);
-            if is_missing_cell(cell, markers) {
-                continue;
-            }
-            if let Some(code) = seen.get(cell) {
-                values.set(row, *code);
-            } else if let Ok(text) = std::str::from_utf8(cell) {
-                if let Some(code) = values.add_text(text.to_owned()) {
-                    seen.insert(cell.to_vec(), code);
-                    values.set(row, code);
+            for &(j, rows) in &wanted {
+                let Some(Merged::Text { values, index }) = columns.get_mut(j) else {
+                    continue;
+                };
+                if row >= rows {
+                    continue;
+                }
+                let cell = trim_bytes(fields.get(body, j));
+                if is_missing_cell(cell, markers) {
+                    continue;
+                }
+                let code = match index.find(values, cell) {
+                    Some(code) => Some(code),
+                    None => std::str::from_utf8(cell)
+                        .ok()
+                        .and_then(|text| index.add(values, text)),
+                };
+                if let Some(code) = code {
+                    values.set(part.first_row + row, code);
                 }
             }
         }
     }
-    Ok(())
 }
 
 /// Third pass, only for columns whose first pass asked for an exact offset (`offsets[j]`):
 /// each cell minus the offset by exact decimal subtraction (see [`super::ExactValues`]).
 /// A column whose cells cannot all be done (which the first pass rules out) gets none.
+/// `data` is where the data rows start (byte offset, line).
 fn exact_pass(
     body: &[u8],
+    data: (usize, usize),
     delimiter: u8,
     markers: &[&[u8]],
     offsets: &[Option<i64>],
     n_rows: usize,
-) -> Result<Vec<Option<Box<ExactValues>>>, LoadError> {
+) -> Vec<Option<Box<ExactValues>>> {
     if offsets.iter().all(Option::is_none) {
-        return Ok(Vec::new());
+        return Vec::new();
     }
     let mut residuals: Vec<Option<Vec<f64>>> = offsets
         .iter()
         .map(|o| o.map(|_| Vec::with_capacity(n_rows)))
         .collect();
-    let mut rdr = reader(body, delimiter);
-    let mut record = ByteRecord::new();
-    let mut lines = LineCounter::new(body);
-    // Skip the header.
-    if read_record(&mut rdr, &mut record, &mut lines)? {
-        for _ in 0..n_rows {
-            if !read_record(&mut rdr, &mut record, &mut lines)? {
-                break;
-            }
-            for ((raw, slot), offset) in record.iter().zip(residuals.iter_mut()).zip(offsets) {
-                let (Some(res), Some(offset)) = (slot.as_mut(), offset) else {
-                    continue;
-                };
-                let cell = trim_bytes(raw);
-                let r = if is_missing_cell(cell, markers) {
-                    Some(f64::NAN)
-                } else {
-                    std::str::from_utf8(cell)
-                        .ok()
-                        .and_then(|t| exact::residual(t, *offset))
-                };
-                match r {
-                    Some(r) => res.push(r),
-                    None => *slot = None,
-                }
+    let mut split = Splitter::new(body, data.0, body.len(), data.1, delimiter);
+    let mut fields = Fields::default();
+    for _ in 0..n_rows {
+        if split.next_record(&mut fields).is_none() {
+            break;
+        }
+        for ((raw, slot), offset) in fields.iter(body).zip(residuals.iter_mut()).zip(offsets) {
+            let (Some(res), Some(offset)) = (slot.as_mut(), offset) else {
+                continue;
+            };
+            let cell = trim_bytes(raw);
+            let r = if is_missing_cell(cell, markers) {
+                Some(f64::NAN)
+            } else {
+                std::str::from_utf8(cell)
+                    .ok()
+                    .and_then(|t| exact::residual(t, *offset))
+            };
+            match r {
+                Some(r) => res.push(r),
+                None => *slot = None,
             }
         }
     }
-    Ok(residuals
+    residuals
         .into_iter()
         .zip(offsets)
         .map(|(r, o)| match (r, o) {
@@ -758,5 +1078,5 @@ fn exact_pass(
             }
             _ => None,
         })
-        .collect())
+        .collect()
 }

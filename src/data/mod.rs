@@ -4,9 +4,15 @@
 mod error;
 mod exact;
 mod factor;
+mod intern;
 mod load;
 mod number;
+mod split;
 
+#[cfg(test)]
+mod load_tests;
+#[cfg(test)]
+mod reference;
 #[cfg(test)]
 mod tests;
 
@@ -79,14 +85,17 @@ pub enum Values {
     Factor(Factor),
 }
 
-/// The cells of a text column, each distinct text stored once: a row holds the position of
-/// its text in `texts` (in order of first appearance), or [`TextValues::MISSING`]. A factor
-/// column of a million rows then costs four bytes a row instead of a string each.
+/// The cells of a text column, each distinct text stored once: a row holds the code of its
+/// text, or [`TextValues::MISSING`]. The distinct texts sit end to end in one string, so a
+/// column of a million different labels costs its characters plus twelve bytes a row (an
+/// end offset and a code), and a factor column of a million rows four bytes a row.
 #[derive(Debug, Clone, Default)]
 pub struct TextValues {
-    /// Distinct texts, in order of first appearance.
-    texts: Vec<String>,
-    /// Per row: the position of its text, or [`TextValues::MISSING`].
+    /// The distinct texts, end to end.
+    text: String,
+    /// Where each distinct text ends in `text`; text `c` starts where text `c - 1` ends.
+    ends: Vec<usize>,
+    /// Per row: the code of its text, or [`TextValues::MISSING`].
     codes: Vec<u32>,
 }
 
@@ -106,20 +115,12 @@ impl TextValues {
 
     /// The text of a row; `None` when missing or out of range.
     pub fn get(&self, row: usize) -> Option<&str> {
-        let code = *self.codes.get(row)?;
-        self.texts
-            .get(usize::try_from(code).ok()?)
-            .map(String::as_str)
+        self.text_of(*self.codes.get(row)?)
     }
 
     /// The cells in row order (`None` for a missing cell).
     pub fn iter(&self) -> impl Iterator<Item = Option<&str>> + '_ {
-        self.codes.iter().map(|&c| {
-            usize::try_from(c)
-                .ok()
-                .and_then(|c| self.texts.get(c))
-                .map(String::as_str)
-        })
+        self.codes.iter().map(|&c| self.text_of(c))
     }
 
     /// The first row whose text is not a plain number, with that text (see
@@ -133,25 +134,77 @@ impl TextValues {
         self.iter().map(|c| c.map(str::to_owned)).collect()
     }
 
+    /// The distinct text with this code; `None` for [`TextValues::MISSING`] or an unknown code.
+    pub(crate) fn text_of(&self, code: u32) -> Option<&str> {
+        let c = usize::try_from(code).ok()?;
+        let end = *self.ends.get(c)?;
+        let start = match c.checked_sub(1) {
+            Some(p) => *self.ends.get(p)?,
+            None => 0,
+        };
+        self.text.get(start..end)
+    }
+
+    /// The bytes of the distinct text with this code (see [`TextValues::text_of`]).
+    pub(crate) fn bytes_of(&self, code: u32) -> Option<&[u8]> {
+        let c = usize::try_from(code).ok()?;
+        let end = *self.ends.get(c)?;
+        let start = match c.checked_sub(1) {
+            Some(p) => *self.ends.get(p)?,
+            None => 0,
+        };
+        self.text.as_bytes().get(start..end)
+    }
+
+    /// Number of distinct texts.
+    pub(crate) fn n_texts(&self) -> usize {
+        self.ends.len()
+    }
+
     /// An empty column with room for `rows` rows.
     pub(crate) fn with_capacity(rows: usize) -> Self {
         TextValues {
-            texts: Vec::new(),
+            text: String::new(),
+            ends: Vec::new(),
             codes: Vec::with_capacity(rows),
         }
     }
 
-    /// Appends a row by the code of its text; the caller keeps codes below `texts.len()`.
+    /// Appends a row by the code of its text; the caller keeps codes below
+    /// [`TextValues::n_texts`] (or [`TextValues::MISSING`]).
     pub(crate) fn push_code(&mut self, code: u32) {
         self.codes.push(code);
     }
 
+    /// Appends `n` missing rows.
+    pub(crate) fn push_missing(&mut self, n: usize) {
+        self.codes.extend(std::iter::repeat_n(Self::MISSING, n));
+    }
+
+    /// Appends rows by code, each mapped through `map` (missing rows stay missing; a code
+    /// `map` does not hold turns missing).
+    pub(crate) fn extend_mapped(&mut self, codes: &[u32], map: &[u32]) {
+        self.codes.extend(codes.iter().map(|&c| {
+            usize::try_from(c)
+                .ok()
+                .and_then(|c| map.get(c))
+                .copied()
+                .unwrap_or(Self::MISSING)
+        }));
+    }
+
+    /// The row codes.
+    pub(crate) fn codes(&self) -> &[u32] {
+        &self.codes
+    }
+
     /// Adds a distinct text and returns its code, or `None` when no code is left.
-    pub(crate) fn add_text(&mut self, text: String) -> Option<u32> {
-        let code = u32::try_from(self.texts.len())
+    pub(crate) fn add_text(&mut self, text: &str) -> Option<u32> {
+        let code = u32::try_from(self.ends.len())
             .ok()
             .filter(|c| *c != Self::MISSING)?;
-        self.texts.push(text);
+        self.text.push_str(text);
+        self.ends.push(self.text.len());
         Some(code)
     }
 
@@ -162,10 +215,18 @@ impl TextValues {
         }
     }
 
+    /// Gives back the room kept for rows and texts beyond those held.
+    pub(crate) fn shrink_to_fit(&mut self) {
+        self.text.shrink_to_fit();
+        self.ends.shrink_to_fit();
+        self.codes.shrink_to_fit();
+    }
+
     /// Keeps the rows whose `keep` entry is true (rows beyond `keep` are dropped).
     fn filter(&self, keep: &[bool]) -> TextValues {
         TextValues {
-            texts: self.texts.clone(),
+            text: self.text.clone(),
+            ends: self.ends.clone(),
             codes: pick(&self.codes, keep),
         }
     }
@@ -187,7 +248,7 @@ impl From<Vec<Option<String>>> for TextValues {
                 None => Self::MISSING,
                 Some(t) => match seen.get(&t) {
                     Some(c) => *c,
-                    None => match out.add_text(t.clone()) {
+                    None => match out.add_text(&t) {
                         Some(c) => {
                             seen.insert(t, c);
                             c

@@ -1,0 +1,317 @@
+//! The loader against the row-at-a-time loader it replaced (`reference`): on any input, the
+//! same data set or the same error, whatever the size of the parts and the number of
+//! threads. All data here is invented for the tests.
+
+use std::sync::OnceLock;
+
+use proptest::prelude::*;
+
+use super::load::read_in_parts;
+use super::{reference, DataSet, LoadError, LoadOptions, Values};
+
+/// Part sizes tried: one byte (a part per record), a few records, the real size.
+const PART_SIZES: [usize; 4] = [1, 7, 64, 1 << 20];
+
+fn pool(threads: usize) -> &'static rayon::ThreadPool {
+    static POOLS: OnceLock<Vec<rayon::ThreadPool>> = OnceLock::new();
+    let pools = POOLS.get_or_init(|| {
+        [1, 2, 3]
+            .iter()
+            .map(|&n| {
+                rayon::ThreadPoolBuilder::new()
+                    .num_threads(n)
+                    .build()
+                    .unwrap_or_else(|e| panic!("thread pool: {e}"))
+            })
+            .collect()
+    });
+    pools
+        .get(threads - 1)
+        .unwrap_or_else(|| panic!("no pool of {threads} threads"))
+}
+
+/// The data sets are the same, cell for cell (NaN equal to NaN, numbers bit for bit).
+fn same_set(a: &DataSet, b: &DataSet) -> Result<(), String> {
+    if a.name != b.name || a.row_numbers != b.row_numbers || a.columns.len() != b.columns.len() {
+        return Err(format!(
+            "shape: {:?} {:?} vs {:?} {:?}",
+            a.name, a.row_numbers, b.name, b.row_numbers
+        ));
+    }
+    for (x, y) in a.columns.iter().zip(&b.columns) {
+        if x.name != y.name {
+            return Err(format!("names {} vs {}", x.name, y.name));
+        }
+        let bits = |v: &[f64]| v.iter().map(|f| f.to_bits()).collect::<Vec<_>>();
+        match (&x.values, &y.values) {
+            (Values::Numeric(p), Values::Numeric(q)) if bits(p) == bits(q) => {}
+            (Values::Text(p), Values::Text(q)) if p == q => {}
+            _ => {
+                return Err(format!(
+                    "column {}: {:?} vs {:?}",
+                    x.name, x.values, y.values
+                ))
+            }
+        }
+        let exact = |c: &super::Column| {
+            c.exact
+                .as_ref()
+                .map(|e| (e.offset.to_bits(), bits(&e.residuals)))
+        };
+        if exact(x) != exact(y) {
+            return Err(format!("exact residuals of {}", x.name));
+        }
+    }
+    Ok(())
+}
+
+fn same(a: &Result<DataSet, LoadError>, b: &Result<DataSet, LoadError>) -> Result<(), String> {
+    match (a, b) {
+        (Ok(x), Ok(y)) => same_set(x, y),
+        (Err(x), Err(y)) if x == y => Ok(()),
+        _ => Err(format!("{a:?}\n   vs\n{b:?}")),
+    }
+}
+
+/// Loads `bytes` both ways, with every part size and 1 to 3 threads; panics on a difference.
+/// With a given part size the results must be identical to the byte whatever the threads.
+fn check(bytes: &[u8], opts: &LoadOptions) {
+    let want = reference::read_delimited(bytes, opts);
+    for part in PART_SIZES {
+        let one = pool(1).install(|| read_in_parts(bytes, opts, part));
+        if let Err(e) = same(&want, &one) {
+            panic!(
+                "part size {part} differs on {:?}:\n{e}",
+                String::from_utf8_lossy(bytes)
+            );
+        }
+        for threads in [2, 3] {
+            let more = pool(threads).install(|| read_in_parts(bytes, opts, part));
+            assert_eq!(
+                format!("{one:?}"),
+                format!("{more:?}"),
+                "{threads} threads, part size {part}"
+            );
+        }
+    }
+}
+
+fn opts() -> LoadOptions {
+    LoadOptions {
+        name: "t".to_owned(),
+        ..LoadOptions::default()
+    }
+}
+
+/// Bytes that make delimited text interesting: structure, numbers, words, padding, a
+/// marker, text that is not UTF-8, and near-miss numbers.
+const PIECES: [&[u8]; 24] = [
+    b",",
+    b",",
+    b",",
+    b"\n",
+    b"\n",
+    b"\r\n",
+    b"\r",
+    b"\"",
+    b"\"\"",
+    b" ",
+    b"\t",
+    b"1",
+    b"2.5",
+    b"-3",
+    b"1e3",
+    b"x",
+    b"A",
+    b"NA",
+    b"1,5",
+    b"\xc3\xa9",
+    b"\xff",
+    b"1000000.25",
+    b";",
+    b".",
+];
+
+fn text_of(pieces: &[usize], header: bool) -> Vec<u8> {
+    let mut out: Vec<u8> = if header {
+        b"a,b,c\n".to_vec()
+    } else {
+        Vec::new()
+    };
+    for &i in pieces {
+        out.extend_from_slice(PIECES.get(i % PIECES.len()).copied().unwrap_or_default());
+    }
+    out
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 1500, failure_persistence: None, ..ProptestConfig::default() })]
+
+    #[test]
+    fn same_as_the_row_at_a_time_loader(
+        pieces in proptest::collection::vec(0usize..PIECES.len(), 0..120),
+        header in any::<bool>(),
+        tab in any::<bool>(),
+        marker in any::<bool>(),
+    ) {
+        let o = LoadOptions {
+            delimiter: if tab { b'\t' } else { b',' },
+            missing: if marker { vec!["NA".to_owned(), String::new()] } else { Vec::new() },
+            ..opts()
+        };
+        check(&text_of(&pieces, header), &o);
+    }
+
+    #[test]
+    fn same_on_rows_of_three_cells(
+        cells in proptest::collection::vec(0usize..PIECES.len(), 0..90),
+    ) {
+        // Mostly well-formed rows, so that more inputs load and their values are compared.
+        let mut bytes = b"a,b,c\n".to_vec();
+        for (i, c) in cells.iter().enumerate() {
+            let piece = PIECES.get(*c).copied().unwrap_or_default();
+            let structural = matches!(piece, b"," | b"\n" | b"\r\n" | b"\r");
+            if !structural {
+                bytes.extend_from_slice(piece);
+            }
+            bytes.extend_from_slice(if i % 3 == 2 { b"\n" } else { b"," });
+        }
+        check(&bytes, &opts());
+    }
+}
+
+/// Rows `y,x,g,note` like the benchmark's, with `edit` applied to each row's cells.
+fn rows(n: usize, edit: impl Fn(usize, &mut [String; 4])) -> Vec<u8> {
+    let mut out = b"y,x,g,note\n".to_vec();
+    for i in 0..n {
+        let mut cells = [
+            format!("{}.{:03}", 10 + i % 70, (i * 37) % 1000),
+            format!("{}.5", i % 50),
+            ["A", "B", "C", "D"][i % 4].to_owned(),
+            format!("r{i}"),
+        ];
+        edit(i, &mut cells);
+        out.extend_from_slice(cells.join(",").as_bytes());
+        out.push(b'\n');
+    }
+    out
+}
+
+#[test]
+fn columns_turning_text_in_later_parts_keep_every_cell() {
+    // Column y turns text at row 700, x at row 1900: with small parts, in a later part and
+    // a later batch than the first rows.
+    let bytes = rows(2000, |i, c| {
+        if i == 700 {
+            c[0] = "seven hundred".to_owned();
+        }
+        if i == 1900 {
+            c[1] = "n/a?".to_owned();
+        }
+        if i % 11 == 0 {
+            c[1] = String::new();
+        }
+    });
+    check(&bytes, &opts());
+    for part in [1, 100, 4096] {
+        let d = read_in_parts(&bytes, &opts(), part).unwrap_or_else(|e| panic!("{e}"));
+        let y = d.column("y").map(|c| &c.values);
+        let Some(Values::Text(y)) = y else {
+            panic!("y is not text: {y:?}");
+        };
+        assert_eq!(y.get(0), Some("10.000"));
+        assert_eq!(y.get(700), Some("seven hundred"));
+        assert_eq!(y.get(1999), Some("49.963"));
+    }
+}
+
+#[test]
+fn errors_in_later_parts_name_their_lines() {
+    let ragged = rows(3000, |i, c| {
+        if i == 2500 {
+            c[3] = "a,b".to_owned();
+        }
+    });
+    let refused = rows(3000, |i, c| {
+        if i == 2100 {
+            c[1] = "1,5".to_owned();
+        }
+        if i == 2900 {
+            c[0] = "NA".to_owned();
+        }
+    });
+    let non_utf8 = {
+        let mut b = rows(3000, |_, _| {});
+        let at = b.len() - 40;
+        if let Some(x) = b.get_mut(at) {
+            *x = 0xff;
+        }
+        b
+    };
+    for bytes in [&ragged, &refused, &non_utf8] {
+        check(bytes, &opts());
+    }
+    let e = read_in_parts(&ragged, &opts(), 64).err();
+    assert_eq!(
+        e,
+        Some(LoadError::RaggedRow {
+            line: 2502,
+            expected: 4,
+            found: 5
+        })
+    );
+}
+
+#[test]
+fn quoted_fields_across_part_boundaries() {
+    let bytes = rows(1500, |i, c| match i % 5 {
+        0 => c[3] = format!("\"line\nbreak {i}\""),
+        1 => c[3] = format!("\"say \"\"{i}\"\"\""),
+        2 => c[2] = "\"B\"".to_owned(),
+        3 => c[3] = format!("x\"{i}"),
+        _ => {}
+    });
+    check(&bytes, &opts());
+    let d = read_in_parts(&bytes, &opts(), 50).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(d.n_rows(), 1500);
+    // Each quoted line break moves the later rows down a line.
+    assert_eq!(d.row_numbers.last(), Some(&(1501 + 300)));
+}
+
+#[test]
+fn a_quote_left_open_in_a_large_file_is_found() {
+    let mut bytes = rows(3000, |_, _| {});
+    bytes.extend_from_slice(b"1,2,\"A,open\n5,6,B,x\n");
+    check(&bytes, &opts());
+    assert_eq!(
+        read_in_parts(&bytes, &opts(), 64).err(),
+        Some(LoadError::UnterminatedQuote { line: 3002 })
+    );
+}
+
+#[test]
+fn unique_texts_and_long_numbers_across_parts() {
+    let bytes = rows(3000, |i, c| {
+        c[0] = format!("1000000000{}.{}", i % 10, i % 7);
+        c[3] = format!("a much longer unique label number {i}");
+    });
+    check(&bytes, &opts());
+    let d = read_in_parts(&bytes, &opts(), 128).unwrap_or_else(|e| panic!("{e}"));
+    assert!(d.column("y").and_then(|c| c.exact.as_ref()).is_some());
+}
+
+#[test]
+fn crlf_bare_cr_and_blank_lines_across_parts() {
+    let mut bytes = b"y,g\r\n".to_vec();
+    for i in 0..2000 {
+        let end: &[u8] = match i % 4 {
+            0 => b"\r\n",
+            1 => b"\r",
+            2 => b"\n\n\r\n",
+            _ => b"\n",
+        };
+        bytes.extend_from_slice(format!("{i},g{}", i % 3).as_bytes());
+        bytes.extend_from_slice(end);
+    }
+    check(&bytes, &opts());
+}
