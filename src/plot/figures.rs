@@ -32,16 +32,16 @@ const MEAN_BAR: f64 = 0.3;
 const GOLDEN: f64 = 0.618_033_988_749_894_8;
 
 /// The rows of the fit, with what every figure needs of them.
-struct Rows {
-    /// Index of each fitted row in the model's variables (None if not found).
-    index: Vec<Option<usize>>,
+struct Rows<'a> {
+    /// Index of each fitted row in the model's variables.
+    index: &'a [usize],
 }
 
-impl Rows {
+impl<'a> Rows<'a> {
     /// The fitted rows of a model, in the order of its diagnostics.
-    fn of(fit: &Fit) -> Rows {
+    fn of(fit: &'a Fit) -> Rows<'a> {
         Rows {
-            index: fit.used_rows().iter().copied().map(Some).collect(),
+            index: fit.used_rows(),
         }
     }
 
@@ -53,7 +53,7 @@ impl Rows {
         };
         self.index
             .iter()
-            .map(|i| i.and_then(|i| values.get(i).copied()).unwrap_or(f64::NAN))
+            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
             .collect()
     }
 
@@ -64,7 +64,7 @@ impl Rows {
         };
         self.index
             .iter()
-            .map(|i| i.and_then(|i| values.get(i).copied()).unwrap_or(f64::NAN))
+            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
             .collect()
     }
 }
@@ -75,8 +75,13 @@ impl Rows {
 struct Groups {
     labels: Vec<String>,
     codes: Vec<u32>,
-    of_row: Vec<Option<usize>>,
+    /// Group of each fitted row, [`NO_GROUP`] for none (two bytes a row: a legend holds far
+    /// fewer levels).
+    of_row: Vec<u16>,
 }
+
+/// `Groups::of_row` entry of a row in no group.
+const NO_GROUP: u16 = u16::MAX;
 
 impl Groups {
     /// Refuses more levels than a legend can hold.
@@ -90,23 +95,19 @@ impl Groups {
         Ok(self)
     }
 
-    fn of(fit: &Fit, rows: &Rows, factor: Option<usize>) -> Groups {
+    fn of(fit: &Fit, rows: &Rows<'_>, factor: Option<usize>) -> Groups {
         let Some(Var::Factor { codes, levels, .. }) = factor.and_then(|v| fit.spec().vars.get(v))
         else {
             return Groups {
                 labels: Vec::new(),
                 codes: Vec::new(),
-                of_row: vec![Some(0); rows.index.len()],
+                of_row: vec![0; rows.index.len()],
             };
         };
-        let row_codes: Vec<Option<u32>> = rows
-            .index
-            .iter()
-            .map(|i| i.and_then(|i| codes.get(i).copied().flatten()))
-            .collect();
+        let code_of = |i: usize| codes.get(i).copied().flatten();
         let mut present = vec![false; levels.len()];
-        for c in row_codes.iter().flatten() {
-            if let Some(p) = present.get_mut(*c as usize) {
+        for c in rows.index.iter().filter_map(|&i| code_of(i)) {
+            if let Some(p) = present.get_mut(c as usize) {
                 *p = true;
             }
         }
@@ -117,15 +118,34 @@ impl Groups {
             .iter()
             .map(|c| levels.get(*c as usize).cloned().unwrap_or_default())
             .collect();
-        let of_row = row_codes
+        // Position of each code among the kept levels.
+        let mut position = vec![NO_GROUP; levels.len()];
+        for (k, &c) in kept.iter().enumerate() {
+            if let (Some(p), Ok(k)) = (position.get_mut(c as usize), u16::try_from(k)) {
+                *p = k;
+            }
+        }
+        let of_row = rows
+            .index
             .iter()
-            .map(|c| c.and_then(|c| kept.iter().position(|k| *k == c)))
+            .map(|&i| {
+                code_of(i)
+                    .and_then(|c| position.get(c as usize).copied())
+                    .unwrap_or(NO_GROUP)
+            })
             .collect();
         Groups {
             labels,
             codes: kept,
             of_row,
         }
+    }
+
+    /// The group of each fitted row (None for none), in row order.
+    fn rows(&self) -> impl Iterator<Item = Option<usize>> + '_ {
+        self.of_row
+            .iter()
+            .map(|&g| (g != NO_GROUP).then_some(usize::from(g)))
     }
 
     /// Legend entries: the level labels, or one entry for all observations.
@@ -269,10 +289,10 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let ys = rows.response(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
-    for ((x, y), g) in xs.iter().zip(&ys).zip(&groups.of_row) {
+    for ((x, y), g) in xs.iter().zip(&ys).zip(groups.rows()) {
         if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
             points.push(Point {
-                group: *g,
+                group: g,
                 x: *x,
                 y: *y,
             });
@@ -388,10 +408,10 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         None => d.fitted.clone(),
     };
     let mut points = Vec::new();
-    for ((x, y), g) in xs.iter().zip(&d.residuals).zip(&groups.of_row) {
+    for ((x, y), g) in xs.iter().zip(&d.residuals).zip(groups.rows()) {
         if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
             points.push(Point {
-                group: *g,
+                group: g,
                 x: *x,
                 y: *y,
             });
@@ -445,13 +465,13 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let s = fit.summary().sigma;
     let mut r: Vec<(f64, usize)> = Vec::new();
-    for ((e, h), g) in d.residuals.iter().zip(&d.leverage).zip(&groups.of_row) {
+    for ((e, h), g) in d.residuals.iter().zip(&d.leverage).zip(groups.rows()) {
         let one_h = 1.0 - h;
         if let Some(g) = g {
             if one_h > 0.0 && s > 0.0 {
                 let v = e / (s * one_h.sqrt());
                 if v.is_finite() {
-                    r.push((v, *g));
+                    r.push((v, g));
                 }
             }
         }
@@ -581,11 +601,11 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .row_numbers
         .iter()
         .zip(&d.cooks_distance)
-        .zip(&groups.of_row)
+        .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
             points.push(Point {
-                group: *g,
+                group: g,
                 x: *r as f64,
                 y: *c,
             });
@@ -669,19 +689,19 @@ pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let mut count = vec![0usize; k];
     let mut sum = vec![0.0; k];
     let mut points = Vec::new();
-    for (y, g) in ys.iter().zip(&groups.of_row) {
+    for (y, g) in ys.iter().zip(groups.rows()) {
         let (Some(g), true) = (g, y.is_finite()) else {
             continue;
         };
-        let (Some(c), Some(s)) = (count.get_mut(*g), sum.get_mut(*g)) else {
+        let (Some(c), Some(s)) = (count.get_mut(g), sum.get_mut(g)) else {
             continue;
         };
         let offset = ((*c as f64 + 1.0) * GOLDEN).fract() - 0.5;
         *c += 1;
         *s += y;
         points.push(Point {
-            group: *g,
-            x: *g as f64 + offset * JITTER_WIDTH,
+            group: g,
+            x: g as f64 + offset * JITTER_WIDTH,
             y: *y,
         });
     }
