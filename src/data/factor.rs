@@ -128,7 +128,32 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
 
     let n = col.len();
     let mut codes: Vec<Option<u32>> = Vec::with_capacity(n);
+    // A text column already codes its distinct texts: each is looked up once, the first time
+    // a row has it, and later rows reuse the answer (the same codes and the same first
+    // error as looking every row up).
+    let text_codes = match &col.values {
+        Values::Text(t) => Some((t, t.codes())),
+        _ => None,
+    };
+    let mut memo: Vec<Option<u32>> = match text_codes {
+        Some((t, _)) => vec![None; t.n_texts()],
+        None => Vec::new(),
+    };
     for row in 0..n {
+        if let Some((_, row_codes)) = text_codes {
+            let tc = row_codes
+                .get(row)
+                .copied()
+                .unwrap_or(super::TextValues::MISSING);
+            if tc == super::TextValues::MISSING {
+                codes.push(None);
+                continue;
+            }
+            if let Some(Some(level)) = usize::try_from(tc).ok().and_then(|i| memo.get(i)) {
+                codes.push(Some(*level));
+                continue;
+            }
+        }
         let key = match &col.values {
             Values::Numeric(v) => v
                 .get(row)
@@ -164,6 +189,15 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                 c
             }
         };
+        if let Some((_, row_codes)) = text_codes {
+            let slot = row_codes
+                .get(row)
+                .and_then(|&tc| usize::try_from(tc).ok())
+                .and_then(|i| memo.get_mut(i));
+            if let Some(m) = slot {
+                *m = Some(code);
+            }
+        }
         codes.push(Some(code));
     }
 
