@@ -115,9 +115,7 @@ pub fn fit_owned(spec: ModelSpec) -> Result<Fit, ModelError> {
 fn fold_offset(mut spec: ModelSpec) -> ModelSpec {
     let offset = spec.response_offset;
     if let Var::Numeric { values, .. } = &mut spec.response {
-        for v in values.iter_mut() {
-            *v += offset;
-        }
+        *values = values.iter().map(|v| v + offset).collect();
         spec.response_offset = 0.0;
     }
     spec

@@ -11,6 +11,8 @@
 //! chunks. Every sum of squares is read from a re-triangularisation of selected columns of
 //! that R; the normal equations are never formed.
 
+use std::sync::Arc;
+
 mod anova;
 mod design;
 pub mod dist;
@@ -35,15 +37,15 @@ pub enum Var {
     Numeric {
         /// Variable name as the user wrote it.
         name: String,
-        /// Values, one per row.
-        values: Vec<f64>,
+        /// Values, one per row (shared: models on the same data hold one copy).
+        values: Arc<[f64]>,
     },
     /// A factor: integer codes into `levels` (declared order; the first is the reference).
     Factor {
         /// Variable name.
         name: String,
         /// Level index of each row; `None` marks a missing value.
-        codes: Vec<Option<u32>>,
+        codes: Arc<[Option<u32>]>,
         /// Level labels in declared order.
         levels: Vec<String>,
     },
@@ -105,7 +107,7 @@ pub struct ModelSpec {
     /// Whether the model has an intercept.
     pub intercept: bool,
     /// The data-file line of each row (for messages and diagnostics).
-    pub row_numbers: Vec<usize>,
+    pub row_numbers: Arc<[usize]>,
     /// The response values are given relative to this offset (0 for plain values): the
     /// response is `response_offset + values[i]`. The engine adds the offset back to the
     /// intercept, adjusted means, fitted values and every other estimate on the response

@@ -4,6 +4,8 @@
 //! Memoirs 1; general form: Potthoff 1964, "On the Johnson-Neyman technique and some
 //! extensions thereof", Psychometrika 29).
 
+use std::sync::Arc;
+
 use super::design::term_keys;
 use super::fit::{check_level, f_p, fit_owned, t_p, t_quantile, Fit};
 use super::{
@@ -389,7 +391,7 @@ fn extends_by(big: &ModelSpec, base: &ModelSpec, term: &TermSpec) -> bool {
         && big.terms.iter().zip(&base.terms).all(|(a, b)| a == b)
         && big.intercept == base.intercept
         && big.response_offset.to_bits() == base.response_offset.to_bits()
-        && big.row_numbers == base.row_numbers
+        && (Arc::ptr_eq(&big.row_numbers, &base.row_numbers) || big.row_numbers == base.row_numbers)
         && same_var(&big.response, &base.response)
         && big.vars.len() == base.vars.len()
         && big.vars.iter().zip(&base.vars).all(|(a, b)| same_var(a, b))
@@ -408,8 +410,12 @@ fn same_var(a: &Var, b: &Var) -> bool {
             },
         ) => {
             na == nb
-                && va.len() == vb.len()
-                && va.iter().zip(vb).all(|(x, y)| x.to_bits() == y.to_bits())
+                && (Arc::ptr_eq(va, vb)
+                    || (va.len() == vb.len()
+                        && va
+                            .iter()
+                            .zip(vb.iter())
+                            .all(|(x, y)| x.to_bits() == y.to_bits())))
         }
         (
             Var::Factor {
@@ -422,7 +428,7 @@ fn same_var(a: &Var, b: &Var) -> bool {
                 codes: cb,
                 levels: lb,
             },
-        ) => na == nb && ca == cb && la == lb,
+        ) => na == nb && (Arc::ptr_eq(ca, cb) || ca == cb) && la == lb,
         _ => false,
     }
 }

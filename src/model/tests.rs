@@ -140,8 +140,13 @@ fn factor(name: &str, vals: &[&str], levels: &[&str]) -> Var {
 fn num(name: &str, values: Vec<f64>) -> Var {
     Var::Numeric {
         name: name.to_string(),
-        values,
+        values: values.into(),
     }
+}
+
+/// The values of a variable built here (so not shared) for editing.
+fn values_mut(v: &mut std::sync::Arc<[f64]>) -> &mut [f64] {
+    std::sync::Arc::get_mut(v).expect("a test's own values are not shared")
 }
 
 fn part(var: usize) -> Part {
@@ -543,7 +548,7 @@ fn warnings_and_errors() {
     // Missing values dropped, few distinct values, empty level.
     let mut spec = reference_spec(DATA, vec![term(&[0]), term(&[2])]);
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
-        values[0] = f64::NAN;
+        values_mut(values)[0] = f64::NAN;
     }
     if let Var::Factor { levels, .. } = &mut spec.vars[0] {
         levels.push("a4".to_string());
@@ -558,7 +563,7 @@ fn warnings_and_errors() {
     assert_eq!(f.means("a", &[], 0.95).expect("means").len(), 3);
     let mut spec = reference_spec(DATA, vec![term(&[2])]);
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
-        for (k, v) in values.iter_mut().enumerate() {
+        for (k, v) in values_mut(values).iter_mut().enumerate() {
             *v = (k % 3) as f64;
         }
     }
@@ -588,7 +593,7 @@ fn warnings_and_errors() {
         }],
     );
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
-        values[4] = -1.0;
+        values_mut(values)[4] = -1.0;
     }
     assert!(matches!(
         fit(&spec),
@@ -1512,7 +1517,7 @@ fn response_offset_keeps_digits_a_plain_response_loses() {
     let direct = fit(&offset_spec(0.0, true)).expect("fit");
     let mut s = offset_spec(0.0, true);
     if let Var::Numeric { values, .. } = &mut s.response {
-        for v in values.iter_mut() {
+        for v in values_mut(values).iter_mut() {
             *v += 1e12;
         }
     }
@@ -1534,7 +1539,7 @@ fn response_offset_without_intercept_is_folded_in() {
     let shifted = fit(&offset_spec(offset, false)).expect("fit with offset");
     let mut s = offset_spec(0.0, false);
     if let Var::Numeric { values, .. } = &mut s.response {
-        for v in values.iter_mut() {
+        for v in values_mut(values).iter_mut() {
             *v += offset;
         }
     }
@@ -1619,7 +1624,7 @@ fn derived_effect_engine_matches_the_rows() {
         )
         .unwrap_or_else(|| panic!("design {k}: the effect engine is derived"));
         let y = match &f.spec.response {
-            Var::Numeric { values, .. } => values.clone(),
+            Var::Numeric { values, .. } => values.to_vec(),
             Var::Factor { .. } => Vec::new(),
         };
         let direct =

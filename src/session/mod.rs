@@ -10,6 +10,9 @@ mod model_statements;
 mod plot_statements;
 mod procedure_statements;
 
+use std::cell::RefCell;
+use std::sync::Arc;
+
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
@@ -34,6 +37,30 @@ pub struct Session<'w> {
     inputs: Vec<InputRecord>,
     /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
     units: Vec<(String, String)>,
+    /// Columns of the data sets as models hold them, one shared copy each, made on first use
+    /// and forgotten by every statement that changes a data set.
+    shared: RefCell<Vec<(SharedKey, Shared)>>,
+}
+
+/// Which column of which data set a shared copy is of.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum SharedKey {
+    /// Numeric values of (data set, column).
+    Values(usize, usize),
+    /// The exact-offset residuals of (data set, column).
+    Exact(usize, usize),
+    /// Factor codes of (data set, column).
+    Codes(usize, usize),
+    /// Data-file line of each row of a data set.
+    Rows(usize),
+}
+
+/// A shared copy of a column.
+#[derive(Clone)]
+enum Shared {
+    Values(Arc<[f64]>),
+    Codes(Arc<[Option<u32>]>),
+    Rows(Arc<[usize]>),
 }
 
 type Outcome = Result<Vec<Item>, Diagnostic>;
@@ -49,6 +76,7 @@ impl<'w> Session<'w> {
             models: Vec::new(),
             inputs: Vec::new(),
             units: Vec::new(),
+            shared: RefCell::new(Vec::new()),
         }
     }
 
@@ -59,6 +87,15 @@ impl<'w> Session<'w> {
 
     /// Runs one statement and returns what it produced.
     pub fn run(&mut self, stmt: &Statement) -> Outcome {
+        if matches!(
+            stmt.kind,
+            StatementKind::Load { .. }
+                | StatementKind::Missing { .. }
+                | StatementKind::Factor { .. }
+                | StatementKind::Keep { .. }
+        ) {
+            self.shared.borrow_mut().clear();
+        }
         match &stmt.kind {
             StatementKind::Load { path, name } => self.load(path, name.as_ref()),
             StatementKind::Missing { markers } => self.missing(markers),
@@ -116,6 +153,45 @@ impl<'w> Session<'w> {
         self.data_sets
             .get_mut(i)
             .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
+    }
+
+    /// A shared copy of a column for a model, made by `make` the first time it is asked for.
+    fn shared(&self, key: SharedKey, make: impl FnOnce() -> Shared) -> Shared {
+        if let Some((_, v)) = self.shared.borrow().iter().find(|(k, _)| *k == key) {
+            return v.clone();
+        }
+        let v = make();
+        self.shared.borrow_mut().push((key, v.clone()));
+        v
+    }
+
+    /// The shared numeric values of column `c` of data set `set`.
+    fn shared_values(&self, set: usize, c: usize, exact: bool, values: &[f64]) -> Arc<[f64]> {
+        let key = if exact {
+            SharedKey::Exact(set, c)
+        } else {
+            SharedKey::Values(set, c)
+        };
+        match self.shared(key, || Shared::Values(values.into())) {
+            Shared::Values(v) => v,
+            _ => values.into(),
+        }
+    }
+
+    /// The shared factor codes of column `c` of data set `set`.
+    fn shared_codes(&self, set: usize, c: usize, codes: &[Option<u32>]) -> Arc<[Option<u32>]> {
+        match self.shared(SharedKey::Codes(set, c), || Shared::Codes(codes.into())) {
+            Shared::Codes(v) => v,
+            _ => codes.into(),
+        }
+    }
+
+    /// The shared data-file lines of data set `set`.
+    fn shared_rows(&self, set: usize, rows: &[usize]) -> Arc<[usize]> {
+        match self.shared(SharedKey::Rows(set), || Shared::Rows(rows.into())) {
+            Shared::Rows(v) => v,
+            _ => rows.into(),
+        }
     }
 
     /// The unit declared for a column, if any.

@@ -19,14 +19,15 @@ const DEFAULT_ALPHA: f64 = 0.05;
 impl Session<'_> {
     pub(super) fn model(&mut self, decl: &ModelDecl, span: Span) -> Outcome {
         let set = self.current(span)?;
+        let si = self.current.unwrap_or(0);
         let ridx = column_index(set, &decl.response)?;
-        let mut response = numeric_values(set, ridx, &decl.response)?.to_vec();
+        let plain = numeric_values(set, ridx, &decl.response)?;
         // Long cells (e.g. 1000000000000.4) come with exact residuals about an offset.
-        let mut response_offset = 0.0;
-        if let Some(e) = set.columns.get(ridx).and_then(|c| c.exact.as_deref()) {
-            response.clone_from(&e.residuals);
-            response_offset = e.offset;
-        }
+        let (response, response_offset) =
+            match set.columns.get(ridx).and_then(|c| c.exact.as_deref()) {
+                Some(e) => (self.shared_values(si, ridx, true, &e.residuals), e.offset),
+                None => (self.shared_values(si, ridx, false, plain), 0.0),
+            };
         let mut vars: Vec<Var> = Vec::new();
         let mut var_names: Vec<String> = Vec::new();
         let mut terms = Vec::new();
@@ -41,11 +42,11 @@ impl Session<'_> {
                         let v = match &col.values {
                             Values::Numeric(x) => Var::Numeric {
                                 name: col.name.clone(),
-                                values: x.clone(),
+                                values: self.shared_values(si, ci, false, x),
                             },
                             Values::Factor(f) => Var::Factor {
                                 name: col.name.clone(),
-                                codes: f.codes.clone(),
+                                codes: self.shared_codes(si, ci, &f.codes),
                                 levels: f.levels.clone(),
                             },
                             Values::Text(_) => {
@@ -94,7 +95,7 @@ impl Session<'_> {
             vars,
             terms,
             intercept: decl.intercept,
-            row_numbers: set.row_numbers.clone(),
+            row_numbers: self.shared_rows(si, &set.row_numbers),
             response_offset,
         };
         let term_span =

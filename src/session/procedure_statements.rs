@@ -125,7 +125,7 @@ impl Session<'_> {
                 let alpha = alpha_of(alpha)?;
                 let set = self.current(factor.span)?;
                 let ci = column_index(set, covariate)?;
-                let x = numeric_values(set, ci, covariate)?.to_vec();
+                let x = numeric_values(set, ci, covariate)?.into();
                 let f = factor_column(set, factor)?;
                 let spec = ModelSpec {
                     response: Var::Numeric {
@@ -134,7 +134,7 @@ impl Session<'_> {
                     },
                     vars: vec![Var::Factor {
                         name: factor.value.clone(),
-                        codes: f.codes.clone(),
+                        codes: f.codes.as_slice().into(),
                         levels: f.levels.clone(),
                     }],
                     terms: vec![TermSpec {
@@ -144,7 +144,7 @@ impl Session<'_> {
                         }],
                     }],
                     intercept: true,
-                    row_numbers: set.row_numbers.clone(),
+                    row_numbers: set.row_numbers.as_slice().into(),
                     response_offset: 0.0,
                 };
                 let fit = model::fit(&spec).map_err(|e| {
