@@ -45,18 +45,6 @@ impl<'a> Rows<'a> {
         }
     }
 
-    /// Numeric values of variable `var` on the fitted rows (NaN where unknown).
-    fn numeric(&self, fit: &Fit, var: Option<usize>) -> Vec<f64> {
-        let values: &[f64] = match var.and_then(|v| fit.spec().vars.get(v)) {
-            Some(Var::Numeric { values, .. }) => values,
-            _ => &[],
-        };
-        self.index
-            .iter()
-            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
-            .collect()
-    }
-
     fn response(&self, fit: &Fit) -> Vec<f64> {
         let values: &[f64] = match &fit.spec().response {
             Var::Numeric { values, .. } => values,
@@ -184,6 +172,51 @@ fn thin(points: &mut Vec<Point>) -> usize {
     k
 }
 
+/// The points `candidates` yields, thinned exactly as [`thin`] would thin them, without
+/// holding them all: the candidates are produced twice, once to count them. Returns the kept
+/// points, the thinning step and the number of candidates.
+fn thinned<I: Iterator<Item = Point>>(candidates: impl Fn() -> I) -> (Vec<Point>, usize, usize) {
+    let n = candidates().count();
+    let k = if n <= MAX_POINTS {
+        1
+    } else {
+        n.div_ceil(MAX_POINTS)
+    };
+    let mut seen: Vec<usize> = Vec::new();
+    let kept = candidates()
+        .filter(|p| {
+            if seen.len() <= p.group {
+                seen.resize(p.group + 1, 0);
+            }
+            match seen.get_mut(p.group) {
+                Some(c) => {
+                    let keep = *c % k == 0;
+                    *c += 1;
+                    keep
+                }
+                None => false,
+            }
+        })
+        .collect();
+    (kept, k, n)
+}
+
+/// Values of a numeric variable of the fit (empty for a factor or an unknown index).
+fn var_values(fit: &Fit, var: Option<usize>) -> &[f64] {
+    match var.and_then(|v| fit.spec().vars.get(v)) {
+        Some(Var::Numeric { values, .. }) => values,
+        _ => &[],
+    }
+}
+
+/// The response values of the fit.
+fn response_values(fit: &Fit) -> &[f64] {
+    match &fit.spec().response {
+        Var::Numeric { values, .. } => values,
+        Var::Factor { .. } => &[],
+    }
+}
+
 /// Caption and alt-text wording for thinned points.
 fn thinned_note(k: usize, n: usize) -> String {
     if k <= 1 {
@@ -285,30 +318,36 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .map(|v| v.name().to_string())
         .unwrap_or_default();
     let rows = Rows::of(fit);
-    let xs = rows.numeric(fit, Some(xv));
-    let ys = rows.response(fit);
+    let (xs, ys) = (var_values(fit, Some(xv)), response_values(fit));
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
-    let mut points = Vec::new();
-    for ((x, y), g) in xs.iter().zip(&ys).zip(groups.rows()) {
-        if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
-            points.push(Point {
-                group: g,
-                x: *x,
-                y: *y,
-            });
+    let candidates = || {
+        rows.index.iter().zip(groups.rows()).filter_map(|(&i, g)| {
+            let (x, y) = (
+                xs.get(i).copied().unwrap_or(f64::NAN),
+                ys.get(i).copied().unwrap_or(f64::NAN),
+            );
+            match (g, x.is_finite() && y.is_finite()) {
+                (Some(group), true) => Some(Point { group, x, y }),
+                _ => None,
+            }
+        })
+    };
+    // Each level's observed range of the covariate, over every point (not only those drawn).
+    let nlines = groups.legend().len();
+    let mut range = vec![(f64::INFINITY, f64::NEG_INFINITY); nlines];
+    for p in candidates() {
+        if let Some(r) = range.get_mut(p.group) {
+            *r = (r.0.min(p.x), r.1.max(p.x));
         }
     }
-    let n = points.len();
+    let (points, k, n) = thinned(candidates);
     let mut curves = Vec::new();
-    let nlines = groups.legend().len();
     let steps = if straight_in(fit, xv) { 1 } else { CURVE_STEPS };
     for g in 0..nlines {
-        let (lo, hi) = points
-            .iter()
-            .filter(|p| p.group == g)
-            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), p| {
-                (a.min(p.x), b.max(p.x))
-            });
+        let (lo, hi) = range
+            .get(g)
+            .copied()
+            .unwrap_or((f64::INFINITY, f64::NEG_INFINITY));
         if lo > hi {
             continue;
         }
@@ -326,7 +365,6 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
             points: line,
         });
     }
-    let k = thin(&mut points);
     let note = thinned_note(k, n);
     let (what, shape) = match req.factor {
         Some(f) => {
@@ -403,22 +441,26 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
-    let xs = match req.covariate {
-        Some(v) => rows.numeric(fit, Some(v)),
-        None => d.fitted.clone(),
+    let covariate = var_values(fit, req.covariate);
+    let x_of = |k: usize, i: usize| match req.covariate {
+        Some(_) => covariate.get(i).copied().unwrap_or(f64::NAN),
+        None => d.fitted.get(k).copied().unwrap_or(f64::NAN),
     };
-    let mut points = Vec::new();
-    for ((x, y), g) in xs.iter().zip(&d.residuals).zip(groups.rows()) {
-        if let (Some(g), true) = (g, x.is_finite() && y.is_finite()) {
-            points.push(Point {
-                group: g,
-                x: *x,
-                y: *y,
-            });
-        }
-    }
-    let n = points.len();
-    let k = thin(&mut points);
+    let candidates = || {
+        rows.index
+            .iter()
+            .zip(&d.residuals)
+            .zip(groups.rows())
+            .enumerate()
+            .filter_map(|(k, ((&i, &y), g))| {
+                let x = x_of(k, i);
+                match (g, x.is_finite() && y.is_finite()) {
+                    (Some(group), true) => Some(Point { group, x, y }),
+                    _ => None,
+                }
+            })
+    };
+    let (points, k, n) = thinned(candidates);
     let note = thinned_note(k, n);
     let against = match &req.covariate_name {
         Some(x) => x.clone(),
