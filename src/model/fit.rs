@@ -732,6 +732,12 @@ impl Fit {
             .collect()
     }
 
+    /// The data-file line of the k-th fitted row (in the order of [`Fit::diagnostics`]).
+    pub fn row_number(&self, k: usize) -> Option<usize> {
+        let i = *self.lay.used.get(k)?;
+        Some(self.spec.row_numbers.get(i).copied().unwrap_or(i))
+    }
+
     /// Indices (into the spec's variables) of the rows the model was fitted to, in order.
     pub(crate) fn used_rows(&self) -> &[usize] {
         &self.lay.used
@@ -771,7 +777,6 @@ impl Fit {
         let s2 = self.sigma * self.sigma;
         let n = self.lay.used.len();
         let mut d = Diagnostics {
-            row_numbers: self.row_numbers(),
             fitted: vec![0.0; n],
             residuals: vec![0.0; n],
             leverage: vec![0.0; n],

@@ -425,11 +425,10 @@ pub struct Region {
     pub refitted: bool,
 }
 
-/// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1).
+/// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1), one per
+/// fitted row in order; [`Fit::row_number`] gives each row's line in the data file.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Diagnostics {
-    /// Data-file line of each fitted row.
-    pub row_numbers: Vec<usize>,
     /// Fitted values.
     pub fitted: Vec<f64>,
     /// Residuals.

@@ -315,7 +315,7 @@ fn reference_diagnostics() {
     // Source: model_checks.py (DIAG_*).
     let f = ancova();
     let d = f.diagnostics();
-    assert_eq!(d.row_numbers[0], 2);
+    assert_eq!(f.row_number(0), Some(2));
     for k in 0..3 {
         close(d.leverage[k], DIAG_LEVERAGE[k], 1e-11, "leverage");
         close(d.cooks_distance[k], DIAG_COOK[k], 1e-10, "cook");

@@ -639,16 +639,19 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
-    for ((r, c), g) in d
-        .row_numbers
+    let lines = fit.spec().row_numbers.as_ref();
+    let row_line = |&i: &usize| lines.get(i).copied().unwrap_or(i);
+    for ((r, c), g) in rows
+        .index
         .iter()
+        .map(row_line)
         .zip(&d.cooks_distance)
         .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
             points.push(Point {
                 group: g,
-                x: *r as f64,
+                x: r as f64,
                 y: *c,
             });
         }

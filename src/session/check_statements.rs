@@ -123,7 +123,7 @@ impl Session<'_> {
                 )),
             ])
         } else {
-            let mut listed = influence.table(diag, &m.name);
+            let mut listed = influence.table(fit, diag, &m.name);
             listed.subject = Some(m.name.clone());
             Ok(vec![Item::Table(t), Item::Table(listed)])
         }
@@ -484,7 +484,7 @@ impl Influence {
         )
     }
 
-    fn table(&self, d: &Diagnostics, model: &str) -> Table {
+    fn table(&self, fit: &Fit, d: &Diagnostics, model: &str) -> Table {
         let mut t = Table::new(
             "influence",
             format!("Rows of model {} past an influence threshold", code(model)),
@@ -519,10 +519,7 @@ impl Influence {
         for &k in &listed {
             let get = |v: &[f64]| v.get(k).copied().unwrap_or(f64::NAN);
             t.push(vec![
-                d.row_numbers
-                    .get(k)
-                    .copied()
-                    .map_or(Cell::Missing, Cell::from),
+                fit.row_number(k).map_or(Cell::Missing, Cell::from),
                 get(&d.leverage).into(),
                 get(&d.cooks_distance).into(),
                 get(&d.studentized).into(),
