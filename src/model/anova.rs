@@ -160,7 +160,7 @@ impl Fit {
 /// small needs one in big); otherwise it is checked numerically: the columns of small are
 /// appended to big's in a joint triangularisation and must all come out aliased.
 pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
-    if small.row_numbers() != big.row_numbers() {
+    if small.lay.used.len() != big.lay.used.len() || !fitted_lines(small).eq(fitted_lines(big)) {
         return Err(ModelError::DifferentRows);
     }
     if !same_response(small, big) {
@@ -197,17 +197,25 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
     })
 }
 
+/// The data-file lines of the fitted rows.
+fn fitted_lines(f: &Fit) -> impl Iterator<Item = usize> + '_ {
+    let rows = &f.spec.row_numbers;
+    f.lay
+        .used
+        .iter()
+        .map(move |&i| rows.get(i).copied().unwrap_or(i))
+}
+
 /// The response values of the fitted rows as bit patterns, with `add` added first.
-fn response_used(f: &Fit, add: f64) -> Vec<u64> {
-    match &f.spec.response {
-        Var::Numeric { values, .. } => f
-            .lay
-            .used
-            .iter()
-            .map(|&i| (values.get(i).copied().unwrap_or(f64::NAN) + add).to_bits())
-            .collect(),
-        Var::Factor { .. } => Vec::new(),
-    }
+fn response_used(f: &Fit, add: f64) -> impl Iterator<Item = u64> + '_ {
+    let values: &[f64] = match &f.spec.response {
+        Var::Numeric { values, .. } => values,
+        Var::Factor { .. } => &[],
+    };
+    f.lay
+        .used
+        .iter()
+        .map(move |&i| (values.get(i).copied().unwrap_or(f64::NAN) + add).to_bits())
 }
 
 /// Whether two fits have the same response over their fitted rows: the same values when
@@ -216,9 +224,9 @@ fn response_used(f: &Fit, add: f64) -> Vec<u64> {
 fn same_response(a: &Fit, b: &Fit) -> bool {
     let (oa, ob) = (a.spec.response_offset, b.spec.response_offset);
     if oa.to_bits() == ob.to_bits() {
-        response_used(a, 0.0) == response_used(b, 0.0)
+        response_used(a, 0.0).eq(response_used(b, 0.0))
     } else {
-        response_used(a, oa) == response_used(b, ob)
+        response_used(a, oa).eq(response_used(b, ob))
     }
 }
 

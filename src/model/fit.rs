@@ -220,12 +220,12 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
                 .iter()
                 .any(|t| t.parts.iter().any(|q| q.var == v))
             {
-                let mut m = 0.0;
-                for (k, &i) in lay.used.iter().enumerate() {
-                    let x = values.get(i).copied().unwrap_or(0.0);
-                    m += (x - m) / (k as f64 + 1.0);
-                }
-                cov_means.push((v, m));
+                let x: Vec<f64> = lay
+                    .used
+                    .iter()
+                    .map(|&i| values.get(i).copied().unwrap_or(0.0))
+                    .collect();
+                cov_means.push((v, mean_of(&x)));
             }
         }
     }
