@@ -61,7 +61,9 @@ echo "| case | rows | file MB | wall s | peak MB | notes |"
 echo "|---|---:|---:|---:|---:|---|"
 
 read -r s m < <(measure "$covey" render "$root/worked/rations.md" --out "$out/rendered")
-echo "| worked/rations.md | 30 | - | $s | $m | small document |"
+echo "| worked/rations.md | 30 | - | $s | $m | small document, output already current (not rewritten) |"
+read -r s m < <(measure sh -c "rm -rf '$out/fresh' && '$covey' render '$root/worked/rations.md' --out '$out/fresh'")
+echo "| worked/rations.md | 30 | - | $s | $m | small document, every file written and flushed to disk (includes sh and rm) |"
 
 for rows in "${rows_list[@]}"; do
     data="$out/rows_$rows.csv"
@@ -80,6 +82,11 @@ for rows in "${rows_list[@]}"; do
         echo "| reference.py (pandas/numpy/scipy) | $rows | $mb | $s | $m | load, 2 fits, F test |"
     fi
 done
+
+if [ -f "$out/large_1000000.md" ]; then
+    read -r s m < <(measure env COVEY_THREADS=1 "$covey" render "$out/large_1000000.md" --out "$out/rendered")
+    echo "| large.md, COVEY_THREADS=1 | 1000000 | - | $s | $m | one thread |"
+fi
 
 if command -v hyperfine >/dev/null 2>&1 && [ -f "$out/large_1000000.md" ] && [ -z "${NO_REFERENCE:-}" ]; then
     echo
