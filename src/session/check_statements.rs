@@ -228,8 +228,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> 
         })
         .filter(|g| !g.is_empty())
         .collect();
-    let refs: Vec<&[f64]> = groups.iter().map(Vec::as_slice).collect();
-    match levene::brown_forsythe(&refs) {
+    match levene::brown_forsythe_owned(groups) {
         Ok(bf) => {
             let verdict = if bf.p < ALPHA {
                 format!(

@@ -26,14 +26,12 @@ pub struct EqualVariance {
 }
 
 /// Median of a slice of finite values (mean of the two middle values for even sizes; NaN if
-/// empty, which the caller rules out).
-fn median(x: &[f64]) -> f64 {
-    let mut s = x.to_vec();
+/// empty, which the caller rules out), found by selection, which reorders the slice.
+fn median_in_place(s: &mut [f64]) -> f64 {
     let n = s.len();
     if n == 0 {
         return f64::NAN;
     }
-    // Selection rather than a full sort: the same order statistics in linear time.
     let (below, &mut upper, _) = s.select_nth_unstable_by(n / 2, f64::total_cmp);
     if n % 2 == 1 {
         upper
@@ -54,6 +52,11 @@ fn median(x: &[f64]) -> f64 {
 /// group with no values, [`StatsError::NonFinite`] for a NaN or infinite value, and
 /// [`StatsError::ZeroWithinSpread`] when every value equals its group median.
 pub fn brown_forsythe(groups: &[&[f64]]) -> Result<EqualVariance, StatsError> {
+    brown_forsythe_owned(groups.iter().map(|x| x.to_vec()).collect())
+}
+
+/// [`brown_forsythe`] on groups it may reorder and overwrite (no copy of the values is made).
+pub fn brown_forsythe_owned(mut groups: Vec<Vec<f64>>) -> Result<EqualVariance, StatsError> {
     let g = groups.len();
     if g < 2 {
         return Err(StatsError::TooFewGroups(g));
@@ -64,13 +67,13 @@ pub fn brown_forsythe(groups: &[&[f64]]) -> Result<EqualVariance, StatsError> {
     if groups.iter().any(|x| x.iter().any(|v| !v.is_finite())) {
         return Err(StatsError::NonFinite);
     }
-    let deviations: Vec<Vec<f64>> = groups
-        .iter()
-        .map(|x| {
-            let med = median(x);
-            x.iter().map(|v| (v - med).abs()).collect()
-        })
-        .collect();
+    for x in &mut groups {
+        let med = median_in_place(x);
+        for v in x.iter_mut() {
+            *v = (*v - med).abs();
+        }
+    }
+    let deviations = groups;
     let n_total: usize = deviations.iter().map(Vec::len).sum();
     let means: Vec<f64> = deviations
         .iter()
