@@ -38,11 +38,7 @@ fn short_key(cell: &[u8]) -> Option<u64> {
     if cell.len() > SHORT_TEXT {
         return None;
     }
-    let mut key = (cell.len() as u64) << 56;
-    for (i, &b) in cell.iter().enumerate() {
-        key |= u64::from(b) << (8 * i);
-    }
-    Some(key)
+    Some(super::swar::load_short(cell)? | ((cell.len() as u64) << 56))
 }
 
 /// Spreads a short key over all 64 bits: the two halves of its 128-bit product with
@@ -52,6 +48,15 @@ fn mix(key: u64) -> u64 {
     let p = u128::from(key) * 0x9E37_79B9_7F4A_7C15;
     (p as u64) ^ ((p >> 64) as u64)
 }
+
+/// Slots of the table of first-come short texts (see [`Index`]): a power of two, so that the
+/// top bits of the mixed key pick a slot, and a few times the distinct texts of a typical
+/// label column, so that most find a slot of their own.
+const DIRECT_SLOTS: usize = 256;
+
+/// A slot of the direct table that holds no text (no text has this code: see
+/// [`TextValues::MISSING`]).
+const EMPTY_SLOT: (u64, u32) = (0, TextValues::MISSING);
 
 /// An index over the distinct texts of one [`TextValues`]: each text's code, found by the
 /// text's bytes. The texts stay in the [`TextValues`], which every call takes along (always
@@ -65,6 +70,17 @@ pub(super) struct Index {
     few: Vec<(u64, u32)>,
     /// Longer texts, by code.
     long: HashTable<u32>,
+    /// Short texts by the top bits of their mixed key, the first added to each slot keeping
+    /// it (empty until the first short text): found with one load and one comparison, the
+    /// hash table searched only on a miss. The slots depend only on the order texts are
+    /// added, and only make a search faster.
+    direct: Vec<(u64, u32)>,
+}
+
+/// The direct-table slot of a mixed short key.
+#[inline]
+fn direct_slot(mixed: u64) -> usize {
+    (mixed >> (u64::BITS - DIRECT_SLOTS.trailing_zeros())) as usize
 }
 
 impl Index {
@@ -75,7 +91,13 @@ impl Index {
             if self.short.len() <= LINEAR_LOOKUP_TEXTS {
                 return self.few.iter().find(|e| e.0 == key).map(|e| e.1);
             }
-            return self.short.find(mix(key), |e| e.0 == key).map(|e| e.1);
+            let mixed = mix(key);
+            if let Some(&(k, code)) = self.direct.get(direct_slot(mixed)) {
+                if k == key && code != TextValues::MISSING {
+                    return Some(code);
+                }
+            }
+            return self.short.find(mixed, |e| e.0 == key).map(|e| e.1);
         }
         self.long
             .find(fnv1a(cell), |&c| values.bytes_of(c) == Some(cell))
@@ -88,8 +110,16 @@ impl Index {
         let bytes = text.as_bytes();
         match short_key(bytes) {
             Some(key) => {
-                self.short
-                    .insert_unique(mix(key), (key, code), |e| mix(e.0));
+                let mixed = mix(key);
+                self.short.insert_unique(mixed, (key, code), |e| mix(e.0));
+                if self.direct.is_empty() {
+                    self.direct = vec![EMPTY_SLOT; DIRECT_SLOTS];
+                }
+                if let Some(slot) = self.direct.get_mut(direct_slot(mixed)) {
+                    if slot.1 == TextValues::MISSING {
+                        *slot = (key, code);
+                    }
+                }
                 if self.few.len() < LINEAR_LOOKUP_TEXTS {
                     self.few.push((key, code));
                 }

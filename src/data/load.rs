@@ -7,12 +7,14 @@
 //! turned out to be text, one computes exact residuals (see [`super::ExactValues`]).
 
 use std::collections::BTreeMap;
+use std::sync::Mutex;
 
 use super::error::LoadError;
 use super::exact::{self, ExactScan};
 use super::intern::Index;
 use super::number::{parse_trimmed, NumberParse, Suggestion};
 use super::split::{chunk_starts, span_bytes, span_len, Fields, RecordStart, Splitter};
+use super::swar;
 use super::{Column, DataSet, ExactValues, TextValues, Values};
 
 /// Longest physical line accepted, in bytes. Real data rows are far shorter; a longer line
@@ -184,14 +186,21 @@ const FAST_DECIMAL_BYTES: usize = 19;
 /// the point: the value is `m / 10^d` with both operands exact, so the one division is
 /// correctly rounded and equals what `f64::from_str` returns (the "fast path" of Clinger
 /// 1990, "How to read floating point numbers accurately", PLDI). `None` sends the cell to
-/// the general parser. Also returns the number of digits.
-#[inline]
+/// the general parser. Also returns the number of digits. Cells of at most 8 bytes after
+/// the sign are read eight bytes at once (see [`swar::short_decimal`]).
+// Inlined into the typing loops, which call it once per numeric cell.
+#[inline(always)]
 fn fast_decimal(cell: &[u8]) -> Option<(f64, usize)> {
     let (negative, text) = match cell {
         [b'-', rest @ ..] => (true, rest),
         [b'+', rest @ ..] => (false, rest),
         _ => (false, cell),
     };
+    if let Some((m, frac, count)) = swar::short_decimal(text) {
+        // m < 10^8 < 2^53, so the conversion is exact.
+        let v = m as f64 / *EXACT_POWERS_OF_TEN.get(frac)?;
+        return Some((if negative { -v } else { v }, count));
+    }
     if text.len() > FAST_DECIMAL_BYTES {
         return None;
     }
@@ -259,19 +268,76 @@ enum Builder {
 }
 
 impl Builder {
-    fn numeric(rows: usize) -> Self {
+    /// A numeric column with room for `rows` rows, in `values` (emptied).
+    fn numeric(mut values: Vec<f64>, rows: usize) -> Self {
+        values.clear();
+        values.reserve(rows);
         Builder::Numeric {
-            values: Vec::with_capacity(rows),
+            values,
             refused: None,
             scan: ExactScan::default(),
         }
     }
 
-    fn text(rows: usize) -> Self {
+    /// A text column with room for `rows` rows, in `values` (emptied).
+    fn text(mut values: TextValues, rows: usize) -> Self {
+        values.clear(rows);
         Builder::Text {
-            values: TextValues::with_capacity(rows),
+            values,
             index: Index::default(),
             refill_upto: 0,
+        }
+    }
+
+    /// Types a run of cells (each with its line) of column `column`, named `name`; on a bad
+    /// cell, its index in the run and the error.
+    ///
+    /// Runs of ordinary cells (plain short numbers the exact scan has nothing to learn from,
+    /// in a numeric column; texts already seen, in a text column) are typed in a loop of
+    /// their own, which needs no [`Place`] and no match on the column's kind per cell; any
+    /// other cell goes through [`Builder::push`].
+    fn push_cells<'c>(
+        &mut self,
+        cells: impl Iterator<Item = (&'c [u8], usize)>,
+        markers: &[&[u8]],
+        column: usize,
+        name: &str,
+    ) -> Result<(), (usize, LoadError)> {
+        let mut cells = cells.enumerate().peekable();
+        loop {
+            match self {
+                Builder::Numeric { values, scan, .. } => {
+                    while let Some((_, (raw, _))) = cells.peek() {
+                        let cell = trim_bytes(raw);
+                        let Some((v, digits)) = fast_decimal(cell) else {
+                            break;
+                        };
+                        if scan.wants_plain(digits) || markers.contains(&cell) {
+                            break;
+                        }
+                        values.push(v);
+                        cells.next();
+                    }
+                }
+                Builder::Text { values, index, .. } => {
+                    while let Some((_, (raw, _))) = cells.peek() {
+                        let cell = trim_bytes(raw);
+                        if cell.is_empty() || markers.contains(&cell) {
+                            break;
+                        }
+                        let Some(code) = index.find(values, cell) else {
+                            break;
+                        };
+                        values.push_code(code);
+                        cells.next();
+                    }
+                }
+            }
+            let Some((r, (raw, line))) = cells.next() else {
+                return Ok(());
+            };
+            let at = Place { line, column, name };
+            self.push(raw, markers, &at).map_err(|e| (r, e))?;
         }
     }
 
@@ -418,8 +484,48 @@ struct Part {
 struct PartRows {
     columns: Vec<Builder>,
     lines: Vec<usize>,
+    /// The part's scratch, for the next part.
+    scratch: Scratch,
     /// The latest record read.
     last: Option<RecordStart>,
+}
+
+/// Buffers a part is read into, handed from part to part so that each batch of parts after
+/// the first reuses the memory of the one before rather than having fresh pages mapped and
+/// cleared by the kernel. Their contents are cleared before use.
+#[derive(Debug, Default)]
+struct Buffers {
+    numbers: Vec<Vec<f64>>,
+    texts: Vec<TextValues>,
+    lines: Vec<usize>,
+    scratch: Scratch,
+}
+
+/// A part's working space for splitting: the field spans, copied-out quoted fields and
+/// record starts of one block.
+#[derive(Debug, Default)]
+struct Scratch {
+    spans: Vec<(usize, usize)>,
+    side: Vec<u8>,
+    starts: Vec<RecordStart>,
+}
+
+impl Buffers {
+    /// The buffers of a part that has been merged, for another part.
+    fn recycle(rows: PartRows) -> Self {
+        let mut b = Buffers {
+            lines: rows.lines,
+            scratch: rows.scratch,
+            ..Buffers::default()
+        };
+        for c in rows.columns {
+            match c {
+                Builder::Numeric { values, .. } => b.numbers.push(values),
+                Builder::Text { values, .. } => b.texts.push(values),
+            }
+        }
+        b
+    }
 }
 
 /// Why a part could not be read, and the record where that showed.
@@ -446,25 +552,37 @@ fn read_part(
     markers: &[&[u8]],
     names: &[String],
     text: &[bool],
+    buffers: Buffers,
 ) -> Result<PartRows, PartError> {
+    let Buffers {
+        mut numbers,
+        mut texts,
+        mut lines,
+        scratch,
+    } = buffers;
     let width = names.len();
     let rows = part.rows_bound;
     let mut columns: Vec<Builder> = text
         .iter()
         .map(|&t| {
             if t {
-                Builder::text(rows)
+                Builder::text(texts.pop().unwrap_or_default(), rows)
             } else {
-                Builder::numeric(rows)
+                Builder::numeric(numbers.pop().unwrap_or_default(), rows)
             }
         })
         .collect();
-    let mut lines = Vec::with_capacity(rows);
+    lines.clear();
+    lines.reserve(rows);
     let mut split = Splitter::new(body, part.start, part.end, part.line, delimiter);
     let block_rows = BLOCK_ROWS.min(rows);
-    let mut spans: Vec<(usize, usize)> = Vec::with_capacity(block_rows.saturating_mul(width));
-    let mut side = Vec::new();
-    let mut starts: Vec<RecordStart> = Vec::with_capacity(block_rows);
+    let Scratch {
+        mut spans,
+        mut side,
+        mut starts,
+    } = scratch;
+    spans.reserve(block_rows.saturating_mul(width));
+    starts.reserve(block_rows);
     let mut last = None;
     loop {
         spans.clear();
@@ -507,17 +625,14 @@ fn read_part(
         let mut bad_cell: Option<(usize, LoadError)> = None;
         for (j, (b, name)) in columns.iter_mut().zip(names).enumerate() {
             let limit = bad_cell.as_ref().map_or(starts.len(), |(r, _)| *r);
-            let cells = spans.iter().skip(j).step_by(width.max(1));
-            for (r, (span, at)) in cells.zip(&starts).take(limit).enumerate() {
-                let place = Place {
-                    line: at.line,
-                    column: j + 1,
-                    name,
-                };
-                if let Err(e) = b.push(span_bytes(body, &side, *span), markers, &place) {
-                    bad_cell = Some((r, e));
-                    break;
-                }
+            let cells = spans
+                .iter()
+                .skip(j)
+                .step_by(width.max(1))
+                .map(|span| span_bytes(body, &side, *span));
+            let cell_lines = starts.iter().take(limit).map(|s| s.line);
+            if let Err(e) = b.push_cells(cells.zip(cell_lines), markers, j + 1, name) {
+                bad_cell = Some(e);
             }
         }
         if let Some((r, error)) = bad_cell {
@@ -535,6 +650,11 @@ fn read_part(
     Ok(PartRows {
         columns,
         lines,
+        scratch: Scratch {
+            spans,
+            side,
+            starts,
+        },
         last,
     })
 }
@@ -672,6 +792,8 @@ fn read_rows(
         .collect();
     let mut row_numbers: Vec<usize> = Vec::with_capacity(rows_bound);
     let mut refills = Vec::new();
+    // The buffers of the batch merged last, for the next.
+    let mut spare: Vec<Buffers> = Vec::with_capacity(BATCH_PARTS);
     let mut first = 0;
     while first < parts.len() {
         let upto = first.saturating_add(BATCH_PARTS).min(parts.len());
@@ -680,9 +802,25 @@ fn read_rows(
             .map(|c| matches!(c, Merged::Text { .. }))
             .collect();
         let batch = parts.get(first..upto).unwrap_or_default();
-        let read: Vec<Result<PartRows, PartError>> = crate::parallel::map(batch, |p| {
-            read_part(body, p, delimiter, markers, &names, &text)
+        let jobs: Vec<(&Part, Mutex<Buffers>)> = batch
+            .iter()
+            .map(|p| (p, Mutex::new(spare.pop().unwrap_or_default())))
+            .collect();
+        let read: Vec<Result<PartRows, PartError>> = crate::parallel::map(&jobs, |(p, b)| {
+            // The lock is never contended (one job per part); a poisoned one gives fresh
+            // buffers.
+            let buffers = b.lock().map(|mut b| std::mem::take(&mut *b));
+            read_part(
+                body,
+                p,
+                delimiter,
+                markers,
+                &names,
+                &text,
+                buffers.unwrap_or_default(),
+            )
         });
+        drop(jobs);
         for (k, result) in (first..upto).zip(read) {
             let rows = match result {
                 Ok(rows) => rows,
@@ -700,8 +838,12 @@ fn read_rows(
                 p.first_row = done;
                 p.n_rows = n;
             }
-            for (j, ((whole, part), name)) in
-                columns.iter_mut().zip(rows.columns).zip(&names).enumerate()
+            let mut rows = rows;
+            for (j, ((whole, part), name)) in columns
+                .iter_mut()
+                .zip(rows.columns.iter_mut())
+                .zip(&names)
+                .enumerate()
             {
                 merge_column(
                     whole,
@@ -715,6 +857,7 @@ fn read_rows(
                 )?;
             }
             row_numbers.extend_from_slice(&rows.lines);
+            spare.push(Buffers::recycle(rows));
         }
         first = upto;
     }
@@ -736,7 +879,7 @@ fn read_rows(
 #[allow(clippy::too_many_arguments)]
 fn merge_column(
     whole: &mut Merged,
-    part: Builder,
+    part: &mut Builder,
     lines: &[usize],
     name: &str,
     at: (usize, usize),
@@ -759,11 +902,11 @@ fn merge_column(
                 scan: s,
             },
         ) => {
-            values.extend_from_slice(&v);
+            values.extend_from_slice(v);
             if refused.is_none() {
-                *refused = r;
+                *refused = r.take();
             }
-            scan.then(&s);
+            scan.then(s);
         }
         (Merged::Text { values, .. }, Builder::Numeric { values: v, .. }) => {
             values.push_missing(v.len());
@@ -783,12 +926,12 @@ fn merge_column(
                 ..
             },
         ) => {
-            append_texts(values, index, &v, lines, name)?;
-            if refill_upto > 0 {
+            append_texts(values, index, v, lines, name)?;
+            if *refill_upto > 0 {
                 refills.push(Refill {
                     part: k,
                     column,
-                    rows: refill_upto,
+                    rows: *refill_upto,
                 });
             }
         }
@@ -804,7 +947,7 @@ fn merge_column(
             let mut values = TextValues::with_capacity(room);
             let mut index = Index::default();
             values.push_missing(done);
-            append_texts(&mut values, &mut index, &v, lines, name)?;
+            append_texts(&mut values, &mut index, v, lines, name)?;
             refills.extend(
                 parts
                     .iter()
@@ -817,11 +960,11 @@ fn merge_column(
                         rows: p.n_rows,
                     }),
             );
-            if refill_upto > 0 {
+            if *refill_upto > 0 {
                 refills.push(Refill {
                     part: k,
                     column,
-                    rows: refill_upto,
+                    rows: *refill_upto,
                 });
             }
             *whole = Merged::Text { values, index };

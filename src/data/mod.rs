@@ -8,6 +8,7 @@ mod intern;
 mod load;
 mod number;
 mod split;
+mod swar;
 
 #[cfg(test)]
 mod load_tests;
@@ -168,6 +169,14 @@ impl TextValues {
             ends: Vec::new(),
             codes: Vec::with_capacity(rows),
         }
+    }
+
+    /// Empties the column, keeping its memory, with room for `rows` rows.
+    pub(crate) fn clear(&mut self, rows: usize) {
+        self.text.clear();
+        self.ends.clear();
+        self.codes.clear();
+        self.codes.reserve(rows);
     }
 
     /// Appends a row by the code of its text; the caller keeps codes below

@@ -122,7 +122,7 @@ impl Specials {
     }
 
     /// The first special byte in `body[pos..end]`.
-    #[inline]
+    #[inline(always)]
     fn next_from(&mut self, body: &[u8], pos: usize, end: usize) -> Option<usize> {
         match pos.checked_sub(self.block) {
             Some(d) if d < 64 => self.mask &= u64::MAX << d,
