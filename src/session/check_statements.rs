@@ -176,6 +176,17 @@ fn row(check: String, statistic: Cell, df: Cell, p: Cell, verdict: String) -> Ve
     vec![check.into(), statistic, df, p, verdict.into()]
 }
 
+/// A row of the check table for a check that could not be made, saying why.
+fn not_tested(check: &str, why: impl std::fmt::Display) -> Vec<Cell> {
+    row(
+        check.to_string(),
+        Cell::Missing,
+        Cell::Missing,
+        Cell::Missing,
+        format!("not tested: {why}"),
+    )
+}
+
 /// "2, 26" for an F test's degrees of freedom.
 fn df_text(df1: usize, df2: usize) -> Cell {
     Cell::Text(format!("{df1}, {df2}"))
@@ -198,19 +209,13 @@ fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
             };
             row(check, sw.w.into(), Cell::Missing, sw.p.into(), verdict)
         }
-        Err(StatsError::SampleSizeOutOfRange { n, min, max }) if n > max => {
-            let verdict = format!(
-                "not tested: the Shapiro-Wilk p-value is calibrated for {min} to {max} residuals and this model has {n} (with so many, any test flags harmless departures); judge the shape from the normal quantile figure (`plot quantiles {model}`)"
-            );
-            row(check, Cell::Missing, Cell::Missing, Cell::Missing, verdict)
-        }
-        Err(e) => row(
-            check,
-            Cell::Missing,
-            Cell::Missing,
-            Cell::Missing,
-            format!("not tested: {e}"),
+        Err(StatsError::SampleSizeOutOfRange { n, min, max }) if n > max => not_tested(
+            &check,
+            format!(
+                "the Shapiro-Wilk p-value is calibrated for {min} to {max} residuals and this model has {n} (with so many, any test flags harmless departures); judge the shape from the normal quantile figure (`plot quantiles {model}`)"
+            ),
         ),
+        Err(e) => not_tested(&check, e),
     }
 }
 
@@ -242,13 +247,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> 
             let df = Cell::Text(format!("{:.0}, {:.0}", bf.df1, bf.df2));
             row(check, bf.f.into(), df, bf.p.into(), verdict)
         }
-        Err(e) => row(
-            check,
-            Cell::Missing,
-            Cell::Missing,
-            Cell::Missing,
-            format!("not tested: {e}"),
-        ),
+        Err(e) => not_tested(&check, e),
     }
 }
 
@@ -263,15 +262,7 @@ fn slopes_row(
 ) -> Option<Vec<Cell>> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("equal slopes of {xname} across {fname}");
-    let not_tested = |why: String| {
-        row(
-            check.clone(),
-            Cell::Missing,
-            Cell::Missing,
-            Cell::Missing,
-            format!("not tested: {why}"),
-        )
-    };
+    let not_tested = |why: String| not_tested(&check, why);
     match fit.slopes_among(Some(xname), fname, SLOPES_LEVEL, known) {
         Ok(s) if !s.refitted => None,
         Ok(s) if s.df1 == 0 || !s.equality_f.is_finite() => Some(not_tested(format!(
@@ -304,15 +295,7 @@ fn slopes_row(
 fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &[usize]) -> Vec<Cell> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
-    let not_tested = |why: String| {
-        row(
-            check.clone(),
-            Cell::Missing,
-            Cell::Missing,
-            Cell::Missing,
-            format!("not tested: {why}"),
-        )
-    };
+    let not_tested = |why: String| not_tested(&check, why);
     let (codes, levels) = factor_parts(spec, f);
     let values: &[f64] = match spec.vars.get(x) {
         Some(Var::Numeric { values, .. }) => values,
