@@ -20,7 +20,7 @@ pub(crate) enum Scheme {
 }
 
 /// One factor of a column.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Eq, PartialOrd, Ord)]
 pub(crate) enum ColPart {
     /// A numeric variable through a transform.
     Numeric { var: usize, transform: Transform },

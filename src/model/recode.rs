@@ -122,7 +122,7 @@ fn grid(spec: &ModelSpec, lay: &Layout, a: &[Column], b: &[Column]) -> Option<Ve
                     .filter(|p| matches!(p, design::ColPart::Numeric { var, .. } if *var == v))
                     .cloned()
                     .collect();
-                f.sort_by_key(|p| format!("{p:?}"));
+                f.sort();
                 if !forms.contains(&f) {
                     forms.push(f);
                 }
