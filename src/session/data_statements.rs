@@ -11,6 +11,9 @@ use crate::report::{Cell, Column as Col, Format, InputRecord, Item, Table};
 /// Rows that `show` lists.
 const PREVIEW_ROWS: usize = 8;
 
+/// Files above this size are fingerprinted on another thread while they are read.
+const LARGE_FILE_BYTES: usize = 1 << 20;
+
 impl Session<'_> {
     pub(super) fn load(
         &mut self,
@@ -43,11 +46,20 @@ impl Session<'_> {
             delimiter,
             missing: self.missing_markers.clone(),
         };
-        let set = data::read_delimited(&bytes, &opts).map_err(|e| {
+        // The fingerprint is taken on another thread while the file is read (large files only:
+        // a small one is not worth waking the pool for).
+        let (set, sha) = if bytes.len() > LARGE_FILE_BYTES {
+            rayon::join(
+                || data::read_delimited(&bytes, &opts),
+                || data::sha256_hex(&bytes),
+            )
+        } else {
+            (data::read_delimited(&bytes, &opts), data::sha256_hex(&bytes))
+        };
+        let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
                 .label("while reading this file")
         })?;
-        let sha = data::sha256_hex(&bytes);
         let record = InputRecord {
             path: path.value.clone(),
             sha256: sha.clone(),
