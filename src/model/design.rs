@@ -275,6 +275,10 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
     // Transform domains.
     for (ti, term) in spec.terms.iter().enumerate() {
         for p in &term.parts {
+            // Only the logarithm and the square root have a restricted domain.
+            if !matches!(p.transform, Transform::Log | Transform::Sqrt) {
+                continue;
+            }
             if let Some(Var::Numeric { name, values }) = spec.vars.get(p.var) {
                 for &i in &used {
                     let x = values.get(i).copied().unwrap_or(f64::NAN);
