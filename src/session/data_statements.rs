@@ -54,7 +54,10 @@ impl Session<'_> {
                 || data::sha256_hex(&bytes),
             )
         } else {
-            (data::read_delimited(&bytes, &opts), data::sha256_hex(&bytes))
+            (
+                data::read_delimited(&bytes, &opts),
+                data::sha256_hex(&bytes),
+            )
         };
         let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
