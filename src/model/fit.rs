@@ -723,15 +723,6 @@ impl Fit {
         self.rss
     }
 
-    /// Data-file line of each fitted row.
-    pub fn row_numbers(&self) -> Vec<usize> {
-        self.lay
-            .used
-            .iter()
-            .map(|&i| self.spec.row_numbers.get(i).copied().unwrap_or(i))
-            .collect()
-    }
-
     /// The data-file line of the k-th fitted row (in the order of [`Fit::diagnostics`]).
     pub fn row_number(&self, k: usize) -> Option<usize> {
         let i = *self.lay.used.get(k)?;

@@ -39,28 +39,30 @@ pub struct Session<'w> {
     units: Vec<(String, String)>,
     /// Columns of the data sets as models hold them, one shared copy each, made on first use
     /// and forgotten by every statement that changes a data set.
-    shared: RefCell<Vec<(SharedKey, Shared)>>,
+    shared: RefCell<SharedColumns>,
 }
 
-/// Which column of which data set a shared copy is of.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum SharedKey {
-    /// Numeric values of (data set, column).
-    Values(usize, usize),
-    /// The exact-offset residuals of (data set, column).
-    Exact(usize, usize),
-    /// Factor codes of (data set, column).
-    Codes(usize, usize),
-    /// Data-file line of each row of a data set.
-    Rows(usize),
+/// Shared copies of data-set columns, by (data set, column).
+#[derive(Default)]
+struct SharedColumns {
+    /// Numeric values; `true` in the key for a column's exact-offset residuals.
+    values: Vec<Shared<(usize, usize, bool), f64>>,
+    codes: Vec<Shared<(usize, usize), Option<u32>>>,
+    /// Data-file line of each row, by data set.
+    rows: Vec<Shared<usize, usize>>,
 }
 
-/// A shared copy of a column.
-#[derive(Clone)]
-enum Shared {
-    Values(Arc<[f64]>),
-    Codes(Arc<[Option<u32>]>),
-    Rows(Arc<[usize]>),
+/// One shared copy and its key.
+type Shared<K, T> = (K, Arc<[T]>);
+
+/// The copy under `key` in `list`, made from `data` the first time it is asked for.
+fn share<K: PartialEq, T: Clone>(list: &mut Vec<Shared<K, T>>, key: K, data: &[T]) -> Arc<[T]> {
+    if let Some((_, v)) = list.iter().find(|(k, _)| *k == key) {
+        return Arc::clone(v);
+    }
+    let v: Arc<[T]> = data.into();
+    list.push((key, Arc::clone(&v)));
+    v
 }
 
 type Outcome = Result<Vec<Item>, Diagnostic>;
@@ -76,7 +78,7 @@ impl<'w> Session<'w> {
             models: Vec::new(),
             inputs: Vec::new(),
             units: Vec::new(),
-            shared: RefCell::new(Vec::new()),
+            shared: RefCell::default(),
         }
     }
 
@@ -94,7 +96,7 @@ impl<'w> Session<'w> {
                 | StatementKind::Factor { .. }
                 | StatementKind::Keep { .. }
         ) {
-            self.shared.borrow_mut().clear();
+            *self.shared.borrow_mut() = SharedColumns::default();
         }
         match &stmt.kind {
             StatementKind::Load { path, name } => self.load(path, name.as_ref()),
@@ -155,43 +157,24 @@ impl<'w> Session<'w> {
             .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
     }
 
-    /// A shared copy of a column for a model, made by `make` the first time it is asked for.
-    fn shared(&self, key: SharedKey, make: impl FnOnce() -> Shared) -> Shared {
-        if let Some((_, v)) = self.shared.borrow().iter().find(|(k, _)| *k == key) {
-            return v.clone();
-        }
-        let v = make();
-        self.shared.borrow_mut().push((key, v.clone()));
-        v
-    }
-
-    /// The shared numeric values of column `c` of data set `set`.
+    /// The shared numeric values of column `c` of data set `set` (`exact`: its exact-offset
+    /// residuals).
     fn shared_values(&self, set: usize, c: usize, exact: bool, values: &[f64]) -> Arc<[f64]> {
-        let key = if exact {
-            SharedKey::Exact(set, c)
-        } else {
-            SharedKey::Values(set, c)
-        };
-        match self.shared(key, || Shared::Values(values.into())) {
-            Shared::Values(v) => v,
-            _ => values.into(),
-        }
+        share(
+            &mut self.shared.borrow_mut().values,
+            (set, c, exact),
+            values,
+        )
     }
 
     /// The shared factor codes of column `c` of data set `set`.
     fn shared_codes(&self, set: usize, c: usize, codes: &[Option<u32>]) -> Arc<[Option<u32>]> {
-        match self.shared(SharedKey::Codes(set, c), || Shared::Codes(codes.into())) {
-            Shared::Codes(v) => v,
-            _ => codes.into(),
-        }
+        share(&mut self.shared.borrow_mut().codes, (set, c), codes)
     }
 
     /// The shared data-file lines of data set `set`.
     fn shared_rows(&self, set: usize, rows: &[usize]) -> Arc<[usize]> {
-        match self.shared(SharedKey::Rows(set), || Shared::Rows(rows.into())) {
-            Shared::Rows(v) => v,
-            _ => rows.into(),
-        }
+        share(&mut self.shared.borrow_mut().rows, set, rows)
     }
 
     /// The unit declared for a column, if any.
