@@ -821,44 +821,57 @@ fn read_rows(
             )
         });
         drop(jobs);
+        // The parts read, up to the first that failed.
+        let mut batch_rows: Vec<(usize, PartRows)> = Vec::with_capacity(read.len());
+        let mut failed = None;
         for (k, result) in (first..upto).zip(read) {
-            let rows = match result {
-                Ok(rows) => rows,
+            match result {
+                Ok(rows) => batch_rows.push((k, rows)),
                 Err(e) => {
-                    *last = e.at;
-                    return Err(e.error);
+                    failed = Some(e);
+                    break;
                 }
-            };
+            }
+        }
+        let mut done = row_numbers.len();
+        for (k, rows) in &batch_rows {
+            if let Some(p) = parts.get_mut(*k) {
+                p.first_row = done;
+                p.n_rows = rows.lines.len();
+            }
+            done += rows.lines.len();
+        }
+        let merged = merge_batch(
+            &mut columns,
+            &mut row_numbers,
+            &mut batch_rows,
+            &names,
+            &parts,
+            rows_bound,
+        );
+        if let Err((k, error)) = merged {
+            // The latest record read is the last of the parts up to the one that failed.
+            if let Some(at) = batch_rows
+                .iter()
+                .take_while(|(i, _)| *i <= k)
+                .filter_map(|(_, rows)| rows.last)
+                .last()
+            {
+                *last = at;
+            }
+            return Err(error);
+        }
+        for (_, rows) in batch_rows {
             if let Some(at) = rows.last {
                 *last = at;
             }
-            let done = row_numbers.len();
-            let n = rows.lines.len();
-            if let Some(p) = parts.get_mut(k) {
-                p.first_row = done;
-                p.n_rows = n;
-            }
-            let mut rows = rows;
-            for (j, ((whole, part), name)) in columns
-                .iter_mut()
-                .zip(rows.columns.iter_mut())
-                .zip(&names)
-                .enumerate()
-            {
-                merge_column(
-                    whole,
-                    part,
-                    &rows.lines,
-                    name,
-                    (k, j),
-                    (done, rows_bound),
-                    &parts,
-                    &mut refills,
-                )?;
-            }
-            row_numbers.extend_from_slice(&rows.lines);
             spare.push(Buffers::recycle(rows));
         }
+        if let Some(e) = failed {
+            *last = e.at;
+            return Err(e.error);
+        }
+        refills.extend(merged.unwrap_or_default());
         first = upto;
     }
     if row_numbers.is_empty() {
@@ -872,6 +885,101 @@ fn read_rows(
         refills,
         data,
     })
+}
+
+/// Rows of a batch below which its columns are merged on this thread: waking the pool costs
+/// more than merging so few.
+const PARALLEL_MERGE_ROWS: usize = 1 << 14;
+
+/// Appends the columns of a batch of parts (each with its index) to the whole columns, one
+/// column per task: a column's parts go in file order, and the columns are independent. The
+/// parts' lines go to `row_numbers` meanwhile (unless a column fails). On failure, the
+/// earliest error in (part, column) order with its part; else the rows that need their text
+/// put back.
+fn merge_batch(
+    columns: &mut [Merged],
+    row_numbers: &mut Vec<usize>,
+    batch: &mut [(usize, PartRows)],
+    names: &[String],
+    parts: &[Part],
+    rows_bound: usize,
+) -> Result<Vec<Refill>, (usize, LoadError)> {
+    use rayon::prelude::*;
+    let n_rows: usize = batch.iter().map(|(_, rows)| rows.lines.len()).sum();
+    // Column j of every part, in part order, beside each part's index and lines.
+    let mut per_column: Vec<Vec<&mut Builder>> = columns.iter().map(|_| Vec::new()).collect();
+    let mut lines: Vec<(usize, &[usize])> = Vec::with_capacity(batch.len());
+    for (k, rows) in batch.iter_mut() {
+        lines.push((*k, &rows.lines));
+        for (slot, b) in per_column.iter_mut().zip(rows.columns.iter_mut()) {
+            slot.push(b);
+        }
+    }
+    let merge_one =
+        |(j, ((whole, builders), name)): (usize, ((&mut Merged, Vec<&mut Builder>), &String))| {
+            let mut refills = Vec::new();
+            for (&(k, part_lines), b) in lines.iter().zip(builders) {
+                let done = parts.get(k).map_or(0, |p| p.first_row);
+                merge_column(
+                    whole,
+                    b,
+                    part_lines,
+                    name,
+                    (k, j),
+                    (done, rows_bound),
+                    parts,
+                    &mut refills,
+                )
+                .map_err(|e| (k, j, e))?;
+            }
+            Ok(refills)
+        };
+    let append_lines = |row_numbers: &mut Vec<usize>| {
+        for (_, part_lines) in &lines {
+            row_numbers.extend_from_slice(part_lines);
+        }
+    };
+    let results: Vec<Result<Vec<Refill>, (usize, usize, LoadError)>> =
+        if n_rows >= PARALLEL_MERGE_ROWS {
+            let (results, ()) = rayon::join(
+                || {
+                    columns
+                        .par_iter_mut()
+                        .zip(per_column.into_par_iter())
+                        .zip(names.par_iter())
+                        .enumerate()
+                        .map(merge_one)
+                        .collect()
+                },
+                || append_lines(row_numbers),
+            );
+            results
+        } else {
+            append_lines(row_numbers);
+            columns
+                .iter_mut()
+                .zip(per_column)
+                .zip(names)
+                .enumerate()
+                .map(merge_one)
+                .collect()
+        };
+    let mut refills = Vec::new();
+    let mut first_error: Option<(usize, usize, LoadError)> = None;
+    for result in results {
+        match result {
+            Ok(r) => refills.extend(r),
+            Err(e) => {
+                if first_error.as_ref().is_none_or(|f| (e.0, e.1) < (f.0, f.1)) {
+                    first_error = Some(e);
+                }
+            }
+        }
+    }
+    match first_error {
+        Some((k, _, error)) => Err((k, error)),
+        None => Ok(refills),
+    }
 }
 
 /// Appends column `at.1` of part `at.0` to its whole column; `rows` is (rows before the part,
