@@ -81,6 +81,16 @@ fn check_nul(body: &[u8]) -> Result<(), LoadError> {
     Ok(())
 }
 
+/// The most bytes a record's raw text can span given its fields' contents and count (see
+/// [`check_record_length`]).
+#[inline]
+fn record_bound(content: usize, n_fields: usize) -> usize {
+    content
+        .saturating_mul(2)
+        .saturating_add(n_fields.saturating_mul(3))
+        .saturating_add(2)
+}
+
 /// Refuses a record whose text may hold a line longer than [`MAX_LINE_BYTES`].
 ///
 /// A record's raw text is at most twice its unquoted content (`content` bytes, escaped
@@ -94,10 +104,7 @@ fn check_record_length(
     start: usize,
     first_line: usize,
 ) -> Result<(), LoadError> {
-    let bound = content
-        .saturating_mul(2)
-        .saturating_add(n_fields.saturating_mul(3))
-        .saturating_add(2);
+    let bound = record_bound(content, n_fields);
     if bound <= MAX_LINE_BYTES {
         return Ok(());
     }
@@ -289,55 +296,64 @@ impl Builder {
         }
     }
 
-    /// Types a run of cells (each with its line) of column `column`, named `name`; on a bad
-    /// cell, its index in the run and the error.
+    /// Types column `j` (named `name`) of the first `limit` rows of a block; on a bad cell, its
+    /// row in the block and the error.
     ///
     /// Runs of ordinary cells (plain short numbers the exact scan has nothing to learn from,
     /// in a numeric column; texts already seen, in a text column) are typed in a loop of
     /// their own, which needs no [`Place`] and no match on the column's kind per cell; any
     /// other cell goes through [`Builder::push`].
-    fn push_cells<'c>(
+    fn push_cells(
         &mut self,
-        cells: impl Iterator<Item = (&'c [u8], usize)>,
+        block: &BlockCells<'_>,
+        j: usize,
+        limit: usize,
         markers: &[&[u8]],
-        column: usize,
         name: &str,
     ) -> Result<(), (usize, LoadError)> {
-        let mut cells = cells.enumerate().peekable();
+        let mut r = 0;
+        // Markers are compared only when there are any.
+        let marked = |cell: &[u8]| !markers.is_empty() && markers.contains(&cell);
         loop {
             match self {
                 Builder::Numeric { values, scan, .. } => {
-                    while let Some((_, (raw, _))) = cells.peek() {
-                        let cell = trim_bytes(raw);
+                    while r < limit {
+                        let cell = trim_bytes(block.cell(r, j));
                         let Some((v, digits)) = fast_decimal(cell) else {
                             break;
                         };
-                        if scan.wants_plain(digits) || markers.contains(&cell) {
+                        if scan.wants_plain(digits) || marked(cell) {
                             break;
                         }
                         values.push(v);
-                        cells.next();
+                        r += 1;
                     }
                 }
                 Builder::Text { values, index, .. } => {
-                    while let Some((_, (raw, _))) = cells.peek() {
-                        let cell = trim_bytes(raw);
-                        if cell.is_empty() || markers.contains(&cell) {
+                    while r < limit {
+                        let cell = trim_bytes(block.cell(r, j));
+                        if cell.is_empty() || marked(cell) {
                             break;
                         }
                         let Some(code) = index.find(values, cell) else {
                             break;
                         };
                         values.push_code(code);
-                        cells.next();
+                        r += 1;
                     }
                 }
             }
-            let Some((r, (raw, line))) = cells.next() else {
+            if r >= limit {
                 return Ok(());
+            }
+            let at = Place {
+                line: block.starts.get(r).map_or(0, |s| s.line),
+                column: j + 1,
+                name,
             };
-            let at = Place { line, column, name };
-            self.push(raw, markers, &at).map_err(|e| (r, e))?;
+            self.push(block.cell(r, j), markers, &at)
+                .map_err(|e| (r, e))?;
+            r += 1;
         }
     }
 
@@ -528,6 +544,26 @@ impl Buffers {
     }
 }
 
+/// The cells of a block of records as split: row `r`'s fields are `spans[r * width..]`.
+struct BlockCells<'a> {
+    body: &'a [u8],
+    side: &'a [u8],
+    spans: &'a [(usize, usize)],
+    width: usize,
+    starts: &'a [RecordStart],
+}
+
+impl BlockCells<'_> {
+    /// The bytes of row `r`, column `j` (empty when out of range).
+    #[inline(always)]
+    fn cell(&self, r: usize, j: usize) -> &[u8] {
+        match self.spans.get(r * self.width + j) {
+            Some(span) => span_bytes(self.body, self.side, *span),
+            None => &[],
+        }
+    }
+}
+
 /// Why a part could not be read, and the record where that showed.
 struct PartError {
     error: LoadError,
@@ -597,9 +633,15 @@ fn read_part(
                 break;
             };
             last = Some(at);
-            let fields = spans.get(before..).unwrap_or_default();
-            let content = fields.iter().map(|s| span_len(*s)).sum();
-            let n = fields.len();
+            let n = spans.len() - before;
+            // The record's bytes bound its fields' contents, so a short record needs no sum.
+            let raw = split.pos().saturating_sub(at.offset);
+            let content = if record_bound(raw, n) <= MAX_LINE_BYTES {
+                raw
+            } else {
+                let fields = spans.get(before..).unwrap_or_default();
+                fields.iter().map(|s| span_len(*s)).sum()
+            };
             let checked =
                 check_record_length(body, content, n, at.offset, at.line).and_then(|()| {
                     if n == width {
@@ -623,15 +665,16 @@ fn read_part(
         }
         // The earliest bad cell: (row in the block, error).
         let mut bad_cell: Option<(usize, LoadError)> = None;
+        let block = BlockCells {
+            body,
+            side: &side,
+            spans: &spans,
+            width,
+            starts: &starts,
+        };
         for (j, (b, name)) in columns.iter_mut().zip(names).enumerate() {
             let limit = bad_cell.as_ref().map_or(starts.len(), |(r, _)| *r);
-            let cells = spans
-                .iter()
-                .skip(j)
-                .step_by(width.max(1))
-                .map(|span| span_bytes(body, &side, *span));
-            let cell_lines = starts.iter().take(limit).map(|s| s.line);
-            if let Err(e) = b.push_cells(cells.zip(cell_lines), markers, j + 1, name) {
+            if let Err(e) = b.push_cells(&block, j, limit, markers, name) {
                 bad_cell = Some(e);
             }
         }
