@@ -188,6 +188,20 @@ const EXACT_INTEGER_LIMIT: u64 = 1 << 53;
 /// integer below 10^19, which a `u64` holds without overflow.
 const FAST_DECIMAL_BYTES: usize = 19;
 
+/// 2^52 as an `f64`: its bits with any integer below 2^52 in the low bits are 2^52 plus
+/// that integer, exactly.
+const TWO_52: f64 = 4_503_599_627_370_496.0;
+
+/// `m as f64` for `m < 2^52`, exactly, by writing `m` into the mantissa of 2^52 and taking
+/// 2^52 away (both steps exact). The same value as the conversion instruction, which, in
+/// the typing loop, the compiler left waiting on the previous cell's division (the
+/// instruction keeps the upper bits of its target register); the bit move does not.
+#[inline(always)]
+fn small_to_f64(m: u64) -> f64 {
+    debug_assert!(m < 1 << 52);
+    f64::from_bits(TWO_52.to_bits() | m) - TWO_52
+}
+
 /// Fast path for a plain decimal cell (optional sign, digits, optional point, at least one
 /// digit, no exponent) whose digits form an integer `m < 2^53` with at most 22 digits after
 /// the point: the value is `m / 10^d` with both operands exact, so the one division is
@@ -204,8 +218,8 @@ fn fast_decimal(cell: &[u8]) -> Option<(f64, usize)> {
         _ => (false, cell),
     };
     if let Some((m, frac, count)) = swar::short_decimal(text) {
-        // m < 10^8 < 2^53, so the conversion is exact.
-        let v = m as f64 / *EXACT_POWERS_OF_TEN.get(frac)?;
+        // m < 10^8 < 2^52, so the conversion is exact.
+        let v = small_to_f64(m) / *EXACT_POWERS_OF_TEN.get(frac)?;
         return Some((if negative { -v } else { v }, count));
     }
     if text.len() > FAST_DECIMAL_BYTES {
@@ -1373,4 +1387,25 @@ fn exact_pass(
             _ => None,
         })
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use proptest::prelude::*;
+
+    use super::small_to_f64;
+
+    #[test]
+    fn small_to_f64_at_the_ends() {
+        for m in [0, 1, 2, 99_999_999, (1 << 52) - 1, (1 << 52) - 2, 1 << 51] {
+            assert_eq!(small_to_f64(m).to_bits(), (m as f64).to_bits(), "{m}");
+        }
+    }
+
+    proptest! {
+        #[test]
+        fn small_to_f64_is_the_conversion(m in 0u64..(1 << 52)) {
+            prop_assert_eq!(small_to_f64(m).to_bits(), (m as f64).to_bits());
+        }
+    }
 }
