@@ -595,6 +595,8 @@ const BLOCK_ROWS: usize = 4096;
 /// one run. The error reported is the one reading row by row would meet first: the earliest
 /// row with a bad record or cell, and in that row a bad record before a bad cell, and the
 /// leftmost bad cell.
+pub static SPLIT_NS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+pub static TYPE_NS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
 fn read_part(
     body: &[u8],
     part: &Part,
@@ -641,6 +643,7 @@ fn read_part(
         // A bad record ends the part; the cells before it are still typed, since one of them
         // may be bad too (and come first).
         let mut bad_record = None;
+        let ts = std::time::Instant::now();
         while starts.len() < BLOCK_ROWS {
             let before = spans.len();
             let Some(at) = split.split_record(&mut spans, &mut side) else {
@@ -677,6 +680,11 @@ fn read_part(
         if starts.is_empty() && bad_record.is_none() {
             break;
         }
+        SPLIT_NS.fetch_add(
+            ts.elapsed().as_nanos() as u64,
+            std::sync::atomic::Ordering::Relaxed,
+        );
+        let tt = std::time::Instant::now();
         // The earliest bad cell: (row in the block, error).
         let mut bad_cell: Option<(usize, LoadError)> = None;
         let block = BlockCells {
@@ -692,6 +700,10 @@ fn read_part(
                 bad_cell = Some(e);
             }
         }
+        TYPE_NS.fetch_add(
+            tt.elapsed().as_nanos() as u64,
+            std::sync::atomic::Ordering::Relaxed,
+        );
         if let Some((r, error)) = bad_cell {
             let at = starts.get(r).copied().unwrap_or(RecordStart {
                 offset: part.start,
@@ -814,6 +826,7 @@ fn read_rows(
     let width = names.len();
     let data = (split.pos(), split.line());
 
+    let t0 = std::time::Instant::now();
     let starts = chunk_starts(body, data.0, delimiter, part_bytes);
     let ranges: Vec<(usize, usize)> = starts
         .iter()
@@ -839,6 +852,9 @@ fn read_rows(
     // Room for every row at once (one per line break, an upper bound), so that no column
     // grows by copying.
     let rows_bound: usize = parts.iter().map(|p| p.rows_bound).sum();
+    eprintln!("T starts+lf {:?}", t0.elapsed());
+    let mut tp = std::time::Duration::ZERO;
+    let mut tm = std::time::Duration::ZERO;
 
     let mut columns: Vec<Merged> = (0..width)
         .map(|_| Merged::Numeric {
@@ -859,6 +875,7 @@ fn read_rows(
             .map(|c| matches!(c, Merged::Text { .. }))
             .collect();
         let batch = parts.get(first..upto).unwrap_or_default();
+        let t1 = std::time::Instant::now();
         let jobs: Vec<(&Part, Mutex<Buffers>)> = batch
             .iter()
             .map(|p| (p, Mutex::new(spare.pop().unwrap_or_default())))
@@ -878,6 +895,8 @@ fn read_rows(
             )
         });
         drop(jobs);
+        tp += t1.elapsed();
+        let t2 = std::time::Instant::now();
         // The parts read, up to the first that failed.
         let mut batch_rows: Vec<(usize, PartRows)> = Vec::with_capacity(read.len());
         let mut failed = None;
@@ -929,8 +948,10 @@ fn read_rows(
             return Err(e.error);
         }
         refills.extend(merged.unwrap_or_default());
+        tm += t2.elapsed();
         first = upto;
     }
+    eprintln!("T parse {:?} merge {:?}", tp, tm);
     if row_numbers.is_empty() {
         return Err(LoadError::NoDataRows { line: header.line });
     }
@@ -1199,7 +1220,9 @@ pub(super) fn read_in_parts(
     if body.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(LoadError::Empty);
     }
+    let tn = std::time::Instant::now();
     check_nul(body)?;
+    eprintln!("T nul {:?}", tn.elapsed());
     let markers: Vec<&[u8]> = opts
         .missing
         .iter()
@@ -1246,6 +1269,12 @@ pub(super) fn read_in_parts(
         });
     }
 
+    let tr = std::time::Instant::now();
+    eprintln!(
+        "T split {} ms type {} ms",
+        SPLIT_NS.load(std::sync::atomic::Ordering::Relaxed) / 1000000,
+        TYPE_NS.load(std::sync::atomic::Ordering::Relaxed) / 1000000
+    );
     refill(body, delimiter, &markers, &mut columns, &parts, &refills);
     let offsets: Vec<Option<i64>> = columns
         .iter()
@@ -1256,6 +1285,7 @@ pub(super) fn read_in_parts(
         .collect();
     let mut exact = exact_pass(body, data, delimiter, &markers, &offsets, row_numbers.len());
 
+    eprintln!("T refill+exact {:?}", tr.elapsed());
     let columns = names
         .into_iter()
         .zip(columns)

@@ -20,10 +20,13 @@ impl Session<'_> {
         path: &Spanned<String>,
         name: Option<&Spanned<String>>,
     ) -> Outcome {
+        let ta = std::time::Instant::now();
         let bytes = self
             .world
             .read(&path.value)
             .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
+        eprintln!("T read {:?}", ta.elapsed());
+        let tb = std::time::Instant::now();
         let lower = path.value.to_lowercase();
         let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
             b'\t'
@@ -59,6 +62,7 @@ impl Session<'_> {
                 data::sha256_hex(&bytes),
             )
         };
+        eprintln!("T load+sha {:?}", tb.elapsed());
         let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
                 .label("while reading this file")
@@ -80,7 +84,9 @@ impl Session<'_> {
             set.columns.len(),
             sha
         ))];
+        let tc = std::time::Instant::now();
         items.push(Item::Table(columns_table(&set, "Columns read")));
+        eprintln!("T coltable {:?}", tc.elapsed());
         if let Some(i) = self.data_sets.iter().position(|d| d.name == set_name) {
             self.data_sets[i] = set;
             self.current = Some(i);
@@ -458,6 +464,9 @@ fn summary_row(level: &str, values: impl Iterator<Item = f64>) -> Vec<crate::rep
 }
 
 /// The column types and missing counts of a data set.
+/// Rows from which a data set's columns are counted side by side.
+const PARALLEL_COUNT_ROWS: usize = 1 << 16;
+
 fn columns_table(set: &DataSet, caption: &str) -> Table {
     let mut t = Table::new(
         "columns",
@@ -469,7 +478,13 @@ fn columns_table(set: &DataSet, caption: &str) -> Table {
             Col::new("levels", "levels", Format::Text),
         ],
     );
-    for c in &set.columns {
+    // Counting the missing cells is a pass over every cell: on the pool for a large set.
+    let missing: Vec<usize> = if set.n_rows() >= PARALLEL_COUNT_ROWS {
+        crate::parallel::map(&set.columns, Column::missing_count)
+    } else {
+        set.columns.iter().map(Column::missing_count).collect()
+    };
+    for (c, missing) in set.columns.iter().zip(missing) {
         let levels = match &c.values {
             Values::Factor(f) => Cell::Text(f.levels.join(", ")),
             _ => Cell::Missing,
@@ -477,7 +492,7 @@ fn columns_table(set: &DataSet, caption: &str) -> Table {
         t.push(vec![
             c.name.as_str().into(),
             c.kind_name().into(),
-            c.missing_count().into(),
+            missing.into(),
             levels,
         ]);
     }
