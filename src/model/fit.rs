@@ -743,7 +743,8 @@ impl Fit {
     /// Row diagnostics: a second pass over the fitted rows, made once per fit. Leverage
     /// h_i = |R^-T z_i|^2; Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized
     /// residual e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
-    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2).
+    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2). The pass stores
+    /// fitted values, residuals and leverages; the other two are evaluated from them when read.
     pub fn diagnostics(&self) -> &Diagnostics {
         self.diag.get_or_init(|| self.compute_diagnostics())
     }
@@ -764,17 +765,17 @@ impl Fit {
         let mut scale: Vec<f64> = self.kept.iter().map(|&c| e.scale[c]).collect();
         centre.push(e.y_centre);
         scale.push(e.y_scale);
-        let rank = k as f64;
-        let s2 = self.sigma * self.sigma;
         let n = self.lay.used.len();
         let mut d = Diagnostics {
             fitted: vec![0.0; n],
             residuals: vec![0.0; n],
             leverage: vec![0.0; n],
-            cooks_distance: vec![0.0; n],
-            studentized: vec![0.0; n],
+            rank: k as f64,
+            s2: self.sigma * self.sigma,
+            rss: self.rss,
+            df_res: self.df_res,
         };
-        let work = |(rows, ((((fitted, res), lev), cook), stud)): Outputs<'_>| {
+        let work = |(rows, ((fitted, res), lev)): Outputs<'_>| {
             let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
             block.standardise(&centre, &scale);
             // Fitted values and residuals in the scaled coordinates, column by column.
@@ -801,38 +802,13 @@ impl Fit {
                     *h += u * u;
                 }
             }
-            for (((c, s), &h), &r) in cook
-                .iter_mut()
-                .zip(stud.iter_mut())
-                .zip(lev.iter())
-                .zip(res.iter())
-            {
-                let one_h = 1.0 - h;
-                *c = if one_h > 0.0 {
-                    r * r * h / (rank * s2 * one_h * one_h)
-                } else {
-                    f64::NAN
-                };
-                *s = if one_h > 0.0 && self.df_res > 1 {
-                    let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
-                    if s2i > 0.0 {
-                        r / (s2i.sqrt() * one_h.sqrt())
-                    } else {
-                        f64::NAN
-                    }
-                } else {
-                    f64::NAN
-                };
-            }
         };
         if n > CHUNK_ROWS {
             let outputs = d
                 .fitted
                 .par_chunks_mut(CHUNK_ROWS)
                 .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.cooks_distance.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.studentized.par_chunks_mut(CHUNK_ROWS));
+                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS));
             self.lay
                 .used
                 .par_chunks(CHUNK_ROWS)
@@ -843,14 +819,8 @@ impl Fit {
             work((
                 &self.lay.used,
                 (
-                    (
-                        (
-                            (&mut d.fitted[..], &mut d.residuals[..]),
-                            &mut d.leverage[..],
-                        ),
-                        &mut d.cooks_distance[..],
-                    ),
-                    &mut d.studentized[..],
+                    (&mut d.fitted[..], &mut d.residuals[..]),
+                    &mut d.leverage[..],
                 ),
             ));
         }
@@ -858,15 +828,63 @@ impl Fit {
     }
 }
 
-/// One block's rows and its slices of the five diagnostic outputs (fitted, residual,
-/// leverage, Cook's distance, studentized residual), nested as rayon's zip delivers them.
-type Outputs<'a> = (
-    &'a [usize],
-    (
-        (
-            ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]),
-            &'a mut [f64],
-        ),
-        &'a mut [f64],
-    ),
-);
+impl Diagnostics {
+    /// Number of fitted rows.
+    pub fn len(&self) -> usize {
+        self.leverage.len()
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.leverage.is_empty()
+    }
+
+    /// Cook's distance of the k-th fitted row; `None` beyond the last row.
+    pub fn cooks_distance(&self, k: usize) -> Option<f64> {
+        Some(self.cook(*self.residuals.get(k)?, *self.leverage.get(k)?))
+    }
+
+    /// Externally studentized residual of the k-th fitted row; `None` beyond the last row.
+    pub fn studentized(&self, k: usize) -> Option<f64> {
+        Some(self.student(*self.residuals.get(k)?, *self.leverage.get(k)?))
+    }
+
+    /// Cook's distance of every fitted row, in order.
+    pub fn cooks_distances(&self) -> impl Iterator<Item = f64> + '_ {
+        self.residuals
+            .iter()
+            .zip(&self.leverage)
+            .map(|(&r, &h)| self.cook(r, h))
+    }
+
+    /// Cook's distance e^2 h / (p s^2 (1-h)^2) of a row with residual `r` and leverage `h`;
+    /// NaN at leverage 1.
+    fn cook(&self, r: f64, h: f64) -> f64 {
+        let one_h = 1.0 - h;
+        if one_h > 0.0 {
+            r * r * h / (self.rank * self.s2 * one_h * one_h)
+        } else {
+            f64::NAN
+        }
+    }
+
+    /// Externally studentized residual e / (s_(i) sqrt(1-h)), s_(i)^2 = (RSS - e^2/(1-h)) /
+    /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined.
+    fn student(&self, r: f64, h: f64) -> f64 {
+        let one_h = 1.0 - h;
+        if one_h > 0.0 && self.df_res > 1 {
+            let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
+            if s2i > 0.0 {
+                r / (s2i.sqrt() * one_h.sqrt())
+            } else {
+                f64::NAN
+            }
+        } else {
+            f64::NAN
+        }
+    }
+}
+
+/// One block's rows and its slices of the three diagnostic outputs (fitted, residual,
+/// leverage), nested as rayon's zip delivers them.
+type Outputs<'a> = (&'a [usize], ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]));

@@ -427,6 +427,11 @@ pub struct Region {
 
 /// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1), one per
 /// fitted row in order; [`Fit::row_number`] gives each row's line in the data file.
+///
+/// Only what the pass over the design produces is stored (24 bytes a row); Cook's distance
+/// and the externally studentized residual are closed forms of a row's residual and leverage
+/// and the fit's scalars, evaluated when asked for ([`Diagnostics::cooks_distance`],
+/// [`Diagnostics::studentized`]) by the same expressions, so to the same bits.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Diagnostics {
     /// Fitted values.
@@ -435,10 +440,14 @@ pub struct Diagnostics {
     pub residuals: Vec<f64>,
     /// Leverages (hat values).
     pub leverage: Vec<f64>,
-    /// Cook's distances.
-    pub cooks_distance: Vec<f64>,
-    /// Externally studentized residuals.
-    pub studentized: Vec<f64>,
+    /// Number of estimated coefficients (p in Cook's distance).
+    pub(crate) rank: f64,
+    /// Residual variance s^2.
+    pub(crate) s2: f64,
+    /// Residual sum of squares.
+    pub(crate) rss: f64,
+    /// Residual degrees of freedom.
+    pub(crate) df_res: usize,
 }
 
 /// Something the user should know about a fit that does not stop it.

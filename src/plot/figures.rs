@@ -645,18 +645,18 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .index
         .iter()
         .map(row_line)
-        .zip(&d.cooks_distance)
+        .zip(d.cooks_distances())
         .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
             points.push(Point {
                 group: g,
                 x: r as f64,
-                y: *c,
+                y: c,
             });
         }
     }
-    let n = d.cooks_distance.len();
+    let n = d.len();
     let shown = points.len();
     let note = if shown > MAX_POINTS {
         let run = shown.div_ceil(MAX_POINTS);
@@ -676,9 +676,8 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     };
     let threshold = if n > 0 { 4.0 / n as f64 } else { 0.0 };
     let above = d
-        .cooks_distance
-        .iter()
-        .filter(|c| c.is_finite() && **c > threshold)
+        .cooks_distances()
+        .filter(|c| c.is_finite() && *c > threshold)
         .count();
     let alt = format!(
         "Cook's distance of each observation of {} by row number in the data file{}, with a horizontal line at 4/n = {}; rows above it: {} of {}{}.{}",

@@ -418,10 +418,9 @@ impl Influence {
         let flagged = (0..n)
             .filter(|&k| {
                 d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
-                    || d.cooks_distance.get(k).is_some_and(|&c| c > cook_limit)
-                    || d.studentized
-                        .get(k)
-                        .is_some_and(|&s| s.abs() > STUDENTIZED_LIMIT)
+                    || d.cooks_distance(k).is_some_and(|c| c > cook_limit)
+                    || d.studentized(k)
+                        .is_some_and(|s| s.abs() > STUDENTIZED_LIMIT)
             })
             .collect();
         Influence {
@@ -483,7 +482,7 @@ impl Influence {
         );
         let mut listed = self.flagged.clone();
         if listed.len() > MAX_LISTED {
-            let cook = |k: usize| d.cooks_distance.get(k).copied().unwrap_or(f64::NAN);
+            let cook = |k: usize| d.cooks_distance(k).unwrap_or(f64::NAN);
             // Largest Cook's distance first (NaN last), ties in row order: deterministic.
             listed.sort_by(|&a, &b| {
                 cook(b)
@@ -499,12 +498,12 @@ impl Influence {
             ));
         }
         for &k in &listed {
-            let get = |v: &[f64]| v.get(k).copied().unwrap_or(f64::NAN);
+            let nan = f64::NAN;
             t.push(vec![
                 fit.row_number(k).map_or(Cell::Missing, Cell::from),
-                get(&d.leverage).into(),
-                get(&d.cooks_distance).into(),
-                get(&d.studentized).into(),
+                d.leverage.get(k).copied().unwrap_or(nan).into(),
+                d.cooks_distance(k).unwrap_or(nan).into(),
+                d.studentized(k).unwrap_or(nan).into(),
             ]);
         }
         t.notes
