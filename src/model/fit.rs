@@ -6,7 +6,7 @@
 
 use std::sync::OnceLock;
 
-use super::design::{self, Column, Layout, Scheme};
+use super::design::{self, Column, Layout, Scheme, UsedRows};
 use rayon::prelude::*;
 
 use super::qr::{self, Mat, ALIAS_TOL, CHUNK_ROWS};
@@ -223,7 +223,7 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
                 let x: Vec<f64> = lay
                     .used
                     .iter()
-                    .map(|&i| values.get(i).copied().unwrap_or(0.0))
+                    .map(|i| values.get(i).copied().unwrap_or(0.0))
                     .collect();
                 cov_means.push((v, mean_of(&x)));
             }
@@ -297,14 +297,14 @@ pub(crate) fn build_engine(
 ) -> Result<Engine, ModelError> {
     let p = cols.len();
     let n = lay.used.len() as f64;
-    let blocks: Vec<&[usize]> = lay.used.chunks(CHUNK_ROWS).collect();
+    let blocks = lay.used.blocks(CHUNK_ROWS);
 
     // Centre and scale of each column, from the first block of rows (every row when there
     // are at most CHUNK_ROWS of them): any centre within the data's range takes the offset
     // out of a column well enough for the factorisation (the intercept absorbs the rest),
     // and it saves a pass over the rows.
-    let first = blocks.first().copied().unwrap_or(&[]);
-    let lead = Block::fill(spec, &cols, y, first).moments();
+    let first = lay.used.slice(blocks.first().cloned().unwrap_or(0..0));
+    let lead = Block::fill(spec, &cols, y, &first).moments();
     let n_lead = lead.count.max(1.0);
     let mut centre = vec![0.0; p + 1];
     let mut scale = vec![1.0; p + 1];
@@ -325,9 +325,10 @@ pub(crate) fn build_engine(
 
     // One pass: the triangular factor of each block, merged in block order, with the
     // response's moments for the zero-variance check.
-    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |rows| {
-        let mut block = Block::fill(spec, &cols, y, rows);
-        block.check_finite(spec, &cols, rows)?;
+    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |at| {
+        let rows = lay.used.slice(at.clone());
+        let mut block = Block::fill(spec, &cols, y, &rows);
+        block.check_finite(spec, &cols, &rows)?;
         let ym = block.column_moments(p);
         block.standardise(&centre, &scale);
         Ok((ym, qr::block_factor(&mut block.a)))
@@ -725,12 +726,12 @@ impl Fit {
 
     /// The data-file line of the k-th fitted row (in the order of [`Fit::diagnostics`]).
     pub fn row_number(&self, k: usize) -> Option<usize> {
-        let i = *self.lay.used.get(k)?;
+        let i = self.lay.used.get(k)?;
         Some(self.spec.row_numbers.get(i).copied().unwrap_or(i))
     }
 
     /// Indices (into the spec's variables) of the rows the model was fitted to, in order.
-    pub(crate) fn used_rows(&self) -> &[usize] {
+    pub(crate) fn used_rows(&self) -> &UsedRows {
         &self.lay.used
     }
 
@@ -775,7 +776,7 @@ impl Fit {
             rss: self.rss,
             df_res: self.df_res,
         };
-        let work = |(rows, ((fitted, res), lev)): Outputs<'_>| {
+        let work = |rows: &[usize], ((fitted, res), lev): Outputs<'_>| {
             let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
             block.standardise(&centre, &scale);
             // Fitted values and residuals in the scaled coordinates, column by column.
@@ -811,18 +812,19 @@ impl Fit {
                 .zip(d.leverage.par_chunks_mut(CHUNK_ROWS));
             self.lay
                 .used
-                .par_chunks(CHUNK_ROWS)
+                .blocks(CHUNK_ROWS)
+                .into_par_iter()
                 .zip(outputs)
-                .for_each(work);
+                .for_each(|(at, out)| work(&self.lay.used.slice(at), out));
         } else {
             // One block: on this thread, without starting the pool.
-            work((
-                &self.lay.used,
+            work(
+                &self.lay.used.slice(0..n),
                 (
                     (&mut d.fitted[..], &mut d.residuals[..]),
                     &mut d.leverage[..],
                 ),
-            ));
+            );
         }
         d
     }
@@ -885,6 +887,6 @@ impl Diagnostics {
     }
 }
 
-/// One block's rows and its slices of the three diagnostic outputs (fitted, residual,
-/// leverage), nested as rayon's zip delivers them.
-type Outputs<'a> = (&'a [usize], ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]));
+/// One block's slices of the three diagnostic outputs (fitted, residual, leverage), nested
+/// as rayon's zip delivers them.
+type Outputs<'a> = ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]);

@@ -28,6 +28,7 @@ mod tests;
 use std::fmt;
 
 pub use anova::compare;
+pub(crate) use design::UsedRows;
 pub use fit::{fit, fit_owned, Fit};
 
 /// One input variable, aligned with the response row by row.

@@ -237,7 +237,7 @@ impl Fit {
                 .lay
                 .used
                 .iter()
-                .filter_map(|&i| values.get(i).copied())
+                .filter_map(|i| values.get(i).copied())
                 .collect(),
             _ => Vec::new(),
         };

@@ -311,6 +311,26 @@ fn reference_means_and_pairs() {
 }
 
 #[test]
+fn used_rows_blocks_and_slices() {
+    // Every row used: no list, the same blocks and slices as a list of 0..n would give.
+    let all = design::UsedRows::All(10);
+    let listed = design::UsedRows::Listed((0..10).collect());
+    assert_eq!(all.blocks(4), vec![0..4, 4..8, 8..10]);
+    assert_eq!(all.blocks(4), listed.blocks(4));
+    for at in [0..4, 8..10, 8..12, 12..14, 0..0] {
+        assert_eq!(all.slice(at.clone()), listed.slice(at));
+    }
+    assert!(all.iter().eq(listed.iter()));
+    assert_eq!((all.get(9), all.get(10)), (Some(9), None));
+    assert_eq!(all.iter().len(), 10);
+    assert!(design::UsedRows::All(0).blocks(4).is_empty());
+    // Some rows left out.
+    let some = design::UsedRows::Listed(vec![1, 2, 5]);
+    assert_eq!(some.slice(1..9).as_ref(), &[2, 5]);
+    assert_eq!((some.len(), some.get(2)), (3, Some(5)));
+}
+
+#[test]
 fn reference_diagnostics() {
     // Source: model_checks.py (DIAG_*).
     let f = ancova();
@@ -563,6 +583,10 @@ fn warnings_and_errors() {
         .any(|w| matches!(w, ModelWarning::EmptyLevel { level, .. } if level == "a4")));
     assert_eq!(f.summary().n, 24);
     assert_eq!(f.means("a", &[], 0.95).expect("means").len(), 3);
+    // The row left out is the first: the rows used are listed, and the first fitted row is
+    // data row 1.
+    assert_eq!(f.used_rows(), &design::UsedRows::Listed((1..25).collect()));
+    assert_eq!(f.row_number(0), spec.row_numbers.get(1).copied());
     let mut spec = reference_spec(DATA, vec![term(&[2])]);
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
         for (k, v) in values_mut(values).iter_mut().enumerate() {

@@ -16,7 +16,7 @@
 
 use super::{Outcome, Session};
 use crate::lang::Spanned;
-use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, Var};
+use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, UsedRows, Var};
 use crate::report::markdown::code;
 use crate::report::number::format_column;
 use crate::report::{Cell, Column as Col, Format, Item, Table};
@@ -219,7 +219,7 @@ fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
     }
 }
 
-fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> Vec<Cell> {
+fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) -> Vec<Cell> {
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
@@ -227,7 +227,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> 
         .map(|level| {
             used.iter()
                 .zip(residuals)
-                .filter(|(&i, _)| codes.get(i).copied().flatten() == u32::try_from(level).ok())
+                .filter(|&(i, _)| codes.get(i).copied().flatten() == u32::try_from(level).ok())
                 .map(|(_, &e)| e)
                 .collect::<Vec<f64>>()
         })
@@ -292,7 +292,7 @@ fn slopes_row(
     }
 }
 
-fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &[usize]) -> Vec<Cell> {
+fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cell> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
     let not_tested = |why: String| not_tested(&check, why);
@@ -335,7 +335,7 @@ fn one_way(
     values: &[f64],
     codes: &[Option<u32>],
     nlevels: usize,
-    used: &[usize],
+    used: &UsedRows,
 ) -> Result<(f64, usize, usize), ModelError> {
     let cell = |i: usize| -> Option<(usize, f64)> {
         let c = codes.get(i).copied().flatten()? as usize;
@@ -344,7 +344,7 @@ fn one_way(
     };
     let mut count = vec![0usize; nlevels];
     let mut sum = vec![0.0; nlevels];
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         count[c] += 1;
         sum[c] += v;
     }
@@ -354,7 +354,7 @@ fn one_way(
         .map(|(s, &n)| if n > 0 { s / n as f64 } else { 0.0 })
         .collect();
     let mut dev = vec![0.0; nlevels];
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         dev[c] += v - first[c];
     }
     let mean: Vec<f64> = (0..nlevels)
@@ -383,7 +383,7 @@ fn one_way(
         .map(|c| count[c] as f64 * (mean[c] - grand) * (mean[c] - grand))
         .sum();
     let mut within = 0.0;
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         within += (v - mean[c]) * (v - mean[c]);
     }
     let total = between + within;
