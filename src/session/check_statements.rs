@@ -223,17 +223,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) ->
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
-    let groups: Vec<Vec<f64>> = (0..levels.len())
-        .map(|level| {
-            used.iter()
-                .zip(residuals)
-                .filter(|&(i, _)| codes.get(i).copied().flatten() == u32::try_from(level).ok())
-                .map(|(_, &e)| e)
-                .collect::<Vec<f64>>()
-        })
-        .filter(|g| !g.is_empty())
-        .collect();
-    match levene::brown_forsythe_owned(groups) {
+    match levene::brown_forsythe_owned(residual_groups(codes, levels.len(), used, residuals)) {
         Ok(bf) => {
             let verdict = if bf.p < ALPHA {
                 format!(
@@ -249,6 +239,39 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) ->
         }
         Err(e) => not_tested(&check, e),
     }
+}
+
+/// The residuals of each level of the factor `codes` that has rows, in level order. Each
+/// group is sized by a count first: on large data the groups together are as long as the
+/// residuals, and growing them by doubling would add up to as much again.
+fn residual_groups(
+    codes: &[Option<u32>],
+    nlevels: usize,
+    used: &UsedRows,
+    residuals: &[f64],
+) -> Vec<Vec<f64>> {
+    let level_of = |i: usize| {
+        codes
+            .get(i)
+            .copied()
+            .flatten()
+            .and_then(|c| usize::try_from(c).ok())
+            .filter(|&c| c < nlevels)
+    };
+    let mut counts = vec![0usize; nlevels];
+    for c in used.iter().filter_map(level_of) {
+        if let Some(k) = counts.get_mut(c) {
+            *k += 1;
+        }
+    }
+    let mut groups: Vec<Vec<f64>> = counts.iter().map(|&k| Vec::with_capacity(k)).collect();
+    for (i, &e) in used.iter().zip(residuals) {
+        if let Some(g) = level_of(i).and_then(|c| groups.get_mut(c)) {
+            g.push(e);
+        }
+    }
+    groups.retain(|g| !g.is_empty());
+    groups
 }
 
 /// The equal-slopes row of factor `f` and covariate `x`, or None when the model already has
