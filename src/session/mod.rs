@@ -38,7 +38,8 @@ pub struct Session<'w> {
     /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
     units: Vec<(String, String)>,
     /// Columns of the data sets as models hold them, one shared copy each, made on first use
-    /// and forgotten by every statement that changes a data set.
+    /// and forgotten by every statement that changes a data set (factor codes need none: a
+    /// factor's codes are shared as they are).
     shared: RefCell<SharedColumns>,
 }
 
@@ -47,7 +48,6 @@ pub struct Session<'w> {
 struct SharedColumns {
     /// Numeric values; `true` in the key for a column's exact-offset residuals.
     values: Vec<Shared<(usize, usize, bool), f64>>,
-    codes: Vec<Shared<(usize, usize), Option<u32>>>,
     /// Data-file line of each row, by data set.
     rows: Vec<Shared<usize, usize>>,
 }
@@ -165,11 +165,6 @@ impl<'w> Session<'w> {
             (set, c, exact),
             values,
         )
-    }
-
-    /// The shared factor codes of column `c` of data set `set`.
-    fn shared_codes(&self, set: usize, c: usize, codes: &[Option<u32>]) -> Arc<[Option<u32>]> {
-        share(&mut self.shared.borrow_mut().codes, (set, c), codes)
     }
 
     /// The shared data-file lines of data set `set`.
