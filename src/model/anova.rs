@@ -200,10 +200,7 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
 /// The data-file lines of the fitted rows.
 fn fitted_lines(f: &Fit) -> impl Iterator<Item = usize> + '_ {
     let rows = &f.spec.row_numbers;
-    f.lay
-        .used
-        .iter()
-        .map(move |i| rows.get(i).copied().unwrap_or(i))
+    f.lay.used.iter().map(move |i| rows.get(i).unwrap_or(i))
 }
 
 /// The response values of the fitted rows as bit patterns, with `add` added first.

@@ -308,7 +308,7 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
         }
     }
     used_vars.sort_unstable();
-    let row_no = |i: usize| spec.row_numbers.get(i).copied().unwrap_or(i);
+    let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
 
     // Rows used: no list until a row is left out (see UsedRows).
     let mut listed: Option<Vec<usize>> = None;
@@ -498,7 +498,7 @@ fn row_complete(
     i: usize,
     yi: f64,
 ) -> Result<bool, ModelError> {
-    let row_no = |i: usize| spec.row_numbers.get(i).copied().unwrap_or(i);
+    let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
     if yi.is_nan() {
         return Ok(false);
     }

@@ -102,7 +102,7 @@ pub fn fit_owned(spec: ModelSpec) -> Result<Fit, ModelError> {
     if !spec.response_offset.is_finite() {
         return Err(ModelError::NonFiniteValue {
             variable: spec.response.name().to_string(),
-            row: spec.row_numbers.first().copied().unwrap_or(1),
+            row: spec.row_numbers.first().unwrap_or(1),
         });
     }
     if !spec.intercept && spec.response_offset != 0.0 {
@@ -425,7 +425,7 @@ impl Block {
                     .unwrap_or_else(|| spec.response.name().to_string());
                 return Err(ModelError::NonFiniteValue {
                     variable,
-                    row: spec.row_numbers.get(i).copied().unwrap_or(i),
+                    row: spec.row_numbers.get(i).unwrap_or(i),
                 });
             }
         }
@@ -727,7 +727,7 @@ impl Fit {
     /// The data-file line of the k-th fitted row (in the order of [`Fit::diagnostics`]).
     pub fn row_number(&self, k: usize) -> Option<usize> {
         let i = self.lay.used.get(k)?;
-        Some(self.spec.row_numbers.get(i).copied().unwrap_or(i))
+        Some(self.spec.row_numbers.get(i).unwrap_or(i))
     }
 
     /// Indices (into the spec's variables) of the rows the model was fitted to, in order.

@@ -331,6 +331,26 @@ fn used_rows_blocks_and_slices() {
 }
 
 #[test]
+fn row_lines_as_a_run_or_a_list() {
+    let run: RowLines = (2..7).collect();
+    assert_eq!(run, RowLines::from(&[2, 3, 4, 5, 6][..]));
+    assert_eq!(
+        (run.len(), run.first(), run.get(4), run.get(5)),
+        (5, Some(2), Some(6), None)
+    );
+    // A gap (a blank line, a filtered row) makes a list; equal lines compare equal however
+    // they were made.
+    let gap = RowLines::from(&[2, 3, 5][..]);
+    assert_eq!((gap.len(), gap.get(2), gap.get(3)), (3, Some(5), None));
+    assert_ne!(gap, RowLines::from(&[2, 3, 4][..]));
+    assert_eq!(gap, [2, 3, 5].into_iter().collect());
+    let empty: RowLines = std::iter::empty().collect();
+    assert!(empty.is_empty() && empty.first().is_none());
+    let top = RowLines::from(&[usize::MAX][..]);
+    assert_eq!((top.get(0), top.get(1)), (Some(usize::MAX), None));
+}
+
+#[test]
 fn reference_diagnostics() {
     // Source: model_checks.py (DIAG_*).
     let f = ancova();
@@ -586,7 +606,7 @@ fn warnings_and_errors() {
     // The row left out is the first: the rows used are listed, and the first fitted row is
     // data row 1.
     assert_eq!(f.used_rows(), &design::UsedRows::Listed((1..25).collect()));
-    assert_eq!(f.row_number(0), spec.row_numbers.get(1).copied());
+    assert_eq!(f.row_number(0), spec.row_numbers.get(1));
     let mut spec = reference_spec(DATA, vec![term(&[2])]);
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
         for (k, v) in values_mut(values).iter_mut().enumerate() {

@@ -639,8 +639,8 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
-    let lines = fit.spec().row_numbers.as_ref();
-    let row_line = |i: usize| lines.get(i).copied().unwrap_or(i);
+    let lines = &fit.spec().row_numbers;
+    let row_line = |i: usize| lines.get(i).unwrap_or(i);
     for ((r, c), g) in rows
         .index
         .iter()

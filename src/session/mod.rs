@@ -16,7 +16,7 @@ use std::sync::Arc;
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
-use crate::model::Fit;
+use crate::model::{Fit, RowLines};
 use crate::report::{InputRecord, Item};
 use crate::world::World;
 
@@ -49,7 +49,7 @@ struct SharedColumns {
     /// Numeric values; `true` in the key for a column's exact-offset residuals.
     values: Vec<Shared<(usize, usize, bool), f64>>,
     /// Data-file line of each row, by data set.
-    rows: Vec<Shared<usize, usize>>,
+    rows: Vec<(usize, RowLines)>,
 }
 
 /// One shared copy and its key.
@@ -168,8 +168,14 @@ impl<'w> Session<'w> {
     }
 
     /// The shared data-file lines of data set `set`.
-    fn shared_rows(&self, set: usize, rows: &[usize]) -> Arc<[usize]> {
-        share(&mut self.shared.borrow_mut().rows, set, rows)
+    fn shared_rows(&self, set: usize, rows: &[usize]) -> RowLines {
+        let list = &mut self.shared.borrow_mut().rows;
+        if let Some((_, r)) = list.iter().find(|(k, _)| *k == set) {
+            return r.clone();
+        }
+        let r = RowLines::from(rows);
+        list.push((set, r.clone()));
+        r
     }
 
     /// The unit declared for a column, if any.
