@@ -223,7 +223,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) ->
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
-    match levene::brown_forsythe_owned(residual_groups(codes, levels.len(), used, residuals)) {
+    match residual_spread(codes, levels.len(), used, residuals) {
         Ok(bf) => {
             let verdict = if bf.p < ALPHA {
                 format!(
@@ -241,15 +241,15 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) ->
     }
 }
 
-/// The residuals of each level of the factor `codes` that has rows, in level order. Each
-/// group is sized by a count first: on large data the groups together are as long as the
-/// residuals, and growing them by doubling would add up to as much again.
-fn residual_groups(
+/// The Brown-Forsythe test of the residuals grouped by the levels of the factor `codes` that
+/// have rows, in level order. The groups are gathered one at a time, each sized by a count
+/// first: on large data all of them together would be as long as the residuals.
+fn residual_spread(
     codes: &[Option<u32>],
     nlevels: usize,
     used: &UsedRows,
     residuals: &[f64],
-) -> Vec<Vec<f64>> {
+) -> Result<levene::EqualVariance, StatsError> {
     let level_of = |i: usize| {
         codes
             .get(i)
@@ -264,14 +264,25 @@ fn residual_groups(
             *k += 1;
         }
     }
-    let mut groups: Vec<Vec<f64>> = counts.iter().map(|&k| Vec::with_capacity(k)).collect();
-    for (i, &e) in used.iter().zip(residuals) {
-        if let Some(g) = level_of(i).and_then(|c| groups.get_mut(c)) {
-            g.push(e);
-        }
-    }
-    groups.retain(|g| !g.is_empty());
-    groups
+    let (levels, sizes): (Vec<usize>, Vec<usize>) = counts
+        .iter()
+        .enumerate()
+        .filter(|(_, &k)| k > 0)
+        .map(|(level, &k)| (level, k))
+        .unzip();
+    levene::brown_forsythe_each(&sizes, |g| {
+        let Some(level) = levels.get(g).copied() else {
+            return Vec::new();
+        };
+        let mut group = Vec::with_capacity(sizes.get(g).copied().unwrap_or(0));
+        group.extend(
+            used.iter()
+                .zip(residuals)
+                .filter(|&(i, _)| level_of(i) == Some(level))
+                .map(|(_, &e)| e),
+        );
+        group
+    })
 }
 
 /// The equal-slopes row of factor `f` and covariate `x`, or None when the model already has
