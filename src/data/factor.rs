@@ -1,6 +1,7 @@
 //! Factors: columns of group labels coded as level indices.
 
 use std::collections::BTreeMap;
+use std::sync::Arc;
 
 use super::error::FactorError;
 use super::number::{format_number, parse_number, NumberParse};
@@ -9,8 +10,9 @@ use super::{Column, Values};
 /// A column of group labels: each row holds the index of its level, or `None` when missing.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Factor {
-    /// Level index per row (`None` = missing).
-    pub codes: Vec<Option<u32>>,
+    /// Level index per row (`None` = missing), shared with the models fitted to it (a copy
+    /// per model would cost 8 bytes a row each).
+    pub codes: Arc<[Option<u32>]>,
     /// Level names in level order; the first is the reference level.
     pub levels: Vec<String>,
     /// Where the level order came from.
@@ -202,7 +204,7 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
     }
 
     let factor = Factor {
-        codes,
+        codes: codes.into(),
         levels: names,
         order,
     };

@@ -293,7 +293,7 @@ impl Values {
             Values::Numeric(v) => Values::Numeric(pick(v, keep)),
             Values::Text(v) => Values::Text(v.filter(keep)),
             Values::Factor(f) => Values::Factor(Factor {
-                codes: pick(&f.codes, keep),
+                codes: pick(&f.codes, keep).into(),
                 levels: f.levels.clone(),
                 order: f.order,
             }),

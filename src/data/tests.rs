@@ -612,7 +612,7 @@ fn factor_first_appearance() {
     let c = text_col(&[Some("b"), Some("a"), None, Some("b"), Some("c")]);
     let f = make_factor(&c, None).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(f.levels, strings(&["b", "a", "c"]));
-    assert_eq!(f.codes, vec![Some(0), Some(1), None, Some(0), Some(2)]);
+    assert_eq!(*f.codes, [Some(0), Some(1), None, Some(0), Some(2)]);
     assert_eq!(f.order, LevelOrder::FirstAppearance);
     assert_eq!(f.counts(), vec![2, 1, 1]);
 }
@@ -627,8 +627,8 @@ fn factor_from_numeric_codes() {
     let f = make_factor(&c, None).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(f.levels, strings(&["2", "1", "2.5", "0"]));
     assert_eq!(
-        f.codes,
-        vec![Some(0), Some(1), None, Some(2), Some(3), Some(3), Some(1)]
+        *f.codes,
+        [Some(0), Some(1), None, Some(2), Some(3), Some(3), Some(1)]
     );
     let declared = strings(&["1.0", "2", "2.5", "0", "7"]);
     let f = make_factor(&c, Some(&declared)).unwrap_or_else(|e| panic!("{e}"));
@@ -644,7 +644,7 @@ fn factor_declared_order_and_unused() {
     let declared = strings(&["a", "b", "z"]);
     let f = make_factor(&c, Some(&declared)).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(f.levels, declared);
-    assert_eq!(f.codes, vec![Some(1), Some(0), Some(1)]);
+    assert_eq!(*f.codes, [Some(1), Some(0), Some(1)]);
     assert_eq!(f.order, LevelOrder::Declared);
     assert_eq!(unused_levels(&f), vec!["z"]);
 }
@@ -660,7 +660,7 @@ fn factor_relevel_existing_factor() {
     };
     let declared = strings(&["a", "b"]);
     let g = make_factor(&fc, Some(&declared)).unwrap_or_else(|e| panic!("{e}"));
-    assert_eq!(g.codes, vec![Some(1), Some(0)]);
+    assert_eq!(*g.codes, [Some(1), Some(0)]);
     let same = make_factor(&fc, None).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(same.levels, strings(&["b", "a"]));
 }

@@ -200,10 +200,7 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
 /// The data-file lines of the fitted rows.
 fn fitted_lines(f: &Fit) -> impl Iterator<Item = usize> + '_ {
     let rows = &f.spec.row_numbers;
-    f.lay
-        .used
-        .iter()
-        .map(move |&i| rows.get(i).copied().unwrap_or(i))
+    f.lay.used.iter().map(move |i| rows.get(i).unwrap_or(i))
 }
 
 /// The response values of the fitted rows as bit patterns, with `add` added first.
@@ -215,7 +212,7 @@ fn response_used(f: &Fit, add: f64) -> impl Iterator<Item = u64> + '_ {
     f.lay
         .used
         .iter()
-        .map(move |&i| (values.get(i).copied().unwrap_or(f64::NAN) + add).to_bits())
+        .map(move |i| (values.get(i).copied().unwrap_or(f64::NAN) + add).to_bits())
 }
 
 /// Whether two fits have the same response over their fitted rows: the same values when
@@ -242,7 +239,7 @@ fn nested_numerically(small: &Fit, big: &Fit) -> bool {
     let width = kb + ks;
     let mut acc = RAccumulator::new(width, CHUNK_ROWS);
     let mut row = vec![0.0; width];
-    for (&ib, &is) in big.lay.used.iter().zip(&small.lay.used) {
+    for (ib, is) in big.lay.used.iter().zip(small.lay.used.iter()) {
         for (k, &c) in big.kept.iter().enumerate() {
             row[k] = eb
                 .cols

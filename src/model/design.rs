@@ -8,6 +8,9 @@
 //! otherwise by indicators of all its levels. For `a by b` with `a` but not `b` in the model,
 //! this gives `b` contrasts and `a` indicators, so the columns span every cell.
 
+use std::borrow::Cow;
+use std::ops::Range;
+
 use super::{ModelError, ModelSpec, ModelWarning, Transform, Var};
 
 /// Which contrasts replace a contrast-coded factor.
@@ -49,11 +52,102 @@ pub(crate) struct FactorLevels {
     pub present: Vec<u32>,
 }
 
+/// The rows a model is fitted to, ascending, as indices into its variables. When every row
+/// is used (the common case) no list is kept: at 8 bytes a row per model, it would weigh as
+/// much as a column of the data.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) enum UsedRows {
+    /// Every row, `0..n`.
+    All(usize),
+    /// These rows (some were left out).
+    Listed(Vec<usize>),
+}
+
+impl UsedRows {
+    /// Number of rows used.
+    pub fn len(&self) -> usize {
+        match self {
+            UsedRows::All(n) => *n,
+            UsedRows::Listed(v) => v.len(),
+        }
+    }
+
+    /// True when no row is used.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The k-th row used, if there are more than k.
+    pub fn get(&self, k: usize) -> Option<usize> {
+        match self {
+            UsedRows::All(n) => (k < *n).then_some(k),
+            UsedRows::Listed(v) => v.get(k).copied(),
+        }
+    }
+
+    /// The rows used, in order.
+    pub fn iter(&self) -> UsedIter<'_> {
+        match self {
+            UsedRows::All(n) => UsedIter::All(0..*n),
+            UsedRows::Listed(v) => UsedIter::Listed(v.iter()),
+        }
+    }
+
+    /// Positions (into the rows used) of consecutive blocks of `size` rows, the last one
+    /// possibly shorter.
+    pub fn blocks(&self, size: usize) -> Vec<Range<usize>> {
+        let n = self.len();
+        let size = size.max(1);
+        (0..n)
+            .step_by(size)
+            .map(|start| start..n.min(start.saturating_add(size)))
+            .collect()
+    }
+
+    /// The rows used at positions `at` (cut at the end): borrowed from the list, or made for
+    /// the block when every row is used.
+    pub fn slice(&self, at: Range<usize>) -> Cow<'_, [usize]> {
+        match self {
+            UsedRows::All(n) => Cow::Owned((at.start.min(*n)..at.end.min(*n)).collect()),
+            UsedRows::Listed(v) => {
+                let end = at.end.min(v.len());
+                Cow::Borrowed(v.get(at.start.min(end)..end).unwrap_or(&[]))
+            }
+        }
+    }
+}
+
+/// The iterator of [`UsedRows::iter`].
+pub(crate) enum UsedIter<'a> {
+    All(Range<usize>),
+    Listed(std::slice::Iter<'a, usize>),
+}
+
+impl Iterator for UsedIter<'_> {
+    type Item = usize;
+
+    fn next(&mut self) -> Option<usize> {
+        match self {
+            UsedIter::All(r) => r.next(),
+            UsedIter::Listed(it) => it.next().copied(),
+        }
+    }
+
+    fn size_hint(&self) -> (usize, Option<usize>) {
+        match self {
+            UsedIter::All(r) => r.size_hint(),
+            UsedIter::Listed(it) => it.size_hint(),
+        }
+    }
+}
+
+impl ExactSizeIterator for UsedIter<'_> {}
+
 /// Everything about the rows and variables that both coding schemes share.
 #[derive(Debug, Clone)]
 pub(crate) struct Layout {
-    /// Indices of rows used.
-    pub used: Vec<usize>,
+    /// The rows used.
+    pub used: UsedRows,
     /// Number of rows in the input.
     pub total_rows: usize,
     pub factors: Vec<FactorLevels>,
@@ -214,54 +308,26 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
         }
     }
     used_vars.sort_unstable();
-    let row_no = |i: usize| spec.row_numbers.get(i).copied().unwrap_or(i);
+    let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
 
-    // Rows used.
-    let mut used = Vec::with_capacity(n);
-    'rows: for (i, &yi) in y.iter().enumerate() {
-        if yi.is_nan() {
-            continue;
-        }
-        if !yi.is_finite() {
-            return Err(ModelError::NonFiniteValue {
-                variable: spec.response.name().to_string(),
-                row: row_no(i),
-            });
-        }
-        for &v in &used_vars {
-            match spec.vars.get(v) {
-                Some(Var::Numeric { name, values }) => {
-                    let x = values.get(i).copied().unwrap_or(f64::NAN);
-                    if x.is_nan() {
-                        continue 'rows;
-                    }
-                    if !x.is_finite() {
-                        return Err(ModelError::NonFiniteValue {
-                            variable: name.clone(),
-                            row: row_no(i),
-                        });
-                    }
-                }
-                Some(Var::Factor {
-                    name,
-                    codes,
-                    levels,
-                }) => match codes.get(i).copied().flatten() {
-                    None => continue 'rows,
-                    Some(c) => {
-                        if c as usize >= levels.len() {
-                            return Err(ModelError::FactorCodeOutOfRange {
-                                variable: name.clone(),
-                                row: row_no(i),
-                            });
-                        }
-                    }
-                },
-                None => {}
+    // Rows used: no list until a row is left out (see UsedRows).
+    let mut listed: Option<Vec<usize>> = None;
+    for (i, &yi) in y.iter().enumerate() {
+        let keep = row_complete(spec, &used_vars, i, yi)?;
+        match (&mut listed, keep) {
+            (Some(v), true) => v.push(i),
+            (None, false) => {
+                let mut v = Vec::with_capacity(n);
+                v.extend(0..i);
+                listed = Some(v);
             }
+            _ => {}
         }
-        used.push(i);
     }
+    let used = match listed {
+        None => UsedRows::All(n),
+        Some(v) => UsedRows::Listed(v),
+    };
     if used.is_empty() {
         return Err(ModelError::NoRows);
     }
@@ -280,7 +346,7 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                 continue;
             }
             if let Some(Var::Numeric { name, values }) = spec.vars.get(p.var) {
-                for &i in &used {
+                for i in used.iter() {
                     let x = values.get(i).copied().unwrap_or(f64::NAN);
                     match p.transform {
                         Transform::Log if x <= 0.0 => {
@@ -322,7 +388,7 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                 levels,
             }) => {
                 let mut has = vec![false; levels.len()];
-                for &i in &used {
+                for i in used.iter() {
                     if let Some(Some(c)) = codes.get(i) {
                         if let Some(h) = has.get_mut(*c as usize) {
                             *h = true;
@@ -354,7 +420,7 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
             Some(Var::Numeric { name, values }) => {
                 let mut distinct: Vec<f64> = Vec::new();
                 let mut all_int = true;
-                for &i in &used {
+                for i in used.iter() {
                     let x = values.get(i).copied().unwrap_or(0.0);
                     if x.fract() != 0.0 {
                         all_int = false;
@@ -421,6 +487,60 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
         warnings,
         term_names,
     })
+}
+
+/// Whether row `i`, with response `yi`, has a value in the response and in every variable of
+/// `used_vars` (a row without one is left out); an infinite value, or a factor code without a
+/// level, is an error.
+fn row_complete(
+    spec: &ModelSpec,
+    used_vars: &[usize],
+    i: usize,
+    yi: f64,
+) -> Result<bool, ModelError> {
+    let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
+    if yi.is_nan() {
+        return Ok(false);
+    }
+    if !yi.is_finite() {
+        return Err(ModelError::NonFiniteValue {
+            variable: spec.response.name().to_string(),
+            row: row_no(i),
+        });
+    }
+    for &v in used_vars {
+        match spec.vars.get(v) {
+            Some(Var::Numeric { name, values }) => {
+                let x = values.get(i).copied().unwrap_or(f64::NAN);
+                if x.is_nan() {
+                    return Ok(false);
+                }
+                if !x.is_finite() {
+                    return Err(ModelError::NonFiniteValue {
+                        variable: name.clone(),
+                        row: row_no(i),
+                    });
+                }
+            }
+            Some(Var::Factor {
+                name,
+                codes,
+                levels,
+            }) => match codes.get(i).copied().flatten() {
+                None => return Ok(false),
+                Some(c) => {
+                    if c as usize >= levels.len() {
+                        return Err(ModelError::FactorCodeOutOfRange {
+                            variable: name.clone(),
+                            row: row_no(i),
+                        });
+                    }
+                }
+            },
+            None => {}
+        }
+    }
+    Ok(true)
 }
 
 /// A covariate with at most this many distinct whole-number values draws a warning.

@@ -6,7 +6,7 @@
 
 use std::sync::OnceLock;
 
-use super::design::{self, Column, Layout, Scheme};
+use super::design::{self, Column, Layout, Scheme, UsedRows};
 use rayon::prelude::*;
 
 use super::qr::{self, Mat, ALIAS_TOL, CHUNK_ROWS};
@@ -102,7 +102,7 @@ pub fn fit_owned(spec: ModelSpec) -> Result<Fit, ModelError> {
     if !spec.response_offset.is_finite() {
         return Err(ModelError::NonFiniteValue {
             variable: spec.response.name().to_string(),
-            row: spec.row_numbers.first().copied().unwrap_or(1),
+            row: spec.row_numbers.first().unwrap_or(1),
         });
     }
     if !spec.intercept && spec.response_offset != 0.0 {
@@ -223,7 +223,7 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
                 let x: Vec<f64> = lay
                     .used
                     .iter()
-                    .map(|&i| values.get(i).copied().unwrap_or(0.0))
+                    .map(|i| values.get(i).copied().unwrap_or(0.0))
                     .collect();
                 cov_means.push((v, mean_of(&x)));
             }
@@ -297,14 +297,14 @@ pub(crate) fn build_engine(
 ) -> Result<Engine, ModelError> {
     let p = cols.len();
     let n = lay.used.len() as f64;
-    let blocks: Vec<&[usize]> = lay.used.chunks(CHUNK_ROWS).collect();
+    let blocks = lay.used.blocks(CHUNK_ROWS);
 
     // Centre and scale of each column, from the first block of rows (every row when there
     // are at most CHUNK_ROWS of them): any centre within the data's range takes the offset
     // out of a column well enough for the factorisation (the intercept absorbs the rest),
     // and it saves a pass over the rows.
-    let first = blocks.first().copied().unwrap_or(&[]);
-    let lead = Block::fill(spec, &cols, y, first).moments();
+    let first = lay.used.slice(blocks.first().cloned().unwrap_or(0..0));
+    let lead = Block::fill(spec, &cols, y, &first).moments();
     let n_lead = lead.count.max(1.0);
     let mut centre = vec![0.0; p + 1];
     let mut scale = vec![1.0; p + 1];
@@ -325,9 +325,10 @@ pub(crate) fn build_engine(
 
     // One pass: the triangular factor of each block, merged in block order, with the
     // response's moments for the zero-variance check.
-    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |rows| {
-        let mut block = Block::fill(spec, &cols, y, rows);
-        block.check_finite(spec, &cols, rows)?;
+    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |at| {
+        let rows = lay.used.slice(at.clone());
+        let mut block = Block::fill(spec, &cols, y, &rows);
+        block.check_finite(spec, &cols, &rows)?;
         let ym = block.column_moments(p);
         block.standardise(&centre, &scale);
         Ok((ym, qr::block_factor(&mut block.a)))
@@ -424,7 +425,7 @@ impl Block {
                     .unwrap_or_else(|| spec.response.name().to_string());
                 return Err(ModelError::NonFiniteValue {
                     variable,
-                    row: spec.row_numbers.get(i).copied().unwrap_or(i),
+                    row: spec.row_numbers.get(i).unwrap_or(i),
                 });
             }
         }
@@ -725,12 +726,12 @@ impl Fit {
 
     /// The data-file line of the k-th fitted row (in the order of [`Fit::diagnostics`]).
     pub fn row_number(&self, k: usize) -> Option<usize> {
-        let i = *self.lay.used.get(k)?;
-        Some(self.spec.row_numbers.get(i).copied().unwrap_or(i))
+        let i = self.lay.used.get(k)?;
+        Some(self.spec.row_numbers.get(i).unwrap_or(i))
     }
 
     /// Indices (into the spec's variables) of the rows the model was fitted to, in order.
-    pub(crate) fn used_rows(&self) -> &[usize] {
+    pub(crate) fn used_rows(&self) -> &UsedRows {
         &self.lay.used
     }
 
@@ -743,7 +744,8 @@ impl Fit {
     /// Row diagnostics: a second pass over the fitted rows, made once per fit. Leverage
     /// h_i = |R^-T z_i|^2; Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized
     /// residual e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
-    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2).
+    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2). The pass stores
+    /// fitted values, residuals and leverages; the other two are evaluated from them when read.
     pub fn diagnostics(&self) -> &Diagnostics {
         self.diag.get_or_init(|| self.compute_diagnostics())
     }
@@ -764,17 +766,17 @@ impl Fit {
         let mut scale: Vec<f64> = self.kept.iter().map(|&c| e.scale[c]).collect();
         centre.push(e.y_centre);
         scale.push(e.y_scale);
-        let rank = k as f64;
-        let s2 = self.sigma * self.sigma;
         let n = self.lay.used.len();
         let mut d = Diagnostics {
             fitted: vec![0.0; n],
             residuals: vec![0.0; n],
             leverage: vec![0.0; n],
-            cooks_distance: vec![0.0; n],
-            studentized: vec![0.0; n],
+            rank: k as f64,
+            s2: self.sigma * self.sigma,
+            rss: self.rss,
+            df_res: self.df_res,
         };
-        let work = |(rows, ((((fitted, res), lev), cook), stud)): Outputs<'_>| {
+        let work = |rows: &[usize], ((fitted, res), lev): Outputs<'_>| {
             let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
             block.standardise(&centre, &scale);
             // Fitted values and residuals in the scaled coordinates, column by column.
@@ -801,72 +803,90 @@ impl Fit {
                     *h += u * u;
                 }
             }
-            for (((c, s), &h), &r) in cook
-                .iter_mut()
-                .zip(stud.iter_mut())
-                .zip(lev.iter())
-                .zip(res.iter())
-            {
-                let one_h = 1.0 - h;
-                *c = if one_h > 0.0 {
-                    r * r * h / (rank * s2 * one_h * one_h)
-                } else {
-                    f64::NAN
-                };
-                *s = if one_h > 0.0 && self.df_res > 1 {
-                    let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
-                    if s2i > 0.0 {
-                        r / (s2i.sqrt() * one_h.sqrt())
-                    } else {
-                        f64::NAN
-                    }
-                } else {
-                    f64::NAN
-                };
-            }
         };
         if n > CHUNK_ROWS {
             let outputs = d
                 .fitted
                 .par_chunks_mut(CHUNK_ROWS)
                 .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.cooks_distance.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.studentized.par_chunks_mut(CHUNK_ROWS));
+                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS));
             self.lay
                 .used
-                .par_chunks(CHUNK_ROWS)
+                .blocks(CHUNK_ROWS)
+                .into_par_iter()
                 .zip(outputs)
-                .for_each(work);
+                .for_each(|(at, out)| work(&self.lay.used.slice(at), out));
         } else {
             // One block: on this thread, without starting the pool.
-            work((
-                &self.lay.used,
+            work(
+                &self.lay.used.slice(0..n),
                 (
-                    (
-                        (
-                            (&mut d.fitted[..], &mut d.residuals[..]),
-                            &mut d.leverage[..],
-                        ),
-                        &mut d.cooks_distance[..],
-                    ),
-                    &mut d.studentized[..],
+                    (&mut d.fitted[..], &mut d.residuals[..]),
+                    &mut d.leverage[..],
                 ),
-            ));
+            );
         }
         d
     }
 }
 
-/// One block's rows and its slices of the five diagnostic outputs (fitted, residual,
-/// leverage, Cook's distance, studentized residual), nested as rayon's zip delivers them.
-type Outputs<'a> = (
-    &'a [usize],
-    (
-        (
-            ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]),
-            &'a mut [f64],
-        ),
-        &'a mut [f64],
-    ),
-);
+impl Diagnostics {
+    /// Number of fitted rows.
+    pub fn len(&self) -> usize {
+        self.leverage.len()
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.leverage.is_empty()
+    }
+
+    /// Cook's distance of the k-th fitted row; `None` beyond the last row.
+    pub fn cooks_distance(&self, k: usize) -> Option<f64> {
+        Some(self.cook(*self.residuals.get(k)?, *self.leverage.get(k)?))
+    }
+
+    /// Externally studentized residual of the k-th fitted row; `None` beyond the last row.
+    pub fn studentized(&self, k: usize) -> Option<f64> {
+        Some(self.student(*self.residuals.get(k)?, *self.leverage.get(k)?))
+    }
+
+    /// Cook's distance of every fitted row, in order.
+    pub fn cooks_distances(&self) -> impl Iterator<Item = f64> + '_ {
+        self.residuals
+            .iter()
+            .zip(&self.leverage)
+            .map(|(&r, &h)| self.cook(r, h))
+    }
+
+    /// Cook's distance e^2 h / (p s^2 (1-h)^2) of a row with residual `r` and leverage `h`;
+    /// NaN at leverage 1.
+    fn cook(&self, r: f64, h: f64) -> f64 {
+        let one_h = 1.0 - h;
+        if one_h > 0.0 {
+            r * r * h / (self.rank * self.s2 * one_h * one_h)
+        } else {
+            f64::NAN
+        }
+    }
+
+    /// Externally studentized residual e / (s_(i) sqrt(1-h)), s_(i)^2 = (RSS - e^2/(1-h)) /
+    /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined.
+    fn student(&self, r: f64, h: f64) -> f64 {
+        let one_h = 1.0 - h;
+        if one_h > 0.0 && self.df_res > 1 {
+            let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
+            if s2i > 0.0 {
+                r / (s2i.sqrt() * one_h.sqrt())
+            } else {
+                f64::NAN
+            }
+        } else {
+            f64::NAN
+        }
+    }
+}
+
+/// One block's slices of the three diagnostic outputs (fitted, residual, leverage), nested
+/// as rayon's zip delivers them.
+type Outputs<'a> = ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]);

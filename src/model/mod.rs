@@ -28,6 +28,7 @@ mod tests;
 use std::fmt;
 
 pub use anova::compare;
+pub(crate) use design::UsedRows;
 pub use fit::{fit, fit_owned, Fit};
 
 /// One input variable, aligned with the response row by row.
@@ -63,6 +64,76 @@ impl Var {
             Var::Numeric { values, .. } => values.len(),
             Var::Factor { codes, .. } => codes.len(),
         }
+    }
+}
+
+/// The data-file line of each row of a model's variables. Lines that follow one another (a
+/// file without blank lines or line breaks in quotes, not filtered: the common case) are kept
+/// as the first line and their number instead of 8 bytes a row; any others as a list shared
+/// between the models that use it. Made from the lines by `From` or `collect`, which pick
+/// the form, so equal lines are always held alike.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RowLines(Lines);
+
+/// The two forms of [`RowLines`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+enum Lines {
+    /// Lines `first`, `first + 1`, ..., `len` of them.
+    Run { first: usize, len: usize },
+    /// Any other lines.
+    Listed(Arc<[usize]>),
+}
+
+impl RowLines {
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        match &self.0 {
+            Lines::Run { len, .. } => *len,
+            Lines::Listed(v) => v.len(),
+        }
+    }
+
+    /// True when there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// The line of row `row`, if there is such a row.
+    pub fn get(&self, row: usize) -> Option<usize> {
+        match &self.0 {
+            Lines::Run { first, len } => first.checked_add(row).filter(|_| row < *len),
+            Lines::Listed(v) => v.get(row).copied(),
+        }
+    }
+
+    /// The line of the first row, if any.
+    pub fn first(&self) -> Option<usize> {
+        self.get(0)
+    }
+}
+
+impl From<&[usize]> for RowLines {
+    fn from(lines: &[usize]) -> RowLines {
+        let first = lines.first().copied().unwrap_or(0);
+        let run = lines
+            .iter()
+            .enumerate()
+            .all(|(k, &l)| first.checked_add(k) == Some(l));
+        RowLines(if run {
+            Lines::Run {
+                first,
+                len: lines.len(),
+            }
+        } else {
+            Lines::Listed(lines.into())
+        })
+    }
+}
+
+impl FromIterator<usize> for RowLines {
+    fn from_iter<I: IntoIterator<Item = usize>>(lines: I) -> RowLines {
+        let lines: Vec<usize> = lines.into_iter().collect();
+        RowLines::from(lines.as_slice())
     }
 }
 
@@ -107,7 +178,7 @@ pub struct ModelSpec {
     /// Whether the model has an intercept.
     pub intercept: bool,
     /// The data-file line of each row (for messages and diagnostics).
-    pub row_numbers: Arc<[usize]>,
+    pub row_numbers: RowLines,
     /// The response values are given relative to this offset (0 for plain values): the
     /// response is `response_offset + values[i]`. The engine adds the offset back to the
     /// intercept, adjusted means, fitted values and every other estimate on the response
@@ -427,6 +498,11 @@ pub struct Region {
 
 /// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1), one per
 /// fitted row in order; [`Fit::row_number`] gives each row's line in the data file.
+///
+/// Only what the pass over the design produces is stored (24 bytes a row); Cook's distance
+/// and the externally studentized residual are closed forms of a row's residual and leverage
+/// and the fit's scalars, evaluated when asked for ([`Diagnostics::cooks_distance`],
+/// [`Diagnostics::studentized`]) by the same expressions, so to the same bits.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Diagnostics {
     /// Fitted values.
@@ -435,10 +511,14 @@ pub struct Diagnostics {
     pub residuals: Vec<f64>,
     /// Leverages (hat values).
     pub leverage: Vec<f64>,
-    /// Cook's distances.
-    pub cooks_distance: Vec<f64>,
-    /// Externally studentized residuals.
-    pub studentized: Vec<f64>,
+    /// Number of estimated coefficients (p in Cook's distance).
+    pub(crate) rank: f64,
+    /// Residual variance s^2.
+    pub(crate) s2: f64,
+    /// Residual sum of squares.
+    pub(crate) rss: f64,
+    /// Residual degrees of freedom.
+    pub(crate) df_res: usize,
 }
 
 /// Something the user should know about a fit that does not stop it.

@@ -237,7 +237,7 @@ impl Fit {
                 .lay
                 .used
                 .iter()
-                .filter_map(|&i| values.get(i).copied())
+                .filter_map(|i| values.get(i).copied())
                 .collect(),
             _ => Vec::new(),
         };
@@ -391,7 +391,7 @@ fn extends_by(big: &ModelSpec, base: &ModelSpec, term: &TermSpec) -> bool {
         && big.terms.iter().zip(&base.terms).all(|(a, b)| a == b)
         && big.intercept == base.intercept
         && big.response_offset.to_bits() == base.response_offset.to_bits()
-        && (Arc::ptr_eq(&big.row_numbers, &base.row_numbers) || big.row_numbers == base.row_numbers)
+        && big.row_numbers == base.row_numbers
         && same_var(&big.response, &base.response)
         && big.vars.len() == base.vars.len()
         && big.vars.iter().zip(&base.vars).all(|(a, b)| same_var(a, b))

@@ -311,6 +311,46 @@ fn reference_means_and_pairs() {
 }
 
 #[test]
+fn used_rows_blocks_and_slices() {
+    // Every row used: no list, the same blocks and slices as a list of 0..n would give.
+    let all = design::UsedRows::All(10);
+    let listed = design::UsedRows::Listed((0..10).collect());
+    assert_eq!(all.blocks(4), vec![0..4, 4..8, 8..10]);
+    assert_eq!(all.blocks(4), listed.blocks(4));
+    for at in [0..4, 8..10, 8..12, 12..14, 0..0] {
+        assert_eq!(all.slice(at.clone()), listed.slice(at));
+    }
+    assert!(all.iter().eq(listed.iter()));
+    assert_eq!((all.get(9), all.get(10)), (Some(9), None));
+    assert_eq!(all.iter().len(), 10);
+    assert!(design::UsedRows::All(0).blocks(4).is_empty());
+    // Some rows left out.
+    let some = design::UsedRows::Listed(vec![1, 2, 5]);
+    assert_eq!(some.slice(1..9).as_ref(), &[2, 5]);
+    assert_eq!((some.len(), some.get(2)), (3, Some(5)));
+}
+
+#[test]
+fn row_lines_as_a_run_or_a_list() {
+    let run: RowLines = (2..7).collect();
+    assert_eq!(run, RowLines::from(&[2, 3, 4, 5, 6][..]));
+    assert_eq!(
+        (run.len(), run.first(), run.get(4), run.get(5)),
+        (5, Some(2), Some(6), None)
+    );
+    // A gap (a blank line, a filtered row) makes a list; equal lines compare equal however
+    // they were made.
+    let gap = RowLines::from(&[2, 3, 5][..]);
+    assert_eq!((gap.len(), gap.get(2), gap.get(3)), (3, Some(5), None));
+    assert_ne!(gap, RowLines::from(&[2, 3, 4][..]));
+    assert_eq!(gap, [2, 3, 5].into_iter().collect());
+    let empty: RowLines = std::iter::empty().collect();
+    assert!(empty.is_empty() && empty.first().is_none());
+    let top = RowLines::from(&[usize::MAX][..]);
+    assert_eq!((top.get(0), top.get(1)), (Some(usize::MAX), None));
+}
+
+#[test]
 fn reference_diagnostics() {
     // Source: model_checks.py (DIAG_*).
     let f = ancova();
@@ -318,8 +358,10 @@ fn reference_diagnostics() {
     assert_eq!(f.row_number(0), Some(2));
     for k in 0..3 {
         close(d.leverage[k], DIAG_LEVERAGE[k], 1e-11, "leverage");
-        close(d.cooks_distance[k], DIAG_COOK[k], 1e-10, "cook");
-        close(d.studentized[k], DIAG_STUDENT[k], 1e-10, "studentized");
+        let cook = d.cooks_distance(k).unwrap_or(f64::NAN);
+        close(cook, DIAG_COOK[k], 1e-10, "cook");
+        let studentized = d.studentized(k).unwrap_or(f64::NAN);
+        close(studentized, DIAG_STUDENT[k], 1e-10, "studentized");
     }
     let sum_h: f64 = d.leverage.iter().sum();
     close(sum_h, 7.0, 1e-12, "trace of hat matrix = rank");
@@ -561,6 +603,10 @@ fn warnings_and_errors() {
         .any(|w| matches!(w, ModelWarning::EmptyLevel { level, .. } if level == "a4")));
     assert_eq!(f.summary().n, 24);
     assert_eq!(f.means("a", &[], 0.95).expect("means").len(), 3);
+    // The row left out is the first: the rows used are listed, and the first fitted row is
+    // data row 1.
+    assert_eq!(f.used_rows(), &design::UsedRows::Listed((1..25).collect()));
+    assert_eq!(f.row_number(0), spec.row_numbers.get(1));
     let mut spec = reference_spec(DATA, vec![term(&[2])]);
     if let Var::Numeric { values, .. } = &mut spec.vars[2] {
         for (k, v) in values_mut(values).iter_mut().enumerate() {

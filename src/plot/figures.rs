@@ -5,7 +5,7 @@ use statrs::distribution::{ContinuousCDF, Normal};
 
 use super::chart::{Chart, Curve, Guide, Interval, Point};
 use super::{style, Drawn, PlotError, Request};
-use crate::model::{Fit, Transform, Var};
+use crate::model::{Fit, Transform, UsedRows, Var};
 
 /// Most markers one figure draws. Beyond it the points are thinned deterministically (and
 /// the caption says how), which keeps every SVG well under 1 MB at any number of rows.
@@ -34,7 +34,7 @@ const GOLDEN: f64 = 0.618_033_988_749_894_8;
 /// The rows of the fit, with what every figure needs of them.
 struct Rows<'a> {
     /// Index of each fitted row in the model's variables.
-    index: &'a [usize],
+    index: &'a UsedRows,
 }
 
 impl<'a> Rows<'a> {
@@ -52,7 +52,7 @@ impl<'a> Rows<'a> {
         };
         self.index
             .iter()
-            .map(|&i| values.get(i).copied().unwrap_or(f64::NAN))
+            .map(|i| values.get(i).copied().unwrap_or(f64::NAN))
             .collect()
     }
 }
@@ -94,7 +94,7 @@ impl Groups {
         };
         let code_of = |i: usize| codes.get(i).copied().flatten();
         let mut present = vec![false; levels.len()];
-        for c in rows.index.iter().filter_map(|&i| code_of(i)) {
+        for c in rows.index.iter().filter_map(code_of) {
             if let Some(p) = present.get_mut(c as usize) {
                 *p = true;
             }
@@ -116,7 +116,7 @@ impl Groups {
         let of_row = rows
             .index
             .iter()
-            .map(|&i| {
+            .map(|i| {
                 code_of(i)
                     .and_then(|c| position.get(c as usize).copied())
                     .unwrap_or(NO_GROUP)
@@ -321,7 +321,7 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let (xs, ys) = (var_values(fit, Some(xv)), response_values(fit));
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let candidates = || {
-        rows.index.iter().zip(groups.rows()).filter_map(|(&i, g)| {
+        rows.index.iter().zip(groups.rows()).filter_map(|(i, g)| {
             let (x, y) = (
                 xs.get(i).copied().unwrap_or(f64::NAN),
                 ys.get(i).copied().unwrap_or(f64::NAN),
@@ -452,7 +452,7 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
             .zip(&d.residuals)
             .zip(groups.rows())
             .enumerate()
-            .filter_map(|(k, ((&i, &y), g))| {
+            .filter_map(|(k, ((i, &y), g))| {
                 let x = x_of(k, i);
                 match (g, x.is_finite() && y.is_finite()) {
                     (Some(group), true) => Some(Point { group, x, y }),
@@ -639,24 +639,24 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
-    let lines = fit.spec().row_numbers.as_ref();
-    let row_line = |&i: &usize| lines.get(i).copied().unwrap_or(i);
+    let lines = &fit.spec().row_numbers;
+    let row_line = |i: usize| lines.get(i).unwrap_or(i);
     for ((r, c), g) in rows
         .index
         .iter()
         .map(row_line)
-        .zip(&d.cooks_distance)
+        .zip(d.cooks_distances())
         .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
             points.push(Point {
                 group: g,
                 x: r as f64,
-                y: *c,
+                y: c,
             });
         }
     }
-    let n = d.cooks_distance.len();
+    let n = d.len();
     let shown = points.len();
     let note = if shown > MAX_POINTS {
         let run = shown.div_ceil(MAX_POINTS);
@@ -676,9 +676,8 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     };
     let threshold = if n > 0 { 4.0 / n as f64 } else { 0.0 };
     let above = d
-        .cooks_distance
-        .iter()
-        .filter(|c| c.is_finite() && **c > threshold)
+        .cooks_distances()
+        .filter(|c| c.is_finite() && *c > threshold)
         .count();
     let alt = format!(
         "Cook's distance of each observation of {} by row number in the data file{}, with a horizontal line at 4/n = {}; rows above it: {} of {}{}.{}",

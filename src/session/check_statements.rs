@@ -16,7 +16,7 @@
 
 use super::{Outcome, Session};
 use crate::lang::Spanned;
-use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, Var};
+use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, UsedRows, Var};
 use crate::report::markdown::code;
 use crate::report::number::format_column;
 use crate::report::{Cell, Column as Col, Format, Item, Table};
@@ -219,21 +219,11 @@ fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
     }
 }
 
-fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> Vec<Cell> {
+fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) -> Vec<Cell> {
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
-    let groups: Vec<Vec<f64>> = (0..levels.len())
-        .map(|level| {
-            used.iter()
-                .zip(residuals)
-                .filter(|(&i, _)| codes.get(i).copied().flatten() == u32::try_from(level).ok())
-                .map(|(_, &e)| e)
-                .collect::<Vec<f64>>()
-        })
-        .filter(|g| !g.is_empty())
-        .collect();
-    match levene::brown_forsythe_owned(groups) {
+    match residual_spread(codes, levels.len(), used, residuals) {
         Ok(bf) => {
             let verdict = if bf.p < ALPHA {
                 format!(
@@ -249,6 +239,50 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &[usize], residuals: &[f64]) -> 
         }
         Err(e) => not_tested(&check, e),
     }
+}
+
+/// The Brown-Forsythe test of the residuals grouped by the levels of the factor `codes` that
+/// have rows, in level order. The groups are gathered one at a time, each sized by a count
+/// first: on large data all of them together would be as long as the residuals.
+fn residual_spread(
+    codes: &[Option<u32>],
+    nlevels: usize,
+    used: &UsedRows,
+    residuals: &[f64],
+) -> Result<levene::EqualVariance, StatsError> {
+    let level_of = |i: usize| {
+        codes
+            .get(i)
+            .copied()
+            .flatten()
+            .and_then(|c| usize::try_from(c).ok())
+            .filter(|&c| c < nlevels)
+    };
+    let mut counts = vec![0usize; nlevels];
+    for c in used.iter().filter_map(level_of) {
+        if let Some(k) = counts.get_mut(c) {
+            *k += 1;
+        }
+    }
+    let (levels, sizes): (Vec<usize>, Vec<usize>) = counts
+        .iter()
+        .enumerate()
+        .filter(|(_, &k)| k > 0)
+        .map(|(level, &k)| (level, k))
+        .unzip();
+    levene::brown_forsythe_each(&sizes, |g| {
+        let Some(level) = levels.get(g).copied() else {
+            return Vec::new();
+        };
+        let mut group = Vec::with_capacity(sizes.get(g).copied().unwrap_or(0));
+        group.extend(
+            used.iter()
+                .zip(residuals)
+                .filter(|&(i, _)| level_of(i) == Some(level))
+                .map(|(_, &e)| e),
+        );
+        group
+    })
 }
 
 /// The equal-slopes row of factor `f` and covariate `x`, or None when the model already has
@@ -292,7 +326,7 @@ fn slopes_row(
     }
 }
 
-fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &[usize]) -> Vec<Cell> {
+fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cell> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
     let not_tested = |why: String| not_tested(&check, why);
@@ -335,7 +369,7 @@ fn one_way(
     values: &[f64],
     codes: &[Option<u32>],
     nlevels: usize,
-    used: &[usize],
+    used: &UsedRows,
 ) -> Result<(f64, usize, usize), ModelError> {
     let cell = |i: usize| -> Option<(usize, f64)> {
         let c = codes.get(i).copied().flatten()? as usize;
@@ -344,7 +378,7 @@ fn one_way(
     };
     let mut count = vec![0usize; nlevels];
     let mut sum = vec![0.0; nlevels];
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         count[c] += 1;
         sum[c] += v;
     }
@@ -354,7 +388,7 @@ fn one_way(
         .map(|(s, &n)| if n > 0 { s / n as f64 } else { 0.0 })
         .collect();
     let mut dev = vec![0.0; nlevels];
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         dev[c] += v - first[c];
     }
     let mean: Vec<f64> = (0..nlevels)
@@ -383,7 +417,7 @@ fn one_way(
         .map(|c| count[c] as f64 * (mean[c] - grand) * (mean[c] - grand))
         .sum();
     let mut within = 0.0;
-    for (c, v) in used.iter().filter_map(|&i| cell(i)) {
+    for (c, v) in used.iter().filter_map(cell) {
         within += (v - mean[c]) * (v - mean[c]);
     }
     let total = between + within;
@@ -418,10 +452,9 @@ impl Influence {
         let flagged = (0..n)
             .filter(|&k| {
                 d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
-                    || d.cooks_distance.get(k).is_some_and(|&c| c > cook_limit)
-                    || d.studentized
-                        .get(k)
-                        .is_some_and(|&s| s.abs() > STUDENTIZED_LIMIT)
+                    || d.cooks_distance(k).is_some_and(|c| c > cook_limit)
+                    || d.studentized(k)
+                        .is_some_and(|s| s.abs() > STUDENTIZED_LIMIT)
             })
             .collect();
         Influence {
@@ -483,7 +516,7 @@ impl Influence {
         );
         let mut listed = self.flagged.clone();
         if listed.len() > MAX_LISTED {
-            let cook = |k: usize| d.cooks_distance.get(k).copied().unwrap_or(f64::NAN);
+            let cook = |k: usize| d.cooks_distance(k).unwrap_or(f64::NAN);
             // Largest Cook's distance first (NaN last), ties in row order: deterministic.
             listed.sort_by(|&a, &b| {
                 cook(b)
@@ -499,12 +532,12 @@ impl Influence {
             ));
         }
         for &k in &listed {
-            let get = |v: &[f64]| v.get(k).copied().unwrap_or(f64::NAN);
+            let nan = f64::NAN;
             t.push(vec![
                 fit.row_number(k).map_or(Cell::Missing, Cell::from),
-                get(&d.leverage).into(),
-                get(&d.cooks_distance).into(),
-                get(&d.studentized).into(),
+                d.leverage.get(k).copied().unwrap_or(nan).into(),
+                d.cooks_distance(k).unwrap_or(nan).into(),
+                d.studentized(k).unwrap_or(nan).into(),
             ]);
         }
         t.notes

@@ -16,7 +16,7 @@ use std::sync::Arc;
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
-use crate::model::Fit;
+use crate::model::{Fit, RowLines};
 use crate::report::{InputRecord, Item};
 use crate::world::World;
 
@@ -38,7 +38,8 @@ pub struct Session<'w> {
     /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
     units: Vec<(String, String)>,
     /// Columns of the data sets as models hold them, one shared copy each, made on first use
-    /// and forgotten by every statement that changes a data set.
+    /// and forgotten by every statement that changes a data set (factor codes need none: a
+    /// factor's codes are shared as they are).
     shared: RefCell<SharedColumns>,
 }
 
@@ -47,9 +48,8 @@ pub struct Session<'w> {
 struct SharedColumns {
     /// Numeric values; `true` in the key for a column's exact-offset residuals.
     values: Vec<Shared<(usize, usize, bool), f64>>,
-    codes: Vec<Shared<(usize, usize), Option<u32>>>,
     /// Data-file line of each row, by data set.
-    rows: Vec<Shared<usize, usize>>,
+    rows: Vec<(usize, RowLines)>,
 }
 
 /// One shared copy and its key.
@@ -167,14 +167,15 @@ impl<'w> Session<'w> {
         )
     }
 
-    /// The shared factor codes of column `c` of data set `set`.
-    fn shared_codes(&self, set: usize, c: usize, codes: &[Option<u32>]) -> Arc<[Option<u32>]> {
-        share(&mut self.shared.borrow_mut().codes, (set, c), codes)
-    }
-
     /// The shared data-file lines of data set `set`.
-    fn shared_rows(&self, set: usize, rows: &[usize]) -> Arc<[usize]> {
-        share(&mut self.shared.borrow_mut().rows, set, rows)
+    fn shared_rows(&self, set: usize, rows: &[usize]) -> RowLines {
+        let list = &mut self.shared.borrow_mut().rows;
+        if let Some((_, r)) = list.iter().find(|(k, _)| *k == set) {
+            return r.clone();
+        }
+        let r = RowLines::from(rows);
+        list.push((set, r.clone()));
+        r
     }
 
     /// The unit declared for a column, if any.

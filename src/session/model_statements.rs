@@ -1,5 +1,7 @@
 //! Handlers of `model` and of the tables computed from fitted models.
 
+use std::sync::Arc;
+
 use super::data_statements::{column_index, numeric_values, quote_name};
 use super::{ModelEntry, Outcome, Session};
 use crate::data::Values;
@@ -46,7 +48,7 @@ impl Session<'_> {
                             },
                             Values::Factor(f) => Var::Factor {
                                 name: col.name.clone(),
-                                codes: self.shared_codes(si, ci, &f.codes),
+                                codes: Arc::clone(&f.codes),
                                 levels: f.levels.clone(),
                             },
                             Values::Text(_) => {

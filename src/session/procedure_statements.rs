@@ -1,6 +1,8 @@
 //! Handlers of the statements that make a document a procedure: `param`,
 //! the gates of `require`, and the reporting sentences of `report`.
 
+use std::sync::Arc;
+
 use super::data_statements::{column_index, factor_column, numeric_values};
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
@@ -124,8 +126,9 @@ impl Session<'_> {
             } => {
                 let alpha = alpha_of(alpha)?;
                 let set = self.current(factor.span)?;
+                let si = self.current.unwrap_or(0);
                 let ci = column_index(set, covariate)?;
-                let x = numeric_values(set, ci, covariate)?.into();
+                let x = self.shared_values(si, ci, false, numeric_values(set, ci, covariate)?);
                 let f = factor_column(set, factor)?;
                 let spec = ModelSpec {
                     response: Var::Numeric {
@@ -134,7 +137,7 @@ impl Session<'_> {
                     },
                     vars: vec![Var::Factor {
                         name: factor.value.clone(),
-                        codes: f.codes.as_slice().into(),
+                        codes: Arc::clone(&f.codes),
                         levels: f.levels.clone(),
                     }],
                     terms: vec![TermSpec {
@@ -144,7 +147,7 @@ impl Session<'_> {
                         }],
                     }],
                     intercept: true,
-                    row_numbers: set.row_numbers.as_slice().into(),
+                    row_numbers: self.shared_rows(si, &set.row_numbers),
                     response_offset: 0.0,
                 };
                 let fit = model::fit(&spec).map_err(|e| {
