@@ -1197,7 +1197,7 @@ fn count_lf(bytes: &[u8]) -> usize {
 ///
 /// let set = read_delimited(b"y,g\n1.5,a\n2,b\n", &LoadOptions::default()).unwrap();
 /// assert_eq!(set.row_numbers, vec![2, 3]);
-/// assert!(matches!(&set.columns[0].values, Values::Numeric(v) if v == &vec![1.5, 2.0]));
+/// assert!(matches!(&set.columns[0].values, Values::Numeric(v) if **v == [1.5, 2.0]));
 /// ```
 pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadError> {
     read_in_parts(bytes, opts, PART_BYTES)
@@ -1293,7 +1293,7 @@ pub(super) fn read_in_parts(
         .map(|(j, (name, c))| Column {
             name,
             values: match c {
-                Merged::Numeric { values, .. } => Values::Numeric(values),
+                Merged::Numeric { values, .. } => Values::Numeric(values.into()),
                 Merged::Text { mut values, .. } => {
                     values.shrink_to_fit();
                     Values::Text(values)

@@ -22,6 +22,8 @@ pub use factor::{make_factor, unused_levels, Factor, LevelOrder};
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
 
+use std::sync::Arc;
+
 use sha2::{Digest, Sha256};
 
 /// A loaded table: named columns of equal length.
@@ -78,8 +80,9 @@ fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
 /// The cells of a column.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Values {
-    /// Numbers; `f64::NAN` marks a missing cell (no other NaN can be loaded).
-    Numeric(Vec<f64>),
+    /// Numbers; `f64::NAN` marks a missing cell (no other NaN can be loaded). Shared with
+    /// the models fitted to them.
+    Numeric(Arc<[f64]>),
     /// Text; a missing cell has no text.
     Text(TextValues),
     /// Group labels coded as levels.
@@ -290,7 +293,7 @@ impl Values {
     /// Keeps the rows whose `keep` entry is true (rows beyond `keep` are dropped).
     fn filter(&self, keep: &[bool]) -> Values {
         match self {
-            Values::Numeric(v) => Values::Numeric(pick(v, keep)),
+            Values::Numeric(v) => Values::Numeric(pick(v, keep).into()),
             Values::Text(v) => Values::Text(v.filter(keep)),
             Values::Factor(f) => Values::Factor(Factor {
                 codes: pick(&f.codes, keep).into(),

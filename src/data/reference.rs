@@ -647,7 +647,7 @@ pub(super) fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet
         .map(|(j, (name, b))| Column {
             name,
             values: match b {
-                Builder::Numeric { values, .. } => Values::Numeric(values),
+                Builder::Numeric { values, .. } => Values::Numeric(values.into()),
                 Builder::Text { values, .. } => Values::Text(values.finish()),
             },
             exact: exact.get_mut(j).and_then(Option::take),

@@ -29,7 +29,7 @@ fn err(bytes: &[u8]) -> LoadError {
 
 fn nums(d: &DataSet, name: &str) -> Vec<f64> {
     match d.column(name).map(|c| &c.values) {
-        Some(Values::Numeric(v)) => v.clone(),
+        Some(Values::Numeric(v)) => v.to_vec(),
         other => panic!("{name} not numeric: {other:?}"),
     }
 }
@@ -621,7 +621,7 @@ fn factor_first_appearance() {
 fn factor_from_numeric_codes() {
     let c = Column {
         name: "dose".to_owned(),
-        values: Values::Numeric(vec![2.0, 1.0, f64::NAN, 2.5, -0.0, 0.0, 1.0]),
+        values: Values::Numeric(vec![2.0, 1.0, f64::NAN, 2.5, -0.0, 0.0, 1.0].into()),
         exact: None,
     };
     let f = make_factor(&c, None).unwrap_or_else(|e| panic!("{e}"));
@@ -717,7 +717,7 @@ fn factor_error_duplicate_declared() {
     );
     let n = Column {
         name: "d".to_owned(),
-        values: Values::Numeric(vec![1.0, 2.0]),
+        values: Values::Numeric(vec![1.0, 2.0].into()),
         exact: None,
     };
     let e = make_factor(&n, Some(&strings(&["1", "1.0", "2"]))).err();

@@ -1,6 +1,8 @@
 //! Handlers of the data statements: load, missing, use, factor, keep, show,
 //! and the summary table.
 
+use std::sync::Arc;
+
 use super::{Outcome, Session};
 use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, Values};
 use crate::diagnostic::Diagnostic;
@@ -419,7 +421,7 @@ pub(crate) fn numeric_values<'a>(
     set: &'a DataSet,
     idx: usize,
     column: &Spanned<String>,
-) -> Result<&'a [f64], Diagnostic> {
+) -> Result<&'a Arc<[f64]>, Diagnostic> {
     let col: &Column = &set.columns[idx];
     match &col.values {
         Values::Numeric(v) => Ok(v),

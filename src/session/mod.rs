@@ -46,8 +46,9 @@ pub struct Session<'w> {
 /// Shared copies of data-set columns, by (data set, column).
 #[derive(Default)]
 struct SharedColumns {
-    /// Numeric values; `true` in the key for a column's exact-offset residuals.
-    values: Vec<Shared<(usize, usize, bool), f64>>,
+    /// The exact-offset residuals of numeric columns (the values themselves are shared as
+    /// the data set holds them).
+    residuals: Vec<Shared<(usize, usize), f64>>,
     /// Data-file line of each row, by data set.
     rows: Vec<(usize, RowLines)>,
 }
@@ -157,14 +158,9 @@ impl<'w> Session<'w> {
             .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
     }
 
-    /// The shared numeric values of column `c` of data set `set` (`exact`: its exact-offset
-    /// residuals).
-    fn shared_values(&self, set: usize, c: usize, exact: bool, values: &[f64]) -> Arc<[f64]> {
-        share(
-            &mut self.shared.borrow_mut().values,
-            (set, c, exact),
-            values,
-        )
+    /// The shared exact-offset residuals of column `c` of data set `set`.
+    fn shared_residuals(&self, set: usize, c: usize, residuals: &[f64]) -> Arc<[f64]> {
+        share(&mut self.shared.borrow_mut().residuals, (set, c), residuals)
     }
 
     /// The shared data-file lines of data set `set`.

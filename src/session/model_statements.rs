@@ -27,8 +27,8 @@ impl Session<'_> {
         // Long cells (e.g. 1000000000000.4) come with exact residuals about an offset.
         let (response, response_offset) =
             match set.columns.get(ridx).and_then(|c| c.exact.as_deref()) {
-                Some(e) => (self.shared_values(si, ridx, true, &e.residuals), e.offset),
-                None => (self.shared_values(si, ridx, false, plain), 0.0),
+                Some(e) => (self.shared_residuals(si, ridx, &e.residuals), e.offset),
+                None => (Arc::clone(plain), 0.0),
             };
         let mut vars: Vec<Var> = Vec::new();
         let mut var_names: Vec<String> = Vec::new();
@@ -44,7 +44,7 @@ impl Session<'_> {
                         let v = match &col.values {
                             Values::Numeric(x) => Var::Numeric {
                                 name: col.name.clone(),
-                                values: self.shared_values(si, ci, false, x),
+                                values: Arc::clone(x),
                             },
                             Values::Factor(f) => Var::Factor {
                                 name: col.name.clone(),

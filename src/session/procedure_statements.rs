@@ -128,7 +128,7 @@ impl Session<'_> {
                 let set = self.current(factor.span)?;
                 let si = self.current.unwrap_or(0);
                 let ci = column_index(set, covariate)?;
-                let x = self.shared_values(si, ci, false, numeric_values(set, ci, covariate)?);
+                let x = Arc::clone(numeric_values(set, ci, covariate)?);
                 let f = factor_column(set, factor)?;
                 let spec = ModelSpec {
                     response: Var::Numeric {
