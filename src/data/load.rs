@@ -33,6 +33,9 @@ const PART_BYTES: usize = 1 << 19;
 /// about this many parts' worth of columns.
 const BATCH_PARTS: usize = 4;
 
+/// Rows from which the whole columns are finished (copied into shared slices) side by side.
+const PARALLEL_FINISH_ROWS: usize = 1 << 16;
+
 /// How to read a delimited file.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct LoadOptions {
@@ -595,8 +598,6 @@ const BLOCK_ROWS: usize = 4096;
 /// one run. The error reported is the one reading row by row would meet first: the earliest
 /// row with a bad record or cell, and in that row a bad record before a bad cell, and the
 /// leftmost bad cell.
-pub static SPLIT_NS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
-pub static TYPE_NS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
 fn read_part(
     body: &[u8],
     part: &Part,
@@ -643,7 +644,6 @@ fn read_part(
         // A bad record ends the part; the cells before it are still typed, since one of them
         // may be bad too (and come first).
         let mut bad_record = None;
-        let ts = std::time::Instant::now();
         while starts.len() < BLOCK_ROWS {
             let before = spans.len();
             let Some(at) = split.split_record(&mut spans, &mut side) else {
@@ -680,11 +680,6 @@ fn read_part(
         if starts.is_empty() && bad_record.is_none() {
             break;
         }
-        SPLIT_NS.fetch_add(
-            ts.elapsed().as_nanos() as u64,
-            std::sync::atomic::Ordering::Relaxed,
-        );
-        let tt = std::time::Instant::now();
         // The earliest bad cell: (row in the block, error).
         let mut bad_cell: Option<(usize, LoadError)> = None;
         let block = BlockCells {
@@ -700,10 +695,6 @@ fn read_part(
                 bad_cell = Some(e);
             }
         }
-        TYPE_NS.fetch_add(
-            tt.elapsed().as_nanos() as u64,
-            std::sync::atomic::Ordering::Relaxed,
-        );
         if let Some((r, error)) = bad_cell {
             let at = starts.get(r).copied().unwrap_or(RecordStart {
                 offset: part.start,
@@ -826,7 +817,6 @@ fn read_rows(
     let width = names.len();
     let data = (split.pos(), split.line());
 
-    let t0 = std::time::Instant::now();
     let starts = chunk_starts(body, data.0, delimiter, part_bytes);
     let ranges: Vec<(usize, usize)> = starts
         .iter()
@@ -852,9 +842,6 @@ fn read_rows(
     // Room for every row at once (one per line break, an upper bound), so that no column
     // grows by copying.
     let rows_bound: usize = parts.iter().map(|p| p.rows_bound).sum();
-    eprintln!("T starts+lf {:?}", t0.elapsed());
-    let mut tp = std::time::Duration::ZERO;
-    let mut tm = std::time::Duration::ZERO;
 
     let mut columns: Vec<Merged> = (0..width)
         .map(|_| Merged::Numeric {
@@ -875,7 +862,6 @@ fn read_rows(
             .map(|c| matches!(c, Merged::Text { .. }))
             .collect();
         let batch = parts.get(first..upto).unwrap_or_default();
-        let t1 = std::time::Instant::now();
         let jobs: Vec<(&Part, Mutex<Buffers>)> = batch
             .iter()
             .map(|p| (p, Mutex::new(spare.pop().unwrap_or_default())))
@@ -895,8 +881,6 @@ fn read_rows(
             )
         });
         drop(jobs);
-        tp += t1.elapsed();
-        let t2 = std::time::Instant::now();
         // The parts read, up to the first that failed.
         let mut batch_rows: Vec<(usize, PartRows)> = Vec::with_capacity(read.len());
         let mut failed = None;
@@ -948,10 +932,8 @@ fn read_rows(
             return Err(e.error);
         }
         refills.extend(merged.unwrap_or_default());
-        tm += t2.elapsed();
         first = upto;
     }
-    eprintln!("T parse {:?} merge {:?}", tp, tm);
     if row_numbers.is_empty() {
         return Err(LoadError::NoDataRows { line: header.line });
     }
@@ -1220,9 +1202,7 @@ pub(super) fn read_in_parts(
     if body.iter().all(|b| b.is_ascii_whitespace()) {
         return Err(LoadError::Empty);
     }
-    let tn = std::time::Instant::now();
     check_nul(body)?;
-    eprintln!("T nul {:?}", tn.elapsed());
     let markers: Vec<&[u8]> = opts
         .missing
         .iter()
@@ -1269,12 +1249,6 @@ pub(super) fn read_in_parts(
         });
     }
 
-    let tr = std::time::Instant::now();
-    eprintln!(
-        "T split {} ms type {} ms",
-        SPLIT_NS.load(std::sync::atomic::Ordering::Relaxed) / 1000000,
-        TYPE_NS.load(std::sync::atomic::Ordering::Relaxed) / 1000000
-    );
     refill(body, delimiter, &markers, &mut columns, &parts, &refills);
     let offsets: Vec<Option<i64>> = columns
         .iter()
@@ -1285,23 +1259,32 @@ pub(super) fn read_in_parts(
         .collect();
     let mut exact = exact_pass(body, data, delimiter, &markers, &offsets, row_numbers.len());
 
-    eprintln!("T refill+exact {:?}", tr.elapsed());
-    let columns = names
-        .into_iter()
-        .zip(columns)
-        .enumerate()
-        .map(|(j, (name, c))| Column {
-            name,
-            values: match c {
-                Merged::Numeric { values, .. } => Values::Numeric(values.into()),
-                Merged::Text { mut values, .. } => {
-                    values.shrink_to_fit();
-                    Values::Text(values)
-                }
-            },
-            exact: exact.get_mut(j).and_then(Option::take),
-        })
-        .collect();
+    let finish = |(name, c): (String, Merged)| Column {
+        name,
+        values: match c {
+            // Copied once into the shared slice that models use.
+            Merged::Numeric { values, .. } => Values::Numeric(values.into()),
+            Merged::Text { mut values, .. } => {
+                values.shrink_to_fit();
+                Values::Text(values)
+            }
+        },
+        exact: None,
+    };
+    let named = names.into_iter().zip(columns);
+    let mut columns: Vec<Column> = if row_numbers.len() >= PARALLEL_FINISH_ROWS {
+        use rayon::prelude::*;
+        named
+            .collect::<Vec<_>>()
+            .into_par_iter()
+            .map(finish)
+            .collect()
+    } else {
+        named.map(finish).collect()
+    };
+    for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
+        c.exact = e.take();
+    }
     Ok(DataSet {
         name: opts.name.clone(),
         columns,

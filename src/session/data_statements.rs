@@ -22,13 +22,10 @@ impl Session<'_> {
         path: &Spanned<String>,
         name: Option<&Spanned<String>>,
     ) -> Outcome {
-        let ta = std::time::Instant::now();
         let bytes = self
             .world
             .read(&path.value)
             .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
-        eprintln!("T read {:?}", ta.elapsed());
-        let tb = std::time::Instant::now();
         let lower = path.value.to_lowercase();
         let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
             b'\t'
@@ -64,7 +61,6 @@ impl Session<'_> {
                 data::sha256_hex(&bytes),
             )
         };
-        eprintln!("T load+sha {:?}", tb.elapsed());
         let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
                 .label("while reading this file")
@@ -86,9 +82,7 @@ impl Session<'_> {
             set.columns.len(),
             sha
         ))];
-        let tc = std::time::Instant::now();
         items.push(Item::Table(columns_table(&set, "Columns read")));
-        eprintln!("T coltable {:?}", tc.elapsed());
         if let Some(i) = self.data_sets.iter().position(|d| d.name == set_name) {
             self.data_sets[i] = set;
             self.current = Some(i);
