@@ -909,17 +909,20 @@ fn read_rows(
             &parts,
             rows_bound,
         );
-        if let Err((k, error)) = merged {
-            // The latest record read is the last of the parts up to the one that failed.
-            if let Some(at) = batch_rows
-                .iter()
-                .take_while(|(i, _)| *i <= k)
-                .filter_map(|(_, rows)| rows.last)
-                .last()
-            {
-                *last = at;
+        match merged {
+            Ok(more) => refills.extend(more),
+            Err((k, error)) => {
+                // The latest record read is the last of the parts up to the one that failed.
+                if let Some(at) = batch_rows
+                    .iter()
+                    .take_while(|(i, _)| *i <= k)
+                    .filter_map(|(_, rows)| rows.last)
+                    .last()
+                {
+                    *last = at;
+                }
+                return Err(error);
             }
-            return Err(error);
         }
         for (_, rows) in batch_rows {
             if let Some(at) = rows.last {
@@ -931,7 +934,6 @@ fn read_rows(
             *last = e.at;
             return Err(e.error);
         }
-        refills.extend(merged.unwrap_or_default());
         first = upto;
     }
     if row_numbers.is_empty() {
