@@ -411,7 +411,7 @@ impl Block {
         rows: &[usize],
     ) -> Result<(), ModelError> {
         let width = self.a.cols;
-        let bad = |j: usize| self.column(j).iter().any(|v| !v.is_finite());
+        let bad = |j: usize| !qr::all_finite(self.column(j));
         if !(0..width).any(bad) {
             return Ok(());
         }
@@ -441,7 +441,7 @@ impl Block {
             let k = x.len() as f64;
             let mean = mean_of(x);
             out.mean[j] = mean;
-            out.m2[j] = x.iter().map(|v| (v - mean) * (v - mean)).sum();
+            out.m2[j] = qr::sum_of(x, |v| (v - mean) * (v - mean));
             out.count = k;
         }
         out
@@ -481,7 +481,7 @@ impl Block {
         Moments {
             count: k,
             mean: vec![mean],
-            m2: vec![x.iter().map(|v| (v - mean) * (v - mean)).sum()],
+            m2: vec![qr::sum_of(x, |v| (v - mean) * (v - mean))],
         }
     }
 
@@ -489,9 +489,10 @@ impl Block {
     fn standardise(&mut self, centre: &[f64], scale: &[f64]) {
         let (ld, top) = (self.a.rows, self.top);
         for (j, col) in self.a.data.chunks_exact_mut(ld).enumerate() {
-            let (c, s) = (centre[j], scale[j]);
+            // One division for the column, not one per value.
+            let (c, inv) = (centre[j], 1.0 / scale[j]);
             for v in col.iter_mut().skip(top) {
-                *v = (*v - c) / s;
+                *v = (*v - c) * inv;
             }
         }
     }
@@ -504,8 +505,8 @@ fn mean_of(x: &[f64]) -> f64 {
         return 0.0;
     }
     let k = x.len() as f64;
-    let first = x.iter().sum::<f64>() / k;
-    first + x.iter().map(|v| v - first).sum::<f64>() / k
+    let first = qr::sum_of(x, |v| v) / k;
+    first + qr::sum_of(x, |v| v - first) / k
 }
 
 /// Count, means and centred sums of squares of a set of columns.

@@ -72,7 +72,57 @@ impl Mat {
 }
 
 fn norm2(x: &[f64]) -> f64 {
-    x.iter().map(|v| v * v).sum::<f64>().sqrt()
+    dot(x, x).sqrt()
+}
+
+/// Number of running sums in [`dot`] and [`sum`]. A single running sum waits on the previous
+/// addition at every step; eight independent ones fill the processor's vector units.
+const LANES: usize = 8;
+
+/// The dot product of the common length of `a` and `b`, summed in [`LANES`] running sums
+/// (element i goes to sum i mod LANES), which are then added in a fixed tree: the same
+/// order for the same input whatever the thread count, and no less accurate than summing
+/// in row order.
+pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a8, b8) = (a[..n].chunks_exact(LANES), b[..n].chunks_exact(LANES));
+    let tail: f64 = a8
+        .remainder()
+        .iter()
+        .zip(b8.remainder())
+        .map(|(x, y)| x * y)
+        .sum();
+    let mut acc = [0.0f64; LANES];
+    for (x, y) in a8.zip(b8) {
+        for ((s, p), q) in acc.iter_mut().zip(x).zip(y) {
+            *s += p * q;
+        }
+    }
+    reduce(acc) + tail
+}
+
+/// The sum of `f(v)` over `x`, in the order of [`dot`].
+#[inline]
+pub(crate) fn sum_of(x: &[f64], f: impl Fn(f64) -> f64) -> f64 {
+    let x8 = x.chunks_exact(LANES);
+    let tail: f64 = x8.remainder().iter().map(|&v| f(v)).sum();
+    let mut acc = [0.0f64; LANES];
+    for v in x8 {
+        for (s, &p) in acc.iter_mut().zip(v) {
+            *s += f(p);
+        }
+    }
+    reduce(acc) + tail
+}
+
+/// True when every value of `x` is finite: a sum of v * 0 is NaN exactly when some v is
+/// infinite or NaN, and it runs in lanes where a search would go one value at a time.
+pub(crate) fn all_finite(x: &[f64]) -> bool {
+    !sum_of(x, |v| v * 0.0).is_nan()
+}
+
+fn reduce(acc: [f64; LANES]) -> f64 {
+    ((acc[0] + acc[4]) + (acc[1] + acc[5])) + ((acc[2] + acc[6]) + (acc[3] + acc[7]))
 }
 
 /// Result of a column-by-column Householder triangularisation.
@@ -94,7 +144,11 @@ pub(crate) struct Tri {
 pub(crate) fn triangularize(a: &mut Mat, skip_tol: Option<f64>, keep_last: bool) -> Tri {
     let m = a.rows;
     let n = a.cols;
-    let orig: Vec<f64> = (0..n).map(|j| norm2(a.col(j))).collect();
+    // The original norms only matter for the aliasing test.
+    let orig: Vec<f64> = match skip_tol {
+        Some(_) => (0..n).map(|j| norm2(a.col(j))).collect(),
+        None => Vec::new(),
+    };
     let mut kept = Vec::new();
     let mut r = 0usize;
     for j in 0..n {
@@ -144,58 +198,29 @@ pub(crate) fn triangularize(a: &mut Mat, skip_tol: Option<f64>, keep_last: bool)
 /// down is `norm`) to columns j.. of `a`.
 fn reflect(a: &mut Mat, r: usize, j: usize, norm: f64) {
     let m = a.rows;
-    let n = a.cols;
-    if norm == 0.0 || !norm.is_finite() {
+    if norm == 0.0 || !norm.is_finite() || r >= m {
         return;
     }
     let x0 = a.get(r, j);
     let alpha = if x0 >= 0.0 { -norm } else { norm };
-    let mut v: Vec<f64> = a.data[j * m + r..(j + 1) * m].to_vec();
-    if let Some(v0) = v.first_mut() {
-        *v0 = x0 - alpha;
-    }
     let vtv = 2.0 * norm * (norm + x0.abs());
     if vtv == 0.0 {
         return;
     }
-    // Columns j+1.. in groups of four: the four dot products with v run side by side (each
-    // summed in row order, as one at a time would), which keeps the processor busy while
-    // each running sum waits for the previous addition.
-    let mut k = j + 1;
-    while k < n {
-        let group = (n - k).min(4);
-        let mut s = [0.0f64; 4];
-        {
-            let cols: Vec<&[f64]> = (k..k + group)
-                .map(|c| &a.data[c * m + r..(c + 1) * m])
-                .collect();
-            if let [c0, c1, c2, c3] = cols.as_slice() {
-                for ((((&vi, &x0), &x1), &x2), &x3) in v.iter().zip(*c0).zip(*c1).zip(*c2).zip(*c3)
-                {
-                    s[0] += vi * x0;
-                    s[1] += vi * x1;
-                    s[2] += vi * x2;
-                    s[3] += vi * x3;
-                }
-            } else {
-                for (g, col) in cols.iter().enumerate() {
-                    s[g] = v.iter().zip(col.iter()).map(|(p, q)| p * q).sum::<f64>();
-                }
-            }
+    // Column j from row r down holds the Householder vector v while the later columns are
+    // reflected, then becomes (alpha, 0, ..., 0).
+    let (head, later) = a.data.split_at_mut((j + 1) * m);
+    let v = &mut head[j * m + r..];
+    v[0] = x0 - alpha;
+    for colk in later.chunks_exact_mut(m) {
+        let colk = &mut colk[r..];
+        let f = 2.0 * dot(v, colk) / vtv;
+        for (q, p) in colk.iter_mut().zip(v.iter()) {
+            *q -= f * p;
         }
-        for (g, sg) in s.iter().enumerate().take(group) {
-            let f = 2.0 * sg / vtv;
-            let colk = &mut a.data[(k + g) * m + r..(k + g + 1) * m];
-            for (q, p) in colk.iter_mut().zip(v.iter()) {
-                *q -= f * p;
-            }
-        }
-        k += group;
     }
-    a.set(r, j, alpha);
-    if let Some(below) = a.data.get_mut(j * m + r + 1..(j + 1) * m) {
-        below.fill(0.0);
-    }
+    v[0] = alpha;
+    v[1..].fill(0.0);
 }
 
 /// Accumulates the upper-triangular factor R of a tall matrix delivered one row at a time,
