@@ -25,6 +25,18 @@ pub fn configure() {
     }
 }
 
+/// Rows per block in [`row_blocks`].
+pub const BLOCK_ROWS: usize = 1 << 16;
+
+/// The rows 0..n in consecutive blocks of [`BLOCK_ROWS`] (the last may be shorter; none when
+/// n is 0): boundaries that depend only on n, for [`map`].
+pub fn row_blocks(n: usize) -> Vec<std::ops::Range<usize>> {
+    (0..n)
+        .step_by(BLOCK_ROWS)
+        .map(|a| a..(a + BLOCK_ROWS).min(n))
+        .collect()
+}
+
 /// `f` applied to every item, results in item order: on the thread pool when there is more
 /// than one item, else on this thread (so small inputs never start the pool).
 pub fn map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync + Send) -> Vec<R> {
@@ -33,5 +45,19 @@ pub fn map<T: Sync, R: Send>(items: &[T], f: impl Fn(&T) -> R + Sync + Send) -> 
         items.par_iter().map(f).collect()
     } else {
         items.iter().map(f).collect()
+    }
+}
+
+/// `(a(), b())`, side by side on the thread pool when `parallel`, else one after the other on
+/// this thread (so small inputs never start the pool).
+pub fn join_if<A: Send, B: Send>(
+    parallel: bool,
+    a: impl FnOnce() -> A + Send,
+    b: impl FnOnce() -> B + Send,
+) -> (A, B) {
+    if parallel {
+        rayon::join(a, b)
+    } else {
+        (a(), b())
     }
 }

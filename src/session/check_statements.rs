@@ -75,9 +75,40 @@ impl Session<'_> {
                 Col::new("verdict", "verdict", Format::Text),
             ],
         );
-        t.push(normality_row(&diag.residuals, &m.name));
-        for &f in &factors {
-            t.push(spread_row(spec, f, used, &diag.residuals));
+        // The checks that each pass over every row run side by side on large data; the
+        // table is assembled in its fixed order afterwards.
+        let big = n >= crate::parallel::BLOCK_ROWS;
+        let ((normality, spread), (balance, influence)) = crate::parallel::join_if(
+            big,
+            || {
+                crate::parallel::join_if(
+                    big,
+                    || normality_row(&diag.residuals, &m.name),
+                    || {
+                        factors
+                            .iter()
+                            .map(|&f| spread_row(spec, f, used, &diag.residuals))
+                            .collect::<Vec<_>>()
+                    },
+                )
+            },
+            || {
+                crate::parallel::join_if(
+                    big,
+                    || {
+                        factors
+                            .iter()
+                            .flat_map(|&f| covariates.iter().map(move |&x| (f, x)))
+                            .map(|(f, x)| balance_row(spec, f, x, used))
+                            .collect::<Vec<_>>()
+                    },
+                    || Influence::new(diag, fit.n_coef()),
+                )
+            },
+        );
+        t.push(normality);
+        for row in spread {
+            t.push(row);
         }
         let known: Vec<&Fit> = self.models.iter().map(|m| &m.fit).collect();
         let mut have_interaction = Vec::new();
@@ -89,13 +120,10 @@ impl Session<'_> {
                 }
             }
         }
-        for &f in &factors {
-            for &x in &covariates {
-                t.push(balance_row(spec, f, x, used));
-            }
+        for row in balance {
+            t.push(row);
         }
         t.subject = Some(m.name.clone());
-        let influence = Influence::new(diag, fit.n_coef());
         t.push(influence.row());
 
         t.notes.push(format!(
@@ -449,14 +477,17 @@ impl Influence {
         let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
         let cook_limit = COOK_NUMERATOR / nf;
         // NaN (undefined at leverage 1) compares false and flags nothing by itself.
-        let flagged = (0..n)
-            .filter(|&k| {
-                d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
-                    || d.cooks_distance(k).is_some_and(|c| c > cook_limit)
-                    || d.studentized(k)
-                        .is_some_and(|s| s.abs() > STUDENTIZED_LIMIT)
-            })
-            .collect();
+        let flags = |rows: &std::ops::Range<usize>| -> Vec<usize> {
+            rows.clone()
+                .filter(|&k| {
+                    d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
+                        || d.cooks_distance(k).is_some_and(|c| c > cook_limit)
+                        || d.studentized(k)
+                            .is_some_and(|s| s.abs() > STUDENTIZED_LIMIT)
+                })
+                .collect()
+        };
+        let flagged = crate::parallel::map(&crate::parallel::row_blocks(n), flags).concat();
         Influence {
             n,
             coefficients,
@@ -516,15 +547,18 @@ impl Influence {
         );
         let mut listed = self.flagged.clone();
         if listed.len() > MAX_LISTED {
-            let cook = |k: usize| d.cooks_distance(k).unwrap_or(f64::NAN);
-            // Largest Cook's distance first (NaN last), ties in row order: deterministic.
-            listed.sort_by(|&a, &b| {
-                cook(b)
-                    .partial_cmp(&cook(a))
-                    .unwrap_or_else(|| cook(a).is_nan().cmp(&cook(b).is_nan()))
-                    .then(a.cmp(&b))
+            // Largest Cook's distance first (NaN last), ties in row order: a strict order, so
+            // the rows chosen are the same however the selection runs.
+            let mut keyed: Vec<(f64, usize)> = listed
+                .iter()
+                .map(|&k| (d.cooks_distance(k).unwrap_or(f64::NAN), k))
+                .collect();
+            keyed.select_nth_unstable_by(MAX_LISTED - 1, |a, b| {
+                b.0.partial_cmp(&a.0)
+                    .unwrap_or_else(|| a.0.is_nan().cmp(&b.0.is_nan()))
+                    .then(a.1.cmp(&b.1))
             });
-            listed.truncate(MAX_LISTED);
+            listed = keyed.iter().take(MAX_LISTED).map(|&(_, k)| k).collect();
             listed.sort_unstable();
             t.notes.push(format!(
                 "{} rows are past a threshold; the {MAX_LISTED} with the largest Cook's distance are listed.",
