@@ -8,8 +8,9 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-/// Rows: many engine blocks (4096 rows each) and loader parts (about 512 KiB each).
-const ROWS: usize = 60_000;
+/// Rows: many engine blocks (4096 rows each), loader parts (about 512 KiB each), and blocks of
+/// the checks and figures (65,536 rows each; the last one short).
+const ROWS: usize = 150_000;
 
 const DOC: &str = "# Threads\n\n*Invented data.*\n\n```covey
 load \"d.csv\" as d

@@ -3,6 +3,8 @@
 
 use statrs::distribution::{ContinuousCDF, Normal};
 
+use std::ops::Range;
+
 use super::chart::{Chart, Curve, Guide, Interval, Point};
 use super::{style, Drawn, PlotError, Request};
 use crate::model::{Fit, Transform, UsedRows, Var};
@@ -93,10 +95,20 @@ impl Groups {
             };
         };
         let code_of = |i: usize| codes.get(i).copied().flatten();
+        let blocks = crate::parallel::row_blocks(rows.index.len());
+        let present_in = |at: &Range<usize>| {
+            let mut present = vec![false; levels.len()];
+            for c in at.clone().filter_map(|k| code_of(rows.index.get(k)?)) {
+                if let Some(p) = present.get_mut(c as usize) {
+                    *p = true;
+                }
+            }
+            present
+        };
         let mut present = vec![false; levels.len()];
-        for c in rows.index.iter().filter_map(code_of) {
-            if let Some(p) = present.get_mut(c as usize) {
-                *p = true;
+        for block in crate::parallel::map(&blocks, present_in) {
+            for (p, b) in present.iter_mut().zip(block) {
+                *p |= b;
             }
         }
         let kept: Vec<u32> = (0..levels.len() as u32)
@@ -113,20 +125,31 @@ impl Groups {
                 *p = k;
             }
         }
-        let of_row = rows
-            .index
-            .iter()
-            .map(|i| {
-                code_of(i)
-                    .and_then(|c| position.get(c as usize).copied())
-                    .unwrap_or(NO_GROUP)
-            })
-            .collect();
+        let of_row = crate::parallel::map(&blocks, |at| {
+            at.clone()
+                .map(|k| {
+                    rows.index
+                        .get(k)
+                        .and_then(code_of)
+                        .and_then(|c| position.get(c as usize).copied())
+                        .unwrap_or(NO_GROUP)
+                })
+                .collect::<Vec<u16>>()
+        })
+        .concat();
         Groups {
             labels,
             codes: kept,
             of_row,
         }
+    }
+
+    /// The group of the k-th fitted row (None for none).
+    fn group(&self, k: usize) -> Option<usize> {
+        self.of_row
+            .get(k)
+            .filter(|&&g| g != NO_GROUP)
+            .map(|&g| usize::from(g))
     }
 
     /// The group of each fitted row (None for none), in row order.
@@ -172,33 +195,106 @@ fn thin(points: &mut Vec<Point>) -> usize {
     k
 }
 
-/// The points `candidates` yields, thinned exactly as [`thin`] would thin them, without
-/// holding them all: the candidates are produced twice, once to count them. Returns the kept
-/// points, the thinning step and the number of candidates.
-fn thinned<I: Iterator<Item = Point>>(candidates: impl Fn() -> I) -> (Vec<Point>, usize, usize) {
-    let n = candidates().count();
-    let k = if n <= MAX_POINTS {
+/// The points `candidates(positions)` yields for the fitted rows at `positions`, taken over
+/// all `n_rows` of them and thinned exactly as [`thin`] would thin them, without holding
+/// them all. The rows are taken in fixed blocks, side by side: once to count each group's
+/// points (and their range of x), then again to keep every k-th of each group, each block
+/// starting from the counts of the blocks before it; so the points kept do not depend on
+/// the number of threads.
+fn thinned<I, F>(n_rows: usize, candidates: F) -> Thinned
+where
+    I: Iterator<Item = Point>,
+    F: Fn(Range<usize>) -> I + Sync,
+{
+    let blocks = crate::parallel::row_blocks(n_rows);
+    let tallies: Vec<Vec<Tally>> = crate::parallel::map(&blocks, |b| {
+        let mut t: Vec<Tally> = Vec::new();
+        for p in candidates(b.clone()) {
+            if t.len() <= p.group {
+                t.resize(p.group + 1, Tally::EMPTY);
+            }
+            if let Some(g) = t.get_mut(p.group) {
+                g.count += 1;
+                g.lo = g.lo.min(p.x);
+                g.hi = g.hi.max(p.x);
+            }
+        }
+        t
+    });
+    // Each block's starting count in every group: the counts of the blocks before it.
+    let mut starts: Vec<Vec<usize>> = Vec::with_capacity(blocks.len());
+    let mut whole: Vec<Tally> = Vec::new();
+    for t in &tallies {
+        starts.push(whole.iter().map(|w| w.count).collect());
+        if whole.len() < t.len() {
+            whole.resize(t.len(), Tally::EMPTY);
+        }
+        for (w, g) in whole.iter_mut().zip(t) {
+            w.count += g.count;
+            w.lo = w.lo.min(g.lo);
+            w.hi = w.hi.max(g.hi);
+        }
+    }
+    let total: usize = whole.iter().map(|w| w.count).sum();
+    let step = if total <= MAX_POINTS {
         1
     } else {
-        n.div_ceil(MAX_POINTS)
+        total.div_ceil(MAX_POINTS)
     };
-    let mut seen: Vec<usize> = Vec::new();
-    let kept = candidates()
-        .filter(|p| {
-            if seen.len() <= p.group {
-                seen.resize(p.group + 1, 0);
-            }
-            match seen.get_mut(p.group) {
-                Some(c) => {
-                    let keep = *c % k == 0;
-                    *c += 1;
-                    keep
+    let jobs: Vec<(Range<usize>, Vec<usize>)> = blocks.into_iter().zip(starts).collect();
+    let kept: Vec<Vec<Point>> = crate::parallel::map(&jobs, |(b, start)| {
+        let mut seen = start.clone();
+        candidates(b.clone())
+            .filter(|p| {
+                if seen.len() <= p.group {
+                    seen.resize(p.group + 1, 0);
                 }
-                None => false,
-            }
-        })
-        .collect();
-    (kept, k, n)
+                match seen.get_mut(p.group) {
+                    Some(c) => {
+                        let keep = *c % step == 0;
+                        *c += 1;
+                        keep
+                    }
+                    None => false,
+                }
+            })
+            .collect()
+    });
+    Thinned {
+        points: kept.concat(),
+        step,
+        total,
+        ranges: whole.iter().map(|w| (w.lo, w.hi)).collect(),
+    }
+}
+
+/// What [`thinned`] returns.
+struct Thinned {
+    /// The points kept.
+    points: Vec<Point>,
+    /// Every how many points of a group one is kept (1 = all).
+    step: usize,
+    /// Number of candidate points.
+    total: usize,
+    /// Per group, the smallest and largest x of all its candidates (infinite bounds the
+    /// wrong way round for a group without any).
+    ranges: Vec<(f64, f64)>,
+}
+
+/// One group's points within a block of rows: how many, and their range of x.
+#[derive(Debug, Clone, Copy)]
+struct Tally {
+    count: usize,
+    lo: f64,
+    hi: f64,
+}
+
+impl Tally {
+    const EMPTY: Tally = Tally {
+        count: 0,
+        lo: f64::INFINITY,
+        hi: f64::NEG_INFINITY,
+    };
 }
 
 /// Values of a numeric variable of the fit (empty for a factor or an unknown index).
@@ -320,27 +416,24 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
     let (xs, ys) = (var_values(fit, Some(xv)), response_values(fit));
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
-    let candidates = || {
-        rows.index.iter().zip(groups.rows()).filter_map(|(i, g)| {
+    let candidates = |at: Range<usize>| {
+        at.filter_map(|k| {
+            let i = rows.index.get(k)?;
+            let group = groups.group(k)?;
             let (x, y) = (
                 xs.get(i).copied().unwrap_or(f64::NAN),
                 ys.get(i).copied().unwrap_or(f64::NAN),
             );
-            match (g, x.is_finite() && y.is_finite()) {
-                (Some(group), true) => Some(Point { group, x, y }),
-                _ => None,
-            }
+            (x.is_finite() && y.is_finite()).then_some(Point { group, x, y })
         })
     };
-    // Each level's observed range of the covariate, over every point (not only those drawn).
     let nlines = groups.legend().len();
-    let mut range = vec![(f64::INFINITY, f64::NEG_INFINITY); nlines];
-    for p in candidates() {
-        if let Some(r) = range.get_mut(p.group) {
-            *r = (r.0.min(p.x), r.1.max(p.x));
-        }
-    }
-    let (points, k, n) = thinned(candidates);
+    let Thinned {
+        points,
+        step: k,
+        total: n,
+        ranges: range,
+    } = thinned(rows.index.len(), candidates);
     let mut curves = Vec::new();
     let steps = if straight_in(fit, xv) { 1 } else { CURVE_STEPS };
     for g in 0..nlines {
@@ -446,21 +539,20 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         Some(_) => covariate.get(i).copied().unwrap_or(f64::NAN),
         None => d.fitted.get(k).copied().unwrap_or(f64::NAN),
     };
-    let candidates = || {
-        rows.index
-            .iter()
-            .zip(&d.residuals)
-            .zip(groups.rows())
-            .enumerate()
-            .filter_map(|(k, ((i, &y), g))| {
-                let x = x_of(k, i);
-                match (g, x.is_finite() && y.is_finite()) {
-                    (Some(group), true) => Some(Point { group, x, y }),
-                    _ => None,
-                }
-            })
+    let candidates = |at: Range<usize>| {
+        at.filter_map(|k| {
+            let i = rows.index.get(k)?;
+            let group = groups.group(k)?;
+            let (x, y) = (x_of(k, i), d.residuals.get(k).copied()?);
+            (x.is_finite() && y.is_finite()).then_some(Point { group, x, y })
+        })
     };
-    let (points, k, n) = thinned(candidates);
+    let Thinned {
+        points,
+        step: k,
+        total: n,
+        ..
+    } = thinned(rows.index.len(), candidates);
     let note = thinned_note(k, n);
     let against = match &req.covariate_name {
         Some(x) => x.clone(),
@@ -789,4 +881,41 @@ pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         alt,
         caption,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Invented points over several blocks: three groups in an irregular pattern, with rows
+    /// that yield no point.
+    fn point_at(k: usize) -> Option<Point> {
+        let h = k.wrapping_mul(2_654_435_761) % 97;
+        (h % 11 != 0).then_some(Point {
+            group: h % 3,
+            x: (k % 1000) as f64 * 0.5 - h as f64,
+            y: h as f64,
+        })
+    }
+
+    #[test]
+    fn block_thinning_keeps_the_points_of_one_pass_thinning() {
+        for n in [0, 10, 2_999, 70_000, 3 * crate::parallel::BLOCK_ROWS + 17] {
+            let mut all: Vec<Point> = (0..n).filter_map(point_at).collect();
+            let total = all.len();
+            let mut ranges = vec![(f64::INFINITY, f64::NEG_INFINITY); 3];
+            for p in &all {
+                let r = &mut ranges[p.group];
+                *r = (r.0.min(p.x), r.1.max(p.x));
+            }
+            let step = thin(&mut all);
+            let t = thinned(n, |at: Range<usize>| at.filter_map(point_at));
+            assert_eq!(t.points, all, "n = {n}");
+            assert_eq!((t.step, t.total), (step, total), "n = {n}");
+            // Groups after the last one with a point have no entry.
+            let mut got = t.ranges.clone();
+            got.resize(3, (f64::INFINITY, f64::NEG_INFINITY));
+            assert_eq!(got, ranges, "n = {n}");
+        }
+    }
 }
