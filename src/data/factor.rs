@@ -49,10 +49,22 @@ impl Factor {
 
     /// Number of rows at each level, in level order.
     pub fn counts(&self) -> Vec<usize> {
+        let count = |codes: &[Option<u32>]| {
+            let mut counts = vec![0usize; self.levels.len()];
+            for code in codes.iter().flatten() {
+                if let Some(c) = usize::try_from(*code).ok().and_then(|i| counts.get_mut(i)) {
+                    *c += 1;
+                }
+            }
+            counts
+        };
+        let blocks = crate::parallel::row_blocks(self.codes.len());
         let mut counts = vec![0usize; self.levels.len()];
-        for code in self.codes.iter().flatten() {
-            if let Some(c) = usize::try_from(*code).ok().and_then(|i| counts.get_mut(i)) {
-                *c += 1;
+        for block in crate::parallel::map(&blocks, |at| {
+            count(self.codes.get(at.clone()).unwrap_or(&[]))
+        }) {
+            for (c, b) in counts.iter_mut().zip(block) {
+                *c += b;
             }
         }
         counts
@@ -129,6 +141,12 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
     }
 
     let n = col.len();
+    if let Values::Text(t) = &col.values {
+        if n >= crate::parallel::BLOCK_ROWS && t.n_texts() <= BLOCKED_TEXTS {
+            let codes = text_codes_blocked(t, &mut map, &mut names, declared.is_some(), column)?;
+            return finish(codes, names, order, column);
+        }
+    }
     let mut codes: Vec<Option<u32>> = Vec::with_capacity(n);
     // A text column already codes its distinct texts: each is looked up once, the first time
     // a row has it, and later rows reuse the answer (the same codes and the same first
@@ -203,6 +221,94 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
         codes.push(Some(code));
     }
 
+    finish(codes, names, order, column)
+}
+
+/// Most distinct texts for [`text_codes_blocked`], whose blocks each keep a table this long.
+const BLOCKED_TEXTS: usize = 1 << 12;
+
+/// The level codes of a large text column with few distinct texts, row by row, the same as
+/// the one-row-at-a-time loop of [`make_factor`] gives (and the same first error), computed
+/// in fixed blocks of rows on the thread pool: first the first row of each distinct text,
+/// then each text's level in the order the texts first appear, then every row's code.
+fn text_codes_blocked<'a>(
+    t: &'a super::TextValues,
+    map: &mut BTreeMap<Key<'a>, u32>,
+    names: &mut Vec<String>,
+    declared: bool,
+    column: impl Fn() -> String,
+) -> Result<Vec<Option<u32>>, FactorError> {
+    use rayon::prelude::*;
+    let row_codes = t.codes();
+    let n_texts = t.n_texts();
+    let index = |tc: u32| usize::try_from(tc).ok().filter(|&i| i < n_texts);
+    let blocks = crate::parallel::row_blocks(row_codes.len());
+    let firsts = crate::parallel::map(&blocks, |at| {
+        let mut first = vec![usize::MAX; n_texts];
+        let cells = row_codes.get(at.clone()).unwrap_or(&[]);
+        for (row, &tc) in (at.start..).zip(cells) {
+            if let Some(f) = index(tc).and_then(|i| first.get_mut(i)) {
+                *f = (*f).min(row);
+            }
+        }
+        first
+    });
+    let mut first = vec![usize::MAX; n_texts];
+    for block in &firsts {
+        for (f, &b) in first.iter_mut().zip(block) {
+            *f = (*f).min(b);
+        }
+    }
+    let mut by_appearance: Vec<(usize, u32)> = (0..)
+        .zip(&first)
+        .filter(|&(_, &row)| row != usize::MAX)
+        .map(|(tc, &row)| (row, tc))
+        .collect();
+    by_appearance.sort_unstable();
+    let mut memo: Vec<Option<u32>> = vec![None; n_texts];
+    for (row, tc) in by_appearance {
+        let Some(text) = t.text_of(tc) else { continue };
+        let code = match map.get(&Key::Text(text)) {
+            Some(&c) => c,
+            None if declared => {
+                return Err(FactorError::UndeclaredLevel {
+                    column: column(),
+                    value: text.to_owned(),
+                    row,
+                    line: None,
+                })
+            }
+            None => {
+                let c = u32::try_from(names.len())
+                    .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+                map.insert(Key::Text(text), c);
+                names.push(text.to_owned());
+                c
+            }
+        };
+        if let Some(m) = index(tc).and_then(|i| memo.get_mut(i)) {
+            *m = Some(code);
+        }
+    }
+    let mut codes: Vec<Option<u32>> = vec![None; row_codes.len()];
+    codes
+        .par_chunks_mut(crate::parallel::BLOCK_ROWS)
+        .zip(row_codes.par_chunks(crate::parallel::BLOCK_ROWS))
+        .for_each(|(out, cells)| {
+            for (o, &tc) in out.iter_mut().zip(cells) {
+                *o = index(tc).and_then(|i| memo.get(i).copied().flatten());
+            }
+        });
+    Ok(codes)
+}
+
+/// The factor of the codes, or the error of one with fewer than two levels occurring.
+fn finish(
+    codes: Vec<Option<u32>>,
+    names: Vec<String>,
+    order: LevelOrder,
+    column: impl Fn() -> String,
+) -> Result<Factor, FactorError> {
     let factor = Factor {
         codes: codes.into(),
         levels: names,

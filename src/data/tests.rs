@@ -879,3 +879,75 @@ fn filter_keeps_exact_residuals_in_step() {
     assert!(same_bits(&e.residuals, &[0.4, 0.5]));
     assert_eq!(nums(&f, "y").len(), 2);
 }
+
+/// A text column of `rows` rows whose distinct texts are coded in another order than they
+/// first appear ("z" has code 0 but first appears in the second block of rows), with
+/// missing cells.
+fn blocked_text_col(rows: usize) -> Column {
+    let mut t = TextValues::with_capacity(rows);
+    let codes: Vec<u32> = ["z", "b", "a", "q"]
+        .iter()
+        .map(|s| t.add_text(s).unwrap_or(TextValues::MISSING))
+        .collect();
+    for r in 0..rows {
+        let code = match r {
+            100_000 | 120_001 => codes[0],
+            150_000 => codes[3],
+            _ if r % 7 == 3 => TextValues::MISSING,
+            _ if r % 3 == 0 => codes[1],
+            _ => codes[2],
+        };
+        t.push_code(code);
+    }
+    Column {
+        name: "g".to_owned(),
+        values: Values::Text(t),
+        exact: None,
+    }
+}
+
+#[test]
+fn large_text_factor_matches_row_by_row_coding() {
+    let rows = 200_000;
+    let c = blocked_text_col(rows);
+    let Values::Text(t) = &c.values else {
+        panic!("not text")
+    };
+    // Expected, one row at a time: levels in order of first appearance.
+    let mut levels: Vec<String> = Vec::new();
+    let mut expected: Vec<Option<u32>> = Vec::new();
+    for r in 0..rows {
+        expected.push(t.get(r).map(|s| {
+            let at = levels.iter().position(|l| l == s).unwrap_or_else(|| {
+                levels.push(s.to_owned());
+                levels.len() - 1
+            });
+            at as u32
+        }));
+    }
+    let f = make_factor(&c, None).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(f.levels, strings(&["b", "a", "z", "q"]));
+    assert_eq!(*f.codes, expected[..]);
+    assert_eq!(
+        f.counts().iter().sum::<usize>(),
+        expected.iter().flatten().count()
+    );
+
+    let declared = strings(&["q", "a", "b", "z"]);
+    let f = make_factor(&c, Some(&declared)).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(f.codes.get(100_000), Some(&Some(3)));
+    assert_eq!(f.codes.get(150_000), Some(&Some(0)));
+    assert_eq!(f.codes.get(3), Some(&None));
+
+    // Two undeclared texts: the error names the one on the earlier row.
+    let e = make_factor(&c, Some(&strings(&["a", "b"]))).err();
+    assert_eq!(
+        e,
+        Some(FactorError::UndeclaredLevel {
+            column: "g".to_owned(),
+            value: "z".to_owned(),
+            row: 100_000,
+            line: None
+        })
+    );
+}
