@@ -310,18 +310,39 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
     used_vars.sort_unstable();
     let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
 
-    // Rows used: no list until a row is left out (see UsedRows).
+    // Rows used: no list until a row is left out (see UsedRows). Blocks of rows are looked
+    // at side by side, each giving its complete rows (None: all of them) or its first
+    // error; the first block's error in row order is the first error.
+    let blocks = crate::parallel::row_blocks(n);
+    let parts = crate::parallel::map(&blocks, |at| -> Result<Option<Vec<usize>>, ModelError> {
+        let mut listed: Option<Vec<usize>> = None;
+        for i in at.clone() {
+            let yi = y.get(i).copied().unwrap_or(f64::NAN);
+            let keep = row_complete(spec, &used_vars, i, yi)?;
+            match (&mut listed, keep) {
+                (Some(v), true) => v.push(i),
+                (None, false) => {
+                    let mut v = Vec::with_capacity(at.len());
+                    v.extend(at.start..i);
+                    listed = Some(v);
+                }
+                _ => {}
+            }
+        }
+        Ok(listed)
+    });
     let mut listed: Option<Vec<usize>> = None;
-    for (i, &yi) in y.iter().enumerate() {
-        let keep = row_complete(spec, &used_vars, i, yi)?;
-        match (&mut listed, keep) {
-            (Some(v), true) => v.push(i),
-            (None, false) => {
+    for (at, part) in blocks.iter().zip(parts) {
+        match (part?, &mut listed) {
+            (None, None) => {}
+            (None, Some(v)) => v.extend(at.clone()),
+            (Some(p), None) => {
                 let mut v = Vec::with_capacity(n);
-                v.extend(0..i);
+                v.extend(0..at.start);
+                v.extend(p);
                 listed = Some(v);
             }
-            _ => {}
+            (Some(p), Some(v)) => v.extend(p),
         }
     }
     let used = match listed {
@@ -388,10 +409,15 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                 levels,
             }) => {
                 let mut has = vec![false; levels.len()];
+                let mut missing = levels.len();
                 for i in used.iter() {
                     if let Some(Some(c)) = codes.get(i) {
-                        if let Some(h) = has.get_mut(*c as usize) {
+                        if let Some(h) = has.get_mut(*c as usize).filter(|h| !**h) {
                             *h = true;
+                            missing -= 1;
+                            if missing == 0 {
+                                break;
+                            }
                         }
                     }
                 }
@@ -427,6 +453,10 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                     }
                     if distinct.len() <= 6 && !distinct.contains(&x) {
                         distinct.push(x);
+                    }
+                    // Past FEW_DISTINCT distinct values neither check below can change.
+                    if distinct.len() > 6 {
+                        break;
                     }
                 }
                 if distinct.len() < 2 {

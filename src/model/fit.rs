@@ -220,12 +220,17 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
                 .iter()
                 .any(|t| t.parts.iter().any(|q| q.var == v))
             {
-                let x: Vec<f64> = lay
-                    .used
-                    .iter()
-                    .map(|i| values.get(i).copied().unwrap_or(0.0))
-                    .collect();
-                cov_means.push((v, mean_of(&x)));
+                let mean = match &lay.used {
+                    UsedRows::All(n) => mean_of(values.get(..*n).unwrap_or(&[])),
+                    UsedRows::Listed(rows) => {
+                        let x: Vec<f64> = rows
+                            .iter()
+                            .map(|&i| values.get(i).copied().unwrap_or(0.0))
+                            .collect();
+                        mean_of(&x)
+                    }
+                };
+                cov_means.push((v, mean));
             }
         }
     }

@@ -1691,3 +1691,36 @@ fn derived_effect_engine_matches_the_rows() {
         }
     }
 }
+
+/// Invented rows over several blocks of the layout's row scan (65,536 rows each): the rows
+/// used, and the first non-finite value in row order, are those of a row-by-row scan.
+#[test]
+fn rows_used_across_blocks() {
+    let n = 200_000;
+    let levels = ["a1", "a2", "a3"];
+    let a: Vec<&str> = (0..n).map(|i| levels[i % 3]).collect();
+    let x: Vec<f64> = (0..n).map(|i| (i % 101) as f64 * 0.25).collect();
+    let mut y: Vec<f64> = (0..n).map(|i| 1.0 + (i % 7) as f64 + 0.5 * x[i]).collect();
+    let gaps = [70_000, 70_001, 140_000, 199_999];
+    for &g in &gaps {
+        y[g] = f64::NAN;
+    }
+    let spec = |y: Vec<f64>| ModelSpec {
+        response: num("y", y),
+        vars: vec![factor("a", &a, &levels), num("x", x.clone())],
+        terms: vec![term(&[0]), term(&[1])],
+        intercept: true,
+        row_numbers: (2..n + 2).collect(),
+        response_offset: 0.0,
+    };
+    let f = fit(&spec(y.clone())).expect("fit");
+    let want: Vec<usize> = (0..n).filter(|i| !gaps.contains(i)).collect();
+    assert_eq!(f.used_rows(), &UsedRows::Listed(want));
+    let mut bad = y;
+    bad[150_000] = f64::INFINITY;
+    bad[190_000] = f64::NEG_INFINITY;
+    match fit(&spec(bad)) {
+        Err(ModelError::NonFiniteValue { row, .. }) => assert_eq!(row, 150_002),
+        other => panic!("expected the first non-finite row, got {other:?}"),
+    }
+}
