@@ -79,7 +79,7 @@ fn spec(d: &Data) -> ModelSpec {
     ModelSpec {
         response: Var::Numeric {
             name: "y".into(),
-            values: d.y.as_slice().into(),
+            values: d.y.clone().into(),
         },
         vars: vec![
             Var::Factor {
@@ -89,7 +89,7 @@ fn spec(d: &Data) -> ModelSpec {
             },
             Var::Numeric {
                 name: "x".into(),
-                values: d.x.as_slice().into(),
+                values: d.x.clone().into(),
             },
         ],
         terms: vec![

@@ -33,9 +33,6 @@ const PART_BYTES: usize = 1 << 19;
 /// about this many parts' worth of columns.
 const BATCH_PARTS: usize = 4;
 
-/// Rows from which the whole columns are finished (copied into shared slices) side by side.
-const PARALLEL_FINISH_ROWS: usize = 1 << 16;
-
 /// How to read a delimited file.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct LoadOptions {
@@ -1264,7 +1261,7 @@ pub(super) fn read_in_parts(
     let finish = |(name, c): (String, Merged)| Column {
         name,
         values: match c {
-            // Copied once into the shared slice that models use.
+            // Shared as it is with the models that use it: no copy.
             Merged::Numeric { values, .. } => Values::Numeric(values.into()),
             Merged::Text { mut values, .. } => {
                 values.shrink_to_fit();
@@ -1273,17 +1270,7 @@ pub(super) fn read_in_parts(
         },
         exact: None,
     };
-    let named = names.into_iter().zip(columns);
-    let mut columns: Vec<Column> = if row_numbers.len() >= PARALLEL_FINISH_ROWS {
-        use rayon::prelude::*;
-        named
-            .collect::<Vec<_>>()
-            .into_par_iter()
-            .map(finish)
-            .collect()
-    } else {
-        named.map(finish).collect()
-    };
+    let mut columns: Vec<Column> = names.into_iter().zip(columns).map(finish).collect();
     for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
         c.exact = e.take();
     }

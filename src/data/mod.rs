@@ -81,8 +81,9 @@ fn pick<T: Clone>(v: &[T], keep: &[bool]) -> Vec<T> {
 #[derive(Debug, Clone, PartialEq)]
 pub enum Values {
     /// Numbers; `f64::NAN` marks a missing cell (no other NaN can be loaded). Shared with
-    /// the models fitted to them.
-    Numeric(Arc<[f64]>),
+    /// the models fitted to them, as the vector the loader filled (an `Arc<[f64]>` would
+    /// need a copy of it: 8 bytes a row more at the end of a load).
+    Numeric(Arc<Vec<f64>>),
     /// Text; a missing cell has no text.
     Text(TextValues),
     /// Group labels coded as levels.

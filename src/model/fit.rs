@@ -4,7 +4,7 @@
 //! sub-model RSS come from that triangular factor. Row diagnostics are a second pass, made
 //! only when something asks for them.
 
-use std::sync::OnceLock;
+use std::sync::{Arc, OnceLock};
 
 use super::design::{self, Column, Layout, Scheme, UsedRows};
 use rayon::prelude::*;
@@ -115,7 +115,7 @@ pub fn fit_owned(spec: ModelSpec) -> Result<Fit, ModelError> {
 fn fold_offset(mut spec: ModelSpec) -> ModelSpec {
     let offset = spec.response_offset;
     if let Var::Numeric { values, .. } = &mut spec.response {
-        *values = values.iter().map(|v| v + offset).collect();
+        *values = Arc::new(values.iter().map(|v| v + offset).collect());
         spec.response_offset = 0.0;
     }
     spec

@@ -39,7 +39,7 @@ pub enum Var {
         /// Variable name as the user wrote it.
         name: String,
         /// Values, one per row (shared: models on the same data hold one copy).
-        values: Arc<[f64]>,
+        values: Arc<Vec<f64>>,
     },
     /// A factor: integer codes into `levels` (declared order; the first is the reference).
     Factor {

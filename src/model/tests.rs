@@ -145,7 +145,7 @@ fn num(name: &str, values: Vec<f64>) -> Var {
 }
 
 /// The values of a variable built here (so not shared) for editing.
-fn values_mut(v: &mut std::sync::Arc<[f64]>) -> &mut [f64] {
+fn values_mut(v: &mut std::sync::Arc<Vec<f64>>) -> &mut [f64] {
     std::sync::Arc::get_mut(v).expect("a test's own values are not shared")
 }
 

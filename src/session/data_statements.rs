@@ -415,7 +415,7 @@ pub(crate) fn numeric_values<'a>(
     set: &'a DataSet,
     idx: usize,
     column: &Spanned<String>,
-) -> Result<&'a Arc<[f64]>, Diagnostic> {
+) -> Result<&'a Arc<Vec<f64>>, Diagnostic> {
     let col: &Column = &set.columns[idx];
     match &col.values {
         Values::Numeric(v) => Ok(v),

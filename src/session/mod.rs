@@ -54,14 +54,14 @@ struct SharedColumns {
 }
 
 /// One shared copy and its key.
-type Shared<K, T> = (K, Arc<[T]>);
+type Shared<K, T> = (K, Arc<Vec<T>>);
 
 /// The copy under `key` in `list`, made from `data` the first time it is asked for.
-fn share<K: PartialEq, T: Clone>(list: &mut Vec<Shared<K, T>>, key: K, data: &[T]) -> Arc<[T]> {
+fn share<K: PartialEq, T: Clone>(list: &mut Vec<Shared<K, T>>, key: K, data: &[T]) -> Arc<Vec<T>> {
     if let Some((_, v)) = list.iter().find(|(k, _)| *k == key) {
         return Arc::clone(v);
     }
-    let v: Arc<[T]> = data.into();
+    let v = Arc::new(data.to_vec());
     list.push((key, Arc::clone(&v)));
     v
 }
@@ -159,7 +159,7 @@ impl<'w> Session<'w> {
     }
 
     /// The shared exact-offset residuals of column `c` of data set `set`.
-    fn shared_residuals(&self, set: usize, c: usize, residuals: &[f64]) -> Arc<[f64]> {
+    fn shared_residuals(&self, set: usize, c: usize, residuals: &[f64]) -> Arc<Vec<f64>> {
         share(&mut self.shared.borrow_mut().residuals, (set, c), residuals)
     }
 
