@@ -252,9 +252,9 @@ pub enum FactorError {
 
 impl FactorError {
     /// Fills in the file line of the offending row from a data set's row numbers.
-    pub fn locate(mut self, row_numbers: &[usize]) -> FactorError {
+    pub fn locate(mut self, row_numbers: &super::RowLines) -> FactorError {
         if let FactorError::UndeclaredLevel { row, line, .. } = &mut self {
-            *line = row_numbers.get(*row).copied();
+            *line = row_numbers.get(*row);
         }
         self
     }

@@ -12,6 +12,7 @@ use std::sync::Mutex;
 use super::error::LoadError;
 use super::exact::{self, ExactScan};
 use super::intern::Index;
+use super::lines::LinesBuilder;
 use super::number::{parse_trimmed, NumberParse, Suggestion};
 use super::split::{chunk_starts, span_bytes, span_len, Fields, RecordStart, Splitter};
 use super::swar;
@@ -778,7 +779,7 @@ fn append_texts(
 struct Rows {
     names: Vec<String>,
     columns: Vec<Merged>,
-    row_numbers: Vec<usize>,
+    row_numbers: LinesBuilder,
     parts: Vec<Part>,
     refills: Vec<Refill>,
     /// Where the data rows start (byte offset, line).
@@ -847,7 +848,7 @@ fn read_rows(
             scan: ExactScan::default(),
         })
         .collect();
-    let mut row_numbers: Vec<usize> = Vec::with_capacity(rows_bound);
+    let mut row_numbers = LinesBuilder::default();
     let mut refills = Vec::new();
     // The buffers of the batch merged last, for the next.
     let mut spare: Vec<Buffers> = Vec::with_capacity(BATCH_PARTS);
@@ -957,7 +958,7 @@ const PARALLEL_MERGE_ROWS: usize = 1 << 14;
 /// put back.
 fn merge_batch(
     columns: &mut [Merged],
-    row_numbers: &mut Vec<usize>,
+    row_numbers: &mut LinesBuilder,
     batch: &mut [(usize, PartRows)],
     names: &[String],
     parts: &[Part],
@@ -993,9 +994,9 @@ fn merge_batch(
             }
             Ok(refills)
         };
-    let append_lines = |row_numbers: &mut Vec<usize>| {
+    let append_lines = |row_numbers: &mut LinesBuilder| {
         for (_, part_lines) in &lines {
-            row_numbers.extend_from_slice(part_lines);
+            row_numbers.extend(part_lines);
         }
     };
     let results: Vec<Result<Vec<Refill>, (usize, usize, LoadError)>> =
@@ -1177,7 +1178,7 @@ fn count_lf(bytes: &[u8]) -> usize {
 /// use covey::data::{read_delimited, LoadOptions, Values};
 ///
 /// let set = read_delimited(b"y,g\n1.5,a\n2,b\n", &LoadOptions::default()).unwrap();
-/// assert_eq!(set.row_numbers, vec![2, 3]);
+/// assert_eq!(set.row_numbers.to_vec(), vec![2, 3]);
 /// assert!(matches!(&set.columns[0].values, Values::Numeric(v) if **v == [1.5, 2.0]));
 /// ```
 pub fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet, LoadError> {
@@ -1277,7 +1278,7 @@ pub(super) fn read_in_parts(
     Ok(DataSet {
         name: opts.name.clone(),
         columns,
-        row_numbers,
+        row_numbers: row_numbers.finish(),
     })
 }
 

@@ -275,7 +275,7 @@ fn quoted_fields_across_part_boundaries() {
     let d = read_in_parts(&bytes, &opts(), 50).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(d.n_rows(), 1500);
     // Each quoted line break moves the later rows down a line.
-    assert_eq!(d.row_numbers.last(), Some(&(1501 + 300)));
+    assert_eq!(d.row_numbers.last(), Some(1501 + 300));
 }
 
 #[test]

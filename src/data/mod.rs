@@ -5,6 +5,7 @@ mod error;
 mod exact;
 mod factor;
 mod intern;
+mod lines;
 mod load;
 mod number;
 mod split;
@@ -19,6 +20,7 @@ mod tests;
 
 pub use error::{FactorError, LoadError};
 pub use factor::{make_factor, unused_levels, Factor, LevelOrder};
+pub use lines::RowLines;
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
 
@@ -35,7 +37,7 @@ pub struct DataSet {
     pub columns: Vec<Column>,
     /// For each data row, the 1-based file line where it starts (the header is line 1);
     /// kept through filtering.
-    pub row_numbers: Vec<usize>,
+    pub row_numbers: RowLines,
 }
 
 /// A named column.
@@ -452,7 +454,7 @@ impl DataSet {
                 .iter()
                 .zip(keep)
                 .filter(|(_, k)| **k)
-                .map(|(r, _)| *r)
+                .map(|(r, _)| r)
                 .collect(),
         }
     }
@@ -464,7 +466,7 @@ impl DataSet {
 
     /// The file line of data row `row`, if it exists.
     pub fn line_of(&self, row: usize) -> Option<usize> {
-        self.row_numbers.get(row).copied()
+        self.row_numbers.get(row)
     }
 
     /// [`make_factor`], with the file line filled into an undeclared-level error.

@@ -656,7 +656,7 @@ pub(super) fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet
     Ok(DataSet {
         name: opts.name.clone(),
         columns,
-        row_numbers,
+        row_numbers: row_numbers.as_slice().into(),
     })
 }
 

@@ -13,6 +13,8 @@
 
 use std::sync::Arc;
 
+pub use crate::data::RowLines;
+
 mod anova;
 mod design;
 pub mod dist;
@@ -64,76 +66,6 @@ impl Var {
             Var::Numeric { values, .. } => values.len(),
             Var::Factor { codes, .. } => codes.len(),
         }
-    }
-}
-
-/// The data-file line of each row of a model's variables. Lines that follow one another (a
-/// file without blank lines or line breaks in quotes, not filtered: the common case) are kept
-/// as the first line and their number instead of 8 bytes a row; any others as a list shared
-/// between the models that use it. Made from the lines by `From` or `collect`, which pick
-/// the form, so equal lines are always held alike.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct RowLines(Lines);
-
-/// The two forms of [`RowLines`].
-#[derive(Debug, Clone, PartialEq, Eq)]
-enum Lines {
-    /// Lines `first`, `first + 1`, ..., `len` of them.
-    Run { first: usize, len: usize },
-    /// Any other lines.
-    Listed(Arc<[usize]>),
-}
-
-impl RowLines {
-    /// Number of rows.
-    pub fn len(&self) -> usize {
-        match &self.0 {
-            Lines::Run { len, .. } => *len,
-            Lines::Listed(v) => v.len(),
-        }
-    }
-
-    /// True when there are no rows.
-    pub fn is_empty(&self) -> bool {
-        self.len() == 0
-    }
-
-    /// The line of row `row`, if there is such a row.
-    pub fn get(&self, row: usize) -> Option<usize> {
-        match &self.0 {
-            Lines::Run { first, len } => first.checked_add(row).filter(|_| row < *len),
-            Lines::Listed(v) => v.get(row).copied(),
-        }
-    }
-
-    /// The line of the first row, if any.
-    pub fn first(&self) -> Option<usize> {
-        self.get(0)
-    }
-}
-
-impl From<&[usize]> for RowLines {
-    fn from(lines: &[usize]) -> RowLines {
-        let first = lines.first().copied().unwrap_or(0);
-        let run = lines
-            .iter()
-            .enumerate()
-            .all(|(k, &l)| first.checked_add(k) == Some(l));
-        RowLines(if run {
-            Lines::Run {
-                first,
-                len: lines.len(),
-            }
-        } else {
-            Lines::Listed(lines.into())
-        })
-    }
-}
-
-impl FromIterator<usize> for RowLines {
-    fn from_iter<I: IntoIterator<Item = usize>>(lines: I) -> RowLines {
-        let lines: Vec<usize> = lines.into_iter().collect();
-        RowLines::from(lines.as_slice())
     }
 }
 

@@ -268,7 +268,7 @@ impl Session<'_> {
                 .collect(),
         );
         for row in 0..set.n_rows().min(PREVIEW_ROWS) {
-            let mut cells = vec![Cell::from(set.row_numbers.get(row).copied().unwrap_or(0))];
+            let mut cells = vec![Cell::from(set.row_numbers.get(row).unwrap_or(0))];
             for c in &set.columns {
                 cells.push(if c.is_missing(row) {
                     Cell::Missing
@@ -431,7 +431,7 @@ pub(crate) fn numeric_values<'a>(
             )
             .label("needs numbers");
             if let Some((row, text)) = t.first_non_number() {
-                let line = set.row_numbers.get(row).copied().unwrap_or(row + 2);
+                let line = set.row_numbers.get(row).unwrap_or(row + 2);
                 d = d.help(format!(
                     "line {line} of the file holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
                 ));

@@ -16,7 +16,7 @@ use std::sync::Arc;
 use crate::data::DataSet;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
-use crate::model::{Fit, RowLines};
+use crate::model::Fit;
 use crate::report::{InputRecord, Item};
 use crate::world::World;
 
@@ -49,8 +49,6 @@ struct SharedColumns {
     /// The exact-offset residuals of numeric columns (the values themselves are shared as
     /// the data set holds them).
     residuals: Vec<Shared<(usize, usize), f64>>,
-    /// Data-file line of each row, by data set.
-    rows: Vec<(usize, RowLines)>,
 }
 
 /// One shared copy and its key.
@@ -161,17 +159,6 @@ impl<'w> Session<'w> {
     /// The shared exact-offset residuals of column `c` of data set `set`.
     fn shared_residuals(&self, set: usize, c: usize, residuals: &[f64]) -> Arc<Vec<f64>> {
         share(&mut self.shared.borrow_mut().residuals, (set, c), residuals)
-    }
-
-    /// The shared data-file lines of data set `set`.
-    fn shared_rows(&self, set: usize, rows: &[usize]) -> RowLines {
-        let list = &mut self.shared.borrow_mut().rows;
-        if let Some((_, r)) = list.iter().find(|(k, _)| *k == set) {
-            return r.clone();
-        }
-        let r = RowLines::from(rows);
-        list.push((set, r.clone()));
-        r
     }
 
     /// The unit declared for a column, if any.

@@ -97,7 +97,7 @@ impl Session<'_> {
             vars,
             terms,
             intercept: decl.intercept,
-            row_numbers: self.shared_rows(si, &set.row_numbers),
+            row_numbers: set.row_numbers.clone(),
             response_offset,
         };
         let term_span =

@@ -126,7 +126,6 @@ impl Session<'_> {
             } => {
                 let alpha = alpha_of(alpha)?;
                 let set = self.current(factor.span)?;
-                let si = self.current.unwrap_or(0);
                 let ci = column_index(set, covariate)?;
                 let x = Arc::clone(numeric_values(set, ci, covariate)?);
                 let f = factor_column(set, factor)?;
@@ -147,7 +146,7 @@ impl Session<'_> {
                         }],
                     }],
                     intercept: true,
-                    row_numbers: self.shared_rows(si, &set.row_numbers),
+                    row_numbers: set.row_numbers.clone(),
                     response_offset: 0.0,
                 };
                 let fit = model::fit(&spec).map_err(|e| {
