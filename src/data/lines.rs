@@ -92,20 +92,23 @@ impl RowLines {
 /// [`RowLines`] made by appending the lines of consecutive parts of a file: no list is
 /// kept while the lines follow one another.
 #[derive(Debug, Default)]
-pub(crate) struct LinesBuilder {
-    /// The first line and the number of lines so far, while they run on.
-    run: Option<(usize, usize)>,
-    /// The lines so far, once they stopped running on.
-    listed: Option<Vec<usize>>,
+pub(crate) enum LinesBuilder {
+    /// No line yet.
+    #[default]
+    Empty,
+    /// Lines `first`, `first + 1`, ..., `len` of them.
+    Run { first: usize, len: usize },
+    /// The lines so far, once they stopped following one another.
+    Listed(Vec<usize>),
 }
 
 impl LinesBuilder {
     /// Number of lines so far.
     pub fn len(&self) -> usize {
-        match (&self.listed, self.run) {
-            (Some(v), _) => v.len(),
-            (None, Some((_, len))) => len,
-            (None, None) => 0,
+        match self {
+            LinesBuilder::Empty => 0,
+            LinesBuilder::Run { len, .. } => *len,
+            LinesBuilder::Listed(v) => v.len(),
         }
     }
 
@@ -116,33 +119,36 @@ impl LinesBuilder {
 
     /// Appends lines.
     pub fn extend(&mut self, lines: &[usize]) {
-        if let Some(v) = &mut self.listed {
-            v.extend_from_slice(lines);
-            return;
-        }
-        let (first, len) = match (self.run, lines.first()) {
-            (Some(r), _) => r,
-            (None, Some(&l)) => (l, 0),
-            (None, None) => return,
+        let (first, len) = match (&mut *self, lines.first()) {
+            (LinesBuilder::Listed(v), _) => {
+                v.extend_from_slice(lines);
+                return;
+            }
+            (LinesBuilder::Run { first, len }, _) => (*first, *len),
+            (LinesBuilder::Empty, Some(&l)) => (l, 0),
+            (LinesBuilder::Empty, None) => return,
         };
         let runs_on = (len..)
             .zip(lines)
             .all(|(k, &l)| first.checked_add(k) == Some(l));
-        if runs_on {
-            self.run = Some((first, len + lines.len()));
+        *self = if runs_on {
+            LinesBuilder::Run {
+                first,
+                len: len + lines.len(),
+            }
         } else {
             let mut v: Vec<usize> = (first..first + len).collect();
             v.extend_from_slice(lines);
-            self.listed = Some(v);
-        }
+            LinesBuilder::Listed(v)
+        };
     }
 
     /// The lines added.
     pub fn finish(self) -> RowLines {
-        match (self.listed, self.run) {
-            (Some(v), _) => RowLines::from(v.as_slice()),
-            (None, Some((first, len))) => RowLines(Lines::Run { first, len }),
-            (None, None) => RowLines::from(&[][..]),
+        match self {
+            LinesBuilder::Empty => RowLines::from(&[][..]),
+            LinesBuilder::Run { first, len } => RowLines(Lines::Run { first, len }),
+            LinesBuilder::Listed(v) => RowLines::from(v.as_slice()),
         }
     }
 }

@@ -179,20 +179,24 @@ fn thin(points: &mut Vec<Point>) -> usize {
     }
     let k = n.div_ceil(MAX_POINTS);
     let mut seen: Vec<usize> = Vec::new();
-    points.retain(|p| {
-        if seen.len() <= p.group {
-            seen.resize(p.group + 1, 0);
-        }
-        match seen.get_mut(p.group) {
-            Some(c) => {
-                let keep = *c % k == 0;
-                *c += 1;
-                keep
-            }
-            None => false,
-        }
-    });
+    points.retain(|p| every_kth(&mut seen, p.group, k));
     k
+}
+
+/// Whether the next point of `group` is one of every `step`-th of it, counting it in
+/// `seen` (points of each group so far).
+fn every_kth(seen: &mut Vec<usize>, group: usize, step: usize) -> bool {
+    if seen.len() <= group {
+        seen.resize(group + 1, 0);
+    }
+    match seen.get_mut(group) {
+        Some(c) => {
+            let keep = *c % step == 0;
+            *c += 1;
+            keep
+        }
+        None => false,
+    }
 }
 
 /// The points `candidates(positions)` yields for the fitted rows at `positions`, taken over
@@ -245,19 +249,7 @@ where
     let kept: Vec<Vec<Point>> = crate::parallel::map(&jobs, |(b, start)| {
         let mut seen = start.clone();
         candidates(b.clone())
-            .filter(|p| {
-                if seen.len() <= p.group {
-                    seen.resize(p.group + 1, 0);
-                }
-                match seen.get_mut(p.group) {
-                    Some(c) => {
-                        let keep = *c % step == 0;
-                        *c += 1;
-                        keep
-                    }
-                    None => false,
-                }
-            })
+            .filter(|p| every_kth(&mut seen, p.group, step))
             .collect()
     });
     Thinned {
