@@ -454,7 +454,8 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                     if distinct.len() <= 6 && !distinct.contains(&x) {
                         distinct.push(x);
                     }
-                    // Past FEW_DISTINCT distinct values neither check below can change.
+                    // Seven distinct values (more than FEW_DISTINCT): neither check below can
+                    // change any more.
                     if distinct.len() > 6 {
                         break;
                     }

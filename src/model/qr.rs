@@ -75,7 +75,7 @@ fn norm2(x: &[f64]) -> f64 {
     dot(x, x).sqrt()
 }
 
-/// Number of running sums in [`dot`] and [`sum`]. A single running sum waits on the previous
+/// Number of running sums in [`dot`] and [`sum_of`]. A single running sum waits on the previous
 /// addition at every step; eight independent ones fill the processor's vector units.
 const LANES: usize = 8;
 
