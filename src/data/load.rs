@@ -5,6 +5,9 @@
 //! all threads of the current rayon pool, then merged in file order. Two more passes run
 //! only when needed: one puts back the text of cells read as numbers in a column that
 //! turned out to be text, one computes exact residuals (see [`super::ExactValues`]).
+//!
+//! [`Sink`] holds the whole columns while parts are merged into them, so that a file can also
+//! be taken a window at a time (see [`super::stream`]).
 
 use std::collections::BTreeMap;
 use std::sync::Mutex;
@@ -22,13 +25,13 @@ use super::{Column, DataSet, ExactValues, TextValues, Values};
 /// almost always means a wrong delimiter, a missing line break, or a file that is not text.
 pub const MAX_LINE_BYTES: usize = 1 << 20;
 
-const UTF8_BOM: &[u8] = b"\xEF\xBB\xBF";
+pub(super) const UTF8_BOM: &[u8] = b"\xEF\xBB\xBF";
 
 /// Size of the parts the data rows are cut into: large enough that a part's fixed costs (a
 /// thread hand-off, merging its distinct texts) are small against splitting it, small enough
 /// that a batch of parts is a small share of a large file's memory and keeps two or more
 /// threads busy.
-const PART_BYTES: usize = 1 << 19;
+pub(super) const PART_BYTES: usize = 1 << 19;
 
 /// Parts read at once before they are merged: the memory a load needs beyond its columns is
 /// about this many parts' worth of columns.
@@ -67,7 +70,7 @@ fn trim_bytes(mut b: &[u8]) -> &[u8] {
     b
 }
 
-fn is_break(b: u8) -> bool {
+pub(super) fn is_break(b: u8) -> bool {
     b == b'\n' || b == b'\r'
 }
 
@@ -134,7 +137,11 @@ fn check_record_length(
 /// The quote states follow the csv crate's reader: a quote opens a quoted field only as the
 /// first byte of a field; inside, `""` is a literal quote; after the closing quote, a delimiter
 /// or line break ends the field and anything else continues it unquoted.
-fn check_open_quote(tail: &[u8], first_line: usize, delimiter: u8) -> Result<(), LoadError> {
+pub(super) fn check_open_quote(
+    tail: &[u8],
+    first_line: usize,
+    delimiter: u8,
+) -> Result<(), LoadError> {
     #[derive(Clone, Copy)]
     enum S {
         FieldStart,
@@ -171,7 +178,7 @@ fn check_open_quote(tail: &[u8], first_line: usize, delimiter: u8) -> Result<(),
 
 /// The first refused number-like cell of a column that is otherwise numeric.
 #[derive(Debug)]
-struct Refused {
+pub(super) struct Refused {
     line: usize,
     text: String,
     suggestion: Suggestion,
@@ -497,12 +504,12 @@ fn header_names(fields: &Fields, body: &[u8], line: usize) -> Result<Vec<String>
 
 /// One part of the data rows: a run of whole records.
 #[derive(Debug, Clone)]
-struct Part {
-    /// Byte range in the file.
-    start: usize,
+pub(super) struct Part {
+    /// Byte range in the body it was cut from.
+    pub(super) start: usize,
     end: usize,
     /// Line of `start`.
-    line: usize,
+    pub(super) line: usize,
     /// Line breaks in the part plus one: a bound on its records.
     rows_bound: usize,
     /// Data rows before the part (known once the parts before it are merged).
@@ -718,7 +725,7 @@ fn read_part(
 }
 
 /// A whole column, put together from the parts in file order.
-enum Merged {
+pub(super) enum Merged {
     Numeric {
         values: Vec<f64>,
         refused: Option<Refused>,
@@ -733,7 +740,7 @@ enum Merged {
 /// Rows of a part whose text a text column still lacks: rows `0..rows` of part `part`, in
 /// column `column`.
 #[derive(Debug, Clone, Copy)]
-struct Refill {
+pub(super) struct Refill {
     part: usize,
     column: usize,
     rows: usize,
@@ -786,18 +793,13 @@ struct Rows {
     data: (usize, usize),
 }
 
-/// Reads the header and every data row. `last` follows the start of the latest record.
-///
-/// The data rows are cut into parts of about `part_bytes` (at record boundaries, so that
-/// the parts depend on the text alone), read in parallel a batch of [`BATCH_PARTS`] at a
-/// time, and merged in file order; the result is the same for any number of threads.
-fn read_rows(
+/// Reads and checks the header record of `body`: the column names, and where the data rows
+/// start (byte offset, line). `last` is set to the header's start.
+pub(super) fn read_header(
     body: &[u8],
     delimiter: u8,
-    markers: &[&[u8]],
-    part_bytes: usize,
     last: &mut RecordStart,
-) -> Result<Rows, LoadError> {
+) -> Result<(Vec<String>, (usize, usize)), LoadError> {
     let mut split = Splitter::new(body, 0, body.len(), 1, delimiter);
     let mut fields = Fields::default();
     let Some(header) = split.next_record(&mut fields) else {
@@ -812,10 +814,19 @@ fn read_rows(
         header.line,
     )?;
     let names = header_names(&fields, body, header.line)?;
-    let width = names.len();
-    let data = (split.pos(), split.line());
+    Ok((names, (split.pos(), split.line())))
+}
 
-    let starts = chunk_starts(body, data.0, delimiter, part_bytes);
+/// The parts of `body[from..]`, whose first line is `line`: cut at record boundaries about
+/// `part_bytes` apart (see [`chunk_starts`]), each with its line and a bound on its rows.
+pub(super) fn parts_of(
+    body: &[u8],
+    from: usize,
+    line: usize,
+    delimiter: u8,
+    part_bytes: usize,
+) -> Vec<Part> {
+    let starts = chunk_starts(body, from, delimiter, part_bytes);
     let ranges: Vec<(usize, usize)> = starts
         .iter()
         .zip(starts.iter().skip(1).chain([&body.len()]))
@@ -825,7 +836,7 @@ fn read_rows(
         count_lf(body.get(*a..*b).unwrap_or_default())
     });
     let mut parts = Vec::with_capacity(ranges.len());
-    let mut line = data.1;
+    let mut line = line;
     for ((start, end), n) in ranges.into_iter().zip(breaks) {
         parts.push(Part {
             start,
@@ -837,106 +848,40 @@ fn read_rows(
         });
         line += n;
     }
+    parts
+}
+
+/// Reads the header and every data row. `last` follows the start of the latest record.
+///
+/// The data rows are cut into parts of about `part_bytes` (at record boundaries, so that
+/// the parts depend on the text alone), read in parallel a batch of [`BATCH_PARTS`] at a
+/// time, and merged in file order; the result is the same for any number of threads.
+fn read_rows(
+    body: &[u8],
+    delimiter: u8,
+    markers: &[&[u8]],
+    part_bytes: usize,
+    last: &mut RecordStart,
+) -> Result<Rows, LoadError> {
+    let (names, data) = read_header(body, delimiter, last)?;
+    let header_line = last.line;
+    let parts = parts_of(body, data.0, data.1, delimiter, part_bytes);
     // Room for every row at once (one per line break, an upper bound), so that no column
     // grows by copying.
     let rows_bound: usize = parts.iter().map(|p| p.rows_bound).sum();
-
-    let mut columns: Vec<Merged> = (0..width)
-        .map(|_| Merged::Numeric {
-            values: Vec::with_capacity(rows_bound),
-            refused: None,
-            scan: ExactScan::default(),
-        })
-        .collect();
-    let mut row_numbers = LinesBuilder::default();
-    let mut refills = Vec::new();
-    // The buffers of the batch merged last, for the next.
-    let mut spare: Vec<Buffers> = Vec::with_capacity(BATCH_PARTS);
-    let mut first = 0;
-    while first < parts.len() {
-        let upto = first.saturating_add(BATCH_PARTS).min(parts.len());
-        let text: Vec<bool> = columns
-            .iter()
-            .map(|c| matches!(c, Merged::Text { .. }))
-            .collect();
-        let batch = parts.get(first..upto).unwrap_or_default();
-        let jobs: Vec<(&Part, Mutex<Buffers>)> = batch
-            .iter()
-            .map(|p| (p, Mutex::new(spare.pop().unwrap_or_default())))
-            .collect();
-        let read: Vec<Result<PartRows, PartError>> = crate::parallel::map(&jobs, |(p, b)| {
-            // The lock is never contended (one job per part); a poisoned one gives fresh
-            // buffers.
-            let buffers = b.lock().map(|mut b| std::mem::take(&mut *b));
-            read_part(
-                body,
-                p,
-                delimiter,
-                markers,
-                &names,
-                &text,
-                buffers.unwrap_or_default(),
-            )
-        });
-        drop(jobs);
-        // The parts read, up to the first that failed.
-        let mut batch_rows: Vec<(usize, PartRows)> = Vec::with_capacity(read.len());
-        let mut failed = None;
-        for (k, result) in (first..upto).zip(read) {
-            match result {
-                Ok(rows) => batch_rows.push((k, rows)),
-                Err(e) => {
-                    failed = Some(e);
-                    break;
-                }
-            }
-        }
-        let mut done = row_numbers.len();
-        for (k, rows) in &batch_rows {
-            if let Some(p) = parts.get_mut(*k) {
-                p.first_row = done;
-                p.n_rows = rows.lines.len();
-            }
-            done += rows.lines.len();
-        }
-        let merged = merge_batch(
-            &mut columns,
-            &mut row_numbers,
-            &mut batch_rows,
-            &names,
-            &parts,
-            rows_bound,
-        );
-        match merged {
-            Ok(more) => refills.extend(more),
-            Err((k, error)) => {
-                // The latest record read is the last of the parts up to the one that failed.
-                if let Some(at) = batch_rows
-                    .iter()
-                    .take_while(|(i, _)| *i <= k)
-                    .filter_map(|(_, rows)| rows.last)
-                    .last()
-                {
-                    *last = at;
-                }
-                return Err(error);
-            }
-        }
-        for (_, rows) in batch_rows {
-            if let Some(at) = rows.last {
-                *last = at;
-            }
-            spare.push(Buffers::recycle(rows));
-        }
-        if let Some(e) = failed {
-            *last = e.at;
-            return Err(e.error);
-        }
-        first = upto;
+    let mut sink = Sink::new(names, rows_bound);
+    sink.take(body, parts, delimiter, markers, last)?;
+    if sink.row_numbers.is_empty() {
+        return Err(LoadError::NoDataRows { line: header_line });
     }
-    if row_numbers.is_empty() {
-        return Err(LoadError::NoDataRows { line: header.line });
-    }
+    let Sink {
+        names,
+        columns,
+        row_numbers,
+        parts,
+        refills,
+        ..
+    } = sink;
     Ok(Rows {
         names,
         columns,
@@ -945,6 +890,150 @@ fn read_rows(
         refills,
         data,
     })
+}
+
+/// The whole columns as parts are merged into them in file order, with what merging has
+/// learned: the parts so far, the rows that need their text put back, and the buffers of
+/// the batch merged last.
+pub(super) struct Sink {
+    pub(super) names: Vec<String>,
+    pub(super) columns: Vec<Merged>,
+    pub(super) row_numbers: LinesBuilder,
+    /// Every part taken so far. Their byte ranges are in the body each was taken from.
+    parts: Vec<Part>,
+    pub(super) refills: Vec<Refill>,
+    spare: Vec<Buffers>,
+    /// Rows to keep room for in each column (a bound, or an estimate that may be passed).
+    rows_bound: usize,
+}
+
+impl Sink {
+    pub(super) fn new(names: Vec<String>, rows_bound: usize) -> Sink {
+        let columns = names
+            .iter()
+            .map(|_| Merged::Numeric {
+                values: Vec::with_capacity(rows_bound),
+                refused: None,
+                scan: ExactScan::default(),
+            })
+            .collect();
+        Sink {
+            names,
+            columns,
+            row_numbers: LinesBuilder::default(),
+            parts: Vec::new(),
+            refills: Vec::new(),
+            spare: Vec::with_capacity(BATCH_PARTS),
+            rows_bound,
+        }
+    }
+
+    /// Reads `new_parts` (byte ranges of `body`) in parallel a batch of [`BATCH_PARTS`] at a
+    /// time and merges them after the parts taken before. `last` follows the start of the
+    /// latest record (in `body`).
+    pub(super) fn take(
+        &mut self,
+        body: &[u8],
+        new_parts: Vec<Part>,
+        delimiter: u8,
+        markers: &[&[u8]],
+        last: &mut RecordStart,
+    ) -> Result<(), LoadError> {
+        let mut first = self.parts.len();
+        self.parts.extend(new_parts);
+        let Sink {
+            names,
+            columns,
+            row_numbers,
+            parts,
+            refills,
+            spare,
+            rows_bound,
+        } = self;
+        while first < parts.len() {
+            let upto = first.saturating_add(BATCH_PARTS).min(parts.len());
+            let text: Vec<bool> = columns
+                .iter()
+                .map(|c| matches!(c, Merged::Text { .. }))
+                .collect();
+            let batch = parts.get(first..upto).unwrap_or_default();
+            let jobs: Vec<(&Part, Mutex<Buffers>)> = batch
+                .iter()
+                .map(|p| (p, Mutex::new(spare.pop().unwrap_or_default())))
+                .collect();
+            let read: Vec<Result<PartRows, PartError>> = crate::parallel::map(&jobs, |(p, b)| {
+                // The lock is never contended (one job per part); a poisoned one gives fresh
+                // buffers.
+                let buffers = b.lock().map(|mut b| std::mem::take(&mut *b));
+                read_part(
+                    body,
+                    p,
+                    delimiter,
+                    markers,
+                    names,
+                    &text,
+                    buffers.unwrap_or_default(),
+                )
+            });
+            drop(jobs);
+            // The parts read, up to the first that failed.
+            let mut batch_rows: Vec<(usize, PartRows)> = Vec::with_capacity(read.len());
+            let mut failed = None;
+            for (k, result) in (first..upto).zip(read) {
+                match result {
+                    Ok(rows) => batch_rows.push((k, rows)),
+                    Err(e) => {
+                        failed = Some(e);
+                        break;
+                    }
+                }
+            }
+            let mut done = row_numbers.len();
+            for (k, rows) in &batch_rows {
+                if let Some(p) = parts.get_mut(*k) {
+                    p.first_row = done;
+                    p.n_rows = rows.lines.len();
+                }
+                done += rows.lines.len();
+            }
+            let merged = merge_batch(
+                columns,
+                row_numbers,
+                &mut batch_rows,
+                names,
+                parts,
+                *rows_bound,
+            );
+            match merged {
+                Ok(more) => refills.extend(more),
+                Err((k, error)) => {
+                    // The latest record read is the last of the parts up to the one that
+                    // failed.
+                    if let Some(at) = batch_rows
+                        .iter()
+                        .take_while(|(i, _)| *i <= k)
+                        .filter_map(|(_, rows)| rows.last)
+                        .last()
+                    {
+                        *last = at;
+                    }
+                    return Err(error);
+                }
+            }
+            for (_, rows) in batch_rows {
+                if let Some(at) = rows.last {
+                    *last = at;
+                }
+                spare.push(Buffers::recycle(rows));
+            }
+            if let Some(e) = failed {
+                *last = e.at;
+                return Err(e.error);
+            }
+            first = upto;
+        }
+        Ok(())
+    }
 }
 
 /// Rows of a batch below which its columns are merged on this thread: waking the pool costs
@@ -1203,12 +1292,7 @@ pub(super) fn read_in_parts(
         return Err(LoadError::Empty);
     }
     check_nul(body)?;
-    let markers: Vec<&[u8]> = opts
-        .missing
-        .iter()
-        .map(|m| trim_bytes(m.as_bytes()))
-        .filter(|m| !m.is_empty())
-        .collect();
+    let markers = marker_bytes(opts);
 
     // Where the latest record starts, for the open-quote check.
     let mut last = RecordStart { offset: 0, line: 1 };
@@ -1228,25 +1312,8 @@ pub(super) fn read_in_parts(
         data,
     } = rows?;
 
-    // A numeric column holding refused number-like cells: report the earliest such cell.
-    let refused = columns
-        .iter()
-        .enumerate()
-        .filter_map(|(j, c)| match c {
-            Merged::Numeric {
-                refused: Some(r), ..
-            } => Some((r.line, j, r)),
-            _ => None,
-        })
-        .min_by_key(|(line, j, _)| (*line, *j));
-    if let Some((line, j, r)) = refused {
-        return Err(LoadError::RefusedNumber {
-            line,
-            column: j + 1,
-            name: names.get(j).cloned().unwrap_or_default(),
-            text: r.text.clone(),
-            suggestion: r.suggestion,
-        });
+    if let Some(e) = refused_error(&columns, &names) {
+        return Err(e);
     }
 
     refill(body, delimiter, &markers, &mut columns, &parts, &refills);
@@ -1259,6 +1326,56 @@ pub(super) fn read_in_parts(
         .collect();
     let mut exact = exact_pass(body, data, delimiter, &markers, &offsets, row_numbers.len());
 
+    let mut columns = finish_columns(names, columns);
+    for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
+        c.exact = e.take();
+    }
+    Ok(DataSet {
+        name: opts.name.clone(),
+        columns,
+        row_numbers: row_numbers.finish(),
+    })
+}
+
+/// The declared missing-value markers, trimmed, as bytes (empty ones dropped).
+pub(super) fn marker_bytes(opts: &LoadOptions) -> Vec<&[u8]> {
+    opts.missing
+        .iter()
+        .map(|m| trim_bytes(m.as_bytes()))
+        .filter(|m| !m.is_empty())
+        .collect()
+}
+
+/// The error for a numeric column holding refused number-like cells: the earliest such cell.
+pub(super) fn refused_error(columns: &[Merged], names: &[String]) -> Option<LoadError> {
+    let (line, j, r) = columns
+        .iter()
+        .enumerate()
+        .filter_map(|(j, c)| match c {
+            Merged::Numeric {
+                refused: Some(r), ..
+            } => Some((r.line, j, r)),
+            _ => None,
+        })
+        .min_by_key(|(line, j, _)| (*line, *j))?;
+    Some(LoadError::RefusedNumber {
+        line,
+        column: j + 1,
+        name: names.get(j).cloned().unwrap_or_default(),
+        text: r.text.clone(),
+        suggestion: r.suggestion,
+    })
+}
+
+/// True when some numeric column asks for exact residuals (see [`exact_pass`]).
+pub(super) fn wants_exact(columns: &[Merged]) -> bool {
+    columns
+        .iter()
+        .any(|c| matches!(c, Merged::Numeric { scan, .. } if scan.wanted().is_some()))
+}
+
+/// The named whole columns as a data set's columns (without exact residuals).
+pub(super) fn finish_columns(names: Vec<String>, columns: Vec<Merged>) -> Vec<Column> {
     let finish = |(name, c): (String, Merged)| Column {
         name,
         values: match c {
@@ -1271,15 +1388,7 @@ pub(super) fn read_in_parts(
         },
         exact: None,
     };
-    let mut columns: Vec<Column> = names.into_iter().zip(columns).map(finish).collect();
-    for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
-        c.exact = e.take();
-    }
-    Ok(DataSet {
-        name: opts.name.clone(),
-        columns,
-        row_numbers: row_numbers.finish(),
-    })
+    names.into_iter().zip(columns).map(finish).collect()
 }
 
 /// Puts back the cell text of the rows that were read as numbers in a column that turned
