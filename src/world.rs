@@ -6,6 +6,7 @@
 
 use std::collections::BTreeMap;
 use std::fmt;
+use std::io::Read;
 use std::path::{Component, Path, PathBuf};
 
 /// Why a data file could not be read.
@@ -33,11 +34,30 @@ impl fmt::Display for WorldError {
     }
 }
 
+/// A data file opened for reading, with its length when known.
+pub struct Opened {
+    /// The file's bytes, from the first.
+    pub reader: Box<dyn Read + Send>,
+    /// Its length in bytes.
+    pub len: Option<u64>,
+}
+
 /// Reads the data files that a document names.
 pub trait World {
     /// The bytes of the file at `path`, as written in the document
     /// (relative to the document's folder).
     fn read(&self, path: &str) -> Result<Vec<u8>, WorldError>;
+
+    /// The file at `path` opened to be read as a stream. By default, its bytes as
+    /// [`World::read`] gives them.
+    fn open(&self, path: &str) -> Result<Opened, WorldError> {
+        let bytes = self.read(path)?;
+        let len = u64::try_from(bytes.len()).ok();
+        Ok(Opened {
+            reader: Box::new(std::io::Cursor::new(bytes)),
+            len,
+        })
+    }
 }
 
 /// Files on disk, confined to the document's folder unless allowed
@@ -81,8 +101,9 @@ impl FsWorld {
     }
 }
 
-impl World for FsWorld {
-    fn read(&self, path: &str) -> Result<Vec<u8>, WorldError> {
+impl FsWorld {
+    /// Where `path` points, if that is a file.
+    fn file(&self, path: &str) -> Result<PathBuf, WorldError> {
         let resolved = self.resolve(path)?;
         if resolved.is_dir() {
             return Err(WorldError::Io {
@@ -90,10 +111,30 @@ impl World for FsWorld {
                 message: "it is a folder, not a file".into(),
             });
         }
-        read_file(&resolved).map_err(|e| WorldError::Io {
-            path: path.to_string(),
-            message: e.to_string(),
+        Ok(resolved)
+    }
+}
+
+impl World for FsWorld {
+    fn read(&self, path: &str) -> Result<Vec<u8>, WorldError> {
+        read_file(&self.file(path)?).map_err(|e| io_error(path, &e))
+    }
+
+    fn open(&self, path: &str) -> Result<Opened, WorldError> {
+        let file = std::fs::File::open(self.file(path)?).map_err(|e| io_error(path, &e))?;
+        let len = file.metadata().ok().map(|m| m.len());
+        Ok(Opened {
+            reader: Box::new(file),
+            len,
         })
+    }
+}
+
+/// A read error on the file at `path`.
+pub fn io_error(path: &str, e: &std::io::Error) -> WorldError {
+    WorldError::Io {
+        path: path.to_string(),
+        message: e.to_string(),
     }
 }
 
@@ -111,7 +152,6 @@ fn read_file(path: &Path) -> std::io::Result<Vec<u8>> {
     #[cfg(unix)]
     {
         use rayon::prelude::*;
-        use std::io::Read;
         use std::os::unix::fs::FileExt;
 
         let mut file = std::fs::File::open(path)?;

@@ -1,6 +1,8 @@
 //! Every output byte is the same whatever the number of threads (src/parallel.rs): a document
 //! on enough rows to be split into many blocks (engine) and parts (loader) is rendered with
 //! COVEY_THREADS = 1, 2 and 3, and the renderings, JSON and figures are compared byte for byte.
+//! The data file is larger than the loader's window, so it is read as a stream; its
+//! fingerprint in the rendering is checked against the file's.
 //!
 //! The data are invented: a 4-level factor, a covariate and a response from a fixed-seed
 //! generator, with a few missing cells so that the rows used are not consecutive.
@@ -8,9 +10,10 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-/// Rows: many engine blocks (4096 rows each), loader parts (about 512 KiB each), and blocks of
-/// the checks and figures (65,536 rows each; the last one short).
-const ROWS: usize = 150_000;
+/// Rows: many engine blocks (4096 rows each), loader parts (about 512 KiB each) and windows
+/// (8 MiB each: the file is streamed), and blocks of the checks and figures (65,536 rows
+/// each; the last one short).
+const ROWS: usize = 360_000;
 
 const DOC: &str = "# Threads\n\n*Invented data.*\n\n```covey
 load \"d.csv\" as d
@@ -89,10 +92,23 @@ fn same_bytes_whatever_the_thread_count() {
     let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("threads");
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
-    std::fs::write(dir.join("d.csv"), data()).unwrap_or_else(|e| panic!("{e}"));
+    let csv = data();
+    assert!(
+        csv.len() > 1 << 23,
+        "larger than a window: {} bytes",
+        csv.len()
+    );
+    std::fs::write(dir.join("d.csv"), &csv).unwrap_or_else(|e| panic!("{e}"));
     std::fs::write(dir.join("doc.md"), DOC).unwrap_or_else(|e| panic!("{e}"));
     let one = render(&dir, "1");
     assert!(one.len() >= 3, "a rendering, its JSON and figures: {one:?}");
+    let sha = covey::data::sha256_hex(csv.as_bytes());
+    let loaded = format!("{ROWS} rows, 4 columns (SHA-256 `{sha}`)");
+    assert!(
+        one.iter()
+            .any(|(_, bytes)| String::from_utf8_lossy(bytes).contains(&loaded)),
+        "the rendering states {loaded}"
+    );
     for threads in ["2", "3"] {
         let other = render(&dir, threads);
         assert_eq!(

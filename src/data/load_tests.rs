@@ -7,10 +7,48 @@ use std::sync::OnceLock;
 use proptest::prelude::*;
 
 use super::load::read_in_parts;
-use super::{reference, DataSet, LoadError, LoadOptions, Values};
+use super::stream::{stream_in_windows, Streamed};
+use super::{reference, sha256_hex, DataSet, LoadError, LoadOptions, Values};
 
 /// Part sizes tried: one byte (a part per record), a few records, the real size.
 const PART_SIZES: [usize; 4] = [1, 7, 64, 1 << 20];
+
+/// Window sizes tried when streaming: one byte (every window grows to a record), a few
+/// records, more than the small inputs.
+const WINDOW_SIZES: [usize; 3] = [1, 40, 4096];
+
+/// How the stream reader ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Way {
+    Read,
+    Whole,
+    Again,
+}
+
+/// Loads `bytes` through the stream reader, then as its caller does: whole when handed
+/// back. Checks the fingerprint of a streamed file and the bytes of one handed back whole.
+fn streamed(
+    bytes: &[u8],
+    opts: &LoadOptions,
+    window: usize,
+    part: usize,
+) -> (Result<DataSet, LoadError>, Way) {
+    let mut reader = bytes;
+    let len = u64::try_from(bytes.len()).ok();
+    let got = stream_in_windows(&mut reader, len, opts, window, part)
+        .unwrap_or_else(|e| panic!("reading from memory: {e}"));
+    match got {
+        Streamed::Read { set, sha256 } => {
+            assert_eq!(sha256, sha256_hex(bytes), "fingerprint of the stream");
+            (Ok(set), Way::Read)
+        }
+        Streamed::Whole(whole) => {
+            assert_eq!(whole, bytes, "bytes handed back");
+            (read_in_parts(&whole, opts, part), Way::Whole)
+        }
+        Streamed::Again => (read_in_parts(bytes, opts, part), Way::Again),
+    }
+}
 
 fn pool(threads: usize) -> &'static rayon::ThreadPool {
     static POOLS: OnceLock<Vec<rayon::ThreadPool>> = OnceLock::new();
@@ -94,6 +132,28 @@ fn check(bytes: &[u8], opts: &LoadOptions) {
             );
         }
     }
+    for window in WINDOW_SIZES {
+        for (threads, part) in [(1, 7), (2, 1), (3, 64)] {
+            let (got, way) = pool(threads).install(|| streamed(bytes, opts, window, part));
+            if let Err(e) = same(&want, &got) {
+                panic!(
+                    "streamed ({way:?}) in windows of {window}, parts of {part}, differs on {:?}:\n{e}",
+                    String::from_utf8_lossy(bytes)
+                );
+            }
+        }
+    }
+}
+
+/// The way the stream reader takes on `bytes` in windows smaller than the tests' files,
+/// checking that it is the same with other part sizes and thread counts.
+fn way(bytes: &[u8]) -> Way {
+    let ways: Vec<Way> = [(1, 7), (2, 64), (3, 1)]
+        .into_iter()
+        .map(|(threads, part)| pool(threads).install(|| streamed(bytes, &opts(), 1000, part).1))
+        .collect();
+    assert!(ways.windows(2).all(|w| w[0] == w[1]), "{ways:?}");
+    ways[0]
 }
 
 fn opts() -> LoadOptions {
@@ -213,6 +273,8 @@ fn columns_turning_text_in_later_parts_keep_every_cell() {
         }
     });
     check(&bytes, &opts());
+    // Their earlier cells must be read again as text: the stream reader hands the file back.
+    assert_eq!(way(&bytes), Way::Again);
     for part in [1, 100, 4096] {
         let d = read_in_parts(&bytes, &opts(), part).unwrap_or_else(|e| panic!("{e}"));
         let y = d.column("y").map(|c| &c.values);
@@ -250,6 +312,7 @@ fn errors_in_later_parts_name_their_lines() {
     };
     for bytes in [&ragged, &refused, &non_utf8] {
         check(bytes, &opts());
+        assert_eq!(way(bytes), Way::Again);
     }
     let e = read_in_parts(&ragged, &opts(), 64).err();
     assert_eq!(
@@ -272,6 +335,7 @@ fn quoted_fields_across_part_boundaries() {
         _ => {}
     });
     check(&bytes, &opts());
+    assert_eq!(way(&bytes), Way::Read);
     let d = read_in_parts(&bytes, &opts(), 50).unwrap_or_else(|e| panic!("{e}"));
     assert_eq!(d.n_rows(), 1500);
     // Each quoted line break moves the later rows down a line.
@@ -283,6 +347,7 @@ fn a_quote_left_open_in_a_large_file_is_found() {
     let mut bytes = rows(3000, |_, _| {});
     bytes.extend_from_slice(b"1,2,\"A,open\n5,6,B,x\n");
     check(&bytes, &opts());
+    assert_eq!(way(&bytes), Way::Again);
     assert_eq!(
         read_in_parts(&bytes, &opts(), 64).err(),
         Some(LoadError::UnterminatedQuote { line: 3002 })
@@ -296,6 +361,7 @@ fn unique_texts_and_long_numbers_across_parts() {
         c[3] = format!("a much longer unique label number {i}");
     });
     check(&bytes, &opts());
+    assert_eq!(way(&bytes), Way::Again);
     let d = read_in_parts(&bytes, &opts(), 128).unwrap_or_else(|e| panic!("{e}"));
     assert!(d.column("y").and_then(|c| c.exact.as_ref()).is_some());
 }
@@ -314,4 +380,36 @@ fn crlf_bare_cr_and_blank_lines_across_parts() {
         bytes.extend_from_slice(end);
     }
     check(&bytes, &opts());
+    assert_eq!(way(&bytes), Way::Read);
+}
+
+#[test]
+fn usual_files_are_streamed_and_unusual_ones_read_whole() {
+    let plain = rows(3000, |i, c| {
+        if i % 13 == 0 {
+            c[1] = String::new();
+        }
+    });
+    check(&plain, &opts());
+    assert_eq!(way(&plain), Way::Read);
+    let mut bom = b"\xEF\xBB\xBF".to_vec();
+    bom.extend_from_slice(&plain);
+    check(&bom, &opts());
+    assert_eq!(way(&bom), Way::Read);
+    // A NUL byte far into the file, a file of blank lines after its header.
+    let mut nul = plain.clone();
+    if let Some(b) = nul.get_mut(50_000) {
+        *b = 0;
+    }
+    let blank = [b"a,b\n".as_slice(), &[b'\n'; 3000]].concat();
+    for bytes in [&nul, &blank] {
+        check(bytes, &opts());
+        assert_eq!(way(bytes), Way::Again);
+    }
+    // A header longer than the window grows it (to the whole file here).
+    let wide = [vec![b'h'; 2000], b",k\n1,2\n".to_vec()].concat();
+    check(&wide, &opts());
+    assert_eq!(streamed(&wide, &opts(), 64, 64).1, Way::Whole);
+    // A file no larger than the window comes back whole.
+    assert_eq!(streamed(&plain, &opts(), plain.len() + 1, 64).1, Way::Whole);
 }

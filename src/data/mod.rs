@@ -9,6 +9,7 @@ mod lines;
 mod load;
 mod number;
 mod split;
+mod stream;
 mod swar;
 
 #[cfg(test)]
@@ -23,6 +24,7 @@ pub use factor::{make_factor, unused_levels, Factor, LevelOrder};
 pub use lines::RowLines;
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
+pub use stream::{stream_delimited, Streamed};
 
 use std::sync::Arc;
 
@@ -496,10 +498,14 @@ fn first_non_number_in<'a>(
 
 /// SHA-256 (FIPS 180-4) of the bytes, as 64 lowercase hex digits.
 pub fn sha256_hex(bytes: &[u8]) -> String {
+    hex(&Sha256::digest(bytes))
+}
+
+/// Bytes as lowercase hex digits, two per byte.
+fn hex(bytes: &[u8]) -> String {
     const HEX: &[u8; 16] = b"0123456789abcdef";
-    let digest = Sha256::digest(bytes);
-    let mut out = String::with_capacity(64);
-    for b in digest {
+    let mut out = String::with_capacity(2 * bytes.len());
+    for &b in bytes {
         out.push(char::from(HEX[usize::from(b >> 4)]));
         out.push(char::from(HEX[usize::from(b & 0x0f)]));
     }

@@ -4,11 +4,12 @@
 use std::sync::Arc;
 
 use super::{Outcome, Session};
-use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, Values};
+use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, Streamed, Values};
 use crate::diagnostic::Diagnostic;
 use crate::lang::{CompareOp, Condition, Literal, Span, Spanned};
 use crate::report::markdown::code;
 use crate::report::{Cell, Column as Col, Format, InputRecord, Item, Table};
+use crate::world::{io_error, Opened, WorldError};
 
 /// Rows that `show` lists.
 const PREVIEW_ROWS: usize = 8;
@@ -16,16 +17,28 @@ const PREVIEW_ROWS: usize = 8;
 /// Files above this size are fingerprinted on another thread while they are read.
 const LARGE_FILE_BYTES: usize = 1 << 20;
 
+/// A file's data set and fingerprint from its bytes. The fingerprint of a large file is
+/// taken on another thread meanwhile (a small one is not worth waking the pool for).
+fn read_whole(bytes: &[u8], opts: &LoadOptions) -> (Result<DataSet, data::LoadError>, String) {
+    if bytes.len() > LARGE_FILE_BYTES {
+        rayon::join(
+            || data::read_delimited(bytes, opts),
+            || data::sha256_hex(bytes),
+        )
+    } else {
+        (data::read_delimited(bytes, opts), data::sha256_hex(bytes))
+    }
+}
+
 impl Session<'_> {
     pub(super) fn load(
         &mut self,
         path: &Spanned<String>,
         name: Option<&Spanned<String>>,
     ) -> Outcome {
-        let bytes = self
-            .world
-            .read(&path.value)
-            .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
+        let world_error =
+            |e: WorldError| Diagnostic::new(path.span, e.to_string()).label("this file");
+        let opened = self.world.open(&path.value).map_err(world_error)?;
         let lower = path.value.to_lowercase();
         let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
             b'\t'
@@ -48,18 +61,18 @@ impl Session<'_> {
             delimiter,
             missing: self.missing_markers.clone(),
         };
-        // The fingerprint is taken on another thread while the file is read (large files only:
-        // a small one is not worth waking the pool for).
-        let (set, sha) = if bytes.len() > LARGE_FILE_BYTES {
-            rayon::join(
-                || data::read_delimited(&bytes, &opts),
-                || data::sha256_hex(&bytes),
-            )
-        } else {
-            (
-                data::read_delimited(&bytes, &opts),
-                data::sha256_hex(&bytes),
-            )
+        // A large file is read as a stream; a small one, or one the stream reader hands
+        // back, whole.
+        let Opened { mut reader, len } = opened;
+        let streamed = data::stream_delimited(&mut *reader, len, &opts)
+            .map_err(|e| world_error(io_error(&path.value, &e)))?;
+        drop(reader);
+        let (set, sha) = match streamed {
+            Streamed::Read { set, sha256 } => (Ok(set), sha256),
+            Streamed::Whole(bytes) => read_whole(&bytes, &opts),
+            Streamed::Again => {
+                read_whole(&self.world.read(&path.value).map_err(world_error)?, &opts)
+            }
         };
         let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
