@@ -84,7 +84,9 @@ fn spec(d: &Data) -> ModelSpec {
         vars: vec![
             Var::Factor {
                 name: "g".into(),
-                codes: d.g.iter().map(|&g| Some(g)).collect(),
+                codes: std::sync::Arc::new(
+                    d.g.iter().map(|&g| covey::data::Code::level(g)).collect(),
+                ),
                 levels: ["A", "B", "C", "D"].iter().map(|s| s.to_string()).collect(),
             },
             Var::Numeric {

@@ -7,12 +7,55 @@ use super::error::FactorError;
 use super::number::{format_number, parse_number, NumberParse};
 use super::{Column, Values};
 
-/// A column of group labels: each row holds the index of its level, or `None` when missing.
+/// One row's level index in a factor, or missing: four bytes a row, where an `Option<u32>`
+/// takes eight. No factor has `u32::MAX` levels (making one stops at [`Code::MAX_LEVELS`]),
+/// so that value can mean missing.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub struct Code(u32);
+
+impl Code {
+    /// The code of a missing value.
+    pub const MISSING: Code = Code(u32::MAX);
+
+    /// Most levels a factor can have.
+    pub const MAX_LEVELS: u32 = u32::MAX;
+
+    /// The code of level `level` (missing for `u32::MAX`, which no level has).
+    #[inline]
+    pub const fn level(level: u32) -> Code {
+        Code(level)
+    }
+
+    /// True for the code of a missing value.
+    #[inline]
+    pub const fn is_missing(self) -> bool {
+        self.0 == u32::MAX
+    }
+
+    /// The level index, `None` when missing.
+    #[inline]
+    pub const fn get(self) -> Option<u32> {
+        if self.0 == u32::MAX {
+            None
+        } else {
+            Some(self.0)
+        }
+    }
+}
+
+impl From<Option<u32>> for Code {
+    #[inline]
+    fn from(level: Option<u32>) -> Code {
+        level.map_or(Code::MISSING, Code)
+    }
+}
+
+/// A column of group labels: each row holds the index of its level, or missing.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Factor {
-    /// Level index per row (`None` = missing), shared with the models fitted to it (a copy
-    /// per model would cost 8 bytes a row each).
-    pub codes: Arc<[Option<u32>]>,
+    /// Level code per row, shared with the models fitted to it (a copy per model would cost
+    /// 4 bytes a row each).
+    pub codes: Arc<Vec<Code>>,
     /// Level names in level order; the first is the reference level.
     pub levels: Vec<String>,
     /// Where the level order came from.
@@ -41,7 +84,7 @@ impl Factor {
 
     /// The level name of a row, `None` when missing or out of range.
     pub fn level_of(&self, row: usize) -> Option<&str> {
-        let code = (*self.codes.get(row)?)?;
+        let code = self.codes.get(row)?.get()?;
         self.levels
             .get(usize::try_from(code).ok()?)
             .map(String::as_str)
@@ -49,10 +92,10 @@ impl Factor {
 
     /// Number of rows at each level, in level order.
     pub fn counts(&self) -> Vec<usize> {
-        let count = |codes: &[Option<u32>]| {
+        let count = |codes: &[Code]| {
             let mut counts = vec![0usize; self.levels.len()];
-            for code in codes.iter().flatten() {
-                if let Some(c) = usize::try_from(*code).ok().and_then(|i| counts.get_mut(i)) {
+            for code in codes.iter().filter_map(|c| c.get()) {
+                if let Some(c) = usize::try_from(code).ok().and_then(|i| counts.get_mut(i)) {
                     *c += 1;
                 }
             }
@@ -79,6 +122,11 @@ pub fn unused_levels(f: &Factor) -> Vec<&str> {
         .filter(|(n, _)| **n == 0)
         .map(|(_, l)| l.as_str())
         .collect()
+}
+
+/// The code of the level after `levels` levels, if a factor can have it.
+fn level_code(levels: usize) -> Option<u32> {
+    u32::try_from(levels).ok().filter(|&c| c < Code::MAX_LEVELS)
 }
 
 /// A lookup key for one cell value: text as itself, numbers by their bits (-0 made 0).
@@ -120,8 +168,8 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                 },
                 Values::Text(_) | Values::Factor(_) => Some(Key::Text(level.as_str())),
             };
-            let code = u32::try_from(names.len())
-                .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+            let code = level_code(names.len())
+                .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
             if names.iter().any(|n| n == level) {
                 return Err(FactorError::DuplicateDeclaredLevel {
                     column: column(),
@@ -147,7 +195,7 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
             return finish(codes, names, order, column);
         }
     }
-    let mut codes: Vec<Option<u32>> = Vec::with_capacity(n);
+    let mut codes: Vec<Code> = Vec::with_capacity(n);
     // A text column already codes its distinct texts: each is looked up once, the first time
     // a row has it, and later rows reuse the answer (the same codes and the same first
     // error as looking every row up).
@@ -166,11 +214,11 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                 .copied()
                 .unwrap_or(super::TextValues::MISSING);
             if tc == super::TextValues::MISSING {
-                codes.push(None);
+                codes.push(Code::MISSING);
                 continue;
             }
             if let Some(Some(level)) = usize::try_from(tc).ok().and_then(|i| memo.get(i)) {
-                codes.push(Some(*level));
+                codes.push(Code::level(*level));
                 continue;
             }
         }
@@ -184,7 +232,7 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
             Values::Factor(f) => f.level_of(row).map(Key::Text),
         };
         let Some(key) = key else {
-            codes.push(None);
+            codes.push(Code::MISSING);
             continue;
         };
         let code = match map.get(&key) {
@@ -202,8 +250,8 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                         line: None,
                     });
                 }
-                let c = u32::try_from(names.len())
-                    .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+                let c = level_code(names.len())
+                    .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
                 map.insert(key, c);
                 names.push(text);
                 c
@@ -218,7 +266,7 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                 *m = Some(code);
             }
         }
-        codes.push(Some(code));
+        codes.push(Code::level(code));
     }
 
     finish(codes, names, order, column)
@@ -237,7 +285,7 @@ fn text_codes_blocked<'a>(
     names: &mut Vec<String>,
     declared: bool,
     column: impl Fn() -> String,
-) -> Result<Vec<Option<u32>>, FactorError> {
+) -> Result<Vec<Code>, FactorError> {
     use rayon::prelude::*;
     let row_codes = t.codes();
     let n_texts = t.n_texts();
@@ -279,8 +327,8 @@ fn text_codes_blocked<'a>(
                 })
             }
             None => {
-                let c = u32::try_from(names.len())
-                    .map_err(|_| FactorError::TooManyLevels { column: column() })?;
+                let c = level_code(names.len())
+                    .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
                 map.insert(Key::Text(text), c);
                 names.push(text.to_owned());
                 c
@@ -290,13 +338,15 @@ fn text_codes_blocked<'a>(
             *m = Some(code);
         }
     }
-    let mut codes: Vec<Option<u32>> = vec![None; row_codes.len()];
+    let mut codes: Vec<Code> = vec![Code::MISSING; row_codes.len()];
     codes
         .par_chunks_mut(crate::parallel::BLOCK_ROWS)
         .zip(row_codes.par_chunks(crate::parallel::BLOCK_ROWS))
         .for_each(|(out, cells)| {
             for (o, &tc) in out.iter_mut().zip(cells) {
-                *o = index(tc).and_then(|i| memo.get(i).copied().flatten());
+                *o = index(tc)
+                    .and_then(|i| memo.get(i).copied().flatten())
+                    .into();
             }
         });
     Ok(codes)
@@ -304,13 +354,14 @@ fn text_codes_blocked<'a>(
 
 /// The factor of the codes, or the error of one with fewer than two levels occurring.
 fn finish(
-    codes: Vec<Option<u32>>,
+    codes: Vec<Code>,
     names: Vec<String>,
     order: LevelOrder,
     column: impl Fn() -> String,
 ) -> Result<Factor, FactorError> {
     let factor = Factor {
-        codes: codes.into(),
+        // Shared as it is: no copy.
+        codes: Arc::new(codes),
         levels: names,
         order,
     };

@@ -20,7 +20,7 @@ mod reference;
 mod tests;
 
 pub use error::{FactorError, LoadError};
-pub use factor::{make_factor, unused_levels, Factor, LevelOrder};
+pub use factor::{make_factor, unused_levels, Code, Factor, LevelOrder};
 pub use lines::RowLines;
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
@@ -329,7 +329,7 @@ impl Column {
                 .iter()
                 .filter(|c| **c == TextValues::MISSING)
                 .count(),
-            Values::Factor(f) => f.codes.iter().filter(|x| x.is_none()).count(),
+            Values::Factor(f) => f.codes.iter().filter(|x| x.is_missing()).count(),
         }
     }
 

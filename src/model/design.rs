@@ -11,7 +11,7 @@
 use std::borrow::Cow;
 use std::ops::Range;
 
-use super::{ModelError, ModelSpec, ModelWarning, Transform, Var};
+use super::{Code, ModelError, ModelSpec, ModelWarning, Transform, Var};
 
 /// Which contrasts replace a contrast-coded factor.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -411,8 +411,8 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
                 let mut has = vec![false; levels.len()];
                 let mut missing = levels.len();
                 for i in used.iter() {
-                    if let Some(Some(c)) = codes.get(i) {
-                        if let Some(h) = has.get_mut(*c as usize).filter(|h| !**h) {
+                    if let Some(c) = codes.get(i).and_then(|c| c.get()) {
+                        if let Some(h) = has.get_mut(c as usize).filter(|h| !**h) {
                             *h = true;
                             missing -= 1;
                             if missing == 0 {
@@ -557,7 +557,7 @@ fn row_complete(
                 name,
                 codes,
                 levels,
-            }) => match codes.get(i).copied().flatten() {
+            }) => match codes.get(i).and_then(|c| c.get()) {
                 None => return Ok(false),
                 Some(c) => {
                     if c as usize >= levels.len() {
@@ -783,14 +783,14 @@ pub(crate) fn eval_block(spec: &ModelSpec, col: &Column, rows: &[usize], out: &m
             ColPart::Indicator { var, code } => {
                 let codes = factor_codes(spec, *var);
                 for (o, &i) in out.iter_mut().zip(rows) {
-                    let c = codes.get(i).copied().flatten();
+                    let c = codes.get(i).and_then(|c| c.get());
                     *o *= f64::from(u8::from(c == Some(*code)));
                 }
             }
             ColPart::Effect { var, code, last } => {
                 let codes = factor_codes(spec, *var);
                 for (o, &i) in out.iter_mut().zip(rows) {
-                    let c = codes.get(i).copied().flatten();
+                    let c = codes.get(i).and_then(|c| c.get());
                     *o *= if c == Some(*code) {
                         1.0
                     } else if c == Some(*last) {
@@ -831,8 +831,9 @@ fn eval_range(spec: &ModelSpec, col: &Column, range: std::ops::Range<usize>, out
                     out.iter_mut().for_each(|o| *o *= 0.0);
                     continue;
                 };
+                let code = Code::level(*code);
                 for (o, &c) in out.iter_mut().zip(cs) {
-                    *o *= f64::from(u8::from(c == Some(*code)));
+                    *o *= f64::from(u8::from(c == code));
                 }
             }
             ColPart::Effect { var, code, last } => {
@@ -841,10 +842,11 @@ fn eval_range(spec: &ModelSpec, col: &Column, range: std::ops::Range<usize>, out
                     out.iter_mut().for_each(|o| *o *= 0.0);
                     continue;
                 };
+                let (code, last) = (Code::level(*code), Code::level(*last));
                 for (o, &c) in out.iter_mut().zip(cs) {
-                    *o *= if c == Some(*code) {
+                    *o *= if c == code {
                         1.0
-                    } else if c == Some(*last) {
+                    } else if c == last {
                         -1.0
                     } else {
                         0.0
@@ -856,7 +858,7 @@ fn eval_range(spec: &ModelSpec, col: &Column, range: std::ops::Range<usize>, out
 }
 
 /// The codes of factor `var` (empty for a numeric variable).
-fn factor_codes(spec: &ModelSpec, var: usize) -> &[Option<u32>] {
+fn factor_codes(spec: &ModelSpec, var: usize) -> &[Code] {
     match spec.vars.get(var) {
         Some(Var::Factor { codes, .. }) => codes,
         _ => &[],
@@ -865,7 +867,7 @@ fn factor_codes(spec: &ModelSpec, var: usize) -> &[Option<u32>] {
 
 fn factor_code(spec: &ModelSpec, var: usize, i: usize) -> Option<u32> {
     match spec.vars.get(var) {
-        Some(Var::Factor { codes, .. }) => codes.get(i).copied().flatten(),
+        Some(Var::Factor { codes, .. }) => codes.get(i).and_then(|c| c.get()),
         _ => None,
     }
 }

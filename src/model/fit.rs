@@ -4,6 +4,7 @@
 //! sub-model RSS come from that triangular factor. Row diagnostics are a second pass, made
 //! only when something asks for them.
 
+use std::ops::Range;
 use std::sync::{Arc, OnceLock};
 
 use super::design::{self, Column, Layout, Scheme, UsedRows};
@@ -747,127 +748,161 @@ impl Fit {
         &self.spec
     }
 
-    /// Row diagnostics: a second pass over the fitted rows, made once per fit. Leverage
-    /// h_i = |R^-T z_i|^2; Cook's distance e^2 h / (p s^2 (1-h)^2); externally studentized
-    /// residual e / (s_(i) sqrt(1-h)) with s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1)
-    /// (Belsley, Kuh & Welsch, "Regression Diagnostics", 1980, chapter 2). The pass stores
-    /// fitted values, residuals and leverages; the other two are evaluated from them when read.
+    /// Row diagnostics: a second pass over the fitted rows, made once per fit, that keeps
+    /// the residuals. Fitted values and leverages ([`Fit::fitted_values`], [`Fit::leverages`])
+    /// are computed again from the design by whoever needs them, a block at a time, rather
+    /// than held for every row. Leverage h_i = |R^-T z_i|^2; Cook's distance
+    /// e^2 h / (p s^2 (1-h)^2); externally studentized residual e / (s_(i) sqrt(1-h)) with
+    /// s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1) (Belsley, Kuh & Welsch, "Regression
+    /// Diagnostics", 1980, chapter 2).
     pub fn diagnostics(&self) -> &Diagnostics {
-        self.diag.get_or_init(|| self.compute_diagnostics())
+        self.diag.get_or_init(|| Diagnostics {
+            residuals: self.row_values(0..self.lay.used.len(), RowValue::Residual),
+            rank: self.kept.len() as f64,
+            s2: self.sigma * self.sigma,
+            rss: self.rss,
+            df_res: self.df_res,
+        })
     }
 
-    fn compute_diagnostics(&self) -> Diagnostics {
-        let e = &self.treat;
-        let y: &[f64] = match &self.spec.response {
+    /// Fitted values of the fitted rows at positions `at` (in fitted-row order; cut at the
+    /// last row). Each row's value depends on that row alone, so it is the same to the bit
+    /// whatever range it is asked for in.
+    pub fn fitted_values(&self, at: Range<usize>) -> Vec<f64> {
+        self.row_values(at, RowValue::Fitted)
+    }
+
+    /// Leverages (hat values) of the fitted rows at positions `at`, as [`Fit::fitted_values`].
+    pub fn leverages(&self, at: Range<usize>) -> Vec<f64> {
+        self.row_values(at, RowValue::Leverage)
+    }
+
+    /// One value per fitted row at positions `at`, in blocks of [`CHUNK_ROWS`] (in parallel
+    /// beyond one block).
+    fn row_values(&self, at: Range<usize>, what: RowValue) -> Vec<f64> {
+        let n = self.lay.used.len();
+        let at = at.start.min(n)..at.end.min(n);
+        let pass = RowPass::new(self);
+        let mut out = vec![0.0; at.len()];
+        if at.len() > CHUNK_ROWS {
+            out.par_chunks_mut(CHUNK_ROWS)
+                .enumerate()
+                .for_each(|(i, chunk)| {
+                    let start = at.start + i * CHUNK_ROWS;
+                    let rows = self.lay.used.slice(start..start + chunk.len());
+                    pass.fill(&rows, what, chunk);
+                });
+        } else {
+            // One block: on this thread, without starting the pool.
+            pass.fill(&self.lay.used.slice(at), what, &mut out);
+        }
+        out
+    }
+}
+
+/// Which value a pass over fitted rows computes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum RowValue {
+    Fitted,
+    Residual,
+    Leverage,
+}
+
+/// What a pass over fitted rows needs, gathered once: the kept design columns with their
+/// centres and scales (the response's last), and the response.
+struct RowPass<'a> {
+    fit: &'a Fit,
+    y: &'a [f64],
+    cols: Vec<Column>,
+    centre: Vec<f64>,
+    scale: Vec<f64>,
+}
+
+impl<'a> RowPass<'a> {
+    fn new(fit: &'a Fit) -> RowPass<'a> {
+        let e = &fit.treat;
+        let y: &[f64] = match &fit.spec.response {
             Var::Numeric { values, .. } => values,
             Var::Factor { .. } => &[],
         };
-        let kept_cols: Vec<Column> = self
+        let cols = fit
             .kept
             .iter()
             .filter_map(|&c| e.cols.get(c).cloned())
             .collect();
-        let k = kept_cols.len();
-        let mut centre: Vec<f64> = self.kept.iter().map(|&c| e.centre[c]).collect();
-        let mut scale: Vec<f64> = self.kept.iter().map(|&c| e.scale[c]).collect();
+        let mut centre: Vec<f64> = fit.kept.iter().map(|&c| e.centre[c]).collect();
+        let mut scale: Vec<f64> = fit.kept.iter().map(|&c| e.scale[c]).collect();
         centre.push(e.y_centre);
         scale.push(e.y_scale);
-        let n = self.lay.used.len();
-        let mut d = Diagnostics {
-            fitted: vec![0.0; n],
-            residuals: vec![0.0; n],
-            leverage: vec![0.0; n],
-            rank: k as f64,
-            s2: self.sigma * self.sigma,
-            rss: self.rss,
-            df_res: self.df_res,
-        };
-        let work = |rows: &[usize], ((fitted, res), lev): Outputs<'_>| {
-            let mut block = Block::fill(&self.spec, &kept_cols, y, rows);
-            block.standardise(&centre, &scale);
-            // Fitted values and residuals in the scaled coordinates, column by column.
-            let mut fz = vec![0.0; rows.len()];
-            for (j, b) in self.bz.iter().enumerate() {
-                for (f, z) in fz.iter_mut().zip(block.column(j)) {
-                    *f += b * z;
-                }
-            }
-            for ((o_fit, o_res), (f, yz)) in fitted
-                .iter_mut()
-                .zip(res.iter_mut())
-                .zip(fz.iter().zip(block.column(k)))
-            {
-                *o_res = (yz - f) * e.y_scale;
-                *o_fit = e.y_offset + (e.y_centre + f * e.y_scale);
-            }
+        RowPass {
+            fit,
+            y,
+            cols,
+            centre,
+            scale,
+        }
+    }
+
+    /// `what` for each of `rows` (data rows) into `out`.
+    fn fill(&self, rows: &[usize], what: RowValue, out: &mut [f64]) {
+        let fit = self.fit;
+        let e = &fit.treat;
+        let k = self.cols.len();
+        let mut block = Block::fill(&fit.spec, &self.cols, self.y, rows);
+        block.standardise(&self.centre, &self.scale);
+        if what == RowValue::Leverage {
             // u = R^-T z for every row at once: forward substitution over whole columns,
             // each u_i overwriting z_i (it needs only z_i and the u before it).
-            block.solve_transpose_in_place(&self.r, k);
-            lev.fill(0.0);
+            block.solve_transpose_in_place(&fit.r, k);
+            out.fill(0.0);
             for i in 0..k {
-                for (h, u) in lev.iter_mut().zip(block.column(i)) {
+                for (h, u) in out.iter_mut().zip(block.column(i)) {
                     *h += u * u;
                 }
             }
-        };
-        if n > CHUNK_ROWS {
-            let outputs = d
-                .fitted
-                .par_chunks_mut(CHUNK_ROWS)
-                .zip(d.residuals.par_chunks_mut(CHUNK_ROWS))
-                .zip(d.leverage.par_chunks_mut(CHUNK_ROWS));
-            self.lay
-                .used
-                .blocks(CHUNK_ROWS)
-                .into_par_iter()
-                .zip(outputs)
-                .for_each(|(at, out)| work(&self.lay.used.slice(at), out));
-        } else {
-            // One block: on this thread, without starting the pool.
-            work(
-                &self.lay.used.slice(0..n),
-                (
-                    (&mut d.fitted[..], &mut d.residuals[..]),
-                    &mut d.leverage[..],
-                ),
-            );
+            return;
         }
-        d
+        // Fitted values in the scaled coordinates, column by column.
+        let mut fz = vec![0.0; rows.len()];
+        for (j, b) in fit.bz.iter().enumerate() {
+            for (f, z) in fz.iter_mut().zip(block.column(j)) {
+                *f += b * z;
+            }
+        }
+        if what == RowValue::Residual {
+            for (o, (f, yz)) in out.iter_mut().zip(fz.iter().zip(block.column(k))) {
+                *o = (yz - f) * e.y_scale;
+            }
+        } else {
+            for (o, f) in out.iter_mut().zip(&fz) {
+                *o = e.y_offset + (e.y_centre + f * e.y_scale);
+            }
+        }
     }
 }
 
 impl Diagnostics {
     /// Number of fitted rows.
     pub fn len(&self) -> usize {
-        self.leverage.len()
+        self.residuals.len()
     }
 
     /// True when there are no rows.
     pub fn is_empty(&self) -> bool {
-        self.leverage.is_empty()
+        self.residuals.is_empty()
     }
 
-    /// Cook's distance of the k-th fitted row; `None` beyond the last row.
-    pub fn cooks_distance(&self, k: usize) -> Option<f64> {
-        Some(self.cook(*self.residuals.get(k)?, *self.leverage.get(k)?))
-    }
-
-    /// Externally studentized residual of the k-th fitted row; `None` beyond the last row.
-    pub fn studentized(&self, k: usize) -> Option<f64> {
-        Some(self.student(*self.residuals.get(k)?, *self.leverage.get(k)?))
-    }
-
-    /// Cook's distance of every fitted row, in order.
-    pub fn cooks_distances(&self) -> impl Iterator<Item = f64> + '_ {
+    /// Cook's distance of every fitted row, in order, given the rows' leverages.
+    pub fn cooks_distances<'a>(&'a self, leverage: &'a [f64]) -> impl Iterator<Item = f64> + 'a {
         self.residuals
             .iter()
-            .zip(&self.leverage)
+            .zip(leverage)
             .map(|(&r, &h)| self.cook(r, h))
     }
 
     /// Cook's distance e^2 h / (p s^2 (1-h)^2) of a row with residual `r` and leverage `h`;
     /// NaN at leverage 1.
-    fn cook(&self, r: f64, h: f64) -> f64 {
+    pub fn cook(&self, r: f64, h: f64) -> f64 {
         let one_h = 1.0 - h;
         if one_h > 0.0 {
             r * r * h / (self.rank * self.s2 * one_h * one_h)
@@ -878,7 +913,7 @@ impl Diagnostics {
 
     /// Externally studentized residual e / (s_(i) sqrt(1-h)), s_(i)^2 = (RSS - e^2/(1-h)) /
     /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined.
-    fn student(&self, r: f64, h: f64) -> f64 {
+    pub fn student(&self, r: f64, h: f64) -> f64 {
         let one_h = 1.0 - h;
         if one_h > 0.0 && self.df_res > 1 {
             let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
@@ -892,7 +927,3 @@ impl Diagnostics {
         }
     }
 }
-
-/// One block's slices of the three diagnostic outputs (fitted, residual, leverage), nested
-/// as rayon's zip delivers them.
-type Outputs<'a> = ((&'a mut [f64], &'a mut [f64]), &'a mut [f64]);

@@ -13,6 +13,8 @@
 
 use std::sync::Arc;
 
+pub use crate::data::Code;
+
 pub use crate::data::RowLines;
 
 mod anova;
@@ -47,8 +49,8 @@ pub enum Var {
     Factor {
         /// Variable name.
         name: String,
-        /// Level index of each row; `None` marks a missing value.
-        codes: Arc<[Option<u32>]>,
+        /// Level code of each row ([`Code::MISSING`] for a missing value).
+        codes: Arc<Vec<Code>>,
         /// Level labels in declared order.
         levels: Vec<String>,
     },
@@ -431,18 +433,15 @@ pub struct Region {
 /// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1), one per
 /// fitted row in order; [`Fit::row_number`] gives each row's line in the data file.
 ///
-/// Only what the pass over the design produces is stored (24 bytes a row); Cook's distance
-/// and the externally studentized residual are closed forms of a row's residual and leverage
-/// and the fit's scalars, evaluated when asked for ([`Diagnostics::cooks_distance`],
-/// [`Diagnostics::studentized`]) by the same expressions, so to the same bits.
+/// Only the residuals are kept (8 bytes a row). Fitted values and leverages are computed
+/// again from the design when needed ([`Fit::fitted_values`], [`Fit::leverages`]); Cook's
+/// distance and the externally studentized residual are closed forms of a row's residual and
+/// leverage and the fit's scalars ([`Diagnostics::cook`], [`Diagnostics::student`]), by the
+/// same expressions wherever they are evaluated, so to the same bits.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Diagnostics {
-    /// Fitted values.
-    pub fitted: Vec<f64>,
     /// Residuals.
     pub residuals: Vec<f64>,
-    /// Leverages (hat values).
-    pub leverage: Vec<f64>,
     /// Number of estimated coefficients (p in Cook's distance).
     pub(crate) rank: f64,
     /// Residual variance s^2.

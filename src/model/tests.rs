@@ -129,10 +129,12 @@ fn close(a: f64, b: f64, tol: f64, what: &str) {
 fn factor(name: &str, vals: &[&str], levels: &[&str]) -> Var {
     Var::Factor {
         name: name.to_string(),
-        codes: vals
-            .iter()
-            .map(|v| levels.iter().position(|l| l == v).map(|p| p as u32))
-            .collect(),
+        codes: std::sync::Arc::new(
+            vals.iter()
+                .map(|v| levels.iter().position(|l| l == v).map(|p| p as u32))
+                .map(super::Code::from)
+                .collect(),
+        ),
         levels: levels.iter().map(|s| s.to_string()).collect(),
     }
 }
@@ -356,14 +358,14 @@ fn reference_diagnostics() {
     let f = ancova();
     let d = f.diagnostics();
     assert_eq!(f.row_number(0), Some(2));
+    let leverage = f.leverages(0..d.len());
     for k in 0..3 {
-        close(d.leverage[k], DIAG_LEVERAGE[k], 1e-11, "leverage");
-        let cook = d.cooks_distance(k).unwrap_or(f64::NAN);
-        close(cook, DIAG_COOK[k], 1e-10, "cook");
-        let studentized = d.studentized(k).unwrap_or(f64::NAN);
-        close(studentized, DIAG_STUDENT[k], 1e-10, "studentized");
+        let (r, h) = (d.residuals[k], leverage[k]);
+        close(h, DIAG_LEVERAGE[k], 1e-11, "leverage");
+        close(d.cook(r, h), DIAG_COOK[k], 1e-10, "cook");
+        close(d.student(r, h), DIAG_STUDENT[k], 1e-10, "studentized");
     }
-    let sum_h: f64 = d.leverage.iter().sum();
+    let sum_h: f64 = leverage.iter().sum();
     close(sum_h, 7.0, 1e-12, "trace of hat matrix = rank");
     let rss: f64 = d.residuals.iter().map(|e| e * e).sum();
     close(rss, RSS_DF[0], 1e-12, "sum of squared residuals");
@@ -821,7 +823,9 @@ fn no_panic_on_degenerate_inputs() {
                                 Some(next(nl as u64 + 1) as u32)
                             }
                         })
-                        .collect(),
+                        .map(super::Code::from)
+                        .collect::<Vec<_>>()
+                        .into(),
                     levels: (0..nl).map(|l| format!("l{l}")).collect(),
                 });
             }
@@ -1537,7 +1541,9 @@ fn response_offset_leaves_tests_alone_and_moves_estimates() {
         close(y.estimate, x.estimate, 1e-13, "pair difference");
     }
     let (d0, d1) = (direct.diagnostics(), shifted.diagnostics());
-    for (k, (x, y)) in d0.fitted.iter().zip(&d1.fitted).enumerate() {
+    let n = d0.len();
+    let (f0, f1) = (direct.fitted_values(0..n), shifted.fitted_values(0..n));
+    for (k, (x, y)) in f0.iter().zip(&f1).enumerate() {
         offset_close(*y, *x, offset, "fitted value");
         close(d1.residuals[k], d0.residuals[k], 1e-12, "residual");
     }
@@ -1723,4 +1729,55 @@ fn rows_used_across_blocks() {
         Err(ModelError::NonFiniteValue { row, .. }) => assert_eq!(row, 150_002),
         other => panic!("expected the first non-finite row, got {other:?}"),
     }
+}
+
+#[test]
+fn row_values_are_the_same_whatever_range_they_are_asked_in() {
+    // Invented rows, more than one engine block, with a gap so that the rows used are listed.
+    let n = 10_000;
+    let levels = ["a1", "a2", "a3"];
+    let a: Vec<&str> = (0..n).map(|i| levels[(i * 7) % 3]).collect();
+    let x: Vec<f64> = (0..n).map(|i| ((i * 37) % 101) as f64 * 0.25).collect();
+    let mut y: Vec<f64> = (0..n)
+        .map(|i| 1.0 + ((i * 13) % 7) as f64 + 0.5 * x[i])
+        .collect();
+    y[5_000] = f64::NAN;
+    let spec = ModelSpec {
+        response: num("y", y.clone()),
+        vars: vec![factor("a", &a, &levels), num("x", x)],
+        terms: vec![term(&[0]), term(&[1]), term(&[0, 1])],
+        intercept: true,
+        row_numbers: (2..n + 2).collect(),
+        response_offset: 0.0,
+    };
+    let f = fit(&spec).expect("fit");
+    let d = f.diagnostics();
+    let m = d.len();
+    assert_eq!(m, n - 1);
+    let (fitted, leverage) = (f.fitted_values(0..m), f.leverages(0..m));
+    let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+    for at in [0..1, 17..4_200, 4_095..4_097, 8_000..m, m - 3..m + 50] {
+        let end = at.end.min(m);
+        assert_eq!(
+            bits(&f.fitted_values(at.clone())),
+            bits(&fitted[at.start..end])
+        );
+        assert_eq!(
+            bits(&f.leverages(at.clone())),
+            bits(&leverage[at.start..end])
+        );
+    }
+    // Residual plus fitted value gives back the response; the leverages sum to the rank.
+    let used: Vec<f64> = y.iter().copied().filter(|v| v.is_finite()).collect();
+    for ((e, fv), yv) in d.residuals.iter().zip(&fitted).zip(&used) {
+        assert!(
+            (e + fv - yv).abs() <= 1e-10 * yv.abs().max(1.0),
+            "{e} + {fv} vs {yv}"
+        );
+    }
+    let trace: f64 = leverage.iter().sum();
+    assert!(
+        (trace - 6.0).abs() < 1e-9,
+        "trace of the hat matrix {trace}"
+    );
 }

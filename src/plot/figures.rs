@@ -94,7 +94,7 @@ impl Groups {
                 of_row: vec![0; rows.index.len()],
             };
         };
-        let code_of = |i: usize| codes.get(i).copied().flatten();
+        let code_of = |i: usize| codes.get(i).and_then(|c| c.get());
         let blocks = crate::parallel::row_blocks(rows.index.len());
         let present_in = |at: &Range<usize>| {
             let mut present = vec![false; levels.len()];
@@ -527,15 +527,24 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let covariate = var_values(fit, req.covariate);
-    let x_of = |k: usize, i: usize| match req.covariate {
-        Some(_) => covariate.get(i).copied().unwrap_or(f64::NAN),
-        None => d.fitted.get(k).copied().unwrap_or(f64::NAN),
-    };
+    let (rows, groups) = (&rows, &groups);
+    // Against fitted values, each block's are computed as the block is read.
     let candidates = |at: Range<usize>| {
-        at.filter_map(|k| {
+        let fitted = match req.covariate {
+            Some(_) => Vec::new(),
+            None => fit.fitted_values(at.clone()),
+        };
+        let start = at.start;
+        let covariate = &covariate;
+        at.filter_map(move |k| {
             let i = rows.index.get(k)?;
             let group = groups.group(k)?;
-            let (x, y) = (x_of(k, i), d.residuals.get(k).copied()?);
+            let x = match req.covariate {
+                Some(_) => covariate.get(i).copied(),
+                None => fitted.get(k - start).copied(),
+            }
+            .unwrap_or(f64::NAN);
+            let y = d.residuals.get(k).copied()?;
             (x.is_finite() && y.is_finite()).then_some(Point { group, x, y })
         })
     };
@@ -591,7 +600,8 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let s = fit.summary().sigma;
     let mut r: Vec<(f64, usize)> = Vec::new();
-    for ((e, h), g) in d.residuals.iter().zip(&d.leverage).zip(groups.rows()) {
+    let leverage = fit.leverages(0..d.len());
+    for ((e, h), g) in d.residuals.iter().zip(&leverage).zip(groups.rows()) {
         let one_h = 1.0 - h;
         if let Some(g) = g {
             if one_h > 0.0 && s > 0.0 {
@@ -720,6 +730,7 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// distance of each run is drawn, so that no influential row disappears.
 pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
+    let leverage = fit.leverages(0..d.len());
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
@@ -729,7 +740,7 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .index
         .iter()
         .map(row_line)
-        .zip(d.cooks_distances())
+        .zip(d.cooks_distances(&leverage))
         .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
@@ -760,7 +771,7 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     };
     let threshold = if n > 0 { 4.0 / n as f64 } else { 0.0 };
     let above = d
-        .cooks_distances()
+        .cooks_distances(&leverage)
         .filter(|c| c.is_finite() && *c > threshold)
         .count();
     let alt = format!(

@@ -16,7 +16,7 @@
 
 use super::{Outcome, Session};
 use crate::lang::Spanned;
-use crate::model::{self, Diagnostics, Fit, ModelError, ModelSpec, UsedRows, Var};
+use crate::model::{self, Code, Diagnostics, Fit, ModelError, ModelSpec, UsedRows, Var};
 use crate::report::markdown::code;
 use crate::report::number::format_column;
 use crate::report::{Cell, Column as Col, Format, Item, Table};
@@ -102,7 +102,7 @@ impl Session<'_> {
                             .map(|(f, x)| balance_row(spec, f, x, used))
                             .collect::<Vec<_>>()
                     },
-                    || Influence::new(diag, fit.n_coef()),
+                    || Influence::new(fit, diag, fit.n_coef()),
                 )
             },
         );
@@ -181,7 +181,7 @@ fn var_name(spec: &ModelSpec, v: usize) -> &str {
 }
 
 /// The factor's codes and level labels, or empty ones for a numeric variable.
-fn factor_parts(spec: &ModelSpec, f: usize) -> (&[Option<u32>], &[String]) {
+fn factor_parts(spec: &ModelSpec, f: usize) -> (&[Code], &[String]) {
     match spec.vars.get(f) {
         Some(Var::Factor { codes, levels, .. }) => (codes, levels),
         _ => (&[], &[]),
@@ -273,7 +273,7 @@ fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) ->
 /// have rows, in level order. The groups are gathered one at a time, each sized by a count
 /// first: on large data all of them together would be as long as the residuals.
 fn residual_spread(
-    codes: &[Option<u32>],
+    codes: &[Code],
     nlevels: usize,
     used: &UsedRows,
     residuals: &[f64],
@@ -281,8 +281,7 @@ fn residual_spread(
     let level_of = |i: usize| {
         codes
             .get(i)
-            .copied()
-            .flatten()
+            .and_then(|c| c.get())
             .and_then(|c| usize::try_from(c).ok())
             .filter(|&c| c < nlevels)
     };
@@ -395,12 +394,12 @@ fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cel
 /// model of the covariate on the factor, without building one.
 fn one_way(
     values: &[f64],
-    codes: &[Option<u32>],
+    codes: &[Code],
     nlevels: usize,
     used: &UsedRows,
 ) -> Result<(f64, usize, usize), ModelError> {
     let cell = |i: usize| -> Option<(usize, f64)> {
-        let c = codes.get(i).copied().flatten()? as usize;
+        let c = codes.get(i).and_then(|c| c.get())? as usize;
         let v = values.get(i).copied()?;
         (c < nlevels && v.is_finite()).then_some((c, v))
     };
@@ -466,24 +465,27 @@ struct Influence {
     coefficients: usize,
     leverage_limit: f64,
     cook_limit: f64,
-    /// Positions (in fitted-row order) of the rows past a threshold.
-    flagged: Vec<usize>,
+    /// Positions (in fitted-row order) of the rows past a threshold, with their leverages.
+    flagged: Vec<(usize, f64)>,
 }
 
 impl Influence {
-    fn new(d: &Diagnostics, coefficients: usize) -> Influence {
-        let n = d.leverage.len();
+    fn new(fit: &Fit, d: &Diagnostics, coefficients: usize) -> Influence {
+        let n = d.len();
         let nf = n.max(1) as f64;
         let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
         let cook_limit = COOK_NUMERATOR / nf;
-        // NaN (undefined at leverage 1) compares false and flags nothing by itself.
-        let flags = |rows: &std::ops::Range<usize>| -> Vec<usize> {
+        // NaN (undefined at leverage 1) compares false and flags nothing by itself. The
+        // leverages are computed a block at a time and only the flagged rows' kept.
+        let flags = |rows: &std::ops::Range<usize>| -> Vec<(usize, f64)> {
+            let leverage = fit.leverages(rows.clone());
             rows.clone()
-                .filter(|&k| {
-                    d.leverage.get(k).is_some_and(|&h| h > leverage_limit)
-                        || d.cooks_distance(k).is_some_and(|c| c > cook_limit)
-                        || d.studentized(k)
-                            .is_some_and(|s| s.abs() > STUDENTIZED_LIMIT)
+                .zip(leverage)
+                .filter(|&(k, h)| {
+                    let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
+                    h > leverage_limit
+                        || d.cook(r, h) > cook_limit
+                        || d.student(r, h).abs() > STUDENTIZED_LIMIT
                 })
                 .collect()
         };
@@ -545,33 +547,34 @@ impl Influence {
                 ),
             ],
         );
-        let mut listed = self.flagged.clone();
+        // (position, leverage, Cook's distance) of each flagged row.
+        let cook = |&(k, h): &(usize, f64)| {
+            let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
+            (k, h, d.cook(r, h))
+        };
+        let mut listed: Vec<(usize, f64, f64)> = self.flagged.iter().map(cook).collect();
         if listed.len() > MAX_LISTED {
             // Largest Cook's distance first (NaN last), ties in row order: a strict order, so
             // the rows chosen are the same however the selection runs.
-            let mut keyed: Vec<(f64, usize)> = listed
-                .iter()
-                .map(|&k| (d.cooks_distance(k).unwrap_or(f64::NAN), k))
-                .collect();
-            keyed.select_nth_unstable_by(MAX_LISTED - 1, |a, b| {
-                b.0.partial_cmp(&a.0)
-                    .unwrap_or_else(|| a.0.is_nan().cmp(&b.0.is_nan()))
-                    .then(a.1.cmp(&b.1))
+            listed.select_nth_unstable_by(MAX_LISTED - 1, |a, b| {
+                b.2.partial_cmp(&a.2)
+                    .unwrap_or_else(|| a.2.is_nan().cmp(&b.2.is_nan()))
+                    .then(a.0.cmp(&b.0))
             });
-            listed = keyed.iter().take(MAX_LISTED).map(|&(_, k)| k).collect();
-            listed.sort_unstable();
+            listed.truncate(MAX_LISTED);
+            listed.sort_unstable_by_key(|e| e.0);
             t.notes.push(format!(
                 "{} rows are past a threshold; the {MAX_LISTED} with the largest Cook's distance are listed.",
                 self.flagged.len()
             ));
         }
-        for &k in &listed {
-            let nan = f64::NAN;
+        for &(k, h, c) in &listed {
+            let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
             t.push(vec![
                 fit.row_number(k).map_or(Cell::Missing, Cell::from),
-                d.leverage.get(k).copied().unwrap_or(nan).into(),
-                d.cooks_distance(k).unwrap_or(nan).into(),
-                d.studentized(k).unwrap_or(nan).into(),
+                h.into(),
+                c.into(),
+                d.student(r, h).into(),
             ]);
         }
         t.notes

@@ -335,11 +335,11 @@ impl Session<'_> {
                         .codes
                         .iter()
                         .zip(values.iter())
-                        .filter(|(c, _)| **c == Some(li as u32))
+                        .filter(|(c, _)| c.get() == Some(li as u32))
                         .map(|(_, v)| *v);
                     t.push(summary_row(level, vals));
                 }
-                let no_level = f.codes.iter().filter(|c| c.is_none()).count();
+                let no_level = f.codes.iter().filter(|c| c.is_missing()).count();
                 if no_level > 0 {
                     t.notes.push(format!(
                         "{no_level} rows with a missing {} are not in any level.",
@@ -606,8 +606,7 @@ fn cell_value(col: &Column, row: usize) -> Option<CellValue<'_>> {
         Values::Factor(f) => f
             .codes
             .get(row)
-            .copied()
-            .flatten()
+            .and_then(|c| c.get())
             .and_then(|c| f.levels.get(c as usize))
             .map(|s| CellValue::Text(s.as_str())),
     }
