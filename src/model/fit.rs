@@ -748,16 +748,16 @@ impl Fit {
         &self.spec
     }
 
-    /// Row diagnostics: a second pass over the fitted rows, made once per fit, that keeps
-    /// the residuals. Fitted values and leverages ([`Fit::fitted_values`], [`Fit::leverages`])
-    /// are computed again from the design by whoever needs them, a block at a time, rather
-    /// than held for every row. Leverage h_i = |R^-T z_i|^2; Cook's distance
+    /// The scalars that row diagnostics need. The row values themselves (residuals, fitted
+    /// values, leverages: [`Fit::residuals`], [`Fit::fitted_values`], [`Fit::leverages`])
+    /// are computed from the design by whoever needs them, a block at a time, rather than
+    /// held for every row. Leverage h_i = |R^-T z_i|^2; Cook's distance
     /// e^2 h / (p s^2 (1-h)^2); externally studentized residual e / (s_(i) sqrt(1-h)) with
     /// s_(i)^2 = (RSS - e^2/(1-h)) / (df - 1) (Belsley, Kuh & Welsch, "Regression
     /// Diagnostics", 1980, chapter 2).
     pub fn diagnostics(&self) -> &Diagnostics {
         self.diag.get_or_init(|| Diagnostics {
-            residuals: self.row_values(0..self.lay.used.len(), RowValue::Residual),
+            n: self.lay.used.len(),
             rank: self.kept.len() as f64,
             s2: self.sigma * self.sigma,
             rss: self.rss,
@@ -765,9 +765,14 @@ impl Fit {
         })
     }
 
-    /// Fitted values of the fitted rows at positions `at` (in fitted-row order; cut at the
-    /// last row). Each row's value depends on that row alone, so it is the same to the bit
+    /// Residuals of the fitted rows at positions `at` (in fitted-row order; cut at the last
+    /// row). Each row's value depends on that row alone, so it is the same to the bit
     /// whatever range it is asked for in.
+    pub fn residuals(&self, at: Range<usize>) -> Vec<f64> {
+        self.row_values(at, RowValue::Residual)
+    }
+
+    /// Fitted values of the fitted rows at positions `at`, as [`Fit::residuals`].
     pub fn fitted_values(&self, at: Range<usize>) -> Vec<f64> {
         self.row_values(at, RowValue::Fitted)
     }
@@ -884,17 +889,21 @@ impl<'a> RowPass<'a> {
 impl Diagnostics {
     /// Number of fitted rows.
     pub fn len(&self) -> usize {
-        self.residuals.len()
+        self.n
     }
 
     /// True when there are no rows.
     pub fn is_empty(&self) -> bool {
-        self.residuals.is_empty()
+        self.n == 0
     }
 
-    /// Cook's distance of every fitted row, in order, given the rows' leverages.
-    pub fn cooks_distances<'a>(&'a self, leverage: &'a [f64]) -> impl Iterator<Item = f64> + 'a {
-        self.residuals
+    /// Cook's distance of each row, in order, given the rows' residuals and leverages.
+    pub fn cooks_distances<'a>(
+        &'a self,
+        residuals: &'a [f64],
+        leverage: &'a [f64],
+    ) -> impl Iterator<Item = f64> + 'a {
+        residuals
             .iter()
             .zip(leverage)
             .map(|(&r, &h)| self.cook(r, h))

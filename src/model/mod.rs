@@ -430,18 +430,20 @@ pub struct Region {
     pub refitted: bool,
 }
 
-/// Row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1), one per
-/// fitted row in order; [`Fit::row_number`] gives each row's line in the data file.
+/// What row diagnostics (NaN where undefined, e.g. studentized residuals at leverage 1, one
+/// per fitted row in order; [`Fit::row_number`] gives each row's line in the data file) need
+/// beside the rows' values.
 ///
-/// Only the residuals are kept (8 bytes a row). Fitted values and leverages are computed
-/// again from the design when needed ([`Fit::fitted_values`], [`Fit::leverages`]); Cook's
-/// distance and the externally studentized residual are closed forms of a row's residual and
-/// leverage and the fit's scalars ([`Diagnostics::cook`], [`Diagnostics::student`]), by the
-/// same expressions wherever they are evaluated, so to the same bits.
+/// No row values are kept: residuals, fitted values and leverages are computed from the
+/// design when needed ([`Fit::residuals`], [`Fit::fitted_values`], [`Fit::leverages`]), a
+/// block at a time. Cook's distance and the externally studentized residual are closed forms
+/// of a row's residual and leverage and these scalars ([`Diagnostics::cook`],
+/// [`Diagnostics::student`]), by the same expressions wherever they are evaluated, so to the
+/// same bits.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Diagnostics {
-    /// Residuals.
-    pub residuals: Vec<f64>,
+    /// Number of fitted rows.
+    pub(crate) n: usize,
     /// Number of estimated coefficients (p in Cook's distance).
     pub(crate) rank: f64,
     /// Residual variance s^2.

@@ -358,16 +358,16 @@ fn reference_diagnostics() {
     let f = ancova();
     let d = f.diagnostics();
     assert_eq!(f.row_number(0), Some(2));
-    let leverage = f.leverages(0..d.len());
+    let (residuals, leverage) = (f.residuals(0..d.len()), f.leverages(0..d.len()));
     for k in 0..3 {
-        let (r, h) = (d.residuals[k], leverage[k]);
+        let (r, h) = (residuals[k], leverage[k]);
         close(h, DIAG_LEVERAGE[k], 1e-11, "leverage");
         close(d.cook(r, h), DIAG_COOK[k], 1e-10, "cook");
         close(d.student(r, h), DIAG_STUDENT[k], 1e-10, "studentized");
     }
     let sum_h: f64 = leverage.iter().sum();
     close(sum_h, 7.0, 1e-12, "trace of hat matrix = rank");
-    let rss: f64 = d.residuals.iter().map(|e| e * e).sum();
+    let rss: f64 = residuals.iter().map(|e| e * e).sum();
     close(rss, RSS_DF[0], 1e-12, "sum of squared residuals");
 }
 
@@ -1540,12 +1540,13 @@ fn response_offset_leaves_tests_alone_and_moves_estimates() {
     for (x, y) in p0.iter().zip(&p1) {
         close(y.estimate, x.estimate, 1e-13, "pair difference");
     }
-    let (d0, d1) = (direct.diagnostics(), shifted.diagnostics());
-    let n = d0.len();
+    let n = direct.diagnostics().len();
+    assert_eq!(shifted.diagnostics().len(), n);
     let (f0, f1) = (direct.fitted_values(0..n), shifted.fitted_values(0..n));
+    let (r0, r1) = (direct.residuals(0..n), shifted.residuals(0..n));
     for (k, (x, y)) in f0.iter().zip(&f1).enumerate() {
         offset_close(*y, *x, offset, "fitted value");
-        close(d1.residuals[k], d0.residuals[k], 1e-12, "residual");
+        close(r1[k], r0[k], 1e-12, "residual");
     }
     // Same response for compare(): the offset fit against itself nests, against the
     // direct values (a different response) it does not.
@@ -1755,6 +1756,7 @@ fn row_values_are_the_same_whatever_range_they_are_asked_in() {
     let m = d.len();
     assert_eq!(m, n - 1);
     let (fitted, leverage) = (f.fitted_values(0..m), f.leverages(0..m));
+    let residuals = f.residuals(0..m);
     let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
     for at in [0..1, 17..4_200, 4_095..4_097, 8_000..m, m - 3..m + 50] {
         let end = at.end.min(m);
@@ -1766,10 +1768,14 @@ fn row_values_are_the_same_whatever_range_they_are_asked_in() {
             bits(&f.leverages(at.clone())),
             bits(&leverage[at.start..end])
         );
+        assert_eq!(
+            bits(&f.residuals(at.clone())),
+            bits(&residuals[at.start..end])
+        );
     }
     // Residual plus fitted value gives back the response; the leverages sum to the rank.
     let used: Vec<f64> = y.iter().copied().filter(|v| v.is_finite()).collect();
-    for ((e, fv), yv) in d.residuals.iter().zip(&fitted).zip(&used) {
+    for ((e, fv), yv) in residuals.iter().zip(&fitted).zip(&used) {
         assert!(
             (e + fv - yv).abs() <= 1e-10 * yv.abs().max(1.0),
             "{e} + {fv} vs {yv}"

@@ -523,17 +523,17 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 
 /// `plot residuals`: residuals against fitted values (or against covariate X), zero line.
 pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
-    let d = fit.diagnostics();
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let covariate = var_values(fit, req.covariate);
     let (rows, groups) = (&rows, &groups);
-    // Against fitted values, each block's are computed as the block is read.
+    // Each block's residuals (and fitted values) are computed as the block is read.
     let candidates = |at: Range<usize>| {
         let fitted = match req.covariate {
             Some(_) => Vec::new(),
             None => fit.fitted_values(at.clone()),
         };
+        let residuals = fit.residuals(at.clone());
         let start = at.start;
         let covariate = &covariate;
         at.filter_map(move |k| {
@@ -544,7 +544,7 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
                 None => fitted.get(k - start).copied(),
             }
             .unwrap_or(f64::NAN);
-            let y = d.residuals.get(k).copied()?;
+            let y = residuals.get(k - start).copied()?;
             (x.is_finite() && y.is_finite()).then_some(Point { group, x, y })
         })
     };
@@ -600,8 +600,8 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let s = fit.summary().sigma;
     let mut r: Vec<(f64, usize)> = Vec::new();
-    let leverage = fit.leverages(0..d.len());
-    for ((e, h), g) in d.residuals.iter().zip(&leverage).zip(groups.rows()) {
+    let (residuals, leverage) = (fit.residuals(0..d.len()), fit.leverages(0..d.len()));
+    for ((e, h), g) in residuals.iter().zip(&leverage).zip(groups.rows()) {
         let one_h = 1.0 - h;
         if let Some(g) = g {
             if one_h > 0.0 && s > 0.0 {
@@ -730,7 +730,7 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// distance of each run is drawn, so that no influential row disappears.
 pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
-    let leverage = fit.leverages(0..d.len());
+    let (residuals, leverage) = (fit.residuals(0..d.len()), fit.leverages(0..d.len()));
     let rows = Rows::of(fit);
     let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
     let mut points = Vec::new();
@@ -740,7 +740,7 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .index
         .iter()
         .map(row_line)
-        .zip(d.cooks_distances(&leverage))
+        .zip(d.cooks_distances(&residuals, &leverage))
         .zip(groups.rows())
     {
         if let (Some(g), true) = (g, c.is_finite()) {
@@ -771,7 +771,7 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     };
     let threshold = if n > 0 { 4.0 / n as f64 } else { 0.0 };
     let above = d
-        .cooks_distances(&leverage)
+        .cooks_distances(&residuals, &leverage)
         .filter(|c| c.is_finite() && *c > threshold)
         .count();
     let alt = format!(

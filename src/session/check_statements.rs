@@ -59,7 +59,8 @@ impl Session<'_> {
         let used = fit.used_rows();
         let factors = model_vars(spec, true);
         let covariates = model_vars(spec, false);
-        let n = diag.residuals.len();
+        let n = diag.len();
+        let residuals = Residuals::of(fit);
 
         let mut t = Table::new(
             "check",
@@ -83,11 +84,11 @@ impl Session<'_> {
             || {
                 crate::parallel::join_if(
                     big,
-                    || normality_row(&diag.residuals, &m.name),
+                    || normality_row(&residuals, n, &m.name),
                     || {
                         factors
                             .iter()
-                            .map(|&f| spread_row(spec, f, used, &diag.residuals))
+                            .map(|&f| spread_row(spec, f, used, &residuals))
                             .collect::<Vec<_>>()
                     },
                 )
@@ -102,7 +103,7 @@ impl Session<'_> {
                             .map(|(f, x)| balance_row(spec, f, x, used))
                             .collect::<Vec<_>>()
                     },
-                    || Influence::new(fit, diag, fit.n_coef()),
+                    || Influence::new(fit, diag, &residuals, fit.n_coef()),
                 )
             },
         );
@@ -220,9 +221,44 @@ fn df_text(df1: usize, df2: usize) -> Cell {
     Cell::Text(format!("{df1}, {df2}"))
 }
 
-fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
+/// Rows up to which `check` holds a model's residuals while it runs (16 MiB of them); beyond,
+/// each check that reads them has them computed again from the design, a block at a time, so
+/// that a large data set is not joined by a column of its size.
+const HELD_ROWS: usize = 1 << 21;
+
+/// A model's residuals as the checks read them: held, or computed block by block.
+enum Residuals<'a> {
+    Held(Vec<f64>),
+    Computed(&'a Fit),
+}
+
+impl<'a> Residuals<'a> {
+    fn of(fit: &'a Fit) -> Residuals<'a> {
+        let n = fit.diagnostics().len();
+        if n <= HELD_ROWS {
+            Residuals::Held(fit.residuals(0..n))
+        } else {
+            Residuals::Computed(fit)
+        }
+    }
+
+    /// The residuals of the rows at positions `at`.
+    fn block(&self, at: std::ops::Range<usize>) -> std::borrow::Cow<'_, [f64]> {
+        match self {
+            Residuals::Held(v) => {
+                let end = at.end.min(v.len());
+                std::borrow::Cow::Borrowed(v.get(at.start.min(end)..end).unwrap_or_default())
+            }
+            Residuals::Computed(fit) => std::borrow::Cow::Owned(fit.residuals(at)),
+        }
+    }
+}
+
+fn normality_row(residuals: &Residuals<'_>, n: usize, model: &str) -> Vec<Cell> {
     let check = "normality of residuals (Shapiro-Wilk)".to_string();
-    match shapiro::shapiro_wilk(residuals) {
+    let tested =
+        shapiro::sample_size(n).and_then(|()| shapiro::shapiro_wilk(&residuals.block(0..n)));
+    match tested {
         Ok(sw) => {
             let verdict = if sw.p < ALPHA {
                 format!(
@@ -247,7 +283,7 @@ fn normality_row(residuals: &[f64], model: &str) -> Vec<Cell> {
     }
 }
 
-fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &[f64]) -> Vec<Cell> {
+fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &Residuals<'_>) -> Vec<Cell> {
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
@@ -276,7 +312,7 @@ fn residual_spread(
     codes: &[Code],
     nlevels: usize,
     used: &UsedRows,
-    residuals: &[f64],
+    residuals: &Residuals<'_>,
 ) -> Result<levene::EqualVariance, StatsError> {
     let level_of = |i: usize| {
         codes
@@ -301,13 +337,18 @@ fn residual_spread(
         let Some(level) = levels.get(g).copied() else {
             return Vec::new();
         };
+        // The group's residuals in row order, a block of rows at a time.
         let mut group = Vec::with_capacity(sizes.get(g).copied().unwrap_or(0));
-        group.extend(
-            used.iter()
-                .zip(residuals)
-                .filter(|&(i, _)| level_of(i) == Some(level))
-                .map(|(_, &e)| e),
-        );
+        for at in crate::parallel::row_blocks(used.len()) {
+            let block = residuals.block(at.clone());
+            group.extend(
+                used.slice(at)
+                    .iter()
+                    .zip(block.iter())
+                    .filter(|&(&i, _)| level_of(i) == Some(level))
+                    .map(|(_, &e)| e),
+            );
+        }
         group
     })
 }
@@ -465,24 +506,32 @@ struct Influence {
     coefficients: usize,
     leverage_limit: f64,
     cook_limit: f64,
-    /// Positions (in fitted-row order) of the rows past a threshold, with their leverages.
-    flagged: Vec<(usize, f64)>,
+    /// Positions (in fitted-row order) of the rows past a threshold, with their leverages
+    /// and residuals.
+    flagged: Vec<(usize, f64, f64)>,
 }
 
 impl Influence {
-    fn new(fit: &Fit, d: &Diagnostics, coefficients: usize) -> Influence {
+    fn new(
+        fit: &Fit,
+        d: &Diagnostics,
+        residuals: &Residuals<'_>,
+        coefficients: usize,
+    ) -> Influence {
         let n = d.len();
         let nf = n.max(1) as f64;
         let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
         let cook_limit = COOK_NUMERATOR / nf;
         // NaN (undefined at leverage 1) compares false and flags nothing by itself. The
         // leverages are computed a block at a time and only the flagged rows' kept.
-        let flags = |rows: &std::ops::Range<usize>| -> Vec<(usize, f64)> {
+        let flags = |rows: &std::ops::Range<usize>| -> Vec<(usize, f64, f64)> {
             let leverage = fit.leverages(rows.clone());
+            let residual = residuals.block(rows.clone());
             rows.clone()
                 .zip(leverage)
-                .filter(|&(k, h)| {
-                    let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
+                .zip(residual.iter())
+                .map(|((k, h), &r)| (k, h, r))
+                .filter(|&(_, h, r)| {
                     h > leverage_limit
                         || d.cook(r, h) > cook_limit
                         || d.student(r, h).abs() > STUDENTIZED_LIMIT
@@ -547,12 +596,9 @@ impl Influence {
                 ),
             ],
         );
-        // (position, leverage, Cook's distance) of each flagged row.
-        let cook = |&(k, h): &(usize, f64)| {
-            let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
-            (k, h, d.cook(r, h))
-        };
-        let mut listed: Vec<(usize, f64, f64)> = self.flagged.iter().map(cook).collect();
+        // (position, leverage, Cook's distance, residual) of each flagged row.
+        let cook = |&(k, h, r): &(usize, f64, f64)| (k, h, d.cook(r, h), r);
+        let mut listed: Vec<(usize, f64, f64, f64)> = self.flagged.iter().map(cook).collect();
         if listed.len() > MAX_LISTED {
             // Largest Cook's distance first (NaN last), ties in row order: a strict order, so
             // the rows chosen are the same however the selection runs.
@@ -568,8 +614,7 @@ impl Influence {
                 self.flagged.len()
             ));
         }
-        for &(k, h, c) in &listed {
-            let r = d.residuals.get(k).copied().unwrap_or(f64::NAN);
+        for &(k, h, c, r) in &listed {
             t.push(vec![
                 fit.row_number(k).map_or(Cell::Missing, Cell::from),
                 h.into(),

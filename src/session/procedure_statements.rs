@@ -75,10 +75,12 @@ impl Session<'_> {
             Gate::Normality { model, alpha } => {
                 let alpha = alpha_of(alpha)?;
                 let m = self.model_entry(model)?;
-                let residuals = &m.fit.diagnostics().residuals;
-                let sw = crate::stats::shapiro::shapiro_wilk(residuals).map_err(|e| {
-                    Diagnostic::new(model.span, e.to_string()).label("cannot test this")
-                })?;
+                let n = m.fit.diagnostics().len();
+                let sw = crate::stats::shapiro::sample_size(n)
+                    .and_then(|()| crate::stats::shapiro::shapiro_wilk(&m.fit.residuals(0..n)))
+                    .map_err(|e| {
+                        Diagnostic::new(model.span, e.to_string()).label("cannot test this")
+                    })?;
                 (
                     sw.p >= alpha,
                     format!(

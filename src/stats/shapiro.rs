@@ -122,6 +122,20 @@ fn p_value(w: f64, n: usize) -> f64 {
     norm_sf(z).clamp(0.0, 1.0)
 }
 
+/// Whether a sample of `n` values is one the test is calibrated for (`3 <= n <= 5000`):
+/// [`StatsError::SampleSizeOutOfRange`] otherwise.
+pub fn sample_size(n: usize) -> Result<(), StatsError> {
+    if (MIN_N..=MAX_N).contains(&n) {
+        Ok(())
+    } else {
+        Err(StatsError::SampleSizeOutOfRange {
+            n,
+            min: MIN_N,
+            max: MAX_N,
+        })
+    }
+}
+
 /// Shapiro-Wilk test of normality of the values `x` (order does not matter).
 ///
 /// Errors: [`StatsError::SampleSizeOutOfRange`] unless `3 <= n <= 5000`,
@@ -129,13 +143,7 @@ fn p_value(w: f64, n: usize) -> f64 {
 /// are equal.
 pub fn shapiro_wilk(x: &[f64]) -> Result<ShapiroWilk, StatsError> {
     let n = x.len();
-    if !(MIN_N..=MAX_N).contains(&n) {
-        return Err(StatsError::SampleSizeOutOfRange {
-            n,
-            min: MIN_N,
-            max: MAX_N,
-        });
-    }
+    sample_size(n)?;
     if x.iter().any(|v| !v.is_finite()) {
         return Err(StatsError::NonFinite);
     }
