@@ -1233,7 +1233,7 @@ fn merge_column(
 /// Number of line feeds in `bytes`, eight bytes at a time: the exact zero-byte test of
 /// Warren, *Hacker's Delight*, 2nd ed., section 6-1, on each word XOR a word of line feeds
 /// sets the top bit of exactly the bytes that were line feeds.
-fn count_lf(bytes: &[u8]) -> usize {
+pub(super) fn count_lf(bytes: &[u8]) -> usize {
     const LF: u64 = 0x0A0A_0A0A_0A0A_0A0A;
     const LOW7: u64 = 0x7F7F_7F7F_7F7F_7F7F;
     let words = bytes.chunks_exact(8);

@@ -14,8 +14,8 @@ use std::io::{self, Read};
 use sha2::{Digest, Sha256};
 
 use super::load::{
-    check_open_quote, finish_columns, is_break, marker_bytes, parts_of, read_header, refused_error,
-    wants_exact, Sink, MAX_LINE_BYTES, PART_BYTES, UTF8_BOM,
+    check_open_quote, count_lf, finish_columns, is_break, marker_bytes, parts_of, read_header,
+    refused_error, wants_exact, Sink, MAX_LINE_BYTES, PART_BYTES, UTF8_BOM,
 };
 use super::split::RecordStart;
 use super::{hex, DataSet, LoadOptions};
@@ -64,8 +64,8 @@ pub(super) fn stream_in_windows(
     if fill(reader, &mut cur, window)? {
         return Ok(Streamed::Whole(cur));
     }
+    // Bytes are fingerprinted in file order, each window's while it is typed.
     let mut hasher = Sha256::new();
-    hasher.update(&cur);
     let delimiter = opts.delimiter;
     if delimiter == b'"' || is_break(delimiter) || !delimiter.is_ascii() {
         return Ok(Streamed::Again);
@@ -100,13 +100,13 @@ pub(super) fn stream_in_windows(
         if fill(reader, &mut cur, before.saturating_add(window))? {
             return Ok(Streamed::Whole(cur));
         }
-        hasher.update(cur.get(before..).unwrap_or_default());
     };
+    hasher.update(cur.get(..skip + data).unwrap_or_default());
     cur.drain(..skip + data);
 
     // Room for the rows the file's size suggests, at the first window's bytes per row; a
     // column that outgrows it is moved, not copied, by the allocator at these sizes.
-    let per_row = cur.len() / cur.iter().filter(|b| **b == b'\n').count().max(1);
+    let per_row = cur.len() / count_lf(&cur).max(1);
     let estimate = size
         .and_then(|s| usize::try_from(s).ok())
         .map_or(0, |s| s / per_row.max(1));
@@ -117,6 +117,9 @@ pub(super) fn stream_in_windows(
     // The latest record and every byte after it, for the check of a quote left open.
     let mut tail: Vec<u8> = Vec::new();
     let mut tail_line = last.line;
+    // Where the bytes of `cur` not yet fingerprinted start (the carried bytes were, with
+    // the window they came from).
+    let mut fresh = 0;
     loop {
         let mut parts = parts_of(&cur, 0, line, delimiter, part_bytes);
         // The last part may end inside a record unless the file ends with it.
@@ -136,7 +139,6 @@ pub(super) fn stream_in_windows(
             // No record ends in the window: read more into it.
             let before = cur.len();
             eof = fill(reader, &mut cur, before.saturating_add(window))?;
-            hasher.update(cur.get(before..).unwrap_or_default());
             continue;
         }
         let next_line = parts.get(keep).map_or(line, |p| p.line);
@@ -153,17 +155,18 @@ pub(super) fn stream_in_windows(
             offset: usize::MAX,
             line: 0,
         };
+        let unhashed = cur.get(fresh..).unwrap_or_default();
         let (taken, filled) = if eof {
+            hasher.update(unhashed);
             let taken = sink.take(done, parts, delimiter, &markers, &mut at);
             (taken, Ok(true))
         } else {
             rayon::join(
                 || sink.take(done, parts, delimiter, &markers, &mut at),
                 || {
+                    hasher.update(unhashed);
                     let before = next.len();
-                    let filled = fill(reader, &mut next, before.saturating_add(window));
-                    hasher.update(next.get(before..).unwrap_or_default());
-                    filled
+                    fill(reader, &mut next, before.saturating_add(window))
                 },
             )
         };
@@ -182,6 +185,7 @@ pub(super) fn stream_in_windows(
         if eof {
             break;
         }
+        fresh = cur.len() - cut;
         std::mem::swap(&mut cur, &mut next);
         line = next_line;
         eof = now_eof;

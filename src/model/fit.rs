@@ -4,6 +4,7 @@
 //! sub-model RSS come from that triangular factor. Row diagnostics are a second pass, made
 //! only when something asks for them.
 
+use std::borrow::Cow;
 use std::ops::Range;
 use std::sync::{Arc, OnceLock};
 
@@ -70,6 +71,9 @@ pub struct Fit {
     /// Row diagnostics, computed on first use (a pass over every row) and shared by the
     /// checks and figures that read them.
     pub(crate) diag: OnceLock<Diagnostics>,
+    /// Fitted values, residuals and leverages of a fit of at most [`HELD_ROWS`] rows,
+    /// computed together on first use.
+    pub(crate) held: OnceLock<HeldRows>,
     /// Kept (non-aliased) design columns of the treatment coding.
     pub(crate) kept: Vec<usize>,
     /// R of the kept columns (rank x rank).
@@ -242,6 +246,7 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
         treat,
         effect: OnceLock::new(),
         diag: OnceLock::new(),
+        held: OnceLock::new(),
         kept,
         r,
         bz,
@@ -768,46 +773,138 @@ impl Fit {
     /// Residuals of the fitted rows at positions `at` (in fitted-row order; cut at the last
     /// row). Each row's value depends on that row alone, so it is the same to the bit
     /// whatever range it is asked for in.
-    pub fn residuals(&self, at: Range<usize>) -> Vec<f64> {
+    pub fn residuals(&self, at: Range<usize>) -> Cow<'_, [f64]> {
         self.row_values(at, RowValue::Residual)
     }
 
     /// Fitted values of the fitted rows at positions `at`, as [`Fit::residuals`].
-    pub fn fitted_values(&self, at: Range<usize>) -> Vec<f64> {
+    pub fn fitted_values(&self, at: Range<usize>) -> Cow<'_, [f64]> {
         self.row_values(at, RowValue::Fitted)
     }
 
-    /// Leverages (hat values) of the fitted rows at positions `at`, as [`Fit::fitted_values`].
-    pub fn leverages(&self, at: Range<usize>) -> Vec<f64> {
+    /// Leverages (hat values) of the fitted rows at positions `at`, as [`Fit::residuals`].
+    pub fn leverages(&self, at: Range<usize>) -> Cow<'_, [f64]> {
         self.row_values(at, RowValue::Leverage)
     }
 
-    /// One value per fitted row at positions `at`, in blocks of [`CHUNK_ROWS`] (in parallel
-    /// beyond one block).
-    fn row_values(&self, at: Range<usize>, what: RowValue) -> Vec<f64> {
+    /// One value per fitted row at positions `at`. Up to [`HELD_ROWS`] rows, all three kinds
+    /// are computed in one pass on first use and kept; beyond, each call computes its own.
+    fn row_values(&self, at: Range<usize>, what: RowValue) -> Cow<'_, [f64]> {
         let n = self.lay.used.len();
         let at = at.start.min(n)..at.end.min(n);
-        let pass = RowPass::new(self);
-        let mut out = vec![0.0; at.len()];
-        if at.len() > CHUNK_ROWS {
-            out.par_chunks_mut(CHUNK_ROWS)
-                .enumerate()
-                .for_each(|(i, chunk)| {
-                    let start = at.start + i * CHUNK_ROWS;
-                    let rows = self.lay.used.slice(start..start + chunk.len());
-                    pass.fill(&rows, what, chunk);
-                });
-        } else {
-            // One block: on this thread, without starting the pool.
-            pass.fill(&self.lay.used.slice(at), what, &mut out);
+        if n <= HELD_ROWS {
+            let held = self.held.get_or_init(|| {
+                let mut h = HeldRows {
+                    fitted: vec![0.0; n],
+                    residuals: vec![0.0; n],
+                    leverage: vec![0.0; n],
+                };
+                self.pass_over(
+                    0..n,
+                    Outputs {
+                        fitted: Some(&mut h.fitted),
+                        residual: Some(&mut h.residuals),
+                        leverage: Some(&mut h.leverage),
+                    },
+                );
+                h
+            });
+            let all = match what {
+                RowValue::Fitted => &held.fitted,
+                RowValue::Residual => &held.residuals,
+                RowValue::Leverage => &held.leverage,
+            };
+            return Cow::Borrowed(all.get(at).unwrap_or_default());
         }
+        Cow::Owned(self.computed_values(at, what))
+    }
+
+    /// [`Fit::row_values`] computed for these rows alone, whatever the fit's size.
+    pub(crate) fn computed_values(&self, at: Range<usize>, what: RowValue) -> Vec<f64> {
+        let n = self.lay.used.len();
+        let at = at.start.min(n)..at.end.min(n);
+        let mut out = vec![0.0; at.len()];
+        let outputs = match what {
+            RowValue::Fitted => Outputs {
+                fitted: Some(&mut out),
+                residual: None,
+                leverage: None,
+            },
+            RowValue::Residual => Outputs {
+                fitted: None,
+                residual: Some(&mut out),
+                leverage: None,
+            },
+            RowValue::Leverage => Outputs {
+                fitted: None,
+                residual: None,
+                leverage: Some(&mut out),
+            },
+        };
+        self.pass_over(at, outputs);
         out
     }
+
+    /// Fills `out` (each as long as `at`) for the fitted rows at positions `at`, in blocks of
+    /// [`CHUNK_ROWS`] (in parallel beyond one block).
+    fn pass_over(&self, at: Range<usize>, out: Outputs<'_>) {
+        let pass = RowPass::new(self);
+        if at.len() <= CHUNK_ROWS {
+            // One block: on this thread, without starting the pool.
+            pass.fill(&self.lay.used.slice(at), out);
+            return;
+        }
+        fn chunks(o: Option<&mut [f64]>) -> impl Iterator<Item = Option<&mut [f64]>> {
+            o.into_iter()
+                .flat_map(|v| v.chunks_mut(CHUNK_ROWS))
+                .map(Some)
+        }
+        let (mut f, mut r, mut h) = (
+            chunks(out.fitted),
+            chunks(out.residual),
+            chunks(out.leverage),
+        );
+        let blocks: Vec<(usize, Outputs<'_>)> = (0..at.len().div_ceil(CHUNK_ROWS))
+            .map(|i| {
+                let o = Outputs {
+                    fitted: f.next().flatten(),
+                    residual: r.next().flatten(),
+                    leverage: h.next().flatten(),
+                };
+                (i, o)
+            })
+            .collect();
+        blocks.into_par_iter().for_each(|(i, o)| {
+            let start = at.start + i * CHUNK_ROWS;
+            let end = (start + CHUNK_ROWS).min(at.end);
+            pass.fill(&self.lay.used.slice(start..end), o);
+        });
+    }
+}
+
+/// Rows up to which a fit keeps its fitted values, residuals and leverages once computed (24
+/// bytes a row, 48 MiB at most); a larger fit computes them again, a block at a time, for
+/// whoever asks, so that no column of the data set's length is added to it.
+pub(crate) const HELD_ROWS: usize = 1 << 21;
+
+/// The row values a fit of at most [`HELD_ROWS`] rows keeps.
+#[derive(Debug, Clone)]
+pub(crate) struct HeldRows {
+    fitted: Vec<f64>,
+    residuals: Vec<f64>,
+    leverage: Vec<f64>,
+}
+
+/// Where a pass over fitted rows writes: each kind asked for, one value per row.
+struct Outputs<'a> {
+    fitted: Option<&'a mut [f64]>,
+    residual: Option<&'a mut [f64]>,
+    leverage: Option<&'a mut [f64]>,
 }
 
 /// Which value a pass over fitted rows computes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum RowValue {
+pub(crate) enum RowValue {
     Fitted,
     Residual,
     Leverage,
@@ -848,39 +945,41 @@ impl<'a> RowPass<'a> {
         }
     }
 
-    /// `what` for each of `rows` (data rows) into `out`.
-    fn fill(&self, rows: &[usize], what: RowValue, out: &mut [f64]) {
+    /// The values asked for in `out` for each of `rows` (data rows).
+    fn fill(&self, rows: &[usize], out: Outputs<'_>) {
         let fit = self.fit;
         let e = &fit.treat;
         let k = self.cols.len();
         let mut block = Block::fill(&fit.spec, &self.cols, self.y, rows);
         block.standardise(&self.centre, &self.scale);
-        if what == RowValue::Leverage {
+        if out.fitted.is_some() || out.residual.is_some() {
+            // Fitted values in the scaled coordinates, column by column.
+            let mut fz = vec![0.0; rows.len()];
+            for (j, b) in fit.bz.iter().enumerate() {
+                for (f, z) in fz.iter_mut().zip(block.column(j)) {
+                    *f += b * z;
+                }
+            }
+            if let Some(res) = out.residual {
+                for (o, (f, yz)) in res.iter_mut().zip(fz.iter().zip(block.column(k))) {
+                    *o = (yz - f) * e.y_scale;
+                }
+            }
+            if let Some(fitted) = out.fitted {
+                for (o, f) in fitted.iter_mut().zip(&fz) {
+                    *o = e.y_offset + (e.y_centre + f * e.y_scale);
+                }
+            }
+        }
+        if let Some(lev) = out.leverage {
             // u = R^-T z for every row at once: forward substitution over whole columns,
             // each u_i overwriting z_i (it needs only z_i and the u before it).
             block.solve_transpose_in_place(&fit.r, k);
-            out.fill(0.0);
+            lev.fill(0.0);
             for i in 0..k {
-                for (h, u) in out.iter_mut().zip(block.column(i)) {
+                for (h, u) in lev.iter_mut().zip(block.column(i)) {
                     *h += u * u;
                 }
-            }
-            return;
-        }
-        // Fitted values in the scaled coordinates, column by column.
-        let mut fz = vec![0.0; rows.len()];
-        for (j, b) in fit.bz.iter().enumerate() {
-            for (f, z) in fz.iter_mut().zip(block.column(j)) {
-                *f += b * z;
-            }
-        }
-        if what == RowValue::Residual {
-            for (o, (f, yz)) in out.iter_mut().zip(fz.iter().zip(block.column(k))) {
-                *o = (yz - f) * e.y_scale;
-            }
-        } else {
-            for (o, f) in out.iter_mut().zip(&fz) {
-                *o = e.y_offset + (e.y_centre + f * e.y_scale);
             }
         }
     }

@@ -7,6 +7,7 @@
 //!   independently from the model conventions): the constants below are its output, verbatim;
 //! - self-consistency (identities any correct engine satisfies).
 
+use super::fit::RowValue;
 use super::qr::{Mat, RAccumulator};
 use super::*;
 
@@ -1544,7 +1545,7 @@ fn response_offset_leaves_tests_alone_and_moves_estimates() {
     assert_eq!(shifted.diagnostics().len(), n);
     let (f0, f1) = (direct.fitted_values(0..n), shifted.fitted_values(0..n));
     let (r0, r1) = (direct.residuals(0..n), shifted.residuals(0..n));
-    for (k, (x, y)) in f0.iter().zip(&f1).enumerate() {
+    for (k, (x, y)) in f0.iter().zip(f1.iter()).enumerate() {
         offset_close(*y, *x, offset, "fitted value");
         close(r1[k], r0[k], 1e-12, "residual");
     }
@@ -1772,10 +1773,23 @@ fn row_values_are_the_same_whatever_range_they_are_asked_in() {
             bits(&f.residuals(at.clone())),
             bits(&residuals[at.start..end])
         );
+        // As a fit too large to keep them computes them, block by block.
+        for (what, all) in [
+            (RowValue::Fitted, &fitted),
+            (RowValue::Residual, &residuals),
+            (RowValue::Leverage, &leverage),
+        ] {
+            let computed = f.computed_values(at.clone(), what);
+            assert_eq!(
+                bits(&computed),
+                bits(&all[at.start..end]),
+                "{what:?} {at:?}"
+            );
+        }
     }
     // Residual plus fitted value gives back the response; the leverages sum to the rank.
     let used: Vec<f64> = y.iter().copied().filter(|v| v.is_finite()).collect();
-    for ((e, fv), yv) in residuals.iter().zip(&fitted).zip(&used) {
+    for ((e, fv), yv) in residuals.iter().zip(fitted.iter()).zip(&used) {
         assert!(
             (e + fv - yv).abs() <= 1e-10 * yv.abs().max(1.0),
             "{e} + {fv} vs {yv}"

@@ -530,7 +530,7 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     // Each block's residuals (and fitted values) are computed as the block is read.
     let candidates = |at: Range<usize>| {
         let fitted = match req.covariate {
-            Some(_) => Vec::new(),
+            Some(_) => std::borrow::Cow::Borrowed(&[][..]),
             None => fit.fitted_values(at.clone()),
         };
         let residuals = fit.residuals(at.clone());
@@ -601,7 +601,7 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let s = fit.summary().sigma;
     let mut r: Vec<(f64, usize)> = Vec::new();
     let (residuals, leverage) = (fit.residuals(0..d.len()), fit.leverages(0..d.len()));
-    for ((e, h), g) in residuals.iter().zip(&leverage).zip(groups.rows()) {
+    for ((e, h), g) in residuals.iter().zip(leverage.iter()).zip(groups.rows()) {
         let one_h = 1.0 - h;
         if let Some(g) = g {
             if one_h > 0.0 && s > 0.0 {

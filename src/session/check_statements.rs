@@ -221,36 +221,19 @@ fn df_text(df1: usize, df2: usize) -> Cell {
     Cell::Text(format!("{df1}, {df2}"))
 }
 
-/// Rows up to which `check` holds a model's residuals while it runs (16 MiB of them); beyond,
-/// each check that reads them has them computed again from the design, a block at a time, so
-/// that a large data set is not joined by a column of its size.
-const HELD_ROWS: usize = 1 << 21;
-
-/// A model's residuals as the checks read them: held, or computed block by block.
-enum Residuals<'a> {
-    Held(Vec<f64>),
-    Computed(&'a Fit),
-}
+/// A model's residuals as the checks read them, a block of rows at a time: kept by the fit
+/// for a data set of moderate size, else computed again from the design for each block (see
+/// [`Fit::residuals`]), so that a large data set is not joined by a column of its length.
+struct Residuals<'a>(&'a Fit);
 
 impl<'a> Residuals<'a> {
     fn of(fit: &'a Fit) -> Residuals<'a> {
-        let n = fit.diagnostics().len();
-        if n <= HELD_ROWS {
-            Residuals::Held(fit.residuals(0..n))
-        } else {
-            Residuals::Computed(fit)
-        }
+        Residuals(fit)
     }
 
     /// The residuals of the rows at positions `at`.
-    fn block(&self, at: std::ops::Range<usize>) -> std::borrow::Cow<'_, [f64]> {
-        match self {
-            Residuals::Held(v) => {
-                let end = at.end.min(v.len());
-                std::borrow::Cow::Borrowed(v.get(at.start.min(end)..end).unwrap_or_default())
-            }
-            Residuals::Computed(fit) => std::borrow::Cow::Owned(fit.residuals(at)),
-        }
+    fn block(&self, at: std::ops::Range<usize>) -> std::borrow::Cow<'a, [f64]> {
+        self.0.residuals(at)
     }
 }
 
@@ -528,7 +511,7 @@ impl Influence {
             let leverage = fit.leverages(rows.clone());
             let residual = residuals.block(rows.clone());
             rows.clone()
-                .zip(leverage)
+                .zip(leverage.iter().copied())
                 .zip(residual.iter())
                 .map(|((k, h), &r)| (k, h, r))
                 .filter(|&(_, h, r)| {
