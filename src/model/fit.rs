@@ -260,32 +260,44 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
     })
 }
 
+/// The value of `cell`, made by `make` if it has none yet. Unlike `OnceLock::get_or_init`, no
+/// thread waits while another one makes it: `make` runs work on the thread pool, and a pool
+/// thread that waited for it could be the very thread that work is queued on, which would
+/// then never run (a deadlock). Two threads may both make the value; each makes the same, and
+/// the first one stored is kept.
+fn made_once<T>(cell: &OnceLock<T>, make: impl FnOnce() -> T) -> &T {
+    if let Some(v) = cell.get() {
+        return v;
+    }
+    let v = make();
+    cell.get_or_init(|| v)
+}
+
 impl Fit {
     /// The effect-coded engine (sum-to-zero coding of factors, for Type III), built on first
     /// use from the kept spec and layout.
     pub(crate) fn effect_engine(&self) -> Result<&Engine, ModelError> {
-        self.effect
-            .get_or_init(|| {
-                let y: &[f64] = match &self.spec.response {
-                    Var::Numeric { values, .. } => values,
-                    Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
-                };
-                let (ecols, eterms) = design::columns(&self.spec, &self.lay, Scheme::Effect);
-                let derived = super::recode::effect_from_treatment(
-                    &self.spec,
-                    &self.lay,
-                    &self.treat,
-                    ecols.clone(),
-                    eterms.clone(),
-                    self.lay.used.len(),
-                );
-                match derived {
-                    Some(e) => Ok(e),
-                    None => build_engine(&self.spec, &self.lay, y, ecols, eterms),
-                }
-            })
-            .as_ref()
-            .map_err(Clone::clone)
+        made_once(&self.effect, || {
+            let y: &[f64] = match &self.spec.response {
+                Var::Numeric { values, .. } => values,
+                Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
+            };
+            let (ecols, eterms) = design::columns(&self.spec, &self.lay, Scheme::Effect);
+            let derived = super::recode::effect_from_treatment(
+                &self.spec,
+                &self.lay,
+                &self.treat,
+                ecols.clone(),
+                eterms.clone(),
+                self.lay.used.len(),
+            );
+            match derived {
+                Some(e) => Ok(e),
+                None => build_engine(&self.spec, &self.lay, y, ecols, eterms),
+            }
+        })
+        .as_ref()
+        .map_err(Clone::clone)
     }
 }
 
@@ -793,7 +805,7 @@ impl Fit {
         let n = self.lay.used.len();
         let at = at.start.min(n)..at.end.min(n);
         if n <= HELD_ROWS {
-            let held = self.held.get_or_init(|| {
+            let held = made_once(&self.held, || {
                 let mut h = HeldRows {
                     fitted: vec![0.0; n],
                     residuals: vec![0.0; n],
