@@ -7,6 +7,7 @@ use std::ops::Range;
 
 use super::chart::{Chart, Curve, Guide, Interval, Point};
 use super::{style, Drawn, PlotError, Request};
+use crate::data::Code;
 use crate::model::{Fit, Transform, UsedRows, Var};
 
 /// Most markers one figure draws. Beyond it the points are thinned deterministically (and
@@ -62,20 +63,24 @@ impl<'a> Rows<'a> {
 /// The levels of the factor that occur among the fitted rows (declared order), and the
 /// group of each fitted row: its position among those levels; all rows are group 0 when
 /// there is no factor.
-struct Groups {
+struct Groups<'a> {
     labels: Vec<String>,
     codes: Vec<u32>,
-    /// Group of each fitted row, [`NO_GROUP`] for none (two bytes a row: a legend holds far
-    /// fewer levels).
-    of_row: Vec<u16>,
+    /// The fitted rows.
+    rows: &'a UsedRows,
+    /// The factor's code of each data row; `None` without a factor (every row in group 0).
+    of_data_row: Option<&'a [Code]>,
+    /// The group of each level code, [`NO_GROUP`] for a level no fitted row has. Looked up
+    /// row by row as needed: a group per row held would cost two bytes a row per figure.
+    position: Vec<u16>,
 }
 
-/// `Groups::of_row` entry of a row in no group.
+/// `Groups::position` entry of a level in no group.
 const NO_GROUP: u16 = u16::MAX;
 
-impl Groups {
+impl<'a> Groups<'a> {
     /// Refuses more levels than a legend can hold.
-    fn checked(self, req: &Request) -> Result<Groups, PlotError> {
+    fn checked(self, req: &Request) -> Result<Groups<'a>, PlotError> {
         if self.labels.len() > super::MAX_LEVELS {
             return Err(PlotError::TooManyLevels {
                 factor: req.factor_name.clone().unwrap_or_default(),
@@ -85,13 +90,15 @@ impl Groups {
         Ok(self)
     }
 
-    fn of(fit: &Fit, rows: &Rows<'_>, factor: Option<usize>) -> Groups {
+    fn of(fit: &'a Fit, rows: &Rows<'a>, factor: Option<usize>) -> Groups<'a> {
         let Some(Var::Factor { codes, levels, .. }) = factor.and_then(|v| fit.spec().vars.get(v))
         else {
             return Groups {
                 labels: Vec::new(),
                 codes: Vec::new(),
-                of_row: vec![0; rows.index.len()],
+                rows: rows.index,
+                of_data_row: None,
+                position: Vec::new(),
             };
         };
         let code_of = |i: usize| codes.get(i).and_then(|c| c.get());
@@ -125,38 +132,31 @@ impl Groups {
                 *p = k;
             }
         }
-        let of_row = crate::parallel::map(&blocks, |at| {
-            at.clone()
-                .map(|k| {
-                    rows.index
-                        .get(k)
-                        .and_then(code_of)
-                        .and_then(|c| position.get(c as usize).copied())
-                        .unwrap_or(NO_GROUP)
-                })
-                .collect::<Vec<u16>>()
-        })
-        .concat();
         Groups {
             labels,
             codes: kept,
-            of_row,
+            rows: rows.index,
+            of_data_row: Some(codes.as_slice()),
+            position,
         }
     }
 
     /// The group of the k-th fitted row (None for none).
     fn group(&self, k: usize) -> Option<usize> {
-        self.of_row
-            .get(k)
+        let row = self.rows.get(k)?;
+        let Some(codes) = self.of_data_row else {
+            return Some(0);
+        };
+        let code = codes.get(row)?.get()?;
+        self.position
+            .get(usize::try_from(code).ok()?)
             .filter(|&&g| g != NO_GROUP)
             .map(|&g| usize::from(g))
     }
 
     /// The group of each fitted row (None for none), in row order.
     fn rows(&self) -> impl Iterator<Item = Option<usize>> + '_ {
-        self.of_row
-            .iter()
-            .map(|&g| (g != NO_GROUP).then_some(usize::from(g)))
+        (0..self.rows.len()).map(|k| self.group(k))
     }
 
     /// Legend entries: the level labels, or one entry for all observations.

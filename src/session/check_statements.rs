@@ -142,7 +142,7 @@ impl Session<'_> {
             ));
         }
         // The thresholds are told once: under the table of flagged rows when there is one.
-        if influence.flagged.is_empty() {
+        if influence.flagged == 0 {
             t.notes.push(influence.thresholds_note());
             Ok(vec![
                 Item::Table(t),
@@ -489,9 +489,32 @@ struct Influence {
     coefficients: usize,
     leverage_limit: f64,
     cook_limit: f64,
-    /// Positions (in fitted-row order) of the rows past a threshold, with their leverages
-    /// and residuals.
-    flagged: Vec<(usize, f64, f64)>,
+    /// How many rows are past a threshold.
+    flagged: usize,
+    /// The at most [`MAX_LISTED`] of them with the largest Cook's distance, in fitted-row
+    /// order: (position, leverage, Cook's distance, residual). Each block of rows keeps its
+    /// own worst, and the worst of those are the worst of all, so only a few rows are held
+    /// however many are flagged.
+    listed: Vec<Flagged>,
+}
+
+/// A flagged row: (position in fitted-row order, leverage, Cook's distance, residual).
+type Flagged = (usize, f64, f64, f64);
+
+/// Keeps the [`MAX_LISTED`] rows of `rows` with the largest Cook's distance (NaN last, ties
+/// in row order: a strict order, so the rows kept are the same however the rows were cut
+/// into blocks), in row order.
+fn worst(mut rows: Vec<Flagged>) -> Vec<Flagged> {
+    if rows.len() > MAX_LISTED {
+        rows.select_nth_unstable_by(MAX_LISTED - 1, |a, b| {
+            b.2.partial_cmp(&a.2)
+                .unwrap_or_else(|| a.2.is_nan().cmp(&b.2.is_nan()))
+                .then(a.0.cmp(&b.0))
+        });
+        rows.truncate(MAX_LISTED);
+    }
+    rows.sort_unstable_by_key(|e| e.0);
+    rows
 }
 
 impl Influence {
@@ -506,33 +529,39 @@ impl Influence {
         let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
         let cook_limit = COOK_NUMERATOR / nf;
         // NaN (undefined at leverage 1) compares false and flags nothing by itself. The
-        // leverages are computed a block at a time and only the flagged rows' kept.
-        let flags = |rows: &std::ops::Range<usize>| -> Vec<(usize, f64, f64)> {
+        // leverages are computed a block at a time; a block hands back its count of flagged
+        // rows and its worst few.
+        let flags = |rows: &std::ops::Range<usize>| -> (usize, Vec<Flagged>) {
             let leverage = fit.leverages(rows.clone());
             let residual = residuals.block(rows.clone());
-            rows.clone()
+            let past: Vec<Flagged> = rows
+                .clone()
                 .zip(leverage.iter().copied())
                 .zip(residual.iter())
-                .map(|((k, h), &r)| (k, h, r))
-                .filter(|&(_, h, r)| {
+                .map(|((k, h), &r)| (k, h, d.cook(r, h), r))
+                .filter(|&(_, h, c, r)| {
                     h > leverage_limit
-                        || d.cook(r, h) > cook_limit
+                        || c > cook_limit
                         || d.student(r, h).abs() > STUDENTIZED_LIMIT
                 })
-                .collect()
+                .collect();
+            (past.len(), worst(past))
         };
-        let flagged = crate::parallel::map(&crate::parallel::row_blocks(n), flags).concat();
+        let blocks = crate::parallel::map(&crate::parallel::row_blocks(n), flags);
+        let flagged = blocks.iter().map(|b| b.0).sum();
+        let listed = worst(blocks.into_iter().flat_map(|b| b.1).collect());
         Influence {
             n,
             coefficients,
             leverage_limit,
             cook_limit,
             flagged,
+            listed,
         }
     }
 
     fn row(&self) -> Vec<Cell> {
-        let k = self.flagged.len();
+        let k = self.flagged;
         let verdict = match k {
             0 => "no row is past a threshold".to_string(),
             1 => format!(
@@ -579,25 +608,13 @@ impl Influence {
                 ),
             ],
         );
-        // (position, leverage, Cook's distance, residual) of each flagged row.
-        let cook = |&(k, h, r): &(usize, f64, f64)| (k, h, d.cook(r, h), r);
-        let mut listed: Vec<(usize, f64, f64, f64)> = self.flagged.iter().map(cook).collect();
-        if listed.len() > MAX_LISTED {
-            // Largest Cook's distance first (NaN last), ties in row order: a strict order, so
-            // the rows chosen are the same however the selection runs.
-            listed.select_nth_unstable_by(MAX_LISTED - 1, |a, b| {
-                b.2.partial_cmp(&a.2)
-                    .unwrap_or_else(|| a.2.is_nan().cmp(&b.2.is_nan()))
-                    .then(a.0.cmp(&b.0))
-            });
-            listed.truncate(MAX_LISTED);
-            listed.sort_unstable_by_key(|e| e.0);
+        if self.flagged > self.listed.len() {
             t.notes.push(format!(
                 "{} rows are past a threshold; the {MAX_LISTED} with the largest Cook's distance are listed.",
-                self.flagged.len()
+                self.flagged
             ));
         }
-        for &(k, h, c, r) in &listed {
+        for &(k, h, c, r) in &self.listed {
             t.push(vec![
                 fit.row_number(k).map_or(Cell::Missing, Cell::from),
                 h.into(),
