@@ -155,43 +155,13 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
         Some(d) => (Some(d), LevelOrder::Declared),
         None => (None, LevelOrder::FirstAppearance),
     };
-
-    // Keys of the values, row by row (None = missing), and for factor columns the old levels.
-    let mut names: Vec<String> = Vec::new();
-    let mut map: BTreeMap<Key<'_>, u32> = BTreeMap::new();
-    if let Some(d) = declared {
-        for level in d {
-            let key = match &col.values {
-                Values::Numeric(_) => match parse_number(level) {
-                    NumberParse::Number(x) => Some(Key::Num(num_key(x))),
-                    _ => None,
-                },
-                Values::Text(_) | Values::Factor(_) => Some(Key::Text(level.as_str())),
-            };
-            let code = level_code(names.len())
-                .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
-            if names.iter().any(|n| n == level) {
-                return Err(FactorError::DuplicateDeclaredLevel {
-                    column: column(),
-                    level: level.clone(),
-                });
-            }
-            if let Some(k) = key {
-                if map.insert(k, code).is_some() {
-                    return Err(FactorError::DuplicateDeclaredLevel {
-                        column: column(),
-                        level: level.clone(),
-                    });
-                }
-            }
-            names.push(level.clone());
-        }
-    }
+    let (mut names, mut map) = declared_levels(col, declared)?;
 
     let n = col.len();
     if let Values::Text(t) = &col.values {
-        if n >= crate::parallel::BLOCK_ROWS && t.n_texts() <= BLOCKED_TEXTS {
-            let codes = text_codes_blocked(t, &mut map, &mut names, declared.is_some(), column)?;
+        if blocked(t) {
+            let memo = text_levels(t, &mut map, &mut names, declared.is_some(), column)?;
+            let codes = apply_levels(t.codes(), &memo);
             return finish(codes, names, order, column);
         }
     }
@@ -272,21 +242,69 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
     finish(codes, names, order, column)
 }
 
-/// Most distinct texts for [`text_codes_blocked`], whose blocks each keep a table this long.
+/// The declared levels of a factor of `col`, in order, with the key each cell matches them by;
+/// empty when none are declared.
+fn declared_levels<'a>(
+    col: &Column,
+    declared: Option<&'a [String]>,
+) -> Result<Levels<'a>, FactorError> {
+    let column = || col.name.clone();
+    let mut names: Vec<String> = Vec::new();
+    let mut map: BTreeMap<Key<'a>, u32> = BTreeMap::new();
+    if let Some(d) = declared {
+        for level in d {
+            let key = match &col.values {
+                Values::Numeric(_) => match parse_number(level) {
+                    NumberParse::Number(x) => Some(Key::Num(num_key(x))),
+                    _ => None,
+                },
+                Values::Text(_) | Values::Factor(_) => Some(Key::Text(level.as_str())),
+            };
+            let code = level_code(names.len())
+                .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
+            if names.iter().any(|n| n == level) {
+                return Err(FactorError::DuplicateDeclaredLevel {
+                    column: column(),
+                    level: level.clone(),
+                });
+            }
+            if let Some(k) = key {
+                if map.insert(k, code).is_some() {
+                    return Err(FactorError::DuplicateDeclaredLevel {
+                        column: column(),
+                        level: level.clone(),
+                    });
+                }
+            }
+            names.push(level.clone());
+        }
+    }
+    Ok((names, map))
+}
+
+/// Level names in order, with the key of each cell value that has a level.
+type Levels<'a> = (Vec<String>, BTreeMap<Key<'a>, u32>);
+
+/// Most distinct texts for [`text_levels`], whose blocks each keep a table this long.
 const BLOCKED_TEXTS: usize = 1 << 12;
 
-/// The level codes of a large text column with few distinct texts, row by row, the same as
-/// the one-row-at-a-time loop of [`make_factor`] gives (and the same first error), computed
-/// in fixed blocks of rows on the thread pool: first the first row of each distinct text,
-/// then each text's level in the order the texts first appear, then every row's code.
-fn text_codes_blocked<'a>(
+/// True for a text column that [`text_levels`] codes: large, with few distinct texts.
+fn blocked(t: &super::TextValues) -> bool {
+    t.len() >= crate::parallel::BLOCK_ROWS && t.n_texts() <= BLOCKED_TEXTS
+}
+
+/// The level of each distinct text of a large text column with few of them (`None` for a
+/// text no row has), giving the same levels as the one-row-at-a-time loop of [`make_factor`]
+/// (and the same first error), computed in fixed blocks of rows on the thread pool: first the
+/// first row of each distinct text, then each text's level in the order the texts first
+/// appear. [`apply_levels`] then gives every row's code.
+fn text_levels<'a>(
     t: &'a super::TextValues,
     map: &mut BTreeMap<Key<'a>, u32>,
     names: &mut Vec<String>,
     declared: bool,
     column: impl Fn() -> String,
-) -> Result<Vec<Code>, FactorError> {
-    use rayon::prelude::*;
+) -> Result<Vec<Option<u32>>, FactorError> {
     let row_codes = t.codes();
     let n_texts = t.n_texts();
     let index = |tc: u32| usize::try_from(tc).ok().filter(|&i| i < n_texts);
@@ -338,18 +356,84 @@ fn text_codes_blocked<'a>(
             *m = Some(code);
         }
     }
+    Ok(memo)
+}
+
+/// The level code of a row whose text has code `tc`, given each text's level.
+fn level_of_text(memo: &[Option<u32>], tc: u32) -> Code {
+    usize::try_from(tc)
+        .ok()
+        .and_then(|i| memo.get(i).copied().flatten())
+        .into()
+}
+
+/// The level codes of rows with text codes `row_codes`, given each text's level (see
+/// [`text_levels`]), in blocks on the thread pool.
+fn apply_levels(row_codes: &[u32], memo: &[Option<u32>]) -> Vec<Code> {
+    use rayon::prelude::*;
     let mut codes: Vec<Code> = vec![Code::MISSING; row_codes.len()];
     codes
         .par_chunks_mut(crate::parallel::BLOCK_ROWS)
         .zip(row_codes.par_chunks(crate::parallel::BLOCK_ROWS))
         .for_each(|(out, cells)| {
             for (o, &tc) in out.iter_mut().zip(cells) {
-                *o = index(tc)
-                    .and_then(|i| memo.get(i).copied().flatten())
-                    .into();
+                *o = level_of_text(memo, tc);
             }
         });
-    Ok(codes)
+    codes
+}
+
+/// [`make_factor`] for a caller that puts the factor in the column's place: a large text
+/// column with few distinct texts gives up its row codes, turned into level codes where they
+/// lie, so that its four bytes a row are not joined by four more while both exist (the column
+/// is left without rows). On an error the column is as it was.
+pub fn take_factor(col: &mut Column, levels: Option<&[String]>) -> Result<Factor, FactorError> {
+    use rayon::prelude::*;
+    let Values::Text(t) = &col.values else {
+        return make_factor(col, levels);
+    };
+    if !blocked(t) {
+        return make_factor(col, levels);
+    }
+    let column = || col.name.clone();
+    let (mut names, mut map) = declared_levels(col, levels)?;
+    let memo = text_levels(t, &mut map, &mut names, levels.is_some(), column)?;
+    // Every occurring text has a level here, so the levels occurring are the texts' levels.
+    let mut occurring: Vec<u32> = memo.iter().flatten().copied().collect();
+    occurring.sort_unstable();
+    occurring.dedup();
+    if occurring.len() < 2 {
+        return Err(FactorError::TooFewLevels {
+            column: column(),
+            found: occurring
+                .iter()
+                .filter_map(|&c| names.get(usize::try_from(c).ok()?).cloned())
+                .collect(),
+        });
+    }
+    let order = if levels.is_some() {
+        LevelOrder::Declared
+    } else {
+        LevelOrder::FirstAppearance
+    };
+    let mut codes = match &mut col.values {
+        Values::Text(t) => t.take_codes(),
+        _ => Vec::new(),
+    };
+    codes
+        .par_chunks_mut(crate::parallel::BLOCK_ROWS)
+        .for_each(|cells| {
+            for c in cells {
+                *c = level_of_text(&memo, *c).0;
+            }
+        });
+    // Collecting a vector's own items, mapped to a type of the same size, reuses its memory.
+    let codes: Vec<Code> = codes.into_iter().map(Code::level).collect();
+    Ok(Factor {
+        codes: Arc::new(codes),
+        levels: names,
+        order,
+    })
 }
 
 /// The factor of the codes, or the error of one with fewer than two levels occurring.

@@ -20,7 +20,7 @@ mod reference;
 mod tests;
 
 pub use error::{FactorError, LoadError};
-pub use factor::{make_factor, unused_levels, Code, Factor, LevelOrder};
+pub use factor::{make_factor, take_factor, unused_levels, Code, Factor, LevelOrder};
 pub use lines::RowLines;
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
@@ -213,6 +213,11 @@ impl TextValues {
     /// The row codes.
     pub(crate) fn codes(&self) -> &[u32] {
         &self.codes
+    }
+
+    /// The row codes, taken out: the column is left without rows.
+    pub(crate) fn take_codes(&mut self) -> Vec<u32> {
+        std::mem::take(&mut self.codes)
     }
 
     /// Adds a distinct text and returns its code, or `None` when no code is left.

@@ -952,6 +952,41 @@ fn large_text_factor_matches_row_by_row_coding() {
     );
 }
 
+#[test]
+fn taking_a_factor_gives_the_made_one_and_leaves_the_column_on_an_error() {
+    let rows = 200_000;
+    let original = blocked_text_col(rows);
+    let declared = strings(&["q", "a", "b", "z"]);
+    for levels in [None, Some(&declared[..])] {
+        let expected = make_factor(&original, levels).unwrap_or_else(|e| panic!("{e}"));
+        let mut c = original.clone();
+        let taken = take_factor(&mut c, levels).unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(taken, expected);
+        // The rows went with the factor.
+        assert_eq!(c.len(), 0);
+    }
+    // Errors: the same as making the factor, and the column untouched.
+    let mut few = TextValues::with_capacity(rows);
+    let a = few.add_text("a").unwrap_or(TextValues::MISSING);
+    few.add_text("never").unwrap_or(TextValues::MISSING);
+    for r in 0..rows {
+        few.push_code(if r % 5 == 0 { TextValues::MISSING } else { a });
+    }
+    let one_level = Column {
+        name: "g".to_owned(),
+        values: Values::Text(few),
+        exact: None,
+    };
+    let undeclared = strings(&["a", "b"]);
+    for (col, levels) in [(&original, Some(&undeclared[..])), (&one_level, None)] {
+        let expected = make_factor(col, levels).err();
+        assert!(expected.is_some());
+        let mut c = col.clone();
+        assert_eq!(take_factor(&mut c, levels).err(), expected);
+        assert_eq!(&c, col);
+    }
+}
+
 /// A factor's codes as level indices (`None` for missing).
 fn levels_of(f: &super::Factor) -> Vec<Option<u32>> {
     f.codes.iter().map(|c| c.get()).collect()

@@ -164,8 +164,9 @@ impl Session<'_> {
                 }
             }
         }
-        let factor = set
-            .factor(&set.columns[idx], declared.as_deref())
+        // The factor takes the place of the column, and may take its row codes with it.
+        let factor = data::take_factor(&mut set.columns[idx], declared.as_deref())
+            .map_err(|e| e.locate(&set.row_numbers))
             .map_err(|e| {
                 let span = levels
                     .and_then(|l| {
