@@ -60,7 +60,6 @@ impl Session<'_> {
         let factors = model_vars(spec, true);
         let covariates = model_vars(spec, false);
         let n = diag.len();
-        let residuals = Residuals::of(fit);
 
         let mut t = Table::new(
             "check",
@@ -84,11 +83,11 @@ impl Session<'_> {
             || {
                 crate::parallel::join_if(
                     big,
-                    || normality_row(&residuals, n, &m.name),
+                    || normality_row(fit, n, &m.name),
                     || {
                         factors
                             .iter()
-                            .map(|&f| spread_row(spec, f, used, &residuals))
+                            .map(|&f| spread_row(fit, f, used))
                             .collect::<Vec<_>>()
                     },
                 )
@@ -103,7 +102,7 @@ impl Session<'_> {
                             .map(|(f, x)| balance_row(spec, f, x, used))
                             .collect::<Vec<_>>()
                     },
-                    || Influence::new(fit, diag, &residuals, fit.n_coef()),
+                    || Influence::new(fit, diag, fit.n_coef()),
                 )
             },
         );
@@ -221,26 +220,13 @@ fn df_text(df1: usize, df2: usize) -> Cell {
     Cell::Text(format!("{df1}, {df2}"))
 }
 
-/// A model's residuals as the checks read them, a block of rows at a time: kept by the fit
-/// for a data set of moderate size, else computed again from the design for each block (see
-/// [`Fit::residuals`]), so that a large data set is not joined by a column of its length.
-struct Residuals<'a>(&'a Fit);
-
-impl<'a> Residuals<'a> {
-    fn of(fit: &'a Fit) -> Residuals<'a> {
-        Residuals(fit)
-    }
-
-    /// The residuals of the rows at positions `at`.
-    fn block(&self, at: std::ops::Range<usize>) -> std::borrow::Cow<'a, [f64]> {
-        self.0.residuals(at)
-    }
-}
-
-fn normality_row(residuals: &Residuals<'_>, n: usize, model: &str) -> Vec<Cell> {
+/// The Shapiro-Wilk row. The checks read a model's residuals a block of rows at a time from
+/// [`Fit::residuals`]: kept by the fit for a data set of moderate size, else computed again
+/// from the design for each block, so that a large data set is not joined by a column of its
+/// length.
+fn normality_row(fit: &Fit, n: usize, model: &str) -> Vec<Cell> {
     let check = "normality of residuals (Shapiro-Wilk)".to_string();
-    let tested =
-        shapiro::sample_size(n).and_then(|()| shapiro::shapiro_wilk(&residuals.block(0..n)));
+    let tested = shapiro::sample_size(n).and_then(|()| shapiro::shapiro_wilk(&fit.residuals(0..n)));
     match tested {
         Ok(sw) => {
             let verdict = if sw.p < ALPHA {
@@ -266,11 +252,12 @@ fn normality_row(residuals: &Residuals<'_>, n: usize, model: &str) -> Vec<Cell> 
     }
 }
 
-fn spread_row(spec: &ModelSpec, f: usize, used: &UsedRows, residuals: &Residuals<'_>) -> Vec<Cell> {
+fn spread_row(fit: &Fit, f: usize, used: &UsedRows) -> Vec<Cell> {
+    let spec = fit.spec();
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
-    match residual_spread(codes, levels.len(), used, residuals) {
+    match residual_spread(codes, levels.len(), used, fit) {
         Ok(bf) => {
             let verdict = if bf.p < ALPHA {
                 format!(
@@ -295,7 +282,7 @@ fn residual_spread(
     codes: &[Code],
     nlevels: usize,
     used: &UsedRows,
-    residuals: &Residuals<'_>,
+    fit: &Fit,
 ) -> Result<levene::EqualVariance, StatsError> {
     let level_of = |i: usize| {
         codes
@@ -323,7 +310,7 @@ fn residual_spread(
         // The group's residuals in row order, a block of rows at a time.
         let mut group = Vec::with_capacity(sizes.get(g).copied().unwrap_or(0));
         for at in crate::parallel::row_blocks(used.len()) {
-            let block = residuals.block(at.clone());
+            let block = fit.residuals(at.clone());
             group.extend(
                 used.slice(at)
                     .iter()
@@ -518,12 +505,7 @@ fn worst(mut rows: Vec<Flagged>) -> Vec<Flagged> {
 }
 
 impl Influence {
-    fn new(
-        fit: &Fit,
-        d: &Diagnostics,
-        residuals: &Residuals<'_>,
-        coefficients: usize,
-    ) -> Influence {
+    fn new(fit: &Fit, d: &Diagnostics, coefficients: usize) -> Influence {
         let n = d.len();
         let nf = n.max(1) as f64;
         let leverage_limit = LEVERAGE_MULTIPLE * coefficients as f64 / nf;
@@ -533,7 +515,7 @@ impl Influence {
         // rows and its worst few.
         let flags = |rows: &std::ops::Range<usize>| -> (usize, Vec<Flagged>) {
             let leverage = fit.leverages(rows.clone());
-            let residual = residuals.block(rows.clone());
+            let residual = fit.residuals(rows.clone());
             let past: Vec<Flagged> = rows
                 .clone()
                 .zip(leverage.iter().copied())
