@@ -610,3 +610,42 @@ impl Influence {
         t
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::{worst, Flagged, MAX_LISTED};
+
+    /// The worst rows kept block by block and then among the blocks' worst are the worst of
+    /// all the rows at once, whatever the blocks, with ties (broken by row) and NaN (last).
+    #[test]
+    fn the_worst_of_each_block_give_the_worst_of_all() {
+        // Cook's distances from a fixed linear congruential sequence, in 7 distinct values
+        // so that ties abound, and every 13th row NaN.
+        let mut state: u64 = 12345;
+        let rows: Vec<Flagged> = (0..1000)
+            .map(|k| {
+                state = state.wrapping_mul(6364136223846793005).wrapping_add(1);
+                let c = if k % 13 == 0 {
+                    f64::NAN
+                } else {
+                    ((state >> 33) % 7) as f64
+                };
+                (k, 0.5, c, 1.0)
+            })
+            .collect();
+        let all = worst(rows.clone());
+        assert_eq!(all.len(), MAX_LISTED);
+        assert!(all.windows(2).all(|w| w[0].0 < w[1].0), "in row order");
+        // All of the largest value, 6, are kept before any smaller one.
+        let sixes = rows.iter().filter(|r| r.2 == 6.0).count();
+        assert_eq!(
+            all.iter().filter(|r| r.2 == 6.0).count(),
+            sixes.min(MAX_LISTED)
+        );
+        for block in [1, 7, 50, 51, 333, 1000] {
+            let merged = worst(rows.chunks(block).flat_map(|b| worst(b.to_vec())).collect());
+            let key = |v: &[Flagged]| v.iter().map(|r| (r.0, r.2.to_bits())).collect::<Vec<_>>();
+            assert_eq!(key(&merged), key(&all), "blocks of {block}");
+        }
+    }
+}
