@@ -2,11 +2,12 @@
 //! report out.
 
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
-use crate::files::{self, Batch};
+use crate::files::{self, Batch, Digest, Plan, Role, Stamp};
 use crate::pipeline::{self, Run, RunOptions};
 use crate::report::json;
-use crate::world::FsWorld;
+use crate::world::{FsWorld, Opened, World, WorldError};
 
 /// Options of `covey render`.
 #[derive(Debug, Clone, Default)]
@@ -79,51 +80,373 @@ fn display_name(doc: &Path) -> String {
         .unwrap_or_default()
 }
 
+/// What a file held when a run read it, for `--watch` to tell whether it
+/// changed since.
+#[derive(Debug, Clone)]
+pub(crate) struct Seen {
+    pub file: PathBuf,
+    pub why: Why,
+    /// Taken before the file was read, so that a change made while the run
+    /// went on shows as a different stamp.
+    pub stamp: Option<Stamp>,
+    pub content: Content,
+}
+
+/// Why a run depends on a file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Why {
+    /// The document itself.
+    Document,
+    /// A data file it loads (or tried to).
+    Data,
+    /// A path its outputs could not be written to.
+    Refused,
+}
+
+/// What a file held.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Content {
+    /// No file there.
+    Missing,
+    /// These bytes.
+    Bytes(Digest),
+    /// Something covey did not read through (a special file, a file it could
+    /// not read or load).
+    Unknown,
+}
+
+impl Content {
+    /// What the file at `path` holds now; a regular file is read.
+    pub fn of(path: &Path) -> Content {
+        match std::fs::metadata(path) {
+            Err(_) => Content::Missing,
+            Ok(m) if !m.is_file() => Content::Unknown,
+            Ok(_) => match Digest::of_file(path) {
+                Ok(Some(d)) => Content::Bytes(d),
+                Ok(None) => Content::Missing,
+                Err(_) => Content::Unknown,
+            },
+        }
+    }
+}
+
+/// The file system, as the session sees it, noting every data file the
+/// document asks for (with its stamp before it is read).
+struct Recorder {
+    world: FsWorld,
+    folder: PathBuf,
+    asked: Mutex<Vec<(String, Seen)>>,
+}
+
+impl Recorder {
+    fn note(&self, path: &str) {
+        let Ok(mut asked) = self.asked.lock() else {
+            return;
+        };
+        if asked.iter().any(|(p, _)| p == path) {
+            return;
+        }
+        let joined = self.folder.join(path);
+        let file = joined.canonicalize().unwrap_or(joined);
+        let stamp = Stamp::of(&file);
+        let content = if stamp.is_some() {
+            Content::Unknown
+        } else {
+            Content::Missing
+        };
+        asked.push((
+            path.to_string(),
+            Seen {
+                file,
+                why: Why::Data,
+                stamp,
+                content,
+            },
+        ));
+    }
+}
+
+impl World for Recorder {
+    fn read(&self, path: &str) -> Result<Vec<u8>, WorldError> {
+        self.note(path);
+        self.world.read(path)
+    }
+
+    fn open(&self, path: &str) -> Result<Opened, WorldError> {
+        self.note(path);
+        self.world.open(path)
+    }
+}
+
+/// One document run from disk.
+struct Ran {
+    /// The document's bytes as read.
+    read: Option<Digest>,
+    /// What the run read: the document first, then every data file it asked
+    /// for (a file it loaded with the digest of the bytes it loaded).
+    seen: Vec<Seen>,
+    outcome: Result<Run, Vec<String>>,
+}
+
 /// Runs one document from disk.
-fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Result<Run, Vec<String>> {
-    let bytes =
-        std::fs::read(doc).map_err(|e| vec![format!("{}: cannot read: {e}", doc.display())])?;
-    let text = String::from_utf8(bytes).map_err(|e| {
-        vec![format!(
-            "{}: the document is not valid UTF-8 (first bad byte at offset {}); save it as UTF-8",
-            doc.display(),
-            e.utf8_error().valid_up_to()
-        )]
-    })?;
+fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Ran {
+    let stamp = Stamp::of(doc);
+    let bytes = match std::fs::read(doc) {
+        Ok(b) => b,
+        Err(e) => {
+            return Ran {
+                read: None,
+                seen: vec![Seen {
+                    file: doc.to_path_buf(),
+                    why: Why::Document,
+                    stamp,
+                    content: Content::of(doc),
+                }],
+                outcome: Err(vec![format!("{}: cannot read: {e}", doc.display())]),
+            }
+        }
+    };
+    let read = Digest::of(&bytes);
+    let mut seen = vec![Seen {
+        file: doc.to_path_buf(),
+        why: Why::Document,
+        stamp,
+        content: Content::Bytes(read),
+    }];
+    let text = match String::from_utf8(bytes) {
+        Ok(t) => t,
+        Err(e) => {
+            return Ran {
+                read: Some(read),
+                seen,
+                outcome: Err(vec![format!(
+                    "{}: the document is not valid UTF-8 (first bad byte at offset {}); save it as UTF-8",
+                    doc.display(),
+                    e.utf8_error().valid_up_to()
+                )]),
+            }
+        }
+    };
     let folder = doc
         .parent()
         .filter(|p| !p.as_os_str().is_empty())
         .unwrap_or(Path::new("."));
-    let world = FsWorld::new(folder, allow_outside);
-    pipeline::run(&text, &display_name(doc), &world, opts).map_err(|u| u.errors)
+    let world = Recorder {
+        world: FsWorld::new(folder, allow_outside),
+        folder: folder.to_path_buf(),
+        asked: Mutex::new(Vec::new()),
+    };
+    let outcome = pipeline::run(&text, &display_name(doc), &world, opts).map_err(|u| u.errors);
+    let asked = world.asked.into_inner().unwrap_or_default();
+    for (path, mut s) in asked {
+        // A file loaded is known by the digest of the bytes loaded.
+        let loaded = outcome
+            .as_ref()
+            .ok()
+            .and_then(|run| run.inputs.iter().find(|i| i.path == path))
+            .and_then(|i| Digest::from_hex(&i.sha256));
+        if let Some(d) = loaded {
+            s.content = Content::Bytes(d);
+        }
+        seen.push(s);
+    }
+    Ran {
+        read: Some(read),
+        seen,
+        outcome,
+    }
+}
+
+/// Where the outputs of a document go.
+struct Targets {
+    /// The rendering (the document itself, in place).
+    rendering: PathBuf,
+    /// The folder of the rendering.
+    folder: PathBuf,
+    html: Option<PathBuf>,
+    figures: PathBuf,
+}
+
+impl Targets {
+    fn of(doc: &Path, opts: &RenderOptions) -> Targets {
+        let separate = files::rendered_path(doc, opts.out_dir.as_deref());
+        let folder = separate.parent().map(Path::to_path_buf).unwrap_or_default();
+        Targets {
+            rendering: if opts.in_place {
+                doc.to_path_buf()
+            } else {
+                separate.clone()
+            },
+            // Beside the rendering, or beside the document in place; always
+            // NAME.rendered.html, never the user's own NAME.html.
+            html: opts.html.then(|| files::sibling(&separate, "html")),
+            figures: files::figures_dir(&folder, doc),
+            folder,
+        }
+    }
+
+    fn claim(&self, plan: &mut Plan, doc: &Path, opts: &RenderOptions) {
+        plan.claim(&self.rendering, doc);
+        if let Some(h) = &self.html {
+            plan.claim(h, doc);
+        }
+        plan.claim(&self.figures, doc);
+        if let Some(j) = &opts.json {
+            plan.claim(j, doc);
+        }
+    }
+}
+
+/// A render with every document run and every output planned and checked
+/// against the write rule, before anything is written: [`Prepared::commit`]
+/// writes it. [`render`] is the two steps at once; between them, nothing of
+/// the user's is held open or locked.
+pub struct Prepared {
+    report: Report,
+    batch: Option<Batch>,
+    /// What to say once the files are written.
+    done: Vec<String>,
+    /// What each document run read, and for one rendered in place, the
+    /// digest of the bytes it is to hold.
+    reads: Vec<(PathBuf, Vec<Seen>, Option<Digest>)>,
+}
+
+impl Prepared {
+    /// Writes the files of the render, all or none; returns what to tell the
+    /// user.
+    pub fn commit(self) -> Report {
+        self.commit_and_read().0
+    }
+
+    /// [`Prepared::commit`], and what each document read, as it is now on
+    /// disk for what covey wrote itself (`--watch`).
+    pub(crate) fn commit_and_read(self) -> (Report, Vec<(PathBuf, Vec<Seen>)>) {
+        let Prepared {
+            mut report,
+            batch,
+            done,
+            reads,
+        } = self;
+        let mut written = false;
+        if let Some(batch) = batch {
+            match batch.commit() {
+                Ok(c) => {
+                    written = true;
+                    report.lines.extend(done);
+                    if c.leftovers > 0 {
+                        report.lines.push(format!(
+                            "removed {} temporary file{} left by an interrupted covey run",
+                            c.leftovers,
+                            if c.leftovers == 1 { "" } else { "s" }
+                        ));
+                    }
+                }
+                Err(e) => report.fail(e.to_string()),
+            }
+        }
+        let reads = reads
+            .into_iter()
+            .map(|(doc, mut seen, in_place)| {
+                if let (true, Some(d), Some(first)) = (written, in_place, seen.first_mut()) {
+                    // covey's own write: known by its bytes, its stamp is new.
+                    first.content = Content::Bytes(d);
+                    first.stamp = None;
+                }
+                (doc, seen)
+            })
+            .collect();
+        (report, reads)
+    }
+}
+
+/// The documents named by `paths`, each once.
+pub(crate) fn unique_documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, files::FileError> {
+    let mut docs = files::documents(paths)?;
+    let mut places = Vec::new();
+    docs.retain(|d| {
+        let here = files::location(d);
+        let new = !places.contains(&here);
+        places.push(here);
+        new
+    });
+    Ok(docs)
 }
 
 /// Renders every document named by `paths` (files, or folders of `*.md`).
-/// Each document's rendering is written atomically; a document that cannot
-/// run (broken syntax) writes nothing. Returns what to tell the user.
+/// Every document runs first; then every output of the run is checked
+/// against the write rule (see [`files::plan`]) and written all or none.
+/// A document that cannot run (broken syntax) writes nothing. Returns what
+/// to tell the user.
 pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
-    let mut report = Report::new();
-    let docs = match files::documents(paths) {
+    prepare(paths, opts).commit()
+}
+
+/// The first half of [`render`]: everything but the writing.
+pub fn prepare(paths: &[PathBuf], opts: &RenderOptions) -> Prepared {
+    let docs = match unique_documents(paths) {
         Ok(d) => d,
-        Err(e) => {
-            report.fail(e.to_string());
-            return report;
-        }
+        Err(e) => return Prepared::failed(e.to_string()),
     };
     if opts.json.is_some() && docs.len() != 1 {
-        report.fail(format!(
+        return Prepared::failed(format!(
             "--json writes the tables of one document, but {} documents were given; render them one at a time",
             docs.len()
         ));
-        return report;
     }
-    for doc in &docs {
+    prepare_documents(&docs, &|_| true, opts, &[])
+}
+
+impl Prepared {
+    fn failed(line: String) -> Prepared {
+        let mut report = Report::new();
+        report.fail(line);
+        Prepared {
+            report,
+            batch: None,
+            done: Vec::new(),
+            reads: Vec::new(),
+        }
+    }
+}
+
+/// Runs the documents of `docs` that `selected` picks and plans their
+/// outputs; the others' outputs are claimed, and `known_inputs` (data file,
+/// document) are data files of documents not run this time.
+pub(crate) fn prepare_documents(
+    docs: &[PathBuf],
+    selected: &dyn Fn(&Path) -> bool,
+    opts: &RenderOptions,
+    known_inputs: &[(PathBuf, PathBuf)],
+) -> Prepared {
+    let mut report = Report::new();
+    let mut plan = Plan::new();
+    let mut done = Vec::new();
+    let mut reads = Vec::new();
+    for (file, doc) in known_inputs {
+        plan.input(file, doc);
+    }
+    for doc in docs {
+        let targets = Targets::of(doc, opts);
+        if !selected(doc) {
+            plan.source(doc, None);
+            targets.claim(&mut plan, doc, opts);
+            continue;
+        }
         let run_opts = RunOptions {
             keep_going: opts.keep_going,
             override_gates: opts.override_gates,
             params: opts.params.clone(),
         };
-        let run = match run_file(doc, run_opts, opts.allow_outside) {
+        let Ran {
+            read,
+            seen,
+            outcome,
+        } = run_file(doc, run_opts, opts.allow_outside);
+        plan.source(doc, read);
+        for s in seen.iter().filter(|s| s.why == Why::Data) {
+            plan.input(&s.file, doc);
+        }
+        let run = match outcome {
             Ok(r) => r,
             Err(errors) => {
                 for e in errors {
@@ -133,43 +456,12 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
                     "{}: not rendered; nothing was written",
                     doc.display()
                 ));
+                targets.claim(&mut plan, doc, opts);
+                reads.push((doc.clone(), seen, None));
                 continue;
             }
         };
         report.lines.extend(run.warnings.iter().cloned());
-        let target = if opts.in_place {
-            doc.clone()
-        } else {
-            files::rendered_path(doc, opts.out_dir.as_deref())
-        };
-        if !opts.in_place && same_file(&target, doc) {
-            report.fail(format!(
-                "{}: the rendering would overwrite the source; choose another --out folder",
-                doc.display()
-            ));
-            continue;
-        }
-        let mut batch = Batch::new();
-        batch.add(target.clone(), run.rendered.clone());
-        let folder = target.parent().map(Path::to_path_buf).unwrap_or_default();
-        for (rel, svg) in &run.figures {
-            batch.add(folder.join(rel), svg.clone());
-        }
-        if opts.html {
-            let title = display_name(doc);
-            batch.add(
-                files::sibling(&target, "html"),
-                crate::report::html::page(&title, &run.rendered, &run.figures),
-            );
-        }
-        if let Some(j) = &opts.json {
-            batch.add(j.clone(), json::to_text(&run.json));
-        }
-        if let Err(e) = batch.commit() {
-            report.fail(e.to_string());
-            continue;
-        }
-        remove_stale_figures(&folder, doc, &run.figures);
         for e in &run.errors {
             report.fail(e.clone());
         }
@@ -178,7 +470,31 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
             // stale rendering, unless an error already says 2.
             report.verdict = report.verdict.max(Verdict::Stale);
         }
-        report.lines.push(format!(
+        let role = if opts.in_place {
+            Role::Source
+        } else {
+            Role::Rendering
+        };
+        plan.output(
+            targets.rendering.clone(),
+            run.rendered.as_bytes(),
+            role,
+            doc,
+        );
+        if let Some(html) = &targets.html {
+            let page = crate::report::html::page(&display_name(doc), &run.rendered, &run.figures);
+            plan.output(html.clone(), page, Role::Html, doc);
+        }
+        if let Some(j) = &opts.json {
+            plan.output(j.clone(), json::to_text(&run.json), Role::Json, doc);
+        }
+        let figures = run
+            .figures
+            .iter()
+            .map(|(rel, svg)| (targets.folder.join(rel), svg.as_bytes().to_vec()))
+            .collect();
+        plan.figures(targets.figures.clone(), doc, figures);
+        done.push(format!(
             "{}: {} -> {}",
             if run.failed() {
                 "rendered with errors"
@@ -186,36 +502,35 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
                 "rendered"
             },
             doc.display(),
-            target.display()
+            targets.rendering.display()
         ));
+        let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
+        reads.push((doc.clone(), seen, in_place));
     }
-    report
-}
-
-/// Removes figure files of an earlier render that this one no longer
-/// draws. Only files named as covey names figures (`blockB-K.svg`) in the
-/// document's own figures folder are touched.
-fn remove_stale_figures(folder: &Path, doc: &Path, figures: &[(String, String)]) {
-    let stem = display_name(doc);
-    let stem = stem.strip_suffix(".md").unwrap_or(&stem);
-    let dir_name = format!("{stem}.figures");
-    let Ok(entries) = std::fs::read_dir(folder.join(&dir_name)) else {
-        return;
-    };
-    for entry in entries.flatten() {
-        let name = entry.file_name().to_string_lossy().into_owned();
-        let ours = name.starts_with("block") && name.ends_with(".svg");
-        let rel = format!("{dir_name}/{name}");
-        if ours && !figures.iter().any(|(f, _)| *f == rel) {
-            let _ = std::fs::remove_file(entry.path());
+    let batch = match plan.check() {
+        Ok(b) => Some(b),
+        Err(refusals) => {
+            // `--watch` renders again when a refused path is cleared, too.
+            for (_, seen, _) in &mut reads {
+                seen.extend(refusals.iter().map(|r| Seen {
+                    file: r.path.clone(),
+                    why: Why::Refused,
+                    stamp: Stamp::of(&r.path),
+                    content: Content::of(&r.path),
+                }));
+            }
+            for r in refusals {
+                report.fail(r.to_string());
+            }
+            report.fail("nothing was written: see above for the paths covey will not write to, and what to do");
+            None
         }
-    }
-}
-
-fn same_file(a: &Path, b: &Path) -> bool {
-    match (a.canonicalize(), b.canonicalize()) {
-        (Ok(x), Ok(y)) => x == y,
-        _ => a == b,
+    };
+    Prepared {
+        report,
+        batch,
+        done,
+        reads,
     }
 }
 
@@ -236,7 +551,7 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
             override_gates: opts.override_gates,
             params: opts.params.clone(),
         };
-        let run = match run_file(doc, run_opts, opts.allow_outside) {
+        let run = match run_file(doc, run_opts, opts.allow_outside).outcome {
             Ok(r) => r,
             Err(errors) => {
                 for e in errors {
@@ -362,73 +677,4 @@ fn first_difference(a: &str, b: &str) -> (usize, String, String) {
             }
         }
     }
-}
-
-/// The files a render depends on: the documents and every data file they
-/// read, with a fingerprint of each (length and modification time).
-fn watched(
-    paths: &[PathBuf],
-    opts: &RenderOptions,
-) -> Vec<(PathBuf, Option<(u64, std::time::SystemTime)>)> {
-    let mut files: Vec<PathBuf> = files::documents(paths).unwrap_or_default();
-    let docs = files.clone();
-    for doc in &docs {
-        let run_opts = RunOptions {
-            keep_going: true,
-            override_gates: true,
-            params: opts.params.clone(),
-        };
-        if let Ok(run) = run_file(doc, run_opts, opts.allow_outside) {
-            let folder = doc.parent().map(Path::to_path_buf).unwrap_or_default();
-            files.extend(run.inputs.iter().map(|i| folder.join(&i.path)));
-        }
-    }
-    files
-        .into_iter()
-        .map(|f| {
-            let stamp = std::fs::metadata(&f)
-                .ok()
-                .and_then(|m| Some((m.len(), m.modified().ok()?)));
-            (f, stamp)
-        })
-        .collect()
-}
-
-/// `covey render --watch`: renders, then re-renders whenever a document or
-/// a data file it loads changes, telling `say` what changed. Polls every
-/// `interval`; `rounds` bounds the polls (None: until interrupted).
-pub fn watch(
-    paths: &[PathBuf],
-    opts: &RenderOptions,
-    interval: std::time::Duration,
-    rounds: Option<usize>,
-    say: &mut dyn FnMut(&str),
-) -> Report {
-    let mut last = render(paths, opts);
-    for line in &last.lines {
-        say(line);
-    }
-    let mut seen = watched(paths, opts);
-    let mut round = 0;
-    while rounds.is_none_or(|r| round < r) {
-        round += 1;
-        std::thread::sleep(interval);
-        let now = watched(paths, opts);
-        let changed: Vec<String> = now
-            .iter()
-            .filter(|(f, stamp)| seen.iter().find(|(g, _)| g == f).map(|(_, s)| s) != Some(stamp))
-            .map(|(f, _)| f.display().to_string())
-            .collect();
-        if changed.is_empty() {
-            continue;
-        }
-        say(&format!("changed: {}", changed.join(", ")));
-        last = render(paths, opts);
-        for line in &last.lines {
-            say(line);
-        }
-        // Rendering wrote files; take the fingerprints after it.
-        seen = watched(paths, opts);
-    }
-    last
 }

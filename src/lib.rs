@@ -22,5 +22,9 @@ pub mod stats;
 pub mod world;
 
 mod commands;
+mod watch;
 
-pub use commands::{check, render, watch, CheckOptions, RenderOptions, Report, Verdict};
+pub use commands::{
+    check, prepare, render, CheckOptions, Prepared, RenderOptions, Report, Verdict,
+};
+pub use watch::watch;

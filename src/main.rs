@@ -2,6 +2,7 @@
 //! report, and turn its verdict into an exit code.
 
 use std::io::Write;
+use std::ops::ControlFlow;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -84,16 +85,84 @@ fn parse_setting(s: &str) -> Result<(String, String), String> {
     }
 }
 
+/// The two standard streams, written without ever panicking: the first
+/// failed write is remembered and nothing more is written to that stream.
+#[derive(Default)]
+struct Console {
+    out_failed: Option<std::io::Error>,
+    err_failed: Option<std::io::Error>,
+}
+
+impl Console {
+    /// A line on stdout; Break when it could not be written.
+    fn out(&mut self, line: &str) -> ControlFlow<()> {
+        put(&mut std::io::stdout().lock(), line, &mut self.out_failed)
+    }
+
+    /// A line on stderr; Break when it could not be written.
+    fn err(&mut self, line: &str) -> ControlFlow<()> {
+        put(&mut std::io::stderr().lock(), line, &mut self.err_failed)
+    }
+
+    /// The exit code: the command's own, unless a message could not be
+    /// written for another reason than a reader that went away (a closed
+    /// pipe is a normal end, as in `covey new p | head -0`; a full disk is
+    /// an error, exit 2).
+    fn exit(mut self, code: u8) -> ExitCode {
+        let lost = |e: &Option<std::io::Error>| {
+            e.as_ref()
+                .is_some_and(|e| e.kind() != std::io::ErrorKind::BrokenPipe)
+        };
+        if lost(&self.out_failed) {
+            if let Some(e) = self.out_failed.take() {
+                let _ = self.err(&format!("covey: cannot write to standard output: {e}"));
+            }
+            return ExitCode::from(2);
+        }
+        if lost(&self.err_failed) {
+            return ExitCode::from(2);
+        }
+        ExitCode::from(code)
+    }
+}
+
+fn put(stream: &mut dyn Write, line: &str, failed: &mut Option<std::io::Error>) -> ControlFlow<()> {
+    if failed.is_some() {
+        return ControlFlow::Break(());
+    }
+    match writeln!(stream, "{line}").and_then(|()| stream.flush()) {
+        Ok(()) => ControlFlow::Continue(()),
+        Err(e) => {
+            *failed = Some(e);
+            ControlFlow::Break(())
+        }
+    }
+}
+
 fn main() -> ExitCode {
     covey::parallel::configure();
+    let mut console = Console::default();
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
-            let _ = e.print();
-            return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
+            let code = if e.use_stderr() { 2 } else { 0 };
+            if let Err(failed) = e.print() {
+                if e.use_stderr() {
+                    console.err_failed = Some(failed);
+                } else {
+                    console.out_failed = Some(failed);
+                }
+            }
+            return console.exit(code);
         }
     };
-    let report = match cli.command {
+    let code = run(cli.command, &mut console);
+    console.exit(code)
+}
+
+/// Runs one command, telling `console` what happened; returns the exit code.
+fn run(command: Command, console: &mut Console) -> u8 {
+    let report = match command {
         Command::Render {
             paths,
             in_place,
@@ -117,30 +186,30 @@ fn main() -> ExitCode {
                 override_gates,
             };
             if watch {
-                let mut say = |line: &str| eprintln!("{line}");
-                covey::watch(
+                // Every line is said as it comes; a closed stderr ends the watch.
+                let report = covey::watch(
                     &paths,
                     &opts,
-                    std::time::Duration::from_millis(500),
+                    std::time::Duration::from_millis(WATCH_INTERVAL_MS),
                     None,
-                    &mut say,
-                )
-            } else {
-                covey::render(&paths, &opts)
+                    &mut |line: &str| console.err(line),
+                );
+                return code(report.verdict);
             }
+            covey::render(&paths, &opts)
         }
         Command::New { name } => match covey::starter::create(std::path::Path::new("."), &name) {
             Ok(doc) => {
-                println!(
+                let _ = console.out(&format!(
                     "wrote {} and its example data; render it with: covey render {}",
                     doc.display(),
                     doc.display()
-                );
-                return ExitCode::SUCCESS;
+                ));
+                return 0;
             }
             Err(e) => {
-                eprintln!("{e}");
-                return ExitCode::from(2);
+                let _ = console.err(&e.to_string());
+                return 2;
             }
         },
         Command::Check {
@@ -159,16 +228,21 @@ fn main() -> ExitCode {
             },
         ),
     };
-    let mut err = std::io::stderr().lock();
     for line in &report.lines {
-        // A closed stderr is not worth a panic.
-        if writeln!(err, "{line}").is_err() {
+        if console.err(line).is_break() {
             break;
         }
     }
-    ExitCode::from(match report.verdict {
+    code(report.verdict)
+}
+
+/// How often `--watch` looks at the files (a few `stat` calls each time).
+const WATCH_INTERVAL_MS: u64 = 300;
+
+fn code(verdict: Verdict) -> u8 {
+    match verdict {
         Verdict::Ok => 0,
         Verdict::Stale => 1,
         Verdict::Failed => 2,
-    })
+    }
 }

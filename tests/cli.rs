@@ -237,10 +237,12 @@ fn a_failed_write_leaves_previous_files_intact() {
     let b = dir.join("b.json");
     write(&a, "old a");
     write(&b, "old b");
-    let mut batch = covey::files::Batch::new();
-    batch.add(a.clone(), "new a");
-    batch.add(b.clone(), "new b");
-    assert!(batch.commit_with(Some(1)).is_err());
+    use covey::files::{Batch, Expect, Fault};
+    let mut batch = Batch::new();
+    let expect = |p: &Path| Expect::current(p).unwrap_or_else(|e| panic!("{e}"));
+    batch.write(a.clone(), "new a", expect(&a));
+    batch.write(b.clone(), "new b", expect(&b));
+    assert!(batch.commit_with(Some(Fault::Stage(1))).is_err());
     assert_eq!(read(&a), "old a");
     assert_eq!(read(&b), "old b");
     let leftovers: Vec<_> = std::fs::read_dir(&dir)
@@ -409,7 +411,10 @@ fn watch_renders_again_when_data_change() {
         &opts,
         std::time::Duration::from_millis(100),
         Some(12),
-        &mut |line: &str| heard.push(line.to_string()),
+        &mut |line: &str| {
+            heard.push(line.to_string());
+            std::ops::ControlFlow::Continue(())
+        },
     );
     let _ = changer.join();
     assert_eq!(report.verdict, covey::Verdict::Ok);

@@ -25,7 +25,7 @@ const FORBIDDEN: &[&str] = &[
 ];
 
 /// The two uses of `std::process` that neither spawn nor connect: the exit
-/// status of `main` and the process id in temporary file names. They are
+/// status of `main` and the process id in a unit test's scratch folder. They are
 /// removed (exactly these texts) before the scan.
 const HARMLESS: &[&str] = &["std::process::ExitCode", "std::process::id()"];
 

@@ -3,7 +3,7 @@
 
 use std::path::{Path, PathBuf};
 
-use crate::files::{Batch, FileError};
+use crate::files::{Batch, Expect, FileError};
 
 const DOCUMENT: &str = include_str!("procedure.md");
 const DATA: &str = include_str!("example.csv");
@@ -30,9 +30,15 @@ pub fn create(parent: &Path, name: &str) -> Result<PathBuf, FileError> {
         });
     }
     let doc = folder.join(format!("{name}.md"));
+    // Both files are new: the batch never replaces a file that appears
+    // there meanwhile.
     let mut batch = Batch::new();
-    batch.add(doc.clone(), DOCUMENT.replace("NAME", name));
-    batch.add(folder.join("data").join("example.csv"), DATA);
+    batch.write(doc.clone(), DOCUMENT.replace("NAME", name), Expect::Absent);
+    batch.write(
+        folder.join("data").join("example.csv"),
+        DATA,
+        Expect::Absent,
+    );
     batch.commit()?;
     Ok(doc)
 }

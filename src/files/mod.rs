@@ -1,0 +1,292 @@
+//! The disk side of rendering: which files are documents, where their
+//! outputs go, which writes are allowed ([`plan`]), and writing them all or
+//! none ([`Batch`]) through temporary files ([`temp`]).
+
+use std::fs;
+use std::io::Read;
+use std::path::{Component, Path, PathBuf};
+
+mod batch;
+pub mod manifest;
+pub mod plan;
+pub mod temp;
+
+pub use batch::{Batch, Committed, Expect, Fault};
+pub use plan::{Plan, Refusal, Role};
+
+/// The suffix of a rendered document: `trial.md` renders to
+/// `trial.rendered.md`.
+pub const RENDERED_SUFFIX: &str = ".rendered.md";
+
+/// A problem with files or paths given on the command line.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FileError {
+    pub path: PathBuf,
+    pub message: String,
+}
+
+impl std::fmt::Display for FileError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}: {}", self.path.display(), self.message)
+    }
+}
+
+/// The documents named by `paths`: files as given, and every `*.md` file
+/// directly inside a folder (sorted by name), leaving out renderings.
+pub fn documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FileError> {
+    let mut out = Vec::new();
+    for p in paths {
+        let meta = fs::metadata(p).map_err(|e| FileError {
+            path: p.clone(),
+            message: match e.kind() {
+                std::io::ErrorKind::NotFound => "no such file or folder".into(),
+                _ => e.to_string(),
+            },
+        })?;
+        if meta.is_dir() {
+            let mut found: Vec<PathBuf> = fs::read_dir(p)
+                .map_err(|e| FileError {
+                    path: p.clone(),
+                    message: e.to_string(),
+                })?
+                .filter_map(|e| e.ok().map(|e| e.path()))
+                .filter(|f| is_source(f))
+                .collect();
+            found.sort();
+            if found.is_empty() {
+                return Err(FileError {
+                    path: p.clone(),
+                    message: "this folder holds no Markdown documents (*.md)".into(),
+                });
+            }
+            out.extend(found);
+        } else if p.to_string_lossy().ends_with(RENDERED_SUFFIX) {
+            return Err(FileError {
+                path: p.clone(),
+                message: "this is a rendering, not a source document; render its source".into(),
+            });
+        } else {
+            out.push(p.clone());
+        }
+    }
+    Ok(out)
+}
+
+fn is_source(p: &Path) -> bool {
+    let name = p
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    p.is_file()
+        && name.ends_with(".md")
+        && !name.ends_with(RENDERED_SUFFIX)
+        && !name.starts_with('.')
+}
+
+/// Where the rendering of `doc` goes: beside it, or in `out_dir`.
+pub fn rendered_path(doc: &Path, out_dir: Option<&Path>) -> PathBuf {
+    let name = doc
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let stem = name.strip_suffix(".md").unwrap_or(&name);
+    let folder = match out_dir {
+        Some(d) => d.to_path_buf(),
+        None => doc.parent().map(Path::to_path_buf).unwrap_or_default(),
+    };
+    folder.join(format!("{stem}{RENDERED_SUFFIX}"))
+}
+
+/// The JSON or HTML file that goes with a rendering (`--json`, `--html`):
+/// the rendering's path with another extension.
+pub fn sibling(rendered: &Path, extension: &str) -> PathBuf {
+    let name = rendered
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let stem = name.strip_suffix(".md").unwrap_or(&name);
+    rendered.with_file_name(format!("{stem}.{extension}"))
+}
+
+/// The folder of a document's figures, beside its rendering in `folder`:
+/// `trial.md` draws into `trial.figures/`.
+pub fn figures_dir(folder: &Path, doc: &Path) -> PathBuf {
+    let name = doc
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let stem = name.strip_suffix(".md").unwrap_or(&name);
+    folder.join(format!("{stem}.figures"))
+}
+
+/// The SHA-256 of a file's bytes: what covey remembers of a file it read or
+/// wrote, to tell later whether the file still holds those bytes.
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct Digest(pub [u8; 32]);
+
+impl Digest {
+    /// The digest of `bytes`.
+    pub fn of(bytes: &[u8]) -> Digest {
+        use sha2::Digest as _;
+        Digest(sha2::Sha256::digest(bytes).into())
+    }
+
+    /// The digest of the file at `path` (read as a stream), or None when
+    /// there is no file there.
+    pub fn of_file(path: &Path) -> std::io::Result<Option<Digest>> {
+        use sha2::Digest as _;
+        let mut file = match fs::File::open(path) {
+            Ok(f) => f,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+            Err(e) => return Err(e),
+        };
+        let mut hasher = sha2::Sha256::new();
+        let mut buf = vec![0u8; 1 << 16];
+        loop {
+            let n = file.read(&mut buf)?;
+            if n == 0 {
+                break;
+            }
+            hasher.update(buf.get(..n).unwrap_or_default());
+        }
+        Ok(Some(Digest(hasher.finalize().into())))
+    }
+
+    /// 64 lowercase hex digits, as data files' digests are shown.
+    pub fn hex(&self) -> String {
+        self.0.iter().map(|b| format!("{b:02x}")).collect()
+    }
+
+    /// The digest written as 64 hex digits, if `text` is one.
+    pub fn from_hex(text: &str) -> Option<Digest> {
+        if text.len() != 64 || !text.is_ascii() {
+            return None;
+        }
+        let mut out = [0u8; 32];
+        for (i, byte) in out.iter_mut().enumerate() {
+            *byte = u8::from_str_radix(text.get(2 * i..2 * i + 2)?, 16).ok()?;
+        }
+        Some(Digest(out))
+    }
+}
+
+impl std::fmt::Debug for Digest {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "Digest({})", self.hex())
+    }
+}
+
+/// What the file system says about a file without reading it: enough to
+/// notice, cheaply, that it may have changed (its length, modification time
+/// and identity). Equal stamps mean an unchanged file for `--watch`; a
+/// different stamp is confirmed by reading the file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Stamp {
+    len: u64,
+    modified: Option<std::time::SystemTime>,
+    /// The device and inode on Unix (a file replaced by a rename is another
+    /// file even with the same length and time); zero elsewhere.
+    identity: (u64, u64),
+}
+
+impl Stamp {
+    /// The stamp of the file at `path` (after symlinks), or None when there
+    /// is none.
+    pub fn of(path: &Path) -> Option<Stamp> {
+        let meta = fs::metadata(path).ok()?;
+        Some(Stamp {
+            len: meta.len(),
+            modified: meta.modified().ok(),
+            identity: identity(&meta),
+        })
+    }
+}
+
+#[cfg(unix)]
+fn identity(meta: &fs::Metadata) -> (u64, u64) {
+    use std::os::unix::fs::MetadataExt;
+    (meta.dev(), meta.ino())
+}
+
+#[cfg(not(unix))]
+fn identity(_: &fs::Metadata) -> (u64, u64) {
+    (0, 0)
+}
+
+/// Where `path` is, as an absolute path whose folders are resolved (after
+/// symlinks) as far as they exist; the last component is kept as written,
+/// so a link at the end is not followed. Two outputs with the same location
+/// are the same file.
+pub fn location(path: &Path) -> PathBuf {
+    let absolute = if path.is_absolute() {
+        path.to_path_buf()
+    } else {
+        std::env::current_dir().unwrap_or_default().join(path)
+    };
+    let mut parts: Vec<Component> = absolute.components().collect();
+    let Some(last) = parts.pop() else {
+        return absolute;
+    };
+    // The longest existing folder, resolved; the rest as written (with `.`
+    // and `..` worked out by hand, since those folders do not exist yet).
+    let mut rest = Vec::new();
+    loop {
+        let folder: PathBuf = parts.iter().collect();
+        if let Ok(resolved) = folder.canonicalize() {
+            let mut out = resolved;
+            for c in rest.into_iter().rev() {
+                match c {
+                    Component::ParentDir => {
+                        out.pop();
+                    }
+                    Component::CurDir => {}
+                    other => out.push(other.as_os_str()),
+                }
+            }
+            match last {
+                Component::ParentDir => {
+                    out.pop();
+                }
+                Component::CurDir => {}
+                other => out.push(other.as_os_str()),
+            }
+            return out;
+        }
+        match parts.pop() {
+            Some(c) => rest.push(c),
+            None => return absolute,
+        }
+    }
+}
+
+/// True when `a` and `b` name the same file: the same location, or (when
+/// both exist) the same file on disk, through symlinks or hard links.
+pub fn same_file(a: &Path, b: &Path) -> bool {
+    if location(a) == location(b) {
+        return true;
+    }
+    match (fs::metadata(a), fs::metadata(b)) {
+        (Ok(x), Ok(y)) => identity(&x) != (0, 0) && identity(&x) == identity(&y),
+        _ => false,
+    }
+}
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn naming_rule() {
+        assert_eq!(
+            rendered_path(Path::new("w/trial.md"), None),
+            PathBuf::from("w/trial.rendered.md")
+        );
+        assert_eq!(
+            rendered_path(Path::new("w/trial.md"), Some(Path::new("out"))),
+            PathBuf::from("out/trial.rendered.md")
+        );
+        assert_eq!(
+            sibling(Path::new("out/trial.rendered.md"), "json"),
+            PathBuf::from("out/trial.rendered.json")
+        );
+    }
+}
