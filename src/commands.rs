@@ -146,8 +146,7 @@ impl Recorder {
         if asked.iter().any(|(p, _)| p == path) {
             return;
         }
-        let joined = self.folder.join(path);
-        let file = joined.canonicalize().unwrap_or(joined);
+        let file = files::target_of(&self.folder.join(path));
         let stamp = Stamp::of(&file);
         let content = if stamp.is_some() {
             Content::Unknown

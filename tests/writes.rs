@@ -121,6 +121,27 @@ fn json_never_replaces_the_document_or_its_data() {
     refused(code, &err, "alias.csv", "data file that doc.md loads");
     let (code, err) = covey(&dir, &["render", "doc.md", "--json", "data/../doc.md"]);
     refused(code, &err, "data/../doc.md", "this is the document");
+    // A data file that does not exist yet, asked for directly or through a
+    // dangling link: writing there would make it the document's data.
+    write(
+        &dir.join("later.md"),
+        "```covey\nload \"data/later.csv\"\n```\n",
+    );
+    write(
+        &dir.join("linked.md"),
+        "```covey\nload \"data/link.csv\"\n```\n",
+    );
+    symlink("../out.csv", dir.join("data/link.csv")).unwrap_or_else(|e| panic!("{e}"));
+    let (code, err) = covey(&dir, &["render", "later.md", "--json", "data/later.csv"]);
+    refused(
+        code,
+        &err,
+        "data/later.csv",
+        "data file that later.md loads",
+    );
+    let (code, err) = covey(&dir, &["render", "linked.md", "--json", "out.csv"]);
+    refused(code, &err, "out.csv", "data file that linked.md loads");
+    assert!(!dir.join("out.csv").exists() && !dir.join("data/later.csv").exists());
     // The rendering's path, claimed by the JSON export too.
     let (code, err) = covey(&dir, &["render", "doc.md", "--json", "doc.rendered.md"]);
     refused(
@@ -720,6 +741,40 @@ fn a_watch_notices_data_that_appear() {
         heard.iter().any(|l| l.starts_with("rendered: ")),
         "rendered without errors once the data are there: {heard:?}"
     );
+}
+
+#[test]
+fn a_watched_folder_renders_a_new_document() {
+    let dir = setup("watch-folder");
+    let opts = covey::RenderOptions::default();
+    let mut added = false;
+    let mut heard = Vec::new();
+    covey::watch(
+        std::slice::from_ref(&dir),
+        &opts,
+        Duration::from_millis(50),
+        Some(10),
+        &mut |line: &str| {
+            heard.push(line.to_string());
+            if line.starts_with("rendered") && !added {
+                added = true;
+                write(&dir.join("second.md"), PLAIN);
+            }
+            ControlFlow::Continue(())
+        },
+    );
+    assert!(
+        heard
+            .iter()
+            .any(|l| l.starts_with("changed: ") && l.contains("second.md (new)")),
+        "{heard:?}"
+    );
+    assert_eq!(
+        renders(&heard),
+        2,
+        "the first document is not run again: {heard:?}"
+    );
+    assert!(dir.join("second.rendered.md").exists());
 }
 
 #[test]

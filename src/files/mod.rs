@@ -259,10 +259,29 @@ pub fn location(path: &Path) -> PathBuf {
     }
 }
 
-/// True when `a` and `b` name the same file: the same location, or (when
-/// both exist) the same file on disk, through symlinks or hard links.
+/// Where `path` leads: its [`location`], with symbolic links at the end
+/// followed by hand, so that a dangling link leads to the file it would
+/// create (a document asking for `data/x.csv`, a link to `../out.csv` that
+/// does not exist yet, depends on `out.csv`).
+pub fn target_of(path: &Path) -> PathBuf {
+    let mut here = location(path);
+    // As many links as the system itself would follow.
+    for _ in 0..40 {
+        let is_link = fs::symlink_metadata(&here).is_ok_and(|m| m.file_type().is_symlink());
+        let Some(next) = is_link.then(|| fs::read_link(&here).ok()).flatten() else {
+            break;
+        };
+        let folder = here.parent().map(Path::to_path_buf).unwrap_or_default();
+        here = location(&folder.join(next));
+    }
+    here
+}
+
+/// True when `a` and `b` name the same file: the same location, the same
+/// end of their links (existing or not), or the same file on disk through
+/// hard links.
 pub fn same_file(a: &Path, b: &Path) -> bool {
-    if location(a) == location(b) {
+    if location(a) == location(b) || target_of(a) == target_of(b) {
         return true;
     }
     match (fs::metadata(a), fs::metadata(b)) {
