@@ -311,6 +311,18 @@ pub struct Prepared {
 }
 
 impl Prepared {
+    /// A render that stops before running anything.
+    fn failed(line: String) -> Prepared {
+        let mut report = Report::new();
+        report.fail(line);
+        Prepared {
+            report,
+            batch: None,
+            done: Vec::new(),
+            reads: Vec::new(),
+        }
+    }
+
     /// Writes the files of the render, all or none; returns what to tell the
     /// user.
     pub fn commit(self) -> Report {
@@ -393,19 +405,6 @@ pub fn prepare(paths: &[PathBuf], opts: &RenderOptions) -> Prepared {
         ));
     }
     prepare_documents(&docs, &|_| true, opts, &[])
-}
-
-impl Prepared {
-    fn failed(line: String) -> Prepared {
-        let mut report = Report::new();
-        report.fail(line);
-        Prepared {
-            report,
-            batch: None,
-            done: Vec::new(),
-            reads: Vec::new(),
-        }
-    }
 }
 
 /// Runs the documents of `docs` that `selected` picks and plans their

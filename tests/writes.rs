@@ -626,17 +626,17 @@ fn an_edit_saved_during_an_in_place_render_is_kept() {
     assert!(now.contains("saved by the user meanwhile") && now.contains("<!-- covey:output -->"));
 }
 
-/// Runs `covey::watch` on `doc` for `rounds` looks, calling `during` with
-/// every line said; returns the lines.
+/// Runs `covey::watch` on `path` (a document or a folder) for `rounds`
+/// looks, calling `during` with every line said; returns the lines.
 fn watch(
-    doc: &Path,
+    path: &Path,
     opts: &covey::RenderOptions,
     rounds: usize,
     mut during: impl FnMut(&str),
 ) -> Vec<String> {
     let mut heard = Vec::new();
     covey::watch(
-        &[doc.to_path_buf()],
+        &[path.to_path_buf()],
         opts,
         Duration::from_millis(50),
         Some(rounds),
@@ -748,21 +748,12 @@ fn a_watched_folder_renders_a_new_document() {
     let dir = setup("watch-folder");
     let opts = covey::RenderOptions::default();
     let mut added = false;
-    let mut heard = Vec::new();
-    covey::watch(
-        std::slice::from_ref(&dir),
-        &opts,
-        Duration::from_millis(50),
-        Some(10),
-        &mut |line: &str| {
-            heard.push(line.to_string());
-            if line.starts_with("rendered") && !added {
-                added = true;
-                write(&dir.join("second.md"), PLAIN);
-            }
-            ControlFlow::Continue(())
-        },
-    );
+    let heard = watch(&dir, &opts, 10, |line| {
+        if line.starts_with("rendered") && !added {
+            added = true;
+            write(&dir.join("second.md"), PLAIN);
+        }
+    });
     assert!(
         heard
             .iter()
