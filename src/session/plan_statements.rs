@@ -32,6 +32,11 @@ const PILOT_LEVEL: f64 = 0.8;
 /// grows with the square of the SD, so 10% more SD needs about 21% more subjects.
 const SMALL_PILOT_EXCESS: f64 = 0.10;
 
+/// A power figure's default axis runs on to where its lines reach the target power, but
+/// not past this many times the plan's own number per group: a line that needs far more
+/// (a tiny effect) would squash every other line against the axis.
+const REACH_SPAN: u64 = 20;
+
 /// Most points along each line of a power figure; beyond this many numbers per group the
 /// line is drawn through evenly spread ones.
 const FIGURE_POINTS: u64 = 400;
@@ -89,9 +94,29 @@ fn short(v: f64) -> String {
     }
 }
 
-/// A power shown in a sentence: three decimals.
+/// A value in a figure's legend: three significant digits, as the plan's table shows R²
+/// and f.
+fn label(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return short(v);
+    }
+    let decimals = (2 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+/// A power shown in a sentence: three decimals, and never a rounded 1, which would claim
+/// certainty.
 fn power_text(p: f64) -> String {
-    format!("{p:.3}")
+    if p > 0.9995 {
+        "above 0.999".to_string()
+    } else {
+        format!("{p:.3}")
+    }
 }
 
 /// A whole number written as a number, within bounds.
@@ -278,7 +303,7 @@ impl Session<'_> {
             PlanEffect::F(_) => None,
         };
         if let Some(s) = &sd_written {
-            if !(s.value > 0.0) {
+            if s.value <= 0.0 {
                 return Err(Diagnostic::new(s.span, "an SD must be above 0").label("out of range"));
             }
         }
@@ -297,7 +322,7 @@ impl Session<'_> {
         let shares = design.shares();
         let (f_given, effect_span) = match &decl.effect {
             PlanEffect::F(v) => {
-                if !(v.value >= 0.0) {
+                if v.value < 0.0 {
                     return Err(
                         Diagnostic::new(v.span, "an effect size f must be 0 or more")
                             .label("out of range"),
@@ -439,7 +464,7 @@ impl Session<'_> {
                                 .label("out of range"),
                         );
                     }
-                    specs.push((short(f), d.clone(), f));
+                    specs.push((label(f), d.clone(), f));
                 }
                 ("effect f".to_string(), Some(v.span))
             }
@@ -462,7 +487,7 @@ impl Session<'_> {
                 ("R²".to_string(), None)
             }
             None => {
-                specs.push((short(entry.f), d.clone(), entry.f));
+                specs.push((label(entry.f), d.clone(), entry.f));
                 ("effect f".to_string(), None)
             }
         };
@@ -485,7 +510,7 @@ impl Session<'_> {
             None => {
                 let mut h = entry.n.saturating_mul(2);
                 for r in reach.iter().flatten() {
-                    if *r <= entry.n.saturating_mul(10) {
+                    if *r <= entry.n.saturating_mul(REACH_SPAN) {
                         h = h.max(r + r.div_ceil(4));
                     }
                 }
@@ -521,7 +546,7 @@ impl Session<'_> {
             mark,
             match entry.target {
                 Some(p) => format!("target {}", short(p)),
-                None => format!("power {}", power_text(p_round(entry.power))),
+                None => format!("power {}", power_text(entry.power)),
             },
         ));
         let plan_n = (entry.n >= low && entry.n <= high)
@@ -548,7 +573,10 @@ impl Session<'_> {
             "Power of the F test of {} groups at alpha {} against the {per} from {low} to {high}, {what}. The power reaches {} {}.",
             d.groups,
             short(d.alpha),
-            short(mark),
+            match entry.target {
+                Some(t) => short(t),
+                None => power_text(mark),
+            },
             reached.join("; "),
         );
         let curves = PowerCurves {
@@ -593,11 +621,6 @@ impl Session<'_> {
     }
 }
 
-/// The power as the table shows it, three decimals, for labels that must agree with it.
-fn p_round(p: f64) -> f64 {
-    (p * 1000.0).round() / 1000.0
-}
-
 /// A line of the power figure at R² = `r`: without covariates at 0 (the analysis that
 /// leaves them out), with the plan's covariates (at least one) otherwise.
 fn r_squared_line(d: &Design, r: f64, f: f64) -> (String, Design, f64) {
@@ -608,7 +631,7 @@ fn r_squared_line(d: &Design, r: f64, f: f64) -> (String, Design, f64) {
         ("0 (no covariate)".to_string(), line, f)
     } else {
         line.covariates = d.covariates.max(1);
-        (short(r), line, f)
+        (label(r), line, f)
     }
 }
 
@@ -809,14 +832,14 @@ fn input_notes(
         PlanEffect::Means { means, .. } => {
             let listed: Vec<String> = means.value.iter().map(|m| short(*m)).collect();
             notes.push(format!(
-                "f = {}: the SD of the means {} about their {}mean, over the SD within groups without covariates, {}.",
+                "f = {}: the SD of the means {} about their {}, over the SD within groups without covariates, {}.",
                 short(f),
                 listed.join(", "),
                 if d.ratio.is_empty() {
-                    String::new()
+                    "mean (divisor K)".to_string()
                 } else {
                     let r: Vec<String> = d.ratio.iter().map(u64::to_string).collect();
-                    format!("weighted mean (each mean weighted by its group's share of the ratio {}) ", r.join(":"))
+                    format!("weighted mean, each weighted by its group's share of the ratio {}", r.join(":"))
                 },
                 sd.map_or_else(|| "—".to_string(), short)
             ));
@@ -906,7 +929,7 @@ fn small_pilot_warning(
 ) -> Option<String> {
     let upper = p.upper_limit(PILOT_LEVEL);
     let excess = upper / p.sigma - 1.0;
-    if !(excess > SMALL_PILOT_EXCESS) {
+    if excess.is_nan() || excess <= SMALL_PILOT_EXCESS {
         return None;
     }
     // Every effect size here is a difference over the SD, so the larger SD shrinks it by

@@ -384,7 +384,7 @@ mod tests {
     fn incomplete_beta_closed_forms() {
         for &(a, x) in &[(0.5, 0.3), (3.0, 0.9), (250.0, 0.995), (12.5, 0.7)] {
             let (p, q) = beta_reg_pair(a, 1.0, x, 1.0 - x);
-            assert!((p - x.powf(a)).abs() < 1e-15, "a={a} x={x}: {p}");
+            assert!((p - x.powf(a)).abs() < 1e-14, "a={a} x={x}: {p}");
             assert!((p + q - 1.0).abs() < 1e-15);
         }
         for &(b, x) in &[(0.5, 0.3), (5000.0, 1e-4), (40.0, 0.01)] {
