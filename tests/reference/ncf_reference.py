@@ -21,6 +21,12 @@ Writes, next to this script:
     with scipy.
   * chi2_lower.csv: df, level, the lower (1 - level) point of chi-square
     (scipy.stats.chi2.ppf), behind the upper confidence limit of a pilot's SD.
+  * plan_pilot.csv: plans made from the pilot of the worked document beet-trial.md
+    (worked/data/beet-pilot.csv): the analysis of covariance fitted with numpy.linalg.lstsq,
+    its residual SD sigma, the squared partial correlation r2 = 1 - RSS / RSS without the
+    covariate, the SD without the covariate sigma / sqrt(1 - r2) (with sigma or its upper
+    80% confidence limit), f of the means 70, 71.5, 73, and the smallest n for power 0.9
+    with and without the covariate, with its power.
 
 scipy (1.17.1 when these were made) computes the noncentral F through Boost's noncentral
 beta distribution. As an independent check, every CDF value is also summed here term by term
@@ -176,9 +182,46 @@ def chi2_lower():
     return len(rows)
 
 
+def plan_pilot():
+    path = os.path.join(HERE, "..", "..", "worked", "data", "beet-pilot.csv")
+    with open(path, newline="") as f:
+        rows = list(csv.DictReader(f))
+    levels = ["uncoated", "coat-A", "coat-B"]
+    g = np.array([levels.index(r["coating"]) for r in rows])
+    x = np.array([float(r["previous_t_ha"]) for r in rows])
+    y = np.array([float(r["roots_t_ha"]) for r in rows])
+    groups = np.stack([(g == k).astype(float) for k in range(3)], axis=1)
+    rss_with = float(np.sum((y - groups @ np.linalg.lstsq(groups, y, rcond=None)[0]) ** 2))
+    design = np.column_stack([groups, x])
+    coef = np.linalg.lstsq(design, y, rcond=None)[0]
+    rss = float(np.sum((y - design @ coef) ** 2))
+    df = len(y) - 4
+    sigma = math.sqrt(rss / df)
+    r2 = 1.0 - rss / rss_with
+    means = np.array([70.0, 71.5, 73.0])
+    spread = math.sqrt(float(np.mean((means - means.mean()) ** 2)))
+    out = []
+    for name, level, covariates in [("adjusted", None, 1), ("unadjusted", None, 0),
+                                    ("cautious", 0.8, 1)]:
+        s = sigma if level is None else sigma * math.sqrt(df / stats.chi2.ppf(1.0 - level, df))
+        sd = s / math.sqrt(1.0 - r2)
+        eff = spread / sd
+        r2_plan = r2 if covariates else 0.0
+        n = smallest_n(3, covariates, r2_plan, eff, 0.05, 0.9)
+        out.append([name, repr(sigma), df, repr(r2), repr(sd), repr(eff), n,
+                    repr(power(3, covariates, r2_plan, eff, 0.05, n))])
+    with open(os.path.join(HERE, "plan_pilot.csv"), "w", newline="") as f:
+        w = csv.writer(f, lineterminator="\n")
+        w.writerow(["plan", "sigma", "df_residual", "r_squared", "sd", "effect_f", "n_per_group",
+                    "power"])
+        w.writerows(out)
+    return len(out)
+
+
 if __name__ == "__main__":
     print(f"scipy {scipy.__version__}")
     print(f"ncf_values.csv: {ncf_values()} rows")
     print(f"ncf_critical.csv: {critical()} rows")
     print(f"ncf_power.csv: {plan_power()} rows")
     print(f"chi2_lower.csv: {chi2_lower()} rows")
+    print(f"plan_pilot.csv: {plan_pilot()} rows")
