@@ -386,7 +386,7 @@ fn plan_for_a_sample_size() {
     assert_eq!(p.groups.value, 3.0);
     assert_eq!(p.covariates.map(|c| c.value), Some(1.0));
     assert_eq!(p.r_squared.map(|r| r.value), Some(0.5));
-    assert!(matches!(p.effect, PlanEffect::F(f) if f.value == 0.25));
+    assert!(matches!(p.effect, PlanEffect::F(effect) if effect.value == 0.25));
     assert_eq!(p.power.map(|v| v.value), Some(0.9));
     assert!(p.n.is_none() && p.alpha.is_none() && p.pilot.is_none() && p.ratio.is_none());
 }
@@ -460,7 +460,7 @@ fn plot_power_forms() {
             assert!(
                 matches!(lines, Some(PowerLines::Effects(v)) if v.value == vec![0.1, 0.25, 0.4])
             );
-            assert_eq!(to.map(|t| t.value), Some(80.0));
+            assert_eq!(to.map(|limit| limit.value), Some(80.0));
         }
         k => panic!("{k:?}"),
     }

@@ -161,6 +161,7 @@ fn plan_error(span: Span, e: &PlanError) -> Diagnostic {
         PlanError::TooFew { .. } => "give a larger number per group",
         PlanError::TargetOutOfRange { .. } => "a target power such as 0.8 or 0.9 is usual",
         PlanError::NoDetectableEffect { .. } => "give a larger number per group or a lower power",
+        PlanError::BeyondRange { .. } => "check the R², which is very close to 1, and the effect",
     };
     Diagnostic::new(span, e.to_string())
         .label("cannot plan this")
@@ -561,23 +562,23 @@ impl Session<'_> {
         } else {
             "per unit of the ratio"
         };
+        let goal = match entry.target {
+            Some(t) => short(t),
+            None => power_text(mark),
+        };
         let reached: Vec<String> = specs
             .iter()
             .zip(&reach)
             .map(|((label, _, _), r)| match r {
-                Some(n) => format!("at {n} {unit} with {legend} {label}"),
-                None => format!("never with {legend} {label}"),
+                Some(n) => format!("With {legend} {label} the power reaches {goal} at {n} {unit}."),
+                None => format!("With {legend} {label} it does not reach {goal}."),
             })
             .collect();
         let alt = format!(
-            "Power of the F test of {} groups at alpha {} against the {per} from {low} to {high}, {what}. The power reaches {} {}.",
+            "Power of the F test of {} groups at alpha {} against the {per} from {low} to {high}, {what}. {}",
             d.groups,
             short(d.alpha),
-            match entry.target {
-                Some(t) => short(t),
-                None => power_text(mark),
-            },
-            reached.join("; "),
+            reached.join(" "),
         );
         let curves = PowerCurves {
             lines: drawn_lines,
@@ -876,8 +877,13 @@ fn result_note(decl: &PlanDecl, d: &Design, f: f64, sd: Option<f64>, r: &Power) 
                 ));
                 if d.ratio.is_empty() {
                     s.push_str(&format!(
-                        ": two means {} apart with the others midway",
-                        short(f * sd * (2.0 * d.groups as f64).sqrt())
+                        ": two means {} apart{}",
+                        short(f * sd * (2.0 * d.groups as f64).sqrt()),
+                        if d.groups > 2 {
+                            " with the others midway"
+                        } else {
+                            ""
+                        }
                     ));
                 }
                 s.push('.');
@@ -946,7 +952,7 @@ fn small_pilot_warning(
             short(f * p.sd_without * upper / p.sigma),
             short(f * p.sd_without)
         ),
-        (_, Some(t), None) => match d.n_for_power(f_upper, t.value) {
+        (_, Some(goal), None) => match d.n_for_power(f_upper, goal.value) {
             Ok(u) => format!(
                 "with it the plan needs {} {per} instead of {}",
                 u.n, result.n

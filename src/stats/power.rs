@@ -24,9 +24,10 @@ use super::ncf;
 /// it says the target cannot be reached: ten million, far beyond any trial.
 pub const MAX_PER_GROUP: u64 = 10_000_000;
 
-/// Largest noncentrality the detectable-effect search tries. At df2 = 1, the least a design
-/// can have, a power of 0.999 needs a noncentrality near 10^6 at df1 = 1 and alpha = 0.001.
-const MAX_LAMBDA: f64 = 1e9;
+/// A power this close to 1 is shown as it is when the noncentrality lies beyond what the
+/// distribution function computes: the power there exceeds the power at the largest
+/// noncentrality computed, so it lies between that and 1.
+const CERTAIN: f64 = 1e-12;
 
 /// Smallest size of any group: with fewer than two in a group there is no variation
 /// within it to speak of.
@@ -80,6 +81,9 @@ pub enum PlanError {
     /// No effect size reaches the target with this many (the noncentrality needed exceeds
     /// what the search tries).
     NoDetectableEffect { target: f64 },
+    /// The noncentrality lies beyond what the distribution function computes, and the power
+    /// there is not yet indistinguishable from 1.
+    BeyondRange { lambda: f64 },
 }
 
 impl fmt::Display for PlanError {
@@ -106,6 +110,11 @@ impl fmt::Display for PlanError {
             PlanError::NoDetectableEffect { target } => write!(
                 f,
                 "no effect size reaches a power of {target} with this design"
+            ),
+            PlanError::BeyondRange { lambda } => write!(
+                f,
+                "the noncentrality {lambda:e} lies beyond the {:e} up to which covey computes the noncentral F",
+                ncf::MAX_NONCENTRALITY
             ),
         }
     }
@@ -164,7 +173,17 @@ impl Design {
         let df2 = total - self.groups - self.covariates;
         let critical = ncf::f_upper_point(self.alpha, df1 as f64, df2 as f64);
         let lambda = total as f64 * f * f / (1.0 - self.r_squared);
-        let power = ncf::sf(critical, df1 as f64, df2 as f64, lambda);
+        let power = if lambda > ncf::MAX_NONCENTRALITY || lambda.is_nan() {
+            // The power rises with lambda: the power at the largest computed one bounds it.
+            let bound = ncf::sf(critical, df1 as f64, df2 as f64, ncf::MAX_NONCENTRALITY);
+            if bound >= 1.0 - CERTAIN {
+                bound
+            } else {
+                return Err(PlanError::BeyondRange { lambda });
+            }
+        } else {
+            ncf::sf(critical, df1 as f64, df2 as f64, lambda)
+        };
         Ok(Power {
             n,
             total,
@@ -186,7 +205,7 @@ impl Design {
                 alpha: self.alpha,
             });
         }
-        if f.abs() == 0.0 || !f.is_finite() {
+        if f == 0.0 || f.is_nan() {
             return Err(PlanError::NoEffect);
         }
         let mut lo = self.least_n();
@@ -241,7 +260,7 @@ impl Design {
             at_zero.critical,
             at_zero.df1 as f64,
             at_zero.df2 as f64,
-            MAX_LAMBDA,
+            ncf::MAX_NONCENTRALITY,
         );
         if !lambda.is_finite() {
             return Err(PlanError::NoDetectableEffect { target });
@@ -315,6 +334,15 @@ mod tests {
         let (f, p) = d.detectable_f(25, 0.8).unwrap_or_else(|e| panic!("{e}"));
         assert!(f > 0.0);
         assert!((p.power - 0.8).abs() < 1e-9, "{}", p.power);
+    }
+
+    #[test]
+    fn a_huge_noncentrality_gives_power_one_not_a_hang() {
+        let d = design(3, 1, 0.999_999_9);
+        let p = d.power(1.0, 1_000_000).unwrap_or_else(|e| panic!("{e}"));
+        assert!(p.power > 1.0 - 1e-12 && p.lambda > ncf::MAX_NONCENTRALITY);
+        let p = d.power(f64::INFINITY, 10).unwrap_or_else(|e| panic!("{e}"));
+        assert!(p.power > 1.0 - 1e-12);
     }
 
     #[test]
