@@ -120,7 +120,8 @@ fn equal(groups: u64, covariates: u64, r_squared: f64, alpha: f64) -> Design {
 /// J. Cohen, Statistical Power Analysis for the Behavioral Sciences, 2nd ed. (1988),
 /// Table 8.4.4: the number per group for power .80 at alpha = .05, by u = K - 1 and f
 /// (values from memory). Cohen computed his tables with an approximation to the noncentral
-/// F, so the exact smallest n may differ from his entries by one.
+/// F (also from memory), so the exact smallest n may differ from his entries by one; here it
+/// is his entry or one more.
 #[test]
 fn sample_sizes_match_cohens_table() {
     let table: [(u64, f64, u64); 12] = [
