@@ -369,3 +369,148 @@ fn empty_levels_list() {
     let e = error("factor g levels");
     assert!(e.message.contains("value"), "{}", e.message);
 }
+
+// ---- planning: `plan` and `plot power`.
+
+fn plan(text: &str) -> PlanDecl {
+    match parse(text) {
+        StatementKind::Plan(p) => p,
+        k => panic!("{k:?}"),
+    }
+}
+
+#[test]
+fn plan_for_a_sample_size() {
+    let p = plan("plan main for 3 groups with 1 covariate explaining 0.5 effect f 0.25 power 0.9");
+    assert_eq!(p.name.value, "main");
+    assert_eq!(p.groups.value, 3.0);
+    assert_eq!(p.covariates.map(|c| c.value), Some(1.0));
+    assert_eq!(p.r_squared.map(|r| r.value), Some(0.5));
+    assert!(matches!(p.effect, PlanEffect::F(effect) if effect.value == 0.25));
+    assert_eq!(p.power.map(|v| v.value), Some(0.9));
+    assert!(p.n.is_none() && p.alpha.is_none() && p.pilot.is_none() && p.ratio.is_none());
+}
+
+#[test]
+fn plan_for_the_power_of_given_means() {
+    let p = plan("plan small for 3 groups effect means 30, 31.5, 33 sd 2.4 alpha 0.01 n 20");
+    match &p.effect {
+        PlanEffect::Means { means, sd } => {
+            assert_eq!(means.value, vec![30.0, 31.5, 33.0]);
+            assert_eq!(sd.as_ref().map(|s| s.value), Some(2.4));
+            // The list's span covers the numbers, from the first to the last.
+            assert_eq!(means.span.end - means.span.start, "30, 31.5, 33".len());
+        }
+        e => panic!("{e:?}"),
+    }
+    assert_eq!(p.alpha.map(|a| a.value), Some(0.01));
+    assert_eq!(p.n.map(|n| n.value), Some(20.0));
+    assert!(p.power.is_none());
+}
+
+#[test]
+fn plan_for_the_detectable_effect_with_a_ratio_and_a_pilot() {
+    let p = plan(
+        "plan reach for 3 groups in ratio 2:1:1 with 2 covariates effect detectable n 12 power 0.8 from pilot upper 0.8",
+    );
+    assert_eq!(p.ratio.map(|r| r.value), Some(vec![2.0, 1.0, 1.0]));
+    assert_eq!(p.covariates.map(|c| c.value), Some(2.0));
+    assert!(p.r_squared.is_none());
+    assert!(matches!(p.effect, PlanEffect::Detectable { sd: None }));
+    assert_eq!(p.n.map(|n| n.value), Some(12.0));
+    assert_eq!(p.power.map(|v| v.value), Some(0.8));
+    assert_eq!(p.pilot.map(|m| m.value).as_deref(), Some("pilot"));
+    assert_eq!(p.upper.map(|u| u.value), Some(0.8));
+    // Means without an SD, from a pilot; `covariate` or `covariates`.
+    let p = plan("plan m for 2 groups with 1 covariates effect means 1, 2 power 0.9 from pilot");
+    assert!(matches!(p.effect, PlanEffect::Means { sd: None, .. }));
+}
+
+#[test]
+fn plan_numbers_may_be_parameters() {
+    let mut params = Params::new();
+    params.insert("power".into(), Literal::Number(0.85, "0.85".into()));
+    params.insert("k".into(), Literal::Number(4.0, "4".into()));
+    let s = parse_line_with(
+        "plan p for @k groups effect f 0.3 alpha 0.05 power @power",
+        0,
+        1,
+        &params,
+    );
+    match s.map(|s| s.map(|s| s.kind)) {
+        Ok(Some(StatementKind::Plan(p))) => {
+            assert_eq!(p.groups.value, 4.0);
+            assert_eq!(p.power.map(|v| v.value), Some(0.85));
+        }
+        other => panic!("{other:?}"),
+    }
+}
+
+#[test]
+fn plot_power_forms() {
+    match parse("plot power main") {
+        StatementKind::PowerPlot { plan, lines, to } => {
+            assert_eq!(plan.value, "main");
+            assert!(lines.is_none() && to.is_none());
+        }
+        k => panic!("{k:?}"),
+    }
+    match parse("plot power main by f 0.1, 0.25, 0.4 to 80") {
+        StatementKind::PowerPlot { lines, to, .. } => {
+            assert!(
+                matches!(lines, Some(PowerLines::Effects(v)) if v.value == vec![0.1, 0.25, 0.4])
+            );
+            assert_eq!(to.map(|limit| limit.value), Some(80.0));
+        }
+        k => panic!("{k:?}"),
+    }
+    match parse("plot power main by r2 0, 0.5") {
+        StatementKind::PowerPlot { lines, .. } => {
+            assert!(matches!(lines, Some(PowerLines::RSquared(v)) if v.value == vec![0.0, 0.5]));
+        }
+        k => panic!("{k:?}"),
+    }
+}
+
+#[test]
+fn plan_errors_name_what_is_missing() {
+    // A given effect needs a goal.
+    let e = error("plan p for 3 groups effect f 0.25");
+    assert!(
+        e.message.contains("`power`") && e.message.contains("`n`"),
+        "{}",
+        e.message
+    );
+    // The detectable effect needs both n and power, in that order.
+    let e = error("plan p for 3 groups effect detectable power 0.8");
+    assert!(e.message.contains("`n`"), "{}", e.message);
+    let e = error("plan p for 3 groups effect detectable n 10");
+    assert!(e.message.contains("`power`"), "{}", e.message);
+    assert!(e.message.contains("end of the line"), "{}", e.message);
+    // One mean is no comparison.
+    let e = error("plan p for 3 groups effect means 4 sd 1 power 0.8");
+    assert!(e.message.contains("`,`"), "{}", e.message);
+    // No effect at all.
+    let e = error("plan p for 3 groups power 0.8");
+    assert!(e.message.contains("`effect`"), "{}", e.message);
+    // `upper` only after `from`.
+    let e = error("plan p for 2 groups effect f 0.3 power 0.8 upper 0.8");
+    assert!(e.message.contains("`from`"), "{}", e.message);
+    // A ratio is written with colons.
+    let e = error("plan p for 2 groups in ratio 2, 1 effect f 0.3 power 0.8");
+    assert!(e.message.contains("`:`"), "{}", e.message);
+}
+
+#[test]
+fn plot_power_errors() {
+    let e = error("plot power");
+    assert!(e.message.contains("a name"), "{}", e.message);
+    let e = error("plot power main by g 1");
+    assert!(
+        e.message.contains("`f`") && e.message.contains("`r2`"),
+        "{}",
+        e.message
+    );
+    let e = error("plot powr main");
+    assert!(e.message.contains("`power`"), "{}", e.message);
+}

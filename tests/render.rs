@@ -273,3 +273,8 @@ mod live {
         );
     }
 }
+
+#[test]
+fn plans_and_power_figures() {
+    render_fixture("plan");
+}

@@ -76,6 +76,62 @@ pub enum StatementKind {
     Require(Gate),
     /// `report M ...`: the conventional reporting sentence.
     Report(ReportRequest),
+    /// `plan NAME for K groups ...`: power and sample size of the next trial.
+    Plan(PlanDecl),
+    /// `plot power PLAN [by f ... | by r2 ...] [to N]`: power against the number per group.
+    PowerPlot {
+        plan: Spanned<String>,
+        lines: Option<PowerLines>,
+        to: Option<Spanned<f64>>,
+    },
+}
+
+/// `plan NAME for K groups [in ratio R1:R2:...] [with C covariates [explaining R2]] effect
+/// ... [alpha A] (power P | n N | n N power P) [from M [upper L]]`
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlanDecl {
+    pub name: Spanned<String>,
+    /// K, as written (a whole number is checked when the plan runs).
+    pub groups: Spanned<f64>,
+    /// Relative group sizes, one per group.
+    pub ratio: Option<Spanned<Vec<f64>>>,
+    /// `with C covariates`: C, and R² when `explaining R2` follows.
+    pub covariates: Option<Spanned<f64>>,
+    pub r_squared: Option<Spanned<f64>>,
+    pub effect: PlanEffect,
+    pub alpha: Option<Spanned<f64>>,
+    /// Given for a sample size, or with `n` for the detectable effect.
+    pub power: Option<Spanned<f64>>,
+    /// Given for the power, or with `power` for the detectable effect.
+    pub n: Option<Spanned<f64>>,
+    /// `from M`: the pilot model that gives the SD and R².
+    pub pilot: Option<Spanned<String>>,
+    /// `upper L`: plan with the one-sided upper L confidence limit of the pilot's SD.
+    pub upper: Option<Spanned<f64>>,
+}
+
+/// The effect a plan is about.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PlanEffect {
+    /// `f F`: Cohen's f.
+    F(Spanned<f64>),
+    /// `means M1, M2, ... [sd S]`: the group means and the SD within groups without
+    /// covariates.
+    Means {
+        means: Spanned<Vec<f64>>,
+        sd: Option<Spanned<f64>>,
+    },
+    /// `detectable [sd S]`: the smallest effect the design detects.
+    Detectable { sd: Option<Spanned<f64>> },
+}
+
+/// What the lines of a power figure differ in.
+#[derive(Debug, Clone, PartialEq)]
+pub enum PowerLines {
+    /// `by f F1, F2, ...`
+    Effects(Spanned<Vec<f64>>),
+    /// `by r2 R1, R2, ...`
+    RSquared(Spanned<Vec<f64>>),
 }
 
 /// A condition on computed results that must hold.

@@ -94,7 +94,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot, unit, param, require or report"
+                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot, unit, param, require, report or plan"
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
@@ -237,6 +237,36 @@ fn describe(rule: Rule) -> &'static str {
             "`term NAME` or `pairs F between A and B`"
         }
         Rule::plot_kind => "a figure kind (lines, residuals, quantiles, means, influence, groups)",
+        Rule::kw_plan => "`plan`",
+        Rule::kw_groups => "`groups`",
+        Rule::kw_ratio => "`ratio`",
+        Rule::kw_with => "`with`",
+        Rule::kw_covariates => "`covariates`",
+        Rule::kw_explaining => "`explaining`",
+        Rule::kw_effect => "`effect`",
+        Rule::kw_detectable => "`detectable`",
+        Rule::kw_f => "`f`",
+        Rule::kw_sd => "`sd`",
+        Rule::kw_power => "`power`",
+        Rule::kw_n => "`n`",
+        Rule::kw_from => "`from`",
+        Rule::kw_upper => "`upper`",
+        Rule::kw_to => "`to`",
+        Rule::kw_r2 => "`r2`",
+        Rule::plan_stmt => "`plan NAME for K groups ... effect ...`",
+        Rule::plan_ratio => "`in ratio` and relative sizes such as 2:1:1",
+        Rule::plan_covariates => "`with C covariates`",
+        Rule::plan_given | Rule::plan_detectable => {
+            "an effect: `f F`, `means M1, M2, ...` or `detectable`"
+        }
+        Rule::plan_f => "`f` and an effect size",
+        Rule::plan_means => "`means` and the group means",
+        Rule::plan_sd => "`sd` and the SD within groups",
+        Rule::plan_power => "`power` and a target power such as 0.9",
+        Rule::plan_n => "`n` and a number per group",
+        Rule::plan_pilot => "`from` and a pilot model",
+        Rule::plot_power_stmt => "`plot power PLAN`",
+        Rule::power_lines => "`by f` or `by r2` and a list of values",
         _ => "more text",
     }
 }
@@ -301,6 +331,22 @@ fn is_keyword(rule: Rule) -> bool {
             | Rule::kw_balance
             | Rule::kw_report
             | Rule::kw_term
+            | Rule::kw_plan
+            | Rule::kw_groups
+            | Rule::kw_ratio
+            | Rule::kw_with
+            | Rule::kw_covariates
+            | Rule::kw_explaining
+            | Rule::kw_effect
+            | Rule::kw_detectable
+            | Rule::kw_f
+            | Rule::kw_sd
+            | Rule::kw_power
+            | Rule::kw_n
+            | Rule::kw_from
+            | Rule::kw_upper
+            | Rule::kw_to
+            | Rule::kw_r2
     )
 }
 
@@ -480,7 +526,160 @@ impl Builder<'_> {
                     factor,
                 }
             }
+            Rule::plan_stmt => StatementKind::Plan(self.plan(pair_kids)?),
+            Rule::plot_power_stmt => self.power_plot(pair_kids)?,
             _ => unreachable_rule(rule)?,
+        })
+    }
+
+    /// A number with its place.
+    fn spanned_number(&self, pair: &Pair<'_, Rule>) -> Result<Spanned<f64>, SyntaxError> {
+        Ok(Spanned {
+            value: self.number(pair)?,
+            span: self.span(pair),
+        })
+    }
+
+    /// The numbers among a pair's children, as one list spanning from the first to the last.
+    fn number_list(&self, pair: Pair<'_, Rule>) -> Result<Spanned<Vec<f64>>, SyntaxError> {
+        let numbers: Vec<Pair<'_, Rule>> = pair
+            .into_inner()
+            .filter(|p| p.as_rule() == Rule::num)
+            .collect();
+        let value = numbers
+            .iter()
+            .map(|p| self.number(p))
+            .collect::<Result<Vec<f64>, _>>()?;
+        let span = match (numbers.first(), numbers.last()) {
+            (Some(a), Some(b)) => Span {
+                start: self.span(a).start,
+                end: self.span(b).end,
+            },
+            _ => Span::default(),
+        };
+        Ok(Spanned { value, span })
+    }
+
+    /// The first child of `pair` that is a number.
+    fn first_number(&self, pair: Pair<'_, Rule>) -> Result<Spanned<f64>, SyntaxError> {
+        let n = pair
+            .into_inner()
+            .find(|p| p.as_rule() == Rule::num)
+            .ok_or_else(missing_part)?;
+        self.spanned_number(&n)
+    }
+
+    /// `plan NAME for K groups ...`, from the statement's parts.
+    fn plan(&self, parts: Vec<Pair<'_, Rule>>) -> Result<PlanDecl, SyntaxError> {
+        let mut name = None;
+        let mut groups = None;
+        let mut ratio = None;
+        let mut covariates = None;
+        let mut r_squared = None;
+        let mut effect = None;
+        let mut alpha = None;
+        let mut power = None;
+        let mut n = None;
+        let mut pilot = None;
+        let mut upper = None;
+        for p in parts {
+            match p.as_rule() {
+                Rule::ident => name = Some(self.ident(p)),
+                Rule::num => groups = Some(self.spanned_number(&p)?),
+                Rule::plan_ratio => ratio = Some(self.number_list(p)?),
+                Rule::plan_covariates => {
+                    let nums: Vec<Pair<'_, Rule>> = p
+                        .into_inner()
+                        .filter(|q| q.as_rule() == Rule::num)
+                        .collect();
+                    covariates = nums.first().map(|q| self.spanned_number(q)).transpose()?;
+                    r_squared = nums.get(1).map(|q| self.spanned_number(q)).transpose()?;
+                }
+                Rule::plan_given | Rule::plan_detectable => {
+                    let detectable = p.as_rule() == Rule::plan_detectable;
+                    let mut sd = None;
+                    let mut given = None;
+                    for q in p.into_inner() {
+                        match q.as_rule() {
+                            Rule::plan_f => given = Some(PlanEffect::F(self.first_number(q)?)),
+                            Rule::plan_means => {
+                                let mut means_sd = None;
+                                let numbers = self.number_list(q.clone())?;
+                                if let Some(s) =
+                                    q.into_inner().find(|r| r.as_rule() == Rule::plan_sd)
+                                {
+                                    means_sd = Some(self.first_number(s)?);
+                                }
+                                given = Some(PlanEffect::Means {
+                                    means: numbers,
+                                    sd: means_sd,
+                                });
+                            }
+                            Rule::plan_sd => sd = Some(self.first_number(q)?),
+                            Rule::alpha_opt => alpha = Some(self.option_number(q)?),
+                            Rule::plan_power => power = Some(self.first_number(q)?),
+                            Rule::plan_n => n = Some(self.first_number(q)?),
+                            _ => {}
+                        }
+                    }
+                    effect = if detectable {
+                        Some(PlanEffect::Detectable { sd })
+                    } else {
+                        given
+                    };
+                }
+                Rule::plan_pilot => {
+                    for q in p.into_inner() {
+                        match q.as_rule() {
+                            Rule::ident => pilot = Some(self.ident(q)),
+                            Rule::num => upper = Some(self.spanned_number(&q)?),
+                            _ => {}
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+        Ok(PlanDecl {
+            name: name.ok_or_else(missing_part)?,
+            groups: groups.ok_or_else(missing_part)?,
+            ratio,
+            covariates,
+            r_squared,
+            effect: effect.ok_or_else(missing_part)?,
+            alpha,
+            power,
+            n,
+            pilot,
+            upper,
+        })
+    }
+
+    /// `plot power PLAN [by f ... | by r2 ...] [to N]`, from the statement's parts.
+    fn power_plot(&self, parts: Vec<Pair<'_, Rule>>) -> Result<StatementKind, SyntaxError> {
+        let mut plan = None;
+        let mut lines = None;
+        let mut to = None;
+        for p in parts {
+            match p.as_rule() {
+                Rule::ident => plan = Some(self.ident(p)),
+                Rule::num => to = Some(self.spanned_number(&p)?),
+                Rule::power_lines => {
+                    let by_f = p.clone().into_inner().any(|q| q.as_rule() == Rule::kw_f);
+                    let values = self.number_list(p)?;
+                    lines = Some(if by_f {
+                        PowerLines::Effects(values)
+                    } else {
+                        PowerLines::RSquared(values)
+                    });
+                }
+                _ => {}
+            }
+        }
+        Ok(StatementKind::PowerPlot {
+            plan: plan.ok_or_else(missing_part)?,
+            lines,
+            to,
         })
     }
 

@@ -22,6 +22,7 @@ mod design;
 pub mod dist;
 mod fit;
 mod means;
+mod pilot;
 mod qr;
 mod recode;
 mod slopes;
@@ -34,6 +35,7 @@ use std::fmt;
 pub use anova::compare;
 pub(crate) use design::UsedRows;
 pub use fit::{fit, fit_owned, Fit};
+pub use pilot::{Pilot, PilotError};
 
 /// One input variable, aligned with the response row by row.
 #[derive(Debug, Clone, PartialEq)]

@@ -1,5 +1,6 @@
 //! Figures of fitted models, drawn as SVG with plotters: the data with fitted lines,
-//! residuals, normal quantiles, adjusted means, influence and the raw data by level.
+//! residuals, normal quantiles, adjusted means, influence and the raw data by level; and
+//! the power curves of a plan ([`power`]).
 //!
 //! Every figure has the same size and look ([`style`]), a legend beside the panel, one
 //! colour and one marker shape per level, and is byte-for-byte the same on every run: no
@@ -9,6 +10,7 @@
 
 pub mod chart;
 pub mod figures;
+pub mod power;
 pub mod style;
 
 use std::fmt;

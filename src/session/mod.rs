@@ -7,6 +7,7 @@
 mod check_statements;
 mod data_statements;
 mod model_statements;
+mod plan_statements;
 mod plot_statements;
 mod procedure_statements;
 
@@ -37,6 +38,8 @@ pub struct Session<'w> {
     inputs: Vec<InputRecord>,
     /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
     units: Vec<(String, String)>,
+    /// Plans made with `plan`, for `plot power`.
+    plans: Vec<plan_statements::PlanEntry>,
     /// Columns of the data sets as models hold them, one shared copy each, made on first use
     /// and forgotten by every statement that changes a data set (factor codes need none: a
     /// factor's codes are shared as they are).
@@ -77,6 +80,7 @@ impl<'w> Session<'w> {
             models: Vec::new(),
             inputs: Vec::new(),
             units: Vec::new(),
+            plans: Vec::new(),
             shared: RefCell::default(),
         }
     }
@@ -116,6 +120,10 @@ impl<'w> Session<'w> {
             StatementKind::Param { name, value } => self.param(name, value),
             StatementKind::Require(gate) => self.require(gate),
             StatementKind::Report(request) => self.report(request),
+            StatementKind::Plan(decl) => self.plan(decl),
+            StatementKind::PowerPlot { plan, lines, to } => {
+                self.power_plot(plan, lines.as_ref(), to.as_ref())
+            }
             StatementKind::Table(request) => match request {
                 TableRequest::Summary { column, by } => {
                     self.summary(column, by.as_ref(), stmt.span)

@@ -1,10 +1,13 @@
 //! Statistics beyond what the `statrs` crate provides: descriptive statistics of a sample
 //! ([`describe`]), the studentized range distribution for Tukey-Kramer comparisons ([`tukey`]),
 //! the Shapiro-Wilk test of normality ([`shapiro`]) and the Brown-Forsythe test of equal
-//! variances ([`levene`]).
+//! variances ([`levene`]); the noncentral F distribution ([`ncf`]) and the power and sample
+//! size of the F test of groups ([`power`]), for planning.
 
 pub mod describe;
 pub mod levene;
+pub mod ncf;
+pub mod power;
 pub mod shapiro;
 pub mod tukey;
 

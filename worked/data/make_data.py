@@ -104,7 +104,26 @@ def batches():
         write(f"{name}.csv", ["plant", "blend", "height_cm", "yield_kg"], rows)
 
 
+def beet_pilot():
+    """A pilot field trial of two seed coatings for sugar beet against uncoated seed, six
+    plots each; the root yield of each plot adjusted for the same plot's yield in the
+    previous season, which carries the field's fertility from year to year."""
+    rng = random.Random(4411)
+    gain = {"uncoated": 0.0, "coat-A": 1.5, "coat-B": 3.0}
+    rows = []
+    plot = 0
+    for coating, shift in gain.items():
+        for _ in range(6):
+            plot += 1
+            previous = round(rng.gauss(68.0, 6.0), 1)
+            root = 70.0 + 0.8 * (previous - 68.0) + shift + rng.gauss(0, 3.5)
+            rows.append([f"B{plot:02d}", coating, previous, round(root, 1)])
+    rng.shuffle(rows)
+    write("beet-pilot.csv", ["plot", "coating", "previous_t_ha", "roots_t_ha"], rows)
+
+
 if __name__ == "__main__":
+    beet_pilot()
     batches()
     rations()
     machines()

@@ -1,0 +1,981 @@
+//! Handlers of `plan` and `plot power`: the power and sample size of the next trial, from
+//! assumptions written in the document or from a pilot model fitted in it.
+
+use super::{closest, Outcome, Session};
+use crate::diagnostic::Diagnostic;
+use crate::lang::{PlanDecl, PlanEffect, PowerLines, Span, Spanned};
+use crate::model::Pilot;
+use crate::plot::power::{self as power_figure, PowerCurves, PowerLine};
+use crate::plot::style::STYLES;
+use crate::report::markdown::code;
+use crate::report::{Cell, Column as Col, Figure, Format, Item, Table};
+use crate::stats::ncf;
+use crate::stats::power::{effect_of_means, Design, PlanError, Power, MAX_PER_GROUP};
+
+/// Significance level when a plan gives none.
+const DEFAULT_ALPHA: f64 = 0.05;
+/// Most groups a plan takes: far more than any trial compares.
+const MAX_GROUPS: u64 = 1000;
+/// Most covariates a plan takes.
+const MAX_COVARIATES: u64 = 1000;
+/// Largest entry of an allocation ratio.
+const MAX_RATIO: u64 = 1000;
+
+/// Confidence level of the upper limit of a pilot's SD that a small-pilot warning offers:
+/// planning with the one-sided upper 80% limit gives at least the intended power in about
+/// 80% of pilots (R. H. Browne, "On the use of a pilot sample for sample size
+/// determination", Statistics in Medicine 14 (1995) 1933-1940; from memory).
+const PILOT_LEVEL: f64 = 0.8;
+
+/// A pilot is small when the upper [`PILOT_LEVEL`] limit of its SD exceeds the estimate by
+/// more than this fraction (about 47 residual degrees of freedom or fewer): the sample size
+/// grows with the square of the SD, so 10% more SD needs about 21% more subjects.
+const SMALL_PILOT_EXCESS: f64 = 0.10;
+
+/// A power figure's default axis runs on to where its lines reach the target power, but
+/// not past this many times the plan's own number per group: a line that needs far more
+/// (a tiny effect) would squash every other line against the axis.
+const REACH_SPAN: u64 = 20;
+
+/// Most points along each line of a power figure; beyond this many numbers per group the
+/// line is drawn through evenly spread ones.
+const FIGURE_POINTS: u64 = 400;
+
+/// A plan as the session keeps it, for `plot power`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlanEntry {
+    pub name: String,
+    pub design: Design,
+    /// The effect size: given, from means, or found.
+    pub f: f64,
+    /// The number per group (per unit of the ratio): given or found.
+    pub n: u64,
+    pub power: f64,
+    /// The target power of a plan that has one (not of `n N` alone).
+    pub target: Option<f64>,
+}
+
+/// What a pilot model gives a plan.
+struct PilotUse {
+    name: String,
+    info: Pilot,
+    /// The residual SD used: the estimate, or its upper confidence limit.
+    sigma: f64,
+    /// The level of that limit, when one is used.
+    level: Option<f64>,
+    /// The SD within groups without covariates: sigma / sqrt(1 - r²).
+    sd_without: f64,
+}
+
+impl PilotUse {
+    /// The one-sided upper `level` confidence limit of the pilot's residual SD:
+    /// sigma sqrt(df / q), q the lower 1 - level point of chi-square with df degrees of
+    /// freedom.
+    fn upper_limit(&self, level: f64) -> f64 {
+        let df = self.info.df_residual as f64;
+        self.info.sigma * (df / ncf::chi_square_lower_point(level, df)).sqrt()
+    }
+}
+
+/// A number shown in a sentence: four significant digits, trailing zeros dropped.
+fn short(v: f64) -> String {
+    if !v.is_finite() {
+        return "—".to_string();
+    }
+    if v == 0.0 {
+        return "0".to_string();
+    }
+    let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+/// A value in a figure's legend: three significant digits, as the plan's table shows R²
+/// and f.
+fn label(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return short(v);
+    }
+    let decimals = (2 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    let s = format!("{v:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+/// A power shown in a sentence: three decimals, and never a rounded 1, which would claim
+/// certainty.
+fn power_text(p: f64) -> String {
+    if p > 0.9995 {
+        "above 0.999".to_string()
+    } else {
+        format!("{p:.3}")
+    }
+}
+
+/// A whole number written as a number, within bounds.
+fn whole(v: &Spanned<f64>, what: &str, min: u64, max: u64) -> Result<u64, Diagnostic> {
+    let x = v.value;
+    if x.fract() != 0.0 || x < min as f64 || x > max as f64 {
+        return Err(Diagnostic::new(
+            v.span,
+            format!("{what} must be a whole number from {min} to {max}"),
+        )
+        .label("not allowed here"));
+    }
+    Ok(x as u64)
+}
+
+/// A probability strictly between 0 and 1 (alpha, a power, a confidence level).
+fn open_unit(v: &Spanned<f64>, what: &str, low: f64) -> Result<f64, Diagnostic> {
+    if !(v.value > low && v.value < 1.0) {
+        return Err(
+            Diagnostic::new(v.span, format!("{what} must lie between {low} and 1"))
+                .label("out of range"),
+        );
+    }
+    Ok(v.value)
+}
+
+/// The word of a count: "1 covariate", "2 covariates".
+fn count(n: u64, one: &str, many: &str) -> String {
+    if n == 1 {
+        format!("1 {one}")
+    } else {
+        format!("{n} {many}")
+    }
+}
+
+fn plan_error(span: Span, e: &PlanError) -> Diagnostic {
+    let help = match e {
+        PlanError::NoEffect => "a plan needs an effect to detect: means that differ, or f above 0",
+        PlanError::Unreachable { .. } => {
+            "the effect is too small to detect with any realistic trial; check the SD and the means"
+        }
+        PlanError::TooFew { .. } => "give a larger number per group",
+        PlanError::TargetOutOfRange { .. } => "a target power such as 0.8 or 0.9 is usual",
+        PlanError::NoDetectableEffect { .. } => "give a larger number per group or a lower power",
+        PlanError::BeyondRange { .. } => "check the R², which is very close to 1, and the effect",
+    };
+    Diagnostic::new(span, e.to_string())
+        .label("cannot plan this")
+        .help(help)
+}
+
+impl Session<'_> {
+    pub(super) fn plan(&mut self, decl: &PlanDecl) -> Outcome {
+        let groups = whole(&decl.groups, "the number of groups", 2, MAX_GROUPS)?;
+        let ratio = match &decl.ratio {
+            None => Vec::new(),
+            Some(r) => {
+                if r.value.len() as u64 != groups {
+                    return Err(Diagnostic::new(
+                        r.span,
+                        format!(
+                            "the ratio has {} parts, but the plan has {groups} groups",
+                            r.value.len()
+                        ),
+                    )
+                    .label("one part per group")
+                    .help(
+                        "write one relative size per group, such as `in ratio 2:1:1` for 3 groups",
+                    ));
+                }
+                r.value
+                    .iter()
+                    .map(|&v| {
+                        whole(
+                            &Spanned {
+                                value: v,
+                                span: r.span,
+                            },
+                            "each part of a ratio",
+                            1,
+                            MAX_RATIO,
+                        )
+                    })
+                    .collect::<Result<Vec<u64>, _>>()?
+            }
+        };
+        let covariates = decl
+            .covariates
+            .as_ref()
+            .map(|c| whole(c, "the number of covariates", 0, MAX_COVARIATES))
+            .transpose()?
+            .unwrap_or(0);
+        let alpha = match &decl.alpha {
+            Some(a) => open_unit(a, "alpha", 0.0)?,
+            None => DEFAULT_ALPHA,
+        };
+        let pilot = match &decl.pilot {
+            Some(m) => Some(self.pilot_use(m, decl.upper.as_ref())?),
+            None => None,
+        };
+
+        // R²: as written, or the pilot's squared partial correlation.
+        let (r_squared, r_squared_from_pilot) = match (&decl.r_squared, covariates, &pilot) {
+            (Some(r), 0, _) if r.value != 0.0 => {
+                return Err(Diagnostic::new(
+                    r.span,
+                    "with no covariates there is nothing to explain the variance",
+                )
+                .label("needs covariates")
+                .help("write `with 1 covariate explaining R2`, or leave `explaining` out"))
+            }
+            (Some(r), _, _) => {
+                if !(r.value >= 0.0 && r.value < 1.0) {
+                    return Err(Diagnostic::new(
+                        r.span,
+                        "the share of variance the covariates explain must be at least 0 and below 1",
+                    )
+                    .label("out of range"));
+                }
+                (r.value, false)
+            }
+            (None, 0, _) => (0.0, false),
+            (None, c, Some(p)) => {
+                let span = decl.covariates.as_ref().map_or(decl.name.span, |s| s.span);
+                if p.info.covariate_df == 0 {
+                    return Err(Diagnostic::new(
+                        span,
+                        format!(
+                            "model `{}` has no covariate to take the correlation from",
+                            p.name
+                        ),
+                    )
+                    .label("no R² in the pilot")
+                    .help(
+                        "write `explaining R2` with the share of variance the covariates explain",
+                    ));
+                }
+                if p.info.covariate_df as u64 != c {
+                    return Err(Diagnostic::new(
+                        span,
+                        format!(
+                            "the plan has {}, but model `{}` has {} ({})",
+                            count(c, "covariate", "covariates"),
+                            p.name,
+                            count(
+                                p.info.covariate_df as u64,
+                                "covariate column",
+                                "covariate columns"
+                            ),
+                            p.info.covariates.join(", ")
+                        ),
+                    )
+                    .label("does not match the pilot")
+                    .help(format!(
+                        "write `with {} covariates`, or give `explaining R2` yourself",
+                        p.info.covariate_df
+                    )));
+                }
+                if p.info.partial_r_squared >= 1.0 {
+                    return Err(Diagnostic::new(
+                        span,
+                        format!(
+                            "the covariates of model `{}` explain all of its variance",
+                            p.name
+                        ),
+                    )
+                    .label("no error variance left"));
+                }
+                (p.info.partial_r_squared, true)
+            }
+            (None, _, None) => {
+                let span = decl.covariates.as_ref().map_or(decl.name.span, |s| s.span);
+                return Err(Diagnostic::new(
+                    span,
+                    "the plan does not say how much of the variance the covariates explain",
+                )
+                .label("R² needed")
+                .help("add `explaining R2` (such as `with 1 covariate explaining 0.4`), or take it from a fitted pilot with `from MODEL`"));
+            }
+        };
+
+        // The SD within groups without covariates: as written, or from the pilot.
+        let sd_written = match &decl.effect {
+            PlanEffect::Means { sd, .. } | PlanEffect::Detectable { sd } => sd.clone(),
+            PlanEffect::F(_) => None,
+        };
+        if let Some(s) = &sd_written {
+            if s.value <= 0.0 {
+                return Err(Diagnostic::new(s.span, "an SD must be above 0").label("out of range"));
+            }
+        }
+        let sd = sd_written
+            .as_ref()
+            .map(|s| s.value)
+            .or(pilot.as_ref().map(|p| p.sd_without));
+
+        let design = Design {
+            groups,
+            covariates,
+            r_squared,
+            alpha,
+            ratio,
+        };
+        let shares = design.shares();
+        let (f_given, effect_span) = match &decl.effect {
+            PlanEffect::F(v) => {
+                if v.value < 0.0 {
+                    return Err(
+                        Diagnostic::new(v.span, "an effect size f must be 0 or more")
+                            .label("out of range"),
+                    );
+                }
+                (Some(v.value), v.span)
+            }
+            PlanEffect::Means { means, .. } => {
+                if means.value.len() as u64 != groups {
+                    return Err(Diagnostic::new(
+                        means.span,
+                        format!(
+                            "{} means are given, but the plan has {groups} groups",
+                            means.value.len()
+                        ),
+                    )
+                    .label("one mean per group"));
+                }
+                let Some(s) = sd else {
+                    return Err(Diagnostic::new(
+                        means.span,
+                        "the means need the SD within groups to become an effect size",
+                    )
+                    .label("SD needed")
+                    .help("add `sd S` after the means, or take the SD from a fitted pilot with `from MODEL`"));
+                };
+                (Some(effect_of_means(&means.value, &shares, s)), means.span)
+            }
+            PlanEffect::Detectable { .. } => {
+                (None, decl.power.as_ref().map_or(decl.name.span, |p| p.span))
+            }
+        };
+
+        let (f, result) = solve(&design, f_given, decl, effect_span)?;
+        let target = decl.power.as_ref().map(|p| p.value);
+
+        let mut items = Vec::new();
+        let mut t = plan_table(decl, &design, f, sd, &result);
+        t.notes.extend(input_notes(
+            decl,
+            &design,
+            sd,
+            pilot.as_ref(),
+            r_squared_from_pilot,
+            f,
+        ));
+        t.notes.push(result_note(decl, &design, f, sd, &result));
+        t.notes.push(computation_note(&design, &result));
+        t.notes.push(CAUTION.to_string());
+        t.subject = Some(decl.name.value.clone());
+        items.push(Item::Table(t));
+
+        // A small pilot: offer the upper confidence limit of its SD, with what it changes.
+        let sd_from_pilot = sd_written.is_none() && !matches!(decl.effect, PlanEffect::F(_));
+        if let (Some(p), true) = (&pilot, sd_from_pilot) {
+            if p.level.is_none() {
+                if let Some(w) = small_pilot_warning(p, decl, &design, f, &result) {
+                    items.push(Item::Warning(w));
+                }
+            }
+        }
+
+        let entry = PlanEntry {
+            name: decl.name.value.clone(),
+            design,
+            f,
+            n: result.n,
+            power: result.power,
+            target,
+        };
+        match self.plans.iter().position(|p| p.name == entry.name) {
+            Some(i) => {
+                items.push(Item::Warning(format!(
+                    "This replaces the earlier plan {}; figures and references from here on use the new one.",
+                    code(&entry.name)
+                )));
+                self.plans[i] = entry;
+            }
+            None => self.plans.push(entry),
+        }
+        Ok(items)
+    }
+
+    /// The pilot model named by `from M [upper L]`, read for planning.
+    fn pilot_use(
+        &self,
+        model: &Spanned<String>,
+        upper: Option<&Spanned<f64>>,
+    ) -> Result<PilotUse, Diagnostic> {
+        let entry = self.model_entry(model)?;
+        let info = entry.fit.pilot().map_err(|e| {
+            Diagnostic::new(model.span, e.to_string())
+                .label("not a pilot for a plan")
+                .help("plan from the model with parallel slopes (without the group-by-covariate term)")
+        })?;
+        if info.df_residual == 0 || !info.sigma.is_finite() {
+            return Err(Diagnostic::new(
+                model.span,
+                format!(
+                    "model `{}` has no residual degrees of freedom, so no SD",
+                    model.value
+                ),
+            )
+            .label("no SD in the pilot"));
+        }
+        let level = upper
+            .map(|u| open_unit(u, "the level of the upper limit", 0.5))
+            .transpose()?;
+        let mut p = PilotUse {
+            name: model.value.clone(),
+            sigma: info.sigma,
+            sd_without: 0.0,
+            level,
+            info,
+        };
+        if let Some(l) = level {
+            p.sigma = p.upper_limit(l);
+        }
+        p.sd_without = p.sigma / (1.0 - p.info.partial_r_squared).sqrt();
+        Ok(p)
+    }
+
+    pub(super) fn power_plot(
+        &mut self,
+        plan: &Spanned<String>,
+        lines: Option<&PowerLines>,
+        to: Option<&Spanned<f64>>,
+    ) -> Outcome {
+        let entry = self.plan_entry(plan)?;
+        let d = &entry.design;
+        // The lines: (label, design, f).
+        let mut specs: Vec<(String, Design, f64)> = Vec::new();
+        let (legend, values_span) = match lines {
+            Some(PowerLines::Effects(v)) => {
+                for &f in &v.value {
+                    if !(f > 0.0 && f.is_finite()) {
+                        return Err(
+                            Diagnostic::new(v.span, "each effect size f must be above 0")
+                                .label("out of range"),
+                        );
+                    }
+                    specs.push((label(f), d.clone(), f));
+                }
+                ("effect f".to_string(), Some(v.span))
+            }
+            Some(PowerLines::RSquared(v)) => {
+                for &r in &v.value {
+                    if !(0.0..1.0).contains(&r) {
+                        return Err(Diagnostic::new(
+                            v.span,
+                            "each R² must be at least 0 and below 1",
+                        )
+                        .label("out of range"));
+                    }
+                    specs.push(r_squared_line(d, r, entry.f));
+                }
+                ("R²".to_string(), Some(v.span))
+            }
+            None if d.covariates > 0 => {
+                specs.push(r_squared_line(d, 0.0, entry.f));
+                specs.push(r_squared_line(d, d.r_squared, entry.f));
+                ("R²".to_string(), None)
+            }
+            None => {
+                specs.push((label(entry.f), d.clone(), entry.f));
+                ("effect f".to_string(), None)
+            }
+        };
+        if specs.len() > STYLES {
+            return Err(Diagnostic::new(
+                values_span.unwrap_or(plan.span),
+                format!("a power figure draws at most {STYLES} lines"),
+            )
+            .label("too many lines"));
+        }
+        let low = specs.iter().map(|s| s.1.least_n()).max().unwrap_or(2);
+        // Where each line reaches the target (the plan's target, or its power at its n).
+        let mark = entry.target.unwrap_or(entry.power);
+        let reach: Vec<Option<u64>> = specs
+            .iter()
+            .map(|(_, ds, f)| ds.n_for_power(*f, mark).ok().map(|p| p.n))
+            .collect();
+        let high = match to {
+            Some(t) => whole(t, "the largest number per group", low + 1, MAX_PER_GROUP)?,
+            None => {
+                let mut h = entry.n.saturating_mul(2);
+                for r in reach.iter().flatten() {
+                    if *r <= entry.n.saturating_mul(REACH_SPAN) {
+                        h = h.max(r + r.div_ceil(4));
+                    }
+                }
+                h.max(low + 8)
+            }
+        };
+        let step = (high - low).div_ceil(FIGURE_POINTS).max(1);
+        let mut ns: Vec<u64> = (low..=high).step_by(step as usize).collect();
+        if ns.last() != Some(&high) {
+            ns.push(high);
+        }
+        let mut drawn_lines = Vec::new();
+        for (label, ds, f) in &specs {
+            let points = ns
+                .iter()
+                .map(|&n| {
+                    ds.power(*f, n)
+                        .map(|p| (n as f64, p.power))
+                        .map_err(|e| plan_error(plan.span, &e))
+                })
+                .collect::<Result<Vec<_>, _>>()?;
+            drawn_lines.push(PowerLine {
+                label: label.clone(),
+                points,
+            });
+        }
+        let per = if d.ratio.is_empty() {
+            "number per group"
+        } else {
+            "number per unit of the ratio"
+        };
+        let target = Some((
+            mark,
+            match entry.target {
+                Some(p) => format!("target {}", short(p)),
+                None => format!("power {}", power_text(entry.power)),
+            },
+        ));
+        let plan_n = (entry.n >= low && entry.n <= high)
+            .then(|| (entry.n as f64, format!("plan: n = {}", entry.n)));
+        let what = if legend == "R²" {
+            "one line per R² of the covariates"
+        } else {
+            "one line per effect size f"
+        };
+        let unit = if d.ratio.is_empty() {
+            "per group"
+        } else {
+            "per unit of the ratio"
+        };
+        let goal = match entry.target {
+            Some(t) => short(t),
+            None => power_text(mark),
+        };
+        let reached: Vec<String> = specs
+            .iter()
+            .zip(&reach)
+            .map(|((label, _, _), r)| match r {
+                Some(n) => format!("With {legend} {label} the power reaches {goal} at {n} {unit}."),
+                None => format!("With {legend} {label} it does not reach {goal}."),
+            })
+            .collect();
+        let alt = format!(
+            "Power of the F test of {} groups at alpha {} against the {per} from {low} to {high}, {what}. {}",
+            d.groups,
+            short(d.alpha),
+            reached.join(" "),
+        );
+        let curves = PowerCurves {
+            lines: drawn_lines,
+            legend_title: legend,
+            x_label: per.to_string(),
+            target,
+            plan_n,
+            caption: format!("Power against the {per}, plan {}: {what}", entry.name),
+            alt,
+        };
+        let drawn = power_figure::draw(&curves)
+            .map_err(|e| Diagnostic::new(plan.span, e.to_string()).label("cannot draw this"))?;
+        Ok(vec![Item::Figure(Figure {
+            file: String::new(),
+            svg: drawn.svg,
+            alt: drawn.alt,
+            caption: drawn.caption,
+        })])
+    }
+
+    fn plan_entry(&self, name: &Spanned<String>) -> Result<&PlanEntry, Diagnostic> {
+        self.plans
+            .iter()
+            .find(|p| p.name == name.value)
+            .ok_or_else(|| {
+                let known: Vec<&str> = self.plans.iter().map(|p| p.name.as_str()).collect();
+                let help = match closest(&name.value, &known) {
+                    Some(c) => format!("did you mean `{c}`?"),
+                    None if known.is_empty() => {
+                        "make one first with `plan NAME for K groups ... effect ...`".into()
+                    }
+                    None => format!("the plans so far are {}", known.join(", ")),
+                };
+                Diagnostic::new(
+                    name.span,
+                    format!("there is no plan called `{}`", name.value),
+                )
+                .label("unknown plan")
+                .help(help)
+            })
+    }
+}
+
+/// A line of the power figure at R² = `r`: without covariates at 0 (the analysis that
+/// leaves them out), with the plan's covariates (at least one) otherwise.
+fn r_squared_line(d: &Design, r: f64, f: f64) -> (String, Design, f64) {
+    let mut line = d.clone();
+    line.r_squared = r;
+    if r == 0.0 {
+        line.covariates = 0;
+        ("0 (no covariate)".to_string(), line, f)
+    } else {
+        line.covariates = d.covariates.max(1);
+        (label(r), line, f)
+    }
+}
+
+/// Solves the plan: the number per group, the power, or the detectable effect.
+fn solve(
+    design: &Design,
+    f: Option<f64>,
+    decl: &PlanDecl,
+    effect_span: Span,
+) -> Result<(f64, Power), Diagnostic> {
+    let target = decl
+        .power
+        .as_ref()
+        .map(|p| {
+            if !(p.value > design.alpha && p.value < 1.0) {
+                return Err(Diagnostic::new(
+                    p.span,
+                    format!(
+                        "a target power must lie above alpha ({}) and below 1",
+                        short(design.alpha)
+                    ),
+                )
+                .label("out of range")
+                .help("a target power such as 0.8 or 0.9 is usual"));
+            }
+            Ok((p.value, p.span))
+        })
+        .transpose()?;
+    let n = decl
+        .n
+        .as_ref()
+        .map(|n| {
+            whole(n, "the number per group", design.least_n(), MAX_PER_GROUP).map(|v| (v, n.span))
+        })
+        .transpose()?;
+    match (f, n, target) {
+        (Some(f), None, Some((t, span))) => {
+            let span = if f == 0.0 { effect_span } else { span };
+            design
+                .n_for_power(f, t)
+                .map(|p| (f, p))
+                .map_err(|e| plan_error(span, &e))
+        }
+        (Some(f), Some((n, span)), None) => design
+            .power(f, n)
+            .map(|p| (f, p))
+            .map_err(|e| plan_error(span, &e)),
+        (None, Some((n, _)), Some((t, span))) => design
+            .detectable_f(n, t)
+            .map_err(|e| plan_error(span, &e)),
+        _ => Err(Diagnostic::new(
+            decl.name.span,
+            "internal error: the plan's parts are not where the grammar puts them (please report this)",
+        )),
+    }
+}
+
+/// The plan's table: every input and the result, one row.
+fn plan_table(decl: &PlanDecl, d: &Design, f: f64, sd: Option<f64>, r: &Power) -> Table {
+    let caption = match (&decl.effect, &decl.n, &decl.power) {
+        (PlanEffect::Detectable { .. }, Some(n), Some(p)) => format!(
+            "Plan {}: the smallest effect detected with power {} and {} per {}",
+            code(&decl.name.value),
+            short(p.value),
+            short(n.value),
+            if d.ratio.is_empty() {
+                "group"
+            } else {
+                "unit of the ratio"
+            }
+        ),
+        (_, None, Some(p)) => format!(
+            "Plan {}: the number per {} for power {}",
+            code(&decl.name.value),
+            if d.ratio.is_empty() {
+                "group"
+            } else {
+                "unit of the ratio"
+            },
+            short(p.value)
+        ),
+        (_, Some(n), _) => format!(
+            "Plan {}: the power with {} per {}",
+            code(&decl.name.value),
+            short(n.value),
+            if d.ratio.is_empty() {
+                "group"
+            } else {
+                "unit of the ratio"
+            }
+        ),
+        _ => format!("Plan {}", code(&decl.name.value)),
+    };
+    let mut t = Table::new(
+        "plan",
+        caption,
+        vec![
+            Col::new("groups", "groups", Format::Count),
+            Col::new("covariates", "covariates", Format::Count),
+            Col::new("r_squared", "R²", Format::Digits(3)),
+            Col::new("sd", "SD", Format::Digits(4)),
+            Col::new("effect_f", "f", Format::Digits(3)),
+            Col::new("alpha", "alpha", Format::Exact),
+            Col::new("n_per_group", "n per group", Format::Count),
+            Col::new("total_n", "N", Format::Count),
+            Col::new("df1", "df1", Format::Count),
+            Col::new("df2", "df2", Format::Count),
+            Col::new("lambda", "λ", Format::Digits(4)),
+            Col::new("power", "power", Format::Digits(3)),
+            Col::new("group_sizes", "group sizes", Format::Text),
+        ],
+    );
+    let sizes: Vec<String> = d.group_sizes(r.n).iter().map(u64::to_string).collect();
+    t.push(vec![
+        Cell::Number(d.groups as f64),
+        Cell::Number(d.covariates as f64),
+        Cell::from(d.r_squared),
+        Cell::from(sd),
+        Cell::from(f),
+        Cell::from(d.alpha),
+        Cell::Number(r.n as f64),
+        Cell::Number(r.total as f64),
+        Cell::Number(r.df1 as f64),
+        Cell::Number(r.df2 as f64),
+        Cell::from(r.lambda),
+        Cell::from(r.power),
+        Cell::Text(sizes.join(", ")),
+    ]);
+    t
+}
+
+/// Where the SD, R² and effect come from.
+fn input_notes(
+    decl: &PlanDecl,
+    d: &Design,
+    sd: Option<f64>,
+    pilot: Option<&PilotUse>,
+    r_squared_from_pilot: bool,
+    f: f64,
+) -> Vec<String> {
+    let mut notes = Vec::new();
+    if let Some(p) = pilot {
+        let r = p.info.partial_r_squared.sqrt() * p.info.sign.unwrap_or(1.0);
+        let covs: Vec<String> = p.info.covariates.iter().map(|c| code(c)).collect();
+        let correlation = match (p.info.covariate_df, p.info.sign) {
+            (0, _) => "it has no covariate".to_string(),
+            (1, Some(_)) => format!(
+                "the partial correlation of the response with {} given its other terms is r = {} (r² = {})",
+                covs.join(", "),
+                short(r),
+                short(p.info.partial_r_squared)
+            ),
+            _ => format!(
+                "its covariates {} explain r² = {} of the variance its other terms leave",
+                covs.join(", "),
+                short(p.info.partial_r_squared)
+            ),
+        };
+        let sigma = match p.level {
+            Some(l) => format!(
+                "its residual SD is {}, planned with its one-sided upper {}% confidence limit {}",
+                short(p.info.sigma),
+                short(l * 100.0),
+                short(p.sigma)
+            ),
+            None => format!("its residual SD is {}", short(p.info.sigma)),
+        };
+        let mut uses = Vec::new();
+        let sd_used = !matches!(decl.effect, PlanEffect::F(_))
+            && !matches!(
+                &decl.effect,
+                PlanEffect::Means { sd: Some(_), .. } | PlanEffect::Detectable { sd: Some(_) }
+            );
+        if sd_used {
+            uses.push(format!(
+                "the SD within groups without covariates, {} / √(1 − r²) = {}",
+                short(p.sigma),
+                short(p.sd_without)
+            ));
+        }
+        if r_squared_from_pilot {
+            uses.push(format!("R² = r² = {}", short(d.r_squared)));
+        }
+        let uses = if uses.is_empty() {
+            "The plan takes nothing from it: its own values are written in the statement."
+                .to_string()
+        } else {
+            format!("The plan takes {} from it.", uses.join(", and "))
+        };
+        notes.push(format!(
+            "Pilot: model {} ({} rows, {} residual degrees of freedom): {sigma}; {correlation}. {uses}",
+            code(&p.name),
+            p.info.n,
+            p.info.df_residual
+        ));
+    }
+    match &decl.effect {
+        PlanEffect::Means { means, .. } => {
+            let listed: Vec<String> = means.value.iter().map(|m| short(*m)).collect();
+            notes.push(format!(
+                "f = {}: the SD of the means {} about their {}, over the SD within groups without covariates, {}.",
+                short(f),
+                listed.join(", "),
+                if d.ratio.is_empty() {
+                    "mean (divisor K)".to_string()
+                } else {
+                    let r: Vec<String> = d.ratio.iter().map(u64::to_string).collect();
+                    format!("weighted mean, each weighted by its group's share of the ratio {}", r.join(":"))
+                },
+                sd.map_or_else(|| "—".to_string(), short)
+            ));
+        }
+        PlanEffect::F(_) => notes.push(format!(
+            "f = {} is Cohen's effect size: the SD of the group means over the SD within groups without covariates.",
+            short(f)
+        )),
+        PlanEffect::Detectable { .. } => {}
+    }
+    notes
+}
+
+/// The result in words: the n found and its power, the power, or the detectable effect.
+fn result_note(decl: &PlanDecl, d: &Design, f: f64, sd: Option<f64>, r: &Power) -> String {
+    let per = if d.ratio.is_empty() {
+        "per group"
+    } else {
+        "per unit of the ratio"
+    };
+    match (&decl.effect, &decl.power, &decl.n) {
+        (PlanEffect::Detectable { .. }, Some(p), _) => {
+            let mut s = format!(
+                "f = {} is the smallest effect size detected with power {} with {} {per}.",
+                short(f),
+                short(p.value),
+                r.n
+            );
+            if let Some(sd) = sd {
+                s.push_str(&format!(
+                    " With the SD within groups {}, that is an SD of the group means of {}",
+                    short(sd),
+                    short(f * sd)
+                ));
+                if d.ratio.is_empty() {
+                    s.push_str(&format!(
+                        ": two means {} apart{}",
+                        short(f * sd * (2.0 * d.groups as f64).sqrt()),
+                        if d.groups > 2 {
+                            " with the others midway"
+                        } else {
+                            ""
+                        }
+                    ));
+                }
+                s.push('.');
+            }
+            s
+        }
+        (_, Some(p), None) => {
+            let mut s = format!(
+                "n is the smallest whole number {per} that reaches power {}; with it the power is {}",
+                short(p.value),
+                power_text(r.power)
+            );
+            let design_ok = r.n > d.least_n();
+            if design_ok {
+                if let Ok(below) = d.power(f, r.n - 1) {
+                    s.push_str(&format!(" (with {}, {})", r.n - 1, power_text(below.power)));
+                }
+            }
+            s.push('.');
+            s
+        }
+        _ => format!("With {} {per} the power is {}.", r.n, power_text(r.power)),
+    }
+}
+
+/// How the power was computed, with the numbers.
+fn computation_note(d: &Design, r: &Power) -> String {
+    format!(
+        "Power of the F test of the groups: the noncentral F distribution with df1 = K − 1 = {}, df2 = N − K − C = {} and noncentrality λ = N f² / (1 − R²) = {}, beyond the critical F = {} at alpha {}.",
+        r.df1,
+        r.df2,
+        short(r.lambda),
+        short(r.critical),
+        short(d.alpha)
+    )
+}
+
+/// The caution every plan carries.
+const CAUTION: &str = "A plan is only as good as its assumptions: the SD within groups and the share of it the covariates explain are estimates or guesses, and a larger SD or a weaker correlation than assumed leaves less power. The computation treats the covariates as balanced across the groups, as randomization makes them on average; in a small trial their chance imbalance makes the power a little lower.";
+
+/// The warning for a small pilot whose SD the plan uses: its upper confidence limit, and
+/// the plan that limit would give.
+fn small_pilot_warning(
+    p: &PilotUse,
+    decl: &PlanDecl,
+    d: &Design,
+    f: f64,
+    result: &Power,
+) -> Option<String> {
+    let upper = p.upper_limit(PILOT_LEVEL);
+    let excess = upper / p.sigma - 1.0;
+    if excess.is_nan() || excess <= SMALL_PILOT_EXCESS {
+        return None;
+    }
+    // Every effect size here is a difference over the SD, so the larger SD shrinks it by
+    // the same factor.
+    let f_upper = f * p.sigma / upper;
+    let per = if d.ratio.is_empty() {
+        "per group"
+    } else {
+        "per unit of the ratio"
+    };
+    let consequence = match (&decl.effect, &decl.power, &decl.n) {
+        (PlanEffect::Detectable { .. }, _, _) => format!(
+            "with it the smallest detectable SD of the group means is {} instead of {}",
+            short(f * p.sd_without * upper / p.sigma),
+            short(f * p.sd_without)
+        ),
+        (_, Some(goal), None) => match d.n_for_power(f_upper, goal.value) {
+            Ok(u) => format!(
+                "with it the plan needs {} {per} instead of {}",
+                u.n, result.n
+            ),
+            Err(_) => "with it no realistic trial reaches the target power".to_string(),
+        },
+        _ => match d.power(f_upper, result.n) {
+            Ok(u) => format!(
+                "with it the power is {} instead of {}",
+                power_text(u.power),
+                power_text(result.power)
+            ),
+            Err(_) => String::new(),
+        },
+    };
+    Some(format!(
+        "The pilot model {} leaves only {} residual degrees of freedom, so its SD is uncertain: the one-sided upper {}% confidence limit of its residual SD is {}, {}% above the estimate {}. Planning with that limit is the conservative choice (Browne 1995): write {}; {consequence}.",
+        code(&p.name),
+        p.info.df_residual,
+        short(PILOT_LEVEL * 100.0),
+        short(upper),
+        short((excess * 100.0).round()),
+        short(p.sigma),
+        code(&format!("from {} upper {}", p.name, short(PILOT_LEVEL))),
+    ))
+}
