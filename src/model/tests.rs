@@ -495,10 +495,27 @@ fn aliased_empty_cell() {
     let a1 = f.anova(SsType::I).expect("type I works");
     assert_eq!(a1.rows[2].df, 1);
     assert!(f.anova(SsType::II).is_ok());
-    assert!(matches!(
-        f.means("a", &[], 0.95),
-        Err(ModelError::NotEstimable { .. })
-    ));
+    // The adjusted means of a average over b, and a = a3 has no rows with b = b2: only a1
+    // and a2 are estimable, and the reason names the empty cell.
+    let means = f.means("a", &[], 0.95).expect("means");
+    let estimable: Vec<bool> = means.iter().map(|m| m.not_estimable.is_none()).collect();
+    assert_eq!(estimable, vec![true, true, false]);
+    let why = means[2].not_estimable.clone().unwrap_or_default();
+    assert!(why.contains("a = a3 with b = b2"), "{why}");
+    assert!(means[2].mean.is_nan() && means[0].mean.is_finite());
+    let pairs = f.pairs("a", &[], Adjust::Tukey, 0.95).expect("pairs");
+    let estimable: Vec<bool> = pairs.iter().map(|p| p.not_estimable.is_none()).collect();
+    assert_eq!(estimable, vec![true, false, false]);
+    // The Type III refusal names the empty cell and the interaction to remove.
+    let e = f
+        .anova(SsType::III)
+        .err()
+        .map(|e| e.to_string())
+        .unwrap_or_default();
+    assert!(
+        e.contains("a = a3 with b = b2") && e.contains("remove the interaction `a by b`"),
+        "{e}"
+    );
     // Without the interaction everything is estimable again.
     let g = fit(&reference_spec(
         &rows,
@@ -652,9 +669,17 @@ fn warnings_and_errors() {
             ..
         })
     ));
+    // An exact fit is a fit: exact coefficients, residual SD 0, tests undefined, and said.
     let mut spec = reference_spec(DATA, vec![term(&[2])]);
     spec.response = num("y", DATA.iter().map(|r| 2.0 * r.2 + 1.0).collect());
-    assert_eq!(fit(&spec).err(), Some(ModelError::PerfectFit));
+    let f = fit(&spec).expect("an exact fit is fitted");
+    assert!(f.is_exact() && f.warnings.contains(&ModelWarning::ExactFit));
+    assert_eq!(f.summary().sigma, 0.0);
+    let c = f.coefficients(0.95);
+    close(c[0].estimate, 1.0, 1e-13, "intercept");
+    close(c[1].estimate, 2.0, 1e-13, "slope");
+    assert!(c[1].se == 0.0 && c[1].t.is_nan() && c[1].p.is_nan());
+    assert!(f.summary().f.is_none());
     let spec = reference_spec(&DATA[..3], vec![term(&[0]), term(&[2])]);
     assert!(fit(&spec).is_err());
     let spec = reference_spec(&DATA[..4], vec![term(&[2])]);
@@ -728,10 +753,18 @@ fn collinear_covariate_is_aliased() {
         close(a.se, b.se, 1e-10, &a.name);
     }
     assert!(f.means("a", &[], 0.95).is_ok());
-    assert!(matches!(
-        f.anova(SsType::III),
-        Err(ModelError::TypeIIIWithAliased { .. })
-    ));
+    // The refusal names the cause: a combination of other columns, and the term to remove
+    // (not an interaction, which the model does not have).
+    let e = f
+        .anova(SsType::III)
+        .err()
+        .map(|e| e.to_string())
+        .unwrap_or_default();
+    assert!(
+        e.contains("combinations of the model's other columns") && e.contains("remove `x2`"),
+        "{e}"
+    );
+    assert!(!e.contains("interaction"), "{e}");
 }
 
 #[test]
@@ -1624,11 +1657,12 @@ fn non_finite_response_offset_is_refused() {
     );
 }
 
-/// The effect-coded engine derived from the treatment one (no pass over the rows) gives the
-/// same Type III sums of squares as one built from the rows, for designs with two factors,
-/// their interaction, covariates, separate slopes and a transform.
+/// Type III sums of squares from the shared monomials (the sum-to-zero coding expanded in
+/// the same monomials as the treatment coding, no second pass over the rows) equal those of
+/// a one-shot QR of the raw sum-to-zero columns, for designs with two factors, their
+/// interaction, covariates, separate slopes and a transform.
 #[test]
-fn derived_effect_engine_matches_the_rows() {
+fn type3_from_the_shared_monomials_matches_raw_columns() {
     let mut x2 = Vec::new();
     for (i, r) in DATA.iter().enumerate() {
         x2.push(r.2 * 0.5 + (i % 5) as f64);
@@ -1667,34 +1701,34 @@ fn derived_effect_engine_matches_the_rows() {
     ];
     for (k, spec) in specs.iter().enumerate() {
         let f = fit(spec).expect("fits");
+        let a3 = f.anova(SsType::III).expect("type III");
         let (ecols, eterms) = design::columns(&f.spec, &f.lay, design::Scheme::Effect);
-        let derived = super::recode::effect_from_treatment(
-            &f.spec,
-            &f.lay,
-            &f.treat,
-            ecols.clone(),
-            eterms.clone(),
-            f.lay.used.len(),
-        )
-        .unwrap_or_else(|| panic!("design {k}: the effect engine is derived"));
         let y = match &f.spec.response {
             Var::Numeric { values, .. } => values.to_vec(),
             Var::Factor { .. } => Vec::new(),
         };
-        let direct =
-            super::fit::build_engine(&f.spec, &f.lay, &y, ecols, eterms).expect("direct engine");
-        let all: Vec<usize> = (0..direct.cols.len()).collect();
-        for t in 0..direct.term_cols.len() {
-            let mine = direct.term_cols[t].clone();
+        let rss_of = |cols: &[usize]| {
+            let rows: Vec<usize> = f.lay.used.iter().collect();
+            let mut m = qr::Mat::zeros(rows.len(), cols.len() + 1);
+            for (r, &i) in rows.iter().enumerate() {
+                for (c, &j) in cols.iter().enumerate() {
+                    m.set(r, c, design::eval_row(&f.spec, &ecols[j], i));
+                }
+                m.set(r, cols.len(), y[i]);
+            }
+            let t = qr::triangularize(&mut m, Some(qr::ALIAS_TOL), true);
+            let d = t.r.get(t.kept.len() - 1, t.kept.len() - 1);
+            d * d
+        };
+        let all: Vec<usize> = (0..ecols.len()).collect();
+        let full = rss_of(&all);
+        for (t, mine) in eterms.iter().enumerate() {
             let cols: Vec<usize> = all.iter().copied().filter(|c| !mine.contains(c)).collect();
-            let (ra, sa) = derived.sub_rss(&cols);
-            let (rb, sb) = direct.sub_rss(&cols);
-            assert_eq!(ra, rb, "design {k}, term {t}: rank");
             close(
-                sa,
-                sb,
-                1e-12,
-                &format!("design {k}, term {t}: RSS without it"),
+                a3.rows[t].ss,
+                rss_of(&cols) - full,
+                1e-9,
+                &format!("design {k}, term {t}: Type III SS"),
             );
         }
     }
