@@ -313,3 +313,11 @@ fn check_all(file: &str, title: &str) {
 fn covariates_far_from_zero() {
     check_all("offsets.json", "Designs at covariate offsets 0 to 1e10");
 }
+
+/// A seeded random sample of designs (1-3 factors, 1-3 covariates at offsets from 0 to
+/// 1e10, powers, products, factor-by-covariate and factor-by-factor terms): every quantity
+/// to 10 digits or better, the worst per quantity printed.
+#[test]
+fn random_designs() {
+    check_all("random.json", "Random designs");
+}
