@@ -847,7 +847,8 @@ impl Fit {
             y_max = y_max.max(ym);
         }
         let g: Vec<f64> = gdd.iter().map(|v| v.0 + v.1).collect();
-        if !(terms_max <= REFINE_MAX_RATIO * y_max) || !g.iter().all(|v| v.is_finite()) {
+        let resolved = terms_max <= REFINE_MAX_RATIO * y_max;
+        if !resolved || !g.iter().all(|v| v.is_finite()) {
             return None;
         }
         let s: Vec<f64> = self

@@ -198,20 +198,20 @@ pub(crate) fn graded(r_aug: &Mat, a: &Mat, cols: &[usize]) -> Graded {
     let k = rcols.len();
     let mut r = Mat::zeros(k, k);
     let mut t = Mat::zeros(k, k);
-    for c in 0..k {
-        for i in 0..=c {
-            r.set(i, c, rcols[c][i]);
-            t.set(i, c, tcols[c].get(i).copied().unwrap_or(0.0));
+    for (c, (rc, tc)) in rcols.iter().zip(&tcols).enumerate() {
+        for (i, ri) in rc.iter().enumerate().take(c + 1) {
+            r.set(i, c, *ri);
+            t.set(i, c, tc.get(i).copied().unwrap_or(0.0));
         }
     }
     let mut qy: Vec<f64> = y.iter().take(k).copied().collect();
-    for i in 0..k {
+    for (i, qi) in qy.iter_mut().enumerate() {
         if r.get(i, i) < 0.0 {
             for c in i..k {
                 let x = r.get(i, c);
                 r.set(i, c, -x);
             }
-            qy[i] = -qy[i];
+            *qi = -*qi;
         }
     }
     let rss = y.iter().skip(k).map(|v| v * v).sum();

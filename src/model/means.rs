@@ -13,6 +13,9 @@ use crate::stats::tukey::{ptukey_upper, qtukey};
 /// count as summing to zero; typed decimals like 1/3 do not add up exactly.
 const WEIGHT_SUM_TOL: f64 = 1e-9;
 
+/// A level's label, code and row (see [`Fit::row_at`]).
+type LevelRow = (String, u32, Vec<f64>);
+
 /// Empty cells named at most in the reason a mean or difference is not estimable.
 const MAX_CELLS_SHOWN: usize = 4;
 
@@ -200,7 +203,7 @@ impl Fit {
         &self,
         factor: &str,
         at: &[(String, f64)],
-    ) -> Result<(usize, Vec<(String, u32, Vec<f64>)>), ModelError> {
+    ) -> Result<(usize, Vec<LevelRow>), ModelError> {
         let v = self.model_factor(factor)?;
         let numeric = self.covariate_values(at)?;
         let levels = match self.spec.vars.get(v) {

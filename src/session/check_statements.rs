@@ -631,13 +631,12 @@ impl Influence {
                 .collect();
             let more = count.saturating_sub(lines.len());
             t.notes.push(format!(
-                "{} {}{} {} leverage 1: {} alone {} a coefficient (for instance as the only row of a level), so {} residual is 0 by construction and {} Cook's distance and studentized residual are undefined (—).",
+                "{} {}{} {} leverage 1: {} alone determines a coefficient (for instance as the only row of a level), so {} residual is 0 by construction and {} Cook's distance and studentized residual are undefined (—).",
                 if *count == 1 { "Row" } else { "Rows" },
                 lines.join(", "),
                 if more > 0 { format!(" and {more} more") } else { String::new() },
                 if *count == 1 { "has" } else { "have" },
                 if *count == 1 { "it" } else { "each" },
-                if *count == 1 { "determines" } else { "determines" },
                 if *count == 1 { "its" } else { "their" },
                 if *count == 1 { "its" } else { "their" },
             ));
