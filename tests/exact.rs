@@ -77,6 +77,9 @@ fn run(case: &Value) -> BTreeMap<String, Value> {
         if let Some(s) = o["statement"].as_str() {
             out.entry(s.to_string()).or_insert_with(|| o.clone());
         }
+        if let Some(k) = o["kind"].as_str() {
+            out.entry(format!("kind:{k}")).or_insert_with(|| o.clone());
+        }
     }
     out
 }
@@ -320,4 +323,39 @@ fn covariates_far_from_zero() {
 #[test]
 fn random_designs() {
     check_all("random.json", "Random designs");
+}
+
+/// A row alone in its level has leverage 1: the influence table shows its Cook's distance and
+/// studentized residual as undefined (`null`) and a note names the row. (Invented data.)
+#[test]
+fn leverage_one_is_undefined_and_named() {
+    let mut csv = String::from("g,x,y\n");
+    let ys = [
+        3.1, 4.0, 5.2, 5.9, 7.1, 3.9, 5.1, 6.0, 7.2, 7.8, 4.4, 5.6, 6.3, 7.7, 8.5,
+    ];
+    for (i, y) in ys.iter().enumerate() {
+        let g = ["A", "B", "C"][i % 3];
+        csv.push_str(&format!("{g},{},{y}\n", 1 + i / 3));
+    }
+    csv.push_str("D,3,9.5\n");
+    let case = serde_json::json!({
+        "name": "leverage one",
+        "csv": csv,
+        "statements": ["load \"data.csv\"", "factor g", "model m: y on g + x", "check m"],
+    });
+    let tables = run(&case);
+    let influence = tables.get("kind:influence").cloned().unwrap_or(Value::Null);
+    let row = rows(&influence)
+        .into_iter()
+        .find(|r| r["row"].as_f64() == Some(17.0))
+        .unwrap_or_else(|| panic!("row 17 is listed: {influence}"));
+    assert_eq!(row["leverage"].as_f64(), Some(1.0));
+    assert!(row["cooks_distance"].is_null() && row["studentized_residual"].is_null());
+    let named = influence["notes"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(Value::as_str)
+        .any(|n| n.starts_with("Row 17 has leverage 1"));
+    assert!(named, "{influence}");
 }

@@ -323,6 +323,10 @@ fn dangling_plus() {
 
 #[test]
 fn bad_power() {
+    assert!(matches!(
+        parse("model m: y on x + x^2 + x^10"),
+        StatementKind::Model(_)
+    ));
     let e = error("model m: y on x^11");
     assert!(e.message.contains("from 2 to 10"), "{}", e.message);
     let e = error("model m: y on x^1");

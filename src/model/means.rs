@@ -180,7 +180,7 @@ impl Fit {
         match named.len() {
             0 => UNDETERMINED.to_string(),
             1 => format!(
-                "the cell {} has no rows, and the model lets the effect of `{}` differ between cells",
+                "the cell {} has no rows, and the model lets the effect of {} differ between cells",
                 named[0],
                 design::var_name(&self.spec, f)
             ),
@@ -188,7 +188,7 @@ impl Fit {
                 let shown: Vec<String> = named.iter().take(MAX_CELLS_SHOWN).cloned().collect();
                 let more = k.saturating_sub(MAX_CELLS_SHOWN);
                 format!(
-                    "the cells {}{} have no rows, and the model lets the effect of `{}` differ between cells",
+                    "the cells {}{} have no rows, and the model lets the effect of {} differ between cells",
                     shown.join(", "),
                     if more > 0 { format!(" (and {more} more)") } else { String::new() },
                     design::var_name(&self.spec, f)
@@ -356,6 +356,16 @@ impl Fit {
             }
         }
         let (mut out, raw) = (kept, kept_raw);
+        // The studentized range is over the levels the estimable differences compare.
+        let mut compared: Vec<&str> = Vec::new();
+        for q in &out {
+            for l in [q.first.as_str(), q.second.as_str()] {
+                if !compared.contains(&l) {
+                    compared.push(l);
+                }
+            }
+        }
+        let k = compared.len().max(2);
         match adjust {
             Adjust::None => {
                 let c = t_quantile(1.0 - alpha / 2.0, df);

@@ -590,6 +590,60 @@ fn compare_nested_models() {
         compare(&only_a, &only_a),
         Err(ModelError::SameColumnSpace)
     ));
+    // Either order: the bigger model named first gives the same test, marked swapped.
+    let back = compare(&big, &small).expect("compare, bigger first");
+    assert!(back.swapped && !c.swapped);
+    assert_eq!(
+        (back.df, back.small_df_residual),
+        (c.df, c.small_df_residual)
+    );
+    close(back.f, c.f, 1e-15, "F in either order");
+    let c3 = compare(&cells, &only_a).expect("numerically nested, bigger first");
+    assert!(c3.swapped && c3.df == 3);
+}
+
+/// A row that is the only one of its level has leverage 1: its Cook's distance and
+/// studentized residual are 0/0, so undefined, not numbers.
+#[test]
+fn leverage_one_is_undefined() {
+    let mut rows: Vec<_> = DATA.to_vec();
+    rows.push(("a4", "b1", 3.0, 17.5));
+    let a: Vec<&str> = rows.iter().map(|r| r.0).collect();
+    let spec = ModelSpec {
+        response: num("y", rows.iter().map(|r| r.3).collect()),
+        vars: vec![
+            factor("a", &a, &["a1", "a2", "a3", "a4"]),
+            num("x", rows.iter().map(|r| r.2).collect()),
+        ],
+        terms: vec![term(&[0]), term(&[1])],
+        intercept: true,
+        row_numbers: (2..rows.len() + 2).collect(),
+        response_offset: 0.0,
+    };
+    let f = fit(&spec).expect("fit");
+    let n = f.diagnostics().len();
+    let h = f.leverages(0..n).to_vec();
+    let r = f.residuals(0..n).to_vec();
+    let last = n - 1;
+    assert_eq!(h[last], 1.0, "the single row of a4 has leverage 1");
+    let d = f.diagnostics();
+    assert!(d.cook(r[last], h[last]).is_nan());
+    assert!(d.student(r[last], h[last]).is_nan());
+    assert!(h[..last].iter().all(|&v| v < 1.0));
+    assert!(d.cook(r[0], h[0]).is_finite());
+}
+
+/// A term that adds nothing (0 df) has an undefined mean square, F, p and effect size.
+#[test]
+fn zero_df_row_is_undefined() {
+    let mut spec = reference_spec(DATA, vec![term(&[0]), term(&[2]), term(&[3])]);
+    spec.vars
+        .push(num("x2", DATA.iter().map(|r| 2.0 * r.2 + 1.0).collect()));
+    let f = fit(&spec).expect("fit");
+    let a = f.anova(SsType::I).expect("type I");
+    let row = &a.rows[2];
+    assert_eq!((row.df, row.ss), (0, 0.0));
+    assert!(row.ms.is_nan() && row.f.is_none() && row.p.is_none() && row.partial_eta_sq.is_nan());
 }
 
 #[test]
