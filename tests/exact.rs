@@ -117,12 +117,12 @@ impl Worst {
     }
 }
 
-fn rows(t: &Value) -> Vec<Value> {
-    t["rows"].as_array().cloned().unwrap_or_default()
+fn rows(table: &Value) -> Vec<Value> {
+    table["rows"].as_array().cloned().unwrap_or_default()
 }
 
-fn num(v: &Value) -> Option<f64> {
-    v.as_f64()
+fn num(cell: &Value) -> Option<f64> {
+    cell.as_f64()
 }
 
 /// The significant digits the coefficients table says each named coefficient keeps.

@@ -78,31 +78,23 @@ impl Fit {
                 }
             }
             SsType::III => {
-                let p = e.cols.len();
-                if self.kept.len() < p {
-                    let mut aliased: Vec<usize> =
-                        (0..p).filter(|c| !self.kept.contains(c)).collect();
+                let refuse = |cols: &[super::design::Column], mut aliased: Vec<usize>| {
                     aliased.sort_unstable();
-                    return Err(ModelError::TypeIIIWithAliased {
+                    ModelError::TypeIIIWithAliased {
                         aliased: aliased
                             .iter()
-                            .filter_map(|&c| e.cols.get(c).map(|x| x.name.clone()))
+                            .filter_map(|&c| cols.get(c).map(|x| x.name.clone()))
                             .collect(),
-                        cause: alias_cause(&self.spec, &self.lay, &e.cols, &aliased),
-                    });
+                        cause: alias_cause(&self.spec, &self.lay, cols, &aliased),
+                    }
+                };
+                if !self.g.aliased.is_empty() {
+                    return Err(refuse(&e.cols, self.g.aliased.clone()));
                 }
                 let all: Vec<usize> = (0..e.ecols.len()).collect();
                 let full = e.graded(&e.ea, &all);
                 if !full.aliased.is_empty() {
-                    let mut aliased = full.aliased.clone();
-                    aliased.sort_unstable();
-                    return Err(ModelError::TypeIIIWithAliased {
-                        aliased: aliased
-                            .iter()
-                            .filter_map(|&c| e.ecols.get(c).map(|x| x.name.clone()))
-                            .collect(),
-                        cause: alias_cause(&self.spec, &self.lay, &e.ecols, &aliased),
-                    });
+                    return Err(refuse(&e.ecols, full.aliased.clone()));
                 }
                 for t in 0..nterms {
                     let mine = e.eterm_cols.get(t).cloned().unwrap_or_default();
