@@ -323,8 +323,14 @@ fn dangling_plus() {
 
 #[test]
 fn bad_power() {
-    let e = error("model m: y on x^4");
-    assert!(e.message.contains("2 or 3"), "{}", e.message);
+    assert!(matches!(
+        parse("model m: y on x + x^2 + x^10"),
+        StatementKind::Model(_)
+    ));
+    let e = error("model m: y on x^11");
+    assert!(e.message.contains("from 2 to 10"), "{}", e.message);
+    let e = error("model m: y on x^1");
+    assert!(e.message.contains("from 2 to 10"), "{}", e.message);
 }
 
 #[test]

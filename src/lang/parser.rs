@@ -6,6 +6,11 @@ use pest_derive::Parser;
 
 use super::ast::*;
 
+/// Powers a term may take: x^1 is x itself, and a polynomial beyond degree 10 is not a
+/// model anyone fits on purpose (its coefficients are determined to a few digits at best).
+const MIN_POWER: u32 = 2;
+const MAX_POWER: u32 = 10;
+
 #[derive(Parser)]
 #[grammar = "../grammar/covey.pest"]
 struct CoveyParser;
@@ -739,11 +744,11 @@ impl Builder<'_> {
                     .as_str()
                     .parse()
                     .ok()
-                    .filter(|p| (2..=3).contains(p))
+                    .filter(|p| (MIN_POWER..=MAX_POWER).contains(p))
                     .ok_or_else(|| {
                         self.error(
                             &power_pair,
-                            "a power must be 2 or 3 (write `x^2` or `x^3`)".into(),
+                            format!("a power must be a whole number from {MIN_POWER} to {MAX_POWER} (write `x^2`, `x^3`, ..., `x^10`)"),
                         )
                     })?;
                 Ok(PartDecl {

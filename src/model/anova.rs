@@ -2,9 +2,10 @@
 //! nested models. Every RSS is read from a re-triangularisation of selected columns of the
 //! fit's R_aug (see `Engine::sub_rss`).
 
+use super::cause::alias_cause;
 use super::design::{self, term_keys};
 use super::fit::{f_p, Fit};
-use super::qr::{self, RAccumulator, ALIAS_TOL, CHUNK_ROWS};
+use super::qr::{Mat, RAccumulator, CHUNK_ROWS};
 use super::{Anova, AnovaRow, Comparison, ModelError, Note, SsType, Var};
 
 impl Fit {
@@ -13,9 +14,10 @@ impl Fit {
     /// Type I: sequential in written order. Type II: each term after every term that does not
     /// contain it. Type III: each term after all others, factors in sum-to-zero coding;
     /// refused when the design has aliased columns (the hypotheses are then not those of the
-    /// full-rank model).
+    /// full-rank model). Each sum of squares is the response's squared length along the
+    /// columns the term adds (see `graded.rs`), not a difference of two residual sums.
     pub fn anova(&self, ty: SsType) -> Result<Anova, ModelError> {
-        let e = &self.treat;
+        let e = &self.eng;
         let nterms = self.spec.terms.len();
         let base: Vec<usize> = if self.spec.intercept {
             vec![0]
@@ -24,13 +26,15 @@ impl Fit {
         };
         let mut rows = Vec::new();
         let mut notes = Vec::new();
+        let ms_res = self.rss / self.df_res as f64;
         let push = |rows: &mut Vec<AnovaRow>, t: usize, df: usize, ss: f64| {
+            // 0 df: the term adds nothing; its mean square, F, p and effect size are 0/0.
             let ss = if df == 0 { 0.0 } else { ss.max(0.0) };
-            let ms = if df == 0 { 0.0 } else { ss / df as f64 };
-            let (f, p) = if df == 0 {
+            let ms = if df == 0 { f64::NAN } else { ss / df as f64 };
+            let (f, p) = if df == 0 || self.exact {
                 (None, None)
             } else {
-                let f = ms / (self.rss / self.df_res as f64);
+                let f = ms / ms_res;
                 (Some(f), Some(f_p(f, df, self.df_res)))
             };
             rows.push(AnovaRow {
@@ -41,19 +45,21 @@ impl Fit {
                 ms,
                 f,
                 p,
-                partial_eta_sq: ss / (ss + self.rss),
+                partial_eta_sq: if df == 0 {
+                    f64::NAN
+                } else {
+                    ss / (ss + self.rss)
+                },
             });
         };
+        let ys2 = e.y_scale * e.y_scale;
         match ty {
             SsType::I => {
-                let mut cols = base.clone();
-                let (mut prev_rank, mut prev_rss) = e.sub_rss(&cols);
+                // The fit itself processed the columns in written order.
                 for t in 0..nterms {
-                    cols.extend(e.term_cols.get(t).into_iter().flatten().copied());
-                    let (rank, rss) = e.sub_rss(&cols);
-                    push(&mut rows, t, rank.saturating_sub(prev_rank), prev_rss - rss);
-                    prev_rank = rank;
-                    prev_rss = rss;
+                    let mine = e.term_cols.get(t).cloned().unwrap_or_default();
+                    let (df, ss) = self.g.ss_of(&mine);
+                    push(&mut rows, t, df, ss * ys2);
                 }
             }
             SsType::II => {
@@ -66,35 +72,36 @@ impl Fit {
                     for u in (0..nterms).filter(|&u| u != t && !contains(u, t)) {
                         cols.extend(e.term_cols.get(u).into_iter().flatten().copied());
                     }
-                    let (r0, s0) = e.sub_rss(&cols);
-                    cols.extend(e.term_cols.get(t).into_iter().flatten().copied());
-                    let (r1, s1) = e.sub_rss(&cols);
-                    push(&mut rows, t, r1.saturating_sub(r0), s0 - s1);
+                    let mine = e.term_cols.get(t).cloned().unwrap_or_default();
+                    let (df, ss) = e.extra_ss(&e.a, &cols, &mine);
+                    push(&mut rows, t, df, ss);
                 }
             }
             SsType::III => {
-                let p = e.cols.len();
-                if self.kept.len() < p {
-                    let aliased = (0..p)
-                        .filter(|c| !self.kept.contains(c))
-                        .filter_map(|c| e.cols.get(c).map(|x| x.name.clone()))
-                        .collect();
-                    return Err(ModelError::TypeIIIWithAliased { aliased });
+                let refuse = |cols: &[super::design::Column], mut aliased: Vec<usize>| {
+                    aliased.sort_unstable();
+                    ModelError::TypeIIIWithAliased {
+                        aliased: aliased
+                            .iter()
+                            .filter_map(|&c| cols.get(c).map(|x| x.name.clone()))
+                            .collect(),
+                        cause: alias_cause(&self.spec, &self.lay, cols, &aliased),
+                    }
+                };
+                if !self.g.aliased.is_empty() {
+                    return Err(refuse(&e.cols, self.g.aliased.clone()));
                 }
-                let ef = self.effect_engine()?;
-                let all: Vec<usize> = (0..ef.cols.len()).collect();
-                let (rank_full, rss_full) = ef.sub_rss(&all);
-                if rank_full < ef.cols.len() {
-                    return Err(ModelError::TypeIIIWithAliased {
-                        aliased: Vec::new(),
-                    });
+                let all: Vec<usize> = (0..e.ecols.len()).collect();
+                let full = e.graded(&e.ea, &all);
+                if !full.aliased.is_empty() {
+                    return Err(refuse(&e.ecols, full.aliased.clone()));
                 }
                 for t in 0..nterms {
-                    let mine = ef.term_cols.get(t).cloned().unwrap_or_default();
-                    let cols: Vec<usize> =
+                    let mine = e.eterm_cols.get(t).cloned().unwrap_or_default();
+                    let others: Vec<usize> =
                         all.iter().copied().filter(|c| !mine.contains(c)).collect();
-                    let (r0, s0) = ef.sub_rss(&cols);
-                    push(&mut rows, t, rank_full.saturating_sub(r0), s0 - rss_full);
+                    let (df, ss) = e.extra_ss(&e.ea, &others, &mine);
+                    push(&mut rows, t, df, ss);
                 }
                 notes = self.type3_notes();
             }
@@ -153,37 +160,50 @@ impl Fit {
     }
 }
 
-/// F test of `small` against `big`, a model that contains it.
+/// F test of the smaller of two models against the bigger one, which contains it; the
+/// two may be given in either order ([`Comparison::swapped`] says which was first).
 ///
 /// Both must be fitted on the same rows (same data-file lines) with the same response.
-/// Nesting is accepted when small's terms are a subset of big's (by name; an intercept in
-/// small needs one in big); otherwise it is checked numerically: the columns of small are
-/// appended to big's in a joint triangularisation and must all come out aliased.
-pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
-    if small.lay.used.len() != big.lay.used.len() || !fitted_lines(small).eq(fitted_lines(big)) {
+/// Nesting is accepted when one model's terms are a subset of the other's (by name; an
+/// intercept in the smaller needs one in the bigger); otherwise it is checked numerically:
+/// the smaller model's columns, after the bigger one's, must all come out aliased.
+pub fn compare(first: &Fit, second: &Fit) -> Result<Comparison, ModelError> {
+    if first.lay.used.len() != second.lay.used.len()
+        || !fitted_lines(first).eq(fitted_lines(second))
+    {
         return Err(ModelError::DifferentRows);
     }
-    if !same_response(small, big) {
+    if !same_response(first, second) {
         return Err(ModelError::DifferentResponse);
     }
-    let by_names = (!small.spec.intercept || big.spec.intercept)
-        && small
-            .lay
-            .term_names
-            .iter()
-            .all(|t| big.lay.term_names.contains(t));
-    if !by_names && !nested_numerically(small, big) {
+    let by_names = |small: &Fit, big: &Fit| {
+        (!small.spec.intercept || big.spec.intercept)
+            && small
+                .lay
+                .term_names
+                .iter()
+                .all(|t| big.lay.term_names.contains(t))
+    };
+    // The model with more residual df is the candidate smaller one.
+    let (small, big, swapped) = if first.df_res >= second.df_res {
+        (first, second, false)
+    } else {
+        (second, first, true)
+    };
+    if !by_names(small, big) && !nested_numerically(small, big) {
         return Err(ModelError::NotNested);
     }
-    let df = small
-        .df_res
-        .checked_sub(big.df_res)
-        .ok_or(ModelError::NotNested)?;
+    let df = small.df_res - big.df_res;
     if df == 0 {
         return Err(ModelError::SameColumnSpace);
     }
     let ss = (small.rss - big.rss).max(0.0);
     let f = (ss / df as f64) / (big.rss / big.df_res as f64);
+    let (f, p) = if big.exact {
+        (f64::NAN, f64::NAN)
+    } else {
+        (f, f_p(f, df, big.df_res))
+    };
     Ok(Comparison {
         rows: [(small.df_res, small.rss), (big.df_res, big.rss)],
         small_df_residual: small.df_res,
@@ -193,7 +213,8 @@ pub fn compare(small: &Fit, big: &Fit) -> Result<Comparison, ModelError> {
         df,
         ss,
         f,
-        p: f_p(f, df, big.df_res),
+        p,
+        swapped,
     })
 }
 
@@ -227,45 +248,52 @@ fn same_response(a: &Fit, b: &Fit) -> bool {
     }
 }
 
-/// Joint triangularisation of [Z_big | Z_small] over the common rows (both in their own
-/// centred, scaled coordinates, plus a constant column when big has an intercept, since the
-/// centring of small's columns is a combination with it); small is nested when the rank
-/// does not grow.
+/// Whether `small`'s columns lie in the span of `big`'s on the fitted rows: the triangular
+/// factor of both models' monomials side by side over the common rows, then `big`'s columns
+/// followed by `small`'s through it (see `graded.rs`); small is nested when every one of
+/// its columns comes out aliased.
 fn nested_numerically(small: &Fit, big: &Fit) -> bool {
-    let eb = &big.treat;
-    let es = &small.treat;
-    let kb = big.kept.len();
-    let ks = small.kept.len();
-    let width = kb + ks;
+    let (eb, es) = (&big.eng, &small.eng);
+    let (qb, qs) = (eb.basis.monos.len(), es.basis.monos.len());
+    let width = qb + qs + 1;
     let mut acc = RAccumulator::new(width, CHUNK_ROWS);
-    let mut row = vec![0.0; width];
-    for (ib, is) in big.lay.used.iter().zip(small.lay.used.iter()) {
-        for (k, &c) in big.kept.iter().enumerate() {
-            row[k] = eb
-                .cols
-                .get(c)
-                .map(|col| (design::eval_row(&big.spec, col, ib) - eb.centre[c]) / eb.scale[c])
-                .unwrap_or(0.0);
+    let n = big.lay.used.len();
+    for at in big.lay.used.blocks(CHUNK_ROWS) {
+        let rows_b = big.lay.used.slice(at.clone());
+        let rows_s = small.lay.used.slice(at.clone());
+        let m = rows_b.len();
+        let mut a = Mat::zeros(m, qb);
+        eb.basis.fill(&big.spec, &rows_b, &mut a, 0);
+        let mut b = Mat::zeros(m, qs);
+        es.basis.fill(&small.spec, &rows_s, &mut b, 0);
+        let mut row = vec![0.0; width];
+        for i in 0..m {
+            for (j, x) in row.iter_mut().enumerate().take(qb) {
+                *x = a.get(i, j);
+            }
+            for j in 0..qs {
+                row[qb + j] = b.get(i, j);
+            }
+            acc.push(&row);
         }
-        for (k, &c) in small.kept.iter().enumerate() {
-            let col = es.cols.get(c);
-            let v = col
-                .map(|col| design::eval_row(&small.spec, col, is))
-                .unwrap_or(0.0);
-            // Small's intercept stays the constant 1; its other columns are used raw when
-            // big has no intercept (big cannot absorb small's centring constants then).
-            let is_icpt = col.map(|c| c.parts.is_empty()).unwrap_or(false);
-            row[kb + k] = if is_icpt {
-                v
-            } else if big.spec.intercept {
-                (v - es.centre[c]) / es.scale[c]
-            } else {
-                v / es.scale[c]
-            };
-        }
-        acc.push(&row);
     }
-    let mut r = acc.finish();
-    let t = qr::triangularize(&mut r, Some(ALIAS_TOL), false);
-    t.kept.len() <= kb
+    if n == 0 {
+        return false;
+    }
+    let r = acc.finish();
+    let (pb, ps) = (eb.a.cols, es.a.cols);
+    let mut joint = Mat::zeros(qb + qs, pb + ps);
+    for j in 0..pb {
+        for i in 0..qb {
+            joint.set(i, j, eb.a.get(i, j));
+        }
+    }
+    for j in 0..ps {
+        for i in 0..qs {
+            joint.set(qb + i, pb + j, es.a.get(i, j));
+        }
+    }
+    let cols: Vec<usize> = (0..pb + ps).collect();
+    let g = super::graded::graded(&r, &joint, &cols);
+    (pb..pb + ps).all(|c| g.aliased.contains(&c))
 }

@@ -11,7 +11,7 @@
 use std::borrow::Cow;
 use std::ops::Range;
 
-use super::{Code, ModelError, ModelSpec, ModelWarning, Transform, Var};
+use super::{ModelError, ModelSpec, ModelWarning, Transform, Var};
 
 /// Which contrasts replace a contrast-coded factor.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -757,114 +757,6 @@ pub(crate) fn eval_row(spec: &ModelSpec, col: &Column, i: usize) -> f64 {
     v
 }
 
-/// Values of a column at the data rows `rows`, one per row into `out` (which has the same
-/// length): the same numbers as [`eval_row`] row by row, computed part by part over the whole
-/// block so that each inner loop is a plain pass over the rows.
-pub(crate) fn eval_block(spec: &ModelSpec, col: &Column, rows: &[usize], out: &mut [f64]) {
-    // Consecutive rows (the usual case: nothing filtered out, no missing values) are read
-    // as slices, without an index per row.
-    if let (Some(&first), Some(&last)) = (rows.first(), rows.last()) {
-        if last - first + 1 == rows.len() {
-            eval_range(spec, col, first..last + 1, out);
-            return;
-        }
-    }
-    out.fill(1.0);
-    for p in &col.parts {
-        match p {
-            ColPart::Numeric { var, transform } => match spec.vars.get(*var) {
-                Some(Var::Numeric { values, .. }) => {
-                    for (o, &i) in out.iter_mut().zip(rows) {
-                        *o *= apply(*transform, values.get(i).copied().unwrap_or(f64::NAN));
-                    }
-                }
-                _ => out.fill(f64::NAN),
-            },
-            ColPart::Indicator { var, code } => {
-                let codes = factor_codes(spec, *var);
-                for (o, &i) in out.iter_mut().zip(rows) {
-                    let c = codes.get(i).and_then(|c| c.get());
-                    *o *= f64::from(u8::from(c == Some(*code)));
-                }
-            }
-            ColPart::Effect { var, code, last } => {
-                let codes = factor_codes(spec, *var);
-                for (o, &i) in out.iter_mut().zip(rows) {
-                    let c = codes.get(i).and_then(|c| c.get());
-                    *o *= if c == Some(*code) {
-                        1.0
-                    } else if c == Some(*last) {
-                        -1.0
-                    } else {
-                        0.0
-                    };
-                }
-            }
-        }
-    }
-}
-
-/// [`eval_block`] for the consecutive rows `range` (the same numbers).
-fn eval_range(spec: &ModelSpec, col: &Column, range: std::ops::Range<usize>, out: &mut [f64]) {
-    out.fill(1.0);
-    for p in &col.parts {
-        match p {
-            ColPart::Numeric { var, transform } => match spec.vars.get(*var) {
-                Some(Var::Numeric { values, .. }) if range.end <= values.len() => {
-                    let t = *transform;
-                    let xs = &values[range.clone()];
-                    if t == Transform::Identity {
-                        for (o, &x) in out.iter_mut().zip(xs) {
-                            *o *= x;
-                        }
-                    } else {
-                        for (o, &x) in out.iter_mut().zip(xs) {
-                            *o *= apply(t, x);
-                        }
-                    }
-                }
-                _ => out.fill(f64::NAN),
-            },
-            ColPart::Indicator { var, code } => {
-                let codes = factor_codes(spec, *var);
-                let Some(cs) = codes.get(range.clone()) else {
-                    out.iter_mut().for_each(|o| *o *= 0.0);
-                    continue;
-                };
-                let code = Code::level(*code);
-                for (o, &c) in out.iter_mut().zip(cs) {
-                    *o *= f64::from(u8::from(c == code));
-                }
-            }
-            ColPart::Effect { var, code, last } => {
-                let codes = factor_codes(spec, *var);
-                let Some(cs) = codes.get(range.clone()) else {
-                    out.iter_mut().for_each(|o| *o *= 0.0);
-                    continue;
-                };
-                let (code, last) = (Code::level(*code), Code::level(*last));
-                for (o, &c) in out.iter_mut().zip(cs) {
-                    *o *= if c == code {
-                        1.0
-                    } else if c == last {
-                        -1.0
-                    } else {
-                        0.0
-                    };
-                }
-            }
-        }
-    }
-}
-
-/// The codes of factor `var` (empty for a numeric variable).
-fn factor_codes(spec: &ModelSpec, var: usize) -> &[Code] {
-    match spec.vars.get(var) {
-        Some(Var::Factor { codes, .. }) => codes,
-        _ => &[],
-    }
-}
-
 fn factor_code(spec: &ModelSpec, var: usize, i: usize) -> Option<u32> {
     match spec.vars.get(var) {
         Some(Var::Factor { codes, .. }) => codes.get(i).and_then(|c| c.get()),
@@ -883,45 +775,4 @@ pub(crate) struct Point {
     /// When Some(var): differentiate with respect to this numeric variable (identity parts
     /// only; the caller rejects other transforms).
     pub derivative: Option<usize>,
-}
-
-/// Value of a column at a point (linear in each factor's weights).
-pub(crate) fn eval_point(col: &Column, pt: &Point) -> f64 {
-    let mut v = 1.0;
-    let mut has_deriv = false;
-    for p in &col.parts {
-        v *= match p {
-            ColPart::Numeric { var, transform } => {
-                if pt.derivative == Some(*var) {
-                    has_deriv = true;
-                    1.0
-                } else {
-                    let x = pt
-                        .numeric
-                        .iter()
-                        .find(|(w, _)| w == var)
-                        .map(|(_, x)| *x)
-                        .unwrap_or(f64::NAN);
-                    apply(*transform, x)
-                }
-            }
-            ColPart::Indicator { var, code } => weight(pt, *var, *code),
-            ColPart::Effect { var, code, last } => {
-                weight(pt, *var, *code) - weight(pt, *var, *last)
-            }
-        };
-    }
-    if pt.derivative.is_some() && !has_deriv {
-        0.0
-    } else {
-        v
-    }
-}
-
-fn weight(pt: &Point, var: usize, code: u32) -> f64 {
-    pt.factor_weights
-        .iter()
-        .find(|(w, _)| *w == var)
-        .and_then(|(_, ws)| ws.get(code as usize).copied())
-        .unwrap_or(0.0)
 }

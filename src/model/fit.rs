@@ -1,61 +1,97 @@
-//! Fitting: column centres and scales from the first block of rows, then one pass of
-//! blocked Householder triangularisation of the augmented, centred and scaled design
-//! [Z | y'], block factors merged in a fixed order; coefficients, covariances and every
-//! sub-model RSS come from that triangular factor. Row diagnostics are a second pass, made
-//! only when something asks for them.
+//! Fitting: the design columns as the model writes them are expanded in centred monomials
+//! (`basis.rs`), whose triangular factor R of [W | y'] is accumulated in one pass of blocked
+//! Householder triangularisation over fixed blocks of rows, block factors merged in a fixed
+//! order. Every sub-model (the fit itself, the ANOVA tables, the tests) is a reduction of
+//! selected columns through that factor (`graded.rs`); coefficients of the model as written
+//! are recovered from the reduced fit. Row diagnostics are a second pass, made only when
+//! something asks for them.
 
 use std::borrow::Cow;
 use std::ops::Range;
 use std::sync::{Arc, OnceLock};
 
+use super::basis::Basis;
 use super::design::{self, Column, Layout, Scheme, UsedRows};
+use super::graded::{self, Graded};
 use rayon::prelude::*;
 
-use super::qr::{self, Mat, ALIAS_TOL, CHUNK_ROWS};
+use super::qr::{self, Mat, CHUNK_ROWS};
 use super::{Coefficient, Diagnostics, FitSummary, ModelError, ModelSpec, ModelWarning, Var};
 
-/// A fit is a perfect fit when RSS <= PERFECT_FIT_REL * TSS: the residuals are then rounding
-/// noise (their norm is below 1e-12 of the response's spread), so sigma and every test are
-/// meaningless.
+/// A fit is an exact fit when RSS <= PERFECT_FIT_REL * TSS: the residuals are then rounding
+/// noise (their norm is below 1e-12 of the response's spread). Its coefficients are exact,
+/// the residual SD is 0, and tests are undefined (0/0).
 const PERFECT_FIT_REL: f64 = 1e-24;
 
 /// A linear function of the coefficients is declared not estimable when its component
-/// along the null space of the design exceeds this fraction of its norm (rounding in the
-/// null-space vectors is near 1e-12 for well-scaled designs).
+/// along a direction the data do not determine exceeds this fraction of its norm (both are
+/// well scaled in the centred monomials, where rounding leaves about 1e-13).
 const ESTIMABLE_TOL: f64 = 1e-8;
 
-/// The triangular factor of one coding of the design, with the centring and scaling used.
+/// A leverage within this of 1 is 1: rows with leverage exactly 1 (the only row of its level)
+/// come out of the arithmetic as 1 - 1e-16 or so, and a genuine leverage of 1 - 1e-10 would
+/// need some 10^10 rows weighing on one coefficient together with that one row.
+pub(crate) const LEVERAGE_ONE_TOL: f64 = 1e-10;
+
+/// The coefficients of the model as written are recovered from the centred fit; when that
+/// recovery can keep fewer significant digits than this (the covariate lies far from 0
+/// compared with its spread), the coefficients table says so.
+pub const COEFFICIENT_DIGITS_NOTE: f64 = 10.0;
+
+/// Coefficients of the model as written whose recovery from the centred fit keeps fewer
+/// than this many digits (an intercept of 1 under responses of 10^6, as in NIST's Wampler
+/// sets) are refined by one step with residuals in double-double arithmetic. The step costs
+/// a pass over the rows, so it is taken only then; models with well-placed covariates, the
+/// common case, never take it.
+const REFINE_BELOW_DIGITS: f64 = 13.0;
+
+/// The refinement is kept only when the residuals y - X b are computed to better than this
+/// fraction of the response (double-double carries about 32 digits, so it cannot resolve a
+/// residual when the terms x^k b_k exceed the response by 2^40 or more).
+const REFINE_MAX_RATIO: f64 = 1.0995116e12; // 2^40
+
+/// Rows, scalars and the triangular factor of the monomials, with the codings of the model.
 #[derive(Debug, Clone)]
 pub(crate) struct Engine {
+    pub basis: Basis,
+    /// Treatment-coded design columns, and each term's columns.
     pub cols: Vec<Column>,
     pub term_cols: Vec<Vec<usize>>,
-    /// Centre of each design column (0 for the intercept and without an intercept).
-    pub centre: Vec<f64>,
-    /// Scale of each design column.
-    pub scale: Vec<f64>,
+    /// X = W A for the treatment columns (A in units of the scaled monomials).
+    pub a: Mat,
+    /// The sum-to-zero coding of the same model (Type III), same monomials.
+    pub ecols: Vec<Column>,
+    pub eterm_cols: Vec<Vec<usize>>,
+    pub ea: Mat,
     pub y_centre: f64,
     pub y_scale: f64,
     /// The response offset ([`ModelSpec::response_offset`]) added back to estimates on the
     /// response scale; 0 without an intercept (the offset is folded into the values then).
     pub y_offset: f64,
-    /// R of [Z | y'], (p+1) x (p+1).
+    /// R of [W' | y'], (q+1) x (q+1).
     pub r_aug: Mat,
 }
 
 impl Engine {
-    /// (rank, RSS in the response's units) of the sub-model made of the given design
-    /// columns: a re-triangularisation of those columns of R_aug plus its last column.
-    pub fn sub_rss(&self, cols: &[usize]) -> (usize, f64) {
-        let p = self.cols.len();
-        let mut sel: Vec<usize> = cols.iter().copied().filter(|&c| c < p).collect();
-        sel.sort_unstable();
-        sel.dedup();
-        sel.push(p);
-        let mut a = self.r_aug.select_cols(&sel);
-        let t = qr::triangularize(&mut a, Some(ALIAS_TOL), true);
-        let k = t.kept.len();
-        let d = if k > 0 { t.r.get(k - 1, k - 1) } else { 0.0 };
-        (k.saturating_sub(1), d * d * self.y_scale * self.y_scale)
+    /// The least-squares fit of the response on the columns `cols` of the coding `a`.
+    pub fn graded(&self, a: &Mat, cols: &[usize]) -> Graded {
+        graded::graded(&self.r_aug, a, cols)
+    }
+
+    /// (df, sum of squares in the response's units) that the columns `extra` add to the
+    /// columns `base`, in coding `a`.
+    pub fn extra_ss(&self, a: &Mat, base: &[usize], extra: &[usize]) -> (usize, f64) {
+        let mut cols: Vec<usize> = base.to_vec();
+        cols.extend(extra.iter().copied().filter(|c| !base.contains(c)));
+        let g = self.graded(a, &cols);
+        let (df, ss) = g.ss_of(extra);
+        let added: Vec<usize> = extra
+            .iter()
+            .copied()
+            .filter(|c| !base.contains(c))
+            .collect();
+        let df = if added.is_empty() { 0 } else { df };
+        (df, ss * self.y_scale * self.y_scale)
     }
 }
 
@@ -64,10 +100,16 @@ impl Engine {
 pub struct Fit {
     pub(crate) spec: ModelSpec,
     pub(crate) lay: Layout,
-    pub(crate) treat: Engine,
-    /// The effect-coded engine, used only by Type III sums of squares: built on first use,
-    /// since it costs a pass over every row.
-    pub(crate) effect: OnceLock<Result<Engine, ModelError>>,
+    pub(crate) eng: Engine,
+    /// The fit on every treatment-coded column.
+    pub(crate) g: Graded,
+    /// Coefficients of the reduced columns (y' units).
+    pub(crate) beta: Vec<f64>,
+    /// The fitted y' as a combination of the scaled monomials.
+    pub(crate) gamma: Vec<f64>,
+    /// T^-1: coefficients of the kept design columns = y_scale * minv * beta (plus the
+    /// centre on the intercept).
+    pub(crate) minv: Mat,
     /// Row diagnostics, computed on first use (a pass over every row) and shared by the
     /// checks and figures that read them.
     pub(crate) diag: OnceLock<Diagnostics>,
@@ -76,18 +118,17 @@ pub struct Fit {
     pub(crate) held: OnceLock<HeldRows>,
     /// Kept (non-aliased) design columns of the treatment coding.
     pub(crate) kept: Vec<usize>,
-    /// R of the kept columns (rank x rank).
-    pub(crate) r: Mat,
-    /// Coefficients of the kept columns in the centred, scaled coordinates.
-    pub(crate) bz: Vec<f64>,
-    /// Null-space vectors of the design in scaled coordinates (one per aliased column).
-    pub(crate) null: Vec<Vec<f64>>,
     pub(crate) rss: f64,
     pub(crate) tss: f64,
     pub(crate) df_res: usize,
     pub(crate) sigma: f64,
+    /// The model fits the data exactly (residual sum of squares 0 to rounding).
+    pub(crate) exact: bool,
     /// Mean of each numeric variable of the model over the fitted rows: (var, mean).
     pub(crate) cov_means: Vec<(usize, f64)>,
+    /// Coefficients of the model as written after one step of refinement, when their
+    /// recovery asked for it and the step could be trusted (made on first use).
+    pub(crate) refined: OnceLock<Option<Vec<f64>>>,
     /// Warnings about this fit.
     pub warnings: Vec<ModelWarning>,
 }
@@ -126,6 +167,21 @@ fn fold_offset(mut spec: ModelSpec) -> ModelSpec {
     spec
 }
 
+/// The inverse of an upper-triangular matrix with a non-zero diagonal.
+fn invert_upper(t: &Mat) -> Mat {
+    let k = t.cols;
+    let mut m = Mat::zeros(k, k);
+    for c in 0..k {
+        let mut e = vec![0.0; k];
+        e[c] = 1.0;
+        let x = qr::solve_upper(t, &e);
+        for (i, xi) in x.iter().enumerate() {
+            m.set(i, c, *xi);
+        }
+    }
+    m
+}
+
 /// [`fit`] once the offset is settled (0, or kept apart in a model with an intercept).
 fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
     let lay = design::layout(&spec)?;
@@ -145,75 +201,60 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
         Var::Numeric { values, .. } => values,
         Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
     };
-    let treat = build_engine(&spec, &lay, y, tcols, tterms)?;
-
-    // Rank: triangularise with skipping of aliased columns, response last.
-    let mut a = treat.r_aug.clone();
-    let tri = qr::triangularize(&mut a, Some(ALIAS_TOL), true);
-    let kept: Vec<usize> = tri.kept.iter().copied().filter(|&c| c < p).collect();
+    let (ecols, eterms) = design::columns(&spec, &lay, Scheme::Effect);
+    let eng = build_engine(&spec, &lay, y, (tcols, tterms), (ecols, eterms))?;
+    let all: Vec<usize> = (0..p).collect();
+    let g = eng.graded(&eng.a, &all);
+    let kept = g.kept.clone();
     let rank = kept.len();
-    let rr = tri.r.get(rank, rank);
-    let rss = rr * rr * treat.y_scale * treat.y_scale;
-    let mut r = Mat::zeros(rank, rank);
-    let mut qy = vec![0.0; rank];
-    for (c, q) in qy.iter_mut().enumerate() {
-        for i in 0..=c {
-            r.set(i, c, tri.r.get(i, c));
+    let beta = qr::solve_upper(&g.r, &g.qy);
+    let q = eng.basis.monos.len();
+    let mut gamma = vec![0.0; q];
+    for (b, v) in beta.iter().zip(&g.v) {
+        for (gm, vm) in gamma.iter_mut().zip(v) {
+            *gm += b * vm;
         }
-        *q = tri.r.get(c, rank);
     }
-    let bz = qr::solve_upper(&r, &qy);
+    let minv = invert_upper(&g.t);
+    let ys2 = eng.y_scale * eng.y_scale;
+    let mut rss = g.rss * ys2;
 
     let mut warnings = lay.warnings.clone();
-    let aliased: Vec<usize> = (0..p).filter(|c| !kept.contains(c)).collect();
-    let mut null = Vec::new();
-    if !aliased.is_empty() {
+    if !g.aliased.is_empty() {
+        let mut aliased = g.aliased.clone();
+        aliased.sort_unstable();
         warnings.push(ModelWarning::Aliased {
             names: aliased
                 .iter()
-                .filter_map(|&c| treat.cols.get(c).map(|x| x.name.clone()))
+                .filter_map(|&c| eng.cols.get(c).map(|x| x.name.clone()))
                 .collect(),
             terms: aliased
                 .iter()
-                .map(|&c| treat.cols.get(c).and_then(|x| x.term))
+                .map(|&c| eng.cols.get(c).and_then(|x| x.term))
                 .collect(),
+            cause: super::cause::alias_cause(&spec, &lay, &eng.cols, &aliased),
         });
-        for &c in &aliased {
-            // Coefficients of column c on the kept columns: least squares within R_aug.
-            let mut sel = kept.clone();
-            sel.push(c);
-            let mut m = treat.r_aug.select_cols(&sel);
-            let t = qr::triangularize(&mut m, None, false);
-            let w: Vec<f64> = (0..rank).map(|i| t.r.get(i, rank)).collect();
-            let mut rk = Mat::zeros(rank, rank);
-            for j in 0..rank {
-                for i in 0..=j {
-                    rk.set(i, j, t.r.get(i, j));
-                }
-            }
-            let coef = qr::solve_upper(&rk, &w);
-            let mut v = vec![0.0; p];
-            v[c] = 1.0;
-            for (k, &kc) in kept.iter().enumerate() {
-                v[kc] = -coef[k];
-            }
-            null.push(v);
-        }
     }
 
-    let tss = {
-        let base: Vec<usize> = if spec.intercept { vec![0] } else { Vec::new() };
-        treat.sub_rss(&base).1
-    };
-    if treat_y_constant(&treat) {
+    let base: Vec<usize> = if spec.intercept { vec![0] } else { Vec::new() };
+    let tss = eng.graded(&eng.a, &base).rss * ys2;
+    if eng.y_scale == 0.0 {
         return Err(ModelError::ResponseZeroVariance);
     }
     let df_res = n - rank;
     if df_res == 0 {
         return Err(ModelError::ZeroResidualDf);
     }
-    if rss.is_nan() || rss <= PERFECT_FIT_REL * tss {
-        return Err(ModelError::PerfectFit);
+    if !rss.is_finite() {
+        return Err(ModelError::NonFiniteValue {
+            variable: spec.response.name().to_string(),
+            row: spec.row_numbers.first().unwrap_or(1),
+        });
+    }
+    let exact = rss <= PERFECT_FIT_REL * tss;
+    if exact {
+        rss = 0.0;
+        warnings.push(ModelWarning::ExactFit);
     }
     let sigma = (rss / df_res as f64).sqrt();
 
@@ -243,19 +284,21 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
     Ok(Fit {
         spec,
         lay,
-        treat,
-        effect: OnceLock::new(),
+        eng,
+        g,
+        beta,
+        gamma,
+        minv,
         diag: OnceLock::new(),
         held: OnceLock::new(),
         kept,
-        r,
-        bz,
-        null,
         rss,
         tss,
         df_res,
         sigma,
+        exact,
         cov_means,
+        refined: OnceLock::new(),
         warnings,
     })
 }
@@ -273,91 +316,76 @@ fn made_once<T>(cell: &OnceLock<T>, make: impl FnOnce() -> T) -> &T {
     cell.get_or_init(|| v)
 }
 
-impl Fit {
-    /// The effect-coded engine (sum-to-zero coding of factors, for Type III), built on first
-    /// use from the kept spec and layout.
-    pub(crate) fn effect_engine(&self) -> Result<&Engine, ModelError> {
-        made_once(&self.effect, || {
-            let y: &[f64] = match &self.spec.response {
-                Var::Numeric { values, .. } => values,
-                Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
-            };
-            let (ecols, eterms) = design::columns(&self.spec, &self.lay, Scheme::Effect);
-            let derived = super::recode::effect_from_treatment(
-                &self.spec,
-                &self.lay,
-                &self.treat,
-                ecols.clone(),
-                eterms.clone(),
-                self.lay.used.len(),
-            );
-            match derived {
-                Some(e) => Ok(e),
-                None => build_engine(&self.spec, &self.lay, y, ecols, eterms),
-            }
-        })
-        .as_ref()
-        .map_err(Clone::clone)
-    }
-}
-
-fn treat_y_constant(e: &Engine) -> bool {
-    e.y_scale == 0.0
-}
-
-/// Centre and scale every column by its mean and spread over the first block of rows, then
-/// triangularise [Z | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows, computed in
-/// parallel and merged in block order (see [`crate::parallel`]) by re-triangularising the
-/// block factors two at a time. The response's variance, for the zero-variance check, is
-/// pooled from per-block moments by the formula of Chan, Golub & LeVeque (1983, "Algorithms
-/// for computing the sample variance", The American Statistician 37).
+/// Centre and scale of the bases and monomials from the first block of rows, then the
+/// triangular factor of [W' | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows,
+/// computed in parallel and merged in block order (see [`crate::parallel`]) by
+/// re-triangularising the block factors two at a time. The response's variance, for the
+/// zero-variance check, is pooled from per-block moments by the formula of Chan, Golub &
+/// LeVeque (1983, "Algorithms for computing the sample variance", The American
+/// Statistician 37).
 pub(crate) fn build_engine(
     spec: &ModelSpec,
     lay: &Layout,
     y: &[f64],
-    cols: Vec<Column>,
-    term_cols: Vec<Vec<usize>>,
+    treatment: (Vec<Column>, Vec<Vec<usize>>),
+    effect: (Vec<Column>, Vec<Vec<usize>>),
 ) -> Result<Engine, ModelError> {
-    let p = cols.len();
+    let (cols, term_cols) = treatment;
+    let (ecols, eterm_cols) = effect;
     let n = lay.used.len() as f64;
     let blocks = lay.used.blocks(CHUNK_ROWS);
 
-    // Centre and scale of each column, from the first block of rows (every row when there
-    // are at most CHUNK_ROWS of them): any centre within the data's range takes the offset
-    // out of a column well enough for the factorisation (the intercept absorbs the rest),
-    // and it saves a pass over the rows.
+    // Centres and scales from the first block of rows (every row when there are at most
+    // CHUNK_ROWS of them): any centre within the data's range takes the offset out of a
+    // covariate, and it saves a pass over the rows.
     let first = lay.used.slice(blocks.first().cloned().unwrap_or(0..0));
-    let lead = Block::fill(spec, &cols, y, &first).moments();
+    let mut basis = Basis::new(spec, lay, &[&cols, &ecols], &first);
+    let q = basis.monos.len();
+    let lead = Block::fill(spec, &basis, y, &first, 0.0, 1.0).moments();
     let n_lead = lead.count.max(1.0);
-    let mut centre = vec![0.0; p + 1];
-    let mut scale = vec![1.0; p + 1];
-    for j in 0..=p {
-        let is_intercept = spec.intercept && j == 0;
-        if is_intercept {
-            continue;
-        }
-        let (mean, m2) = (lead.mean[j], lead.m2[j]);
-        let (c, s) = if spec.intercept {
-            (mean, (m2 / n_lead).sqrt())
+    // Powers of two, so that scaling changes no digit of a monomial (the scaled columns
+    // span exactly the space of the monomials).
+    for (j, s) in basis.scale.iter_mut().enumerate() {
+        let rms = (lead.m2[j] / n_lead + lead.mean[j] * lead.mean[j]).sqrt();
+        *s = if rms > 0.0 && rms.is_finite() {
+            2f64.powi(rms.log2().round().clamp(-1000.0, 1000.0) as i32)
         } else {
-            (0.0, (m2 / n_lead + mean * mean).sqrt())
+            1.0
         };
-        centre[j] = if c.is_finite() { c } else { 0.0 };
-        scale[j] = if s > 0.0 && s.is_finite() { s } else { 1.0 };
+    }
+    let (ym, ym2) = (lead.mean[q], lead.m2[q]);
+    let (yc, ysc) = if spec.intercept {
+        (ym, (ym2 / n_lead).sqrt())
+    } else {
+        (0.0, (ym2 / n_lead + ym * ym).sqrt())
+    };
+    let y_centre = if yc.is_finite() { yc } else { 0.0 };
+    let y_scale = if ysc > 0.0 && ysc.is_finite() {
+        ysc
+    } else {
+        1.0
+    };
+    let a = basis.matrix(lay, &cols);
+    let ea = basis.matrix(lay, &ecols);
+    if let Some(j) = (0..a.cols).find(|&j| !qr::all_finite(a.col(j))) {
+        // A power of the centre overflows: so does the column at the rows near it.
+        return Err(ModelError::NonFiniteValue {
+            variable: cols.get(j).map(|c| c.name.clone()).unwrap_or_default(),
+            row: first_overflow(spec, lay, &cols, j),
+        });
     }
 
     // One pass: the triangular factor of each block, merged in block order, with the
     // response's moments for the zero-variance check.
     let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |at| {
         let rows = lay.used.slice(at.clone());
-        let mut block = Block::fill(spec, &cols, y, &rows);
-        block.check_finite(spec, &cols, &rows)?;
-        let ym = block.column_moments(p);
-        block.standardise(&centre, &scale);
+        let mut block = Block::fill(spec, &basis, y, &rows, y_centre, y_scale);
+        block.check_finite(spec, &basis, &rows)?;
+        let ym = block.column_moments(q);
         Ok((ym, qr::block_factor(&mut block.a)))
     });
     let mut y_moments = Moments::empty(1);
-    let mut r_aug = Mat::zeros(p + 1, p + 1);
+    let mut r_aug = Mat::zeros(q + 1, q + 1);
     for (k, part) in partial.into_iter().enumerate() {
         let (ym, f) = part?;
         y_moments.pool(&ym);
@@ -371,20 +399,19 @@ pub(crate) fn build_engine(
     if y_m2 <= 0.0 || !y_m2.is_finite() || n == 0.0 {
         return Err(ModelError::ResponseZeroVariance);
     }
-    let y_centre = centre[p];
-    let y_scale = scale[p];
     let y_offset = if spec.intercept {
         spec.response_offset
     } else {
         0.0
     };
-    centre.truncate(p);
-    scale.truncate(p);
     Ok(Engine {
+        basis,
         cols,
         term_cols,
-        centre,
-        scale,
+        a,
+        ecols,
+        eterm_cols,
+        ea,
         y_centre,
         y_scale,
         y_offset,
@@ -392,7 +419,81 @@ pub(crate) fn build_engine(
     })
 }
 
-/// The design columns and the response at a block of rows, column-major, below as many
+/// a + b as an unevaluated sum (hi, lo) with hi = fl(a + b) (Knuth's TwoSum).
+fn two_sum(a: f64, b: f64) -> (f64, f64) {
+    let s = a + b;
+    let bb = s - a;
+    (s, (a - (s - bb)) + (b - bb))
+}
+
+/// The sum of two double-double numbers.
+fn dd_add(a: (f64, f64), b: (f64, f64)) -> (f64, f64) {
+    let (s, e) = two_sum(a.0, b.0);
+    let e = e + a.1 + b.1;
+    let h = s + e;
+    (h, e - (h - s))
+}
+
+/// A double-double number times a double (the product's rounding error from a fused
+/// multiply-add).
+fn dd_mul(a: (f64, f64), b: f64) -> (f64, f64) {
+    let p = a.0 * b;
+    let e = a.0.mul_add(b, -p) + a.1 * b;
+    let h = p + e;
+    (h, e - (h - p))
+}
+
+/// Design column `c` as written at data row `i`, in double-double (factor parts are 0 or
+/// +-1; powers are products carried in double-double).
+fn column_dd(spec: &ModelSpec, c: &Column, i: usize) -> (f64, f64) {
+    let mut v = (1.0, 0.0);
+    for p in &c.parts {
+        match p {
+            design::ColPart::Numeric { var, transform } => {
+                let x = match spec.vars.get(*var) {
+                    Some(Var::Numeric { values, .. }) => values.get(i).copied().unwrap_or(f64::NAN),
+                    _ => f64::NAN,
+                };
+                let k = match transform {
+                    super::Transform::Power(k) => *k,
+                    _ => 1,
+                };
+                for _ in 0..k {
+                    v = dd_mul(v, x);
+                }
+            }
+            _ => {
+                let f = design::eval_row(
+                    spec,
+                    &Column {
+                        term: None,
+                        name: String::new(),
+                        parts: vec![p.clone()],
+                    },
+                    i,
+                );
+                v = (v.0 * f, v.1 * f);
+            }
+        }
+    }
+    v
+}
+
+/// The data-file line of the first used row where design column `j`, as written, is not
+/// finite (the first used row when none is).
+fn first_overflow(spec: &ModelSpec, lay: &Layout, cols: &[Column], j: usize) -> usize {
+    let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
+    let first = lay.used.get(0).unwrap_or(0);
+    let Some(c) = cols.get(j) else {
+        return row_no(first);
+    };
+    lay.used
+        .iter()
+        .find(|&i| !design::eval_row(spec, c, i).is_finite())
+        .map_or(row_no(first), row_no)
+}
+
+/// The scaled monomials and the response at a block of rows, column-major, below as many
 /// rows of zeros as there are columns (see [`qr::block_factor`]).
 struct Block {
     a: Mat,
@@ -401,20 +502,25 @@ struct Block {
 }
 
 impl Block {
-    fn fill(spec: &ModelSpec, cols: &[Column], y: &[f64], rows: &[usize]) -> Block {
-        let width = cols.len() + 1;
+    /// The block of `rows`, the response as (y - y_centre) / y_scale.
+    fn fill(
+        spec: &ModelSpec,
+        basis: &Basis,
+        y: &[f64],
+        rows: &[usize],
+        y_centre: f64,
+        y_scale: f64,
+    ) -> Block {
+        let q = basis.monos.len();
+        let width = q + 1;
         let m = rows.len();
         let ld = width + m;
         let mut a = Mat::zeros(ld, width);
-        for (j, col) in a.data.chunks_exact_mut(ld).enumerate() {
-            let data = &mut col[width..];
-            match cols.get(j) {
-                Some(c) => design::eval_block(spec, c, rows, data),
-                None => {
-                    for (o, &i) in data.iter_mut().zip(rows) {
-                        *o = y.get(i).copied().unwrap_or(f64::NAN);
-                    }
-                }
+        basis.fill(spec, rows, &mut a, width);
+        let inv = 1.0 / y_scale;
+        if let Some(col) = a.data.get_mut(q * ld + width..(q + 1) * ld) {
+            for (o, &i) in col.iter_mut().zip(rows) {
+                *o = (y.get(i).copied().unwrap_or(f64::NAN) - y_centre) * inv;
             }
         }
         Block { a, top: width }
@@ -430,7 +536,7 @@ impl Block {
     fn check_finite(
         &self,
         spec: &ModelSpec,
-        cols: &[Column],
+        basis: &Basis,
         rows: &[usize],
     ) -> Result<(), ModelError> {
         let width = self.a.cols;
@@ -442,9 +548,10 @@ impl Block {
             let first =
                 (0..width).find(|&j| self.column(j).get(r).is_some_and(|v: &f64| !v.is_finite()));
             if let Some(j) = first {
-                let variable = cols
+                let variable = basis
+                    .names
                     .get(j)
-                    .map(|c| c.name.clone())
+                    .cloned()
                     .unwrap_or_else(|| spec.response.name().to_string());
                 return Err(ModelError::NonFiniteValue {
                     variable,
@@ -470,32 +577,6 @@ impl Block {
         out
     }
 
-    /// Replaces the first `k` columns Z by U = Z R^-1, i.e. u = R^-T z for every row
-    /// (forward substitution on whole columns; zero pivots give 0, as in
-    /// [`qr::solve_upper_transpose`]).
-    fn solve_transpose_in_place(&mut self, r: &Mat, k: usize) {
-        let (ld, top) = (self.a.rows, self.top);
-        for i in 0..k.min(r.cols) {
-            let (done, rest) = self.a.data.split_at_mut(i * ld);
-            let Some(zi) = rest.get_mut(top..ld) else {
-                return;
-            };
-            for kk in 0..i {
-                let rki = r.get(kk, i);
-                let Some(uk) = done.get(kk * ld + top..(kk + 1) * ld) else {
-                    continue;
-                };
-                for (z, u) in zi.iter_mut().zip(uk) {
-                    *z -= rki * u;
-                }
-            }
-            let d = r.get(i, i);
-            for z in zi.iter_mut() {
-                *z = if d != 0.0 { *z / d } else { 0.0 };
-            }
-        }
-    }
-
     /// Moments of column j alone.
     fn column_moments(&self, j: usize) -> Moments {
         let x = self.column(j);
@@ -505,18 +586,6 @@ impl Block {
             count: k,
             mean: vec![mean],
             m2: vec![qr::sum_of(x, |v| (v - mean) * (v - mean))],
-        }
-    }
-
-    /// Centre and scale every column in place.
-    fn standardise(&mut self, centre: &[f64], scale: &[f64]) {
-        let (ld, top) = (self.a.rows, self.top);
-        for (j, col) in self.a.data.chunks_exact_mut(ld).enumerate() {
-            // One division for the column, not one per value.
-            let (c, inv) = (centre[j], 1.0 / scale[j]);
-            for v in col.iter_mut().skip(top) {
-                *v = (*v - c) * inv;
-            }
         }
     }
 }
@@ -575,59 +644,54 @@ pub(crate) fn check_level(level: f64) -> Result<(), ModelError> {
 }
 
 impl Fit {
-    /// Estimate and standard error of L'b, where `l` holds one weight per design column
-    /// (treatment coding, original units). Err(()) when L is not estimable.
+    /// Estimate and standard error of a linear function of the fit given by its values on the
+    /// scaled monomials (a row of [`Fit::row_at`], or a combination of such rows). Err(())
+    /// when it is not estimable.
     pub(crate) fn linear(&self, l: &[f64]) -> Result<(f64, f64), ()> {
         let (est, w) = self.linear_parts(l)?;
         Ok((est, w.iter().map(|v| v * v).sum::<f64>().sqrt()))
     }
 
-    /// Estimate of L'b and the vector w = sigma R^-T (T'L), so that
-    /// Cov(L1'b, L2'b) = w1 . w2. The function is evaluated in the centred and scaled
-    /// coordinates (T maps them to original units), so no cancellation against large
-    /// column means happens. Err(()) when L has a component along the design's null space
+    /// Estimate of the function `l` (see [`Fit::linear`]) and the vector
+    /// w = sigma R^-T (V' l), so that Cov(l1, l2) = w1 . w2. Everything is evaluated in the
+    /// centred, scaled monomials, so no cancellation against large column means or powers
+    /// happens. Err(()) when `l` has a component along a direction the data do not determine
     /// (not estimable).
     pub(crate) fn linear_parts(&self, l: &[f64]) -> Result<(f64, Vec<f64>), ()> {
-        self.linear_checked(l, true)
-    }
-
-    /// As [`Fit::linear_parts`]; `check = false` skips the estimability check (used for the
-    /// coefficients of the reduced design, which are reported as such).
-    fn linear_checked(&self, l: &[f64], check: bool) -> Result<(f64, Vec<f64>), ()> {
-        let p = self.treat.cols.len();
-        let e = &self.treat;
-        let l0 = if self.spec.intercept {
-            l.first().copied().unwrap_or(0.0)
-        } else {
-            0.0
-        };
-        let mut lz = vec![0.0; p];
-        for (j, z) in lz.iter_mut().enumerate() {
-            let lj = l.get(j).copied().unwrap_or(0.0);
-            *z = if self.spec.intercept && j == 0 {
-                lj
-            } else {
-                (lj - l0 * e.centre[j]) / e.scale[j]
-            };
+        if !self.estimable(l) {
+            return Err(());
         }
-        let norm: f64 = lz.iter().map(|v| v * v).sum::<f64>().sqrt();
-        for nv in self.null.iter().filter(|_| check) {
-            let nn: f64 = nv.iter().map(|v| v * v).sum::<f64>().sqrt();
-            let d: f64 = nv.iter().zip(&lz).map(|(a, b)| a * b).sum();
-            if d.abs() > ESTIMABLE_TOL * norm * nn {
-                return Err(());
-            }
-        }
-        let lk: Vec<f64> = self.kept.iter().map(|&c| lz[c]).collect();
+        let e = &self.eng;
+        let l0 = e
+            .basis
+            .constant
+            .map(|c| l.get(c).copied().unwrap_or(0.0) * e.basis.scale[c])
+            .unwrap_or(0.0);
+        let fitted: f64 = l.iter().zip(&self.gamma).map(|(a, b)| a * b).sum();
         // The offset goes on last, so the small part keeps its digits until then.
-        let est = l0 * e.y_offset
-            + (l0 * e.y_centre
-                + e.y_scale * lk.iter().zip(&self.bz).map(|(a, b)| a * b).sum::<f64>());
-        let w = qr::solve_upper_transpose(&self.r, &lk)
+        let est = l0 * e.y_offset + (l0 * e.y_centre + e.y_scale * fitted);
+        let s: Vec<f64> = self
+            .g
+            .v
+            .iter()
+            .map(|v| v.iter().zip(l).map(|(a, b)| a * b).sum())
+            .collect();
+        let w = qr::solve_upper_transpose(&self.g.r, &s)
             .into_iter()
             .map(|v| v * self.sigma)
             .collect();
         Ok((est, w))
+    }
+
+    /// Whether the function `l` (values on the scaled monomials) is determined by the data:
+    /// it has no component along a direction that vanishes on every row.
+    pub(crate) fn estimable(&self, l: &[f64]) -> bool {
+        let norm: f64 = l.iter().map(|v| v * v).sum::<f64>().sqrt();
+        self.g.null.iter().all(|z| {
+            let nz: f64 = z.iter().map(|v| v * v).sum::<f64>().sqrt();
+            let d: f64 = z.iter().zip(l).map(|(a, b)| a * b).sum();
+            d.abs() <= ESTIMABLE_TOL * norm * nz
+        })
     }
 
     /// Overall statistics of the fit.
@@ -639,7 +703,7 @@ impl Fit {
         let r2 = 1.0 - self.rss / self.tss;
         let nf = n as f64;
         let adj = 1.0 - (1.0 - r2) * (n - icpt) as f64 / self.df_res as f64;
-        let (f, p) = if df_model > 0 {
+        let (f, p) = if df_model > 0 && !self.exact {
             let f = ((self.tss - self.rss) / df_model as f64) / (self.rss / self.df_res as f64);
             (Some(f), Some(f_p(f, df_model, self.df_res)))
         } else {
@@ -664,42 +728,210 @@ impl Fit {
         }
     }
 
+    /// Whether the model fits the data exactly (residual sum of squares 0 to rounding): its
+    /// coefficients are exact, standard errors 0, and tests undefined.
+    pub fn is_exact(&self) -> bool {
+        self.exact
+    }
+
+    /// The kept coefficients of the model as written: (estimate, the vector w with
+    /// se = |w|, and a bound on the size of the numbers the estimate was recovered from).
+    fn written_coefficients(&self) -> Vec<(usize, f64, Vec<f64>, f64)> {
+        let e = &self.eng;
+        let k = self.kept.len();
+        let mut out = Vec::with_capacity(k);
+        for (i, &c) in self.kept.iter().enumerate() {
+            let row: Vec<f64> = (0..k).map(|j| self.minv.get(i, j)).collect();
+            let mut est: f64 = row.iter().zip(&self.beta).map(|(a, b)| a * b).sum();
+            let mut size: f64 = row.iter().zip(&self.beta).map(|(a, b)| (a * b).abs()).sum();
+            est *= e.y_scale;
+            size *= e.y_scale;
+            let is_intercept = self.spec.intercept && c == 0;
+            if is_intercept {
+                est = e.y_offset + (e.y_centre + est);
+                size += e.y_centre.abs() + e.y_offset.abs();
+            }
+            let w = qr::solve_upper_transpose(&self.g.r, &row)
+                .into_iter()
+                .map(|v| v * self.sigma)
+                .collect();
+            out.push((c, est, w, size));
+        }
+        out
+    }
+
+    /// The coefficients of the model as written after one step of iterative refinement
+    /// (Björck 1967, "Iterative refinement of linear least squares solutions I", BIT 7, in
+    /// the corrected semi-normal form of Björck's "Numerical Methods for Least Squares
+    /// Problems", 1996, section 2.5): residuals r = y - X b from the columns as written,
+    /// accumulated in double-double arithmetic (Dekker 1971, "A floating-point technique for
+    /// extending the available precision", Numer. Math. 18), then the correction from
+    /// R'R d = V'W'r. Taken only when some coefficient's recovery loses digits
+    /// ([`REFINE_BELOW_DIGITS`]) and every covariate enters through powers; None otherwise,
+    /// or when the terms of X b are too large beside the response for double-double to
+    /// resolve the residual.
+    fn refined_coefficients(&self) -> Option<&Vec<f64>> {
+        made_once(&self.refined, || self.refine()).as_ref()
+    }
+
+    fn refine(&self) -> Option<Vec<f64>> {
+        let base = self.written_coefficients();
+        let loses = base.iter().any(|(_, est, _, size)| {
+            *size > 0.0 && *size / est.abs() * 4.0 * f64::EPSILON > 10f64.powf(-REFINE_BELOW_DIGITS)
+        });
+        if !loses {
+            return None;
+        }
+        let cols: Vec<&Column> = self
+            .kept
+            .iter()
+            .filter_map(|&c| self.eng.cols.get(c))
+            .collect();
+        let polynomial = cols.iter().all(|c| {
+            c.parts.iter().all(|p| {
+                !matches!(
+                    p,
+                    design::ColPart::Numeric {
+                        transform: super::Transform::Log | super::Transform::Sqrt,
+                        ..
+                    }
+                )
+            })
+        });
+        if !polynomial {
+            return None;
+        }
+        let b: Vec<f64> = base.iter().map(|x| x.1).collect();
+        let y: &[f64] = match &self.spec.response {
+            Var::Numeric { values, .. } => values,
+            Var::Factor { .. } => return None,
+        };
+        let q = self.eng.basis.monos.len();
+        let offset = self.spec.response_offset;
+        let blocks = self.lay.used.blocks(CHUNK_ROWS);
+        // Per block: W'r, the largest |x_j b_j| sum and the largest |y|.
+        let parts = crate::parallel::map(&blocks, |at| {
+            let rows = self.lay.used.slice(at.clone());
+            let m = rows.len();
+            let mut w = Mat::zeros(m, q);
+            self.eng.basis.fill(&self.spec, &rows, &mut w, 0);
+            let mut g = vec![(0.0, 0.0); q];
+            let (mut terms_max, mut y_max) = (0.0f64, 0.0f64);
+            for (r, &i) in rows.iter().enumerate() {
+                let yi = y.get(i).copied().unwrap_or(f64::NAN);
+                let mut acc = two_sum(offset, yi);
+                y_max = y_max.max(acc.0.abs());
+                let mut terms = 0.0;
+                for (c, bj) in cols.iter().zip(&b) {
+                    let x = column_dd(&self.spec, c, i);
+                    let t = dd_mul(x, *bj);
+                    terms += t.0.abs();
+                    acc = dd_add(acc, (-t.0, -t.1));
+                }
+                terms_max = terms_max.max(terms);
+                // W'r in double-double too: it is the small gradient left by the large
+                // residuals of an imperfect fit.
+                for (gm, col) in g.iter_mut().zip(w.data.chunks_exact(m)) {
+                    *gm = dd_add(*gm, dd_mul(acc, col[r]));
+                }
+            }
+            (g, terms_max, y_max)
+        });
+        let mut gdd = vec![(0.0, 0.0); q];
+        let (mut terms_max, mut y_max) = (0.0f64, 0.0f64);
+        for (gb, t, ym) in parts {
+            for (a, v) in gdd.iter_mut().zip(gb) {
+                *a = dd_add(*a, v);
+            }
+            terms_max = terms_max.max(t);
+            y_max = y_max.max(ym);
+        }
+        let g: Vec<f64> = gdd.iter().map(|v| v.0 + v.1).collect();
+        let resolved = terms_max <= REFINE_MAX_RATIO * y_max;
+        if !resolved || !g.iter().all(|v| v.is_finite()) {
+            return None;
+        }
+        let s: Vec<f64> = self
+            .g
+            .v
+            .iter()
+            .map(|v| v.iter().zip(&g).map(|(a, c)| a * c).sum())
+            .collect();
+        let z = qr::solve_upper_transpose(&self.g.r, &s);
+        let dv = qr::solve_upper(&self.g.r, &z);
+        let k = self.kept.len();
+        Some(
+            (0..k)
+                .map(|i| {
+                    let d: f64 = (0..k).map(|j| self.minv.get(i, j) * dv[j]).sum();
+                    b[i] + d
+                })
+                .collect(),
+        )
+    }
+
     /// Estimated coefficients with t tests and confidence limits at `level` (e.g. 0.95).
-    /// Aliased coefficients are omitted. An invalid level gives NaN limits.
+    /// Aliased coefficients are omitted. An invalid level gives NaN limits; an exact fit has
+    /// standard errors 0 and undefined t and p.
     pub fn coefficients(&self, level: f64) -> Vec<Coefficient> {
-        let p = self.treat.cols.len();
         let tq = if level > 0.0 && level < 1.0 {
             t_quantile(0.5 + level / 2.0, self.df_res)
         } else {
             f64::NAN
         };
-        let mut out = Vec::new();
-        for &c in &self.kept {
-            let mut l = vec![0.0; p];
-            l[c] = 1.0;
-            let Ok((est, w)) = self.linear_checked(&l, false) else {
-                continue;
-            };
-            let se = w.iter().map(|v| v * v).sum::<f64>().sqrt();
-            let t = est / se;
-            out.push(Coefficient {
-                name: self
-                    .treat
-                    .cols
-                    .get(c)
-                    .map(|x| x.name.clone())
-                    .unwrap_or_default(),
-                estimate: est,
-                se,
-                t,
-                p: t_p(t, self.df_res),
-                lower: est - tq * se,
-                upper: est + tq * se,
-            });
-        }
-        out
+        let refined = self.refined_coefficients();
+        self.written_coefficients()
+            .into_iter()
+            .enumerate()
+            .map(|(i, (c, est, w, _))| {
+                let est = refined.and_then(|b| b.get(i).copied()).unwrap_or(est);
+                let se = w.iter().map(|v| v * v).sum::<f64>().sqrt();
+                let t = if self.exact { f64::NAN } else { est / se };
+                Coefficient {
+                    name: self
+                        .eng
+                        .cols
+                        .get(c)
+                        .map(|x| x.name.clone())
+                        .unwrap_or_default(),
+                    estimate: est,
+                    se,
+                    t,
+                    p: if self.exact {
+                        f64::NAN
+                    } else {
+                        t_p(t, self.df_res)
+                    },
+                    lower: est - tq * se,
+                    upper: est + tq * se,
+                }
+            })
+            .collect()
     }
 
+    /// The coefficients whose recovery from the centred fit keeps fewer than
+    /// [`COEFFICIENT_DIGITS_NOTE`] significant digits, with the digits it keeps: the
+    /// estimate is a sum of terms as large as the bound, so rounding at 1e-16 of them is
+    /// carried into it (the tests and every other result are not affected).
+    pub fn coefficient_digits(&self) -> Vec<(String, f64)> {
+        if self.refined_coefficients().is_some() {
+            return Vec::new();
+        }
+        self.written_coefficients()
+            .into_iter()
+            .filter_map(|(c, est, _, size)| {
+                let digits = if size == 0.0 {
+                    f64::INFINITY
+                } else if est == 0.0 {
+                    0.0
+                } else {
+                    -(size / est.abs() * 4.0 * f64::EPSILON).log10()
+                };
+                let name = self.eng.cols.get(c).map(|x| x.name.clone())?;
+                (digits < COEFFICIENT_DIGITS_NOTE).then_some((name, digits.max(0.0)))
+            })
+            .collect()
+    }
     /// Warnings about this fit (also the public field `warnings`).
     pub fn warnings(&self) -> &[ModelWarning] {
         &self.warnings
@@ -735,7 +967,7 @@ impl Fit {
 
     /// Names of all design columns, aliased ones included, in design order.
     pub fn column_names(&self) -> Vec<String> {
-        self.treat.cols.iter().map(|c| c.name.clone()).collect()
+        self.eng.cols.iter().map(|c| c.name.clone()).collect()
     }
 
     /// Residual degrees of freedom.
@@ -922,58 +1154,39 @@ pub(crate) enum RowValue {
     Leverage,
 }
 
-/// What a pass over fitted rows needs, gathered once: the kept design columns with their
-/// centres and scales (the response's last), and the response.
+/// What a pass over fitted rows needs, gathered once: the fit and the response.
 struct RowPass<'a> {
     fit: &'a Fit,
     y: &'a [f64],
-    cols: Vec<Column>,
-    centre: Vec<f64>,
-    scale: Vec<f64>,
 }
 
 impl<'a> RowPass<'a> {
     fn new(fit: &'a Fit) -> RowPass<'a> {
-        let e = &fit.treat;
         let y: &[f64] = match &fit.spec.response {
             Var::Numeric { values, .. } => values,
             Var::Factor { .. } => &[],
         };
-        let cols = fit
-            .kept
-            .iter()
-            .filter_map(|&c| e.cols.get(c).cloned())
-            .collect();
-        let mut centre: Vec<f64> = fit.kept.iter().map(|&c| e.centre[c]).collect();
-        let mut scale: Vec<f64> = fit.kept.iter().map(|&c| e.scale[c]).collect();
-        centre.push(e.y_centre);
-        scale.push(e.y_scale);
-        RowPass {
-            fit,
-            y,
-            cols,
-            centre,
-            scale,
-        }
+        RowPass { fit, y }
     }
 
     /// The values asked for in `out` for each of `rows` (data rows).
     fn fill(&self, rows: &[usize], out: Outputs<'_>) {
         let fit = self.fit;
-        let e = &fit.treat;
-        let k = self.cols.len();
-        let mut block = Block::fill(&fit.spec, &self.cols, self.y, rows);
-        block.standardise(&self.centre, &self.scale);
+        let e = &fit.eng;
+        let q = e.basis.monos.len();
+        let block = Block::fill(&fit.spec, &e.basis, self.y, rows, e.y_centre, e.y_scale);
         if out.fitted.is_some() || out.residual.is_some() {
-            // Fitted values in the scaled coordinates, column by column.
+            // Fitted values in the scaled coordinates, monomial by monomial.
             let mut fz = vec![0.0; rows.len()];
-            for (j, b) in fit.bz.iter().enumerate() {
-                for (f, z) in fz.iter_mut().zip(block.column(j)) {
-                    *f += b * z;
+            for (j, g) in fit.gamma.iter().enumerate() {
+                if *g != 0.0 {
+                    for (f, z) in fz.iter_mut().zip(block.column(j)) {
+                        *f += g * z;
+                    }
                 }
             }
             if let Some(res) = out.residual {
-                for (o, (f, yz)) in res.iter_mut().zip(fz.iter().zip(block.column(k))) {
+                for (o, (f, yz)) in res.iter_mut().zip(fz.iter().zip(block.column(q))) {
                     *o = (yz - f) * e.y_scale;
                 }
             }
@@ -984,13 +1197,47 @@ impl<'a> RowPass<'a> {
             }
         }
         if let Some(lev) = out.leverage {
-            // u = R^-T z for every row at once: forward substitution over whole columns,
-            // each u_i overwriting z_i (it needs only z_i and the u before it).
-            block.solve_transpose_in_place(&fit.r, k);
+            // u = R^-T V' w for every row at once: the reduced columns at the rows, then
+            // forward substitution over whole columns, each u_i overwriting its column.
+            let k = fit.kept.len();
+            let m = rows.len();
+            let mut u = Mat::zeros(m, k);
+            for (i, v) in fit.g.v.iter().enumerate() {
+                let col = &mut u.data[i * m..(i + 1) * m];
+                for (j, vj) in v.iter().enumerate() {
+                    if *vj != 0.0 {
+                        for (o, z) in col.iter_mut().zip(block.column(j)) {
+                            *o += vj * z;
+                        }
+                    }
+                }
+            }
+            let r = &fit.g.r;
+            for i in 0..k {
+                let (done, rest) = u.data.split_at_mut(i * m);
+                let Some(ui) = rest.get_mut(..m) else { break };
+                for kk in 0..i {
+                    let rki = r.get(kk, i);
+                    if rki != 0.0 {
+                        for (z, p) in ui.iter_mut().zip(&done[kk * m..(kk + 1) * m]) {
+                            *z -= rki * p;
+                        }
+                    }
+                }
+                let d = r.get(i, i);
+                for z in ui.iter_mut() {
+                    *z = if d != 0.0 { *z / d } else { 0.0 };
+                }
+            }
             lev.fill(0.0);
             for i in 0..k {
-                for (h, u) in lev.iter_mut().zip(block.column(i)) {
-                    *h += u * u;
+                for (h, p) in lev.iter_mut().zip(&u.data[i * m..(i + 1) * m]) {
+                    *h += p * p;
+                }
+            }
+            for h in lev.iter_mut() {
+                if (1.0 - *h).abs() <= LEVERAGE_ONE_TOL {
+                    *h = 1.0;
                 }
             }
         }
@@ -1021,10 +1268,10 @@ impl Diagnostics {
     }
 
     /// Cook's distance e^2 h / (p s^2 (1-h)^2) of a row with residual `r` and leverage `h`;
-    /// NaN at leverage 1.
+    /// NaN (undefined, 0/0) at leverage 1 and in an exact fit.
     pub fn cook(&self, r: f64, h: f64) -> f64 {
         let one_h = 1.0 - h;
-        if one_h > 0.0 {
+        if one_h > LEVERAGE_ONE_TOL && self.s2 > 0.0 {
             r * r * h / (self.rank * self.s2 * one_h * one_h)
         } else {
             f64::NAN
@@ -1032,10 +1279,11 @@ impl Diagnostics {
     }
 
     /// Externally studentized residual e / (s_(i) sqrt(1-h)), s_(i)^2 = (RSS - e^2/(1-h)) /
-    /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined.
+    /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined
+    /// and at leverage 1 (0/0).
     pub fn student(&self, r: f64, h: f64) -> f64 {
         let one_h = 1.0 - h;
-        if one_h > 0.0 && self.df_res > 1 {
+        if one_h > LEVERAGE_ONE_TOL && self.df_res > 1 {
             let s2i = (self.rss - r * r / one_h) / (self.df_res - 1) as f64;
             if s2i > 0.0 {
                 r / (s2i.sqrt() * one_h.sqrt())

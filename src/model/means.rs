@@ -3,6 +3,7 @@
 //! The American Statistician 34). Tukey-Kramer limits: Kramer 1956, Biometrics 12;
 //! Holm 1979, Scand. J. Statistics 6; Sidak 1967, JASA 62.
 
+use super::cause::{cell_name, empty_cells};
 use super::design::{self, Point};
 use super::fit::{check_level, t_p, t_quantile, Fit};
 use super::{Adjust, AdjustedMean, Contrast, ModelError, Pair, Transform, Var};
@@ -11,6 +12,16 @@ use crate::stats::tukey::{ptukey_upper, qtukey};
 /// Weights whose sum is within this of 0 (relative to the sum of their absolute values)
 /// count as summing to zero; typed decimals like 1/3 do not add up exactly.
 const WEIGHT_SUM_TOL: f64 = 1e-9;
+
+/// A level's label, code and row (see [`Fit::row_at`]).
+type LevelRow = (String, u32, Vec<f64>);
+
+/// Empty cells named at most in the reason a mean or difference is not estimable.
+const MAX_CELLS_SHOWN: usize = 4;
+
+/// The reason a quantity is not estimable when no empty cell explains it.
+pub(crate) const UNDETERMINED: &str =
+    "it depends on coefficients that these data do not determine (aliased columns)";
 
 impl Fit {
     /// The variable index of a factor of the model, or the reason it is not one.
@@ -132,21 +143,67 @@ impl Fit {
         }
     }
 
-    /// The design row of a point (one entry per treatment-coded column).
+    /// The model's value at a point as a linear function of the fit: its row in the fit's
+    /// own coordinates (the centred, scaled monomials), for [`Fit::linear`]. Rows of
+    /// several points combine linearly (differences, contrasts).
     pub(crate) fn row_at(&self, pt: &Point) -> Vec<f64> {
-        self.treat
-            .cols
-            .iter()
-            .map(|c| design::eval_point(c, pt))
-            .collect()
+        self.eng.basis.at_point(pt)
     }
 
-    /// Level labels and design rows for the adjusted mean of each level of `factor`.
+    /// Why adjusted means of `levels` of factor `f` (or their differences) are not
+    /// estimable: the cells of `f` with a factor it shares a term with that have no rows,
+    /// or aliased columns in general.
+    pub(crate) fn why_not(&self, f: usize, levels: &[u32]) -> String {
+        let mut named: Vec<String> = Vec::new();
+        for term in &self.spec.terms {
+            let factors: Vec<usize> = term
+                .parts
+                .iter()
+                .map(|p| p.var)
+                .filter(|&v| matches!(self.spec.vars.get(v), Some(Var::Factor { .. })))
+                .collect();
+            let Some(pos) = factors.iter().position(|&v| v == f) else {
+                continue;
+            };
+            if factors.len() < 2 {
+                continue;
+            }
+            for cell in empty_cells(&self.spec, &self.lay, &factors) {
+                if cell.get(pos).is_some_and(|c| levels.contains(c)) {
+                    let name = cell_name(&self.spec, &factors, &cell);
+                    if !named.contains(&name) {
+                        named.push(name);
+                    }
+                }
+            }
+        }
+        match named.len() {
+            0 => UNDETERMINED.to_string(),
+            1 => format!(
+                "the cell {} has no rows, and the model lets the effect of {} differ between cells",
+                named[0],
+                design::var_name(&self.spec, f)
+            ),
+            k => {
+                let shown: Vec<String> = named.iter().take(MAX_CELLS_SHOWN).cloned().collect();
+                let more = k.saturating_sub(MAX_CELLS_SHOWN);
+                format!(
+                    "the cells {}{} have no rows, and the model lets the effect of {} differ between cells",
+                    shown.join(", "),
+                    if more > 0 { format!(" (and {more} more)") } else { String::new() },
+                    design::var_name(&self.spec, f)
+                )
+            }
+        }
+    }
+
+    /// Level labels, codes and rows (see [`Fit::row_at`]) for the adjusted mean of each level
+    /// of `factor`.
     fn level_rows(
         &self,
         factor: &str,
         at: &[(String, f64)],
-    ) -> Result<Vec<(String, Vec<f64>)>, ModelError> {
+    ) -> Result<(usize, Vec<LevelRow>), ModelError> {
         let v = self.model_factor(factor)?;
         let numeric = self.covariate_values(at)?;
         let levels = match self.spec.vars.get(v) {
@@ -165,20 +222,26 @@ impl Fit {
                 levels: present.len(),
             });
         }
-        Ok(present
-            .iter()
-            .map(|&c| {
-                let pt = self.point(v, Some(c), numeric.clone(), None);
-                (
-                    levels.get(c as usize).cloned().unwrap_or_default(),
-                    self.row_at(&pt),
-                )
-            })
-            .collect())
+        Ok((
+            v,
+            present
+                .iter()
+                .map(|&c| {
+                    let pt = self.point(v, Some(c), numeric.clone(), None);
+                    (
+                        levels.get(c as usize).cloned().unwrap_or_default(),
+                        c,
+                        self.row_at(&pt),
+                    )
+                })
+                .collect(),
+        ))
     }
 
     /// Adjusted means of each level of `factor` (levels with rows, declared order), other
-    /// factors averaged with equal weights, covariates at `at` or at their means.
+    /// factors averaged with equal weights, covariates at `at` or at their means. A level
+    /// whose mean the design does not determine (an empty cell it averages over) comes with
+    /// NaN numbers and the reason.
     pub fn means(
         &self,
         factor: &str,
@@ -186,27 +249,37 @@ impl Fit {
         level: f64,
     ) -> Result<Vec<AdjustedMean>, ModelError> {
         check_level(level)?;
-        let rows = self.level_rows(factor, at)?;
+        let (v, rows) = self.level_rows(factor, at)?;
         let tq = t_quantile(0.5 + level / 2.0, self.df_res);
-        rows.into_iter()
-            .map(|(lab, l)| {
-                let (m, se) = self.linear(&l).map_err(|_| ModelError::NotEstimable {
-                    what: format!("the adjusted mean of {factor} = {lab}"),
-                })?;
-                Ok(AdjustedMean {
+        Ok(rows
+            .into_iter()
+            .map(|(lab, code, l)| match self.linear(&l) {
+                Ok((m, se)) => AdjustedMean {
                     level: lab,
                     mean: m,
                     se,
                     df: self.df_res,
                     lower: m - tq * se,
                     upper: m + tq * se,
-                })
+                    not_estimable: None,
+                },
+                Err(()) => AdjustedMean {
+                    level: lab,
+                    mean: f64::NAN,
+                    se: f64::NAN,
+                    df: self.df_res,
+                    lower: f64::NAN,
+                    upper: f64::NAN,
+                    not_estimable: Some(self.why_not(v, &[code])),
+                },
             })
-            .collect()
+            .collect())
     }
 
     /// Every pairwise difference of adjusted means (first minus second, levels i < j in
-    /// order) with the chosen multiplicity adjustment.
+    /// order) with the chosen multiplicity adjustment. A difference the design does not
+    /// determine comes with NaN numbers and the reason, and is not counted among the
+    /// comparisons the adjustment is for.
     pub fn pairs(
         &self,
         factor: &str,
@@ -215,24 +288,36 @@ impl Fit {
         level: f64,
     ) -> Result<Vec<Pair>, ModelError> {
         check_level(level)?;
-        let rows = self.level_rows(factor, at)?;
+        let (v, rows) = self.level_rows(factor, at)?;
         let k = rows.len();
         let m = k * (k - 1) / 2;
-        let mf = m as f64;
         let df = self.df_res;
         let alpha = 1.0 - level;
         let mut out = Vec::with_capacity(m);
         let mut raw = Vec::with_capacity(m);
         for i in 0..k {
             for j in (i + 1)..k {
-                let (Some((li, ri)), Some((lj, rj))) = (rows.get(i), rows.get(j)) else {
+                let (Some((li, ci, ri)), Some((lj, cj, rj))) = (rows.get(i), rows.get(j)) else {
                     continue;
                 };
                 let d: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a - b).collect();
-                let (est, se) = self.linear(&d).map_err(|_| ModelError::NotEstimable {
-                    what: format!("the difference {li} - {lj}"),
-                })?;
-                let t = est / se;
+                let Ok((est, se)) = self.linear(&d) else {
+                    out.push(Pair {
+                        first: li.clone(),
+                        second: lj.clone(),
+                        estimate: f64::NAN,
+                        se: f64::NAN,
+                        t: f64::NAN,
+                        df,
+                        p: f64::NAN,
+                        lower: None,
+                        upper: None,
+                        not_estimable: Some(self.why_not(v, &[*ci, *cj])),
+                    });
+                    raw.push(f64::NAN);
+                    continue;
+                };
+                let t = if self.exact { f64::NAN } else { est / se };
                 let p = t_p(t, df);
                 raw.push(p);
                 out.push(Pair {
@@ -245,10 +330,42 @@ impl Fit {
                     p,
                     lower: None,
                     upper: None,
+                    not_estimable: None,
                 });
             }
         }
+        // The adjustment is for the comparisons that can be made.
+        let mf = out
+            .iter()
+            .filter(|q| q.not_estimable.is_none())
+            .count()
+            .max(1) as f64;
         let half_width = |crit: f64, se: f64| crit * se;
+        let mut out_na: Vec<Pair> = Vec::new();
+        let mut slots: Vec<Option<usize>> = Vec::with_capacity(out.len());
+        let mut kept: Vec<Pair> = Vec::new();
+        let mut kept_raw: Vec<f64> = Vec::new();
+        for (q, r) in out.into_iter().zip(raw) {
+            if q.not_estimable.is_some() {
+                slots.push(None);
+                out_na.push(q);
+            } else {
+                slots.push(Some(kept.len()));
+                kept.push(q);
+                kept_raw.push(r);
+            }
+        }
+        let (mut out, raw) = (kept, kept_raw);
+        // The studentized range is over the levels the estimable differences compare.
+        let mut compared: Vec<&str> = Vec::new();
+        for q in &out {
+            for l in [q.first.as_str(), q.second.as_str()] {
+                if !compared.contains(&l) {
+                    compared.push(l);
+                }
+            }
+        }
+        let k = compared.len().max(2);
         match adjust {
             Adjust::None => {
                 let c = t_quantile(1.0 - alpha / 2.0, df);
@@ -296,7 +413,15 @@ impl Fit {
                 }
             }
         }
-        Ok(out)
+        let mut done: Vec<Option<Pair>> = out.into_iter().map(Some).collect();
+        let mut na = out_na.into_iter();
+        Ok(slots
+            .into_iter()
+            .filter_map(|s| match s {
+                Some(i) => done.get_mut(i).and_then(Option::take),
+                None => na.next(),
+            })
+            .collect())
     }
 
     /// A contrast sum_i w_i * mean_i of the adjusted means of `factor` (one weight per level
@@ -309,24 +434,33 @@ impl Fit {
         level: f64,
     ) -> Result<Contrast, ModelError> {
         check_level(level)?;
-        let rows = self.level_rows(factor, at)?;
+        let (v, rows) = self.level_rows(factor, at)?;
         if weights.len() != rows.len() {
             return Err(ModelError::WeightsLength {
                 expected: rows.len(),
                 found: weights.len(),
             });
         }
-        let p = self.treat.cols.len();
-        let mut l = vec![0.0; p];
-        for ((_, r), w) in rows.iter().zip(weights) {
+        let q = self.eng.basis.monos.len();
+        let mut l = vec![0.0; q];
+        for ((_, _, r), w) in rows.iter().zip(weights) {
             for (a, b) in l.iter_mut().zip(r) {
                 *a += w * b;
             }
         }
-        let (est, se) = self.linear(&l).map_err(|_| ModelError::NotEstimable {
-            what: format!("this contrast of {factor}"),
+        let (est, se) = self.linear(&l).map_err(|_| {
+            let used: Vec<u32> = rows
+                .iter()
+                .zip(weights)
+                .filter(|(_, w)| **w != 0.0)
+                .map(|((_, c, _), _)| *c)
+                .collect();
+            ModelError::NotEstimable {
+                what: format!("this contrast of {factor}"),
+                why: self.why_not(v, &used),
+            }
         })?;
-        let t = est / se;
+        let t = if self.exact { f64::NAN } else { est / se };
         let tq = t_quantile(0.5 + level / 2.0, self.df_res);
         let sum: f64 = weights.iter().sum();
         let abs: f64 = weights.iter().map(|w| w.abs()).sum();

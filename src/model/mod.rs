@@ -5,11 +5,13 @@
 //! The engine knows nothing of files or of covey's language: the caller builds a
 //! [`ModelSpec`] from its data set and calls [`fit`]. All results are typed numbers.
 //!
-//! Numerics: the design matrix is built term by term, its columns are centred against the
-//! intercept (when there is one) and scaled to unit root-mean-square, and the triangular
-//! factor R of the augmented matrix [X | y] is accumulated by Householder QR over fixed row
-//! chunks. Every sum of squares is read from a re-triangularisation of selected columns of
-//! that R; the normal equations are never formed.
+//! Numerics: the design columns, as the model writes them, are expanded in monomials of
+//! centred, scaled covariates and factor indicators (`basis.rs`), so that no power or product
+//! of a covariate far from zero is ever formed; the triangular factor R of [W | y] is
+//! accumulated by Householder QR over fixed row chunks. Every sub-model (the fit, each
+//! ANOVA row, each test) is a reduction of selected columns through that R (`graded.rs`),
+//! and every sum of squares is read off the response's coordinates along the columns it
+//! adds; the normal equations are never formed.
 
 use std::sync::Arc;
 
@@ -18,13 +20,15 @@ pub use crate::data::Code;
 pub use crate::data::RowLines;
 
 mod anova;
+mod basis;
+mod cause;
 mod design;
 pub mod dist;
 mod fit;
+mod graded;
 mod means;
 mod pilot;
 mod qr;
-mod recode;
 mod slopes;
 
 #[cfg(test)]
@@ -33,8 +37,9 @@ mod tests;
 use std::fmt;
 
 pub use anova::compare;
+pub use cause::AliasCause;
 pub(crate) use design::UsedRows;
-pub use fit::{fit, fit_owned, Fit};
+pub use fit::{fit, fit_owned, Fit, COEFFICIENT_DIGITS_NOTE};
 pub use pilot::{Pilot, PilotError};
 
 /// One input variable, aligned with the response row by row.
@@ -211,13 +216,13 @@ pub struct AnovaRow {
     pub df: usize,
     /// Sum of squares.
     pub ss: f64,
-    /// Mean square (0 when df = 0).
+    /// Mean square (NaN, undefined, when df = 0).
     pub ms: f64,
     /// F statistic (None when df = 0).
     pub f: Option<f64>,
     /// Upper-tail p-value (None when df = 0).
     pub p: Option<f64>,
-    /// Partial eta squared, SS / (SS + RSS).
+    /// Partial eta squared, SS / (SS + RSS) (NaN, undefined, when df = 0).
     pub partial_eta_sq: f64,
 }
 
@@ -285,6 +290,9 @@ pub struct Comparison {
     pub f: f64,
     /// Upper-tail p-value.
     pub p: f64,
+    /// True when the first model named was the bigger one (the rows are then in the other
+    /// order: the smaller model always comes first).
+    pub swapped: bool,
 }
 
 /// An adjusted (least-squares) mean.
@@ -302,6 +310,9 @@ pub struct AdjustedMean {
     pub lower: f64,
     /// Upper confidence limit.
     pub upper: f64,
+    /// Why the mean is not estimable from this design, when it is not (the numbers are
+    /// then NaN).
+    pub not_estimable: Option<String>,
 }
 
 /// A pairwise comparison of adjusted means (first minus second).
@@ -325,6 +336,9 @@ pub struct Pair {
     pub lower: Option<f64>,
     /// Upper limit.
     pub upper: Option<f64>,
+    /// Why the difference is not estimable from this design, when it is not (the numbers
+    /// are then NaN).
+    pub not_estimable: Option<String>,
 }
 
 /// A contrast of adjusted means.
@@ -488,7 +502,12 @@ pub enum ModelWarning {
         names: Vec<String>,
         /// Terms they belong to (same order).
         terms: Vec<Option<usize>>,
+        /// Why.
+        cause: AliasCause,
     },
+    /// The model fits the data exactly: the coefficients are exact, the residual SD and
+    /// standard errors 0, and tests undefined.
+    ExactFit,
     /// A level of a factor has no rows in the fitted data and is left out of this model.
     EmptyLevel {
         /// First term using the factor.
@@ -514,10 +533,14 @@ impl fmt::Display for ModelWarning {
             ModelWarning::RowsDropped { count } => {
                 write!(f, "{count} row(s) with a missing value in a variable of the model were left out")
             }
-            ModelWarning::Aliased { names, .. } => write!(
+            ModelWarning::Aliased { names, cause, .. } => write!(
                 f,
-                "these coefficients cannot be estimated (their columns are combinations of earlier ones, e.g. an empty cell) and were left out: {}",
+                "these coefficients cannot be estimated and were left out: {}; {cause}",
                 names.join(", ")
+            ),
+            ModelWarning::ExactFit => write!(
+                f,
+                "the model fits the data exactly (the residual sum of squares is 0 to rounding): the coefficients are exact, the residual SD and the standard errors are 0, and t and F tests and their p-values are undefined; check that the response is not computed from the predictors"
             ),
             ModelWarning::EmptyLevel { factor, level, .. } => write!(
                 f,
@@ -647,12 +670,15 @@ pub enum ModelError {
     },
     /// No residual degrees of freedom are left.
     ZeroResidualDf,
-    /// The model fits the data exactly.
+    /// A statistic needs an error variance and the data leave none (they are fitted
+    /// exactly).
     PerfectFit,
     /// Type III asked for on a design with aliased columns.
     TypeIIIWithAliased {
         /// The aliased coefficients.
         aliased: Vec<String>,
+        /// Why they are aliased.
+        cause: AliasCause,
     },
     /// No variable of that name.
     UnknownVariable {
@@ -690,6 +716,8 @@ pub enum ModelError {
     NotEstimable {
         /// What was asked for (a level or pair label).
         what: String,
+        /// Why, in the user's terms.
+        why: String,
     },
     /// Contrast weights do not match the number of levels.
     WeightsLength {
@@ -710,7 +738,7 @@ pub enum ModelError {
         /// Level.
         level: String,
     },
-    /// The smaller model is not nested in the bigger one.
+    /// Neither model is nested in the other.
     NotNested,
     /// The two models were fitted on different rows.
     DifferentRows,
@@ -746,8 +774,8 @@ impl fmt::Display for ModelError {
             E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
             E::FewerRowsThanCoefficients { rows, coefficients } => write!(f, "the model has {coefficients} coefficients but only {rows} rows; use fewer terms or more data"),
             E::ZeroResidualDf => write!(f, "no residual degrees of freedom are left (as many independent coefficients as rows), so no error variance can be estimated; use fewer terms or more data"),
-            E::PerfectFit => write!(f, "the model fits the data exactly (residual sum of squares is 0 up to rounding), so standard errors, tests and intervals cannot be computed; check that the response is not computed from the predictors"),
-            E::TypeIIIWithAliased { aliased } => write!(f, "Type III sums of squares test each term against a full-rank design, but these coefficients are not estimable (e.g. empty cells): {}; use Type I or II, or remove the interaction", aliased.join(", ")),
+            E::PerfectFit => write!(f, "the data are fitted exactly (residual sum of squares 0 up to rounding), so there is no error variance for this test; check that the response is not computed from the predictors"),
+            E::TypeIIIWithAliased { aliased, cause } => write!(f, "Type III sums of squares test each term against a full-rank design, but these coefficients are not estimable: {}, because {cause}; {}", aliased.join(", "), cause.remedy()),
             E::UnknownVariable { name } => write!(f, "there is no variable `{name}`"),
             E::NotAFactor { name } => write!(f, "`{name}` is numeric, not a factor"),
             E::FactorNotInModel { factor } => write!(f, "factor `{factor}` is not in this model; add it as a term first"),
@@ -755,11 +783,11 @@ impl fmt::Display for ModelError {
             E::NoCovariate => write!(f, "the model has no numeric covariate"),
             E::AmbiguousCovariate { candidates } => write!(f, "the model has several covariates ({}); name the one you mean", candidates.join(", ")),
             E::NonlinearCovariate { covariate } => write!(f, "`{covariate}` enters the model through a power, log or sqrt, so it has no single slope; use it untransformed"),
-            E::NotEstimable { what } => write!(f, "{what} is not estimable from this design (some coefficients are aliased, e.g. an empty cell)"),
+            E::NotEstimable { what, why } => write!(f, "{what} is not estimable from this design: {why}"),
             E::WeightsLength { expected, found } => write!(f, "{found} weights given but the factor has {expected} levels in this model; give one weight per level"),
             E::BadLevel { value } => write!(f, "{value} is not between 0 and 1"),
             E::UnknownLevel { factor, level } => write!(f, "`{level}` is not a level of `{factor}` in this model"),
-            E::NotNested => write!(f, "the smaller model is not nested in the bigger one (some of its columns are not combinations of the bigger model's columns); compare only a model with one that extends it"),
+            E::NotNested => write!(f, "neither model is nested in the other (each has columns that are not combinations of the other's columns); compare a model only with one that extends it"),
             E::DifferentRows => write!(f, "the two models were fitted on different rows (missing values differ); fit both on the same rows"),
             E::DifferentResponse => write!(f, "the two models have different responses, so their residual sums of squares cannot be compared"),
             E::SameColumnSpace => write!(f, "the two models have the same columns, so there is nothing to test"),
@@ -797,7 +825,7 @@ impl ModelWarning {
             | ModelWarning::FewDistinctValues { term, .. }
             | ModelWarning::EmptyLevel { term, .. } => Some(*term),
             ModelWarning::Aliased { terms, .. } => terms.iter().flatten().next().copied(),
-            ModelWarning::RowsDropped { .. } => None,
+            ModelWarning::RowsDropped { .. } | ModelWarning::ExactFit => None,
         }
     }
 }

@@ -53,11 +53,10 @@ impl core::error::Error for PilotError {}
 impl Fit {
     /// The model read as a pilot: residual SD, and the covariates' share of the variance
     /// its factors leave. The covariate terms' sum of squares is the rise in RSS when they
-    /// are dropped (each RSS from the fit's triangular factor, as for Type II sums of
-    /// squares).
+    /// are dropped, read off the fit's triangular factor as for Type II sums of squares.
     pub fn pilot(&self) -> Result<Pilot, PilotError> {
         let spec = &self.spec;
-        let e = &self.treat;
+        let e = &self.eng;
         let names = self.term_names();
         let mut kept_cols: Vec<usize> = if spec.intercept { vec![0] } else { Vec::new() };
         let mut covariate_cols = Vec::new();
@@ -79,15 +78,12 @@ impl Fit {
                 return Err(PilotError::SeparateSlopes { term: name });
             }
         }
-        let (rank_without, rss_without) = e.sub_rss(&kept_cols);
-        let mut all = kept_cols;
-        all.extend(&covariate_cols);
-        let (rank_with, rss_with) = e.sub_rss(&all);
-        let covariate_df = rank_with.saturating_sub(rank_without);
+        let (covariate_df, covariate_ss) = e.extra_ss(&e.a, &kept_cols, &covariate_cols);
+        let rss_without = self.rss + covariate_ss.max(0.0);
         let partial_r_squared = if covariate_df == 0 || rss_without <= 0.0 {
             0.0
         } else {
-            ((rss_without - rss_with) / rss_without).clamp(0.0, 1.0)
+            (covariate_ss / rss_without).clamp(0.0, 1.0)
         };
         let sign = match covariate_cols.as_slice() {
             [c] if self.kept.contains(c) => {

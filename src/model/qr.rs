@@ -59,16 +59,6 @@ impl Mat {
             &[]
         }
     }
-    /// A new matrix made of the given columns, in the given order.
-    pub fn select_cols(&self, cols: &[usize]) -> Mat {
-        let mut m = Mat::zeros(self.rows, cols.len());
-        for (c, &j) in cols.iter().enumerate() {
-            for i in 0..self.rows {
-                m.set(i, c, self.get(i, j));
-            }
-        }
-        m
-    }
 }
 
 fn norm2(x: &[f64]) -> f64 {

@@ -144,8 +144,9 @@ impl Fit {
                 .linear(&m.row_at(&pt))
                 .map_err(|_| ModelError::NotEstimable {
                     what: format!("the slope within {factor} = {lab}"),
+                    why: m.why_not(f, &[c]),
                 })?;
-            let t = s / se;
+            let t = if m.exact { f64::NAN } else { s / se };
             rows.push(Slope {
                 level: lab,
                 slope: s,
@@ -157,15 +158,13 @@ impl Fit {
                 upper: s + tq * se,
             });
         }
-        let e = &m.treat;
+        let e = &m.eng;
         let mine = e.term_cols.get(ti).cloned().unwrap_or_default();
         let all: Vec<usize> = (0..e.cols.len()).collect();
         let without: Vec<usize> = all.iter().copied().filter(|c| !mine.contains(c)).collect();
-        let (r0, s0) = e.sub_rss(&without);
-        let (r1, s1) = e.sub_rss(&all);
-        let df1 = r1.saturating_sub(r0);
-        let (ef, ep) = if df1 > 0 {
-            let fv = ((s0 - s1).max(0.0) / df1 as f64) / (m.rss / df as f64);
+        let (df1, extra) = e.extra_ss(&e.a, &without, &mine);
+        let (ef, ep) = if df1 > 0 && !m.exact {
+            let fv = (extra.max(0.0) / df1 as f64) / (m.rss / df as f64);
             (fv, f_p(fv, df1, df))
         } else {
             (f64::NAN, f64::NAN)
@@ -266,6 +265,7 @@ impl Fit {
         for (a, b) in pairs {
             let what = || ModelError::NotEstimable {
                 what: format!("the difference {} - {}", label(a), label(b)),
+                why: m.why_not(f, &[a, b]),
             };
             let diff = |deriv: Option<usize>| {
                 let ra = m.row_at(&m.point(f, Some(a), numeric.clone(), deriv));

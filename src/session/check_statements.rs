@@ -483,6 +483,9 @@ struct Influence {
     /// own worst, and the worst of those are the worst of all, so only a few rows are held
     /// however many are flagged.
     listed: Vec<Flagged>,
+    /// Rows with leverage 1 (their Cook's distance and studentized residual are 0/0): how
+    /// many, and the first [`MAX_LISTED`] of them in row order.
+    leverage_one: (usize, Vec<usize>),
 }
 
 /// A flagged row: (position in fitted-row order, leverage, Cook's distance, residual).
@@ -513,9 +516,15 @@ impl Influence {
         // NaN (undefined at leverage 1) compares false and flags nothing by itself. The
         // leverages are computed a block at a time; a block hands back its count of flagged
         // rows and its worst few.
-        let flags = |rows: &std::ops::Range<usize>| -> (usize, Vec<Flagged>) {
+        let flags = |rows: &std::ops::Range<usize>| -> (usize, Vec<Flagged>, Vec<usize>) {
             let leverage = fit.leverages(rows.clone());
             let residual = fit.residuals(rows.clone());
+            let ones: Vec<usize> = rows
+                .clone()
+                .zip(leverage.iter())
+                .filter(|(_, h)| **h == 1.0)
+                .map(|(k, _)| k)
+                .collect();
             let past: Vec<Flagged> = rows
                 .clone()
                 .zip(leverage.iter().copied())
@@ -527,10 +536,16 @@ impl Influence {
                         || d.student(r, h).abs() > STUDENTIZED_LIMIT
                 })
                 .collect();
-            (past.len(), worst(past))
+            (past.len(), worst(past), ones)
         };
         let blocks = crate::parallel::map(&crate::parallel::row_blocks(n), flags);
         let flagged = blocks.iter().map(|b| b.0).sum();
+        let ones_count = blocks.iter().map(|b| b.2.len()).sum();
+        let ones: Vec<usize> = blocks
+            .iter()
+            .flat_map(|b| b.2.iter().copied())
+            .take(MAX_LISTED)
+            .collect();
         let listed = worst(blocks.into_iter().flat_map(|b| b.1).collect());
         Influence {
             n,
@@ -539,6 +554,7 @@ impl Influence {
             cook_limit,
             flagged,
             listed,
+            leverage_one: (ones_count, ones),
         }
     }
 
@@ -606,6 +622,25 @@ impl Influence {
         }
         t.notes
             .push("row is the line in the data file (the header is line 1); the studentized residual is externally studentized (the row's own residual left out of its SD).".into());
+        let (count, ones) = &self.leverage_one;
+        if *count > 0 {
+            let lines: Vec<String> = ones
+                .iter()
+                .filter_map(|&k| fit.row_number(k))
+                .map(|r| r.to_string())
+                .collect();
+            let more = count.saturating_sub(lines.len());
+            t.notes.push(format!(
+                "{} {}{} {} leverage 1: {} alone determines a coefficient (for instance as the only row of a level), so {} residual is 0 by construction and {} Cook's distance and studentized residual are undefined (—).",
+                if *count == 1 { "Row" } else { "Rows" },
+                lines.join(", "),
+                if more > 0 { format!(" and {more} more") } else { String::new() },
+                if *count == 1 { "has" } else { "have" },
+                if *count == 1 { "it" } else { "each" },
+                if *count == 1 { "its" } else { "their" },
+                if *count == 1 { "its" } else { "their" },
+            ));
+        }
         t.notes.push(self.thresholds_note());
         t
     }

@@ -199,6 +199,19 @@ impl Session<'_> {
                     ]);
                 }
                 t.notes.push("A factor's coefficients compare each level with the reference level (the first).".into());
+                if m.fit.is_exact() {
+                    t.notes.push("The model fits the data exactly: the standard errors are 0 and t and p are undefined.".into());
+                }
+                let loose = m.fit.coefficient_digits();
+                if !loose.is_empty() {
+                    let worst = loose.iter().map(|(_, d)| *d).fold(f64::INFINITY, f64::min);
+                    t.notes.push(format!(
+                        "These are the coefficients of the model as written, recovered from a fit in centred covariates. Because a covariate lies far from 0 compared with its spread, {} {} determined by the data to only about {} significant digits; the sums of squares, tests, fitted values and adjusted means come from the centred fit and keep their full accuracy.",
+                        loose.iter().map(|(n, _)| code(n)).collect::<Vec<_>>().join(", "),
+                        if loose.len() == 1 { "is" } else { "are" },
+                        worst.floor().max(0.0)
+                    ));
+                }
                 Ok(vec![Item::Table(t)])
             }
             TableRequest::Anova { model, kind } => {
@@ -266,6 +279,8 @@ impl Session<'_> {
                     start: first.span.start,
                     end: second.span.end,
                 }))?;
+                // The smaller model comes first, whichever order they were named in.
+                let (a, b) = if c.swapped { (b, a) } else { (a, b) };
                 let mut t = Table::new(
                     "compare",
                     format!(
@@ -334,7 +349,15 @@ impl Session<'_> {
                         Col::new("upper", "upper", Format::Digits(4)),
                     ],
                 );
+                let mut not_estimable: Vec<String> = Vec::new();
                 for r in rows {
+                    if let Some(why) = &r.not_estimable {
+                        not_estimable.push(format!(
+                            "{}: {}",
+                            code(&r.level),
+                            crate::report::markdown::escape(why)
+                        ));
+                    }
                     t.push(vec![
                         r.level.into(),
                         r.mean.into(),
@@ -348,6 +371,12 @@ impl Session<'_> {
                     t.notes.push(
                         "Averaged over the levels of the other factors with equal weights.".into(),
                     );
+                }
+                if !not_estimable.is_empty() {
+                    t.notes.push(format!(
+                        "Not estimable from this design, shown as —: {}.",
+                        not_estimable.join("; ")
+                    ));
                 }
                 Ok(vec![Item::Table(t)])
             }
@@ -397,7 +426,16 @@ impl Session<'_> {
                     ],
                 );
                 t.level = Some(level);
+                let mut not_estimable: Vec<String> = Vec::new();
                 for r in rows {
+                    if let Some(why) = &r.not_estimable {
+                        not_estimable.push(format!(
+                            "{} - {}: {}",
+                            code(&r.first),
+                            code(&r.second),
+                            crate::report::markdown::escape(why)
+                        ));
+                    }
                     t.push(vec![
                         r.first.into(),
                         r.second.into(),
@@ -411,6 +449,12 @@ impl Session<'_> {
                     ]);
                 }
                 t.notes.push("difference = first - second.".into());
+                if !not_estimable.is_empty() {
+                    t.notes.push(format!(
+                        "Not estimable from this design, shown as — and left out of the multiplicity adjustment: {}.",
+                        not_estimable.join("; ")
+                    ));
+                }
                 Ok(vec![Item::Table(t)])
             }
             TableRequest::Slopes {
