@@ -356,7 +356,7 @@ impl Session<'_> {
 }
 
 /// The name a data set gets from its file: the file stem.
-fn default_name(path: &str) -> String {
+pub(crate) fn default_name(path: &str) -> String {
     let file = path.rsplit(['/', '\\']).next().unwrap_or(path);
     let stem = file.rsplit_once('.').map_or(file, |(s, _)| s);
     if stem.is_empty() {

@@ -5,7 +5,7 @@
 //! [`Diagnostic`] that points at the words in the document that caused it.
 
 mod check_statements;
-mod data_statements;
+pub(crate) mod data_statements;
 mod model_statements;
 mod plot_statements;
 mod procedure_statements;
@@ -84,6 +84,11 @@ impl<'w> Session<'w> {
     /// Every data file read so far, in order of first reading.
     pub fn inputs(&self) -> &[InputRecord] {
         &self.inputs
+    }
+
+    /// The data set statements act on now (the last loaded or used), as it stands.
+    pub fn current_data_set(&self) -> Option<&DataSet> {
+        self.current.and_then(|i| self.data_sets.get(i))
     }
 
     /// Runs one statement and returns what it produced.
