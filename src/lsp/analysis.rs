@@ -183,8 +183,9 @@ impl Analysis {
     }
 
     /// An offset in the text as given, in the document without regions (an offset inside a
-    /// region is taken to the region's place).
+    /// region is taken to the region's place; one inside a character, to its start).
     pub fn to_source(&self, at: usize) -> usize {
+        let at = super::position::floor_boundary(&self.text, at);
         let Some(doc) = &self.document else {
             return at;
         };
@@ -199,7 +200,7 @@ impl Analysis {
             }
             shift += len;
         }
-        at.saturating_sub(shift)
+        super::position::floor_boundary(&doc.source, at.saturating_sub(shift))
     }
 
     /// A span of the document without regions, in the text as given.

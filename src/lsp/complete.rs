@@ -92,7 +92,8 @@ impl Completion {
 pub fn complete(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Completion> {
     let doc = a.document.as_ref()?;
     let source = doc.source.as_str();
-    let at_source = a.to_source(at).min(source.len());
+    let at = super::position::floor_boundary(&a.text, at);
+    let at_source = a.to_source(at);
     let line_start = source[..at_source].rfind('\n').map_or(0, |i| i + 1);
     let line_end = source[at_source..]
         .find('\n')
