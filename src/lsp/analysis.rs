@@ -8,7 +8,7 @@ use std::sync::Arc;
 
 use crate::data::{Code, DataSet, Factor, FactorError, LevelOrder, Values};
 use crate::diagnostic::Diagnostic;
-use crate::document::{self, Document};
+use crate::document::{self, Document, DocumentError};
 use crate::lang::{
     self, CompareOp, Condition, Gate, Literal, ModelDecl, Params, ReportRequest, Span, Spanned,
     Statement, StatementKind, TableRequest, TransformDecl,
@@ -278,7 +278,18 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
                     .to_string(),
                 help: None,
             });
-            return a;
+            // A block being written has no closing fence yet: it is checked, and completed, as
+            // if closed at the end of the document.
+            let closed = match &e {
+                DocumentError::UnclosedFence { fence, .. } => {
+                    document::parse(&format!("{text}\n{fence}\n")).ok()
+                }
+                _ => None,
+            };
+            match closed {
+                Some(d) => d,
+                None => return a,
+            }
         }
     };
     let (params, _, param_errors) = pipeline::declared_parameters(&doc, &[]);
@@ -374,6 +385,7 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
             help: d.help,
         })
         .collect();
+    problems.append(&mut a.problems);
     problems.sort_by_key(|p| (p.span.start, p.span.end));
     a.problems = problems;
     a

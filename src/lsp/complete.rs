@@ -201,6 +201,19 @@ fn in_block(
     Some((out, start))
 }
 
+/// Text that stands for what a token asks for, to finish a line; `None` for a parameter (the
+/// line's parameters may not be declared).
+fn filler(t: &Token) -> Option<String> {
+    match t {
+        Token::Word(w) => Some(w.clone()),
+        Token::Slot("ident" | "name" | "value") => Some("covey_fill".to_string()),
+        Token::Slot("string") => Some("\"f\"".to_string()),
+        Token::Slot("number" | "integer") => Some("1".to_string()),
+        Token::Punct(p) => Some(p.clone()),
+        Token::Slot(_) => None,
+    }
+}
+
 /// Text that stands for a name or value while the line is finished to learn its role.
 const PROBE: &str = "covey_probe";
 
@@ -228,14 +241,22 @@ fn probe(prefix: &str, slot: &str, params: &Params) -> Option<NameUse> {
             Err(_) => {
                 let spaced = format!("{line} ");
                 let tokens = next_tokens(&spaced)?;
-                let fill = tokens.iter().find_map(|t| match t {
-                    Token::Word(w) => Some(w.clone()),
-                    Token::Slot("ident" | "name" | "value") => Some("covey_fill".to_string()),
-                    Token::Slot("string") => Some("\"f\"".to_string()),
-                    Token::Slot("number" | "integer") => Some("1".to_string()),
-                    Token::Punct(p) => Some(p.clone()),
-                    Token::Slot(_) => None,
-                })?;
+                let fills: Vec<String> = tokens.iter().filter_map(filler).collect();
+                // A word that finishes the line at once; else a closing bracket, a word, a name
+                // or a value, and only then a separator (`,`, `+`), which would only make a list
+                // longer.
+                let rank = |f: &String| match f.as_str() {
+                    ")" => 0,
+                    f if f.starts_with(|c: char| c.is_alphanumeric() || c == '"') => 1,
+                    _ => 2,
+                };
+                let finished = fills.iter().find(|f| {
+                    matches!(
+                        lang::parse_line_with(&format!("{spaced}{f}"), 0, 1, params),
+                        Ok(Some(_))
+                    )
+                });
+                let fill = finished.or_else(|| fills.iter().min_by_key(|f| rank(f)))?;
                 line = format!("{spaced}{fill}");
             }
         }

@@ -5,7 +5,7 @@
 //! another thread, so a keystroke never waits for it; the check that asked for it runs again
 //! when it is in.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -310,7 +310,7 @@ fn distinct_values(set: &DataSet, c: &Column) -> (Option<Vec<(String, usize)>>, 
         Values::Numeric(_) => MAX_NUMERIC_LEVELS,
         _ => MAX_LEVELS,
     };
-    let mut seen: BTreeMap<String, ()> = BTreeMap::new();
+    let mut seen: BTreeSet<String> = BTreeSet::new();
     let mut out: Vec<(String, usize)> = Vec::new();
     for row in 0..c.len() {
         if c.is_missing(row) {
@@ -324,13 +324,13 @@ fn distinct_values(set: &DataSet, c: &Column) -> (Option<Vec<(String, usize)>>, 
             },
             _ => c.display_value(row),
         };
-        if seen.contains_key(&text) {
+        if seen.contains(&text) {
             continue;
         }
         if out.len() == limit {
             return (None, None);
         }
-        seen.insert(text.clone(), ());
+        seen.insert(text.clone());
         out.push((text, set.row_numbers.get(row).unwrap_or(row + 2)));
     }
     let n = out.len();

@@ -6,11 +6,11 @@
 use lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind};
 
 use crate::document;
-use crate::lang::Span;
+use crate::lang::{Span, StatementKind};
 use crate::world::{FsWorld, World};
 
 use super::analysis::{Analysis, State};
-use super::data::{rows_used, DataCache};
+use super::data::{rows_used, DataCache, Lookup};
 use super::names::{NameUse, Role};
 use super::position::{Encoding, Lines};
 
@@ -156,17 +156,6 @@ fn rows_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> S
     let Some(vars) = &m.vars else {
         return "rows used: not known until its data are read".to_string();
     };
-    let bytes: u64 = state
-        .data_sets
-        .iter()
-        .map(|d| d.summary.as_ref().map_or(0, |s| s.bytes))
-        .sum();
-    if bytes > HOVER_READ_LIMIT {
-        return format!(
-            "rows used: not counted here for data over {} MiB (`covey render` tells them)",
-            HOVER_READ_LIMIT >> 20
-        );
-    }
     let Some(folder) = a.folder() else {
         return String::new();
     };
@@ -174,6 +163,26 @@ fn rows_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> S
         .statements()
         .take_while(|s| s.span.start < m.statement.span.start)
         .collect();
+    // Every file the statements before it load is read again: only when each is read already
+    // (so its size is known) and all together are small.
+    let mut bytes = 0u64;
+    let mut markers: Vec<String> = Vec::new();
+    for stmt in &before {
+        match &stmt.kind {
+            StatementKind::Missing { markers: m } => markers = m.clone(),
+            StatementKind::Load { path, .. } => match data.lookup(folder, &path.value, &markers) {
+                Lookup::Ready(s) => bytes += s.bytes,
+                _ => return "rows used: not known until its data are read".to_string(),
+            },
+            _ => {}
+        }
+    }
+    if bytes > HOVER_READ_LIMIT {
+        return format!(
+            "rows used: not counted here for data over {} MiB (`covey render` tells them)",
+            HOVER_READ_LIMIT >> 20
+        );
+    }
     let mut columns = vec![m.response.clone()];
     columns.extend(vars.iter().map(|v| v.name.clone()));
     match rows_used(folder, data.allow_outside(), &before, &columns) {

@@ -83,7 +83,9 @@ pub fn serve(connection: &Connection, options: &Options) -> Result<Ending, Strin
     let (done_in, done_out) = crossbeam_channel::unbounded::<Done>();
     let allow = options.allow_outside;
     // Files are read on a thread of their own; it ends when the server drops its end.
-    std::thread::spawn(move || data::reader(jobs_out, done_in, allow));
+    let reader = std::thread::Builder::new().name("covey-lsp-data".to_string());
+    std::thread::Builder::spawn(reader, move || data::reader(jobs_out, done_in, allow))
+        .map_err(|e| format!("cannot start the thread that reads data files: {e}"))?;
     let mut server = Server {
         connection,
         docs: BTreeMap::new(),
