@@ -975,11 +975,14 @@ fn the_binary_ends_cleanly_when_the_editor_goes_away() {
     assert!(!err.contains("panicked"), "stderr: {err}");
 }
 
-/// What completion offers at the end of `text` (a document in `dir`).
+/// What completion offers at the end of `text` (a document in `dir`), or at its `|` when it
+/// has one.
 fn completions_at_end(checker: &mut Checker, dir: &Path, text: &str) -> Vec<String> {
-    let a = checker.check(text, &dir.join("doc.md"));
+    let at = text.find('|').unwrap_or(text.len());
+    let text = text.replacen('|', "", 1);
+    let a = checker.check(&text, &dir.join("doc.md"));
     checker
-        .complete(&a, text.len())
+        .complete(&a, at)
         .map(|c| c.candidates.into_iter().map(|c| c.insert).collect())
         .unwrap_or_default()
 }
@@ -1056,4 +1059,69 @@ fn completion_follows_the_grammar_and_the_data() {
         completions_at_end(&mut checker, &dir, &format!("{doc}means m barley ")),
         ["mean", "se", "df", "lower", "upper"]
     );
+    // Not in code, where `@[` is no reference.
+    let in_code = format!("{head}```\n\nIn code: `@[means |` and on.\n");
+    assert!(completions_at_end(&mut checker, &dir, &in_code).is_empty());
+    let in_prose = format!("{head}```\n\nIn prose: @[means |] and on.\n");
+    assert_eq!(completions_at_end(&mut checker, &dir, &in_prose), ["m"]);
+    assert!(completions_at_end(
+        &mut checker,
+        &dir,
+        &format!("{head}```\n\n```text\n@[means ")
+    )
+    .is_empty());
+}
+
+#[test]
+fn definitions_and_hovers_find_what_names_stand_for() {
+    let dir = workspace("navigation");
+    let mut checker = Checker::new(false);
+    let text = "```covey\nparam alpha = 0.05\nload \"data/rations.csv\" as pens\nload \"data/rations.csv\"\nuse pens\nfactor ration\nmodel m: final_kg on ration + start_kg\nrequire equal slopes m for ration alpha @alpha\ntable fit m\nuse rations\n```\n\nR² = @[fit m r_squared].\n";
+    let a = checker.check(text, &dir.join("doc.md"));
+    assert!(a.problems.is_empty(), "{:?}", a.problems);
+    let def = |checker: &mut Checker, needle: &str, skip: usize| {
+        let at = text.find(needle).unwrap_or_else(|| panic!("{needle}")) + skip;
+        checker.definition(&a, at).map(|s| &text[s.start..s.end])
+    };
+    let at_of = |needle: &str| text.find(needle).unwrap_or(0);
+    // A model, from a statement and from a live reference.
+    let d = checker.definition(&a, at_of("fit m\n") + 4);
+    assert_eq!(d.map(|s| s.start), Some(at_of("m: final_kg")));
+    let d = checker.definition(&a, at_of("@[fit m") + 7);
+    assert_eq!(d.map(|s| s.start), Some(at_of("m: final_kg")));
+    // A data set named by `as`, and one named after its file.
+    assert_eq!(def(&mut checker, "use pens", 5), Some("pens"));
+    assert_eq!(
+        def(&mut checker, "use rations", 5),
+        Some("\"data/rations.csv\"")
+    );
+    let d = checker.definition(&a, at_of("use rations") + 5);
+    assert_eq!(
+        d.map(|s| s.start),
+        Some(at_of("load \"data/rations.csv\"\n") + 5)
+    );
+    // A parameter.
+    assert_eq!(def(&mut checker, "@alpha", 2), Some("alpha"));
+    let shown = checker
+        .hover(&a, at_of("@alpha") + 1)
+        .unwrap_or_else(|| panic!("no hover"));
+    assert!(shown.text.contains("`0.05`"), "{}", shown.text);
+    // A data set.
+    let shown = checker
+        .hover(&a, at_of("use pens") + 5)
+        .unwrap_or_else(|| panic!("no hover"));
+    assert!(shown.text.contains("30 rows, 4 columns"), "{}", shown.text);
+    // A level in a condition, and a column's type as it stands (before and after `factor`).
+    let shown = checker
+        .hover(&a, at_of("model m: final_kg") + 10)
+        .unwrap_or_else(|| panic!("no hover"));
+    assert!(
+        shown.text.contains("numeric, 1 missing of 30 rows"),
+        "{}",
+        shown.text
+    );
+    let shown = checker
+        .hover(&a, at_of("for ration") + 5)
+        .unwrap_or_else(|| panic!("no hover"));
+    assert!(shown.text.contains(": factor"), "{}", shown.text);
 }

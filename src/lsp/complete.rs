@@ -103,7 +103,7 @@ pub fn complete(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Complet
     let (candidates, word_start) = if a.block_at(at_source).is_some() {
         in_block(a, data, line, col, line_start)?
     } else {
-        in_prose(a, line, col)?
+        in_prose(a, source, line_start, line, col)?
     };
     Some(Completion {
         replace: Span {
@@ -378,8 +378,32 @@ pub fn quote_value(v: &str) -> String {
     }
 }
 
-fn in_prose(a: &Analysis, line: &str, col: usize) -> Option<(Vec<Candidate>, usize)> {
+fn in_prose(
+    a: &Analysis,
+    source: &str,
+    line_start: usize,
+    line: &str,
+    col: usize,
+) -> Option<(Vec<Candidate>, usize)> {
     let r = in_reference(line, col)?;
+    // Only in prose, as the renderer reads it (not in code, HTML or a link's address): finished
+    // at the cursor with a word and `]`, the reference must be one the document reader finds.
+    let at = line_start + col;
+    let closed = format!(
+        "{}x{}{}",
+        source.get(..at)?,
+        crate::report::live::CLOSE,
+        source.get(at..)?
+    );
+    let doc = crate::document::parse(&closed).ok()?;
+    let end = at + 1 + crate::report::live::CLOSE.len();
+    if !doc
+        .references
+        .iter()
+        .any(|found| found.start == line_start + r.open && found.end == end)
+    {
+        return None;
+    }
     let mut out = Vec::new();
     let kind = r.words.first().and_then(|k| references::kind(k));
     match r.words.len() {

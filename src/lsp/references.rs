@@ -233,6 +233,8 @@ pub fn quote(name: &str) -> String {
 /// the word it is in (a byte offset within `line`).
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct InReference {
+    /// Where its `@[` stands in the line.
+    pub open: usize,
     pub words: Vec<String>,
     pub word_start: usize,
 }
@@ -288,7 +290,11 @@ pub fn in_reference(line: &str, at: usize) -> Option<InReference> {
             break;
         }
     }
-    Some(InReference { words, word_start })
+    Some(InReference {
+        open,
+        words,
+        word_start,
+    })
 }
 
 #[cfg(test)]
