@@ -1098,12 +1098,14 @@ impl<'c> Walk<'c> {
                 self.model(model);
             }
             TableRequest::Coefficients { model, level } => {
-                if self.model(model).is_some() {
+                let known = self.model(model).is_some();
+                if known {
                     self.confidence(level.as_ref());
                 }
             }
             TableRequest::Compare { first, second } => {
-                if self.model(first).is_some() {
+                let known = self.model(first).is_some();
+                if known {
                     self.model(second);
                 }
             }
@@ -1173,6 +1175,9 @@ impl<'c> Walk<'c> {
                     }
                 }
             }
+            // A kind added to the language later: nothing to check here yet.
+            #[allow(unreachable_patterns)]
+            _ => {}
         }
     }
 
@@ -1328,7 +1333,8 @@ impl<'c> Walk<'c> {
                 }
             }
             Gate::Normality { model, alpha } => {
-                if self.alpha(alpha.as_ref()) {
+                let in_range = self.alpha(alpha.as_ref());
+                if in_range {
                     self.model(model);
                 }
             }
@@ -1361,6 +1367,9 @@ impl<'c> Walk<'c> {
                     self.error(d);
                 }
             }
+            // A kind added to the language later: nothing to check here yet.
+            #[allow(unreachable_patterns)]
+            _ => {}
         }
     }
 
@@ -1404,6 +1413,9 @@ impl<'c> Walk<'c> {
                     );
                 }
             }
+            // A kind added to the language later: nothing to check here yet.
+            #[allow(unreachable_patterns)]
+            _ => {}
         }
     }
 }
@@ -1418,6 +1430,8 @@ fn plot_word(kind: lang::PlotKind) -> &'static str {
         PlotKind::Means => "means",
         PlotKind::Influence => "influence",
         PlotKind::Groups => "groups",
+        #[allow(unreachable_patterns)]
+        _ => "figure",
     }
 }
 
