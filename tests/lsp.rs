@@ -1125,3 +1125,60 @@ fn definitions_and_hovers_find_what_names_stand_for() {
         .unwrap_or_else(|| panic!("no hover"));
     assert!(shown.text.contains(": factor"), "{}", shown.text);
 }
+
+/// One statement per line that `covey render --keep-going` refuses, none of them needing a fit to
+/// find out; the data are the invented rations.
+const REFUSED: &str = "# Statements the renderer refuses
+
+```covey
+load \"data/rations.csv\" as pens
+factor ration levels barley, maize, \"maize+soy\"
+model p: final_kg on ration + start_kg
+model q: final_kg on start_kg
+model r2: ration on start_kg
+model r3: final_kg on log(ration)
+model r4: final_kg on pen + weight
+table summary final_kg by start_kg
+table summary ration
+table means p for start_kg
+table means q for ration
+table means p for ration at pen = 3
+table pairs q for ration adjust holm
+table contrast p for start_kg weights 1, -1
+table slopes q for ration
+table slopes p of ration for ration
+table regions p of start_kg for ration between barley and oats
+table coefficients p level 95
+plot means q
+plot lines p of final_kg
+plot groups p for start_kg
+plot quantiles p of start_kg
+require equal slopes q for ration
+require 3 rows per start_kg
+require balance ration by ration
+require normality p alpha 2
+report p pairs ration between barley and oats
+unit weight \"kg\"
+keep where ration < maize
+keep where start_kg == heavy
+keep where start_kg in (light, 2)
+show nothing
+use nothing
+check r
+table fit r
+table compare p, r
+```
+";
+
+#[test]
+fn the_server_finds_what_the_renderer_refuses_without_fitting() {
+    let dir = workspace("refused");
+    let (found, total) = agree("refused", REFUSED, &dir);
+    // Every statement after the first three is refused, each for one reason.
+    let statements = REFUSED
+        .lines()
+        .filter(|l| !l.is_empty() && !l.starts_with(['#', '`']))
+        .count();
+    assert_eq!(total, statements - 4, "the renderer's errors");
+    assert_eq!(found, total, "the server finds each of them");
+}

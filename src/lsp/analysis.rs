@@ -15,10 +15,13 @@ use crate::lang::{
 };
 use crate::model::ModelError;
 use crate::pipeline;
-use crate::session::closest;
 use crate::session::data_statements::{
-    column_index, default_name, factor_column, numeric_values, quote_name,
+    column_index, default_name, factor_column, factor_error, numeric_values, quote_name,
+    unknown_data_set,
 };
+use crate::session::model_statements::confidence;
+use crate::session::plot_statements::{kind_word, listing};
+use crate::session::{closest, no_data_set, unknown_model};
 
 use super::data::{DataCache, Lookup, Summary};
 use super::names::{tables_of, uses_of, NameUse};
@@ -452,11 +455,7 @@ impl<'c> Walk<'c> {
             Some(d) => d.shape.clone(),
             None if self.broken => None,
             None => {
-                self.error(
-                    Diagnostic::new(span, "no data set is loaded yet")
-                        .label("needs data")
-                        .help("load a file first, for example `load \"data.csv\"`"),
-                );
+                self.error(no_data_set(span));
                 None
             }
         }
@@ -481,24 +480,29 @@ impl<'c> Walk<'c> {
             return None;
         }
         let known: Vec<&str> = self.state.models.iter().map(|m| m.name.as_str()).collect();
-        let help = match closest(&name.value, &known) {
-            Some(c) => format!("did you mean `{c}`?"),
-            None if known.is_empty() => {
-                "declare it first with `model NAME: RESPONSE on TERMS`".into()
-            }
-            None => format!("the models so far are {}", known.join(", ")),
-        };
-        let d = Diagnostic::new(
-            name.span,
-            format!("there is no model called `{}`", name.value),
-        )
-        .label("unknown model")
-        .help(help);
+        let d = unknown_model(name, &known);
         self.error(d);
         None
     }
 
+    /// Walks one statement. Like the renderer, it reports the first error a statement has.
     fn statement(&mut self, stmt: &Statement) {
+        let before = self.problems.len();
+        self.statement_checks(stmt);
+        let mut seen_error = false;
+        let mut i = before;
+        while i < self.problems.len() {
+            let error = self.problems[i].1 == Severity::Error;
+            if error && seen_error {
+                self.problems.remove(i);
+            } else {
+                seen_error |= error;
+                i += 1;
+            }
+        }
+    }
+
+    fn statement_checks(&mut self, stmt: &Statement) {
         // A statement the server does not know yet (added to the grammar later) is only parsed.
         #[allow(unreachable_patterns)]
         match &stmt.kind {
@@ -607,25 +611,16 @@ impl<'c> Walk<'c> {
             }
             None if self.broken => {}
             None => {
-                let mut d = Diagnostic::new(
-                    name.span,
-                    format!("there is no data set called `{}`", name.value),
-                )
-                .label("unknown data set");
-                if switch {
-                    let known: Vec<&str> = self
-                        .state
-                        .data_sets
-                        .iter()
-                        .map(|d| d.name.as_str())
-                        .collect();
-                    d = d.help(match closest(&name.value, &known) {
-                        Some(c) => format!("did you mean `{c}`?"),
-                        None if known.is_empty() => {
-                            "load a file first: `load \"FILE\" as NAME`".into()
-                        }
-                        None => format!("the data sets so far are {}", known.join(", ")),
-                    });
+                let known: Vec<&str> = self
+                    .state
+                    .data_sets
+                    .iter()
+                    .map(|d| d.name.as_str())
+                    .collect();
+                let mut d = unknown_data_set(name, &known);
+                // `show` says no more than that.
+                if !switch {
+                    d.help = None;
                 }
                 self.error(d);
             }
@@ -676,18 +671,6 @@ impl<'c> Walk<'c> {
                 level == value
             }
         };
-        let in_factor = |d: Diagnostic| {
-            let span = levels
-                .and_then(|l| {
-                    let (first, last) = (l.first()?, l.last()?);
-                    Some(Span {
-                        start: first.span.start,
-                        end: last.span.end,
-                    })
-                })
-                .unwrap_or(column.span);
-            Diagnostic::new(span, d.message).label("in this factor")
-        };
         let new_levels: Vec<String> = match (levels, &found) {
             (Some(decl), Some(found)) => {
                 // After `keep`, values of the file may be gone: only what is there counts.
@@ -702,7 +685,7 @@ impl<'c> Walk<'c> {
                             row: 0,
                             line: Some(*line).filter(|l| *l > 0),
                         };
-                        self.error(in_factor(Diagnostic::new(column.span, e.to_string())));
+                        self.error(factor_error(column, levels, &e));
                     } else {
                         for l in decl {
                             if !found.iter().any(|(v, _)| same(&l.value, v)) {
@@ -729,7 +712,7 @@ impl<'c> Walk<'c> {
                         column: column.value.clone(),
                         found: found.iter().map(|(v, _)| v.clone()).collect(),
                     };
-                    self.error(in_factor(Diagnostic::new(column.span, e.to_string())));
+                    self.error(factor_error(column, levels, &e));
                 }
                 found.iter().map(|(v, _)| v.clone()).collect()
             }
@@ -1066,14 +1049,8 @@ impl<'c> Walk<'c> {
     }
 
     fn confidence(&mut self, level: Option<&Spanned<f64>>) {
-        if let Some(l) = level {
-            if !(l.value > 0.0 && l.value < 1.0) {
-                self.error(
-                    Diagnostic::new(l.span, "a confidence level lies between 0 and 1")
-                        .label("not a level")
-                        .help("write it as a proportion, e.g. `level 0.99`"),
-                );
-            }
+        if let Err(d) = confidence(level) {
+            self.error(d);
         }
     }
 
@@ -1203,7 +1180,7 @@ impl<'c> Walk<'c> {
             .filter(|v| v.factor)
             .map(|v| v.name.as_str())
             .collect();
-        let word = plot_word(kind);
+        let word = kind_word(kind);
         let takes_covariate = matches!(kind, PlotKind::Lines | PlotKind::Residuals);
         match covariate {
             Some(c) if !takes_covariate => {
@@ -1262,7 +1239,7 @@ impl<'c> Walk<'c> {
         }
         let needs_factor = matches!(kind, PlotKind::Means | PlotKind::Groups);
         match factor {
-            Some(f) if !factors.contains(&f.value.as_str()) => {
+            Some(named) if !factors.contains(&named.value.as_str()) => {
                 let help = if factors.is_empty() {
                     format!("model `{}` has no factor", model.value)
                 } else {
@@ -1270,8 +1247,11 @@ impl<'c> Walk<'c> {
                 };
                 self.error(
                     Diagnostic::new(
-                        f.span,
-                        format!("`{}` is not a factor of model `{}`", f.value, model.value),
+                        named.span,
+                        format!(
+                            "`{}` is not a factor of model `{}`",
+                            named.value, model.value
+                        ),
                     )
                     .label("not a factor of this model")
                     .help(help),
@@ -1417,33 +1397,5 @@ impl<'c> Walk<'c> {
             #[allow(unreachable_patterns)]
             _ => {}
         }
-    }
-}
-
-/// The word of a figure kind, as the grammar spells it.
-fn plot_word(kind: lang::PlotKind) -> &'static str {
-    use lang::PlotKind;
-    match kind {
-        PlotKind::Lines => "lines",
-        PlotKind::Residuals => "residuals",
-        PlotKind::Quantiles => "quantiles",
-        PlotKind::Means => "means",
-        PlotKind::Influence => "influence",
-        PlotKind::Groups => "groups",
-        #[allow(unreachable_patterns)]
-        _ => "figure",
-    }
-}
-
-/// Names in backticks, joined with commas and a final "and", as the renderer lists them.
-fn listing(names: &[&str]) -> String {
-    let quoted: Vec<String> = names
-        .iter()
-        .map(|n| crate::report::markdown::code(n))
-        .collect();
-    match quoted.as_slice() {
-        [] => String::new(),
-        [one] => one.clone(),
-        [rest @ .., last] => format!("{} and {last}", rest.join(", ")),
     }
 }

@@ -2,7 +2,9 @@
 //! model being declared or used, a data set, a column, a factor or covariate of a model, a level
 //! of a column. Hover, go to definition and completion all start here.
 
-use crate::lang::{Condition, Gate, ReportRequest, Span, Statement, StatementKind, TableRequest};
+use crate::lang::{
+    Condition, Gate, ReportRequest, Span, Spanned, Statement, StatementKind, TableRequest,
+};
 
 /// What a name in a statement stands for.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -50,6 +52,21 @@ fn push(out: &mut Vec<NameUse>, span: Span, name: &str, role: Role, context: &st
         role,
         context: context.to_string(),
     });
+}
+
+/// Two levels of a model's factor (`between A and B`).
+fn push_levels(
+    o: &mut Vec<NameUse>,
+    model: &Spanned<String>,
+    factor: &Spanned<String>,
+    levels: [&Spanned<String>; 2],
+) {
+    for l in levels {
+        let role = Role::ModelLevel {
+            model: model.value.clone(),
+        };
+        push(o, l.span, &l.value, role, &factor.value);
+    }
 }
 
 /// The names of a statement and their roles, in the order written.
@@ -104,8 +121,8 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
             if let Some(c) = covariate {
                 push(o, c.span, &c.value, Role::ModelCovariate, &model.value);
             }
-            if let Some(f) = factor {
-                push(o, f.span, &f.value, Role::ModelFactor, &model.value);
+            if let Some(named) = factor {
+                push(o, named.span, &named.value, Role::ModelFactor, &model.value);
             }
         }
         StatementKind::Unit { column, .. } => push(o, column.span, &column.value, Role::Column, ""),
@@ -160,12 +177,7 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
                     Role::ModelFactor,
                     &model.value,
                 );
-                for l in [first, second] {
-                    let role = Role::ModelLevel {
-                        model: model.value.clone(),
-                    };
-                    push(o, l.span, &l.value, role, &factor.value);
-                }
+                push_levels(o, model, factor, [first, second]);
             }
             // A kind added to the language later: no named parts here yet.
             #[allow(unreachable_patterns)]
@@ -205,9 +217,8 @@ fn condition_uses(c: &Condition, o: &mut Vec<NameUse>) {
 }
 
 fn table_uses(request: &TableRequest, o: &mut Vec<NameUse>) {
-    let model_span = |o: &mut Vec<NameUse>, m: &crate::lang::Spanned<String>| {
-        push(o, m.span, &m.value, Role::Model, "")
-    };
+    let model_span =
+        |o: &mut Vec<NameUse>, m: &Spanned<String>| push(o, m.span, &m.value, Role::Model, "");
     match request {
         TableRequest::Summary { column, by } => {
             push(o, column.span, &column.value, Role::Column, "");
@@ -290,12 +301,7 @@ fn table_uses(request: &TableRequest, o: &mut Vec<NameUse>) {
                 &model.value,
             );
             if let Some((a, b)) = between {
-                for l in [a, b] {
-                    let role = Role::ModelLevel {
-                        model: model.value.clone(),
-                    };
-                    push(o, l.span, &l.value, role, &factor.value);
-                }
+                push_levels(o, model, factor, [a, b]);
             }
         }
         // A table added to the language later: no named parts here yet.
