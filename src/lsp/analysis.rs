@@ -345,12 +345,13 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
     for stmt in a.blocks.iter().flat_map(|b| b.statements.iter()) {
         walk.statement(stmt);
         a.uses.extend(uses_of(stmt));
-        a.tables.extend(
-            tables_of(stmt)
-                .into_iter()
-                .filter(|(k, _)| k != "influence"),
-        );
-        a.maybe_tables.extend(tables_of(stmt));
+        // `check` lists influential rows in a table of their own only when there are some.
+        for (kind, subject) in tables_of(stmt) {
+            if kind != "influence" {
+                a.tables.push((kind.clone(), subject.clone()));
+            }
+            a.maybe_tables.push((kind, subject));
+        }
     }
     a.pending = walk.pending;
     let walk_broken = walk.broken;

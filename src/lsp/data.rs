@@ -207,7 +207,7 @@ impl DataCache {
                 Lookup::Pending
             }
             None => {
-                let lookup = read(&key, self.allow_outside);
+                let lookup = read(&key, self.allow_outside, fingerprint.len);
                 self.entries
                     .insert(key, Entry::Done(fingerprint, lookup.clone()));
                 lookup
@@ -232,7 +232,7 @@ impl DataCache {
 /// either channel closes. Run it on a thread of its own.
 pub fn reader(jobs: Receiver<Job>, done: Sender<Done>, allow_outside: bool) {
     for job in jobs {
-        let lookup = read(&job.key, allow_outside);
+        let lookup = read(&job.key, allow_outside, job.fingerprint.len);
         let result = Done {
             key: job.key,
             fingerprint: job.fingerprint,
@@ -244,9 +244,9 @@ pub fn reader(jobs: Receiver<Job>, done: Sender<Done>, allow_outside: bool) {
     }
 }
 
-/// Reads a data file with the renderer's own statements (`missing`, then `load`) and sums up
-/// its columns.
-fn read(key: &Key, allow_outside: bool) -> Lookup {
+/// Reads a data file (of `bytes` bytes) with the renderer's own statements (`missing`, then
+/// `load`) and sums up its columns.
+fn read(key: &Key, allow_outside: bool, bytes: u64) -> Lookup {
     let world = FsWorld::new(&key.folder, allow_outside);
     let mut session = Session::new(&world);
     let statement = |kind| Statement {
@@ -276,7 +276,6 @@ fn read(key: &Key, allow_outside: bool) -> Lookup {
     let Some(set) = session.current_data_set() else {
         return Lookup::Pending;
     };
-    let bytes = world.fingerprint(&key.path).map(|f| f.len).unwrap_or(0);
     Lookup::Ready(Arc::new(summarize(set, bytes)))
 }
 

@@ -1,6 +1,7 @@
 //! Live references `@[KIND MODEL ROW COLUMN]` in prose: the tables they may name, the checks that
 //! need no computed table, and where in a reference the cursor stands.
 
+pub(crate) use crate::report::live::quote;
 use crate::report::live::{self, LiveError};
 
 /// What a table's live references name as their subject.
@@ -217,15 +218,6 @@ pub fn check(
                 .collect(),
         }),
         _ => Ok(()),
-    }
-}
-
-/// A name as a reference writes it: quoted when it holds a space.
-pub fn quote(name: &str) -> String {
-    if name.is_empty() || name.contains(char::is_whitespace) {
-        format!("\"{name}\"")
-    } else {
-        name.to_string()
     }
 }
 

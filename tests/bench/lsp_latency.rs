@@ -135,6 +135,8 @@ fn main() {
     let path = dir.join("doc.md");
     let text = document();
     assert_eq!(text.lines().count(), LINES);
+    // On disk too, to be read or rendered (`covey render target/bench/lsp/doc.md`).
+    std::fs::write(&path, &text).unwrap_or_else(|e| panic!("{e}"));
 
     // The first check reads the data file.
     let mut first = Vec::new();
