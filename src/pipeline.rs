@@ -374,6 +374,7 @@ pub fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str
 /// Maps offsets in the source without regions to offsets in the text as
 /// given (which may hold regions from an earlier in-place render), so that
 /// messages point at the lines the user sees in the file.
+#[derive(Debug, Clone, Default)]
 pub(crate) struct Shift {
     /// (offset in the source, bytes of regions inserted there), ascending.
     inserts: Vec<(usize, usize)>,

@@ -14,7 +14,7 @@ use crate::lang::{
     Statement, StatementKind, TableRequest, TransformDecl,
 };
 use crate::model::ModelError;
-use crate::pipeline;
+use crate::pipeline::{self, Shift};
 use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, quote_name,
     unknown_data_set,
@@ -149,6 +149,9 @@ pub struct Analysis {
     pub path: Option<PathBuf>,
     /// The document without covey's regions, when its Markdown could be read.
     pub document: Option<Document>,
+    /// From offsets in the document without regions to offsets in the text as given, as the
+    /// renderer maps its messages.
+    shift: Shift,
     pub params: Params,
     /// Where each parameter is declared (first declaration).
     pub param_defs: Vec<(String, Span)>,
@@ -174,15 +177,7 @@ impl Analysis {
 
     /// An offset in the document without regions, in the text as given.
     pub fn to_given(&self, at: usize) -> usize {
-        let Some(doc) = &self.document else {
-            return at;
-        };
-        at + doc
-            .removed
-            .iter()
-            .filter(|(pos, _)| *pos <= at)
-            .map(|(_, len)| len)
-            .sum::<usize>()
+        self.shift.offset(at)
     }
 
     /// An offset in the text as given, in the document without regions (an offset inside a
@@ -208,10 +203,7 @@ impl Analysis {
 
     /// A span of the document without regions, in the text as given.
     pub fn span_to_given(&self, s: Span) -> Span {
-        Span {
-            start: self.to_given(s.start),
-            end: self.to_given(s.end.max(s.start)),
-        }
+        self.shift.span(s)
     }
 
     /// The source (the document without regions), or the text as given.
@@ -251,6 +243,7 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
         text: text.to_string(),
         path: path.map(Path::to_path_buf),
         document: None,
+        shift: Shift::default(),
         params: Params::new(),
         param_defs: Vec::new(),
         blocks: Vec::new(),
@@ -379,6 +372,7 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
             ));
         }
     }
+    a.shift = Shift::new(&doc);
     a.document = Some(doc);
     let mut problems: Vec<Problem> = source_problems
         .into_iter()
