@@ -641,13 +641,16 @@ impl<'c> Walk<'c> {
                 }
             }
         }
-        let Some(ds) = self.state.current().cloned() else {
+        let Some((filtered, summary)) = self
+            .state
+            .current()
+            .map(|d| (d.filtered, d.summary.clone()))
+        else {
             return;
         };
         let found: Option<Vec<(String, usize)>> = match set.columns.get(idx).map(|c| &c.values) {
             Some(Values::Factor(f)) => Some(f.levels.iter().map(|l| (l.clone(), 0)).collect()),
-            _ => ds
-                .summary
+            _ => summary
                 .as_ref()
                 .and_then(|s| s.column(&column.value))
                 .and_then(|c| c.levels.clone()),
@@ -669,7 +672,7 @@ impl<'c> Walk<'c> {
         let new_levels: Vec<String> = match (levels, &found) {
             (Some(decl), Some(found)) => {
                 // After `keep`, values of the file may be gone: only what is there counts.
-                if !ds.filtered {
+                if !filtered {
                     if let Some((value, line)) = found
                         .iter()
                         .find(|(v, _)| !decl.iter().any(|l| same(&l.value, v)))
@@ -688,8 +691,8 @@ impl<'c> Walk<'c> {
                                     Diagnostic::new(
                                         l.span,
                                         format!(
-                                            "Level `{}` is declared but no row has it.",
-                                            l.value
+                                            "Level {} is declared but no row has it.",
+                                            crate::report::markdown::code(&l.value)
                                         ),
                                     )
                                     .label("no row has it"),
@@ -702,7 +705,7 @@ impl<'c> Walk<'c> {
             }
             (Some(decl), None) => decl.iter().map(|l| l.value.clone()).collect(),
             (None, Some(found)) => {
-                if found.len() < 2 && !ds.filtered {
+                if found.len() < 2 && !filtered {
                     let e = FactorError::TooFewLevels {
                         column: column.value.clone(),
                         found: found.iter().map(|(v, _)| v.clone()).collect(),
