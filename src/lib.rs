@@ -11,6 +11,7 @@ pub mod diagnostic;
 pub mod document;
 pub mod files;
 pub mod lang;
+pub mod lsp;
 pub mod model;
 pub mod parallel;
 pub mod pipeline;

@@ -57,6 +57,15 @@ enum Command {
         /// Name of the folder and the document to create.
         name: String,
     },
+    /// Run a language server for editors, on standard input and output.
+    Lsp {
+        /// Let `load` read files outside each document's folder.
+        #[arg(long)]
+        allow_outside: bool,
+        /// Accepted for editors that pass it; standard input and output are always used.
+        #[arg(long, hide = true)]
+        stdio: bool,
+    },
     /// Tell whether the renderings on disk are current (exit 0) or stale (exit 1).
     Check {
         /// Documents, or folders of documents (*.md).
@@ -212,6 +221,21 @@ fn run(command: Command, console: &mut Console) -> u8 {
                 return 2;
             }
         },
+        Command::Lsp { allow_outside, .. } => {
+            let opts = covey::lsp::Options {
+                allow_outside,
+                ..covey::lsp::Options::default()
+            };
+            return match covey::lsp::run_stdio(&opts) {
+                Ok(covey::lsp::Ending::Clean) => 0,
+                // The protocol's exit code for `exit` without `shutdown`.
+                Ok(covey::lsp::Ending::ExitWithoutShutdown) => 1,
+                Err(e) => {
+                    let _ = console.err(&format!("covey lsp: {e}"));
+                    2
+                }
+            };
+        }
         Command::Check {
             paths,
             out,

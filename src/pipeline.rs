@@ -283,6 +283,21 @@ fn parameters(
     doc: &Document,
     set: &[(String, String)],
 ) -> Result<(lang::Params, Vec<String>), Vec<Diagnostic>> {
+    let (params, notes, errors) = declared_parameters(doc, set);
+    if errors.is_empty() {
+        Ok((params, notes))
+    } else {
+        Err(errors)
+    }
+}
+
+/// The document's parameters (the first declaration of each, with `set` applied), the
+/// provenance sentence listing them, and an error at every second declaration. [`run`] stops at
+/// those errors; the language server goes on to parse the blocks with the parameters found.
+pub fn declared_parameters(
+    doc: &Document,
+    set: &[(String, String)],
+) -> (lang::Params, Vec<String>, Vec<Diagnostic>) {
     let mut params = lang::Params::new();
     let mut shown = Vec::new();
     let mut errors = Vec::new();
@@ -330,20 +345,17 @@ fn parameters(
             }
         }
     }
-    if !errors.is_empty() {
-        return Err(errors);
-    }
     let notes = if shown.is_empty() {
         Vec::new()
     } else {
         vec![format!("Parameters: {}.", shown.join("; "))]
     };
-    Ok((params, notes))
+    (params, notes, errors)
 }
 
 /// The lines of a block as (text, document offset, line number), read from
 /// the source so that offsets are exact whatever the fence indentation.
-fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, usize, usize)> {
+pub fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, usize, usize)> {
     let n = block.code.split_terminator('\n').count();
     let mut out = Vec::with_capacity(n);
     let mut offset = block.code_start;
@@ -362,19 +374,20 @@ fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, us
 /// Maps offsets in the source without regions to offsets in the text as
 /// given (which may hold regions from an earlier in-place render), so that
 /// messages point at the lines the user sees in the file.
-struct Shift {
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Shift {
     /// (offset in the source, bytes of regions inserted there), ascending.
     inserts: Vec<(usize, usize)>,
 }
 
 impl Shift {
-    fn new(doc: &Document) -> Shift {
+    pub(crate) fn new(doc: &Document) -> Shift {
         Shift {
             inserts: doc.removed.clone(),
         }
     }
 
-    fn offset(&self, at: usize) -> usize {
+    pub(crate) fn offset(&self, at: usize) -> usize {
         at + self
             .inserts
             .iter()
@@ -383,7 +396,7 @@ impl Shift {
             .sum::<usize>()
     }
 
-    fn span(&self, s: Span) -> Span {
+    pub(crate) fn span(&self, s: Span) -> Span {
         Span {
             start: self.offset(s.start),
             end: self.offset(s.end.max(s.start)),

@@ -101,7 +101,28 @@ impl FsWorld {
     }
 }
 
+/// What tells one version of a data file from another without reading it: where it resolves,
+/// its length and its modification time.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Fingerprint {
+    pub resolved: PathBuf,
+    pub len: u64,
+    pub modified: Option<std::time::SystemTime>,
+}
+
 impl FsWorld {
+    /// The fingerprint of the file at `path`, confined like [`World::read`]: a cache of what
+    /// was read from the file stays valid while this stays the same.
+    pub fn fingerprint(&self, path: &str) -> Result<Fingerprint, WorldError> {
+        let resolved = self.file(path)?;
+        let meta = std::fs::metadata(&resolved).map_err(|e| io_error(path, &e))?;
+        Ok(Fingerprint {
+            len: meta.len(),
+            modified: meta.modified().ok(),
+            resolved,
+        })
+    }
+
     /// Where `path` points, if that is a file.
     fn file(&self, path: &str) -> Result<PathBuf, WorldError> {
         let resolved = self.resolve(path)?;

@@ -285,6 +285,101 @@ proptest! {
     }
 }
 
+/// A folder holding the documents' data files, for the language server (which reads them from
+/// disk, confined to the document's folder, as the renderer does).
+fn lsp_folder() -> &'static std::path::Path {
+    static DIR: std::sync::OnceLock<std::path::PathBuf> = std::sync::OnceLock::new();
+    DIR.get_or_init(|| {
+        let dir = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("fuzz-lsp");
+        std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(dir.join("d.csv"), DATA).unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(dir.join("t.tsv"), DATA.replace(',', "\t"))
+            .unwrap_or_else(|e| panic!("{e}"));
+        dir
+    })
+}
+
+/// A protocol message as the language server's tests send it.
+fn lsp_message(method: &str, id: Option<i32>, params: serde_json::Value) -> lsp_server::Message {
+    match id {
+        Some(id) => lsp_server::Message::Request(lsp_server::Request::new(
+            id.into(),
+            method.to_string(),
+            params,
+        )),
+        None => lsp_server::Message::Notification(lsp_server::Notification::new(
+            method.to_string(),
+            params,
+        )),
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 400, failure_persistence: None, ..ProptestConfig::default() })]
+
+    /// The language server on the same documents: a check, then completion, hover and
+    /// definition at places spread over the text (byte offsets, some inside characters).
+    #[test]
+    fn documents_never_panic_the_language_server(text in document(), places in prop::collection::vec(any::<prop::sample::Index>(), 0..8)) {
+        let path = lsp_folder().join("fuzz.md");
+        let mut checker = covey::lsp::Checker::new(false);
+        let a = timed("lsp check", || checker.check(&text, &path));
+        for place in places {
+            let at = place.index(text.len() + 1);
+            timed("lsp completion", || checker.complete(&a, at));
+            timed("lsp hover", || checker.hover(&a, at));
+            timed("lsp definition", || checker.definition(&a, at));
+        }
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 60, failure_persistence: None, ..ProptestConfig::default() })]
+
+    /// Whole sessions: a generated document opened, edited at arbitrary places (past the ends of
+    /// lines and of the text too) with arbitrary text, and asked about arbitrary places; every
+    /// request is answered and the session ends cleanly.
+    #[test]
+    fn sessions_never_panic_the_language_server(
+        text in document(),
+        edits in prop::collection::vec((0u32..40, 0u32..90, 0u32..40, 0u32..90, prop_oneof![covey_line(), "\\PC{0,30}"]), 0..6),
+        asks in prop::collection::vec((0u32..40, 0u32..90), 0..6),
+    ) {
+        use serde_json::json;
+        let (server, client) = lsp_server::Connection::memory();
+        let options = covey::lsp::Options { debounce: Duration::ZERO, ..covey::lsp::Options::default() };
+        let handle = std::thread::spawn(move || covey::lsp::serve(&server, &options));
+        let uri = format!("file://{}", lsp_folder().join("fuzz.md").display());
+        let send = |m| client.sender.send(m).unwrap_or_else(|e| panic!("{e}"));
+        send(lsp_message("initialize", Some(0), json!({"capabilities": {}})));
+        send(lsp_message("initialized", None, json!({})));
+        send(lsp_message("textDocument/didOpen", None, json!({"textDocument": {"uri": uri, "languageId": "markdown", "version": 1, "text": text}})));
+        for (i, (l1, c1, l2, c2, new)) in edits.iter().enumerate() {
+            let (start, end) = if (l1, c1) <= (l2, c2) { ((l1, c1), (l2, c2)) } else { ((l2, c2), (l1, c1)) };
+            send(lsp_message("textDocument/didChange", None, json!({"textDocument": {"uri": uri, "version": 2 + i},
+                "contentChanges": [{"range": {"start": {"line": start.0, "character": start.1}, "end": {"line": end.0, "character": end.1}}, "text": new}]})));
+        }
+        let mut id = 1;
+        for (line, character) in &asks {
+            for method in ["textDocument/completion", "textDocument/hover", "textDocument/definition", "textDocument/documentSymbol"] {
+                send(lsp_message(method, Some(id), json!({"textDocument": {"uri": uri}, "position": {"line": line, "character": character}})));
+                id += 1;
+            }
+        }
+        send(lsp_message("shutdown", Some(id), serde_json::Value::Null));
+        send(lsp_message("exit", None, serde_json::Value::Null));
+        let ending = handle.join().unwrap_or_else(|_| panic!("the server panicked"));
+        prop_assert_eq!(ending, Ok(covey::lsp::Ending::Clean));
+        // One answer per request (the first is `initialize`'s), none an error.
+        let answers: Vec<lsp_server::Response> = client.receiver.try_iter().filter_map(|m| match m {
+            lsp_server::Message::Response(r) => Some(r),
+            _ => None,
+        }).collect();
+        prop_assert_eq!(answers.len(), id as usize + 1);
+        prop_assert!(answers.iter().all(|r| r.response_result.is_ok()));
+    }
+}
+
 /// Regression (found by `lines_never_panic`): a line starting with a
 /// multi-byte space such as U+00A0 or U+2009 sliced the line inside the
 /// character when the syntax error quoted the offending word.

@@ -306,6 +306,22 @@ fn strip_all(
     Ok((stripped, references))
 }
 
+/// The values a rendering shows in place of its live references, as (reference as written,
+/// value as rendered), in document order.
+pub fn rendered_values(text: &str) -> Vec<(String, String)> {
+    values::scan(text)
+        .regions
+        .into_iter()
+        .filter_map(|r| {
+            let from =
+                r.start + r.guard + VALUE_BEGIN.len() + r.reference.len() + VALUE_BEGIN_CLOSE.len();
+            let to = r.end.checked_sub(VALUE_END.len())?;
+            let value = text.get(from..to)?.to_string();
+            Some((r.reference, value))
+        })
+        .collect()
+}
+
 /// What a rendered document holds: its source, and the bodies of its regions.
 pub fn split_rendered(text: &str) -> Result<Rendered, DocumentError> {
     let (stripped, references) = strip_all(text, true)?;

@@ -68,6 +68,36 @@ pub fn parse_line_with(
     }))
 }
 
+/// What the grammar accepts right after `prefix`, the start of a line of a block: the rules the
+/// parser tried at its end, in the order it tried them (the end of the line among them when
+/// the line may stop there). `None` when the prefix does not parse up to its end (a syntax error
+/// earlier on, or a comment). The language server completes from this, so that what it offers
+/// is what the grammar accepts and nothing is listed twice.
+pub fn expected_after(prefix: &str) -> Option<Vec<Rule>> {
+    // A control character no rule accepts (the grammar's whitespace is space and tab): the parse
+    // stops at it, with what it tried there.
+    let probe = format!("{prefix}\u{1}");
+    let e = CoveyParser::parse(Rule::line, &probe).err()?;
+    let pos = match e.location {
+        pest::error::InputLocation::Pos(p) => p,
+        pest::error::InputLocation::Span((s, _)) => s,
+    };
+    match e.variant {
+        pest::error::ErrorVariant::ParsingError { positives, .. } if pos == prefix.len() => {
+            Some(positives)
+        }
+        _ => None,
+    }
+}
+
+/// Whether the whole of `text` is one `rule` of the grammar (a keyword rule and its word, say).
+pub fn is_whole(rule: Rule, text: &str) -> bool {
+    CoveyParser::parse(rule, text)
+        .ok()
+        .and_then(|mut p| p.next())
+        .is_some_and(|p| p.as_str().len() == text.len())
+}
+
 fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> SyntaxError {
     use pest::error::{ErrorVariant, InputLocation};
     let pos = match e.location {

@@ -279,7 +279,7 @@ fn find_table<'a>(parsed: &Parsed, outputs: &'a [Output]) -> Result<&'a Table, L
 }
 
 /// A name as a reference writes it: quoted when it holds a space or a quote.
-fn quote(name: &str) -> String {
+pub(crate) fn quote(name: &str) -> String {
     if name.is_empty() || name.contains(char::is_whitespace) {
         format!("\"{name}\"")
     } else {

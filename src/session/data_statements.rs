@@ -128,17 +128,7 @@ impl Session<'_> {
             }
             None => {
                 let known: Vec<&str> = self.data_sets.iter().map(|d| d.name.as_str()).collect();
-                let help = match super::closest(&name.value, &known) {
-                    Some(c) => format!("did you mean `{c}`?"),
-                    None if known.is_empty() => "load a file first: `load \"FILE\" as NAME`".into(),
-                    None => format!("the data sets so far are {}", known.join(", ")),
-                };
-                Err(Diagnostic::new(
-                    name.span,
-                    format!("there is no data set called `{}`", name.value),
-                )
-                .label("unknown data set")
-                .help(help))
+                Err(unknown_data_set(name, &known))
             }
         }
     }
@@ -167,18 +157,7 @@ impl Session<'_> {
         // The factor takes the place of the column, and may take its row codes with it.
         let factor = data::take_factor(&mut set.columns[idx], declared.as_deref())
             .map_err(|e| e.locate(&set.row_numbers))
-            .map_err(|e| {
-                let span = levels
-                    .and_then(|l| {
-                        let (first, last) = (l.first()?, l.last()?);
-                        Some(Span {
-                            start: first.span.start,
-                            end: last.span.end,
-                        })
-                    })
-                    .unwrap_or(column.span);
-                Diagnostic::new(span, e.to_string()).label("in this factor")
-            })?;
+            .map_err(|e| factor_error(column, levels, &e))?;
         let unused: Vec<String> = data::unused_levels(&factor)
             .iter()
             .map(|s| s.to_string())
@@ -355,8 +334,42 @@ impl Session<'_> {
     }
 }
 
+/// The error for `use NAME` of a data set that is not loaded; `known` are those loaded so far.
+pub(crate) fn unknown_data_set(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
+    let help = match super::closest(&name.value, known) {
+        Some(c) => format!("did you mean `{c}`?"),
+        None if known.is_empty() => "load a file first: `load \"FILE\" as NAME`".into(),
+        None => format!("the data sets so far are {}", known.join(", ")),
+    };
+    Diagnostic::new(
+        name.span,
+        format!("there is no data set called `{}`", name.value),
+    )
+    .label("unknown data set")
+    .help(help)
+}
+
+/// The error for a column that cannot be made the factor a `factor` statement declares: at its
+/// levels when it lists them, else at the column.
+pub(crate) fn factor_error(
+    column: &Spanned<String>,
+    levels: Option<&[Spanned<String>]>,
+    e: &data::FactorError,
+) -> Diagnostic {
+    let span = levels
+        .and_then(|l| {
+            let (first, last) = (l.first()?, l.last()?);
+            Some(Span {
+                start: first.span.start,
+                end: last.span.end,
+            })
+        })
+        .unwrap_or(column.span);
+    Diagnostic::new(span, e.to_string()).label("in this factor")
+}
+
 /// The name a data set gets from its file: the file stem.
-fn default_name(path: &str) -> String {
+pub(crate) fn default_name(path: &str) -> String {
     let file = path.rsplit(['/', '\\']).next().unwrap_or(path);
     let stem = file.rsplit_once('.').map_or(file, |(s, _)| s);
     if stem.is_empty() {

@@ -5,10 +5,10 @@
 //! [`Diagnostic`] that points at the words in the document that caused it.
 
 mod check_statements;
-mod data_statements;
-mod model_statements;
+pub(crate) mod data_statements;
+pub(crate) mod model_statements;
 mod plan_statements;
-mod plot_statements;
+pub(crate) mod plot_statements;
 mod procedure_statements;
 
 use std::cell::RefCell;
@@ -90,6 +90,11 @@ impl<'w> Session<'w> {
         &self.inputs
     }
 
+    /// The data set statements act on now (the last loaded or used), as it stands.
+    pub fn current_data_set(&self) -> Option<&DataSet> {
+        self.current.and_then(|i| self.data_sets.get(i))
+    }
+
     /// Runs one statement and returns what it produced.
     pub fn run(&mut self, stmt: &Statement) -> Outcome {
         if matches!(
@@ -146,19 +151,11 @@ impl<'w> Session<'w> {
     fn current(&self, span: Span) -> Result<&DataSet, Diagnostic> {
         self.current
             .and_then(|i| self.data_sets.get(i))
-            .ok_or_else(|| {
-                Diagnostic::new(span, "no data set is loaded yet")
-                    .label("needs data")
-                    .help("load a file first, for example `load \"data.csv\"`")
-            })
+            .ok_or_else(|| no_data_set(span))
     }
 
     fn current_mut(&mut self, span: Span) -> Result<&mut DataSet, Diagnostic> {
-        let i = self.current.ok_or_else(|| {
-            Diagnostic::new(span, "no data set is loaded yet")
-                .label("needs data")
-                .help("load a file first, for example `load \"data.csv\"`")
-        })?;
+        let i = self.current.ok_or_else(|| no_data_set(span))?;
         self.data_sets
             .get_mut(i)
             .ok_or_else(|| Diagnostic::new(span, "no data set is loaded yet"))
@@ -192,21 +189,31 @@ impl<'w> Session<'w> {
             .find(|m| m.name == name.value)
             .ok_or_else(|| {
                 let known: Vec<&str> = self.models.iter().map(|m| m.name.as_str()).collect();
-                let help = match closest(&name.value, &known) {
-                    Some(c) => format!("did you mean `{c}`?"),
-                    None if known.is_empty() => {
-                        "declare it first with `model NAME: RESPONSE on TERMS`".into()
-                    }
-                    None => format!("the models so far are {}", known.join(", ")),
-                };
-                Diagnostic::new(
-                    name.span,
-                    format!("there is no model called `{}`", name.value),
-                )
-                .label("unknown model")
-                .help(help)
+                unknown_model(name, &known)
             })
     }
+}
+
+/// The error for a statement that needs data before any is loaded.
+pub(crate) fn no_data_set(span: Span) -> Diagnostic {
+    Diagnostic::new(span, "no data set is loaded yet")
+        .label("needs data")
+        .help("load a file first, for example `load \"data.csv\"`")
+}
+
+/// The error for a model that is not declared; `known` are the models declared so far.
+pub(crate) fn unknown_model(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
+    let help = match closest(&name.value, known) {
+        Some(c) => format!("did you mean `{c}`?"),
+        None if known.is_empty() => "declare it first with `model NAME: RESPONSE on TERMS`".into(),
+        None => format!("the models so far are {}", known.join(", ")),
+    };
+    Diagnostic::new(
+        name.span,
+        format!("there is no model called `{}`", name.value),
+    )
+    .label("unknown model")
+    .help(help)
 }
 
 /// The closest of `candidates` to `name` by edit distance, if close enough

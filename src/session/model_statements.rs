@@ -707,7 +707,7 @@ fn sentence(text: &str) -> String {
     crate::report::markdown::escape(&out)
 }
 
-fn confidence(level: Option<&Spanned<f64>>) -> Result<f64, Diagnostic> {
+pub(crate) fn confidence(level: Option<&Spanned<f64>>) -> Result<f64, Diagnostic> {
     match level {
         None => Ok(DEFAULT_LEVEL),
         Some(l) if l.value > 0.0 && l.value < 1.0 => Ok(l.value),

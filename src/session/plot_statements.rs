@@ -9,7 +9,7 @@ use crate::report::markdown::code;
 use crate::report::{Figure, Item};
 
 /// The statement word of each figure kind, for messages.
-fn kind_word(kind: PlotKind) -> &'static str {
+pub(crate) fn kind_word(kind: PlotKind) -> &'static str {
     match kind {
         PlotKind::Lines => "lines",
         PlotKind::Residuals => "residuals",
@@ -21,7 +21,7 @@ fn kind_word(kind: PlotKind) -> &'static str {
 }
 
 /// Names joined as `a`, `b` and `c`.
-fn listing(names: &[&str]) -> String {
+pub(crate) fn listing(names: &[&str]) -> String {
     let quoted: Vec<String> = names.iter().map(|n| code(n)).collect();
     match quoted.split_last() {
         None => String::new(),

@@ -1,0 +1,323 @@
+//! Hover: what a name stands for. A model shows its formula, its data set and the rows it is
+//! fitted to (counted from complete cases by the renderer's own data statements, not by fitting
+//! it); a column its type, missing count and levels; a live reference the value the last
+//! rendering on disk shows for it.
+
+use lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind};
+
+use crate::document;
+use crate::lang::{Span, StatementKind};
+use crate::world::{FsWorld, World};
+
+use super::analysis::{Analysis, State};
+use super::data::{rows_used, DataCache, Lookup};
+use super::names::{NameUse, Role};
+use super::position::{Encoding, Lines};
+
+/// Data files are read again for the rows a model uses only up to this size in all: beyond it
+/// a hover would take noticeably long (the renderer reads about 300 MB/s).
+pub const HOVER_READ_LIMIT: u64 = 16 << 20;
+
+/// Levels a hover lists before it says how many more there are.
+const LISTED_LEVELS: usize = 20;
+
+/// What a hover shows, and over which words.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Shown {
+    /// The words hovered, in the text as given.
+    pub span: Span,
+    /// Markdown.
+    pub text: String,
+}
+
+impl Shown {
+    pub fn to_lsp(&self, a: &Analysis, enc: Encoding) -> Hover {
+        Hover {
+            contents: HoverContents::Markup(MarkupContent {
+                kind: MarkupKind::Markdown,
+                value: self.text.clone(),
+            }),
+            range: Some(Lines::new(&a.text).range(&a.text, self.span, enc)),
+        }
+    }
+}
+
+/// What to show for the place `at` (a byte offset in the text as given).
+pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
+    let doc = a.document.as_ref()?;
+    let at_source = a.to_source(at);
+    if a.block_at(at_source).is_none() {
+        let r = doc
+            .references
+            .iter()
+            .find(|r| r.start <= at_source && at_source < r.end)?;
+        return Some(Shown {
+            span: a.span_to_given(Span {
+                start: r.start,
+                end: r.end,
+            }),
+            text: reference_value(a, &r.text),
+        });
+    }
+    if let Some((span, name)) = parameter_at(a.source(), at_source) {
+        let value = a.params.get(&name)?;
+        let text = match value {
+            crate::lang::Literal::Number(_, t) => t.clone(),
+            crate::lang::Literal::Text(t) => format!("\"{t}\""),
+        };
+        return Some(Shown {
+            span: a.span_to_given(span),
+            text: format!("**parameter `{name}`** = `{text}` (the document's default; `--set {name}=VALUE` changes it for a run)"),
+        });
+    }
+    let u = a
+        .uses
+        .iter()
+        .find(|u| u.span.start <= at_source && at_source <= u.span.end)?;
+    let state = a.state_before(u.span.end, data);
+    let text = match &u.role {
+        Role::Model | Role::ModelDef => model_text(a, data, &state, &u.name)?,
+        Role::Column => column_text(&state, None, &u.name)?,
+        Role::ModelFactor | Role::ModelCovariate => {
+            let ds = state.model(&u.context).and_then(|m| m.data_set);
+            column_text(&state, ds, &u.name)?
+        }
+        Role::DataSet | Role::DataSetDef => data_set_text(&state, &u.name)?,
+        Role::File => {
+            let name = state
+                .data_sets
+                .iter()
+                .rev()
+                .find(|d| d.def == u.span || d.path == u.name)
+                .map(|d| d.name.clone())?;
+            data_set_text(&state, &name)?
+        }
+        Role::Level | Role::ModelLevel { .. } => level_text(&state, u)?,
+        Role::Plan | Role::PlanDef => {
+            let text = a.statements().find_map(|s| match &s.kind {
+                StatementKind::Plan(decl) if decl.name.value == u.name => Some(s.text.clone()),
+                _ => None,
+            })?;
+            format!("**plan `{}`**: `{text}`", u.name)
+        }
+        Role::ParamDef => {
+            let v = a.params.get(&u.name)?;
+            format!("**parameter `{}`** = `{}`", u.name, v.as_text())
+        }
+    };
+    Some(Shown {
+        span: a.span_to_given(u.span),
+        text,
+    })
+}
+
+/// A `@NAME` at `at` in `source`: its span and name.
+pub fn parameter_at(source: &str, at: usize) -> Option<(Span, String)> {
+    let is_name = |c: char| c.is_ascii_alphanumeric() || c == '_' || c == '.';
+    let at = super::position::floor_boundary(source, at);
+    let start = source[..at]
+        .char_indices()
+        .rev()
+        .take_while(|(_, c)| is_name(*c) || *c == '@')
+        .last()
+        .map_or(at, |(i, _)| i);
+    let at_sign = source[start..at].rfind('@').map(|i| start + i)?;
+    let end = source[at_sign + 1..]
+        .char_indices()
+        .find(|(_, c)| !is_name(*c))
+        .map_or(source.len(), |(i, _)| at_sign + 1 + i);
+    let name = &source[at_sign + 1..end];
+    if name.is_empty() || at > end {
+        return None;
+    }
+    Some((
+        Span {
+            start: at_sign,
+            end,
+        },
+        name.to_string(),
+    ))
+}
+
+fn model_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> Option<String> {
+    let m = state.model(name)?;
+    let formula = m
+        .statement
+        .text
+        .split_once(':')
+        .map_or(m.statement.text.as_str(), |(_, f)| f.trim());
+    let ds = m.data_set.and_then(|i| state.data_sets.get(i));
+    let mut text = format!("**model `{}`**: `{formula}`", m.name);
+    if let Some(ds) = ds {
+        text.push_str(&format!("\n\ndata set `{}` (\"{}\")", ds.name, ds.path));
+    }
+    text.push_str(&format!("\n\n{}", rows_text(a, data, state, name)));
+    Some(text)
+}
+
+/// "rows used: N of M" for a model, or why it is not counted.
+fn rows_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> String {
+    let Some(m) = state.model(name) else {
+        return String::new();
+    };
+    let Some(vars) = &m.vars else {
+        return "rows used: not known until its data are read".to_string();
+    };
+    let Some(folder) = a.folder() else {
+        return String::new();
+    };
+    let before: Vec<&crate::lang::Statement> = a
+        .statements()
+        .take_while(|s| s.span.start < m.statement.span.start)
+        .collect();
+    // Every file the statements before it load is read again: only when each is read already
+    // (so its size is known) and all together are small.
+    let mut bytes = 0u64;
+    let mut markers: Vec<String> = Vec::new();
+    for stmt in &before {
+        match &stmt.kind {
+            StatementKind::Missing { markers: m } => markers = m.clone(),
+            StatementKind::Load { path, .. } => match data.lookup(folder, &path.value, &markers) {
+                Lookup::Ready(s) => bytes += s.bytes,
+                _ => return "rows used: not known until its data are read".to_string(),
+            },
+            _ => {}
+        }
+    }
+    if bytes > HOVER_READ_LIMIT {
+        return format!(
+            "rows used: not counted here for data over {} MiB (`covey render` tells them)",
+            HOVER_READ_LIMIT >> 20
+        );
+    }
+    let mut columns = vec![m.response.clone()];
+    columns.extend(vars.iter().map(|v| v.name.clone()));
+    match rows_used(folder, data.allow_outside(), &before, &columns) {
+        Some((used, total)) if used == total => format!("rows used: all {total}"),
+        Some((used, total)) => format!(
+            "rows used: {used} of {total} ({} left out for a missing value)",
+            total - used
+        ),
+        None => "rows used: not counted (a data statement before it fails)".to_string(),
+    }
+}
+
+fn column_text(state: &State, data_set: Option<usize>, name: &str) -> Option<String> {
+    let ds = match data_set {
+        Some(i) => state.data_sets.get(i)?,
+        None => state.current()?,
+    };
+    if ds.shape.is_none() {
+        return Some(format!(
+            "**column `{name}`** of data set `{}` (its file \"{}\" is not read yet, or cannot be read)",
+            ds.name, ds.path
+        ));
+    }
+    let kind = ds.kind_of(name)?;
+    let mut text = format!("**column `{name}`** of data set `{}`: {kind}", ds.name);
+    if let Some(s) = ds.summary.as_ref() {
+        if let Some(c) = s.column(name) {
+            text.push_str(&format!(", {} missing of {} rows", c.missing, s.rows));
+            if ds.filtered {
+                text.push_str(" in the file");
+            }
+        }
+    }
+    if let Some(levels) = ds.levels(name) {
+        let numeric_values = kind == "numeric";
+        let shown: Vec<String> = levels
+            .iter()
+            .take(LISTED_LEVELS)
+            .map(|l| format!("`{l}`"))
+            .collect();
+        let more = levels.len().saturating_sub(LISTED_LEVELS);
+        let what = if numeric_values {
+            "distinct values"
+        } else {
+            "levels"
+        };
+        text.push_str(&format!(
+            "\n\n{} {what}: {}{}",
+            levels.len(),
+            shown.join(", "),
+            if more > 0 {
+                format!(" and {more} more")
+            } else {
+                String::new()
+            }
+        ));
+    }
+    Some(text)
+}
+
+fn data_set_text(state: &State, name: &str) -> Option<String> {
+    let ds = state.data_sets.iter().find(|d| d.name == name)?;
+    let mut text = format!("**data set `{}`** from \"{}\"", ds.name, ds.path);
+    match &ds.summary {
+        Some(s) => {
+            let cols: Vec<String> = s.columns.iter().map(|c| format!("`{}`", c.name)).collect();
+            text.push_str(&format!(
+                ": {} rows, {} columns ({})",
+                s.rows,
+                s.columns.len(),
+                cols.join(", ")
+            ));
+        }
+        None => text.push_str(" (not read)"),
+    }
+    Some(text)
+}
+
+fn level_text(state: &State, u: &NameUse) -> Option<String> {
+    let ds = state.current()?;
+    let line = ds
+        .summary
+        .as_ref()
+        .and_then(|s| s.column(&u.context))
+        .and_then(|c| c.levels.as_ref())
+        .and_then(|l| l.iter().find(|(v, _)| *v == u.name))
+        .map(|(_, line)| *line);
+    Some(match line {
+        Some(line) => format!(
+            "**`{}`**: a value of `{}`, first on line {line} of \"{}\"",
+            u.name, u.context, ds.path
+        ),
+        None => format!(
+            "**`{}`**: not a value of `{}` in \"{}\"",
+            u.name, u.context, ds.path
+        ),
+    })
+}
+
+/// The value the last rendering shows for a reference: the document's own value regions (when
+/// it was rendered in place), else `NAME.rendered.md` beside it, read through the same confined
+/// access as data files.
+fn reference_value(a: &Analysis, reference: &str) -> String {
+    let find = |text: &str| {
+        document::rendered_values(text)
+            .into_iter()
+            .find(|(r, _)| r == reference)
+            .map(|(_, v)| v)
+    };
+    if let Some(v) = find(&a.text) {
+        return format!(
+            "`{reference}` = {v}\n\n(value in this document's last rendering in place)"
+        );
+    }
+    let rendered = a.path.as_ref().and_then(|p| {
+        let folder = p.parent()?;
+        let file = crate::files::rendered_path(p, None)
+            .file_name()?
+            .to_string_lossy()
+            .into_owned();
+        let bytes = FsWorld::new(folder, false).read(&file).ok()?;
+        Some((file, String::from_utf8_lossy(&bytes).into_owned()))
+    });
+    match rendered {
+        Some((file, text)) => match find(&text) {
+            Some(v) => format!("`{reference}` = {v}\n\n(value in the last rendering, \"{file}\")"),
+            None => format!("`{reference}`: not rendered yet (\"{file}\" does not show it)"),
+        },
+        None => format!("`{reference}`: not rendered yet"),
+    }
+}
