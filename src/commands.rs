@@ -163,7 +163,7 @@ pub fn render(paths: &[PathBuf], opts: &RenderOptions) -> Report {
             );
         }
         if let Some(j) = &opts.json {
-            batch.add(j.clone(), json::to_text(&run.json));
+            batch.add(j.clone(), json::to_text(&run.json()));
         }
         if let Err(e) = batch.commit() {
             report.fail(e.to_string());

@@ -7,6 +7,7 @@ use codespan_reporting::files::SimpleFile;
 use codespan_reporting::term::{self, termcolor::NoColor, Chars, Config};
 
 use crate::lang::Span;
+use crate::report::visible::visible_except;
 
 /// A problem at a place in a document: what is wrong and what to do.
 #[derive(Debug, Clone, PartialEq)]
@@ -50,6 +51,34 @@ pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
     (line, before[line_start..].chars().count() + 1)
 }
 
+/// [`line_col`] for many offsets of one text, the line starts found once.
+pub struct Lines<'t> {
+    source: &'t str,
+    /// Byte offset where each line starts, ascending.
+    starts: Vec<usize>,
+}
+
+impl<'t> Lines<'t> {
+    pub fn new(source: &'t str) -> Lines<'t> {
+        let mut starts = vec![0];
+        starts.extend(memchr::memchr_iter(b'\n', source.as_bytes()).map(|i| i + 1));
+        Lines { source, starts }
+    }
+
+    /// 1-based line and column (in characters) of a byte offset, as [`line_col`] gives them.
+    pub fn line_col(&self, offset: usize) -> (usize, usize) {
+        let offset = floor_char_boundary(self.source, offset.min(self.source.len()));
+        let line = self.starts.partition_point(|&s| s <= offset).max(1);
+        let start = self.starts.get(line - 1).copied().unwrap_or(0).min(offset);
+        let column = self
+            .source
+            .get(start..offset)
+            .map_or(0, |s| s.chars().count())
+            + 1;
+        (line, column)
+    }
+}
+
 fn floor_char_boundary(s: &str, mut i: usize) -> usize {
     while i > 0 && !s.is_char_boundary(i) {
         i -= 1;
@@ -76,7 +105,7 @@ pub fn render(file_name: &str, source: &str, d: &Diagnostic) -> String {
     let mut out = NoColor::new(Vec::new());
     let (line, col) = line_col(source, start);
     let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
-    match term::emit(&mut out, &config, &file, &diag) {
+    let text = match term::emit(&mut out, &config, &file, &diag) {
         Ok(()) => {
             // codespan repeats the message on its first line; the head
             // above already says it with the position.
@@ -85,12 +114,25 @@ pub fn render(file_name: &str, source: &str, d: &Diagnostic) -> String {
             head + snippet.trim_end() + "\n"
         }
         Err(_) => head,
-    }
+    };
+    // Names from data files and the document's own lines may hold control or bidirectional
+    // characters; on a terminal (and in the rendering's error block) they are shown by their
+    // code points, never obeyed.
+    visible_except(&text, &['\n', '\t']).into_owned()
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn lines_agree_with_line_col() {
+        let src = "ab\né\n\nxyz";
+        let lines = Lines::new(src);
+        for at in 0..=src.len() + 2 {
+            assert_eq!(lines.line_col(at), line_col(src, at), "{at}");
+        }
+    }
 
     #[test]
     fn points_at_line_and_column() {

@@ -25,8 +25,8 @@ pub struct RunOptions {
 pub struct Run {
     /// The rendered document: the source with covey's regions filled in.
     pub rendered: String,
-    /// The JSON export of every table.
-    pub json: serde_json::Value,
+    /// Every statement's results, in document order (the JSON export is made from them).
+    pub outputs: Vec<Output>,
     /// Every error, laid out for a terminal (file:line:column, caret).
     pub errors: Vec<String>,
     /// Warnings for the terminal.
@@ -42,6 +42,12 @@ pub struct Run {
 }
 
 impl Run {
+    /// The JSON export of every table. Made when asked for, not with every run: as a tree of
+    /// values it takes several times the memory of the tables it holds.
+    pub fn json(&self) -> serde_json::Value {
+        json::document(&self.inputs, &self.outputs)
+    }
+
     /// True when a statement failed.
     pub fn failed(&self) -> bool {
         !self.errors.is_empty()
@@ -119,6 +125,10 @@ pub fn run(
         return Err(Unrunnable { errors });
     }
 
+    // Line numbers of statements, in the text as given and in the source, found by binary
+    // search: a document of many statements costs no more than its length.
+    let lines_given = diagnostic::Lines::new(text);
+    let lines_source = diagnostic::Lines::new(&doc.source);
     let mut session = Session::new(world);
     let mut outputs: Vec<Output> = Vec::new();
     let mut bodies = Vec::with_capacity(blocks.len());
@@ -143,8 +153,7 @@ pub fn run(
                     for it in &items {
                         if let Item::GateFailed(g) = it {
                             gates_failed.push(format!("block {}: {}", bi + 1, markdown::plain(g)));
-                            let (line, _) =
-                                diagnostic::line_col(text, shift.offset(stmt.span.start));
+                            let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
                             warnings.push(format!("{file_name}:{line}: {}", markdown::plain(g)));
                             if !opts.override_gates {
                                 stopped = true;
@@ -155,7 +164,9 @@ pub fn run(
                         if let Item::Figure(f) = it {
                             figure_count += 1;
                             f.file = format!("{stem}.figures/block{}-{figure_count}.svg", bi + 1);
-                            figures.push((f.file.clone(), f.svg.clone()));
+                            // The SVG text moves to the run's figures; the item keeps
+                            // what the Markdown shows (caption, alternative text, link).
+                            figures.push((f.file.clone(), std::mem::take(&mut f.svg)));
                         }
                     }
                     items
@@ -178,7 +189,7 @@ pub fn run(
             };
             for it in &items {
                 if let Item::Warning(w) = it {
-                    let (line, _) = diagnostic::line_col(text, shift.offset(stmt.span.start));
+                    let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
                     warnings.push(format!(
                         "{file_name}:{line}: warning: {}",
                         markdown::plain(w)
@@ -187,7 +198,7 @@ pub fn run(
             }
             outputs.push(Output {
                 block: bi + 1,
-                line: diagnostic::line_col(&doc.source, stmt.span.start).0,
+                line: lines_source.line_col(stmt.span.start).0,
                 statement: stmt.text.clone(),
                 items,
             });
@@ -263,10 +274,9 @@ pub fn run(
         }
     }
     let rendered = assembled.text;
-    let json = json::document(&inputs, &outputs);
     Ok(Run {
         rendered,
-        json,
+        outputs,
         errors,
         warnings,
         inputs,
@@ -363,24 +373,33 @@ fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, us
 /// given (which may hold regions from an earlier in-place render), so that
 /// messages point at the lines the user sees in the file.
 struct Shift {
-    /// (offset in the source, bytes of regions inserted there), ascending.
+    /// (offset in the source, bytes of regions inserted there and before), ascending: running
+    /// totals, so that an offset is mapped by one binary search.
     inserts: Vec<(usize, usize)>,
 }
 
 impl Shift {
     fn new(doc: &Document) -> Shift {
+        let mut total = 0usize;
         Shift {
-            inserts: doc.removed.clone(),
+            inserts: doc
+                .removed
+                .iter()
+                .map(|&(pos, len)| {
+                    total += len;
+                    (pos, total)
+                })
+                .collect(),
         }
     }
 
     fn offset(&self, at: usize) -> usize {
-        at + self
-            .inserts
-            .iter()
-            .filter(|(pos, _)| *pos <= at)
-            .map(|(_, len)| len)
-            .sum::<usize>()
+        let n = self.inserts.partition_point(|(pos, _)| *pos <= at);
+        let before = n
+            .checked_sub(1)
+            .and_then(|i| self.inserts.get(i))
+            .map_or(0, |(_, total)| *total);
+        at + before
     }
 
     fn span(&self, s: Span) -> Span {

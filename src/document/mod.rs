@@ -33,10 +33,11 @@ mod proptests;
 #[cfg(test)]
 mod tests;
 
+use std::collections::BTreeSet;
 use std::fmt;
 
 pub use lines::line_col;
-use lines::{ending_at, predominant, to_lf, LineIndex};
+use lines::{ending_at, predominant, to_lf, LineIndex, Positions};
 use regions::{strip_regions, Kind, Removal, Stripped};
 pub use values::{LINE_GUARD, VALUE_BEGIN, VALUE_BEGIN_CLOSE, VALUE_END};
 
@@ -287,12 +288,22 @@ fn strip_all(
         last = region.end;
     }
     text_out.push_str(old.get(last..).unwrap_or(""));
+    // `shrinks` ascends by start; with its running totals, each removal finds what the
+    // regions before it took away by a binary search.
+    let mut total = 0usize;
+    let shrunk_by: Vec<(usize, usize)> = shrinks
+        .iter()
+        .map(|&(start, by)| {
+            total += by;
+            (start, total)
+        })
+        .collect();
     for removal in &mut stripped.removals {
-        let before: usize = shrinks
-            .iter()
-            .filter(|(start, _)| *start < removal.at)
-            .map(|(_, by)| by)
-            .sum();
+        let n = shrunk_by.partition_point(|(start, _)| *start < removal.at);
+        let before = n
+            .checked_sub(1)
+            .and_then(|i| shrunk_by.get(i))
+            .map_or(0, |(_, t)| *t);
         removal.at = removal.at.saturating_sub(before);
     }
     stripped.removals.extend(value_removals);
@@ -394,11 +405,13 @@ fn document_of(
         )
         .collect();
 
+    // References come in document order, so their positions are found in one pass.
+    let mut positions = Positions::new(source);
     let references = references
         .into_iter()
         .filter_map(|r| {
             let text = source.get(r.start..r.end)?.to_string();
-            let (line, column) = line_col(source, r.start);
+            let (line, column) = positions.at(r.start);
             Some(Reference {
                 text,
                 start: r.start,
@@ -556,20 +569,19 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
             break;
         }
         let text = assemble_unchecked(doc, None, &[], &settled);
-        let found: Vec<(usize, usize)> = values::scan(&text)
+        let found: BTreeSet<(usize, usize)> = values::scan(&text)
             .regions
             .iter()
             .map(|r| (r.start, r.end))
             .collect();
+        let put: BTreeSet<(usize, usize)> = expected.iter().map(|&(_, s, e)| (s, e)).collect();
         let missing = expected
             .iter()
             .find(|(_, start, end)| !found.contains(&(*start, *end)))
             .map(|(i, _, _)| *i);
         // A region found where none was put: blame the last region put before it.
         let extra = || {
-            let (at, _) = found
-                .iter()
-                .find(|f| !expected.iter().any(|(_, s, e)| (*s, *e) == **f))?;
+            let (at, _) = found.iter().find(|f| !put.contains(f))?;
             expected
                 .iter()
                 .rev()

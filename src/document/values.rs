@@ -175,10 +175,14 @@ fn flush(
     out: &mut Prose,
 ) {
     for (a, b) in live::find_all(joined) {
+        // The last piece holding the offset; pieces ascend by `at`, so the search starts at
+        // the last piece starting at or before it (and rarely has to step back).
         let piece_of = |offset: usize| {
-            run.iter()
+            let upto = run.partition_point(|p| p.at <= offset);
+            run.get(..upto)?
+                .iter()
                 .rev()
-                .find(|p| p.at <= offset && offset < p.at + p.literal.len().max(1))
+                .find(|p| offset < p.at + p.literal.len().max(1))
         };
         let (Some(first), Some(last)) = (piece_of(a), piece_of(b.saturating_sub(1))) else {
             continue;
