@@ -85,7 +85,11 @@ fn parse_setting(s: &str) -> Result<(String, String), String> {
 }
 
 fn main() -> ExitCode {
-    covey::parallel::configure();
+    if let Err(e) = covey::parallel::configure() {
+        use std::io::Write;
+        let _ = writeln!(std::io::stderr(), "covey: {e}");
+        return ExitCode::from(2);
+    }
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {

@@ -305,6 +305,30 @@ fn treat_y_constant(e: &Engine) -> bool {
     e.y_scale == 0.0
 }
 
+/// Blocks of rows factored side by side before their factors are merged into the running one.
+const FACTORED_AT_ONCE: usize = 8;
+
+/// Most working memory a fit may need, in bytes ([`working_bytes`]): 1 GiB, a share a
+/// laptop can spare, and room for designs of about 1,900 coefficients. A model needing more
+/// is refused before anything is allocated.
+pub const MODEL_MEMORY_BUDGET: usize = 1 << 30;
+
+/// The most working memory a fit of `p` design columns on `n` rows can take, in bytes,
+/// whatever the number of threads: [`FACTORED_AT_ONCE`] blocks of rows being factored (each
+/// its rows under as many rows of zeros as it has columns, the response included), their
+/// factors waiting to be merged, and three more square factors (the running one, a merge's
+/// stacked pair and its result).
+pub fn working_bytes(p: usize, n: usize) -> usize {
+    let width = p.saturating_add(1);
+    let rows = n.min(CHUNK_ROWS);
+    let block = width.saturating_mul(width.saturating_add(rows));
+    let square = width.saturating_mul(width);
+    let matrices = block
+        .saturating_mul(FACTORED_AT_ONCE)
+        .saturating_add(square.saturating_mul(FACTORED_AT_ONCE + 4));
+    matrices.saturating_mul(std::mem::size_of::<f64>())
+}
+
 /// Centre and scale every column by its mean and spread over the first block of rows, then
 /// triangularise [Z | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows, computed in
 /// parallel and merged in block order (see [`crate::parallel`]) by re-triangularising the
@@ -320,6 +344,13 @@ pub(crate) fn build_engine(
 ) -> Result<Engine, ModelError> {
     let p = cols.len();
     let n = lay.used.len() as f64;
+    let needed = working_bytes(p, lay.used.len());
+    if needed > MODEL_MEMORY_BUDGET {
+        return Err(ModelError::TooLarge {
+            coefficients: p,
+            megabytes: needed.div_ceil(1 << 20),
+        });
+    }
     let blocks = lay.used.blocks(CHUNK_ROWS);
 
     // Centre and scale of each column, from the first block of rows (every row when there
@@ -347,25 +378,30 @@ pub(crate) fn build_engine(
     }
 
     // One pass: the triangular factor of each block, merged in block order, with the
-    // response's moments for the zero-variance check.
-    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |at| {
-        let rows = lay.used.slice(at.clone());
-        let mut block = Block::fill(spec, &cols, y, &rows);
-        block.check_finite(spec, &cols, &rows)?;
-        let ym = block.column_moments(p);
-        block.standardise(&centre, &scale);
-        Ok((ym, qr::block_factor(&mut block.a)))
-    });
+    // response's moments for the zero-variance check. Blocks are factored
+    // [`FACTORED_AT_ONCE`] at a time and folded in before the next ones, so that the factors
+    // waiting to be merged take memory independent of the number of rows; the merges happen
+    // in the same order either way.
     let mut y_moments = Moments::empty(1);
     let mut r_aug = Mat::zeros(p + 1, p + 1);
-    for (k, part) in partial.into_iter().enumerate() {
-        let (ym, f) = part?;
-        y_moments.pool(&ym);
-        r_aug = if k == 0 {
-            f
-        } else {
-            qr::merge_factors(&r_aug, &f)
-        };
+    for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
+        let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(batch, |at| {
+            let rows = lay.used.slice(at.clone());
+            let mut block = Block::fill(spec, &cols, y, &rows);
+            block.check_finite(spec, &cols, &rows)?;
+            let ym = block.column_moments(p);
+            block.standardise(&centre, &scale);
+            Ok((ym, qr::block_factor(&mut block.a)))
+        });
+        for (k, part) in partial.into_iter().enumerate() {
+            let (ym, f) = part?;
+            y_moments.pool(&ym);
+            r_aug = if b == 0 && k == 0 {
+                f
+            } else {
+                qr::merge_factors(&r_aug, &f)
+            };
+        }
     }
     let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
     if y_m2 <= 0.0 || !y_m2.is_finite() || n == 0.0 {
