@@ -146,12 +146,30 @@ impl LiveError {
 /// Whether `c` may appear between `@[` and `]`: anything but brackets, angle brackets,
 /// backticks, backslashes, pipes, asterisks and control characters, so that a reference holds
 /// no Markdown or HTML syntax that its value region could change, and fits inside an HTML
-/// comment.
+/// comment. Inside a quoted name, brackets may appear too (see [`find_all`]).
 pub fn is_reference_char(c: char) -> bool {
     !matches!(c, '[' | ']' | '<' | '>' | '`' | '\\' | '|' | '*') && !c.is_control()
 }
 
-/// Every reference in one run of prose text: (start, end) byte offsets of `@[...]`.
+/// The length of a reference's inside, `inner` being the text after its `@[`: up to the
+/// first `]` outside double quotes, when every character before it may be in a reference
+/// ([`is_reference_char`], or a bracket inside quotes). `None` when no such `]` ends it.
+fn inside_length(inner: &str) -> Option<usize> {
+    let mut quoted = false;
+    for (i, c) in inner.char_indices() {
+        match c {
+            '"' => quoted = !quoted,
+            ']' if !quoted => return Some(i),
+            '[' | ']' if quoted => {}
+            c if !is_reference_char(c) => return None,
+            _ => {}
+        }
+    }
+    None
+}
+
+/// Every reference in one run of prose text: (start, end) byte offsets of `@[...]`. A `]`
+/// inside a quoted name does not end a reference.
 pub fn find_all(text: &str) -> Vec<(usize, usize)> {
     let mut out = Vec::new();
     let mut from = 0;
@@ -159,16 +177,13 @@ pub fn find_all(text: &str) -> Vec<(usize, usize)> {
         let start = from + found;
         let inner_start = start + OPEN.len();
         let inner = text.get(inner_start..).unwrap_or("");
-        let len = inner
-            .char_indices()
-            .find(|(_, c)| !is_reference_char(*c))
-            .map_or(inner.len(), |(i, _)| i);
-        if inner.get(len..).is_some_and(|r| r.starts_with(CLOSE)) && len > 0 {
-            let end = inner_start + len + CLOSE.len();
-            out.push((start, end));
-            from = end;
-        } else {
-            from = inner_start;
+        match inside_length(inner).filter(|&len| len > 0) {
+            Some(len) => {
+                let end = inner_start + len + CLOSE.len();
+                out.push((start, end));
+                from = end;
+            }
+            None => from = inner_start,
         }
     }
     out
@@ -443,6 +458,21 @@ mod tests {
             .filter_map(|&(s, e)| text.get(s..e))
             .collect();
         assert_eq!(found, vec!["@[x y z]", "@[ ]", "@[ok one two]"]);
+    }
+
+    #[test]
+    fn a_bracket_in_a_quoted_name_does_not_end_the_reference() {
+        let text = "a @[means m \"x]y\" mean] b @[means m \"[z]\" se] c";
+        let found: Vec<&str> = find_all(text)
+            .iter()
+            .filter_map(|&(s, e)| text.get(s..e))
+            .collect();
+        assert_eq!(
+            found,
+            vec!["@[means m \"x]y\" mean]", "@[means m \"[z]\" se]"]
+        );
+        let p = parse("@[means m \"x]y\" mean]").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(p.rest, vec!["x]y", "mean"]);
     }
 
     #[test]
