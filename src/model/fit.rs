@@ -305,6 +305,30 @@ fn treat_y_constant(e: &Engine) -> bool {
     e.y_scale == 0.0
 }
 
+/// Spreads whose square (and its inverse) is safely a normal double: computed the plain way.
+const SQUARES_SAFE: f64 = 1e-150;
+
+/// Narrowest and widest range (largest minus smallest) of a response whose sums of squares
+/// covey can hold as doubles: its squared spread times the rows stays within the normal
+/// doubles (about 1e-308 to 1e308) with room to spare.
+pub const RESPONSE_SPREAD_MIN: f64 = 1e-145;
+/// See [`RESPONSE_SPREAD_MIN`].
+pub const RESPONSE_SPREAD_MAX: f64 = 1e145;
+
+/// The root mean square of `x` about `c`, in units of the largest deviation so that no
+/// square overflows or underflows; 0 for no values or no spread.
+fn root_mean_square(x: &[f64], c: f64) -> f64 {
+    let big = x.iter().fold(0.0_f64, |m, v| m.max((v - c).abs()));
+    if !(big > 0.0 && big.is_finite()) || x.is_empty() {
+        return 0.0;
+    }
+    let ss = qr::sum_of(x, |v| {
+        let d = (v - c) / big;
+        d * d
+    });
+    big * (ss / x.len() as f64).sqrt()
+}
+
 /// Blocks of rows factored side by side before their factors are merged into the running one.
 const FACTORED_AT_ONCE: usize = 8;
 
@@ -358,7 +382,8 @@ pub(crate) fn build_engine(
     // out of a column well enough for the factorisation (the intercept absorbs the rest),
     // and it saves a pass over the rows.
     let first = lay.used.slice(blocks.first().cloned().unwrap_or(0..0));
-    let lead = Block::fill(spec, &cols, y, &first).moments();
+    let lead_block = Block::fill(spec, &cols, y, &first);
+    let lead = lead_block.moments();
     let n_lead = lead.count.max(1.0);
     let mut centre = vec![0.0; p + 1];
     let mut scale = vec![1.0; p + 1];
@@ -373,6 +398,13 @@ pub(crate) fn build_engine(
         } else {
             (0.0, (m2 / n_lead + mean * mean).sqrt())
         };
+        // Squares of values far from 1 overflow or underflow; such a column's spread is
+        // taken in units of its largest deviation instead (the same number where both work).
+        let s = if (SQUARES_SAFE..=1.0 / SQUARES_SAFE).contains(&s) {
+            s
+        } else {
+            root_mean_square(lead_block.column(j), if spec.intercept { c } else { 0.0 })
+        };
         centre[j] = if c.is_finite() { c } else { 0.0 };
         scale[j] = if s > 0.0 && s.is_finite() { s } else { 1.0 };
     }
@@ -383,19 +415,23 @@ pub(crate) fn build_engine(
     // waiting to be merged take memory independent of the number of rows; the merges happen
     // in the same order either way.
     let mut y_moments = Moments::empty(1);
+    let mut y_range = (f64::INFINITY, f64::NEG_INFINITY);
     let mut r_aug = Mat::zeros(p + 1, p + 1);
     for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
-        let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(batch, |at| {
-            let rows = lay.used.slice(at.clone());
-            let mut block = Block::fill(spec, &cols, y, &rows);
-            block.check_finite(spec, &cols, &rows)?;
-            let ym = block.column_moments(p);
-            block.standardise(&centre, &scale);
-            Ok((ym, qr::block_factor(&mut block.a)))
-        });
+        let partial: Vec<Result<(Moments, (f64, f64), Mat), ModelError>> =
+            crate::parallel::map(batch, |at| {
+                let rows = lay.used.slice(at.clone());
+                let mut block = Block::fill(spec, &cols, y, &rows);
+                block.check_finite(spec, &cols, &rows)?;
+                let ym = block.column_moments(p);
+                let range = block.column_range(p);
+                block.standardise(&centre, &scale);
+                Ok((ym, range, qr::block_factor(&mut block.a)))
+            });
         for (k, part) in partial.into_iter().enumerate() {
-            let (ym, f) = part?;
+            let (ym, range, f) = part?;
             y_moments.pool(&ym);
+            y_range = (y_range.0.min(range.0), y_range.1.max(range.1));
             r_aug = if b == 0 && k == 0 {
                 f
             } else {
@@ -403,9 +439,17 @@ pub(crate) fn build_engine(
             };
         }
     }
-    let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
-    if y_m2 <= 0.0 || !y_m2.is_finite() || n == 0.0 {
+    // Constant when the smallest and largest response are equal: whatever the scale, unlike
+    // a sum of squares, which is 0 for values near 1e-200 and infinite near 1e200.
+    let width = y_range.1 - y_range.0;
+    if n == 0.0 || width.is_nan() || width <= 0.0 {
         return Err(ModelError::ResponseZeroVariance);
+    }
+    // Sums of squares of the response must be numbers: its spread squared, times the rows
+    // and some room, must neither overflow nor fall below the normal doubles.
+    let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
+    if !(RESPONSE_SPREAD_MIN..=RESPONSE_SPREAD_MAX).contains(&width) || !y_m2.is_finite() {
+        return Err(ModelError::ResponseOutOfRange { width });
     }
     let y_centre = centre[p];
     let y_scale = scale[p];
@@ -533,6 +577,15 @@ impl Block {
     }
 
     /// Moments of column j alone.
+    /// The smallest and largest value of column `j` over the block.
+    fn column_range(&self, j: usize) -> (f64, f64) {
+        self.column(j)
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+                (lo.min(v), hi.max(v))
+            })
+    }
+
     fn column_moments(&self, j: usize) -> Moments {
         let x = self.column(j);
         let k = x.len() as f64;

@@ -33,7 +33,10 @@ use std::fmt;
 
 pub use anova::compare;
 pub(crate) use design::UsedRows;
-pub use fit::{fit, fit_owned, working_bytes, Fit, MODEL_MEMORY_BUDGET};
+pub use fit::{
+    fit, fit_owned, working_bytes, Fit, MODEL_MEMORY_BUDGET, RESPONSE_SPREAD_MAX,
+    RESPONSE_SPREAD_MIN,
+};
 
 /// One input variable, aligned with the response row by row.
 #[derive(Debug, Clone, PartialEq)]
@@ -636,6 +639,12 @@ pub enum ModelError {
     NoRows,
     /// The response is constant over the fitted rows.
     ResponseZeroVariance,
+    /// The response's values spread over a range whose squares doubles cannot hold (see
+    /// [`fit::RESPONSE_SPREAD_MIN`]).
+    ResponseOutOfRange {
+        /// Largest minus smallest response.
+        width: f64,
+    },
     /// A covariate is constant over the fitted rows.
     CovariateZeroVariance {
         /// First term using it.
@@ -758,6 +767,7 @@ impl fmt::Display for ModelError {
             E::TooLarge { coefficients, megabytes } => write!(f, "the model has {coefficients} coefficients, and fitting it would take about {megabytes} MiB of working memory, more than covey's limit of {} MiB; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)", fit::MODEL_MEMORY_BUDGET >> 20),
             E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
             E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
+            E::ResponseOutOfRange { width } => write!(f, "the response's values spread over {width:.1e} (largest minus smallest), too {} for their sums of squares to be held as numbers (covey needs a spread between {:e} and {:e}); rescale the response, for example {} it by 1e{}", if *width > 1.0 { "wide" } else { "narrow" }, fit::RESPONSE_SPREAD_MIN, fit::RESPONSE_SPREAD_MAX, if *width > 1.0 { "divide" } else { "multiply" }, width.log10().round().abs()),
             E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
             E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
             E::FewerRowsThanCoefficients { rows, coefficients } => write!(f, "the model has {coefficients} coefficients but only {rows} rows; use fewer terms or more data"),
