@@ -550,10 +550,24 @@ fn value_region(reference: &Reference, value: &str) -> String {
 /// regions alone are put into the source and read back with comrak; the first region not found
 /// where it was put loses its value, until all are found. (Block regions do not matter here: they
 /// are removed before value regions are looked for.)
+///
+/// Only raw HTML can be left open before a region, and raw HTML needs a `<`; so when neither the
+/// source nor any value holds a `<` that could begin a tag or comment, every region reads back
+/// and the parse (a comrak tree of the whole prose, the largest allocation of a long document's
+/// render) is not needed.
 fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str>>, Vec<usize>) {
     let mut settled: Vec<Option<&str>> =
         values.iter().take(doc.references.len()).copied().collect();
     let mut left = Vec::new();
+    let may_open_html = |text: &str| {
+        text.as_bytes()
+            .windows(2)
+            .any(|w| w[0] == b'<' && (w[1].is_ascii_alphabetic() || b"!?/".contains(&w[1])))
+            || text.ends_with('<')
+    };
+    if !may_open_html(&doc.source) && !settled.iter().flatten().any(|v| may_open_html(v)) {
+        return (settled, left);
+    }
     loop {
         let mut expected: Vec<(usize, usize, usize)> = Vec::new();
         let mut grown = 0usize;
@@ -609,8 +623,15 @@ fn assemble_unchecked(
     values: &[Option<&str>],
 ) -> String {
     let source = &doc.source;
-    // (offset, bytes of the source replaced, text put there)
-    let mut inserts: Vec<(usize, usize, String)> = Vec::new();
+    /// What goes in at one place; each region's text is made only when it is written, so that
+    /// the outputs are not held twice over.
+    enum Put<'d> {
+        Provenance(String),
+        Output(&'d Block, &'d str),
+        Value(&'d Reference, &'d str),
+    }
+    // (offset, bytes of the source replaced, what is put there)
+    let mut inserts: Vec<(usize, usize, Put<'_>)> = Vec::new();
     if let Some(body) = provenance {
         let le = predominant(source);
         let body = prepare_body(body, le);
@@ -629,39 +650,51 @@ fn assemble_unchecked(
         } else {
             format!("{PROVENANCE_BEGIN}{le}{body}{PROVENANCE_END}{le}")
         };
-        inserts.push((at, 0, region));
+        inserts.push((at, 0, Put::Provenance(region)));
     }
     for (block, body) in doc.blocks.iter().zip(outputs) {
         if let Some(body) = body {
-            let le = block.line_ending;
-            let region = format!(
-                "{le}{OUTPUT_BEGIN}{le}{}{OUTPUT_END}",
-                prepare_body(body, le)
-            );
-            inserts.push((block.insert_at, 0, region));
+            inserts.push((block.insert_at, 0, Put::Output(block, body)));
         }
     }
     for (reference, value) in doc.references.iter().zip(values) {
         if let Some(value) = value {
-            let region = value_region(reference, value);
             inserts.push((
                 reference.start,
                 reference.end.saturating_sub(reference.start),
-                region,
+                Put::Value(reference, value),
             ));
         }
     }
     // Stable sort: the provenance region stays first at an equal offset.
     inserts.sort_by_key(|(at, _, _)| *at);
 
-    let extra: usize = inserts.iter().map(|(_, _, r)| r.len()).sum();
+    let extra: usize = inserts
+        .iter()
+        .map(|(_, _, put)| match put {
+            Put::Provenance(r) => r.len(),
+            Put::Output(_, body) => body.len() + OUTPUT_BEGIN.len() + OUTPUT_END.len() + 4,
+            Put::Value(_, value) => value.len() + VALUE_BEGIN.len() + VALUE_END.len() + 32,
+        })
+        .sum();
     let mut out = String::with_capacity(source.len() + extra);
     let mut last = 0usize;
-    for (at, replaced, region) in &inserts {
+    for (at, replaced, put) in &inserts {
         // Offsets come from `parse`; one that does not fit (a hand-made Document) is skipped.
         if let Some(piece) = source.get(last..*at) {
             out.push_str(piece);
-            out.push_str(region);
+            match put {
+                Put::Provenance(region) => out.push_str(region),
+                Put::Output(block, body) => {
+                    let le = block.line_ending;
+                    out.push_str(le);
+                    out.push_str(OUTPUT_BEGIN);
+                    out.push_str(le);
+                    out.push_str(&prepare_body(body, le));
+                    out.push_str(OUTPUT_END);
+                }
+                Put::Value(reference, value) => out.push_str(&value_region(reference, value)),
+            }
             last = *at + replaced;
         }
     }
