@@ -302,8 +302,13 @@ fn record_quoting(body: &[u8], record: &ByteRecord, delimiter: u8) -> Vec<Quotin
         .position()
         .and_then(|p| usize::try_from(p.byte()).ok())
         .unwrap_or(usize::MAX);
+    // The reader may place a record just after a CR, at the LF that ends the line; line breaks
+    // never begin a record.
     match body.get(start..) {
-        Some(raw) => quoting(raw, delimiter),
+        Some(raw) => {
+            let skip = raw.iter().take_while(|b| matches!(b, b'\r' | b'\n')).count();
+            quoting(raw.get(skip..).unwrap_or_default(), delimiter)
+        }
         None => Vec::new(),
     }
 }

@@ -329,6 +329,10 @@ fn root_mean_square(x: &[f64], c: f64) -> f64 {
     big * (ss / x.len() as f64).sqrt()
 }
 
+/// What one block of rows gives the fit: the response's moments and its smallest and largest
+/// value, and the block's triangular factor.
+type BlockPart = (Moments, (f64, f64), Mat);
+
 /// Blocks of rows factored side by side before their factors are merged into the running one.
 const FACTORED_AT_ONCE: usize = 8;
 
@@ -418,16 +422,15 @@ pub(crate) fn build_engine(
     let mut y_range = (f64::INFINITY, f64::NEG_INFINITY);
     let mut r_aug = Mat::zeros(p + 1, p + 1);
     for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
-        let partial: Vec<Result<(Moments, (f64, f64), Mat), ModelError>> =
-            crate::parallel::map(batch, |at| {
-                let rows = lay.used.slice(at.clone());
-                let mut block = Block::fill(spec, &cols, y, &rows);
-                block.check_finite(spec, &cols, &rows)?;
-                let ym = block.column_moments(p);
-                let range = block.column_range(p);
-                block.standardise(&centre, &scale);
-                Ok((ym, range, qr::block_factor(&mut block.a)))
-            });
+        let partial: Vec<Result<BlockPart, ModelError>> = crate::parallel::map(batch, |at| {
+            let rows = lay.used.slice(at.clone());
+            let mut block = Block::fill(spec, &cols, y, &rows);
+            block.check_finite(spec, &cols, &rows)?;
+            let ym = block.column_moments(p);
+            let range = block.column_range(p);
+            block.standardise(&centre, &scale);
+            Ok((ym, range, qr::block_factor(&mut block.a)))
+        });
         for (k, part) in partial.into_iter().enumerate() {
             let (ym, range, f) = part?;
             y_moments.pool(&ym);

@@ -90,15 +90,14 @@ fn images_to_links<'a>(
 ) {
     for node in root.descendants() {
         let link = match &node.data().value {
-            NodeValue::Image(link)
-                if !figures.iter().any(|(path, _)| is_figure(&link.url, path))
-                    && !(link.url.starts_with("data:image/")
-                        && !comrak::html::dangerous_url(&link.url)) =>
-            {
-                link.clone()
-            }
+            NodeValue::Image(link) => link.clone(),
             _ => continue,
         };
+        let figure = figures.iter().any(|(path, _)| is_figure(&link.url, path));
+        let inline = link.url.starts_with("data:image/") && !comrak::html::dangerous_url(&link.url);
+        if figure || inline {
+            continue;
+        }
         let url = link.url.clone();
         node.data_mut().value = NodeValue::Link(link);
         if node.first_child().is_none() {
