@@ -233,8 +233,9 @@ pub fn run(
     // Live references in prose: resolved once every block has run, against every table of the
     // document (the last of its kind and subject counts).
     let mut values = Vec::with_capacity(doc.references.len());
+    let mut resolver = live::Resolver::new(&outputs);
     for reference in &doc.references {
-        match live::resolve(&reference.text, &outputs) {
+        match resolver.resolve(&reference.text) {
             Ok(value) => values.push(value),
             // After a failure stopped the run, a table the reference needs
             // may simply not have been computed: that is no new error.

@@ -306,7 +306,10 @@ fn record_quoting(body: &[u8], record: &ByteRecord, delimiter: u8) -> Vec<Quotin
     // never begin a record.
     match body.get(start..) {
         Some(raw) => {
-            let skip = raw.iter().take_while(|b| matches!(b, b'\r' | b'\n')).count();
+            let skip = raw
+                .iter()
+                .take_while(|b| matches!(b, b'\r' | b'\n'))
+                .count();
             quoting(raw.get(skip..).unwrap_or_default(), delimiter)
         }
         None => Vec::new(),
