@@ -72,7 +72,7 @@ pub fn run(
     opts: RunOptions,
 ) -> Result<Run, Unrunnable> {
     let doc = document::parse(text).map_err(|e| Unrunnable {
-        errors: vec![format!("{file_name}: {e}")],
+        errors: vec![for_terminal(format!("{file_name}: {e}"))],
     })?;
     let shift = Shift::new(&doc);
     let show = |d: &Diagnostic| {
@@ -102,7 +102,7 @@ pub fn run(
         return Err(Unrunnable {
             errors: unknown
                 .iter()
-                .map(|n| format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)"))
+                .map(|n| for_terminal(format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)")))
                 .collect(),
         });
     }
@@ -154,7 +154,10 @@ pub fn run(
                         if let Item::GateFailed(g) = it {
                             gates_failed.push(format!("block {}: {}", bi + 1, markdown::plain(g)));
                             let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
-                            warnings.push(format!("{file_name}:{line}: {}", markdown::plain(g)));
+                            warnings.push(for_terminal(format!(
+                                "{file_name}:{line}: {}",
+                                markdown::plain(g)
+                            )));
                             if !opts.override_gates {
                                 stopped = true;
                             }
@@ -190,10 +193,10 @@ pub fn run(
             for it in &items {
                 if let Item::Warning(w) = it {
                     let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
-                    warnings.push(format!(
+                    warnings.push(for_terminal(format!(
                         "{file_name}:{line}: warning: {}",
                         markdown::plain(w)
-                    ));
+                    )));
                 }
             }
             outputs.push(Output {
@@ -211,9 +214,9 @@ pub fn run(
         ));
     }
     for line in &doc.ignored_nested {
-        warnings.push(format!(
+        warnings.push(for_terminal(format!(
             "{file_name}:{line}: warning: a covey block inside a list or quote is not run; move it to the top level"
-        ));
+        )));
     }
 
     let inputs = session.inputs().to_vec();
@@ -368,6 +371,12 @@ fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str, us
         offset += end + 1;
     }
     out
+}
+
+/// A message for the terminal: a file name or a name from the data could hold control or
+/// bidirectional characters, which are shown by their code points, never obeyed.
+fn for_terminal(message: String) -> String {
+    crate::report::visible::visible_except(&message, &['\n', '\t']).into_owned()
 }
 
 /// Maps offsets in the source without regions to offsets in the text as
