@@ -132,60 +132,48 @@ impl FsWorld {
         // Where the walk may be: in the folder, or in a folder that holds it.
         let allowed = |p: &Path| p.starts_with(root) || root.starts_with(p);
         let mut current = root.to_path_buf();
-        let mut pending: std::collections::VecDeque<std::ffi::OsString> =
-            components(Path::new(path));
+        let mut pending = steps(Path::new(path));
         let mut links = 0;
-        while let Some(name) = pending.pop_front() {
-            match name.to_str() {
-                Some("/") => current = PathBuf::from("/"),
-                Some("..") => {
-                    current.pop();
-                }
-                _ => {
-                    let next = current.join(&name);
-                    if !allowed(&next) {
-                        return Err(outside());
+        while let Some(step) = pending.pop_front() {
+            let Step::Name(name) = step else {
+                step.apply(&mut current);
+                continue;
+            };
+            let next = current.join(&name);
+            if !allowed(&next) {
+                return Err(outside());
+            }
+            match std::fs::symlink_metadata(&next) {
+                Ok(m) if m.file_type().is_symlink() => {
+                    links += 1;
+                    if links > MAX_LINKS {
+                        return Err(WorldError::Io {
+                            path: path.to_string(),
+                            message: "too many symbolic links".into(),
+                        });
                     }
-                    match std::fs::symlink_metadata(&next) {
-                        Ok(m) if m.file_type().is_symlink() => {
-                            links += 1;
-                            if links > MAX_LINKS {
-                                return Err(WorldError::Io {
-                                    path: path.to_string(),
-                                    message: "too many symbolic links".into(),
-                                });
-                            }
-                            let target =
-                                std::fs::read_link(&next).map_err(|e| io_error(path, &e))?;
-                            for part in components(&target).into_iter().rev() {
-                                pending.push_front(part);
-                            }
-                        }
-                        Ok(_) => current = next,
-                        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-                            // Missing: the rest of the path, by its names alone, says whether
-                            // it would have been inside.
-                            current = next;
-                            for rest in pending.drain(..) {
-                                match rest.to_str() {
-                                    Some("/") => current = PathBuf::from("/"),
-                                    Some("..") => {
-                                        current.pop();
-                                    }
-                                    _ => current.push(rest),
-                                }
-                            }
-                            return Err(if current.starts_with(root) {
-                                WorldError::NotFound {
-                                    path: path.to_string(),
-                                }
-                            } else {
-                                outside()
-                            });
-                        }
-                        Err(e) => return Err(io_error(path, &e)),
+                    let target = std::fs::read_link(&next).map_err(|e| io_error(path, &e))?;
+                    for part in steps(&target).into_iter().rev() {
+                        pending.push_front(part);
                     }
                 }
+                Ok(_) => current = next,
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                    // Missing: the rest of the path, by its names alone, says whether it
+                    // would have been inside.
+                    current = next;
+                    for rest in pending.drain(..) {
+                        rest.apply(&mut current);
+                    }
+                    return Err(if current.starts_with(root) {
+                        WorldError::NotFound {
+                            path: path.to_string(),
+                        }
+                    } else {
+                        outside()
+                    });
+                }
+                Err(e) => return Err(io_error(path, &e)),
             }
         }
         if !current.starts_with(root) {
@@ -195,13 +183,33 @@ impl FsWorld {
     }
 }
 
-/// The names of a path, `/` first for an absolute one, without `.`.
-fn components(path: &Path) -> std::collections::VecDeque<std::ffi::OsString> {
+/// One step of a path: to the root, up a folder, or into a name.
+enum Step {
+    Root,
+    Up,
+    Name(std::ffi::OsString),
+}
+
+impl Step {
+    /// Takes the step by its name alone, as if no name were a link.
+    fn apply(self, current: &mut PathBuf) {
+        match self {
+            Step::Root => *current = PathBuf::from("/"),
+            Step::Up => {
+                current.pop();
+            }
+            Step::Name(name) => current.push(name),
+        }
+    }
+}
+
+/// The steps of a path (`.` is none).
+fn steps(path: &Path) -> std::collections::VecDeque<Step> {
     path.components()
         .filter_map(|c| match c {
-            Component::Normal(s) => Some(s.to_os_string()),
-            Component::ParentDir => Some("..".into()),
-            Component::RootDir => Some("/".into()),
+            Component::Normal(s) => Some(Step::Name(s.to_os_string())),
+            Component::ParentDir => Some(Step::Up),
+            Component::RootDir => Some(Step::Root),
             Component::CurDir | Component::Prefix(_) => None,
         })
         .collect()
@@ -399,6 +407,58 @@ impl World for MemoryWorld {
 mod tests {
     use super::*;
 
+    #[cfg(unix)]
+    #[test]
+    fn paths_are_followed_link_by_link_inside_the_folder() {
+        use std::os::unix::fs::symlink;
+        let base = std::env::temp_dir().join(format!("covey-resolve-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&base);
+        let root = base.join("doc");
+        std::fs::create_dir_all(root.join("data")).unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(root.join("data/x.csv"), "a\n1\n").unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(base.join("secret.csv"), "a\n1\n").unwrap_or_else(|e| panic!("{e}"));
+        symlink("data", root.join("d")).unwrap_or_else(|e| panic!("{e}"));
+        symlink("..", root.join("up")).unwrap_or_else(|e| panic!("{e}"));
+        symlink(root.join("data/x.csv"), root.join("absolute.csv"))
+            .unwrap_or_else(|e| panic!("{e}"));
+        symlink("d/../data/x.csv", root.join("winding.csv")).unwrap_or_else(|e| panic!("{e}"));
+        let world = FsWorld::new(&root, false);
+        let real = root
+            .join("data/x.csv")
+            .canonicalize()
+            .unwrap_or_else(|e| panic!("{e}"));
+        for inside in [
+            "data/x.csv",
+            "d/x.csv",
+            "absolute.csv",
+            "winding.csv",
+            "./d/./x.csv",
+        ] {
+            assert_eq!(world.resolve(inside).ok(), Some(real.clone()), "{inside}");
+        }
+        let absolute = real.display().to_string();
+        assert_eq!(world.resolve(&absolute).ok(), Some(real.clone()));
+        for outside in [
+            "../secret.csv",
+            "up/secret.csv",
+            "up/missing.csv",
+            "/etc/passwd",
+        ] {
+            assert!(
+                matches!(world.resolve(outside), Err(WorldError::Outside { .. })),
+                "{outside}"
+            );
+        }
+        assert!(matches!(
+            world.resolve("data/missing.csv"),
+            Err(WorldError::NotFound { .. })
+        ));
+        // Allowed outside, a path resolves wherever it leads.
+        let free = FsWorld::new(&root, true);
+        assert!(free.resolve("up/secret.csv").is_ok());
+        std::fs::remove_dir_all(&base).unwrap_or_else(|e| panic!("{e}"));
+    }
+
     #[test]
     fn a_large_file_read_in_pieces_has_the_same_bytes() {
         let dir = std::env::temp_dir().join(format!("covey-world-{}", std::process::id()));
@@ -412,8 +472,9 @@ mod tests {
             let bytes: Vec<u8> = (0..len).map(|i| (i * 31 % 251) as u8).collect();
             let path = dir.join(format!("f{len}.bin"));
             std::fs::write(&path, &bytes).unwrap();
-            let file = std::fs::File::open(&path).unwrap();
-            assert_eq!(read_file(file, len as u64).unwrap(), bytes, "{len}");
+            let file = std::fs::File::open(&path).unwrap_or_else(|e| panic!("{e}"));
+            let read = read_file(file, len as u64).unwrap_or_else(|e| panic!("{e}"));
+            assert_eq!(read, bytes, "{len}");
         }
         std::fs::remove_dir_all(&dir).unwrap();
     }
