@@ -23,22 +23,7 @@ cp -r "$root/worked/data" "$out/"
 (cd "$root" && cargo build --release -j 2 --quiet)
 covey="$root/target/release/covey"
 
-# measure CMD... : prints "median_seconds median_peak_MB" over $runs runs.
-measure() {
-    local secs=() mbs=() log="$out/time.log"
-    for _ in $(seq "$runs"); do
-        local t0 t1
-        t0="$(date +%s%N)"
-        /usr/bin/time -v "$@" >/dev/null 2>"$log"
-        t1="$(date +%s%N)"
-        secs+=("$(awk -v a="$t0" -v b="$t1" 'BEGIN {printf "%.3f", (b - a) / 1e9}')")
-        mbs+=("$(awk -F': ' '/Maximum resident set size/ {printf "%.1f", $2/1024}' "$log")")
-    done
-    local ms mm
-    ms="$(printf '%s\n' "${secs[@]}" | sort -g | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}')"
-    mm="$(printf '%s\n' "${mbs[@]}" | sort -g | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}')"
-    echo "$ms $mm"
-}
+source "$here/measure.sh"
 
 head_block='```covey
 load "data/rations.csv" as pens
