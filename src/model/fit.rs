@@ -329,9 +329,9 @@ fn root_mean_square(x: &[f64], c: f64) -> f64 {
     big * (ss / x.len() as f64).sqrt()
 }
 
-/// What one block of rows gives the fit: the response's moments and its smallest and largest
-/// value, and the block's triangular factor.
-type BlockPart = (Moments, (f64, f64), Mat);
+/// What one block of rows gives the fit: the response's smallest and largest value, and the
+/// block's triangular factor.
+type BlockPart = ((f64, f64), Mat);
 
 /// Blocks of rows factored side by side before their factors are merged into the running one.
 const FACTORED_AT_ONCE: usize = 8;
@@ -360,9 +360,8 @@ pub fn working_bytes(p: usize, n: usize) -> usize {
 /// Centre and scale every column by its mean and spread over the first block of rows, then
 /// triangularise [Z | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows, computed in
 /// parallel and merged in block order (see [`crate::parallel`]) by re-triangularising the
-/// block factors two at a time. The response's variance, for the zero-variance check, is
-/// pooled from per-block moments by the formula of Chan, Golub & LeVeque (1983, "Algorithms
-/// for computing the sample variance", The American Statistician 37).
+/// block factors two at a time. The response's smallest and largest values, for the checks that
+/// it is not constant and that its sums of squares can be held, are taken along.
 pub(crate) fn build_engine(
     spec: &ModelSpec,
     lay: &Layout,
@@ -418,7 +417,6 @@ pub(crate) fn build_engine(
     // [`FACTORED_AT_ONCE`] at a time and folded in before the next ones, so that the factors
     // waiting to be merged take memory independent of the number of rows; the merges happen
     // in the same order either way.
-    let mut y_moments = Moments::empty(1);
     let mut y_range = (f64::INFINITY, f64::NEG_INFINITY);
     let mut r_aug = Mat::zeros(p + 1, p + 1);
     for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
@@ -426,14 +424,12 @@ pub(crate) fn build_engine(
             let rows = lay.used.slice(at.clone());
             let mut block = Block::fill(spec, &cols, y, &rows);
             block.check_finite(spec, &cols, &rows)?;
-            let ym = block.column_moments(p);
             let range = block.column_range(p);
             block.standardise(&centre, &scale);
-            Ok((ym, range, qr::block_factor(&mut block.a)))
+            Ok((range, qr::block_factor(&mut block.a)))
         });
         for (k, part) in partial.into_iter().enumerate() {
-            let (ym, range, f) = part?;
-            y_moments.pool(&ym);
+            let (range, f) = part?;
             y_range = (y_range.0.min(range.0), y_range.1.max(range.1));
             r_aug = if b == 0 && k == 0 {
                 f
@@ -450,8 +446,7 @@ pub(crate) fn build_engine(
     }
     // Sums of squares of the response must be numbers: its spread squared, times the rows
     // and some room, must neither overflow nor fall below the normal doubles.
-    let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
-    if !(RESPONSE_SPREAD_MIN..=RESPONSE_SPREAD_MAX).contains(&width) || !y_m2.is_finite() {
+    if !(RESPONSE_SPREAD_MIN..=RESPONSE_SPREAD_MAX).contains(&width) {
         return Err(ModelError::ResponseOutOfRange { width });
     }
     let y_centre = centre[p];
@@ -579,7 +574,6 @@ impl Block {
         }
     }
 
-    /// Moments of column j alone.
     /// The smallest and largest value of column `j` over the block.
     fn column_range(&self, j: usize) -> (f64, f64) {
         self.column(j)
@@ -587,17 +581,6 @@ impl Block {
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
                 (lo.min(v), hi.max(v))
             })
-    }
-
-    fn column_moments(&self, j: usize) -> Moments {
-        let x = self.column(j);
-        let k = x.len() as f64;
-        let mean = mean_of(x);
-        Moments {
-            count: k,
-            mean: vec![mean],
-            m2: vec![qr::sum_of(x, |v| (v - mean) * (v - mean))],
-        }
     }
 
     /// Centre and scale every column in place.
@@ -638,20 +621,6 @@ impl Moments {
             mean: vec![0.0; width],
             m2: vec![0.0; width],
         }
-    }
-
-    /// Adds the rows behind `b` (Chan, Golub & LeVeque's pairwise update).
-    fn pool(&mut self, b: &Moments) {
-        let n = self.count + b.count;
-        if b.count == 0.0 {
-            return;
-        }
-        for j in 0..self.mean.len() {
-            let d = b.mean[j] - self.mean[j];
-            self.mean[j] += d * (b.count / n);
-            self.m2[j] += b.m2[j] + d * d * (self.count * b.count / n);
-        }
-        self.count = n;
     }
 }
 
