@@ -75,10 +75,15 @@ pub fn run(
         errors: vec![for_terminal(format!("{file_name}: {e}"))],
     })?;
     let shift = Shift::new(&doc);
+    // The text as given and the source without regions, each indexed once for all messages
+    // and line numbers, so that a document of many statements or errors costs no more than
+    // its length.
+    let given = diagnostic::Source::new(file_name, text);
+    let source = diagnostic::Source::new(file_name, &doc.source);
     let show = |d: &Diagnostic| {
         let mut d = d.clone();
         d.span = shift.span(d.span);
-        diagnostic::render(file_name, text, &d)
+        given.render(&d)
     };
 
     // Parameters first, wherever they stand: `@NAME` may be used in any
@@ -125,10 +130,6 @@ pub fn run(
         return Err(Unrunnable { errors });
     }
 
-    // Line numbers of statements, in the text as given and in the source, found by binary
-    // search: a document of many statements costs no more than its length.
-    let lines_given = diagnostic::Lines::new(text);
-    let lines_source = diagnostic::Lines::new(&doc.source);
     let mut session = Session::new(world);
     let mut outputs: Vec<Output> = Vec::new();
     let mut bodies = Vec::with_capacity(blocks.len());
@@ -153,7 +154,7 @@ pub fn run(
                     for it in &items {
                         if let Item::GateFailed(g) = it {
                             gates_failed.push(format!("block {}: {}", bi + 1, markdown::plain(g)));
-                            let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
+                            let (line, _) = given.line_col(shift.offset(stmt.span.start));
                             warnings.push(for_terminal(format!(
                                 "{file_name}:{line}: {}",
                                 markdown::plain(g)
@@ -180,7 +181,7 @@ pub fn run(
                     // The rendered copy points into the source without
                     // covey's regions, so that outputs depend only on the
                     // source and re-rendering in place changes nothing.
-                    let snippet = diagnostic::render(file_name, &doc.source, &d);
+                    let snippet = source.render(&d);
                     if !opts.keep_going {
                         stopped = true;
                     }
@@ -192,7 +193,7 @@ pub fn run(
             };
             for it in &items {
                 if let Item::Warning(w) = it {
-                    let (line, _) = lines_given.line_col(shift.offset(stmt.span.start));
+                    let (line, _) = given.line_col(shift.offset(stmt.span.start));
                     warnings.push(for_terminal(format!(
                         "{file_name}:{line}: warning: {}",
                         markdown::plain(w)
@@ -201,7 +202,7 @@ pub fn run(
             }
             outputs.push(Output {
                 block: bi + 1,
-                line: lines_source.line_col(stmt.span.start).0,
+                line: source.line_col(stmt.span.start).0,
                 statement: stmt.text.clone(),
                 items,
             });

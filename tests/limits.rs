@@ -52,10 +52,19 @@ fn covey_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> (i32, String) {
     let mut child = cmd
         .spawn()
         .unwrap_or_else(|e| panic!("cannot run covey: {e}"));
+    // Read stderr meanwhile, so that a long report never fills the pipe and stalls covey.
+    let mut stderr = child.stderr.take();
+    let reader = std::thread::spawn(move || {
+        let mut text = Vec::new();
+        if let Some(s) = stderr.as_mut() {
+            let _ = std::io::Read::read_to_end(s, &mut text);
+        }
+        text
+    });
     let started = Instant::now();
-    loop {
+    let status = loop {
         match child.try_wait() {
-            Ok(Some(_)) => break,
+            Ok(Some(status)) => break status,
             Ok(None) if started.elapsed() > TIMEOUT => {
                 let _ = child.kill();
                 let _ = child.wait();
@@ -64,13 +73,11 @@ fn covey_env(dir: &Path, args: &[&str], env: &[(&str, &str)]) -> (i32, String) {
             Ok(None) => std::thread::sleep(Duration::from_millis(20)),
             Err(e) => panic!("{e}"),
         }
-    }
-    let out = child
-        .wait_with_output()
-        .unwrap_or_else(|e| panic!("covey: {e}"));
+    };
+    let stderr = reader.join().unwrap_or_default();
     (
-        out.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
+        status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&stderr).into_owned(),
     )
 }
 
@@ -290,6 +297,22 @@ fn many_live_references_resolve_and_read_back() {
         n,
         "not every reference has its value"
     );
+    // As many references to a table the document does not compute: each an error at its own
+    // line and column.
+    let mut bad = doc("load \"d.csv\"\nfactor group\nmodel m: y on group + x\ntable fit m");
+    bad.push('\n');
+    for _ in 0..n / 2 {
+        bad.push_str("R² is @[fit nope r_squared].\n\n");
+    }
+    write(&dir.join("bad.md"), &bad);
+    let (code, err) = covey(&dir, &["render", "bad.md"]);
+    assert_eq!(code, 2, "{}", err.lines().next().unwrap_or(""));
+    assert_eq!(
+        err.matches("error: the document computes no `fit` table for `nope`")
+            .count(),
+        n / 2
+    );
+    assert!(err.contains(&format!("bad.md:{}:7: error", 10 + 2 * (n / 2 - 1))));
     // Rendering the rendering in place gives it back unchanged.
     write(
         &dir.join("again.md"),
