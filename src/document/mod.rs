@@ -93,6 +93,9 @@ pub struct Reference {
     /// Whether only whitespace (and `<wbr>` guards) precede it on its line: its value region then
     /// gets a guard, so that the line does not begin with an HTML comment.
     pub begins_line: bool,
+    /// The first and last line (1-based) of the top-level block that holds it, whose text alone
+    /// decides how its value region reads back; (0, 0) when not known.
+    pub block: (usize, usize),
 }
 
 /// A parsed analysis: the user's source (covey's regions removed) and its covey blocks.
@@ -419,6 +422,7 @@ fn document_of(
                 line,
                 column,
                 begins_line: r.begins_line,
+                block: r.block,
             })
         })
         .collect();
@@ -550,24 +554,10 @@ fn value_region(reference: &Reference, value: &str) -> String {
 /// regions alone are put into the source and read back with comrak; the first region not found
 /// where it was put loses its value, until all are found. (Block regions do not matter here: they
 /// are removed before value regions are looked for.)
-///
-/// Only raw HTML can be left open before a region, and raw HTML needs a `<`; so when neither the
-/// source nor any value holds a `<` that could begin a tag or comment, every region reads back
-/// and the parse (a comrak tree of the whole prose, the largest allocation of a long document's
-/// render) is not needed.
 fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str>>, Vec<usize>) {
     let mut settled: Vec<Option<&str>> =
         values.iter().take(doc.references.len()).copied().collect();
     let mut left = Vec::new();
-    let may_open_html = |text: &str| {
-        text.as_bytes()
-            .windows(2)
-            .any(|w| w[0] == b'<' && (w[1].is_ascii_alphabetic() || b"!?/".contains(&w[1])))
-            || text.ends_with('<')
-    };
-    if !may_open_html(&doc.source) && !settled.iter().flatten().any(|v| may_open_html(v)) {
-        return (settled, left);
-    }
     loop {
         let mut expected: Vec<(usize, usize, usize)> = Vec::new();
         let mut grown = 0usize;
@@ -583,11 +573,7 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
             break;
         }
         let text = assemble_unchecked(doc, None, &[], &settled);
-        let found: BTreeSet<(usize, usize)> = values::scan(&text)
-            .regions
-            .iter()
-            .map(|r| (r.start, r.end))
-            .collect();
+        let found = regions_found(&text, doc, &settled);
         let put: BTreeSet<(usize, usize)> = expected.iter().map(|&(_, s, e)| (s, e)).collect();
         let missing = expected
             .iter()
@@ -613,6 +599,62 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
     }
     left.sort_unstable();
     (settled, left)
+}
+
+/// The value regions that `text` (the source with value regions only) reads back as, by
+/// (start, end). Only the top-level blocks holding a region can read differently, and only
+/// within themselves: a region sits inside one line of a paragraph, heading or table, and
+/// what could change how it reads (HTML left open before it, an escape) is in the same block.
+/// So those blocks are read one at a time, each with comrak, and a long document never holds
+/// comrak's tree of all its prose; a region whose block is not known sends the whole text to
+/// be read at once.
+fn regions_found(text: &str, doc: &Document, values: &[Option<&str>]) -> BTreeSet<(usize, usize)> {
+    let whole = || {
+        values::scan(text)
+            .regions
+            .iter()
+            .map(|r| (r.start, r.end))
+            .collect()
+    };
+    let mut blocks: Vec<(usize, usize)> = Vec::new();
+    for (reference, value) in doc.references.iter().zip(values) {
+        if value.is_none() {
+            continue;
+        }
+        if reference.block.0 == 0 {
+            return whole();
+        }
+        if blocks.last() != Some(&reference.block) {
+            blocks.push(reference.block);
+        }
+    }
+    // Value regions sit within lines, so the text has the source's lines.
+    let index = LineIndex::new(text);
+    let mut found = BTreeSet::new();
+    for (first, last) in blocks {
+        let (Some(start), Some(end)) = (index.start(first), index.span(text, last).map(|s| s.end))
+        else {
+            return whole();
+        };
+        let Some(piece) = text.get(start..end) else {
+            return whole();
+        };
+        // An empty first line keeps comrak from reading the block's first line as the
+        // document's (a byte-order mark there would be dropped); offsets are shifted back.
+        let prefixed = format!("\n{piece}");
+        found.extend(
+            values::scan_piece(&prefixed)
+                .regions
+                .iter()
+                .filter_map(|r| {
+                    Some((
+                        start + r.start.checked_sub(1)?,
+                        start + r.end.checked_sub(1)?,
+                    ))
+                }),
+        );
+    }
+    found
 }
 
 /// [`assemble_with_values`] without the check that value regions read back.
