@@ -484,7 +484,7 @@ pub(crate) fn prepare_documents(
             plan.output(html.clone(), page, Role::Html, doc);
         }
         if let Some(j) = &opts.json {
-            plan.output(j.clone(), json::to_text(&run.json), Role::Json, doc);
+            plan.output(j.clone(), json::to_text(&run.json()), Role::Json, doc);
         }
         let figures = run
             .figures

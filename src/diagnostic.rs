@@ -7,6 +7,7 @@ use codespan_reporting::files::SimpleFile;
 use codespan_reporting::term::{self, termcolor::NoColor, Chars, Config};
 
 use crate::lang::Span;
+use crate::report::visible::visible_except;
 
 /// A problem at a place in a document: what is wrong and what to do.
 #[derive(Debug, Clone, PartialEq)]
@@ -50,6 +51,34 @@ pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
     (line, before[line_start..].chars().count() + 1)
 }
 
+/// [`line_col`] for many offsets of one text, the line starts found once.
+struct Lines<'t> {
+    source: &'t str,
+    /// Byte offset where each line starts, ascending.
+    starts: Vec<usize>,
+}
+
+impl<'t> Lines<'t> {
+    fn new(source: &'t str) -> Lines<'t> {
+        let mut starts = vec![0];
+        starts.extend(memchr::memchr_iter(b'\n', source.as_bytes()).map(|i| i + 1));
+        Lines { source, starts }
+    }
+
+    /// 1-based line and column (in characters) of a byte offset, as [`line_col`] gives them.
+    fn line_col(&self, offset: usize) -> (usize, usize) {
+        let offset = floor_char_boundary(self.source, offset.min(self.source.len()));
+        let line = self.starts.partition_point(|&s| s <= offset).max(1);
+        let start = self.starts.get(line - 1).copied().unwrap_or(0).min(offset);
+        let column = self
+            .source
+            .get(start..offset)
+            .map_or(0, |s| s.chars().count())
+            + 1;
+        (line, column)
+    }
+}
+
 fn floor_char_boundary(s: &str, mut i: usize) -> usize {
     while i > 0 && !s.is_char_boundary(i) {
         i -= 1;
@@ -58,39 +87,83 @@ fn floor_char_boundary(s: &str, mut i: usize) -> usize {
 }
 
 /// `file:line:column: message` followed by the source line with a caret and
-/// the help, as one block of text.
+/// the help, as one block of text. For several diagnostics of one text, make a
+/// [`Source`] once.
 pub fn render(file_name: &str, source: &str, d: &Diagnostic) -> String {
-    let file = SimpleFile::new(file_name, source);
-    let start = floor_char_boundary(source, d.span.start.min(source.len()));
-    let end = floor_char_boundary(source, d.span.end.min(source.len())).max(start);
-    let mut diag = CsDiagnostic::error()
-        .with_message(&d.message)
-        .with_labels(vec![Label::primary((), start..end).with_message(&d.label)]);
-    if let Some(h) = &d.help {
-        diag = diag.with_notes(vec![format!("help: {h}")]);
-    }
-    let config = Config {
-        chars: Chars::ascii(),
-        ..Config::default()
-    };
-    let mut out = NoColor::new(Vec::new());
-    let (line, col) = line_col(source, start);
-    let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
-    match term::emit(&mut out, &config, &file, &diag) {
-        Ok(()) => {
-            // codespan repeats the message on its first line; the head
-            // above already says it with the position.
-            let body = String::from_utf8_lossy(out.get_ref());
-            let snippet = body.split_once('\n').map_or("", |(_, rest)| rest);
-            head + snippet.trim_end() + "\n"
+    Source::new(file_name, source).render(d)
+}
+
+/// A text that diagnostics point into, with its lines found once, so that
+/// rendering many diagnostics takes time in proportion to their number, not
+/// to their number times the text.
+pub struct Source<'t> {
+    name: &'t str,
+    file: SimpleFile<&'t str, &'t str>,
+    lines: Lines<'t>,
+}
+
+impl<'t> Source<'t> {
+    pub fn new(name: &'t str, text: &'t str) -> Source<'t> {
+        Source {
+            name,
+            file: SimpleFile::new(name, text),
+            lines: Lines::new(text),
         }
-        Err(_) => head,
+    }
+
+    /// 1-based line and column (in characters) of a byte offset of the text.
+    pub fn line_col(&self, offset: usize) -> (usize, usize) {
+        self.lines.line_col(offset)
+    }
+
+    /// The diagnostic laid out as [`render`] lays it out.
+    pub fn render(&self, d: &Diagnostic) -> String {
+        let source = self.lines.source;
+        let file_name = self.name;
+        let start = floor_char_boundary(source, d.span.start.min(source.len()));
+        let end = floor_char_boundary(source, d.span.end.min(source.len())).max(start);
+        let mut diag = CsDiagnostic::error()
+            .with_message(&d.message)
+            .with_labels(vec![Label::primary((), start..end).with_message(&d.label)]);
+        if let Some(h) = &d.help {
+            diag = diag.with_notes(vec![format!("help: {h}")]);
+        }
+        let config = Config {
+            chars: Chars::ascii(),
+            ..Config::default()
+        };
+        let mut out = NoColor::new(Vec::new());
+        let (line, col) = self.lines.line_col(start);
+        let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
+        let text = match term::emit(&mut out, &config, &self.file, &diag) {
+            Ok(()) => {
+                // codespan repeats the message on its first line; the head
+                // above already says it with the position.
+                let body = String::from_utf8_lossy(out.get_ref());
+                let snippet = body.split_once('\n').map_or("", |(_, rest)| rest);
+                head + snippet.trim_end() + "\n"
+            }
+            Err(_) => head,
+        };
+        // Names from data files and the document's own lines may hold control or bidirectional
+        // characters; on a terminal (and in the rendering's error block) they are shown by
+        // their code points, never obeyed.
+        visible_except(&text, &['\n', '\t']).into_owned()
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn lines_agree_with_line_col() {
+        let src = "ab\né\n\nxyz";
+        let lines = Lines::new(src);
+        for at in 0..=src.len() + 2 {
+            assert_eq!(lines.line_col(at), line_col(src, at), "{at}");
+        }
+    }
 
     #[test]
     fn points_at_line_and_column() {

@@ -149,8 +149,11 @@ fn put(stream: &mut dyn Write, line: &str, failed: &mut Option<std::io::Error>) 
 }
 
 fn main() -> ExitCode {
-    covey::parallel::configure();
     let mut console = Console::default();
+    if let Err(e) = covey::parallel::configure() {
+        let _ = console.err(&format!("covey: {e}"));
+        return console.exit(2);
+    }
     let cli = match Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {

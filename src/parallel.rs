@@ -5,24 +5,63 @@
 //! combined in block order. So every output byte is the same whatever the number of threads;
 //! threads only change how soon it is ready.
 
-/// Environment variable that sets the number of worker threads (a whole number >= 1). Unset,
-/// 0, empty or unreadable: one per core.
+/// Environment variable that sets the number of worker threads: a whole number from 1 up; 0,
+/// empty or unset for one per core. More threads than cores are not started (they could not
+/// run at once, and each costs memory and a start), and anything else is an error.
 pub const THREADS_VAR: &str = "COVEY_THREADS";
 
-/// Sets up the thread pool from [`THREADS_VAR`]; call once, before any parallel work. A value
-/// that is not a whole number >= 1 is ignored (the default is kept), since the number of
-/// threads cannot change any result.
-pub fn configure() {
-    let wanted = std::env::var(THREADS_VAR)
-        .ok()
-        .and_then(|v| v.trim().parse::<usize>().ok())
-        .filter(|&n| n >= 1);
-    if let Some(n) = wanted {
-        // Fails only when a pool was already built, which leaves that pool in place.
-        let _ = rayon::ThreadPoolBuilder::new()
-            .num_threads(n)
-            .build_global();
+/// The number of threads to run for the value of [`THREADS_VAR`] (`None` when unset) on a
+/// machine with `cores` cores, or what is wrong with the value.
+///
+/// ```
+/// use covey::parallel::threads_for;
+/// assert_eq!(threads_for(None, 4), Ok(4));
+/// assert_eq!(threads_for(Some("2"), 4), Ok(2));
+/// assert_eq!(threads_for(Some("10000"), 4), Ok(4));
+/// assert!(threads_for(Some("two"), 4).is_err());
+/// ```
+pub fn threads_for(value: Option<&str>, cores: usize) -> Result<usize, String> {
+    let cores = cores.max(1);
+    let Some(value) = value.map(str::trim).filter(|v| !v.is_empty()) else {
+        return Ok(cores);
+    };
+    // Digits only: no sign, no decimals, no spaces inside.
+    let wanted: Option<u64> = if value.bytes().all(|b| b.is_ascii_digit()) {
+        // Digits beyond u64 are still a (very large) whole number: capped below.
+        Some(value.parse().unwrap_or(u64::MAX))
+    } else {
+        None
+    };
+    match wanted {
+        Some(0) => Ok(cores),
+        Some(n) => Ok(usize::try_from(n).map_or(cores, |n| n.min(cores))),
+        None => Err(format!(
+            "{THREADS_VAR}={value:?} is not a number of threads; set it to a whole number (1 for \
+             one thread, up to {cores}, the cores of this machine), or to 0 or nothing for one \
+             thread per core"
+        )),
     }
+}
+
+/// Sets up the thread pool from [`THREADS_VAR`] (see [`threads_for`]); call once, before any
+/// parallel work. The number of threads cannot change any result, only how soon it is ready.
+///
+/// Errors: a value of [`THREADS_VAR`] that is not a number of threads.
+pub fn configure() -> Result<(), String> {
+    let value = std::env::var_os(THREADS_VAR);
+    let text = match &value {
+        None => None,
+        Some(v) => Some(v.to_str().ok_or_else(|| {
+            format!("{THREADS_VAR} is not readable text; set it to a whole number of threads")
+        })?),
+    };
+    let cores = std::thread::available_parallelism().map_or(1, usize::from);
+    let n = threads_for(text, cores)?;
+    // Fails only when a pool was already built, which leaves that pool in place.
+    let _ = rayon::ThreadPoolBuilder::new()
+        .num_threads(n)
+        .build_global();
+    Ok(())
 }
 
 /// Rows per block in [`row_blocks`].

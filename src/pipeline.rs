@@ -25,8 +25,8 @@ pub struct RunOptions {
 pub struct Run {
     /// The rendered document: the source with covey's regions filled in.
     pub rendered: String,
-    /// The JSON export of every table.
-    pub json: serde_json::Value,
+    /// Every statement's results, in document order (the JSON export is made from them).
+    pub outputs: Vec<Output>,
     /// Every error, laid out for a terminal (file:line:column, caret).
     pub errors: Vec<String>,
     /// Warnings for the terminal.
@@ -42,6 +42,12 @@ pub struct Run {
 }
 
 impl Run {
+    /// The JSON export of every table. Made when asked for, not with every run: as a tree of
+    /// values it takes several times the memory of the tables it holds.
+    pub fn json(&self) -> serde_json::Value {
+        json::document(&self.inputs, &self.outputs)
+    }
+
     /// True when a statement failed.
     pub fn failed(&self) -> bool {
         !self.errors.is_empty()
@@ -66,13 +72,18 @@ pub fn run(
     opts: RunOptions,
 ) -> Result<Run, Unrunnable> {
     let doc = document::parse(text).map_err(|e| Unrunnable {
-        errors: vec![format!("{file_name}: {e}")],
+        errors: vec![for_terminal(format!("{file_name}: {e}"))],
     })?;
     let shift = Shift::new(&doc);
+    // The text as given and the source without regions, each indexed once for all messages
+    // and line numbers, so that a document of many statements or errors costs no more than
+    // its length.
+    let given = diagnostic::Source::new(file_name, text);
+    let source = diagnostic::Source::new(file_name, &doc.source);
     let show = |d: &Diagnostic| {
         let mut d = d.clone();
         d.span = shift.span(d.span);
-        diagnostic::render(file_name, text, &d)
+        given.render(&d)
     };
 
     // Parameters first, wherever they stand: `@NAME` may be used in any
@@ -96,7 +107,7 @@ pub fn run(
         return Err(Unrunnable {
             errors: unknown
                 .iter()
-                .map(|n| format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)"))
+                .map(|n| for_terminal(format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)")))
                 .collect(),
         });
     }
@@ -143,9 +154,11 @@ pub fn run(
                     for it in &items {
                         if let Item::GateFailed(g) = it {
                             gates_failed.push(format!("block {}: {}", bi + 1, markdown::plain(g)));
-                            let (line, _) =
-                                diagnostic::line_col(text, shift.offset(stmt.span.start));
-                            warnings.push(format!("{file_name}:{line}: {}", markdown::plain(g)));
+                            let (line, _) = given.line_col(shift.offset(stmt.span.start));
+                            warnings.push(for_terminal(format!(
+                                "{file_name}:{line}: {}",
+                                markdown::plain(g)
+                            )));
                             if !opts.override_gates {
                                 stopped = true;
                             }
@@ -155,7 +168,9 @@ pub fn run(
                         if let Item::Figure(f) = it {
                             figure_count += 1;
                             f.file = format!("{stem}.figures/block{}-{figure_count}.svg", bi + 1);
-                            figures.push((f.file.clone(), f.svg.clone()));
+                            // The SVG text moves to the run's figures; the item keeps
+                            // what the Markdown shows (caption, alternative text, link).
+                            figures.push((f.file.clone(), std::mem::take(&mut f.svg)));
                         }
                     }
                     items
@@ -166,7 +181,7 @@ pub fn run(
                     // The rendered copy points into the source without
                     // covey's regions, so that outputs depend only on the
                     // source and re-rendering in place changes nothing.
-                    let snippet = diagnostic::render(file_name, &doc.source, &d);
+                    let snippet = source.render(&d);
                     if !opts.keep_going {
                         stopped = true;
                     }
@@ -178,16 +193,16 @@ pub fn run(
             };
             for it in &items {
                 if let Item::Warning(w) = it {
-                    let (line, _) = diagnostic::line_col(text, shift.offset(stmt.span.start));
-                    warnings.push(format!(
+                    let (line, _) = given.line_col(shift.offset(stmt.span.start));
+                    warnings.push(for_terminal(format!(
                         "{file_name}:{line}: warning: {}",
                         markdown::plain(w)
-                    ));
+                    )));
                 }
             }
             outputs.push(Output {
                 block: bi + 1,
-                line: diagnostic::line_col(&doc.source, stmt.span.start).0,
+                line: source.line_col(stmt.span.start).0,
                 statement: stmt.text.clone(),
                 items,
             });
@@ -200,9 +215,9 @@ pub fn run(
         ));
     }
     for line in &doc.ignored_nested {
-        warnings.push(format!(
+        warnings.push(for_terminal(format!(
             "{file_name}:{line}: warning: a covey block inside a list or quote is not run; move it to the top level"
-        ));
+        )));
     }
 
     let inputs = session.inputs().to_vec();
@@ -222,8 +237,9 @@ pub fn run(
     // Live references in prose: resolved once every block has run, against every table of the
     // document (the last of its kind and subject counts).
     let mut values = Vec::with_capacity(doc.references.len());
+    let mut resolver = live::Resolver::new(&outputs);
     for reference in &doc.references {
-        match live::resolve(&reference.text, &outputs) {
+        match resolver.resolve(&reference.text) {
             Ok(value) => values.push(value),
             // After a failure stopped the run, a table the reference needs
             // may simply not have been computed: that is no new error.
@@ -263,10 +279,9 @@ pub fn run(
         }
     }
     let rendered = assembled.text;
-    let json = json::document(&inputs, &outputs);
     Ok(Run {
         rendered,
-        json,
+        outputs,
         errors,
         warnings,
         inputs,
@@ -371,29 +386,44 @@ pub fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str
     out
 }
 
+/// A message for the terminal: a file name or a name from the data could hold control or
+/// bidirectional characters, which are shown by their code points, never obeyed.
+fn for_terminal(message: String) -> String {
+    crate::report::visible::visible_except(&message, &['\n', '\t']).into_owned()
+}
+
 /// Maps offsets in the source without regions to offsets in the text as
 /// given (which may hold regions from an earlier in-place render), so that
 /// messages point at the lines the user sees in the file.
 #[derive(Debug, Clone, Default)]
 pub(crate) struct Shift {
-    /// (offset in the source, bytes of regions inserted there), ascending.
+    /// (offset in the source, bytes of regions inserted there and before), ascending: running
+    /// totals, so that an offset is mapped by one binary search.
     inserts: Vec<(usize, usize)>,
 }
 
 impl Shift {
     pub(crate) fn new(doc: &Document) -> Shift {
+        let mut total = 0usize;
         Shift {
-            inserts: doc.removed.clone(),
+            inserts: doc
+                .removed
+                .iter()
+                .map(|&(pos, len)| {
+                    total += len;
+                    (pos, total)
+                })
+                .collect(),
         }
     }
 
     pub(crate) fn offset(&self, at: usize) -> usize {
-        at + self
-            .inserts
-            .iter()
-            .filter(|(pos, _)| *pos <= at)
-            .map(|(_, len)| len)
-            .sum::<usize>()
+        let n = self.inserts.partition_point(|(pos, _)| *pos <= at);
+        let before = n
+            .checked_sub(1)
+            .and_then(|i| self.inserts.get(i))
+            .map_or(0, |(_, total)| *total);
+        at + before
     }
 
     pub(crate) fn span(&self, s: Span) -> Span {

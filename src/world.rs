@@ -12,9 +12,26 @@ use std::path::{Component, Path, PathBuf};
 /// Why a data file could not be read.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum WorldError {
-    NotFound { path: String },
-    Outside { path: String, resolved: String },
-    Io { path: String, message: String },
+    NotFound {
+        path: String,
+    },
+    /// The path leads outside the document's folder. Whether anything exists there is never
+    /// looked at, and where it leads is not said: a rendering shows only the path as written.
+    Outside {
+        path: String,
+    },
+    /// The path names something other than a regular file (a folder, a named pipe, a device,
+    /// a socket), which is refused before it is opened: a pipe can block for ever and a device
+    /// can be endless.
+    NotRegular {
+        path: String,
+        /// What it is, e.g. "a named pipe (FIFO)".
+        kind: &'static str,
+    },
+    Io {
+        path: String,
+        message: String,
+    },
 }
 
 impl fmt::Display for WorldError {
@@ -24,10 +41,16 @@ impl fmt::Display for WorldError {
                 f,
                 "cannot find the data file \"{path}\" (paths are relative to the document's folder)"
             ),
-            WorldError::Outside { path, resolved } => write!(
+            WorldError::Outside { path } => write!(
                 f,
-                "the data file \"{path}\" resolves to {resolved}, outside the document's folder; \
-                 move the file under the document's folder, or pass --allow-outside if this is intended"
+                "the data file \"{path}\" is outside the document's folder (symbolic links \
+                 followed); move the file under the document's folder, or pass --allow-outside \
+                 if this is intended"
+            ),
+            WorldError::NotRegular { path, kind } => write!(
+                f,
+                "\"{path}\" is {kind}, not a regular file; covey reads data only from regular \
+                 files (save the data to a .csv or .tsv file and load that)"
             ),
             WorldError::Io { path, message } => write!(f, "cannot read \"{path}\": {message}"),
         }
@@ -67,6 +90,9 @@ pub struct FsWorld {
     allow_outside: bool,
 }
 
+/// Most symbolic links followed while resolving one path (as many as Linux follows).
+const MAX_LINKS: usize = 40;
+
 impl FsWorld {
     /// A world rooted at `folder` (the document's folder).
     pub fn new(folder: &Path, allow_outside: bool) -> FsWorld {
@@ -80,24 +106,137 @@ impl FsWorld {
     }
 
     /// Where `path` points, after symlinks, if it exists.
+    ///
+    /// Confined (without `--allow-outside`), the path is followed one name at a time from the
+    /// document's folder, symbolic links by what they hold: the first step that leaves the
+    /// folder (other than up through the folders that contain it) ends the search with
+    /// [`WorldError::Outside`], before anything out there is looked at. So a file outside is
+    /// refused the same way whether it exists or not.
     pub fn resolve(&self, path: &str) -> Result<PathBuf, WorldError> {
-        let joined = self.root.join(path);
-        let resolved = joined.canonicalize().map_err(|e| match e.kind() {
-            std::io::ErrorKind::NotFound => WorldError::NotFound {
-                path: path.to_string(),
-            },
-            _ => WorldError::Io {
-                path: path.to_string(),
-                message: e.to_string(),
-            },
-        })?;
-        if !self.allow_outside && !resolved.starts_with(&self.root) {
-            return Err(WorldError::Outside {
-                path: path.to_string(),
-                resolved: resolved.display().to_string(),
-            });
+        if self.allow_outside {
+            return self
+                .root
+                .join(path)
+                .canonicalize()
+                .map_err(|e| match e.kind() {
+                    std::io::ErrorKind::NotFound => WorldError::NotFound {
+                        path: path.to_string(),
+                    },
+                    _ => io_error(path, &e),
+                });
         }
-        Ok(resolved)
+        let outside = || WorldError::Outside {
+            path: path.to_string(),
+        };
+        let root = self.root.as_path();
+        // Where the walk may be: in the folder, or in a folder that holds it.
+        let allowed = |p: &Path| p.starts_with(root) || root.starts_with(p);
+        let mut current = root.to_path_buf();
+        let mut pending = steps(Path::new(path));
+        let mut links = 0;
+        while let Some(step) = pending.pop_front() {
+            let Step::Name(name) = step else {
+                step.apply(&mut current);
+                continue;
+            };
+            let next = current.join(&name);
+            if !allowed(&next) {
+                return Err(outside());
+            }
+            match std::fs::symlink_metadata(&next) {
+                Ok(m) if m.file_type().is_symlink() => {
+                    links += 1;
+                    if links > MAX_LINKS {
+                        return Err(WorldError::Io {
+                            path: path.to_string(),
+                            message: "too many symbolic links".into(),
+                        });
+                    }
+                    let target = std::fs::read_link(&next).map_err(|e| io_error(path, &e))?;
+                    for part in steps(&target).into_iter().rev() {
+                        pending.push_front(part);
+                    }
+                }
+                Ok(_) => current = next,
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                    // Missing: the rest of the path, by its names alone, says whether it
+                    // would have been inside.
+                    current = next;
+                    for rest in pending.drain(..) {
+                        rest.apply(&mut current);
+                    }
+                    return Err(if current.starts_with(root) {
+                        WorldError::NotFound {
+                            path: path.to_string(),
+                        }
+                    } else {
+                        outside()
+                    });
+                }
+                Err(e) => return Err(io_error(path, &e)),
+            }
+        }
+        if !current.starts_with(root) {
+            return Err(outside());
+        }
+        Ok(current)
+    }
+}
+
+/// One step of a path: to the root, up a folder, or into a name.
+enum Step {
+    Root,
+    Up,
+    Name(std::ffi::OsString),
+}
+
+impl Step {
+    /// Takes the step by its name alone, as if no name were a link.
+    fn apply(self, current: &mut PathBuf) {
+        match self {
+            Step::Root => *current = PathBuf::from("/"),
+            Step::Up => {
+                current.pop();
+            }
+            Step::Name(name) => current.push(name),
+        }
+    }
+}
+
+/// The steps of a path (`.` is none).
+fn steps(path: &Path) -> std::collections::VecDeque<Step> {
+    path.components()
+        .filter_map(|c| match c {
+            Component::Normal(s) => Some(Step::Name(s.to_os_string())),
+            Component::ParentDir => Some(Step::Up),
+            Component::RootDir => Some(Step::Root),
+            Component::CurDir | Component::Prefix(_) => None,
+        })
+        .collect()
+}
+
+/// What a file that is not a regular file is, in words for a message.
+fn kind_of(file_type: &std::fs::FileType) -> &'static str {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if file_type.is_fifo() {
+            return "a named pipe (FIFO)";
+        }
+        if file_type.is_char_device() {
+            return "a character device";
+        }
+        if file_type.is_block_device() {
+            return "a block device";
+        }
+        if file_type.is_socket() {
+            return "a socket";
+        }
+    }
+    if file_type.is_dir() {
+        "a folder"
+    } else {
+        "not a file covey can read"
     }
 }
 
@@ -114,8 +253,14 @@ impl FsWorld {
     /// The fingerprint of the file at `path`, confined like [`World::read`]: a cache of what
     /// was read from the file stays valid while this stays the same.
     pub fn fingerprint(&self, path: &str) -> Result<Fingerprint, WorldError> {
-        let resolved = self.file(path)?;
+        let resolved = self.resolve(path)?;
         let meta = std::fs::metadata(&resolved).map_err(|e| io_error(path, &e))?;
+        if !meta.is_file() {
+            return Err(WorldError::NotRegular {
+                path: path.to_string(),
+                kind: kind_of(&meta.file_type()),
+            });
+        }
         Ok(Fingerprint {
             len: meta.len(),
             modified: meta.modified().ok(),
@@ -123,30 +268,54 @@ impl FsWorld {
         })
     }
 
-    /// Where `path` points, if that is a file.
-    fn file(&self, path: &str) -> Result<PathBuf, WorldError> {
+    /// The regular file `path` points to, opened for reading. Its type is checked before it is
+    /// opened (a named pipe would block the open, a device never end), and again on the open
+    /// file, which is opened without waiting (`O_NONBLOCK`) and, when confined, without
+    /// following a link put in place meanwhile (`O_NOFOLLOW`).
+    fn file(&self, path: &str) -> Result<(std::fs::File, u64), WorldError> {
         let resolved = self.resolve(path)?;
-        if resolved.is_dir() {
-            return Err(WorldError::Io {
-                path: path.to_string(),
-                message: "it is a folder, not a file".into(),
-            });
+        let regular = |m: &std::fs::Metadata| -> Result<(), WorldError> {
+            if m.is_file() {
+                Ok(())
+            } else {
+                Err(WorldError::NotRegular {
+                    path: path.to_string(),
+                    kind: kind_of(&m.file_type()),
+                })
+            }
+        };
+        regular(&std::fs::metadata(&resolved).map_err(|e| io_error(path, &e))?)?;
+        let mut options = std::fs::OpenOptions::new();
+        options.read(true);
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::OpenOptionsExt;
+            let nofollow = if self.allow_outside {
+                0
+            } else {
+                rustix::fs::OFlags::NOFOLLOW.bits()
+            };
+            let flags = rustix::fs::OFlags::NONBLOCK.bits() | nofollow;
+            options.custom_flags(flags as i32);
         }
-        Ok(resolved)
+        let file = options.open(&resolved).map_err(|e| io_error(path, &e))?;
+        let meta = file.metadata().map_err(|e| io_error(path, &e))?;
+        regular(&meta)?;
+        Ok((file, meta.len()))
     }
 }
 
 impl World for FsWorld {
     fn read(&self, path: &str) -> Result<Vec<u8>, WorldError> {
-        read_file(&self.file(path)?).map_err(|e| io_error(path, &e))
+        let (file, len) = self.file(path)?;
+        read_file(file, len).map_err(|e| io_error(path, &e))
     }
 
     fn open(&self, path: &str) -> Result<Opened, WorldError> {
-        let file = std::fs::File::open(self.file(path)?).map_err(|e| io_error(path, &e))?;
-        let len = file.metadata().ok().map(|m| m.len());
+        let (file, len) = self.file(path)?;
         Ok(Opened {
             reader: Box::new(file),
-            len,
+            len: Some(len),
         })
     }
 }
@@ -169,21 +338,27 @@ const READ_PIECE_BYTES: usize = 1 << 21;
 /// share of one buffer, so that the kernel's copying and the mapping of fresh pages are split
 /// between the cores; the bytes are the same as reading it in one go. A file that changes
 /// size meanwhile is read again in one go.
-fn read_file(path: &Path) -> std::io::Result<Vec<u8>> {
+fn read_file(mut file: std::fs::File, len: u64) -> std::io::Result<Vec<u8>> {
+    use std::io::{Seek, SeekFrom};
+    // The whole file again, in one go, from the same open file.
+    let again = |file: &mut std::fs::File| -> std::io::Result<Vec<u8>> {
+        file.seek(SeekFrom::Start(0))?;
+        let mut bytes = Vec::new();
+        file.read_to_end(&mut bytes)?;
+        Ok(bytes)
+    };
     #[cfg(unix)]
     {
         use rayon::prelude::*;
         use std::os::unix::fs::FileExt;
 
-        let mut file = std::fs::File::open(path)?;
-        let len = file.metadata()?.len();
         if len < PARALLEL_READ_BYTES {
             let mut bytes = Vec::new();
             file.read_to_end(&mut bytes)?;
             return Ok(bytes);
         }
         let Ok(n) = usize::try_from(len) else {
-            return std::fs::read(path);
+            return again(&mut file);
         };
         let mut bytes = vec![0u8; n];
         let read = bytes
@@ -196,13 +371,14 @@ fn read_file(path: &Path) -> std::io::Result<Vec<u8>> {
         // A short read means the file shrank; a byte past the end, that it grew.
         let mut probe = [0u8; 1];
         if read.is_err() || file.read_at(&mut probe, len)? != 0 {
-            return std::fs::read(path);
+            return again(&mut file);
         }
         Ok(bytes)
     }
     #[cfg(not(unix))]
     {
-        std::fs::read(path)
+        let _ = len;
+        again(&mut file)
     }
 }
 
@@ -245,7 +421,6 @@ impl World for MemoryWorld {
     fn read(&self, path: &str) -> Result<Vec<u8>, WorldError> {
         let key = normalise(path).ok_or_else(|| WorldError::Outside {
             path: path.to_string(),
-            resolved: path.to_string(),
         })?;
         self.files
             .get(&key)
@@ -260,6 +435,58 @@ impl World for MemoryWorld {
 mod tests {
     use super::*;
 
+    #[cfg(unix)]
+    #[test]
+    fn paths_are_followed_link_by_link_inside_the_folder() {
+        use std::os::unix::fs::symlink;
+        let base = std::env::temp_dir().join(format!("covey-resolve-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&base);
+        let root = base.join("doc");
+        std::fs::create_dir_all(root.join("data")).unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(root.join("data/x.csv"), "a\n1\n").unwrap_or_else(|e| panic!("{e}"));
+        std::fs::write(base.join("secret.csv"), "a\n1\n").unwrap_or_else(|e| panic!("{e}"));
+        symlink("data", root.join("d")).unwrap_or_else(|e| panic!("{e}"));
+        symlink("..", root.join("up")).unwrap_or_else(|e| panic!("{e}"));
+        symlink(root.join("data/x.csv"), root.join("absolute.csv"))
+            .unwrap_or_else(|e| panic!("{e}"));
+        symlink("d/../data/x.csv", root.join("winding.csv")).unwrap_or_else(|e| panic!("{e}"));
+        let world = FsWorld::new(&root, false);
+        let real = root
+            .join("data/x.csv")
+            .canonicalize()
+            .unwrap_or_else(|e| panic!("{e}"));
+        for inside in [
+            "data/x.csv",
+            "d/x.csv",
+            "absolute.csv",
+            "winding.csv",
+            "./d/./x.csv",
+        ] {
+            assert_eq!(world.resolve(inside).ok(), Some(real.clone()), "{inside}");
+        }
+        let absolute = real.display().to_string();
+        assert_eq!(world.resolve(&absolute).ok(), Some(real.clone()));
+        for outside in [
+            "../secret.csv",
+            "up/secret.csv",
+            "up/missing.csv",
+            "/etc/passwd",
+        ] {
+            assert!(
+                matches!(world.resolve(outside), Err(WorldError::Outside { .. })),
+                "{outside}"
+            );
+        }
+        assert!(matches!(
+            world.resolve("data/missing.csv"),
+            Err(WorldError::NotFound { .. })
+        ));
+        // Allowed outside, a path resolves wherever it leads.
+        let free = FsWorld::new(&root, true);
+        assert!(free.resolve("up/secret.csv").is_ok());
+        std::fs::remove_dir_all(&base).unwrap_or_else(|e| panic!("{e}"));
+    }
+
     #[test]
     fn a_large_file_read_in_pieces_has_the_same_bytes() {
         let dir = std::env::temp_dir().join(format!("covey-world-{}", std::process::id()));
@@ -273,7 +500,9 @@ mod tests {
             let bytes: Vec<u8> = (0..len).map(|i| (i * 31 % 251) as u8).collect();
             let path = dir.join(format!("f{len}.bin"));
             std::fs::write(&path, &bytes).unwrap();
-            assert_eq!(read_file(&path).unwrap(), bytes, "{len}");
+            let file = std::fs::File::open(&path).unwrap_or_else(|e| panic!("{e}"));
+            let read = read_file(file, len as u64).unwrap_or_else(|e| panic!("{e}"));
+            assert_eq!(read, bytes, "{len}");
         }
         std::fs::remove_dir_all(&dir).unwrap();
     }

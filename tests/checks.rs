@@ -170,7 +170,7 @@ fn run(doc: &str, data: &[u8]) -> (Value, String) {
     let run = pipeline::run(doc, "checks.md", &world, RunOptions::default())
         .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")));
     assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
-    (run.json, run.rendered)
+    (run.json(), run.rendered)
 }
 
 /// The `nth` output of the given kind.

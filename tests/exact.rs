@@ -73,7 +73,7 @@ fn run(case: &Value) -> BTreeMap<String, Value> {
         .unwrap_or_else(|u| panic!("{name}: document does not run: {:?}", u.errors));
     assert!(!run.failed(), "{name}: {:?}", run.errors);
     let mut out = BTreeMap::new();
-    for o in run.json["outputs"].as_array().into_iter().flatten() {
+    for o in run.json()["outputs"].as_array().into_iter().flatten() {
         if let Some(s) = o["statement"].as_str() {
             out.entry(s.to_string()).or_insert_with(|| o.clone());
         }

@@ -248,7 +248,7 @@ fn figures_are_inline_and_sanitised() {
     let figures = vec![("doc.figures/block2-1.svg".to_string(), svg)];
     let md = "# Figures\n\n**Final weight against starting weight**\n\n\
               ![Final weight *against* `start_kg` & \"more\"](doc.figures/block2-1.svg)\n\n\
-              An image the run did not draw stays an image: ![other](other.svg)\n";
+              An image the run did not draw becomes a link: ![other](other.svg)\n";
     let html = page("Figures", md, &figures);
     assert_eq!(html.matches("<svg").count(), 1, "{html}");
     assert!(html.contains("<circle cx=\"60\" cy=\"240\" r=\"4\" fill=\"#1B6A8F\"/>"));
@@ -260,7 +260,8 @@ fn figures_are_inline_and_sanitised() {
         !html.contains("doc.figures/block2-1.svg"),
         "the link stayed"
     );
-    assert!(html.contains("<img src=\"other.svg\" alt=\"other\" />"));
+    assert!(html.contains("<a href=\"other.svg\">other</a>"), "{html}");
+    assert!(!html.contains("<img"), "{html}");
     let lower = html.to_ascii_lowercase();
     for gone in [
         "<script",

@@ -828,7 +828,7 @@ fn live_reference_kinds_are_the_renderers() {
         let world = FsWorld::new(&folder, false);
         let run = pipeline::run(&text, "doc.md", &world, RunOptions::default())
             .unwrap_or_else(|u| panic!("{:?}", u.errors));
-        for o in run.json["outputs"].as_array().into_iter().flatten() {
+        for o in run.json()["outputs"].as_array().into_iter().flatten() {
             let kind = o["kind"].as_str().unwrap_or("").to_string();
             let columns: Vec<String> = o["columns"]
                 .as_array()

@@ -95,7 +95,7 @@ fn run(file: &str, csv: Vec<u8>, statements: &[&str]) -> Value {
     let run = pipeline::run(&doc, "nist.md", &world, RunOptions::default())
         .unwrap_or_else(|u| panic!("{file}: document does not run: {:?}", u.errors));
     assert!(!run.failed(), "{file}: {:?}", run.errors);
-    run.json
+    run.json()
 }
 
 /// The rows of the first exported table of this kind.

@@ -415,7 +415,7 @@ mod statements {
 
     /// Every table of kind `plan` in a run's JSON, by statement.
     fn plans(run: &pipeline::Run) -> Vec<(String, serde_json::Map<String, Value>)> {
-        run.json["outputs"]
+        run.json()["outputs"]
             .as_array()
             .into_iter()
             .flatten()

@@ -86,7 +86,7 @@ proptest! {
         let again = pipeline::run(&run.rendered, "doc.md", &w, RunOptions::default());
         prop_assert_eq!(again.map(|r| r.rendered).ok(), Some(run.rendered.clone()));
         let third = pipeline::run(&doc, "doc.md", &w, RunOptions::default());
-        prop_assert_eq!(third.map(|r| r.json).ok(), Some(run.json));
+        prop_assert_eq!(third.map(|r| r.json()).ok(), Some(run.json()));
     }
 
     #[test]

@@ -86,7 +86,7 @@ fn json_of(data: &str) -> Value {
     match pipeline::run(DOC, "doc.md", &world, RunOptions::default()) {
         Ok(run) => {
             assert!(run.errors.is_empty(), "{:?}", run.errors);
-            run.json
+            run.json()
         }
         Err(e) => panic!("{:?}", e.errors),
     }

@@ -243,18 +243,29 @@ pub enum FactorError {
         /// The levels that occur (none or one).
         found: Vec<String>,
     },
-    /// More distinct levels than a factor can hold (2^32).
+    /// More distinct levels than a factor may have ([`super::MAX_FACTOR_LEVELS`]).
     TooManyLevels {
         /// Column name.
         column: String,
+        /// 0-based data row where the first level past the limit first occurs (`None` when
+        /// the declared levels are too many).
+        row: Option<usize>,
+        /// File line of that row, when known (see [`FactorError::locate`]).
+        line: Option<usize>,
     },
 }
 
 impl FactorError {
     /// Fills in the file line of the offending row from a data set's row numbers.
     pub fn locate(mut self, row_numbers: &super::RowLines) -> FactorError {
-        if let FactorError::UndeclaredLevel { row, line, .. } = &mut self {
-            *line = row_numbers.get(*row);
+        match &mut self {
+            FactorError::UndeclaredLevel { row, line, .. } => *line = row_numbers.get(*row),
+            FactorError::TooManyLevels {
+                row: Some(row),
+                line,
+                ..
+            } => *line = row_numbers.get(*row),
+            _ => {}
         }
         self
     }
@@ -295,11 +306,30 @@ impl fmt::Display for FactorError {
                      least two levels"
                 ),
             },
-            FactorError::TooManyLevels { column } => write!(
-                f,
-                "column '{column}' has more distinct values than a factor can hold; it is not a \
-                 grouping variable"
-            ),
+            FactorError::TooManyLevels { column, row, line } => {
+                let limit = super::MAX_FACTOR_LEVELS;
+                match (row, line) {
+                    (None, _) => write!(
+                        f,
+                        "the levels declared for '{column}' are more than a factor may have \
+                         ({limit}); a grouping of so many levels is not a factor"
+                    ),
+                    (Some(row), line) => {
+                        let place = match line {
+                            Some(l) => format!("line {l}"),
+                            None => format!("data row {}", row.saturating_add(1)),
+                        };
+                        write!(
+                            f,
+                            "column '{column}' has more than {limit} distinct values (value \
+                             number {} first occurs at {place}), more than a factor may have as \
+                             levels; a column of so many groups is an identifier or a \
+                             measurement, not a factor",
+                            limit + 1
+                        )
+                    }
+                }
+            }
         }
     }
 }

@@ -124,9 +124,17 @@ pub fn unused_levels(f: &Factor) -> Vec<&str> {
         .collect()
 }
 
-/// The code of the level after `levels` levels, if a factor can have it.
+/// Most levels a factor may have. A factor's levels become columns of a model's design, its
+/// tables have a row per level (a row per pair of levels for pairwise comparisons), and no
+/// real grouping of an experiment comes near; a column with more distinct values is an
+/// identifier or a measurement. The limit keeps every later step within bounds.
+pub const MAX_FACTOR_LEVELS: usize = 10_000;
+
+/// The code of the level after `levels` levels, if a factor may have it.
 fn level_code(levels: usize) -> Option<u32> {
-    u32::try_from(levels).ok().filter(|&c| c < Code::MAX_LEVELS)
+    u32::try_from(levels)
+        .ok()
+        .filter(|&c| (c as usize) < MAX_FACTOR_LEVELS && c < Code::MAX_LEVELS)
 }
 
 /// A lookup key for one cell value: text as itself, numbers by their bits (-0 made 0).
@@ -220,8 +228,11 @@ pub fn make_factor(col: &Column, levels: Option<&[String]>) -> Result<Factor, Fa
                         line: None,
                     });
                 }
-                let c = level_code(names.len())
-                    .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
+                let c = level_code(names.len()).ok_or_else(|| FactorError::TooManyLevels {
+                    column: column(),
+                    row: Some(row),
+                    line: None,
+                })?;
                 map.insert(key, c);
                 names.push(text);
                 c
@@ -260,8 +271,11 @@ fn declared_levels<'a>(
                 },
                 Values::Text(_) | Values::Factor(_) => Some(Key::Text(level.as_str())),
             };
-            let code = level_code(names.len())
-                .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
+            let code = level_code(names.len()).ok_or_else(|| FactorError::TooManyLevels {
+                column: column(),
+                row: None,
+                line: None,
+            })?;
             if names.iter().any(|n| n == level) {
                 return Err(FactorError::DuplicateDeclaredLevel {
                     column: column(),
@@ -345,8 +359,11 @@ fn text_levels<'a>(
                 })
             }
             None => {
-                let c = level_code(names.len())
-                    .ok_or_else(|| FactorError::TooManyLevels { column: column() })?;
+                let c = level_code(names.len()).ok_or_else(|| FactorError::TooManyLevels {
+                    column: column(),
+                    row: Some(row),
+                    line: None,
+                })?;
                 map.insert(Key::Text(text), c);
                 names.push(text.to_owned());
                 c

@@ -17,7 +17,9 @@ use super::exact::{self, ExactScan};
 use super::intern::Index;
 use super::lines::LinesBuilder;
 use super::number::{parse_trimmed, NumberParse, Suggestion};
-use super::split::{chunk_starts, span_bytes, span_len, Fields, RecordStart, Splitter};
+use super::split::{
+    chunk_starts, span_bytes, span_len, span_quoted, Fields, RecordStart, Splitter,
+};
 use super::swar;
 use super::{Column, DataSet, ExactValues, TextValues, Values};
 
@@ -68,6 +70,18 @@ fn trim_bytes(mut b: &[u8]) -> &[u8] {
         b = rest;
     }
     b
+}
+
+/// A cell as a text value: a quoted cell as written between its quotes (so `" a "` and `"a"`
+/// are two values), any other trimmed. Whether a cell is missing or a number is always
+/// decided on the trimmed cell.
+#[inline]
+pub(super) fn text_value(raw: &[u8], quoted: bool) -> &[u8] {
+    if quoted {
+        raw
+    } else {
+        trim_bytes(raw)
+    }
 }
 
 pub(super) fn is_break(b: u8) -> bool {
@@ -353,11 +367,12 @@ impl Builder {
                 }
                 Builder::Text { values, index, .. } => {
                     while r < limit {
-                        let cell = trim_bytes(block.cell(r, j));
+                        let (raw, quoted) = block.cell_quoted(r, j);
+                        let cell = trim_bytes(raw);
                         if cell.is_empty() || marked(cell) {
                             break;
                         }
-                        let Some(code) = index.find(values, cell) else {
+                        let Some(code) = index.find(values, text_value(raw, quoted)) else {
                             break;
                         };
                         values.push_code(code);
@@ -373,14 +388,20 @@ impl Builder {
                 column: j + 1,
                 name,
             };
-            self.push(block.cell(r, j), markers, &at)
-                .map_err(|e| (r, e))?;
+            let (raw, quoted) = block.cell_quoted(r, j);
+            self.push(raw, quoted, markers, &at).map_err(|e| (r, e))?;
             r += 1;
         }
     }
 
     #[inline]
-    fn push(&mut self, raw: &[u8], markers: &[&[u8]], at: &Place<'_>) -> Result<(), LoadError> {
+    fn push(
+        &mut self,
+        raw: &[u8],
+        quoted: bool,
+        markers: &[&[u8]],
+        at: &Place<'_>,
+    ) -> Result<(), LoadError> {
         let cell = trim_bytes(raw);
         let missing = is_missing_cell(cell, markers);
         match self {
@@ -424,7 +445,7 @@ impl Builder {
                         texts.push_missing(done);
                         let mut index = Index::default();
                         let code = index
-                            .add(&mut texts, text)
+                            .add(&mut texts, cell_text(text_value(raw, quoted), at)?)
                             .ok_or_else(|| too_many_texts(at))?;
                         texts.push_code(code);
                         *self = Builder::Text {
@@ -439,12 +460,13 @@ impl Builder {
                 let code = if missing {
                     TextValues::MISSING
                 } else {
-                    match index.find(values, cell) {
+                    let value = text_value(raw, quoted);
+                    match index.find(values, value) {
                         Some(code) => code,
                         // Only new texts are checked for UTF-8; a known one was checked
                         // when first seen.
                         None => index
-                            .add(values, cell_text(cell, at)?)
+                            .add(values, cell_text(value, at)?)
                             .ok_or_else(|| too_many_texts(at))?,
                     }
                 };
@@ -579,9 +601,16 @@ impl BlockCells<'_> {
     /// The bytes of row `r`, column `j` (empty when out of range).
     #[inline(always)]
     fn cell(&self, r: usize, j: usize) -> &[u8] {
+        self.cell_quoted(r, j).0
+    }
+
+    /// The bytes of row `r`, column `j` (empty when out of range), and whether the cell was
+    /// quoted.
+    #[inline(always)]
+    fn cell_quoted(&self, r: usize, j: usize) -> (&[u8], bool) {
         match self.spans.get(r * self.width + j) {
-            Some(span) => span_bytes(self.body, self.side, *span),
-            None => &[],
+            Some(span) => (span_bytes(self.body, self.side, *span), span_quoted(*span)),
+            None => (&[], false),
         }
     }
 }
@@ -1424,13 +1453,14 @@ fn refill(
                 if row >= rows {
                     continue;
                 }
-                let cell = trim_bytes(fields.get(body, j));
-                if is_missing_cell(cell, markers) {
+                let (raw, quoted) = fields.get_quoted(body, j);
+                if is_missing_cell(trim_bytes(raw), markers) {
                     continue;
                 }
-                let code = match index.find(values, cell) {
+                let value = text_value(raw, quoted);
+                let code = match index.find(values, value) {
                     Some(code) => Some(code),
-                    None => std::str::from_utf8(cell)
+                    None => std::str::from_utf8(value)
                         .ok()
                         .and_then(|text| index.add(values, text)),
                 };

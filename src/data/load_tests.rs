@@ -413,3 +413,35 @@ fn usual_files_are_streamed_and_unusual_ones_read_whole() {
     // A file no larger than the window comes back whole.
     assert_eq!(streamed(&plain, &opts(), plain.len() + 1, 64).1, Way::Whole);
 }
+
+#[test]
+fn quoted_cells_keep_their_spaces_in_every_reader() {
+    // Rows of a text column holding `" a "`, `"a"`, an unquoted ` a ` (trimmed: `a`) and a
+    // quoted blank (missing), with a numeric column whose quoted padded number still reads
+    // as a number; enough rows for the stream reader to take them a window at a time.
+    let mut bytes = b"g,x\n".to_vec();
+    for i in 0..3000 {
+        let g: &[u8] = match i % 4 {
+            0 => b"\" a \"",
+            1 => b"\"a\"",
+            2 => b" a ",
+            _ => b"\" \"",
+        };
+        bytes.extend_from_slice(g);
+        bytes.extend_from_slice(format!(",\" {i}.5 \"\n").as_bytes());
+    }
+    check(&bytes, &opts());
+    // Streamed, not handed back (with parts of a record or two, a part of blanks alone types
+    // the column as numbers and hands the file back, as for any column).
+    assert_eq!(streamed(&bytes, &opts(), 1000, 64).1, Way::Read);
+    let set = read_in_parts(&bytes, &opts(), 1 << 20).unwrap_or_else(|e| panic!("{e}"));
+    let Some(Values::Text(g)) = set.columns.first().map(|c| &c.values) else {
+        panic!("g is not text");
+    };
+    let shown: Vec<Option<&str>> = (0..4).map(|r| g.get(r)).collect();
+    assert_eq!(shown, vec![Some(" a "), Some("a"), Some("a"), None]);
+    assert!(matches!(
+        set.columns.get(1).map(|c| &c.values),
+        Some(Values::Numeric(x)) if x.first() == Some(&0.5)
+    ));
+}

@@ -20,7 +20,9 @@ mod reference;
 mod tests;
 
 pub use error::{FactorError, LoadError};
-pub use factor::{make_factor, take_factor, unused_levels, Code, Factor, LevelOrder};
+pub use factor::{
+    make_factor, take_factor, unused_levels, Code, Factor, LevelOrder, MAX_FACTOR_LEVELS,
+};
 pub use lines::RowLines;
 pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};

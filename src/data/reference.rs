@@ -9,6 +9,7 @@ use csv::{ByteRecord, ReaderBuilder};
 use super::error::LoadError;
 use super::exact::{self, ExactScan};
 use super::number::{parse_trimmed, NumberParse, Suggestion};
+use super::split::{quoting, Quoting};
 use super::{Column, DataSet, ExactValues, LoadOptions, TextValues, Values};
 
 /// The text column of the old loader: distinct texts and row codes.
@@ -294,8 +295,45 @@ fn cell_text<'a>(cell: &'a [u8], at: &Place<'_>) -> Result<&'a str, LoadError> {
     })
 }
 
+/// How each field of `record` was written (see [`super::split::quoting`]), from the text of
+/// `body` where the record starts.
+fn record_quoting(body: &[u8], record: &ByteRecord, delimiter: u8) -> Vec<Quoting> {
+    let start = record
+        .position()
+        .and_then(|p| usize::try_from(p.byte()).ok())
+        .unwrap_or(usize::MAX);
+    // The reader may place a record just after a CR, at the LF that ends the line; line breaks
+    // never begin a record.
+    match body.get(start..) {
+        Some(raw) => {
+            let skip = raw
+                .iter()
+                .take_while(|b| matches!(b, b'\r' | b'\n'))
+                .count();
+            quoting(raw.get(skip..).unwrap_or_default(), delimiter)
+        }
+        None => Vec::new(),
+    }
+}
+
+/// A field as a text value: a quoted one as written between its quotes, any other trimmed.
+fn text_value<'a>(raw: &'a [u8], quoting: Option<&Quoting>) -> &'a [u8] {
+    match quoting {
+        Some(q) if q.quoted => raw
+            .get(..raw.len().saturating_sub(q.trailing))
+            .unwrap_or(raw),
+        _ => trim_bytes(raw),
+    }
+}
+
 impl Builder {
-    fn push(&mut self, raw: &[u8], markers: &[&[u8]], at: &Place<'_>) -> Result<(), LoadError> {
+    fn push(
+        &mut self,
+        raw: &[u8],
+        value: &[u8],
+        markers: &[&[u8]],
+        at: &Place<'_>,
+    ) -> Result<(), LoadError> {
         let cell = trim_bytes(raw);
         let missing = is_missing_cell(cell, markers);
         match self {
@@ -340,13 +378,13 @@ impl Builder {
                             texts.push_code(TextValues::MISSING);
                         }
                         let mut seen = HashMap::with_hasher(FnvBuild);
-                        let code = texts.add_text(text.to_owned()).ok_or_else(|| {
-                            LoadError::TooManyTexts {
+                        let code = texts
+                            .add_text(cell_text(value, at)?.to_owned())
+                            .ok_or_else(|| LoadError::TooManyTexts {
                                 line: at.line,
                                 name: at.name.to_owned(),
-                            }
-                        })?;
-                        seen.insert(cell.to_vec(), code);
+                            })?;
+                        seen.insert(value.to_vec(), code);
                         texts.push_code(code);
                         *self = Builder::Text {
                             values: texts,
@@ -360,7 +398,7 @@ impl Builder {
                 let code = if missing {
                     TextValues::MISSING
                 } else {
-                    intern(values, seen, cell, at)?
+                    intern(values, seen, value, at)?
                 };
                 values.push_code(code);
             }
@@ -557,13 +595,14 @@ fn read_rows(
                 found: record.len(),
             });
         }
+        let quoting = record_quoting(body, &record, delimiter);
         for (j, ((raw, b), name)) in record.iter().zip(&mut builders).zip(&names).enumerate() {
             let at = Place {
                 line,
                 column: j + 1,
                 name,
             };
-            b.push(raw, markers, &at)?;
+            b.push(raw, text_value(raw, quoting.get(j)), markers, &at)?;
         }
         row_numbers.push(line);
     }
@@ -690,7 +729,8 @@ fn refill(
         if !read_record(&mut rdr, &mut record, &mut lines)? {
             break;
         }
-        for (raw, b) in record.iter().zip(builders.iter_mut()) {
+        let quoting = record_quoting(body, &record, delimiter);
+        for (j, (raw, b)) in record.iter().zip(builders.iter_mut()).enumerate() {
             let Builder::Text {
                 values,
                 seen,
@@ -702,10 +742,10 @@ fn refill(
             if row >= *refill_upto {
                 continue;
             }
-            let cell = trim_bytes(raw);
-            if is_missing_cell(cell, markers) {
+            if is_missing_cell(trim_bytes(raw), markers) {
                 continue;
             }
+            let cell = text_value(raw, quoting.get(j));
             if let Some(code) = seen.get(cell) {
                 values.set(row, *code);
             } else if let Ok(text) = std::str::from_utf8(cell) {

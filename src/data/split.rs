@@ -16,6 +16,13 @@ use csv_core::{ReadRecordResult, Reader, ReaderBuilder};
 /// rather than in the text; no text is near 2^63 bytes long.
 const SIDE: usize = 1 << (usize::BITS - 1);
 
+/// Marks (on a span's start) a field that was quoted: as a text value it keeps the spaces
+/// and tabs between its quotes, which an unquoted field's value is trimmed of.
+const QUOTED: usize = 1 << (usize::BITS - 2);
+
+/// The offset bits of a span end.
+const OFFSET: usize = !(SIDE | QUOTED);
+
 /// The bytes of a field span: in `body`, or in `side` when marked [`SIDE`].
 #[inline]
 pub(super) fn span_bytes<'a>(body: &'a [u8], side: &'a [u8], span: (usize, usize)) -> &'a [u8] {
@@ -23,15 +30,83 @@ pub(super) fn span_bytes<'a>(body: &'a [u8], side: &'a [u8], span: (usize, usize
     let bytes = if a & SIDE == 0 {
         body.get(a..b)
     } else {
-        side.get(a & !SIDE..b & !SIDE)
+        side.get(a & OFFSET..b & OFFSET)
     };
     bytes.unwrap_or_default()
+}
+
+/// Whether the field of a span was quoted (see [`QUOTED`]).
+#[inline]
+pub(super) fn span_quoted(span: (usize, usize)) -> bool {
+    span.0 & QUOTED != 0
 }
 
 /// Length of a field span.
 #[inline]
 pub(super) fn span_len(span: (usize, usize)) -> usize {
-    (span.1 & !SIDE).saturating_sub(span.0 & !SIDE)
+    (span.1 & OFFSET).saturating_sub(span.0 & OFFSET)
+}
+
+/// How one field of a record was written, for its text value: quoted (its first byte a
+/// quote), and how many spaces and tabs end it after its closing quote (csv-core keeps any
+/// bytes between the closing quote and the delimiter as part of the field; those spaces are
+/// not the value's).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) struct Quoting {
+    pub quoted: bool,
+    pub trailing: usize,
+}
+
+/// How each field of the record at the start of `raw` was written (see [`Quoting`]), by the
+/// csv reader's rules: a quote opens a quoted field only as the field's first byte; inside,
+/// `""` is a quote and a quote alone closes the field; after it, anything up to the delimiter
+/// or the line break continues the field unquoted. The record ends at a CR or LF outside
+/// quotes, or at the end of `raw`.
+pub(super) fn quoting(raw: &[u8], delimiter: u8) -> Vec<Quoting> {
+    let mut out = Vec::new();
+    let mut i = 0;
+    loop {
+        let quoted = raw.get(i) == Some(&b'"');
+        let mut trailing = 0;
+        if quoted {
+            i += 1;
+            loop {
+                match raw.get(i) {
+                    None => {
+                        out.push(Quoting { quoted, trailing });
+                        return out;
+                    }
+                    Some(b'"') if raw.get(i + 1) == Some(&b'"') => i += 2,
+                    Some(b'"') => {
+                        i += 1;
+                        break;
+                    }
+                    Some(_) => i += 1,
+                }
+            }
+        }
+        loop {
+            match raw.get(i) {
+                Some(&b) if b == delimiter => {
+                    out.push(Quoting { quoted, trailing });
+                    i += 1;
+                    break;
+                }
+                None | Some(b'\r' | b'\n') => {
+                    out.push(Quoting { quoted, trailing });
+                    return out;
+                }
+                Some(b' ' | b'\t') => {
+                    trailing += 1;
+                    i += 1;
+                }
+                Some(_) => {
+                    trailing = 0;
+                    i += 1;
+                }
+            }
+        }
+    }
 }
 
 /// Reads the records of `body[pos..end]`, one at a time.
@@ -173,12 +248,13 @@ impl Fields {
         self.spans.iter().map(|s| span_len(*s)).sum()
     }
 
-    /// Field `j` of the record read from `body` (empty when out of range).
+    /// Field `j` of the record read from `body` (empty when out of range), and whether it was
+    /// quoted.
     #[inline]
-    pub(super) fn get<'a>(&'a self, body: &'a [u8], j: usize) -> &'a [u8] {
+    pub(super) fn get_quoted<'a>(&'a self, body: &'a [u8], j: usize) -> (&'a [u8], bool) {
         match self.spans.get(j) {
-            Some(s) => span_bytes(body, &self.side, *s),
-            None => &[],
+            Some(s) => (span_bytes(body, &self.side, *s), span_quoted(*s)),
+            None => (&[], false),
         }
     }
 
@@ -339,13 +415,26 @@ impl<'a> Splitter<'a> {
             }
         }
         side.truncate(base + nout);
-        self.line += body
-            .get(start..self.pos)
-            .map_or(0, |s| s.iter().filter(|b| **b == b'\n').count());
+        let raw = body.get(start..self.pos).unwrap_or_default();
+        self.line += raw.iter().filter(|b| **b == b'\n').count();
+        let ends = self.ends.get(..nends).unwrap_or_default();
+        // The fields' quoting, when the record's text agrees with csv-core on their number.
+        let quoting = quoting(raw, self.delimiter);
+        let quoting = quoting
+            .get(..ends.len())
+            .filter(|_| quoting.len() == ends.len());
         let mut from = base;
-        for &to in self.ends.get(..nends).unwrap_or_default() {
-            spans.push((from | SIDE, (base + to) | SIDE));
-            from = base + to;
+        for (k, &to) in ends.iter().enumerate() {
+            let to = base + to;
+            let span = match quoting.and_then(|q| q.get(k)) {
+                Some(q) if q.quoted => (
+                    from | SIDE | QUOTED,
+                    to.saturating_sub(q.trailing).max(from) | SIDE,
+                ),
+                _ => (from | SIDE, to | SIDE),
+            };
+            spans.push(span);
+            from = to;
         }
     }
 }
@@ -427,4 +516,54 @@ fn skip_quote(body: &[u8], q: usize, delimiter: u8) -> Option<usize> {
 fn find(body: &[u8], from: usize, to: usize, byte: u8) -> Option<usize> {
     let hay = body.get(from..to.min(body.len()))?;
     memchr::memchr(byte, hay).map(|i| from + i)
+}
+
+#[cfg(test)]
+mod quoting_tests {
+    use super::*;
+
+    fn fields(text: &[u8]) -> Vec<(Vec<u8>, bool)> {
+        let mut split = Splitter::new(text, 0, text.len(), 1, b',');
+        let mut f = Fields::default();
+        split.next_record(&mut f);
+        (0..f.len())
+            .map(|j| {
+                let (b, q) = f.get_quoted(text, j);
+                (b.to_vec(), q)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn quoted_fields_are_marked_and_keep_their_inner_spaces() {
+        assert_eq!(
+            fields(b"\" a \",b, \"c\" ,\"d\"\"e\"\n"),
+            vec![
+                (b" a ".to_vec(), true),
+                (b"b".to_vec(), false),
+                // A quote after a space does not open a quoted field.
+                (b" \"c\" ".to_vec(), false),
+                (b"d\"e".to_vec(), true),
+            ]
+        );
+        // Spaces after the closing quote are not the value's; other bytes there are.
+        assert_eq!(
+            fields(b"\"a\"  ,\"b\"x \t\n"),
+            vec![(b"a".to_vec(), true), (b"bx".to_vec(), true)]
+        );
+        // An unquoted record is not marked.
+        assert_eq!(
+            fields(b" a ,b\n"),
+            vec![(b" a ".to_vec(), false), (b"b".to_vec(), false)]
+        );
+    }
+
+    #[test]
+    fn quoting_of_odd_records() {
+        let q = |quoted, trailing| Quoting { quoted, trailing };
+        assert_eq!(quoting(b"", b','), vec![q(false, 0)]);
+        assert_eq!(quoting(b"\"open", b','), vec![q(true, 0)]);
+        assert_eq!(quoting(b"\"a\" \r\nnext", b','), vec![q(true, 1)]);
+        assert_eq!(quoting(b"\"a,b\",\"\"", b','), vec![q(true, 0), q(true, 0)]);
+    }
 }

@@ -60,8 +60,13 @@ pub(super) fn stream_in_windows(
     part_bytes: usize,
 ) -> io::Result<Streamed> {
     let window = window.max(1);
-    let mut cur = Vec::with_capacity(window + window / 4);
-    if fill(reader, &mut cur, window)? {
+    // Room for a window, or for the whole file when it is known to be smaller.
+    let first = size
+        .and_then(|s| usize::try_from(s).ok())
+        .map_or(window, |s| s.saturating_add(1).min(window));
+    let mut cur = Vec::with_capacity(first + first / 4);
+    // A file smaller than its length said (it grew meanwhile) reads on to a whole window.
+    if fill(reader, &mut cur, first)? || (first < window && fill(reader, &mut cur, window)?) {
         return Ok(Streamed::Whole(cur));
     }
     // Bytes are fingerprinted in file order, each window's while it is typed.

@@ -727,9 +727,46 @@ fn factor_error_duplicate_declared() {
     ));
     let m = FactorError::TooManyLevels {
         column: "id".to_owned(),
+        row: Some(10_000),
+        line: Some(10_002),
     }
     .to_string();
-    assert!(m.contains("'id'"));
+    assert!(m.contains("'id'") && m.contains("line 10002"), "{m}");
+}
+
+#[test]
+fn a_factor_stops_at_its_level_limit() {
+    // One more distinct value than the limit: refused, naming the row where it appears.
+    let n = MAX_FACTOR_LEVELS + 1;
+    let values: Vec<f64> = (0..n).map(|i| i as f64).chain([0.0, 1.0]).collect();
+    let col = Column {
+        name: "id".to_owned(),
+        values: Values::Numeric(values.into()),
+        exact: None,
+    };
+    let e = make_factor(&col, None).err();
+    assert!(
+        matches!(e, Some(FactorError::TooManyLevels { row: Some(r), .. }) if r == MAX_FACTOR_LEVELS),
+        "{e:?}"
+    );
+    // At the limit it is a factor.
+    let values: Vec<f64> = (0..MAX_FACTOR_LEVELS).map(|i| i as f64).collect();
+    let col = Column {
+        name: "id".to_owned(),
+        values: Values::Numeric(values.into()),
+        exact: None,
+    };
+    assert_eq!(
+        make_factor(&col, None).map(|f| f.levels.len()).ok(),
+        Some(MAX_FACTOR_LEVELS)
+    );
+    // Declared levels past the limit are refused too.
+    let declared: Vec<String> = (0..=MAX_FACTOR_LEVELS).map(|i| i.to_string()).collect();
+    let e = make_factor(&col, Some(&declared)).err();
+    assert!(
+        matches!(e, Some(FactorError::TooManyLevels { row: None, .. })),
+        "{e:?}"
+    );
 }
 
 // ---- no panics on any input ----

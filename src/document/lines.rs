@@ -143,13 +143,44 @@ pub(super) fn to_lf(text: &str) -> String {
 /// Lines end at "\r\n", "\n" or a lone "\r", as in CommonMark. An offset past the end is taken as
 /// the end; an offset inside a character is moved back to that character's start.
 pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
-    let mut offset = offset.min(text.len());
-    while offset > 0 && !text.is_char_boundary(offset) {
-        offset -= 1;
+    Positions::new(text).at(offset)
+}
+
+/// [`line_col`] for many offsets of one text: the lines are indexed once, and offsets given in
+/// increasing order count the characters of each line once in all, so that finding the
+/// positions of n offsets takes time linear in the text and n (not n times the text).
+pub(super) struct Positions<'t> {
+    text: &'t str,
+    index: LineIndex,
+    /// The last offset asked for, with its line and column.
+    last: Option<(usize, usize, usize)>,
+}
+
+impl<'t> Positions<'t> {
+    pub(super) fn new(text: &'t str) -> Self {
+        Positions {
+            text,
+            index: LineIndex::new(text),
+            last: None,
+        }
     }
-    let index = LineIndex::new(text);
-    let line = index.line_of(offset);
-    let start = index.start(line).unwrap_or(0).min(offset);
-    let column = text.get(start..offset).map_or(0, |s| s.chars().count()) + 1;
-    (line, column)
+
+    /// 1-based line and column (in characters) of byte `offset`, as [`line_col`] gives them.
+    pub(super) fn at(&mut self, offset: usize) -> (usize, usize) {
+        let text = self.text;
+        let mut offset = offset.min(text.len());
+        while offset > 0 && !text.is_char_boundary(offset) {
+            offset -= 1;
+        }
+        let line = self.index.line_of(offset);
+        let start = self.index.start(line).unwrap_or(0).min(offset);
+        // Count on from the last offset when it lies on this line, before this one.
+        let (from, counted) = match self.last {
+            Some((at, l, column)) if l == line && at <= offset && at >= start => (at, column - 1),
+            _ => (start, 0),
+        };
+        let column = counted + text.get(from..offset).map_or(0, |s| s.chars().count()) + 1;
+        self.last = Some((offset, line, column));
+        (line, column)
+    }
 }

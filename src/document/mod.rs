@@ -33,10 +33,11 @@ mod proptests;
 #[cfg(test)]
 mod tests;
 
+use std::collections::BTreeSet;
 use std::fmt;
 
 pub use lines::line_col;
-use lines::{ending_at, predominant, to_lf, LineIndex};
+use lines::{ending_at, predominant, to_lf, LineIndex, Positions};
 use regions::{strip_regions, Kind, Removal, Stripped};
 pub use values::{LINE_GUARD, VALUE_BEGIN, VALUE_BEGIN_CLOSE, VALUE_END};
 
@@ -92,6 +93,9 @@ pub struct Reference {
     /// Whether only whitespace (and `<wbr>` guards) precede it on its line: its value region then
     /// gets a guard, so that the line does not begin with an HTML comment.
     pub begins_line: bool,
+    /// The first and last line (1-based) of the top-level block that holds it, whose text alone
+    /// decides how its value region reads back; (0, 0) when not known.
+    pub block: (usize, usize),
 }
 
 /// A parsed analysis: the user's source (covey's regions removed) and its covey blocks.
@@ -287,12 +291,22 @@ fn strip_all(
         last = region.end;
     }
     text_out.push_str(old.get(last..).unwrap_or(""));
+    // `shrinks` ascends by start; with its running totals, each removal finds what the
+    // regions before it took away by a binary search.
+    let mut total = 0usize;
+    let shrunk_by: Vec<(usize, usize)> = shrinks
+        .iter()
+        .map(|&(start, by)| {
+            total += by;
+            (start, total)
+        })
+        .collect();
     for removal in &mut stripped.removals {
-        let before: usize = shrinks
-            .iter()
-            .filter(|(start, _)| *start < removal.at)
-            .map(|(_, by)| by)
-            .sum();
+        let n = shrunk_by.partition_point(|(start, _)| *start < removal.at);
+        let before = n
+            .checked_sub(1)
+            .and_then(|i| shrunk_by.get(i))
+            .map_or(0, |(_, t)| *t);
         removal.at = removal.at.saturating_sub(before);
     }
     stripped.removals.extend(value_removals);
@@ -410,11 +424,13 @@ fn document_of(
         )
         .collect();
 
+    // References come in document order, so their positions are found in one pass.
+    let mut positions = Positions::new(source);
     let references = references
         .into_iter()
         .filter_map(|r| {
             let text = source.get(r.start..r.end)?.to_string();
-            let (line, column) = line_col(source, r.start);
+            let (line, column) = positions.at(r.start);
             Some(Reference {
                 text,
                 start: r.start,
@@ -422,6 +438,7 @@ fn document_of(
                 line,
                 column,
                 begins_line: r.begins_line,
+                block: r.block,
             })
         })
         .collect();
@@ -572,20 +589,15 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
             break;
         }
         let text = assemble_unchecked(doc, None, &[], &settled);
-        let found: Vec<(usize, usize)> = values::scan(&text)
-            .regions
-            .iter()
-            .map(|r| (r.start, r.end))
-            .collect();
+        let found = regions_found(&text, doc, &settled);
+        let put: BTreeSet<(usize, usize)> = expected.iter().map(|&(_, s, e)| (s, e)).collect();
         let missing = expected
             .iter()
             .find(|(_, start, end)| !found.contains(&(*start, *end)))
             .map(|(i, _, _)| *i);
         // A region found where none was put: blame the last region put before it.
         let extra = || {
-            let (at, _) = found
-                .iter()
-                .find(|f| !expected.iter().any(|(_, s, e)| (*s, *e) == **f))?;
+            let (at, _) = found.iter().find(|f| !put.contains(f))?;
             expected
                 .iter()
                 .rev()
@@ -605,6 +617,62 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
     (settled, left)
 }
 
+/// The value regions that `text` (the source with value regions only) reads back as, by
+/// (start, end). Only the top-level blocks holding a region can read differently, and only
+/// within themselves: a region sits inside one line of a paragraph, heading or table, and
+/// what could change how it reads (HTML left open before it, an escape) is in the same block.
+/// So those blocks are read one at a time, each with comrak, and a long document never holds
+/// comrak's tree of all its prose; a region whose block is not known sends the whole text to
+/// be read at once.
+fn regions_found(text: &str, doc: &Document, values: &[Option<&str>]) -> BTreeSet<(usize, usize)> {
+    let whole = || {
+        values::scan(text)
+            .regions
+            .iter()
+            .map(|r| (r.start, r.end))
+            .collect()
+    };
+    let mut blocks: Vec<(usize, usize)> = Vec::new();
+    for (reference, value) in doc.references.iter().zip(values) {
+        if value.is_none() {
+            continue;
+        }
+        if reference.block.0 == 0 {
+            return whole();
+        }
+        if blocks.last() != Some(&reference.block) {
+            blocks.push(reference.block);
+        }
+    }
+    // Value regions sit within lines, so the text has the source's lines.
+    let index = LineIndex::new(text);
+    let mut found = BTreeSet::new();
+    for (first, last) in blocks {
+        let (Some(start), Some(end)) = (index.start(first), index.span(text, last).map(|s| s.end))
+        else {
+            return whole();
+        };
+        let Some(piece) = text.get(start..end) else {
+            return whole();
+        };
+        // An empty first line keeps comrak from reading the block's first line as the
+        // document's (a byte-order mark there would be dropped); offsets are shifted back.
+        let prefixed = format!("\n{piece}");
+        found.extend(
+            values::scan_piece(&prefixed)
+                .regions
+                .iter()
+                .filter_map(|r| {
+                    Some((
+                        start + r.start.checked_sub(1)?,
+                        start + r.end.checked_sub(1)?,
+                    ))
+                }),
+        );
+    }
+    found
+}
+
 /// [`assemble_with_values`] without the check that value regions read back.
 fn assemble_unchecked(
     doc: &Document,
@@ -613,8 +681,15 @@ fn assemble_unchecked(
     values: &[Option<&str>],
 ) -> String {
     let source = &doc.source;
-    // (offset, bytes of the source replaced, text put there)
-    let mut inserts: Vec<(usize, usize, String)> = Vec::new();
+    /// What goes in at one place; each region's text is made only when it is written, so that
+    /// the outputs are not held twice over.
+    enum Put<'d> {
+        Provenance(String),
+        Output(&'d Block, &'d str),
+        Value(&'d Reference, &'d str),
+    }
+    // (offset, bytes of the source replaced, what is put there)
+    let mut inserts: Vec<(usize, usize, Put<'_>)> = Vec::new();
     if let Some(body) = provenance {
         let le = predominant(source);
         let body = prepare_body(body, le);
@@ -633,39 +708,51 @@ fn assemble_unchecked(
         } else {
             format!("{PROVENANCE_BEGIN}{le}{body}{PROVENANCE_END}{le}")
         };
-        inserts.push((at, 0, region));
+        inserts.push((at, 0, Put::Provenance(region)));
     }
     for (block, body) in doc.blocks.iter().zip(outputs) {
         if let Some(body) = body {
-            let le = block.line_ending;
-            let region = format!(
-                "{le}{OUTPUT_BEGIN}{le}{}{OUTPUT_END}",
-                prepare_body(body, le)
-            );
-            inserts.push((block.insert_at, 0, region));
+            inserts.push((block.insert_at, 0, Put::Output(block, body)));
         }
     }
     for (reference, value) in doc.references.iter().zip(values) {
         if let Some(value) = value {
-            let region = value_region(reference, value);
             inserts.push((
                 reference.start,
                 reference.end.saturating_sub(reference.start),
-                region,
+                Put::Value(reference, value),
             ));
         }
     }
     // Stable sort: the provenance region stays first at an equal offset.
     inserts.sort_by_key(|(at, _, _)| *at);
 
-    let extra: usize = inserts.iter().map(|(_, _, r)| r.len()).sum();
+    let extra: usize = inserts
+        .iter()
+        .map(|(_, _, put)| match put {
+            Put::Provenance(r) => r.len(),
+            Put::Output(_, body) => body.len() + OUTPUT_BEGIN.len() + OUTPUT_END.len() + 4,
+            Put::Value(_, value) => value.len() + VALUE_BEGIN.len() + VALUE_END.len() + 32,
+        })
+        .sum();
     let mut out = String::with_capacity(source.len() + extra);
     let mut last = 0usize;
-    for (at, replaced, region) in &inserts {
+    for (at, replaced, put) in &inserts {
         // Offsets come from `parse`; one that does not fit (a hand-made Document) is skipped.
         if let Some(piece) = source.get(last..*at) {
             out.push_str(piece);
-            out.push_str(region);
+            match put {
+                Put::Provenance(region) => out.push_str(region),
+                Put::Output(block, body) => {
+                    let le = block.line_ending;
+                    out.push_str(le);
+                    out.push_str(OUTPUT_BEGIN);
+                    out.push_str(le);
+                    out.push_str(&prepare_body(body, le));
+                    out.push_str(OUTPUT_END);
+                }
+                Put::Value(reference, value) => out.push_str(&value_region(reference, value)),
+            }
             last = *at + replaced;
         }
     }

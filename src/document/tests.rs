@@ -384,6 +384,7 @@ fn hand_made_document_does_not_panic() {
             line: 1,
             column: 1,
             begins_line: true,
+            block: (1, 1),
         }],
     };
     assert_eq!(assemble(&d, "p", &outs(&["o"])), "é");
@@ -648,4 +649,27 @@ fn a_value_that_would_close_open_html_is_left_out() {
     assert!(a
         .text
         .contains("Next paragraph <!-- covey:value @[fit m q] -->3<!--"));
+}
+
+#[test]
+fn value_regions_read_back_block_by_block_as_in_the_whole_document() {
+    // Each top-level block holding a value region is read on its own: a byte-order mark that
+    // starts such a block mid-document, HTML left open, an escape before a reference, and a
+    // reference whose block follows another without a blank line all read as in the whole.
+    for text in [
+        "\n\n\u{feff}<!-- covey:value @[fit m n] --><!-- covey:\n@[fit m n]``",
+        "# Head @[fit m n]\ntext @[fit m n]\n- item @[fit m n]\n\n> quote\n@[fit m n]\n",
+        "\\@[fit m n] and <!-- open @[fit m n]\n\n| a |\n| - |\n| @[fit m n] |\n",
+    ] {
+        let d = doc(text);
+        assert!(!d.references.is_empty(), "{text:?}");
+        assert!(d.references.iter().all(|r| r.block.0 > 0), "{text:?}");
+        let values = vec![Some("1.5"); d.references.len()];
+        let live = assemble_with_values(&d, None, &[], &values).text;
+        assert_eq!(
+            strip(&live).ok().as_deref(),
+            Some(d.source.as_str()),
+            "{text:?}"
+        );
+    }
 }

@@ -36,6 +36,9 @@ pub(super) struct FoundReference {
     pub end: usize,
     /// Whether only whitespace and guards precede it on its line.
     pub begins_line: bool,
+    /// The first and last line (1-based) of the top-level block that holds it; (0, 0) when
+    /// that is not known.
+    pub block: (usize, usize),
 }
 
 /// A value region found in prose.
@@ -60,8 +63,18 @@ pub(super) struct Prose {
 
 /// Find the references and value regions in the prose of a whole document.
 pub(super) fn scan(text: &str) -> Prose {
+    scan_text(text, true)
+}
+
+/// [`scan`] of a piece of a document made of whole top-level blocks: no front matter is looked
+/// for. Offsets and lines are the piece's own.
+pub(super) fn scan_piece(text: &str) -> Prose {
+    scan_text(text, false)
+}
+
+fn scan_text(text: &str, whole: bool) -> Prose {
     let prepared;
-    let parsed = match front_matter_end(text) {
+    let parsed = match front_matter_end(text).filter(|_| whole) {
         Some(end) => {
             prepared = blank_front_matter(text, end);
             prepared.as_str()
@@ -87,6 +100,23 @@ pub(super) fn scan(text: &str) -> Prose {
         };
         if let Some(begins) = begins {
             scan_inlines(text, &index, node, begins, &mut out);
+        }
+    }
+    // Each reference's top-level block, by its line.
+    let blocks: Vec<(usize, usize)> = root
+        .children()
+        .map(|c| {
+            let pos = c.data().sourcepos;
+            (pos.start.line, pos.end.line)
+        })
+        .collect();
+    for r in &mut out.references {
+        let line = index.line_of(r.start);
+        let k = blocks.partition_point(|&(first, _)| first <= line);
+        if let Some(&(first, last)) = k.checked_sub(1).and_then(|k| blocks.get(k)) {
+            if line <= last {
+                r.block = (first, last);
+            }
         }
     }
     out.references.sort_by_key(|r| r.start);
@@ -175,10 +205,14 @@ fn flush(
     out: &mut Prose,
 ) {
     for (a, b) in live::find_all(joined) {
+        // The last piece holding the offset; pieces ascend by `at`, so the search starts at
+        // the last piece starting at or before it (and rarely has to step back).
         let piece_of = |offset: usize| {
-            run.iter()
+            let upto = run.partition_point(|p| p.at <= offset);
+            run.get(..upto)?
+                .iter()
                 .rev()
-                .find(|p| p.at <= offset && offset < p.at + p.literal.len().max(1))
+                .find(|p| offset < p.at + p.literal.len().max(1))
         };
         let (Some(first), Some(last)) = (piece_of(a), piece_of(b.saturating_sub(1))) else {
             continue;
@@ -197,6 +231,7 @@ fn flush(
             start,
             end,
             begins_line: begins_line && before.chars().all(|c| c == ' ' || c == '\t'),
+            block: (0, 0),
         });
     }
     run.clear();

@@ -316,13 +316,80 @@ fn made_once<T>(cell: &OnceLock<T>, make: impl FnOnce() -> T) -> &T {
     cell.get_or_init(|| v)
 }
 
+/// Spreads whose square (and its inverse) is safely a normal double: computed the plain way.
+const SQUARES_SAFE: f64 = 1e-150;
+
+/// Narrowest and widest range (largest minus smallest) of a response whose sums of squares
+/// covey can hold as doubles: its squared spread times the rows stays within the normal
+/// doubles (about 1e-308 to 1e308) with room to spare.
+pub const RESPONSE_SPREAD_MIN: f64 = 1e-145;
+/// See [`RESPONSE_SPREAD_MIN`].
+pub const RESPONSE_SPREAD_MAX: f64 = 1e145;
+
+/// The root mean square of `x` about `c`, in units of the largest deviation so that no
+/// square overflows or underflows; 0 for no values or no spread.
+fn root_mean_square(x: &[f64], c: f64) -> f64 {
+    let big = x.iter().fold(0.0_f64, |m, v| m.max((v - c).abs()));
+    if !(big > 0.0 && big.is_finite()) || x.is_empty() {
+        return 0.0;
+    }
+    let ss = qr::sum_of(x, |v| {
+        let d = (v - c) / big;
+        d * d
+    });
+    big * (ss / x.len() as f64).sqrt()
+}
+
+/// What one block of rows gives the fit: the response's smallest and largest value, and the
+/// block's triangular factor.
+type BlockPart = ((f64, f64), Mat);
+
+/// Blocks of rows factored side by side before their factors are merged into the running one.
+const FACTORED_AT_ONCE: usize = 8;
+
+/// Most working memory a fit may need, in bytes ([`working_bytes`]): 1 GiB, a share a
+/// laptop can spare, and room for designs of about 1,900 coefficients. A model needing more
+/// is refused before anything is allocated.
+pub const MODEL_MEMORY_BUDGET: usize = 1 << 30;
+
+/// The most working memory the factorisation of `p` columns on `n` rows can take, in bytes,
+/// whatever the number of threads: [`FACTORED_AT_ONCE`] blocks of rows being factored (each
+/// its rows under as many rows of zeros as it has columns, the response included), their
+/// factors waiting to be merged, and three more square factors (the running one, a merge's
+/// stacked pair and its result).
+pub fn working_bytes(p: usize, n: usize) -> usize {
+    let width = p.saturating_add(1);
+    let rows = n.min(CHUNK_ROWS);
+    let block = width.saturating_mul(width.saturating_add(rows));
+    let square = width.saturating_mul(width);
+    let matrices = block
+        .saturating_mul(FACTORED_AT_ONCE)
+        .saturating_add(square.saturating_mul(FACTORED_AT_ONCE + 4));
+    matrices.saturating_mul(std::mem::size_of::<f64>())
+}
+
+/// Refuses a fit whose factorisation of `q` monomials on `n` rows, with the two codings of
+/// `p` design columns in those monomials, would take more than [`MODEL_MEMORY_BUDGET`].
+fn within_budget(p: usize, q: usize, n: usize) -> Result<(), ModelError> {
+    let codings = q
+        .saturating_mul(p)
+        .saturating_mul(2 * std::mem::size_of::<f64>());
+    let needed = working_bytes(q, n).saturating_add(codings);
+    if needed > MODEL_MEMORY_BUDGET {
+        return Err(ModelError::TooLarge {
+            coefficients: p,
+            megabytes: needed.div_ceil(1 << 20),
+        });
+    }
+    Ok(())
+}
+
 /// Centre and scale of the bases and monomials from the first block of rows, then the
 /// triangular factor of [W' | y'] in one pass over fixed blocks of [`CHUNK_ROWS`] rows,
 /// computed in parallel and merged in block order (see [`crate::parallel`]) by
-/// re-triangularising the block factors two at a time. The response's variance, for the
-/// zero-variance check, is pooled from per-block moments by the formula of Chan, Golub &
-/// LeVeque (1983, "Algorithms for computing the sample variance", The American
-/// Statistician 37).
+/// re-triangularising the block factors two at a time. The response's smallest and largest
+/// values, for the checks that it is not constant and that its sums of squares can be held,
+/// are taken along.
 pub(crate) fn build_engine(
     spec: &ModelSpec,
     lay: &Layout,
@@ -333,6 +400,10 @@ pub(crate) fn build_engine(
     let (cols, term_cols) = treatment;
     let (ecols, eterm_cols) = effect;
     let n = lay.used.len() as f64;
+    // Every design column needs at least one monomial of its own: refuse a model far too
+    // large before its monomials are even listed, and check again once they are.
+    let p = cols.len().max(ecols.len());
+    within_budget(p, p, lay.used.len())?;
     let blocks = lay.used.blocks(CHUNK_ROWS);
 
     // Centres and scales from the first block of rows (every row when there are at most
@@ -341,7 +412,9 @@ pub(crate) fn build_engine(
     let first = lay.used.slice(blocks.first().cloned().unwrap_or(0..0));
     let mut basis = Basis::new(spec, lay, &[&cols, &ecols], &first);
     let q = basis.monos.len();
-    let lead = Block::fill(spec, &basis, y, &first, 0.0, 1.0).moments();
+    within_budget(p, q, lay.used.len())?;
+    let lead_block = Block::fill(spec, &basis, y, &first, 0.0, 1.0);
+    let lead = lead_block.moments();
     let n_lead = lead.count.max(1.0);
     // Powers of two, so that scaling changes no digit of a monomial (the scaled columns
     // span exactly the space of the monomials).
@@ -360,6 +433,13 @@ pub(crate) fn build_engine(
         (0.0, (ym2 / n_lead + ym * ym).sqrt())
     };
     let y_centre = if yc.is_finite() { yc } else { 0.0 };
+    // Squares of values far from 1 overflow or underflow; such a response's spread is taken
+    // in units of its largest deviation instead (the same number where both work).
+    let ysc = if (SQUARES_SAFE..=1.0 / SQUARES_SAFE).contains(&ysc) {
+        ysc
+    } else {
+        root_mean_square(lead_block.column(q), y_centre)
+    };
     let y_scale = if ysc > 0.0 && ysc.is_finite() {
         ysc
     } else {
@@ -376,28 +456,40 @@ pub(crate) fn build_engine(
     }
 
     // One pass: the triangular factor of each block, merged in block order, with the
-    // response's moments for the zero-variance check.
-    let partial: Vec<Result<(Moments, Mat), ModelError>> = crate::parallel::map(&blocks, |at| {
-        let rows = lay.used.slice(at.clone());
-        let mut block = Block::fill(spec, &basis, y, &rows, y_centre, y_scale);
-        block.check_finite(spec, &basis, &rows)?;
-        let ym = block.column_moments(q);
-        Ok((ym, qr::block_factor(&mut block.a)))
-    });
-    let mut y_moments = Moments::empty(1);
+    // response's range for the checks below. Blocks are factored [`FACTORED_AT_ONCE`] at a
+    // time and folded in before the next ones, so that the factors waiting to be merged take
+    // memory independent of the number of rows; the merges happen in the same order either
+    // way.
+    let mut y_range = (f64::INFINITY, f64::NEG_INFINITY);
     let mut r_aug = Mat::zeros(q + 1, q + 1);
-    for (k, part) in partial.into_iter().enumerate() {
-        let (ym, f) = part?;
-        y_moments.pool(&ym);
-        r_aug = if k == 0 {
-            f
-        } else {
-            qr::merge_factors(&r_aug, &f)
-        };
+    for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
+        let partial: Vec<Result<BlockPart, ModelError>> = crate::parallel::map(batch, |at| {
+            let rows = lay.used.slice(at.clone());
+            let mut block = Block::fill(spec, &basis, y, &rows, y_centre, y_scale);
+            block.check_finite(spec, &basis, &rows)?;
+            let range = range_of(y, &rows);
+            Ok((range, qr::block_factor(&mut block.a)))
+        });
+        for (k, part) in partial.into_iter().enumerate() {
+            let (range, f) = part?;
+            y_range = (y_range.0.min(range.0), y_range.1.max(range.1));
+            r_aug = if b == 0 && k == 0 {
+                f
+            } else {
+                qr::merge_factors(&r_aug, &f)
+            };
+        }
     }
-    let y_m2 = y_moments.m2.first().copied().unwrap_or(0.0);
-    if y_m2 <= 0.0 || !y_m2.is_finite() || n == 0.0 {
+    // Constant when the smallest and largest response are equal: whatever the scale, unlike
+    // a sum of squares, which is 0 for values near 1e-200 and infinite near 1e200.
+    let width = y_range.1 - y_range.0;
+    if n == 0.0 || width.is_nan() || width <= 0.0 {
         return Err(ModelError::ResponseZeroVariance);
+    }
+    // Sums of squares of the response must be numbers: its spread squared, times the rows
+    // and some room, must neither overflow nor fall below the normal doubles.
+    if !(RESPONSE_SPREAD_MIN..=RESPONSE_SPREAD_MAX).contains(&width) {
+        return Err(ModelError::ResponseOutOfRange { width });
     }
     let y_offset = if spec.intercept {
         spec.response_offset
@@ -576,18 +668,15 @@ impl Block {
         }
         out
     }
+}
 
-    /// Moments of column j alone.
-    fn column_moments(&self, j: usize) -> Moments {
-        let x = self.column(j);
-        let k = x.len() as f64;
-        let mean = mean_of(x);
-        Moments {
-            count: k,
-            mean: vec![mean],
-            m2: vec![qr::sum_of(x, |v| (v - mean) * (v - mean))],
-        }
-    }
+/// The smallest and largest of `y` at `rows`.
+fn range_of(y: &[f64], rows: &[usize]) -> (f64, f64) {
+    rows.iter()
+        .filter_map(|&r| y.get(r))
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+            (lo.min(v), hi.max(v))
+        })
 }
 
 /// The sum over the count, corrected once by the mean of the deviations from it (which
@@ -615,20 +704,6 @@ impl Moments {
             mean: vec![0.0; width],
             m2: vec![0.0; width],
         }
-    }
-
-    /// Adds the rows behind `b` (Chan, Golub & LeVeque's pairwise update).
-    fn pool(&mut self, b: &Moments) {
-        let n = self.count + b.count;
-        if b.count == 0.0 {
-            return;
-        }
-        for j in 0..self.mean.len() {
-            let d = b.mean[j] - self.mean[j];
-            self.mean[j] += d * (b.count / n);
-            self.m2[j] += b.m2[j] + d * d * (self.count * b.count / n);
-        }
-        self.count = n;
     }
 }
 

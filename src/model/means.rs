@@ -290,7 +290,8 @@ impl Fit {
         check_level(level)?;
         let (v, rows) = self.level_rows(factor, at)?;
         let k = rows.len();
-        let m = k * (k - 1) / 2;
+        super::check_pairs(factor, k)?;
+        let m = k * k.saturating_sub(1) / 2;
         let df = self.df_res;
         let alpha = 1.0 - level;
         let mut out = Vec::with_capacity(m);

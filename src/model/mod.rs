@@ -39,7 +39,10 @@ use std::fmt;
 pub use anova::compare;
 pub use cause::AliasCause;
 pub(crate) use design::UsedRows;
-pub use fit::{fit, fit_owned, Fit, COEFFICIENT_DIGITS_NOTE};
+pub use fit::{
+    fit, fit_owned, working_bytes, Fit, COEFFICIENT_DIGITS_NOTE, MODEL_MEMORY_BUDGET,
+    RESPONSE_SPREAD_MAX, RESPONSE_SPREAD_MIN,
+};
 pub use pilot::{Pilot, PilotError};
 
 /// One input variable, aligned with the response row by row.
@@ -641,10 +644,32 @@ pub enum ModelError {
     },
     /// The model has no columns at all.
     EmptyModel,
+    /// A table of every pair of levels asked for a factor with more than
+    /// [`MAX_PAIRED_LEVELS`] levels.
+    TooManyPairs {
+        /// Factor name.
+        factor: String,
+        /// Its levels.
+        levels: usize,
+    },
+    /// Fitting the model would need more working memory than
+    /// [`fit::MODEL_MEMORY_BUDGET`].
+    TooLarge {
+        /// Coefficients of the design.
+        coefficients: usize,
+        /// Working memory it would need, in MiB.
+        megabytes: usize,
+    },
     /// No row is left after dropping missing values.
     NoRows,
     /// The response is constant over the fitted rows.
     ResponseZeroVariance,
+    /// The response's values spread over a range whose squares doubles cannot hold (see
+    /// [`fit::RESPONSE_SPREAD_MIN`]).
+    ResponseOutOfRange {
+        /// Largest minus smallest response.
+        width: f64,
+    },
     /// A covariate is constant over the fitted rows.
     CovariateZeroVariance {
         /// First term using it.
@@ -768,8 +793,11 @@ impl fmt::Display for ModelError {
             E::SqrtOfNegative { variable, row: Some(r), value, .. } => write!(f, "sqrt({variable}) is undefined at line {r}, where {variable} = {value}; sqrt needs values >= 0"),
             E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
             E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
+            E::TooManyPairs { factor, levels } => write!(f, "`{factor}` has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M pairs`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2),
+            E::TooLarge { coefficients, megabytes } => write!(f, "the model has {coefficients} coefficients, and fitting it would take about {megabytes} MiB of working memory, more than covey's limit of {} MiB; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)", fit::MODEL_MEMORY_BUDGET >> 20),
             E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
             E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
+            E::ResponseOutOfRange { width } => write!(f, "the response's values spread over {width:.1e} (largest minus smallest), too {} for their sums of squares to be held as numbers (covey needs a spread between {:e} and {:e}); rescale the response, for example {} it by 1e{}", if *width > 1.0 { "wide" } else { "narrow" }, fit::RESPONSE_SPREAD_MIN, fit::RESPONSE_SPREAD_MAX, if *width > 1.0 { "divide" } else { "multiply" }, width.log10().round().abs()),
             E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
             E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
             E::FewerRowsThanCoefficients { rows, coefficients } => write!(f, "the model has {coefficients} coefficients but only {rows} rows; use fewer terms or more data"),
@@ -796,6 +824,22 @@ impl fmt::Display for ModelError {
 }
 
 impl core::error::Error for ModelError {}
+
+/// Most levels of a factor whose every pair of levels a table compares (`table pairs`, `table
+/// regions` without `between`): 200 levels make 19,900 pairs, already more than anyone reads,
+/// and each costs a studentized-range quantile.
+pub const MAX_PAIRED_LEVELS: usize = 200;
+
+/// Refuses a table of every pair of a factor's `levels` levels past [`MAX_PAIRED_LEVELS`].
+pub(crate) fn check_pairs(factor: &str, levels: usize) -> Result<(), ModelError> {
+    if levels > MAX_PAIRED_LEVELS {
+        return Err(ModelError::TooManyPairs {
+            factor: factor.to_string(),
+            levels,
+        });
+    }
+    Ok(())
+}
 
 impl ModelError {
     /// The index of the term at fault, when one term is.

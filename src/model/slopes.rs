@@ -194,6 +194,10 @@ impl Fit {
         check_level(alpha)?;
         let f = self.model_factor(factor)?;
         let x = self.slope_covariate(Some(covariate))?;
+        if between.is_none() {
+            let levels = self.lay.factor(f).map_or(0, |x| x.present.len());
+            super::check_pairs(factor, levels)?;
+        }
         let (refit, _) = self.with_interaction(f, x, &[])?;
         let refitted = !matches!(refit, Refit::Same(_));
         let m: &Fit = refit.fit();

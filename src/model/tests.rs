@@ -1892,3 +1892,42 @@ fn row_values_are_the_same_whatever_range_they_are_asked_in() {
         "trace of the hat matrix {trace}"
     );
 }
+
+#[test]
+fn the_response_scale_does_not_decide_whether_it_is_constant() {
+    // Scaling the response by a power of ten scales estimates, SEs and the residual SD by it,
+    // and leaves t, F and R² alone (equivariance of least squares). Near the edge of what
+    // sums of squares can hold (1e140) the scaled fits agree with the plain one; far past
+    // it (1e200, 1e-200) the fit is refused for its range, never called constant.
+    let plain = fit(&reference_spec(DATA, vec![term(&[0]), term(&[2])])).expect("fit");
+    let base = plain.summary();
+    let coef = plain.coefficients(0.95);
+    for scale in [1e140, 1e-140] {
+        let mut spec = reference_spec(DATA, vec![term(&[0]), term(&[2])]);
+        spec.response = num("y", DATA.iter().map(|r| r.3 * scale).collect());
+        let scaled = fit(&spec).unwrap_or_else(|e| panic!("{scale}: {e}"));
+        let s = scaled.summary();
+        close(s.sigma / scale, base.sigma, 1e-12, "sigma");
+        close(s.r_squared, base.r_squared, 1e-12, "R squared");
+        close(s.f.unwrap_or(f64::NAN), base.f.unwrap_or(0.0), 1e-12, "F");
+        for (a, b) in scaled.coefficients(0.95).iter().zip(&coef) {
+            close(a.estimate / scale, b.estimate, 1e-12, "estimate");
+            close(a.se / scale, b.se, 1e-12, "SE");
+            close(a.t, b.t, 1e-11, "t");
+        }
+    }
+    for scale in [1e200, 1e-200] {
+        let mut spec = reference_spec(DATA, vec![term(&[0]), term(&[2])]);
+        spec.response = num("y", DATA.iter().map(|r| r.3 * scale).collect());
+        assert!(
+            matches!(
+                fit(&spec).err(),
+                Some(ModelError::ResponseOutOfRange { .. })
+            ),
+            "{scale}"
+        );
+        // A constant response at that scale is still called constant.
+        spec.response = num("y", vec![3.0 * scale; DATA.len()]);
+        assert_eq!(fit(&spec).err(), Some(ModelError::ResponseZeroVariance));
+    }
+}

@@ -87,6 +87,8 @@ pub fn render(chart: &Chart) -> Result<String, PlotError> {
         root.present()
             .map_err(|e| PlotError::Drawing(e.to_string()))?;
     }
+    // The text grew by doubling; a document with many figures holds them all until written.
+    svg.shrink_to_fit();
     Ok(svg)
 }
 
@@ -124,8 +126,8 @@ fn draw<'a>(root: &DrawingArea<SVGBackend<'a>, Shift>, chart: &Chart) -> DrawRes
         .axis_style(style::INK.stroke_width(1))
         .label_style(font(style::TEXT_SIZE))
         .axis_desc_style(font(style::TITLE_SIZE))
-        .x_desc(chart.x_label.as_str())
-        .y_desc(chart.y_label.as_str())
+        .x_desc(svg_text(&chart.x_label))
+        .y_desc(svg_text(&chart.y_label))
         .y_labels(6)
         .y_label_formatter(&format_y);
     if chart.categories.is_some() {
@@ -273,10 +275,18 @@ fn legend<'a>(area: &DrawingArea<SVGBackend<'a>, Shift>, chart: &Chart) -> DrawR
     Ok(())
 }
 
-/// A label cut to [`MAX_LABEL_CHARS`] characters.
+/// A user's text (a name, a level, a unit) as the text of an SVG element: hidden characters
+/// made visible ([`crate::report::visible`]), which also keeps out the control characters XML
+/// does not allow; plotters escapes `<`, `&` and quotes itself.
+fn svg_text(s: &str) -> String {
+    crate::report::visible::visible(s).into_owned()
+}
+
+/// A label, as [`svg_text`], cut to [`MAX_LABEL_CHARS`] characters.
 fn short(s: &str) -> String {
+    let s = svg_text(s);
     if s.chars().count() <= MAX_LABEL_CHARS {
-        s.to_string()
+        s
     } else {
         let mut t: String = s.chars().take(MAX_LABEL_CHARS - 1).collect();
         t.push('…');

@@ -9,6 +9,9 @@
 //! * an image whose source is one of the document's figures becomes that
 //!   figure's SVG, inline and sanitised ([`sanitise_svg`]), so the page needs
 //!   no file beside it;
+//! * any other image, unless it is held inline in the page (a `data:` image),
+//!   becomes a link to it: the page loads nothing from elsewhere, and its
+//!   content policy allows inline images only;
 //! * inline code holding a long unbroken token (a SHA-256 hash) is marked,
 //!   so the style sheet lets it break anywhere instead of pushing the page
 //!   wider than the screen;
@@ -39,14 +42,14 @@ pub fn page(title: &str, markdown: &str, figures: &[(String, String)]) -> String
          <meta name=\"generator\" content=\"covey {}\">\n\
          <title>{}</title>\n<style>\n{STYLE}</style>\n</head>\n<body>\n<main>\n{body}</main>\n</body>\n</html>\n",
         env!("CARGO_PKG_VERSION"),
-        escape(title)
+        escape(&crate::report::visible::visible(title))
     )
 }
 
 /// The page's content security policy, a second line of defence behind the
 /// escaping: no scripts, frames, plugins, fonts or fetches at all; the inline
-/// style sheet; images only where the author's own Markdown asks for them.
-const POLICY: &str = "default-src 'none'; style-src 'unsafe-inline'; img-src * data:; \
+/// style sheet; images only when held in the page itself (`data:`).
+const POLICY: &str = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; \
                       base-uri 'none'; form-action 'none'";
 
 /// The body of the page: the Markdown as HTML, with figures inline.
@@ -54,6 +57,7 @@ fn body(markdown: &str, figures: &[(String, String)]) -> String {
     let options = options();
     let arena = comrak::Arena::new();
     let root = comrak::parse_document(&arena, markdown, &options);
+    images_to_links(&arena, root, figures);
     let mut out = String::new();
     let state = State {
         figures,
@@ -66,6 +70,40 @@ fn body(markdown: &str, figures: &[(String, String)]) -> String {
         // should comrak ever report an error, the reader still gets the
         // text, escaped.
         Err(fmt::Error) => format!("<pre>{}</pre>\n", escape(markdown)),
+    }
+}
+
+/// Whether an image's address names the figure drawn at `path`: as covey links it
+/// (percent-encoded), or as written by hand.
+fn is_figure(url: &str, path: &str) -> bool {
+    url == crate::report::markdown::destination(path) || url == path
+}
+
+/// Turns every image that is neither one of the run's figures nor held in the page (an image
+/// `data:` address that comrak lets through) into a link to the same address, with the image's
+/// description as its text (the address itself when there is none): a reader can still follow
+/// it, and the page fetches nothing.
+fn images_to_links<'a>(
+    arena: &'a comrak::Arena<'a>,
+    root: &'a AstNode<'a>,
+    figures: &[(String, String)],
+) {
+    for node in root.descendants() {
+        let link = match &node.data().value {
+            NodeValue::Image(link) => link.clone(),
+            _ => continue,
+        };
+        let figure = figures.iter().any(|(path, _)| is_figure(&link.url, path));
+        let inline = link.url.starts_with("data:image/") && !comrak::html::dangerous_url(&link.url);
+        if figure || inline {
+            continue;
+        }
+        let url = link.url.clone();
+        node.data_mut().value = NodeValue::Link(link);
+        if node.first_child().is_none() {
+            let text = arena.alloc(AstNode::from(NodeValue::Text(url.into())));
+            node.append(text);
+        }
     }
 }
 
@@ -133,7 +171,7 @@ fn format_node<'a>(
                 .user
                 .figures
                 .iter()
-                .position(|(path, _)| *path == link.url)
+                .position(|(path, _)| is_figure(&link.url, path))
                 .map_or(Kind::Other, Kind::Figure),
             NodeValue::Table(_) => Kind::Table,
             NodeValue::Code(code) if has_long_token(&code.literal) => {

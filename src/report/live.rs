@@ -11,6 +11,7 @@
 //! Words are separated by spaces; a name with spaces is written in double quotes. When the
 //! document computes several tables of the same kind and subject, the last one counts.
 
+use std::collections::BTreeMap;
 use std::fmt;
 
 use super::markdown::{escape, formatted_column};
@@ -146,12 +147,30 @@ impl LiveError {
 /// Whether `c` may appear between `@[` and `]`: anything but brackets, angle brackets,
 /// backticks, backslashes, pipes, asterisks and control characters, so that a reference holds
 /// no Markdown or HTML syntax that its value region could change, and fits inside an HTML
-/// comment.
+/// comment. Inside a quoted name, brackets may appear too (see [`find_all`]).
 pub fn is_reference_char(c: char) -> bool {
     !matches!(c, '[' | ']' | '<' | '>' | '`' | '\\' | '|' | '*') && !c.is_control()
 }
 
-/// Every reference in one run of prose text: (start, end) byte offsets of `@[...]`.
+/// The length of a reference's inside, `inner` being the text after its `@[`: up to the
+/// first `]` outside double quotes, when every character before it may be in a reference
+/// ([`is_reference_char`], or a bracket inside quotes). `None` when no such `]` ends it.
+fn inside_length(inner: &str) -> Option<usize> {
+    let mut quoted = false;
+    for (i, c) in inner.char_indices() {
+        match c {
+            '"' => quoted = !quoted,
+            ']' if !quoted => return Some(i),
+            '[' | ']' if quoted => {}
+            c if !is_reference_char(c) => return None,
+            _ => {}
+        }
+    }
+    None
+}
+
+/// Every reference in one run of prose text: (start, end) byte offsets of `@[...]`. A `]`
+/// inside a quoted name does not end a reference.
 pub fn find_all(text: &str) -> Vec<(usize, usize)> {
     let mut out = Vec::new();
     let mut from = 0;
@@ -159,16 +178,13 @@ pub fn find_all(text: &str) -> Vec<(usize, usize)> {
         let start = from + found;
         let inner_start = start + OPEN.len();
         let inner = text.get(inner_start..).unwrap_or("");
-        let len = inner
-            .char_indices()
-            .find(|(_, c)| !is_reference_char(*c))
-            .map_or(inner.len(), |(i, _)| i);
-        if inner.get(len..).is_some_and(|r| r.starts_with(CLOSE)) && len > 0 {
-            let end = inner_start + len + CLOSE.len();
-            out.push((start, end));
-            from = end;
-        } else {
-            from = inner_start;
+        match inside_length(inner).filter(|&len| len > 0) {
+            Some(len) => {
+                let end = inner_start + len + CLOSE.len();
+                out.push((start, end));
+                from = end;
+            }
+            None => from = inner_start,
         }
     }
     out
@@ -236,10 +252,9 @@ pub fn parse(reference: &str) -> Result<Parsed, LiveError> {
 }
 
 /// The value a reference names, as the table's Markdown shows it (inline Markdown, one line).
+/// For many references, make one [`Resolver`] and ask it for each.
 pub fn resolve(reference: &str, outputs: &[Output]) -> Result<String, LiveError> {
-    let parsed = parse(reference)?;
-    let table = find_table(&parsed, outputs)?;
-    value(&parsed, table)
+    Resolver::new(outputs).resolve(reference)
 }
 
 /// What a reference that has no value shows: the reference itself, marked.
@@ -247,35 +262,196 @@ pub fn unresolved(reference: &str) -> String {
     format!("⟨unresolved: {}⟩", escape(reference))
 }
 
-/// The last table of the reference's kind and subject.
-fn find_table<'a>(parsed: &Parsed, outputs: &'a [Output]) -> Result<&'a Table, LiveError> {
-    let tables = || {
-        outputs
+/// Resolves the references of one document against its tables. Each table is found by its
+/// kind and subject in a map made once, and each column's formatted cells and each table's row
+/// keys are made the first time a reference needs them, so that resolving n references takes
+/// time in proportion to n and the tables (not to n times the tables).
+pub struct Resolver<'a> {
+    outputs: &'a [Output],
+    /// The last table of each (kind, subject), with its place among the document's tables.
+    last: BTreeMap<(&'a str, &'a str), (usize, &'a Table)>,
+    /// Formatted cells of (table, column), by the table's place in `tables`.
+    columns: BTreeMap<(usize, usize), Vec<String>>,
+    /// Row of each row key of a table (the first row with that key).
+    rows: BTreeMap<usize, BTreeMap<Vec<String>, usize>>,
+    /// The tables a "no such table" message lists, made when first needed.
+    known: Option<Vec<String>>,
+}
+
+impl<'a> Resolver<'a> {
+    pub fn new(outputs: &'a [Output]) -> Resolver<'a> {
+        let tables = outputs
             .iter()
             .flat_map(|o| &o.items)
             .filter_map(|i| match i {
                 Item::Table(t) => Some(t),
                 _ => None,
-            })
-    };
-    tables()
-        .rfind(|t| t.kind == parsed.kind && t.subject.as_deref() == Some(parsed.subject.as_str()))
-        .ok_or_else(|| {
-            let mut known: Vec<String> = Vec::new();
-            for t in tables() {
+            });
+        let mut last = BTreeMap::new();
+        for (place, t) in tables.enumerate() {
+            if let Some(subject) = &t.subject {
+                last.insert((t.kind, subject.as_str()), (place, t));
+            }
+        }
+        Resolver {
+            outputs,
+            last,
+            columns: BTreeMap::new(),
+            rows: BTreeMap::new(),
+            known: None,
+        }
+    }
+
+    /// The value `reference` names, as [`resolve`] gives it.
+    pub fn resolve(&mut self, reference: &str) -> Result<String, LiveError> {
+        let parsed = parse(reference)?;
+        let (place, table) = self.find_table(&parsed)?;
+        self.value(&parsed, place, table)
+    }
+
+    /// The last table of the reference's kind and subject, with its place.
+    fn find_table(&mut self, parsed: &Parsed) -> Result<(usize, &'a Table), LiveError> {
+        if let Some(found) = self
+            .last
+            .get(&(parsed.kind.as_str(), parsed.subject.as_str()))
+        {
+            return Ok(*found);
+        }
+        let known = self
+            .known
+            .get_or_insert_with(|| known_tables(self.outputs))
+            .clone();
+        Err(LiveError::NoTable {
+            kind: parsed.kind.clone(),
+            subject: parsed.subject.clone(),
+            known,
+        })
+    }
+
+    /// The value a parsed reference names in `table`.
+    fn value(
+        &mut self,
+        parsed: &Parsed,
+        place: usize,
+        table: &'a Table,
+    ) -> Result<String, LiveError> {
+        let width = key_width(table);
+        let rest = &parsed.rest;
+        // Which row: by its key, or the only row when the reference names none.
+        let (key, column): (&[String], Option<&String>) = if rest.len() == width + 1 {
+            (rest.get(..width).unwrap_or(&[]), rest.get(width))
+        } else if rest.len() == 1 && table.rows.len() == 1 {
+            (&[], rest.first())
+        } else if rest.len() == width && table.kind == "pairs" {
+            (rest.as_slice(), None)
+        } else {
+            return Err(LiveError::Shape {
+                kind: table.kind.to_string(),
+                key_words: width,
+                given: rest.len(),
+            });
+        };
+        let row = if key.is_empty() {
+            table.rows.first().map(|_| 0)
+        } else {
+            self.rows
+                .entry(place)
+                .or_insert_with(|| {
+                    let mut rows = BTreeMap::new();
+                    for (i, r) in table.rows.iter().enumerate() {
+                        rows.entry(row_key(table, r, width)).or_insert(i);
+                    }
+                    rows
+                })
+                .get(key)
+                .copied()
+        };
+        let Some(row) = row else {
+            return Err(LiveError::NoRow {
+                kind: table.kind.to_string(),
+                key: key.iter().map(|k| quote(k)).collect::<Vec<_>>().join(" "),
+                rows: table
+                    .rows
+                    .iter()
+                    .map(|r| {
+                        row_key(table, r, width)
+                            .iter()
+                            .map(|k| quote(k))
+                            .collect::<Vec<_>>()
+                            .join(" ")
+                    })
+                    .collect(),
+            });
+        };
+        let mut cell = |name: &str| -> Result<String, LiveError> {
+            let j = table
+                .columns
+                .iter()
+                .position(|c| c.key == name)
+                .ok_or_else(|| LiveError::NoColumn {
+                    kind: table.kind.to_string(),
+                    column: name.to_string(),
+                    columns: table
+                        .columns
+                        .iter()
+                        .skip(width)
+                        .map(|c| c.key.clone())
+                        .collect(),
+                })?;
+            let text = self
+                .columns
+                .entry((place, j))
+                .or_insert_with(|| formatted_column(table, j))
+                .get(row)
+                .cloned()
+                .unwrap_or_else(|| MISSING.to_string());
+            // A p-value carries its relation ("= .003", "< .001"), so that prose
+            // reads "*p* @[...]" correctly whichever side of .001 it falls.
+            let is_p = table.columns.get(j).is_some_and(|c| c.format == Format::P);
+            Ok(
+                if is_p && text != MISSING && !text.starts_with(['<', '>']) {
+                    format!("= {text}")
+                } else {
+                    text
+                },
+            )
+        };
+        match column {
+            Some(name) => cell(name),
+            None => {
+                // A pair: the difference with its limits.
+                let estimate = cell("estimate")?;
+                let (lower, upper) = (cell("lower")?, cell("upper")?);
+                if lower == MISSING || upper == MISSING {
+                    return Ok(estimate);
+                }
+                let level = table
+                    .level
+                    .map(|l| format!("{}% ", percent(l)))
+                    .unwrap_or_default();
+                Ok(format!("{estimate} ({level}limits {lower} to {upper})"))
+            }
+        }
+    }
+}
+
+/// The tables of a document as "kind subject", each once, for a "no such table" message.
+fn known_tables(outputs: &[Output]) -> Vec<String> {
+    let mut known: Vec<String> = Vec::new();
+    let mut seen = std::collections::BTreeSet::new();
+    for o in outputs {
+        for item in &o.items {
+            if let Item::Table(t) = item {
                 if let Some(s) = &t.subject {
                     let name = format!("{} {}", t.kind, quote(s));
-                    if !known.contains(&name) {
+                    if seen.insert(name.clone()) {
                         known.push(name);
                     }
                 }
             }
-            LiveError::NoTable {
-                kind: parsed.kind.clone(),
-                subject: parsed.subject.clone(),
-                known,
-            }
-        })
+        }
+    }
+    known
 }
 
 /// A name as a reference writes it: quoted when it holds a space or a quote.
@@ -305,97 +481,6 @@ fn row_key(table: &Table, row: &[super::Cell], width: usize) -> Vec<String> {
             _ => MISSING.to_string(),
         })
         .collect()
-}
-
-/// The value a parsed reference names in `table`.
-fn value(parsed: &Parsed, table: &Table) -> Result<String, LiveError> {
-    let width = key_width(table);
-    let rest = &parsed.rest;
-    // Which row: by its key, or the only row when the reference names none.
-    let (key, column): (&[String], Option<&String>) = if rest.len() == width + 1 {
-        (rest.get(..width).unwrap_or(&[]), rest.get(width))
-    } else if rest.len() == 1 && table.rows.len() == 1 {
-        (&[], rest.first())
-    } else if rest.len() == width && table.kind == "pairs" {
-        (rest.as_slice(), None)
-    } else {
-        return Err(LiveError::Shape {
-            kind: table.kind.to_string(),
-            key_words: width,
-            given: rest.len(),
-        });
-    };
-    let row = if key.is_empty() {
-        table.rows.first().map(|_| 0)
-    } else {
-        table
-            .rows
-            .iter()
-            .position(|r| row_key(table, r, width).as_slice() == key)
-    };
-    let Some(row) = row else {
-        return Err(LiveError::NoRow {
-            kind: table.kind.to_string(),
-            key: key.iter().map(|k| quote(k)).collect::<Vec<_>>().join(" "),
-            rows: table
-                .rows
-                .iter()
-                .map(|r| {
-                    row_key(table, r, width)
-                        .iter()
-                        .map(|k| quote(k))
-                        .collect::<Vec<_>>()
-                        .join(" ")
-                })
-                .collect(),
-        });
-    };
-    let cell = |name: &str| -> Result<String, LiveError> {
-        let j = table
-            .columns
-            .iter()
-            .position(|c| c.key == name)
-            .ok_or_else(|| LiveError::NoColumn {
-                kind: table.kind.to_string(),
-                column: name.to_string(),
-                columns: table
-                    .columns
-                    .iter()
-                    .skip(width)
-                    .map(|c| c.key.clone())
-                    .collect(),
-            })?;
-        let text = formatted_column(table, j)
-            .get(row)
-            .cloned()
-            .unwrap_or_else(|| MISSING.to_string());
-        // A p-value carries its relation ("= .003", "< .001"), so that prose
-        // reads "*p* @[...]" correctly whichever side of .001 it falls.
-        let is_p = table.columns.get(j).is_some_and(|c| c.format == Format::P);
-        Ok(
-            if is_p && text != MISSING && !text.starts_with(['<', '>']) {
-                format!("= {text}")
-            } else {
-                text
-            },
-        )
-    };
-    match column {
-        Some(name) => cell(name),
-        None => {
-            // A pair: the difference with its limits.
-            let estimate = cell("estimate")?;
-            let (lower, upper) = (cell("lower")?, cell("upper")?);
-            if lower == MISSING || upper == MISSING {
-                return Ok(estimate);
-            }
-            let level = table
-                .level
-                .map(|l| format!("{}% ", percent(l)))
-                .unwrap_or_default();
-            Ok(format!("{estimate} ({level}limits {lower} to {upper})"))
-        }
-    }
 }
 
 /// A confidence level as a percentage, to four decimals at most ("95", "99.5").
@@ -443,6 +528,21 @@ mod tests {
             .filter_map(|&(s, e)| text.get(s..e))
             .collect();
         assert_eq!(found, vec!["@[x y z]", "@[ ]", "@[ok one two]"]);
+    }
+
+    #[test]
+    fn a_bracket_in_a_quoted_name_does_not_end_the_reference() {
+        let text = "a @[means m \"x]y\" mean] b @[means m \"[z]\" se] c";
+        let found: Vec<&str> = find_all(text)
+            .iter()
+            .filter_map(|&(s, e)| text.get(s..e))
+            .collect();
+        assert_eq!(
+            found,
+            vec!["@[means m \"x]y\" mean]", "@[means m \"[z]\" se]"]
+        );
+        let p = parse("@[means m \"x]y\" mean]").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(p.rest, vec!["x]y", "mean"]);
     }
 
     #[test]

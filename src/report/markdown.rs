@@ -1,6 +1,7 @@
 //! Items as GitHub-flavoured Markdown.
 
 use super::number::{format_column, MISSING};
+use super::visible::visible;
 use super::{Cell, Format, InputRecord, Item, Table};
 
 /// The caution every rendered document carries.
@@ -8,11 +9,16 @@ pub const CAUTION: &str = "*Caution.* These results support, and do not replace,
 qualified statistician. Decisions about health, clinical care or safety follow the applicable \
 guidelines and local regulations.";
 
-/// Escapes text for a Markdown paragraph or table cell: every ASCII
-/// punctuation character that Markdown or HTML could read as syntax gets a
-/// backslash, and line breaks become spaces, so a column called
-/// `<script>` or `a|b` shows as written and can never form a covey marker.
+/// Escapes text for a Markdown paragraph (a sentence, a caption, alternative text): hidden
+/// characters are made visible ([`super::visible`]), and every ASCII punctuation character
+/// that Markdown or HTML could read as syntax gets a backslash, so a column called `<script>`
+/// shows as written and can never form raw HTML, a link or a covey marker.
+///
+/// Each context a name can stand in has its own function here ([`escape`], [`cell`],
+/// [`code`], [`code_in_cell`], [`destination`]), so that what each one must escape can be
+/// decided on its own.
 pub fn escape(text: &str) -> String {
+    let text = visible(text);
     let mut out = String::with_capacity(text.len() + 8);
     for c in text.chars() {
         match c {
@@ -21,12 +27,16 @@ pub fn escape(text: &str) -> String {
                 out.push('\\');
                 out.push(c);
             }
-            '\r' | '\n' => out.push(' '),
-            c if c.is_control() => out.push('\u{fffd}'),
             c => out.push(c),
         }
     }
     out
+}
+
+/// Escapes text for a cell of a GitHub-flavoured table: as [`escape`], which also gives `|`,
+/// the cell separator, its backslash.
+pub fn cell(text: &str) -> String {
+    escape(text)
 }
 
 /// Plain text from covey's own escaped Markdown, for the terminal: drops
@@ -49,21 +59,60 @@ pub fn plain(markdown: &str) -> String {
     out
 }
 
-/// Inline code for a name the user wrote (a column, a level, a file): the
-/// fence is longer than any backtick run inside, so any name survives.
+/// Inline code for a name the user wrote (a column, a level, a file) in a paragraph: hidden
+/// characters made visible, a fence longer than any backtick run inside, and padding where
+/// CommonMark would otherwise eat a backtick or a space at either end, so any name shows
+/// exactly as written.
 pub fn code(text: &str) -> String {
-    let clean: String = text
-        .chars()
-        .map(|c| if c.is_control() { ' ' } else { c })
-        .collect();
+    let clean = visible(text);
     let longest = longest_run(&clean, '`');
     let fence = "`".repeat(longest + 1);
-    let pad = if clean.starts_with('`') || clean.ends_with('`') || clean.is_empty() {
+    // CommonMark strips one space from both ends of a code span that begins and ends with one
+    // (unless it is all spaces); a space of padding on each side keeps the name's own.
+    let spaced = clean.starts_with(' ') && clean.ends_with(' ') && clean.trim() != "";
+    let pad = if clean.starts_with('`') || clean.ends_with('`') || clean.is_empty() || spaced {
         " "
     } else {
         ""
     };
     format!("{fence}{pad}{clean}{pad}{fence}")
+}
+
+/// A name in a table cell, in code style where that can show it exactly: a GitHub table takes
+/// `\|` inside a code span as a `|` of the span (every other `|` ends the cell). A name with
+/// a backslash right before a `|` cannot be written so (the backslash would be taken with the
+/// pipe), and is escaped as text instead ([`cell`]).
+pub fn code_in_cell(text: &str) -> String {
+    let clean = visible(text);
+    if clean.contains("\\|") {
+        return cell(&clean);
+    }
+    code(&clean).replace('|', "\\|")
+}
+
+/// Characters a link destination keeps as they are: ASCII letters and digits, `-`, `.`, `_`,
+/// `~` (unreserved in URLs) and `/`, which separates the folder from the file.
+const DESTINATION_KEEPS: &percent_encoding::AsciiSet = &percent_encoding::NON_ALPHANUMERIC
+    .remove(b'-')
+    .remove(b'.')
+    .remove(b'_')
+    .remove(b'~')
+    .remove(b'/');
+
+/// A relative file path as the destination of a Markdown link or image: every other byte of
+/// its UTF-8 is percent-encoded, so a space, parentheses, `<`, `#`, `%`, `:` or a non-ASCII
+/// letter in a document's name can neither end the destination early nor make it a fragment,
+/// a query or an address with a scheme. A reader decoding it gets the path back.
+///
+/// ```
+/// use covey::report::markdown::destination;
+/// assert_eq!(
+///     destination("my doc (2) #1 é.figures/block1-1.svg"),
+///     "my%20doc%20%282%29%20%231%20%C3%A9.figures/block1-1.svg"
+/// );
+/// ```
+pub fn destination(path: &str) -> String {
+    percent_encoding::utf8_percent_encode(path, DESTINATION_KEEPS).to_string()
 }
 
 fn longest_run(text: &str, ch: char) -> usize {
@@ -88,8 +137,8 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
     let cells = t.rows.iter().map(|r| r.get(j).unwrap_or(&Cell::Missing));
     if c.format == Format::Text {
         cells
-            .map(|cell| match cell {
-                Cell::Text(s) => escape(s),
+            .map(|value| match value {
+                Cell::Text(s) => cell(s),
                 Cell::Number(x) => super::number::exact(Some(*x)),
                 Cell::Missing => MISSING.to_string(),
             })
@@ -107,7 +156,7 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
         let mut f = format_column(&nums, c.format);
         for (i, r) in t.rows.iter().enumerate() {
             if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), f.get_mut(i)) {
-                *slot = escape(s);
+                *slot = cell(s);
             }
         }
         f
@@ -124,7 +173,7 @@ pub fn table(t: &Table) -> String {
     out.push_str(&format!("**{}**\n\n", t.caption));
     out.push('|');
     for c in &t.columns {
-        out.push_str(&format!(" {} |", escape(&c.header)));
+        out.push_str(&format!(" {} |", cell(&c.header)));
     }
     out.push_str("\n|");
     for c in &t.columns {
@@ -164,7 +213,7 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
                 "**{}**\n\n![{}]({})\n",
                 escape(&f.caption),
                 escape(&f.alt),
-                f.file
+                destination(&f.file)
             )),
             Item::Error { message, snippet } => {
                 let fence = "`".repeat(longest_run(snippet, '`').max(2) + 1);
@@ -204,7 +253,7 @@ pub fn provenance(
         for i in inputs {
             out.push_str(&format!(
                 "| {} | {} | {} | `{}` |\n",
-                code(&i.path),
+                code_in_cell(&i.path),
                 i.rows,
                 i.columns,
                 i.sha256

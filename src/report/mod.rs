@@ -9,6 +9,7 @@ pub mod json;
 pub mod live;
 pub mod markdown;
 pub mod number;
+pub mod visible;
 
 /// How the numbers of one column are shown in Markdown. JSON always carries
 /// full precision.
@@ -153,8 +154,10 @@ pub enum Item {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Figure {
     /// Where the rendering links it, relative to the rendered document
-    /// (set by the pipeline: `NAME.figures/blockB-K.svg`).
+    /// (set by the pipeline: `NAME.figures/blockB-K.svg`), as a path (the Markdown link is
+    /// percent-encoded from it).
     pub file: String,
+    /// The SVG text; the pipeline moves it to the run's figures.
     pub svg: String,
     /// Alternative text: what the figure shows, for readers who cannot see it.
     pub alt: String,
