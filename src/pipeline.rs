@@ -133,18 +133,17 @@ pub fn run(
     let mut session = Session::new(world);
     let mut outputs: Vec<Output> = Vec::new();
     let mut bodies = Vec::with_capacity(blocks.len());
-    let mut stopped = false;
+    // Why the blocks after this point are not run, once something stopped the run: the advice
+    // under each names the flag that runs them.
+    let mut stopped: Option<Stop> = None;
     let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
     let mut figures = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
     for (bi, statements) in blocks.iter().enumerate() {
         let mut figure_count = 0;
-        if stopped {
-            bodies.push(
-                "\n*Not run: an earlier block failed. Fix that error, or render with --keep-going to run the rest.*\n\n"
-                    .to_string(),
-            );
+        if let Some(stop) = stopped {
+            bodies.push(format!("\n*Not run: {}*\n\n", stop.advice()));
             continue;
         }
         let first = outputs.len();
@@ -160,7 +159,7 @@ pub fn run(
                                 markdown::plain(g)
                             )));
                             if !opts.override_gates {
-                                stopped = true;
+                                stopped = Some(Stop::Gate);
                             }
                         }
                     }
@@ -183,7 +182,7 @@ pub fn run(
                     // source and re-rendering in place changes nothing.
                     let snippet = source.render(&d);
                     if !opts.keep_going {
-                        stopped = true;
+                        stopped = Some(Stop::Error);
                     }
                     vec![Item::Error {
                         message: d.message.clone(),
@@ -206,7 +205,7 @@ pub fn run(
                 statement: stmt.text.clone(),
                 items,
             });
-            if stopped {
+            if stopped.is_some() {
                 break;
             }
         }
@@ -227,7 +226,7 @@ pub fn run(
             "> **STOP: this report was rendered past a failed gate** (--override-gates). {}",
             gates_failed
                 .iter()
-                .map(|g| markdown::escape(g))
+                .map(|g| markdown::message(g))
                 .collect::<Vec<_>>()
                 .join(" ")
         ));
@@ -243,7 +242,7 @@ pub fn run(
             Ok(value) => values.push(value),
             // After a failure stopped the run, a table the reference needs
             // may simply not have been computed: that is no new error.
-            Err(_) if stopped => values.push(live::unresolved(&reference.text)),
+            Err(_) if stopped.is_some() => values.push(live::unresolved(&reference.text)),
             Err(e) => {
                 let span = Span {
                     start: reference.start,
@@ -289,6 +288,32 @@ pub fn run(
         gates_failed,
         document: doc,
     })
+}
+
+/// What stopped a run before its last block.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Stop {
+    /// A `require` gate did not hold (`--override-gates` renders past it).
+    Gate,
+    /// A statement failed (`--keep-going` runs the rest).
+    Error,
+}
+
+impl Stop {
+    /// The sentence under each block that was not run: what stopped the run and the flag that
+    /// runs the rest.
+    fn advice(self) -> &'static str {
+        match self {
+            Stop::Gate => {
+                "a gate above did not hold. Look into what it reports, or render with \
+                 `--override-gates` to run the rest (the rendering then says so at the top)."
+            }
+            Stop::Error => {
+                "an earlier block failed. Fix that error, or render with `--keep-going` to run \
+                 the rest."
+            }
+        }
+    }
 }
 
 /// The document's parameters with their values in force, and a sentence for

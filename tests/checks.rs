@@ -461,3 +461,60 @@ fn no_flagged_row_gives_a_sentence_and_no_table() {
         "{rendered}"
     );
 }
+
+/// `require balance ... in M` uses the rows of model M, as the balance row of `check M` does,
+/// and gives scipy's F and p on them; without a model it uses the rows of the data set that
+/// have both values, and says how many (here one more: line 9 lacks only the response).
+#[test]
+fn the_balance_gate_on_a_model_uses_the_rows_of_check() {
+    let doc = format!(
+        "{HEAD}model main: final_kg on diet + barn + start_kg\n\
+         require balance start_kg by barn in main\n\
+         require balance start_kg by barn\n\
+         check main\n```\n"
+    );
+    let (json, rendered) = run(&doc, PENS);
+    let check = output(&json, "check", 0);
+    assert_f_row(
+        check_row(check, "balance of start_kg across barn"),
+        BALANCE_BARN,
+        "check",
+    );
+    // scipy.stats.f_oneway of start_kg on barn over the model's 35 rows (BALANCE_BARN),
+    // to the two decimals and three of p that the gate's sentence shows.
+    assert!(
+        rendered.contains(
+            "Gate passed: balance of `start_kg` across `barn` (one-way ANOVA on the 35 rows \
+             model `main` is fitted to): F(1, 33) = 0.02, p = .891 (alpha 0.05)."
+        ),
+        "{rendered}"
+    );
+    assert!(
+        rendered.contains(
+            "Gate passed: balance of `start_kg` across `barn` (one-way ANOVA on the 36 rows of \
+             the data set with both values): F(1, 34)"
+        ),
+        "{rendered}"
+    );
+    let note = check["notes"][0].as_str().unwrap_or_default();
+    assert!(
+        note.contains("the 35 rows the model was fitted to"),
+        "{note}"
+    );
+}
+
+/// A factor or covariate that is not the named model's is an error that says so.
+#[test]
+fn the_balance_gate_names_a_model_variable() {
+    let doc = format!(
+        "{HEAD}model small: final_kg on diet\nrequire balance start_kg by diet in small\n```\n"
+    );
+    let world = MemoryWorld::new().with("data/pens.csv", PENS.to_vec());
+    let run = pipeline::run(&doc, "checks.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let errors = run.errors.join("\n");
+    assert!(
+        errors.contains("`start_kg` is not a numeric covariate of model `small`"),
+        "{errors}"
+    );
+}

@@ -326,10 +326,14 @@ fn a_failed_gate_stops_the_run_unless_overridden() {
         stopped.contains("> **STOP.** Gate failed: equal slopes"),
         "{stopped}"
     );
+    // The advice under the blocks not run names the flag that runs them past a gate, and not
+    // `--keep-going`, which runs past failed statements only.
     assert!(
-        stopped.contains("*Not run: an earlier block failed."),
-        "later blocks do not run"
+        stopped.contains("*Not run: a gate above did not hold.")
+            && stopped.contains("`--override-gates` to run the rest"),
+        "later blocks do not run: {stopped}"
     );
+    assert!(!stopped.contains("--keep-going"), "{stopped}");
     let (code, err) = covey(
         &dir,
         &["render", "proc.md", "--set", dec, "--override-gates"],

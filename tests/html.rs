@@ -13,9 +13,9 @@ use covey::world::{FsWorld, MemoryWorld};
 /// A column, levels and a response name made of everything HTML treats
 /// specially.
 const HOSTILE_DATA: &str = "\"<script>alert(1)</script>\",x,\"y & \"\"z\"\"\"\n\
-\"Tom & \"\"Jerry\"\"\",1.0,2.1\n\
-\"Tom & \"\"Jerry\"\"\",2.0,3.2\n\
-\"Tom & \"\"Jerry\"\"\",3.0,3.9\n\
+\"Wren & \"\"Alder\"\"\",1.0,2.1\n\
+\"Wren & \"\"Alder\"\"\",2.0,3.2\n\
+\"Wren & \"\"Alder\"\"\",3.0,3.9\n\
 <b>bold</b>,1.5,4.4\n\
 <b>bold</b>,2.5,5.1\n\
 <b>bold</b>,3.5,6.3\n\
@@ -169,7 +169,7 @@ fn user_strings_are_escaped_and_stay_visible() {
     for shown in [
         "<script>alert(1)</script>",
         "y & \"z\"",
-        "Tom & \"Jerry\"",
+        "Wren & \"Alder\"",
         "<b>bold</b>",
         "O'Brien <img src=x onerror=alert(2)>",
     ] {

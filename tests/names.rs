@@ -301,3 +301,205 @@ fn user_strings_are_escaped_for_every_context() {
     assert!(json.contains("esc\\u001b[31mred"), "{json}");
     assert!(json.contains("\u{202e}evil"));
 }
+
+// ------------------------------------------------ minimal escaping, read back by comrak
+
+use covey::report::markdown::{cell, code, code_in_cell, escape, message, table};
+use covey::report::visible::visible;
+use covey::report::{Column, Format, Table};
+use proptest::prelude::*;
+
+/// comrak's options as GitHub reads Markdown: tables, strikethrough, footnotes, task lists,
+/// and mathematics between dollar signs. (Bare URLs also become links on GitHub, with the
+/// same text; that extension is left off so that any link here is one the escaping let
+/// through.)
+fn github() -> Options<'static> {
+    let mut o = Options::default();
+    o.extension.table = true;
+    o.extension.strikethrough = true;
+    o.extension.footnotes = true;
+    o.extension.tasklist = true;
+    o.extension.math_dollars = true;
+    o
+}
+
+/// The text of `node`'s descendants, or an error naming the first descendant that is neither
+/// text nor code: emphasis, a link, raw HTML, mathematics or a footnote the escaping let
+/// through.
+fn plain_text<'a>(node: &'a AstNode<'a>) -> Result<String, String> {
+    let mut s = String::new();
+    for d in node.descendants().skip(1) {
+        match &d.data().value {
+            NodeValue::Text(t) => s.push_str(t),
+            NodeValue::Code(c) => s.push_str(&c.literal),
+            other => return Err(format!("{other:?}")),
+        }
+    }
+    Ok(s)
+}
+
+/// The only block of a Markdown text and its text, when it is a paragraph.
+fn paragraph_text(markdown: &str) -> Result<String, String> {
+    let arena = Arena::new();
+    let root = parse_document(&arena, markdown, &github());
+    let blocks: Vec<_> = root.children().collect();
+    match blocks.as_slice() {
+        [p] if matches!(p.data().value, NodeValue::Paragraph) => plain_text(p),
+        _ => Err(format!("not one paragraph: {markdown:?}")),
+    }
+}
+
+/// The only inline of the only paragraph of a Markdown text: its kind must pass `kind`, and
+/// its text is returned.
+fn sole_inline(markdown: &str, kind: fn(&NodeValue) -> bool) -> Result<String, String> {
+    let arena = Arena::new();
+    let root = parse_document(&arena, markdown, &github());
+    let para = root.first_child().ok_or("empty")?;
+    let inlines: Vec<_> = para.children().collect();
+    match inlines.as_slice() {
+        [one] if kind(&one.data().value) => plain_text(one),
+        _ => Err(format!("not one inline: {markdown:?}")),
+    }
+}
+
+/// The cells of the first table of a Markdown text, each checked to hold only text.
+fn table_cells(markdown: &str) -> Result<Vec<Vec<String>>, String> {
+    let arena = Arena::new();
+    let root = parse_document(&arena, markdown, &github());
+    let table = root
+        .descendants()
+        .find(|n| matches!(n.data().value, NodeValue::Table(_)))
+        .ok_or_else(|| format!("no table: {markdown:?}"))?;
+    table
+        .children()
+        .map(|row| row.children().map(plain_text).collect())
+        .collect()
+}
+
+/// Every printable ASCII character, some letters and spaces of other scripts, and characters
+/// a reader cannot see, so that generated names are dense with what Markdown could misread.
+fn alphabet() -> Vec<char> {
+    let mut chars: Vec<char> = (' '..='~').collect();
+    chars.extend(['é', '日', '\u{a0}', '\u{202e}', '\t', '\u{1b}', 'ß']);
+    chars
+}
+
+fn name() -> impl Strategy<Value = String> {
+    prop::collection::vec(prop::sample::select(alphabet()), 0..12)
+        .prop_map(|v| v.into_iter().collect())
+}
+
+/// A name in a code span of a plain message, as a writer following CommonMark would put it.
+fn spanned(name: &str) -> String {
+    let longest = name.split(|c| c != '`').map(str::len).max().unwrap_or(0);
+    let fence = "`".repeat(longest + 1);
+    let pad = if name.starts_with('`')
+        || name.ends_with('`')
+        || name.is_empty()
+        || (name.starts_with(' ') && name.ends_with(' ') && name.trim() != "")
+    {
+        " "
+    } else {
+        ""
+    };
+    format!("{fence}{pad}{name}{pad}{fence}")
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 2000, failure_persistence: None, ..ProptestConfig::default() })]
+
+    /// Text escaped for a paragraph reads back as written (hidden characters by their code
+    /// points) wherever covey puts it: alone on a line, inside a sentence, as a bold caption,
+    /// as an image's alternative text.
+    #[test]
+    fn escaped_text_reads_back_as_written(s in name()) {
+        let shown = visible(&s).into_owned();
+        let e = escape(&s);
+        if !shown.is_empty() {
+            prop_assert_eq!(paragraph_text(&format!("{e}\n")), Ok(shown.clone()), "alone: {:?}", e);
+            prop_assert_eq!(
+                sole_inline(&format!("**{e}**\n"), |v| matches!(v, NodeValue::Strong)),
+                Ok(shown.clone()),
+                "caption: {:?}", e
+            );
+        }
+        prop_assert_eq!(
+            paragraph_text(&format!("Before {e} after.\n")),
+            Ok(format!("Before {shown} after.")),
+            "in a sentence: {:?}", e
+        );
+        prop_assert_eq!(
+            sole_inline(&format!("![{e}](x.svg)\n"), |v| matches!(v, NodeValue::Image(_))),
+            Ok(shown.clone()),
+            "alternative text: {:?}", e
+        );
+        // A name in a code span, in a sentence (no code span can be empty).
+        if !s.is_empty() {
+            prop_assert_eq!(
+            paragraph_text(&format!("A {} b\n", code(&s))),
+            Ok(format!("A {shown} b")),
+            "code: {:?}", code(&s)
+        );
+        }
+    }
+
+    /// Names in a table (a header and cells, as text and as code) read back cell by cell,
+    /// and no name adds or removes a cell.
+    #[test]
+    fn table_cells_read_back_as_written(h in name(), a in name(), b in name()) {
+        let mut t = Table::new(
+            "demo",
+            "Demo",
+            vec![
+                Column::new("first", &h, Format::Text),
+                Column::new("second", "second", Format::Text),
+            ],
+        );
+        t.push(vec![a.clone().into(), b.clone().into()]);
+        let md = table(&t);
+        let cells = table_cells(&md);
+        // A header is escaped like any cell; spaces at either end are kept too.
+        let want = vec![
+            vec![visible(&h).into_owned(), "second".to_string()],
+            vec![visible(&a).into_owned(), visible(&b).into_owned()],
+        ];
+        prop_assert_eq!(cells, Ok(want), "{}", md);
+        // As code in a cell (the provenance table's file names; no code span can be empty).
+        if !a.is_empty() {
+            let row = format!("| x | y |\n| :-- | :-- |\n| {} | {} |\n", code_in_cell(&a), cell(&b));
+            prop_assert_eq!(
+                table_cells(&row).map(|r| r.get(1).cloned()),
+                Ok(Some(vec![visible(&a).into_owned(), visible(&b).into_owned()])),
+                "{}", row
+            );
+        }
+    }
+
+    /// A plain message with names in code spans (the model's warnings and notes) reads back
+    /// with each name as code and the words as written.
+    #[test]
+    fn messages_read_back_as_written(
+        before in name().prop_filter("no backtick", |w| !w.contains('`')),
+        n in name().prop_filter("a code span holds something", |n| !n.is_empty()),
+        after in name().prop_filter("no backtick", |w| !w.contains('`')),
+    ) {
+        let plain = format!("{before}{}{after}", spanned(&n));
+        let md = message(&plain);
+        let arena = Arena::new();
+        let root = parse_document(&arena, &format!("Say: {md}.\n"), &github());
+        let para = root.first_child().ok_or("empty").map_err(TestCaseError::fail)?;
+        prop_assert_eq!(
+            plain_text(para),
+            Ok(format!("Say: {}{}{}.", visible(&before), visible(&n), visible(&after))),
+            "{}", md
+        );
+        let code_nodes: Vec<String> = para
+            .descendants()
+            .filter_map(|d| match &d.data().value {
+                NodeValue::Code(c) => Some(c.literal.clone()),
+                _ => None,
+            })
+            .collect();
+        prop_assert_eq!(code_nodes, vec![visible(&n).into_owned()], "{}", md);
+    }
+}

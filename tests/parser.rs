@@ -520,3 +520,30 @@ fn plot_power_errors() {
     let e = error("plot powr main");
     assert!(e.message.contains("`power`"), "{}", e.message);
 }
+
+#[test]
+fn balance_gate_with_and_without_a_model() {
+    match parse("require balance start_kg by ration alpha 0.1") {
+        StatementKind::Require(Gate::Balance {
+            covariate,
+            factor,
+            model,
+            alpha,
+        }) => {
+            assert_eq!(
+                (covariate.value.as_str(), factor.value.as_str()),
+                ("start_kg", "ration")
+            );
+            assert!(model.is_none());
+            assert_eq!(alpha.map(|a| a.value), Some(0.1));
+        }
+        other => panic!("{other:?}"),
+    }
+    match parse("require balance start_kg by ration in parallel") {
+        StatementKind::Require(Gate::Balance { model, alpha, .. }) => {
+            assert_eq!(model.map(|m| m.value), Some("parallel".to_string()));
+            assert!(alpha.is_none());
+        }
+        other => panic!("{other:?}"),
+    }
+}

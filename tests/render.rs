@@ -119,6 +119,14 @@ fn every_model_table() {
 #[test]
 fn runtime_error_is_rendered_and_stops_the_rest() {
     render_fixture("runtime-error");
+    // The blocks not run say which flag runs them: after a failed statement, `--keep-going`.
+    let rendered = std::fs::read_to_string(fixtures().join("runtime-error.rendered.md"))
+        .unwrap_or_else(|e| panic!("{e}"));
+    assert!(
+        rendered.contains("*Not run: an earlier block failed. Fix that error, or render with `--keep-going` to run the rest.*"),
+        "{rendered}"
+    );
+    assert!(!rendered.contains("--override-gates"), "{rendered}");
 }
 
 #[test]

@@ -154,10 +154,11 @@ pub enum Gate {
         min: Spanned<f64>,
         factor: Spanned<String>,
     },
-    /// `require balance X by F [alpha A]`
+    /// `require balance X by F [in M] [alpha A]`: on the rows of model M when one is named.
     Balance {
         covariate: Spanned<String>,
         factor: Spanned<String>,
+        model: Option<Spanned<String>>,
         alpha: Option<Spanned<f64>>,
     },
 }

@@ -972,6 +972,7 @@ impl Builder<'_> {
             Rule::require_balance => Gate::Balance {
                 covariate: name_at(0)?,
                 factor: name_at(1)?,
+                model: names.get(2).cloned().map(|p| self.name(p)),
                 alpha,
             },
             r => unreachable_rule(r)?,

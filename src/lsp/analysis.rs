@@ -21,6 +21,7 @@ use crate::session::data_statements::{
 };
 use crate::session::model_statements::confidence;
 use crate::session::plot_statements::{kind_word, listing};
+use crate::session::procedure_statements::balance_not_in_model;
 use crate::session::{closest, no_data_set, unknown_model};
 
 use super::data::{DataCache, Lookup, Summary};
@@ -1336,6 +1337,31 @@ impl<'c> Walk<'c> {
             Gate::Balance {
                 covariate,
                 factor,
+                model: Some(model),
+                alpha,
+            } => {
+                if !self.alpha(alpha.as_ref()) {
+                    return;
+                }
+                let Some(m) = self.model(model) else {
+                    return;
+                };
+                let Some(vars) = &m.vars else {
+                    return;
+                };
+                let has = |name: &str, factor: bool| {
+                    vars.iter().any(|v| v.name == name && v.factor == factor)
+                };
+                if !has(&factor.value, true) {
+                    self.error(balance_not_in_model(factor, &m.name, true));
+                } else if !has(&covariate.value, false) {
+                    self.error(balance_not_in_model(covariate, &m.name, false));
+                }
+            }
+            Gate::Balance {
+                covariate,
+                factor,
+                model: None,
                 alpha,
             } => {
                 if !self.alpha(alpha.as_ref()) {

@@ -162,10 +162,35 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
                 push(o, factor.span, &factor.value, Role::Column, "")
             }
             Gate::Balance {
-                covariate, factor, ..
+                covariate,
+                factor,
+                model: None,
+                ..
             } => {
                 push(o, covariate.span, &covariate.value, Role::Column, "");
                 push(o, factor.span, &factor.value, Role::Column, "");
+            }
+            Gate::Balance {
+                covariate,
+                factor,
+                model: Some(model),
+                ..
+            } => {
+                push(
+                    o,
+                    covariate.span,
+                    &covariate.value,
+                    Role::ModelCovariate,
+                    &model.value,
+                );
+                push(
+                    o,
+                    factor.span,
+                    &factor.value,
+                    Role::ModelFactor,
+                    &model.value,
+                );
+                push(o, model.span, &model.value, Role::Model, "");
             }
             // A kind added to the language later: no named parts here yet.
             #[allow(unreachable_patterns)]

@@ -84,8 +84,20 @@ pub const KINDS: &[Kind] = &[
     Kind {
         kind: "compare",
         subject: Subject::Model,
-        key_words: 1,
-        columns: &["model", "df_residual", "rss", "df", "ss", "f", "p"],
+        key_words: 3,
+        columns: &[
+            "smaller",
+            "larger",
+            "terms_added",
+            "n",
+            "rss_smaller",
+            "rss_larger",
+            "extra_ss",
+            "f",
+            "df1",
+            "df2",
+            "p",
+        ],
     },
     Kind {
         kind: "means",

@@ -190,9 +190,24 @@ pub fn compare(first: &Fit, second: &Fit) -> Result<Comparison, ModelError> {
     } else {
         (second, first, true)
     };
-    if !by_names(small, big) && !nested_numerically(small, big) {
+    let named = by_names(small, big);
+    if !named && !nested_numerically(small, big) {
         return Err(ModelError::NotNested);
     }
+    let added = named.then(|| {
+        let intercept = (big.spec.intercept && !small.spec.intercept)
+            .then(|| super::design::INTERCEPT.to_string());
+        intercept
+            .into_iter()
+            .chain(
+                big.lay
+                    .term_names
+                    .iter()
+                    .filter(|t| !small.lay.term_names.contains(t))
+                    .cloned(),
+            )
+            .collect()
+    });
     let df = small.df_res - big.df_res;
     if df == 0 {
         return Err(ModelError::SameColumnSpace);
@@ -215,6 +230,8 @@ pub fn compare(first: &Fit, second: &Fit) -> Result<Comparison, ModelError> {
         f,
         p,
         swapped,
+        n: big.lay.used.len(),
+        added,
     })
 }
 

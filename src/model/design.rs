@@ -618,7 +618,7 @@ pub(crate) fn columns(
     if spec.intercept {
         cols.push(Column {
             term: None,
-            name: "(intercept)".to_string(),
+            name: INTERCEPT.to_string(),
             parts: Vec::new(),
         });
     }
@@ -725,8 +725,21 @@ pub(crate) fn columns(
         }
         term_cols.push(idx);
     }
+    // A covariate of the user's may itself be called `intercept`: the constant then takes
+    // another name, so that no two coefficients share a label (live references find rows by it).
+    if spec.intercept && cols.iter().skip(1).any(|c| c.name == INTERCEPT) {
+        if let Some(first) = cols.first_mut() {
+            first.name = INTERCEPT_RENAMED.to_string();
+        }
+    }
     (cols, term_cols)
 }
+
+/// The label of the constant column, in tables and JSON.
+pub(crate) const INTERCEPT: &str = "intercept";
+
+/// The constant column's label when a column of the model is itself named [`INTERCEPT`].
+pub(crate) const INTERCEPT_RENAMED: &str = "constant";
 
 /// Value of a column at data row i.
 pub(crate) fn eval_row(spec: &ModelSpec, col: &Column, i: usize) -> f64 {

@@ -293,9 +293,15 @@ pub struct Comparison {
     pub f: f64,
     /// Upper-tail p-value.
     pub p: f64,
-    /// True when the first model named was the bigger one (the rows are then in the other
-    /// order: the smaller model always comes first).
+    /// True when the first model named was the bigger one (the smaller model is always
+    /// reported first).
     pub swapped: bool,
+    /// Number of rows both models are fitted to.
+    pub n: usize,
+    /// The terms of the bigger model that the smaller one lacks, in the bigger model's order
+    /// (`intercept` first when only the bigger has one); `None` when the smaller model's terms
+    /// are not all among the bigger one's by name, and the nesting was found in the columns.
+    pub added: Option<Vec<String>>,
 }
 
 /// An adjusted (least-squares) mean.

@@ -225,7 +225,7 @@ fn reference_coefficients_and_summary() {
     assert_eq!(
         names,
         [
-            "(intercept)",
+            "intercept",
             "a = a2",
             "a = a3",
             "b = b2",
@@ -573,6 +573,9 @@ fn compare_nested_models() {
     .expect("fit");
     let c = compare(&small, &big).expect("compare");
     assert_eq!(c.df, 1);
+    // The row says what the larger model adds, and on how many rows.
+    assert_eq!(c.added, Some(vec!["x".to_string()]));
+    assert_eq!(c.n, DATA.len());
     let a = big.anova(SsType::I).expect("anova");
     close(c.f, a.rows[3].f.unwrap_or(f64::NAN), 1e-10, "compare F");
     // Not nested: x alone against a alone.
@@ -586,6 +589,7 @@ fn compare_nested_models() {
     let cells = fit(&reference_spec(DATA, vec![term(&[1]), term(&[0, 1])])).expect("fit");
     let c2 = compare(&only_a, &cells).expect("numerically nested");
     assert_eq!(c2.df, 3);
+    assert_eq!(c2.added, None, "nested by columns, not by names");
     assert!(matches!(
         compare(&only_a, &only_a),
         Err(ModelError::SameColumnSpace)
@@ -600,6 +604,20 @@ fn compare_nested_models() {
     close(back.f, c.f, 1e-15, "F in either order");
     let c3 = compare(&cells, &only_a).expect("numerically nested, bigger first");
     assert!(c3.swapped && c3.df == 3);
+}
+
+/// The constant is labelled `intercept`, and `constant` when a covariate of the model is
+/// itself called `intercept`, so that no two coefficients share a label.
+#[test]
+fn the_constant_has_a_label_of_its_own() {
+    let labels =
+        |f: &Fit| -> Vec<String> { f.coefficients(0.95).into_iter().map(|c| c.name).collect() };
+    let plain = fit(&reference_spec(DATA, vec![term(&[2])])).expect("fit");
+    assert_eq!(labels(&plain), ["intercept", "x"]);
+    let mut spec = reference_spec(DATA, vec![term(&[2])]);
+    spec.vars[2] = num("intercept", DATA.iter().map(|r| r.2).collect());
+    let clash = fit(&spec).expect("fit");
+    assert_eq!(labels(&clash), ["constant", "intercept"]);
 }
 
 /// A row that is the only one of its level has leverage 1: its Cook's distance and

@@ -10,53 +10,315 @@ qualified statistician. Decisions about health, clinical care or safety follow t
 guidelines and local regulations.";
 
 /// Escapes text for a Markdown paragraph (a sentence, a caption, alternative text): hidden
-/// characters are made visible ([`super::visible`]), and every ASCII punctuation character
-/// that Markdown or HTML could read as syntax gets a backslash, so a column called `<script>`
-/// shows as written and can never form raw HTML, a link or a covey marker.
+/// characters are made visible ([`super::visible`]), and a backslash goes only before what
+/// GitHub-flavoured Markdown would otherwise read as syntax, so that `height_cm`, `(intercept)`
+/// or `Shapiro-Wilk` stay as written in the raw text while a column called `<script>`, `*a*` or
+/// `[x](y)` still shows as written and can never form raw HTML, emphasis, a link or a covey
+/// marker:
+///
+/// - always: `` ` `` (code), `[` and `]` (links, images, footnotes; `@[` a live reference),
+///   `$` (GitHub's mathematics);
+/// - `\` before punctuation, white space or the end (where the text that follows could be
+///   punctuation);
+/// - `*`, `_` and `~` unless their run cannot open or close emphasis or strikethrough: `*` and
+///   `~` between spaces, `_` between spaces or between letters or digits (`height_cm`);
+/// - `<` where an HTML tag, comment or autolink could start (`<b`, `</`, `<!`, `<?`,
+///   `<http:`, `<a@`), but not in `<U+202E>`;
+/// - `&` where a character reference could start (`&amp;`, `&#32;`);
+/// - at the start, what would begin a block if the text began a line: a heading's `#`, a
+///   quote's `>`, a list's `-`, `+` or `1.`, a line of `=` or `-`; and a `^`, which after
+///   the `[` of alternative text would make a footnote reference;
+/// - a space at either end is written as a character reference (`&#32;`), which no reader
+///   trims and which cannot keep a `**` around the text from opening or closing.
 ///
 /// Each context a name can stand in has its own function here ([`escape`], [`cell`],
-/// [`code`], [`code_in_cell`], [`destination`]), so that what each one must escape can be
-/// decided on its own.
+/// [`code`], [`code_in_cell`], [`destination`], [`message`]), so that what each one must
+/// escape can be decided on its own.
+///
+/// ```
+/// use covey::report::markdown::escape;
+/// assert_eq!(escape("height_cm (intercept) Shapiro-Wilk"), "height_cm (intercept) Shapiro-Wilk");
+/// assert_eq!(escape("<b>*x*</b> [y]"), r"\<b>\*x\*\</b> \[y\]");
+/// assert_eq!(escape("<U+202E>evil"), "<U+202E>evil");
+/// ```
 pub fn escape(text: &str) -> String {
-    let text = visible(text);
+    inline(&visible(text), Place::Text, true, true)
+}
+
+/// Escapes text for a cell of a GitHub-flavoured table: as [`escape`], and `|`, the cell
+/// separator, gets its backslash too. A cell is read as inline text only, so nothing at its
+/// start can begin a block.
+pub fn cell(text: &str) -> String {
+    inline(&visible(text), Place::Cell, true, true)
+}
+
+/// A message of covey's own in plain text whose names stand in code spans (`` `name` ``, as
+/// the model's warnings and notes write them) as Markdown: each code span through [`code`],
+/// the words between through [`escape`]. A message whose backticks do not pair up is escaped
+/// as text.
+///
+/// ```
+/// use covey::report::markdown::message;
+/// assert_eq!(message("the test of `a_b` compares *groups*"), r"the test of `a_b` compares \*groups\*");
+/// ```
+pub fn message(text: &str) -> String {
+    let Some(pieces) = code_spans(text) else {
+        return escape(text);
+    };
+    let last = pieces.len().saturating_sub(1);
     let mut out = String::with_capacity(text.len() + 8);
-    for c in text.chars() {
-        match c {
-            '\\' | '`' | '*' | '_' | '{' | '}' | '[' | ']' | '<' | '>' | '(' | ')' | '#' | '+'
-            | '-' | '!' | '|' | '&' | '~' | '"' | '$' => {
-                out.push('\\');
-                out.push(c);
-            }
-            c => out.push(c),
+    for (k, piece) in pieces.iter().enumerate() {
+        match piece {
+            Piece::Words(w) => out.push_str(&inline(&visible(w), Place::Text, k == 0, k == last)),
+            Piece::Code(c) => out.push_str(&code(c)),
         }
     }
     out
 }
 
-/// Escapes text for a cell of a GitHub-flavoured table: as [`escape`], which also gives `|`,
-/// the cell separator, its backslash.
-pub fn cell(text: &str) -> String {
-    escape(text)
+/// A stretch of a plain message: words, or the content of a code span.
+enum Piece<'t> {
+    Words(&'t str),
+    Code(String),
+}
+
+/// The message cut at its code spans by CommonMark's rule (a run of backticks opens one and
+/// the next run of the same length closes it; one space is stripped from both ends of a
+/// content that has one at each and is not all spaces), or `None` when a run is left open.
+fn code_spans(text: &str) -> Option<Vec<Piece<'_>>> {
+    let bytes = text.as_bytes();
+    let run_at = |i: usize| bytes[i..].iter().take_while(|&&b| b == b'`').count();
+    let mut pieces = Vec::new();
+    let (mut i, mut words) = (0, 0);
+    while i < bytes.len() {
+        if bytes[i] != b'`' {
+            i += 1;
+            continue;
+        }
+        let open = run_at(i);
+        let mut j = i + open;
+        let close = loop {
+            if j >= bytes.len() {
+                return None;
+            }
+            if bytes[j] == b'`' {
+                let run = run_at(j);
+                if run == open {
+                    break j;
+                }
+                j += run;
+            } else {
+                j += 1;
+            }
+        };
+        if words < i {
+            pieces.push(Piece::Words(text.get(words..i)?));
+        }
+        let inner = text.get(i + open..close)?;
+        let inner = match inner.strip_prefix(' ').and_then(|s| s.strip_suffix(' ')) {
+            Some(s) if !inner.trim_matches(' ').is_empty() => s,
+            _ => inner,
+        };
+        pieces.push(Piece::Code(inner.to_string()));
+        i = close + open;
+        words = i;
+    }
+    if words < bytes.len() {
+        pieces.push(Piece::Words(text.get(words..)?));
+    }
+    Some(pieces)
+}
+
+/// Where escaped text stands.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Place {
+    /// In a paragraph (and possibly at the start of a line).
+    Text,
+    /// In a table cell.
+    Cell,
+}
+
+/// The escaping of [`escape`] and [`cell`] for text already made visible. `start` and `end`
+/// say whether the text's first and last characters are the first and last of what is
+/// written (so that spaces there would be trimmed, and the start could begin a line); the
+/// characters around the text are taken as unknown, so a delimiter next to them is escaped.
+fn inline(text: &str, place: Place, start: bool, end: bool) -> String {
+    let chars: Vec<char> = text.chars().collect();
+    let n = chars.len();
+    let at = |i: usize| chars.get(i).copied();
+    let mut out = String::with_capacity(text.len() + 8);
+    let mut i = 0;
+    while i < n {
+        let c = chars[i];
+        // A run of one delimiter character, and the characters on either side of it.
+        let run_end = (i..n).find(|&j| chars[j] != c).unwrap_or(n);
+        let before = i.checked_sub(1).and_then(|b| at(b));
+        let after = at(run_end);
+        let escaped = match c {
+            c if c.is_whitespace() && ((start && i == 0) || (end && i + 1 == n)) => {
+                out.push_str(&format!("&#{};", u32::from(c)));
+                i += 1;
+                continue;
+            }
+            '`' | '[' | ']' | '$' => true,
+            // Right after a `[` of the text around (alternative text), `^` would make a
+            // footnote reference.
+            '^' => start && i == 0,
+            '|' => place == Place::Cell,
+            // Before white space too: a space at the end becomes a character reference,
+            // whose `&` a backslash would escape.
+            '\\' => after_is(at(i + 1), |a| a.is_ascii_punctuation() || a.is_whitespace()),
+            '*' | '~' | '_' => {
+                let spaced = before == Some(' ') && after == Some(' ');
+                let inside_word = c == '_'
+                    && before.is_some_and(char::is_alphanumeric)
+                    && after.is_some_and(char::is_alphanumeric);
+                if spaced || inside_word {
+                    out.extend(&chars[i..run_end]);
+                } else {
+                    for d in &chars[i..run_end] {
+                        out.push('\\');
+                        out.push(*d);
+                    }
+                }
+                i = run_end;
+                continue;
+            }
+            '<' => opens_html(&chars[i + 1..]),
+            '&' => opens_reference(&chars[i + 1..]),
+            _ => place == Place::Text && start && i == 0 && begins_block(&chars),
+        };
+        if escaped {
+            out.push('\\');
+        }
+        out.push(c);
+        // An ordered list's `1.` or `1)`: the delimiter after the digits is escaped instead.
+        if place == Place::Text && start && i == 0 && c.is_ascii_digit() {
+            let digits = chars.iter().take_while(|d| d.is_ascii_digit()).count();
+            let mark = at(digits);
+            if digits <= 9
+                && matches!(mark, Some('.' | ')'))
+                && after_is(at(digits + 1), |a| a == ' ')
+            {
+                out.extend(&chars[1..digits]);
+                out.push('\\');
+                out.extend(mark);
+                i = digits + 1;
+                continue;
+            }
+        }
+        i += 1;
+    }
+    out
+}
+
+/// Whether `next`, the character after something, is missing (the text ends there, and what
+/// follows is not known) or satisfies `test`.
+fn after_is(next: Option<char>, test: impl Fn(char) -> bool) -> bool {
+    next.is_none_or(test)
+}
+
+/// Whether the text's first character would begin a block if the text began a line: a
+/// heading (`#` to `######` then a space or the end), a quote (`>`), a list item (`-` or `+`
+/// then a space or the end), or a line of `=` or `-` alone (a heading's underline or a rule).
+fn begins_block(chars: &[char]) -> bool {
+    let Some(&first) = chars.first() else {
+        return false;
+    };
+    let at = |i: usize| chars.get(i).copied();
+    match first {
+        '>' => true,
+        '#' => {
+            let run = chars.iter().take_while(|&&c| c == '#').count();
+            run <= 6 && after_is(at(run), |a| a == ' ')
+        }
+        '-' | '+' | '=' => {
+            let marker = first != '=' && after_is(at(1), |a| a == ' ');
+            let line = first != '+' && chars.iter().all(|&c| c == first || c == ' ');
+            marker || line
+        }
+        _ => false,
+    }
+}
+
+/// Whether `<` followed by `rest` could start raw HTML (a tag, a closing tag, a comment, a
+/// processing instruction, a declaration) or an autolink (`<scheme:...>`, `<local@...>`).
+/// The text that follows the escaped text is unknown, so running out of characters counts
+/// as could.
+fn opens_html(rest: &[char]) -> bool {
+    let Some(&first) = rest.first() else {
+        return true;
+    };
+    if matches!(first, '/' | '!' | '?') {
+        return true;
+    }
+    // An e-mail autolink: local part, then `@`.
+    let local = rest
+        .iter()
+        .take_while(|c| c.is_ascii_alphanumeric() || ".!#$%&'*+/=?^_`{|}~-".contains(**c))
+        .count();
+    if local > 0 && matches!(rest.get(local), Some('@') | None) {
+        return true;
+    }
+    if !first.is_ascii_alphabetic() {
+        return false;
+    }
+    // A tag: its name, then a space, `>`, `/` or the end.
+    let name = rest
+        .iter()
+        .take_while(|c| c.is_ascii_alphanumeric() || **c == '-')
+        .count();
+    if matches!(rest.get(name), None | Some(' ' | '>' | '/')) {
+        return true;
+    }
+    // An autolink's scheme: 2 to 32 letters, digits, `+`, `.` or `-`, then `:`.
+    let scheme = rest
+        .iter()
+        .take_while(|c| c.is_ascii_alphanumeric() || matches!(c, '+' | '.' | '-'))
+        .count();
+    (2..=32).contains(&scheme) && matches!(rest.get(scheme), Some(':') | None)
+}
+
+/// Whether `&` followed by `rest` could start a character reference (`&name;`, `&#123;`,
+/// `&#x1F;`): letters, digits or `#` up to a `;` or the end of the text.
+fn opens_reference(rest: &[char]) -> bool {
+    let body = rest
+        .iter()
+        .take_while(|c| c.is_ascii_alphanumeric() || **c == '#')
+        .count();
+    body > 0 && matches!(rest.get(body), Some(';') | None)
 }
 
 /// Plain text from covey's own escaped Markdown, for the terminal: drops
-/// the backslash before escaped punctuation.
+/// the backslash before escaped punctuation and writes a space kept as a character
+/// reference (`&#32;`) as the character.
 pub fn plain(markdown: &str) -> String {
     let mut out = String::with_capacity(markdown.len());
-    let mut chars = markdown.chars().peekable();
-    while let Some(c) = chars.next() {
-        if c == '\\' {
-            if let Some(&n) = chars.peek() {
-                if n.is_ascii_punctuation() {
-                    out.push(n);
-                    chars.next();
-                    continue;
-                }
-            }
+    let mut rest = markdown;
+    while let Some(c) = rest.chars().next() {
+        let next = rest[c.len_utf8()..].chars().next();
+        if c == '\\' && next.is_some_and(|n| n.is_ascii_punctuation()) {
+            out.extend(next);
+            rest = &rest[1 + next.map_or(0, char::len_utf8)..];
+        } else if let Some((kept, after)) = kept_space(rest) {
+            out.push(kept);
+            rest = after;
+        } else {
+            out.push(c);
+            rest = &rest[c.len_utf8()..];
         }
-        out.push(c);
     }
     out
+}
+
+/// A decimal character reference for a white-space character at the start of `text` (as
+/// [`inline`] writes one), and the text after it.
+fn kept_space(text: &str) -> Option<(char, &str)> {
+    let body = text.strip_prefix("&#")?;
+    let digits = body.bytes().take_while(u8::is_ascii_digit).count();
+    let after = body.get(digits..)?.strip_prefix(';')?;
+    let c = char::from_u32(body.get(..digits)?.parse().ok()?)?;
+    c.is_whitespace().then_some((c, after))
 }
 
 /// Inline code for a name the user wrote (a column, a level, a file) in a paragraph: hidden
@@ -219,7 +481,7 @@ pub fn block_body<'a>(items: impl IntoIterator<Item = &'a Item>) -> String {
                 let fence = "`".repeat(longest_run(snippet, '`').max(2) + 1);
                 out.push_str(&format!(
                     "**Error:** {}\n\n{fence}text\n{}{}{fence}\n",
-                    escape(message),
+                    self::message(message),
                     snippet,
                     if snippet.ends_with('\n') { "" } else { "\n" }
                 ));
@@ -273,9 +535,79 @@ mod tests {
 
     #[test]
     fn escaping_defuses_markup_and_markers() {
-        assert_eq!(escape("<script>"), "\\<script\\>");
-        assert_eq!(escape("a|b"), "a\\|b");
-        assert!(!escape("<!-- covey:output -->").contains("<!--"));
+        assert_eq!(escape("<script>"), "\\<script>");
+        assert_eq!(cell("a|b"), "a\\|b");
+        assert_eq!(escape("a|b"), "a|b");
+        assert_eq!(escape("<!-- covey:output -->"), "\\<!-- covey:output -->");
+    }
+
+    /// Only what Markdown would misread gets a backslash (the property test in tests/names.rs
+    /// reads every case back with comrak).
+    #[test]
+    fn escaping_leaves_ordinary_punctuation_alone() {
+        for same in [
+            "height_cm",
+            "(intercept)",
+            "Shapiro-Wilk",
+            "maize+soy",
+            "a * b",
+            "x_1_2",
+            "R&D lab",
+            "back\\slash",
+            "<U+202E>evil",
+            "5 < 6 > 4",
+            "1.5",
+            "\"quoted\" & 'single'",
+        ] {
+            assert_eq!(escape(same), same, "{same}");
+        }
+        for (raw, escaped) in [
+            ("*a*", "\\*a\\*"),
+            ("_a_", "\\_a\\_"),
+            ("a_ b", "a\\_ b"),
+            ("~~x~~", "\\~\\~x\\~\\~"),
+            ("`x`", "\\`x\\`"),
+            ("[x](y)", "\\[x\\](y)"),
+            ("@[means m a mean]", "@\\[means m a mean\\]"),
+            ("<b>", "\\<b>"),
+            ("</b", "\\</b"),
+            ("<http://x>", "\\<http://x>"),
+            ("<me@x.org>", "\\<me@x.org>"),
+            ("&amp;", "\\&amp;"),
+            ("&#35;", "\\&#35;"),
+            ("R&D", "R\\&D"),
+            ("a\\*", "a\\\\\\*"),
+            ("end\\", "end\\\\"),
+            ("$5", "\\$5"),
+            ("# heading", "\\# heading"),
+            ("#1 trial", "#1 trial"),
+            ("> quote", "\\> quote"),
+            ("- item", "\\- item"),
+            ("-1", "-1"),
+            ("+ item", "\\+ item"),
+            ("1. item", "1\\. item"),
+            ("2021) item", "2021\\) item"),
+            ("===", "\\==="),
+            (" a ", "&#32;a&#32;"),
+        ] {
+            assert_eq!(escape(raw), escaped, "{raw}");
+        }
+        // In a cell a line cannot begin, and `|` ends the cell.
+        assert_eq!(cell("# 1 | 2"), "# 1 \\| 2");
+        assert_eq!(plain(&escape(" *a* ")), " *a* ");
+    }
+
+    #[test]
+    fn messages_keep_their_code_spans() {
+        assert_eq!(
+            message("term `grp by x` lacks `x_1`; see (1)"),
+            "term `grp by x` lacks `x_1`; see (1)"
+        );
+        assert_eq!(
+            message("level ``a`b`` is *new*"),
+            "level ``a`b`` is \\*new\\*"
+        );
+        assert_eq!(message("an open ` tick"), "an open \\` tick");
     }
 
     #[test]

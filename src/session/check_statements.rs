@@ -368,12 +368,7 @@ fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cel
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
     let not_tested = |why: String| not_tested(&check, why);
-    let (codes, levels) = factor_parts(spec, f);
-    let values: &[f64] = match spec.vars.get(x) {
-        Some(Var::Numeric { values, .. }) => values,
-        _ => &[],
-    };
-    match one_way(values, codes, levels.len(), used) {
+    match one_way_in(spec, f, x, used) {
         Ok((fv, df1, df2)) => {
             let p = model::dist::f_upper_p(fv, df1, df2);
             let verdict = if p < ALPHA {
@@ -397,6 +392,23 @@ fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cel
         )),
         Err(e) => not_tested(e.to_string()),
     }
+}
+
+/// The one-way analysis of variance of covariate `x` of a model on its factor `f`, over the
+/// model's rows `used`: (F, numerator df, denominator df). `check` and `require balance ... in
+/// M` both test balance this way, so that the two agree.
+pub(super) fn one_way_in(
+    spec: &ModelSpec,
+    f: usize,
+    x: usize,
+    used: &UsedRows,
+) -> Result<(f64, usize, usize), ModelError> {
+    let (codes, levels) = factor_parts(spec, f);
+    let values: &[f64] = match spec.vars.get(x) {
+        Some(Var::Numeric { values, .. }) => values,
+        _ => &[],
+    };
+    one_way(values, codes, levels.len(), used)
 }
 
 /// The one-way analysis of variance of `values` on the factor `codes` over the rows `used`:

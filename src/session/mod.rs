@@ -9,7 +9,7 @@ pub(crate) mod data_statements;
 pub(crate) mod model_statements;
 mod plan_statements;
 pub(crate) mod plot_statements;
-mod procedure_statements;
+pub(crate) mod procedure_statements;
 
 use std::cell::RefCell;
 use std::sync::Arc;
@@ -136,9 +136,22 @@ impl<'w> Session<'w> {
                 other => {
                     let mut items = self.model_table(other)?;
                     let subject = other.model_name().to_string();
+                    let rows = self
+                        .models
+                        .iter()
+                        .find(|m| m.name == subject)
+                        .map(|m| m.fit.used_rows().len());
                     for it in &mut items {
                         if let Item::Table(t) = it {
                             t.subject = Some(subject.clone());
+                            // Every table of tests and limits says on how many rows they
+                            // rest; `fit` and `compare` have a column for it.
+                            if let (Some(n), false) = (rows, matches!(t.kind, "fit" | "compare")) {
+                                t.notes.push(format!(
+                                    "n = {n}: the rows model {} is fitted to.",
+                                    crate::report::markdown::code(&subject)
+                                ));
+                            }
                         }
                     }
                     Ok(items)

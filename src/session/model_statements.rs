@@ -284,38 +284,52 @@ impl Session<'_> {
                 let mut t = Table::new(
                     "compare",
                     format!(
-                        "Comparison of nested models {} and {} (extra sum of squares F test)",
-                        code(&a.name),
-                        code(&b.name)
+                        "What model {} adds to model {} (nested models, F test of the extra sum of squares)",
+                        code(&b.name),
+                        code(&a.name)
                     ),
                     vec![
-                        Col::new("model", "model", Format::Text),
-                        Col::new("df_residual", "residual df", Format::Count),
-                        Col::new("rss", "residual SS", Format::Digits(4)),
-                        Col::new("df", "df", Format::Count),
-                        Col::new("ss", "extra SS", Format::Digits(4)),
+                        Col::new("smaller", "smaller", Format::Text),
+                        Col::new("larger", "larger", Format::Text),
+                        Col::new("terms_added", "terms added", Format::Text),
+                        Col::new("n", "n", Format::Count),
+                        Col::new("rss_smaller", "RSS smaller", Format::Digits(4)),
+                        Col::new("rss_larger", "RSS larger", Format::Digits(4)),
+                        Col::new("extra_ss", "extra SS", Format::Digits(4)),
                         Col::new("f", "F", Format::Statistic),
+                        Col::new("df1", "df1", Format::Count),
+                        Col::new("df2", "df2", Format::Count),
                         Col::new("p", "p", Format::P),
                     ],
                 );
                 t.push(vec![
                     a.name.as_str().into(),
-                    c.small_df_residual.into(),
-                    c.small_rss.into(),
-                    Cell::Missing,
-                    Cell::Missing,
-                    Cell::Missing,
-                    Cell::Missing,
-                ]);
-                t.push(vec![
                     b.name.as_str().into(),
-                    c.big_df_residual.into(),
+                    match &c.added {
+                        Some(terms) => terms.join(" + ").into(),
+                        None => Cell::Missing,
+                    },
+                    c.n.into(),
+                    c.small_rss.into(),
                     c.big_rss.into(),
-                    c.df.into(),
                     c.ss.into(),
                     c.f.into(),
+                    c.df.into(),
+                    c.big_df_residual.into(),
                     c.p.into(),
                 ]);
+                t.notes.push(
+                    "RSS is the residual sum of squares of each model; extra SS is what the larger model takes off it, and F = (extra SS / df1) / (RSS larger / df2), with df1 the number of columns the larger model adds and df2 its residual degrees of freedom.".into(),
+                );
+                if c.added.is_none() {
+                    t.notes.push(format!(
+                        "The terms of {} are not all among those of {} by name; the columns of {} lie in the space of the columns of {}, which makes the two nested.",
+                        code(&a.name),
+                        code(&b.name),
+                        code(&a.name),
+                        code(&b.name)
+                    ));
+                }
                 Ok(vec![Item::Table(t)])
             }
             TableRequest::Means {
@@ -355,7 +369,7 @@ impl Session<'_> {
                         not_estimable.push(format!(
                             "{}: {}",
                             code(&r.level),
-                            crate::report::markdown::escape(why)
+                            crate::report::markdown::message(why)
                         ));
                     }
                     t.push(vec![
@@ -433,7 +447,7 @@ impl Session<'_> {
                             "{} - {}: {}",
                             code(&r.first),
                             code(&r.second),
-                            crate::report::markdown::escape(why)
+                            crate::report::markdown::message(why)
                         ));
                     }
                     t.push(vec![
@@ -704,7 +718,7 @@ fn sentence(text: &str) -> String {
     if !out.ends_with('.') {
         out.push('.');
     }
-    crate::report::markdown::escape(&out)
+    crate::report::markdown::message(&out)
 }
 
 pub(crate) fn confidence(level: Option<&Spanned<f64>>) -> Result<f64, Diagnostic> {

@@ -61,10 +61,11 @@ impl Session<'_> {
                 (
                     s.equality_p >= alpha,
                     format!(
-                        "equal slopes of {} across {} in model {}: F({}, {}) = {:.2}, p {} (alpha {alpha})",
+                        "equal slopes of {} across {} in model {} (on the {} rows it is fitted to): F({}, {}) = {:.2}, p {} (alpha {alpha})",
                         code(&s.covariate),
                         code(&factor.value),
                         code(&m.name),
+                        m.fit.used_rows().len(),
                         s.df1,
                         s.df2,
                         s.equality_f,
@@ -84,7 +85,7 @@ impl Session<'_> {
                 (
                     sw.p >= alpha,
                     format!(
-                        "normal residuals in model {}: Shapiro-Wilk W = {:.3}, p {} (alpha {alpha})",
+                        "normal residuals in model {} (its {n} rows): Shapiro-Wilk W = {:.3}, p {} (alpha {alpha})",
                         code(&m.name),
                         sw.w,
                         p_phrase(Some(sw.p))
@@ -124,6 +125,44 @@ impl Session<'_> {
             Gate::Balance {
                 covariate,
                 factor,
+                model: Some(model),
+                alpha,
+            } => {
+                // On the model's rows, by the same computation as the balance rows of `check`.
+                let alpha = alpha_of(alpha)?;
+                let m = self.model_entry(model)?;
+                let spec = m.fit.spec();
+                let var = |name: &str| spec.vars.iter().position(|v| v.name() == name);
+                let f = match var(&factor.value).and_then(|i| spec.vars.get(i).map(|v| (i, v))) {
+                    Some((i, Var::Factor { .. })) => i,
+                    _ => return Err(balance_not_in_model(factor, &m.name, true)),
+                };
+                let x = match var(&covariate.value).and_then(|i| spec.vars.get(i).map(|v| (i, v))) {
+                    Some((i, Var::Numeric { .. })) => i,
+                    _ => return Err(balance_not_in_model(covariate, &m.name, false)),
+                };
+                let used = m.fit.used_rows();
+                let (fv, df1, df2) = super::check_statements::one_way_in(spec, f, x, used)
+                    .map_err(|e| {
+                        Diagnostic::new(covariate.span, e.to_string()).label("cannot test this")
+                    })?;
+                let p = model::dist::f_upper_p(fv, df1, df2);
+                (
+                    p >= alpha,
+                    format!(
+                        "balance of {} across {} (one-way ANOVA on the {} rows model {} is fitted to): F({df1}, {df2}) = {fv:.2}, p {} (alpha {alpha})",
+                        code(&covariate.value),
+                        code(&factor.value),
+                        used.len(),
+                        code(&m.name),
+                        p_phrase(Some(p))
+                    ),
+                )
+            }
+            Gate::Balance {
+                covariate,
+                factor,
+                model: None,
                 alpha,
             } => {
                 let alpha = alpha_of(alpha)?;
@@ -165,9 +204,10 @@ impl Session<'_> {
                 (
                     p >= alpha,
                     format!(
-                        "balance of {} across {} (one-way ANOVA): F({}, {}) = {:.2}, p {} (alpha {alpha})",
+                        "balance of {} across {} (one-way ANOVA on the {} rows of the data set with both values): F({}, {}) = {:.2}, p {} (alpha {alpha})",
                         code(&covariate.value),
                         code(&factor.value),
+                        fit.used_rows().len(),
                         row.df,
                         a.residual_df,
                         row.f.unwrap_or(f64::NAN),
@@ -283,6 +323,29 @@ impl Session<'_> {
             }
         }
     }
+}
+
+/// The error of `require balance X by F in M` when F is not a factor (`factor`) or X not a
+/// numeric covariate of model M. The language server gives the same.
+pub(crate) fn balance_not_in_model(
+    name: &Spanned<String>,
+    model: &str,
+    factor: bool,
+) -> Diagnostic {
+    let what = if factor {
+        "a factor"
+    } else {
+        "a numeric covariate"
+    };
+    Diagnostic::new(
+        name.span,
+        format!("`{}` is not {what} of model `{model}`", name.value),
+    )
+    .label("not in the model")
+    .help(format!(
+        "name {what} of model `{model}`, or leave out `in {model}` to test on the rows of the \
+         current data set"
+    ))
 }
 
 /// "= .023" or "< .001", as a p-value stands in a sentence.

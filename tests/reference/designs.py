@@ -123,7 +123,7 @@ def term_columns(term, prior, data, factors, coding):
 def design(terms, data, factors, coding="reference"):
     """Full design matrix with intercept; returns names, X, and per-term column slices."""
     n = len(data["__n__"])
-    names = ["(intercept)"]
+    names = ["intercept"]
     blocks = [np.ones((n, 1))]
     slices = {}
     prior = {frozenset()}

@@ -57,7 +57,7 @@ def columns(data, model, scheme):
     part is ("num", var, power) | ("ind", var, level) | ("eff", var, level, last)."""
     cols = []
     if model["intercept"]:
-        cols.append((None, "(intercept)", []))
+        cols.append((None, "intercept", []))
     for t, term in enumerate(model["terms"]):
         choices = []
         for v, p in term:

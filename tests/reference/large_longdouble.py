@@ -51,5 +51,5 @@ c=np.zeros(p,dtype=L)
 for i in range(p-1,-1,-1):
     c[i]=(b[i]-(A[i,i+1:]*c[i+1:]).sum())/A[i,i]
 c[0]-= (c[1:]*mu[1:]).sum()
-names=["(intercept)","g = B","g = C","g = D","x","g = B by x","g = C by x","g = D by x"]
+names=["intercept","g = B","g = C","g = D","x","g = B by x","g = C by x","g = D by x"]
 for nme,v in zip(names,c): print(nme, repr(float(v)), np.format_float_scientific(v, precision=20))

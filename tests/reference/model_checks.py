@@ -61,7 +61,7 @@ def rss(cols):
 
 
 one = np.ones(N)
-# Treatment coding, column order as in the engine: (intercept), a, b, a by b (a fastest), x.
+# Treatment coding, column order as in the engine: intercept, a, b, a by b (a fastest), x.
 ta = [ind(A, "a2"), ind(A, "a3")]
 tb = [ind(B, "b2")]
 tab = [ind(A, "a2") * ind(B, "b2"), ind(A, "a3") * ind(B, "b2")]

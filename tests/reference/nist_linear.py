@@ -340,7 +340,7 @@ def write(name, s, xs, ys):
         f.write(",".join(cols + ["y"]) + "\n")
         for r, yv in zip(xs, ys):
             f.write(",".join([json_number(v) for v in r] + [json_number(yv)]) + "\n")
-    names = (["(intercept)"] if s.get("intercept", True) else []) + terms(s)
+    names = (["intercept"] if s.get("intercept", True) else []) + terms(s)
     model = "y on " + " + ".join(terms(s)) + ("" if s.get("intercept", True) else " without intercept")
     body = [
         '  "source": %s' % json.dumps("NIST Statistical Reference Datasets, %s (certified values), checked by exact rational least squares in nist_linear.py" % name),
