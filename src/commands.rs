@@ -473,12 +473,6 @@ pub(crate) fn prepare_documents(
         } else {
             Role::Rendering
         };
-        plan.output(
-            targets.rendering.clone(),
-            run.rendered.as_bytes(),
-            role,
-            doc,
-        );
         if let Some(html) = &targets.html {
             let page = crate::report::html::page(&display_name(doc), &run.rendered, &run.figures);
             plan.output(html.clone(), page, Role::Html, doc);
@@ -486,15 +480,20 @@ pub(crate) fn prepare_documents(
         if let Some(j) = &opts.json {
             plan.output(j.clone(), json::to_text(&run.json()), Role::Json, doc);
         }
+        let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
+        let failed = run.failed();
+        // The rendering and the figures move into the plan: a long document's outputs are
+        // held once, not copied.
+        plan.output(targets.rendering.clone(), run.rendered, role, doc);
         let figures = run
             .figures
-            .iter()
-            .map(|(rel, svg)| (targets.folder.join(rel), svg.as_bytes().to_vec()))
+            .into_iter()
+            .map(|(rel, svg)| (targets.folder.join(rel), svg.into_bytes()))
             .collect();
         plan.figures(targets.figures.clone(), doc, figures);
         done.push(format!(
             "{}: {} -> {}",
-            if run.failed() {
+            if failed {
                 "rendered with errors"
             } else {
                 "rendered"
@@ -502,7 +501,6 @@ pub(crate) fn prepare_documents(
             doc.display(),
             targets.rendering.display()
         ));
-        let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
         reads.push((doc.clone(), seen, in_place));
     }
     let batch = match plan.check() {
