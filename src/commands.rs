@@ -473,18 +473,26 @@ pub(crate) fn prepare_documents(
         } else {
             Role::Rendering
         };
-        if let Some(html) = &targets.html {
+        // The rendering and the figures move into the plan: a long document's outputs are
+        // held once, not copied. The rendering is planned first, so that a path it shares with
+        // another output is reported as the rendering's.
+        let page = targets.html.as_ref().map(|html| {
             let page = crate::report::html::page(&display_name(doc), &run.rendered, &run.figures);
-            plan.output(html.clone(), page, Role::Html, doc);
-        }
-        if let Some(j) = &opts.json {
-            plan.output(j.clone(), json::to_text(&run.json()), Role::Json, doc);
-        }
+            (html.clone(), page)
+        });
+        let exported = opts
+            .json
+            .as_ref()
+            .map(|j| (j.clone(), json::to_text(&run.json())));
         let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
         let failed = run.failed();
-        // The rendering and the figures move into the plan: a long document's outputs are
-        // held once, not copied.
         plan.output(targets.rendering.clone(), run.rendered, role, doc);
+        if let Some((path, page)) = page {
+            plan.output(path, page, Role::Html, doc);
+        }
+        if let Some((path, text)) = exported {
+            plan.output(path, text, Role::Json, doc);
+        }
         let figures = run
             .figures
             .into_iter()

@@ -312,6 +312,13 @@ fn terminal_messages_show_hidden_characters_in_names() {
         .unwrap_or_else(|e| panic!("{e}"));
     let (code, stderr) = covey(&dir, &["render", name]);
     assert_eq!(code, 0, "{stderr}");
-    assert!(stderr.contains("trial<U+202E>dm.<U+001B>[2J.md"), "{stderr}");
-    assert!(hidden_left(&stderr).is_empty(), "{:?}", hidden_left(&stderr));
+    assert!(
+        stderr.contains("trial<U+202E>dm.<U+001B>[2J.md"),
+        "{stderr}"
+    );
+    assert!(
+        hidden_left(&stderr).is_empty(),
+        "{:?}",
+        hidden_left(&stderr)
+    );
 }
