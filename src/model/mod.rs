@@ -127,6 +127,11 @@ pub struct ModelSpec {
     /// large responses such as 1000000000000.4 keep the digits that differ between rows.
     /// In a model without an intercept the offset is folded into the values before fitting.
     pub response_offset: f64,
+    /// Case weights (a [`Var::Numeric`], aligned with the response): weighted least squares,
+    /// each row's squared residual counted `w` times. A row of weight 0 is left out of the
+    /// fit (and of the residual df), a missing weight leaves its row out like any missing
+    /// value, and a negative or infinite weight is an error.
+    pub weights: Option<Var>,
 }
 
 /// Which kind of sums of squares an analysis-of-variance table holds.
@@ -151,8 +156,44 @@ pub enum Adjust {
     Bonferroni,
     /// Sidak.
     Sidak,
+    /// Dunnett's many-to-one comparisons (only against a control).
+    Dunnett,
     /// No adjustment.
     None,
+}
+
+/// The side of a comparison against a control.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Side {
+    /// Two-sided.
+    Both,
+    /// One-sided: is each level above the control?
+    Above,
+    /// One-sided: is each level below the control?
+    Below,
+}
+
+/// An adjusted mean of one cell of two factors.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CellMean {
+    /// Level of the first factor.
+    pub first: String,
+    /// Level of the second factor.
+    pub second: String,
+    /// Fitted rows in the cell.
+    pub rows: usize,
+    /// The mean (NaN when not estimable) with SE, df and limits.
+    pub mean: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+    /// Why the mean is not estimable, when it is not.
+    pub not_estimable: Option<String>,
 }
 
 /// Overall statistics of a fit.
@@ -162,6 +203,8 @@ pub struct FitSummary {
     pub n: usize,
     /// Rows dropped for missing values.
     pub dropped_missing: usize,
+    /// Rows left out because their weight is 0.
+    pub dropped_zero_weight: usize,
     /// Model degrees of freedom (estimated coefficients, less the intercept).
     pub df_model: usize,
     /// Residual degrees of freedom.
@@ -318,6 +361,10 @@ pub struct AdjustedMean {
 /// A pairwise comparison of adjusted means (first minus second).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Pair {
+    /// The level of the `within` factor the comparison is made in, if any.
+    pub within: Option<String>,
+    /// The error estimate of a p computed by numerical integration (Dunnett), else 0.
+    pub p_error: f64,
     /// First level.
     pub first: String,
     /// Second level.
@@ -645,6 +692,32 @@ pub enum ModelError {
     NoRows,
     /// The response is constant over the fitted rows.
     ResponseZeroVariance,
+    /// A case weight is negative or infinite.
+    BadWeight {
+        /// The weights' column.
+        variable: String,
+        /// Line in the data file.
+        row: usize,
+        /// The weight.
+        value: f64,
+    },
+    /// Robust (HC3) standard errors are undefined: a row has leverage 1.
+    RobustLeverageOne {
+        /// Line in the data file of the first such row.
+        row: usize,
+    },
+    /// A comparison against a control names a level the factor does not have (with rows).
+    UnknownControl {
+        /// The factor.
+        factor: String,
+        /// The level given.
+        level: String,
+    },
+    /// The factor `within` is the factor compared.
+    WithinSameFactor {
+        /// The factor.
+        factor: String,
+    },
     /// A covariate is constant over the fitted rows.
     CovariateZeroVariance {
         /// First term using it.
@@ -769,6 +842,10 @@ impl fmt::Display for ModelError {
             E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
             E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
             E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
+            E::BadWeight { variable, row, value } => write!(f, "the weight `{variable}` is {value} at line {row}; weights must be 0 or more (0 leaves a row out)"),
+            E::RobustLeverageOne { row } => write!(f, "robust (HC3) standard errors are undefined because the row at line {row} has leverage 1 (it alone determines a coefficient, such as the only row of a level); remove that row or leave out `robust`"),
+            E::UnknownControl { factor, level } => write!(f, "`{level}` is not a level of `{factor}` with rows in the fitted data"),
+            E::WithinSameFactor { factor } => write!(f, "`within` names the factor compared (`{factor}`); name another factor of the model"),
             E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
             E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
             E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
