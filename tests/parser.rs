@@ -232,7 +232,9 @@ fn every_table_form() {
             r => panic!("{text}: {r:?}"),
         }
     }
-    match t("table differences m for ration within sex versus barley above correction dunnett robust") {
+    match t(
+        "table differences m for ration within sex versus barley above correction dunnett robust",
+    ) {
         T::Differences {
             within: Some(w),
             versus: Some(v),
@@ -272,7 +274,11 @@ fn every_table_form() {
     }
     assert!(matches!(
         t("table coefficients m robust level 0.9"),
-        T::Coefficients { robust: true, level: Some(_), .. }
+        T::Coefficients {
+            robust: true,
+            level: Some(_),
+            ..
+        }
     ));
     assert!(matches!(
         t("table anova m robust type 3"),
@@ -320,11 +326,7 @@ fn old_words_name_the_new_ones() {
     let e = error("table pairs m for ration");
     assert!(e.message.contains("table differences"), "{}", e.message);
     let e = error("table differences m for ration adjust holm");
-    assert!(
-        e.message.contains("`correction holm`"),
-        "{}",
-        e.message
-    );
+    assert!(e.message.contains("`correction holm`"), "{}", e.message);
     let e = error("report m pairs ration between a and b");
     assert!(e.message.contains("differences"), "{}", e.message);
     let e = error("table differences m for ration level 0.9 level 0.8");
