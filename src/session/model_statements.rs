@@ -432,7 +432,7 @@ impl Session<'_> {
                         r.upper.into(),
                     ]);
                 }
-                if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str()]) {
+                if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str()], "these means") {
                     t.notes.push(n);
                 }
                 if !not_estimable.is_empty() {
@@ -623,7 +623,7 @@ impl Session<'_> {
                 if let Some(w) = within {
                     held.push(w.value.as_str());
                 }
-                if let Some(n) = equal_weight_note(&m.fit, &held) {
+                if let Some(n) = equal_weight_note(&m.fit, &held, "the means compared") {
                     t.notes.push(n);
                 }
                 if let Some(w) = within {
@@ -634,10 +634,24 @@ impl Session<'_> {
                     ));
                 }
                 if method == Correction::Dunnett {
+                    let fmt = |x: f64| {
+                        crate::report::number::format_column(&[Some(x)], Format::Digits(1)).join("")
+                    };
+                    let accuracy = if worst_error <= DUNNETT_P_BOUND {
+                        format!(
+                            "every p is within {} of its exact value (largest error estimate here: {})",
+                            fmt(DUNNETT_P_BOUND),
+                            fmt(worst_error)
+                        )
+                    } else {
+                        format!(
+                            "the integration stopped at its largest rule with an error estimate of {} on some p, above the {} it aims at",
+                            fmt(worst_error),
+                            fmt(DUNNETT_P_BOUND)
+                        )
+                    };
                     t.notes.push(format!(
-                        "Dunnett's p and limits come from the joint (multivariate t) distribution of the comparisons' t statistics, with the correlations this design gives them, integrated by Genz and Bretz's randomised lattice method with a fixed seed; every p is within {} of its exact value (largest error estimate here: {}).",
-                        crate::report::number::format_column(&[Some(DUNNETT_P_BOUND)], Format::Digits(1)).join(""),
-                        crate::report::number::format_column(&[Some(worst_error)], Format::Digits(1)).join("")
+                        "Dunnett's p and limits come from the joint (multivariate t) distribution of the comparisons' t statistics, with the correlations this design gives them, integrated by Genz and Bretz's randomised lattice method with a fixed seed; {accuracy}."
                     ));
                 }
                 if unbounded {
@@ -898,7 +912,7 @@ fn robust_words(robust: bool) -> &'static str {
 
 /// The note that names the factors whose levels count equally in adjusted means, when the
 /// model has factors besides those held at a level (`held`).
-fn equal_weight_note(fit: &model::Fit, held: &[&str]) -> Option<String> {
+fn equal_weight_note(fit: &model::Fit, held: &[&str], what: &str) -> Option<String> {
     let others: Vec<String> = fit
         .other_factors("")
         .into_iter()
@@ -907,11 +921,11 @@ fn equal_weight_note(fit: &model::Fit, held: &[&str]) -> Option<String> {
     match others.as_slice() {
         [] => None,
         [one] => Some(format!(
-            "Each level of {} counts equally in these means, whatever its number of rows.",
+            "Each level of {} counts equally in {what}, whatever its number of rows.",
             code(one)
         )),
         many => Some(format!(
-            "Each level of {} counts equally in these means, whatever its number of rows.",
+            "Each level of {} counts equally in {what}, whatever its number of rows.",
             many.iter()
                 .map(|f| code(f))
                 .collect::<Vec<_>>()
@@ -984,7 +998,11 @@ fn cell_means_table(
             r.upper.into(),
         ]);
     }
-    if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str(), by.value.as_str()]) {
+    if let Some(n) = equal_weight_note(
+        &m.fit,
+        &[factor.value.as_str(), by.value.as_str()],
+        "these means",
+    ) {
         t.notes.push(n);
     }
     if !empty.is_empty() {
