@@ -1007,9 +1007,8 @@ fn cell_means_table(
     }
     if !empty.is_empty() {
         t.notes.push(format!(
-            "No rows in {}: {} mean{} there come{} from the model alone, which assumes the effects of the two factors add up.",
+            "No rows in {}: the mean{} there come{} from the model alone, which assumes the effects of the two factors add up.",
             empty.join(", "),
-            if empty.len() == 1 { "the" } else { "the" },
             if empty.len() == 1 { "" } else { "s" },
             if empty.len() == 1 { "s" } else { "" }
         ));
