@@ -66,8 +66,15 @@ fn nums(v: &Value) -> Vec<f64> {
     v.as_array().into_iter().flatten().map(num).collect()
 }
 
+thread_local! {
+    /// The largest relative (close) and absolute (near) differences seen by this test's
+    /// thread, printed by `report` (`cargo test --release --test comparisons -- --nocapture`).
+    static WORST: std::cell::Cell<(f64, f64)> = const { std::cell::Cell::new((0.0, 0.0)) };
+}
+
 fn close(what: &str, got: f64, want: f64, rel: f64) {
     let err = (got - want).abs() / want.abs().max(1e-300);
+    WORST.with(|w| w.set((w.get().0.max(err), w.get().1)));
     assert!(
         err <= rel,
         "{what}: covey {got}, reference {want} (relative {err:e})"
@@ -75,11 +82,18 @@ fn close(what: &str, got: f64, want: f64, rel: f64) {
 }
 
 fn near(what: &str, got: f64, want: f64, abs: f64) {
+    let err = (got - want).abs();
+    WORST.with(|w| w.set((w.get().0, w.get().1.max(err))));
     assert!(
-        (got - want).abs() <= abs,
-        "{what}: covey {got}, reference {want} (difference {:e})",
-        (got - want).abs()
+        err <= abs,
+        "{what}: covey {got}, reference {want} (difference {err:e})"
     );
+}
+
+/// Prints the worst differences of the test that calls it.
+fn report(test: &str) {
+    let (rel, abs) = WORST.with(|w| w.get());
+    eprintln!("{test}: worst relative difference {rel:.1e}, worst absolute difference {abs:.1e}");
 }
 
 #[test]
@@ -92,6 +106,7 @@ fn dunnett_one_way_against_scipy_and_the_exact_integral() {
          table differences m for group versus ctrl above",
     );
     let tables = outputs(&json, "differences");
+    let mut worst_exact: f64 = 0.0;
     for (table, side) in tables.iter().zip(["both", "above"]) {
         let want = &r["oneway"][side];
         let crit = num(&want["exact_critical"]);
@@ -109,6 +124,7 @@ fn dunnett_one_way_against_scipy_and_the_exact_integral() {
                 num(&want["se"][i]),
                 1e-12,
             );
+            worst_exact = worst_exact.max((num(&row["p"]) - num(&want["exact_p"][i])).abs());
             near(
                 &format!("{what} p (exact)"),
                 num(&row["p"]),
@@ -155,6 +171,8 @@ fn dunnett_one_way_against_scipy_and_the_exact_integral() {
             }
         }
     }
+    eprintln!("one-way Dunnett p against the exact integral: worst difference {worst_exact:.1e}");
+    report("dunnett_one_way_against_scipy_and_the_exact_integral");
 }
 
 #[test]
@@ -185,6 +203,7 @@ fn dunnett_ancova_against_scipy_multivariate_t() {
             }
         }
     }
+    report("dunnett_ancova_against_scipy_multivariate_t");
 }
 
 #[test]
@@ -218,6 +237,7 @@ fn dunnett_critical_values_match_the_published_table() {
             2e-4,
         );
     }
+    report("dunnett_critical_values_match_the_published_table");
 }
 
 /// The statements of the HC3 checks: every robust table the reference has a value for.
@@ -274,11 +294,13 @@ fn hc3_against_numpy_on_random_unbalanced_designs() {
     for (i, want) in r["hc3"].as_array().into_iter().flatten().enumerate() {
         check_hc3(&format!("hc3-{i}.csv"), want, false);
     }
+    report("hc3_against_numpy_on_random_unbalanced_designs");
 }
 
 #[test]
 fn hc3_with_a_covariate_near_a_million_against_exact_arithmetic() {
     check_hc3("hc3-offset.csv", &reference()["hc3_offset"], true);
+    report("hc3_with_a_covariate_near_a_million_against_exact_arithmetic");
 }
 
 const WLS_BODY: &str = "factor g levels g1, g2, g3\n\
@@ -356,6 +378,7 @@ fn weighted_least_squares_against_numpy() {
             1e-8,
         );
     }
+    report("weighted_least_squares_against_numpy");
 }
 
 #[test]
@@ -380,6 +403,7 @@ fn weighted_least_squares_with_a_covariate_near_a_million_against_exact_arithmet
     let fit = &rows(outputs(&json, "fit")[0])[0];
     let rss = num(&fit["sigma"]).powi(2) * num(&fit["df_residual"]);
     close("weighted RSS", rss, num(&want["rss"]), REL_TOL);
+    report("weighted_least_squares_with_a_covariate_near_a_million_against_exact_arithmetic");
 }
 
 #[test]
