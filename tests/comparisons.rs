@@ -421,3 +421,51 @@ fn weights_that_cannot_be_weights_are_errors_at_the_row() {
         "{all}"
     );
 }
+
+/// The errors of the new clauses, each at its words with what to do.
+#[test]
+fn misused_clauses_are_errors_that_say_what_to_do() {
+    // Invented data: three groups, one of them a single row.
+    let data = b"g,h,x,y,w\na,p,1,2.0,1\na,q,2,3.1,2\na,p,3,3.9,1\nb,q,1,4.2,1\nb,p,2,5.1,3\nb,q,3,5.8,1\nc,p,2,7.0,1\n".to_vec();
+    let cases = [
+        (
+            "table differences m for g correction dunnett",
+            "name the control with `versus`",
+        ),
+        (
+            "table differences m for g versus a correction tukey",
+            "for all pairs",
+        ),
+        (
+            "table differences m for g versus z",
+            "`z` is not a level of `g`",
+        ),
+        (
+            "table differences m for g within g",
+            "names the factor compared",
+        ),
+        ("table coefficients m robust", "leverage 1"),
+        ("table compare m, w", "different case weights"),
+        ("check m alpha 2", "alpha must lie between 0 and 1"),
+        ("plot interaction m for g", "needs two factors"),
+        ("plot means m for g by h", "does not take `by`"),
+        (
+            "report m differences g between a and b correction dunnett",
+            "needs `versus`",
+        ),
+    ];
+    for (statement, expected) in cases {
+        let world = MemoryWorld::new().with("d.csv", data.clone());
+        let doc = format!(
+            "```covey\nload \"d.csv\"\nfactor g\nfactor h\nmodel m: y on g + h + x\nmodel w: y on g + h + x weights w\n{statement}\n```\n"
+        );
+        let run = pipeline::run(&doc, "e.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{:?}", u.errors));
+        let all = run.errors.join("\n");
+        assert!(all.contains(expected), "{statement}: {all}");
+        assert!(
+            all.contains("e.md:7:"),
+            "{statement}: the error points at its line: {all}"
+        );
+    }
+}

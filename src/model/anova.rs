@@ -216,6 +216,19 @@ pub fn compare(first: &Fit, second: &Fit) -> Result<Comparison, ModelError> {
     if !same_response(first, second) {
         return Err(ModelError::DifferentResponse);
     }
+    let weights = |f: &Fit| match &f.spec.weights {
+        Some(Var::Numeric { values, .. }) => Some(
+            f.lay
+                .used
+                .iter()
+                .map(|i| values.get(i).copied().unwrap_or(f64::NAN).to_bits())
+                .collect::<Vec<u64>>(),
+        ),
+        _ => None,
+    };
+    if weights(first) != weights(second) {
+        return Err(ModelError::DifferentWeights);
+    }
     let by_names = |small: &Fit, big: &Fit| {
         (!small.spec.intercept || big.spec.intercept)
             && small

@@ -815,6 +815,8 @@ pub enum ModelError {
     NotNested,
     /// The two models were fitted on different rows.
     DifferentRows,
+    /// The two models of a comparison have different case weights.
+    DifferentWeights,
     /// The two models have different responses.
     DifferentResponse,
     /// The two models have the same column space.
@@ -865,6 +867,7 @@ impl fmt::Display for ModelError {
             E::BadLevel { value } => write!(f, "{value} is not between 0 and 1"),
             E::UnknownLevel { factor, level } => write!(f, "`{level}` is not a level of `{factor}` in this model"),
             E::NotNested => write!(f, "neither model is nested in the other (each has columns that are not combinations of the other's columns); compare a model only with one that extends it"),
+            E::DifferentWeights => write!(f, "the two models have different case weights (or only one has weights), so their residual sums of squares are not on one scale; give both the same `weights`"),
             E::DifferentRows => write!(f, "the two models were fitted on different rows (missing values differ); fit both on the same rows"),
             E::DifferentResponse => write!(f, "the two models have different responses, so their residual sums of squares cannot be compared"),
             E::SameColumnSpace => write!(f, "the two models have the same columns, so there is nothing to test"),

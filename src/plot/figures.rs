@@ -559,21 +559,30 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         Some(x) => x.clone(),
         None => "fitted values".to_string(),
     };
+    // A weighted model's residuals are the weighted ones, sqrt(w) times the residual.
+    let weighted = if fit.is_weighted() { "weighted " } else { "" };
     let alt = format!(
-        "Scatter of the residuals of {} against {}{}, with a horizontal line at zero{}.{}",
+        "Scatter of the {weighted}residuals of {} against {}{}, with a horizontal line at zero{}.{}",
         req.response_name,
         against,
         marked_by(req),
         note,
         repeat_note(groups.labels.len())
     );
-    let caption = format!("Residuals against {against}{note}");
+    let caption = format!(
+        "{}esiduals against {against}{note}",
+        if weighted.is_empty() {
+            "R"
+        } else {
+            "Weighted r"
+        }
+    );
     let chart = Chart {
         x_label: match &req.covariate_label {
             Some(l) => l.clone(),
             None => format!("fitted {}", req.response_label),
         },
-        y_label: format!("residual of {}", req.response_label),
+        y_label: format!("{weighted}residual of {}", req.response_label),
         legend_title: req.factor_name.clone(),
         groups: groups.legend(),
         points,
@@ -634,10 +643,11 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         note,
         repeat_note(groups.labels.len())
     );
-    let caption = format!("Normal quantiles of standardized residuals{note}");
+    let weighted = if fit.is_weighted() { "weighted " } else { "" };
+    let caption = format!("Normal quantiles of standardized {weighted}residuals{note}");
     let chart = Chart {
         x_label: "normal quantile (Blom)".to_string(),
-        y_label: "standardized residual".to_string(),
+        y_label: format!("standardized {weighted}residual"),
         legend_title: req.factor_name.clone(),
         groups: groups.legend(),
         points,

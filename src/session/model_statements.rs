@@ -432,7 +432,8 @@ impl Session<'_> {
                         r.upper.into(),
                     ]);
                 }
-                if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str()], "these means") {
+                if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str()], "these means")
+                {
                     t.notes.push(n);
                 }
                 if !not_estimable.is_empty() {
