@@ -458,12 +458,41 @@ impl MaxT {
                 break;
             }
         }
-        let mut g = |c: f64| self.cdf_with(c, n).value - level;
-        let (mut lo, mut hi) = (lo0 * 0.999, hi0 * 1.001 + 1e-9);
-        let (mut glo, mut ghi) = (g(lo), g(hi));
-        let mut c = hi0;
+        // A first solution on a small rule, then the settled rule on a narrow bracket around
+        // it (widened to the Bonferroni bracket should it not hold the root), so that the
+        // large rule is evaluated a few times only.
+        let (lo_all, hi_all) = (lo0 * 0.999, hi0 * 1.001 + 1e-9);
+        let first = self.solve(SIZES[1].min(n), level, lo_all, hi_all);
+        let c = if n > SIZES[1] {
+            let d = 1e-3 * first.abs();
+            let (a, b) = (first - d, first + d);
+            let below = self.cdf_with(a, n).value - level;
+            let above = self.cdf_with(b, n).value - level;
+            if below < 0.0 && above > 0.0 {
+                self.solve_from(n, level, (a, below), (b, above))
+            } else {
+                self.solve(n, level, lo_all, hi_all)
+            }
+        } else {
+            first
+        };
+        (c, self.cdf_with(c, n))
+    }
+
+    /// The root of P(c) = level in [lo, hi] on the rule of `n` points.
+    fn solve(&mut self, n: usize, level: f64, lo: f64, hi: f64) -> f64 {
+        let glo = self.cdf_with(lo, n).value - level;
+        let ghi = self.cdf_with(hi, n).value - level;
+        self.solve_from(n, level, (lo, glo), (hi, ghi))
+    }
+
+    /// [`MaxT::solve`] from a bracket whose values are known, by regula falsi with the
+    /// Illinois modification (Dowell & Jarratt 1971, BIT 11), kept inside the bracket.
+    fn solve_from(&mut self, n: usize, level: f64, lo: (f64, f64), hi: (f64, f64)) -> f64 {
+        let ((mut lo, mut glo), (mut hi, mut ghi)) = (lo, hi);
+        let mut c = hi;
+        let mut side: Option<bool> = None;
         for _ in 0..100 {
-            // Regula falsi (Illinois), kept inside the bracket.
             let mut next = if ghi != glo {
                 hi - ghi * (hi - lo) / (ghi - glo)
             } else {
@@ -472,22 +501,33 @@ impl MaxT {
             if !(next > lo && next < hi) {
                 next = 0.5 * (lo + hi);
             }
-            let gn = g(next);
+            let gn = self.cdf_with(next, n).value - level;
+            let step = (next - c).abs();
             c = next;
-            if gn.abs() < 1e-12 || (hi - lo) < 1e-9 * c.abs() {
+            // 1e-10 in probability is far inside the rule's own error; the step test stops
+            // a converged iteration whose last digits only rounding moves.
+            if gn.abs() < 1e-10 || step < 1e-10 * c.abs() || (hi - lo) < 1e-9 * c.abs() {
                 break;
             }
+            // Illinois: the kept end's value is halved only when that end is kept twice in a
+            // row, which restores superlinear convergence.
             if (gn < 0.0) == (glo < 0.0) {
                 lo = next;
                 glo = gn;
-                ghi /= 2.0;
+                if side == Some(true) {
+                    ghi /= 2.0;
+                }
+                side = Some(true);
             } else {
                 hi = next;
                 ghi = gn;
-                glo /= 2.0;
+                if side == Some(false) {
+                    glo /= 2.0;
+                }
+                side = Some(false);
             }
         }
-        (c, self.cdf_with(c, n))
+        c
     }
 }
 
