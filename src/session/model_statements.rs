@@ -499,16 +499,7 @@ impl Session<'_> {
                                 v.control.span
                             }
                             (model::ModelError::WithinSameFactor { .. }, _, Some(w)) => w.span,
-                            (_, _, Some(w))
-                                if matches!(
-                                    e,
-                                    model::ModelError::UnknownVariable { .. }
-                                        | model::ModelError::NotAFactor { .. }
-                                        | model::ModelError::FactorNotInModel { .. }
-                                ) && e.to_string().contains(&format!("`{}`", w.value)) =>
-                            {
-                                w.span
-                            }
+                            (_, _, Some(w)) if factor_named(&e) == Some(w.value.as_str()) => w.span,
                             _ => factor.span,
                         };
                         Diagnostic::new(at, e.to_string()).label("cannot compute this")
@@ -902,6 +893,18 @@ fn view(
     }
 }
 
+/// The factor an error of the engine is about, when it is about a factor (so that the
+/// message can point at the words that named it).
+fn factor_named(e: &model::ModelError) -> Option<&str> {
+    match e {
+        model::ModelError::UnknownVariable { name } | model::ModelError::NotAFactor { name } => {
+            Some(name)
+        }
+        model::ModelError::FactorNotInModel { factor } => Some(factor),
+        _ => None,
+    }
+}
+
 /// What a caption adds for robust standard errors.
 fn robust_words(robust: bool) -> &'static str {
     if robust {
@@ -948,7 +951,7 @@ fn cell_means_table(
     let rows = fit
         .cell_means(&factor.value, &by.value, at, level)
         .map_err(|e| {
-            let at = if e.to_string().contains(&format!("`{}`", by.value)) {
+            let at = if factor_named(&e) == Some(by.value.as_str()) {
                 by.span
             } else {
                 factor.span
