@@ -234,36 +234,7 @@ impl Fit {
     ) -> Result<(usize, Vec<LevelRow>), ModelError> {
         let v = self.model_factor(factor)?;
         let numeric = self.covariate_values(at)?;
-        let levels = match self.spec.vars.get(v) {
-            Some(Var::Factor { levels, .. }) => levels.clone(),
-            _ => Vec::new(),
-        };
-        let present = self
-            .lay
-            .factor(v)
-            .map(|f| f.present.clone())
-            .unwrap_or_default();
-        if present.len() < 2 {
-            return Err(ModelError::TooFewLevels {
-                term: None,
-                factor: factor.to_string(),
-                levels: present.len(),
-            });
-        }
-        Ok((
-            v,
-            present
-                .iter()
-                .map(|&c| {
-                    let pt = self.point(v, Some(c), numeric.clone(), None);
-                    (
-                        levels.get(c as usize).cloned().unwrap_or_default(),
-                        c,
-                        self.row_at(&pt),
-                    )
-                })
-                .collect(),
-        ))
+        Ok((v, self.rows_of_levels(v, &numeric, &[])?))
     }
 
     /// Adjusted means of each level of `factor` (levels with rows, declared order), other
