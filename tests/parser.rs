@@ -367,12 +367,12 @@ fn weights_alpha_interaction_and_report_forms() {
     match parse("plot interaction m for ration by sex") {
         StatementKind::Plot {
             kind: PlotKind::Interaction,
-            factor: Some(f),
-            by: Some(b),
+            factor: Some(first),
+            by: Some(second),
             ..
         } => {
-            assert_eq!(f.value, "ration");
-            assert_eq!(b.value, "sex");
+            assert_eq!(first.value, "ration");
+            assert_eq!(second.value, "sex");
         }
         k => panic!("{k:?}"),
     }
