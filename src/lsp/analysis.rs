@@ -524,7 +524,7 @@ impl<'c> Walk<'c> {
             }
             StatementKind::Model(decl) => self.model_statement(stmt, decl),
             StatementKind::Table(request) => self.table(request, stmt.span),
-            StatementKind::Check { model } => {
+            StatementKind::Check { model, .. } => {
                 self.model(model);
             }
             StatementKind::Plot {
@@ -532,6 +532,7 @@ impl<'c> Walk<'c> {
                 model,
                 covariate,
                 factor,
+                ..
             } => {
                 if let Some(m) = self.model(model) {
                     self.plot(*kind, &m, model, covariate.as_ref(), factor.as_ref());
@@ -1083,7 +1084,7 @@ impl<'c> Walk<'c> {
             TableRequest::Fit { model } | TableRequest::Anova { model, .. } => {
                 self.model(model);
             }
-            TableRequest::Coefficients { model, level } => {
+            TableRequest::Coefficients { model, level, .. } => {
                 let known = self.model(model).is_some();
                 if known {
                     self.confidence(level.as_ref());
@@ -1100,8 +1101,9 @@ impl<'c> Walk<'c> {
                 factor,
                 at,
                 level,
+                ..
             }
-            | TableRequest::Pairs {
+            | TableRequest::Differences {
                 model,
                 factor,
                 at,
@@ -1392,7 +1394,7 @@ impl<'c> Walk<'c> {
             ReportRequest::Term { model, .. } => {
                 self.model(model);
             }
-            ReportRequest::Pair {
+            ReportRequest::Difference {
                 model,
                 factor,
                 first,
