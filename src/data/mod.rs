@@ -140,6 +140,21 @@ impl TextValues {
         first_non_number_in(self.iter())
     }
 
+    /// The distinct texts that some row holds, in order of first appearance.
+    pub fn present_texts(&self) -> Vec<&str> {
+        let mut seen = vec![false; self.n_texts()];
+        let mut out = Vec::new();
+        for &c in &self.codes {
+            if let Some(slot) = usize::try_from(c).ok().and_then(|i| seen.get_mut(i)) {
+                if !*slot {
+                    *slot = true;
+                    out.extend(self.text_of(c));
+                }
+            }
+        }
+        out
+    }
+
     /// The cells as owned strings (`None` for a missing cell).
     pub fn to_vec(&self) -> Vec<Option<String>> {
         self.iter().map(|c| c.map(str::to_owned)).collect()

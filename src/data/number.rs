@@ -63,7 +63,8 @@ impl Suggestion {
                     .to_owned()
             }
             Suggestion::NonFiniteText | Suggestion::MissingMarker => format!(
-                "write missing values as an empty cell or declare the marker with missing \"{text}\""
+                "write missing values as an empty cell or declare the marker with `missing \"{text}\"` \
+                 before `load`"
             ),
             Suggestion::OutOfRange => {
                 "check the value, or rescale the column (for example change its units) so every \

@@ -16,6 +16,7 @@ use crate::lang::{
 use crate::model::ModelError;
 use crate::pipeline::{self, Shift};
 use crate::session::data_statements::{
+    unknown_value,
     column_index, default_name, factor_column, factor_error, numeric_values, quote_name,
     unknown_data_set,
 };
@@ -818,8 +819,9 @@ impl<'c> Walk<'c> {
         }
     }
 
-    /// A warning when a text or factor column never holds `value`: the condition is then
-    /// always false (or true), which the renderer accepts, and is most likely a slip.
+    /// An error when a text or factor column cannot hold `value`: not one of the factor's
+    /// levels, or a text no row of the file has; as the renderer gives it (a `keep where`
+    /// with it would keep no row, or every row).
     fn known_value(&mut self, column: &Spanned<String>, value: &Literal, span: Span) {
         let Some(ds) = self.state.current() else {
             return;
@@ -831,21 +833,10 @@ impl<'c> Walk<'c> {
         if levels.iter().any(|l| l == v) {
             return;
         }
+        let factor = ds.kind_of(&column.value) == Some("factor");
         let names: Vec<&str> = levels.iter().map(String::as_str).collect();
-        let help = match closest(v, &names) {
-            Some(c) => format!("did you mean `{c}`?"),
-            None => format!("its values are {}", listing(&names)),
-        };
-        let d = Diagnostic::new(
-            span,
-            format!(
-                "no row of data set `{}` has `{v}` in `{}`",
-                ds.name, column.value
-            ),
-        )
-        .label("unknown level")
-        .help(help);
-        self.warning(d);
+        let d = unknown_value(&ds.name, &column.value, v, span, &names, factor);
+        self.error(d);
     }
 
     fn model_statement(&mut self, stmt: &Statement, decl: &ModelDecl) {

@@ -74,6 +74,15 @@ impl Session<'_> {
                 read_whole(&self.world.read(&path.value).map_err(world_error)?, &opts)
             }
         };
+        let refused = match &set {
+            Err(data::LoadError::RefusedNumber {
+                text,
+                suggestion: data::Suggestion::MissingMarker | data::Suggestion::NonFiniteText,
+                ..
+            }) => Some(text.clone()),
+            _ => None,
+        };
+        self.loads.push((path.value.clone(), refused));
         let set = set.map_err(|e| {
             Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
                 .label("while reading this file")
@@ -109,10 +118,48 @@ impl Session<'_> {
     pub(super) fn missing(&mut self, markers: &[String]) -> Outcome {
         self.missing_markers = markers.to_vec();
         let list: Vec<String> = markers.iter().map(|m| code(m)).collect();
-        Ok(vec![Item::Text(format!(
+        let mut items = vec![Item::Text(format!(
             "From here on, empty cells and {} count as missing values in loaded files.",
             list.join(", ")
-        ))])
+        ))];
+        // A marker that a file loaded above refused, or holds as text: this statement comes
+        // after the `load` it was meant for, and changes nothing there.
+        for m in markers {
+            let refused = self
+                .loads
+                .iter()
+                .find(|(_, t)| t.as_deref() == Some(m.as_str()));
+            let held = || {
+                self.data_sets.iter().find_map(|d| {
+                    d.columns
+                        .iter()
+                        .find(|c| match &c.values {
+                            Values::Text(t) => t.present_texts().contains(&m.as_str()),
+                            Values::Factor(f) => f.levels.contains(m),
+                            Values::Numeric(_) => false,
+                        })
+                        .map(|c| (d.name.as_str(), c.name.as_str()))
+                })
+            };
+            let why = match (refused, held()) {
+                (Some((path, _)), _) => format!(
+                    "{} above stopped at {}",
+                    code(&format!("load \"{path}\"")),
+                    code(m)
+                ),
+                (None, Some((set, column))) => format!(
+                    "data set {}, loaded above, holds {} as text in column {}",
+                    code(set),
+                    code(m),
+                    code(column)
+                ),
+                (None, None) => continue,
+            };
+            items.push(Item::Warning(format!(
+                "{why}: `missing` applies only to files loaded after it, so give it before `load`."
+            )));
+        }
+        Ok(items)
     }
 
     pub(super) fn use_data_set(&mut self, name: &Spanned<String>) -> Outcome {
@@ -199,6 +246,10 @@ impl Session<'_> {
 
     pub(super) fn keep(&mut self, condition: &Condition, span: Span) -> Outcome {
         let set = self.current(span)?;
+        // Checked once for the whole data set before any row: a value of the wrong type,
+        // or one that no row can hold, is an error rather than a filter that quietly keeps
+        // no rows (or all of them).
+        check_condition(set, condition)?;
         let mut keep = vec![true; set.n_rows()];
         let mut missing = vec![false; set.n_rows()];
         for (row, slot) in keep.iter_mut().enumerate() {
@@ -520,6 +571,144 @@ fn columns_table(set: &DataSet, caption: &str) -> Table {
         ]);
     }
     t
+}
+
+/// Checks a `keep where` condition against the data set before it is evaluated: every column
+/// exists; a numeric column is compared with numbers; a text or factor column is compared
+/// with `==`, `!=` or `in` only, and with values it can hold (a factor's levels, the texts
+/// in a text column's rows).
+fn check_condition(set: &DataSet, c: &Condition) -> Result<(), Diagnostic> {
+    match c {
+        Condition::And(parts) | Condition::Or(parts) => {
+            parts.iter().try_for_each(|p| check_condition(set, p))
+        }
+        Condition::Not(inner) => check_condition(set, inner),
+        Condition::Compare { column, op, value } => {
+            let idx = column_index(set, column)?;
+            let col = &set.columns[idx];
+            if matches!(col.values, Values::Numeric(_)) {
+                if matches!(value.value, Literal::Text(_)) {
+                    return Err(text_for_number(column, &value.value, value.span, false));
+                }
+                return Ok(());
+            }
+            if !matches!(op, CompareOp::Eq | CompareOp::Ne) {
+                return Err(Diagnostic::new(
+                    value.span,
+                    format!(
+                        "`{}` holds text or levels, which can only be tested with ==, != or in",
+                        column.value
+                    ),
+                )
+                .label("order comparison on text"));
+            }
+            known_value(set, col, column, value)
+        }
+        Condition::In { column, values } => {
+            let idx = column_index(set, column)?;
+            let col = &set.columns[idx];
+            for v in values {
+                if matches!(col.values, Values::Numeric(_)) {
+                    if matches!(v.value, Literal::Text(_)) {
+                        return Err(text_for_number(column, &v.value, v.span, true));
+                    }
+                } else {
+                    known_value(set, col, column, v)?;
+                }
+            }
+            Ok(())
+        }
+    }
+}
+
+/// The error of a numeric column compared with text (`yield_kg > "abc"`).
+fn text_for_number(
+    column: &Spanned<String>,
+    value: &Literal,
+    span: Span,
+    listed: bool,
+) -> Diagnostic {
+    let what = if listed {
+        "its values are numbers"
+    } else {
+        "it is compared with a number"
+    };
+    let d = Diagnostic::new(span, format!("`{}` is numeric, so {what}", column.value))
+        .label("not a number");
+    match crate::data::parse_number(value.as_text()) {
+        crate::data::NumberParse::Number(_) => d.help(format!(
+            "write the number without quotes: {}",
+            value.as_text()
+        )),
+        _ => d.help(format!(
+            "compare `{}` with a number, or test a text column instead",
+            column.value
+        )),
+    }
+}
+
+/// A text or factor column compared with a value: the value must be one of the factor's
+/// levels, or a text some row of the column holds.
+fn known_value(
+    set: &DataSet,
+    col: &Column,
+    column: &Spanned<String>,
+    value: &Spanned<Literal>,
+) -> Result<(), Diagnostic> {
+    let v = value.value.as_text();
+    let (values, factor): (Vec<&str>, bool) = match &col.values {
+        Values::Factor(f) => (f.levels.iter().map(String::as_str).collect(), true),
+        Values::Text(t) => (t.present_texts(), false),
+        Values::Numeric(_) => return Ok(()),
+    };
+    if values.contains(&v) {
+        return Ok(());
+    }
+    Err(unknown_value(&set.name, &column.value, v, value.span, &values, factor))
+}
+
+/// The error of a comparison with a value that a text or factor column does not hold: it
+/// names the values it can hold, and suggests one that differs only in case (or is close).
+/// The language server gives the same.
+pub(crate) fn unknown_value(
+    set_name: &str,
+    column: &str,
+    value: &str,
+    span: Span,
+    values: &[&str],
+    factor: bool,
+) -> Diagnostic {
+    /// Values listed in full up to this many.
+    const LISTED: usize = 20;
+    let message = if factor {
+        format!("`{value}` is not a level of factor `{column}`")
+    } else {
+        format!("no row of data set `{set_name}` has `{value}` in `{column}`")
+    };
+    let quoted: Vec<String> = values.iter().take(LISTED).map(|v| format!("`{v}`")).collect();
+    let mut list = quoted.join(", ");
+    if values.len() > LISTED {
+        list.push_str(&format!(" and {} more", values.len() - LISTED));
+    }
+    let kind = if factor { "levels" } else { "values" };
+    let known = if values.is_empty() {
+        format!("`{column}` holds no {kind} here")
+    } else {
+        format!("its {kind} are {list}")
+    };
+    let lower = value.to_lowercase();
+    let suggestion = values
+        .iter()
+        .find(|c| c.to_lowercase() == lower)
+        .copied()
+        .or_else(|| super::closest(value, values));
+    let help = match suggestion {
+        Some(s) => format!("did you mean `{s}`? Values are compared exactly, case included; {known}"),
+        None => format!("{known}; values are compared exactly, case included"),
+    };
+    Diagnostic::new(span, message)
+        .label(if factor { "not a level" } else { "no row has this" })
+        .help(help)
 }
 
 /// Evaluates a `keep where` condition on one row. A comparison with a

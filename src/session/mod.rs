@@ -34,6 +34,10 @@ pub struct Session<'w> {
     data_sets: Vec<DataSet>,
     current: Option<usize>,
     missing_markers: Vec<String>,
+    /// Every file a `load` read or tried to read, and the cell text it refused as an
+    /// undeclared missing-value marker, if that is why it failed: a `missing` statement
+    /// after it says it comes too late.
+    loads: Vec<(String, Option<String>)>,
     models: Vec<ModelEntry>,
     inputs: Vec<InputRecord>,
     /// Units declared with `unit COLUMN "TEXT"`, for axis labels.
@@ -77,6 +81,7 @@ impl<'w> Session<'w> {
             data_sets: Vec::new(),
             current: None,
             missing_markers: Vec::new(),
+            loads: Vec::new(),
             models: Vec::new(),
             inputs: Vec::new(),
             units: Vec::new(),
