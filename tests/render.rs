@@ -65,6 +65,16 @@ fn render_fixture(name: &str) {
     let file = format!("{name}.md");
     match pipeline::run(&text, &file, &world, opts.clone()) {
         Ok(run) => {
+            // covey's own messages (warnings, errors, notes, verdicts) show names in code
+            // spans, never as escaped backticks; no fixture has a name with a backtick.
+            assert!(
+                !run.rendered.contains("\\`"),
+                "an escaped backtick in {name}: {}",
+                run.rendered
+                    .lines()
+                    .find(|l| l.contains("\\`"))
+                    .unwrap_or_default()
+            );
             expect_file(&dir.join(format!("{name}.rendered.md")), &run.rendered);
             // Figure files, beside the fixture at the paths the rendering links.
             for (path, svg) in &run.figures {
@@ -104,6 +114,17 @@ fn render_fixture(name: &str) {
 #[test]
 fn data_statements() {
     render_fixture("basic");
+    // The preview of `show` aligns numeric columns (plot, height_cm, yield_kg) to the right
+    // and text to the left.
+    let rendered = std::fs::read_to_string(fixtures().join("basic.rendered.md"))
+        .unwrap_or_else(|e| panic!("{e}"));
+    assert!(
+        rendered.contains(
+            "| line in file | plot | fertiliser | height_cm | yield_kg | site |\n\
+             | --: | --: | :-- | --: | --: | :-- |\n"
+        ),
+        "{rendered}"
+    );
 }
 
 #[test]

@@ -407,15 +407,28 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
             .collect()
     } else {
         // Text cells in a numeric column (rare: a label row) keep their text.
-        let nums: Vec<Option<f64>> = t
-            .rows
-            .iter()
-            .map(|r| match r.get(j) {
-                Some(Cell::Number(x)) => Some(*x),
-                _ => None,
-            })
-            .collect();
-        let mut f = format_column(&nums, c.format);
+        let numbers = |j: usize| -> Vec<Option<f64>> {
+            t.rows
+                .iter()
+                .map(|r| match r.get(j) {
+                    Some(Cell::Number(x)) => Some(*x),
+                    _ => None,
+                })
+                .collect()
+        };
+        let nums = numbers(j);
+        // The two limits of an interval share one number of decimals: the column and its
+        // partner are rounded as one.
+        let mut f = match limit_partner(t, j) {
+            Some(k) => {
+                let mut both = nums.clone();
+                both.extend(numbers(k));
+                let mut f = format_column(&both, c.format);
+                f.truncate(nums.len());
+                f
+            }
+            None => format_column(&nums, c.format),
+        };
         for (i, r) in t.rows.iter().enumerate() {
             if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), f.get_mut(i)) {
                 *slot = cell(s);
@@ -423,6 +436,19 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
         }
         f
     }
+}
+
+/// The column holding the other limit of the interval whose limit column `j` holds (`lower`
+/// and `upper`, `lower_bound` and `upper_bound`), when both have the same format.
+fn limit_partner(t: &Table, j: usize) -> Option<usize> {
+    let c = t.columns.get(j)?;
+    let other = match c.key.strip_prefix("lower") {
+        Some(rest) => format!("upper{rest}"),
+        None => format!("lower{}", c.key.strip_prefix("upper")?),
+    };
+    t.columns
+        .iter()
+        .position(|d| d.key == other && d.format == c.format)
 }
 
 /// A table with its caption and notes. Numbers are right-aligned, text
@@ -532,6 +558,49 @@ pub fn provenance(
 mod tests {
     use super::*;
     use crate::report::Column;
+
+    /// Both limits of an interval share one number of decimals, whatever their sizes (the
+    /// issue's case: -50.551 beside 211.9020); other columns keep their own.
+    #[test]
+    fn interval_limits_share_their_decimals() {
+        let mut t = Table::new(
+            "demo",
+            "Demo",
+            vec![
+                Column::new("estimate", "estimate", Format::Digits(4)),
+                Column::new("lower", "lower", Format::Digits(4)),
+                Column::new("upper", "upper", Format::Digits(4)),
+                Column::new("lower_bound", "lower bound", Format::Digits(4)),
+                Column::new("upper_bound", "upper bound", Format::Digits(4)),
+            ],
+        );
+        t.push(vec![
+            80.0.into(),
+            (-50.551).into(),
+            211.902.into(),
+            0.01234.into(),
+            1234.5.into(),
+        ]);
+        t.push(vec![
+            0.5.into(),
+            1.0.into(),
+            2.0.into(),
+            0.02.into(),
+            Cell::Missing,
+        ]);
+        let cols: Vec<Vec<String>> = (0..5).map(|j| formatted_column(&t, j)).collect();
+        let decimals = |s: &str| s.split_once('.').map_or(0, |(_, d)| d.len());
+        for (lower, upper) in [(1, 2), (3, 4)] {
+            for row in 0..2 {
+                let (l, u) = (&cols[lower][row], &cols[upper][row]);
+                if u != MISSING {
+                    assert_eq!(decimals(l), decimals(u), "{l} | {u}");
+                }
+            }
+        }
+        assert_eq!(cols[1], ["-50.6", "1.0"]);
+        assert_eq!(cols[2], ["211.9", "2.0"]);
+    }
 
     #[test]
     fn escaping_defuses_markup_and_markers() {

@@ -254,7 +254,7 @@ fn normality_row(fit: &Fit, n: usize, model: &str, alpha: f64) -> Vec<Cell> {
         Ok(sw) => {
             let verdict = if sw.p < alpha {
                 format!(
-                    "the residuals depart from a normal shape (p < {}): tests and limits are less exact, the more so in small groups; look at the normal quantile figure (`plot quantiles {model}`)",
+                    "the residuals depart from a normal shape (p < {}): tests and limits are less exact, the more so in small groups; look at the normal quantile figure that plot quantiles {model} draws",
                     bound(alpha)
                 )
             } else {
@@ -268,7 +268,7 @@ fn normality_row(fit: &Fit, n: usize, model: &str, alpha: f64) -> Vec<Cell> {
         Err(StatsError::SampleSizeOutOfRange { n, min, max }) if n > max => not_tested(
             &check,
             format!(
-                "the Shapiro-Wilk p-value is calibrated for {min} to {max} residuals and this model has {n} (with so many, any test flags harmless departures); judge the shape from the normal quantile figure (`plot quantiles {model}`)"
+                "the Shapiro-Wilk p-value is calibrated for {min} to {max} residuals and this model has {n} (with so many, any test flags harmless departures); judge the shape from the normal quantile figure that plot quantiles {model} draws"
             ),
         ),
         Err(e) => not_tested(&check, e),

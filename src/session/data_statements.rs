@@ -307,7 +307,15 @@ impl Session<'_> {
                 .chain(
                     set.columns
                         .iter()
-                        .map(|c| Col::new(&c.name, &c.name, Format::Text)),
+                        // Numbers as the file's values show them, right-aligned as numbers
+                        // (a numeric format holding text cells keeps their text).
+                        .map(|c| {
+                            let format = match c.values {
+                                Values::Numeric(_) => Format::Exact,
+                                _ => Format::Text,
+                            };
+                            Col::new(&c.name, &c.name, format)
+                        }),
                 )
                 .collect(),
         );

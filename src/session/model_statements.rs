@@ -1000,7 +1000,7 @@ fn cell_means_table(
         let cell = format!("{} × {}", code(&r.first), code(&r.second));
         match (&r.not_estimable, r.rows) {
             (Some(why), _) => {
-                not_estimable.push(format!("{cell}: {}", crate::report::markdown::escape(why)))
+                not_estimable.push(format!("{cell}: {}", crate::report::markdown::message(why)))
             }
             (None, 0) => empty.push(cell),
             _ => {}
