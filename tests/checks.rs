@@ -471,7 +471,8 @@ fn the_balance_gate_on_a_model_uses_the_rows_of_check() {
         "{HEAD}model main: final_kg on diet + barn + start_kg\n\
          require balance start_kg by barn in main\n\
          require balance start_kg by barn\n\
-         check main\n```\n"
+         check main\n\
+         table anova main\n```\n"
     );
     let (json, rendered) = run(&doc, PENS);
     let check = output(&json, "check", 0);
@@ -500,6 +501,16 @@ fn the_balance_gate_on_a_model_uses_the_rows_of_check() {
     assert!(
         note.contains("the 35 rows the model was fitted to"),
         "{note}"
+    );
+    // Every table of tests of a model states its n.
+    let anova = output(&json, "anova", 0);
+    assert!(
+        anova["notes"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .any(|n| n == "n = 35: the rows model `main` is fitted to."),
+        "{anova}"
     );
 }
 

@@ -24,7 +24,9 @@ const LOAD: &str = "missing \"NA\"\nload \"data/pens.csv\" as pens\n";
 
 #[test]
 fn a_value_that_is_not_a_level_is_an_error_with_the_levels() {
-    let (_, errors) = run(&format!("{LOAD}factor diet\nkeep where diet == \"Control\"\n"));
+    let (_, errors) = run(&format!(
+        "{LOAD}factor diet\nkeep where diet == \"Control\"\n"
+    ));
     assert!(
         errors.contains("filters.md:7:20: error: `Control` is not a level of factor `diet`"),
         "{errors}"
@@ -70,7 +72,10 @@ fn filters_with_known_values_still_keep_their_rows() {
         "{LOAD}factor diet\nkeep where diet != control and barn in (east, west) and start_kg > 0\n"
     ));
     assert!(errors.is_empty(), "{errors}");
-    assert!(rendered.contains("Kept 24 of 36 rows of `pens`"), "{rendered}");
+    assert!(
+        rendered.contains("Kept 24 of 36 rows of `pens`"),
+        "{rendered}"
+    );
 }
 
 #[test]

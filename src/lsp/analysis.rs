@@ -16,9 +16,8 @@ use crate::lang::{
 use crate::model::ModelError;
 use crate::pipeline::{self, Shift};
 use crate::session::data_statements::{
-    unknown_value,
     column_index, default_name, factor_column, factor_error, numeric_values, quote_name,
-    unknown_data_set,
+    unknown_data_set, unknown_value,
 };
 use crate::session::model_statements::confidence;
 use crate::session::plot_statements::{kind_word, listing};

@@ -152,7 +152,7 @@ fn inline(text: &str, place: Place, start: bool, end: bool) -> String {
         let c = chars[i];
         // A run of one delimiter character, and the characters on either side of it.
         let run_end = (i..n).find(|&j| chars[j] != c).unwrap_or(n);
-        let before = i.checked_sub(1).and_then(|b| at(b));
+        let before = i.checked_sub(1).and_then(&at);
         let after = at(run_end);
         let escaped = match c {
             c if c.is_whitespace() && ((start && i == 0) || (end && i + 1 == n)) => {
@@ -591,8 +591,7 @@ mod tests {
         let cols: Vec<Vec<String>> = (0..5).map(|j| formatted_column(&t, j)).collect();
         let decimals = |s: &str| s.split_once('.').map_or(0, |(_, d)| d.len());
         for (lower, upper) in [(1, 2), (3, 4)] {
-            for row in 0..2 {
-                let (l, u) = (&cols[lower][row], &cols[upper][row]);
+            for (l, u) in cols[lower].iter().zip(&cols[upper]) {
                 if u != MISSING {
                     assert_eq!(decimals(l), decimals(u), "{l} | {u}");
                 }

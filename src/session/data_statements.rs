@@ -672,7 +672,14 @@ fn known_value(
     if values.contains(&v) {
         return Ok(());
     }
-    Err(unknown_value(&set.name, &column.value, v, value.span, &values, factor))
+    Err(unknown_value(
+        &set.name,
+        &column.value,
+        v,
+        value.span,
+        &values,
+        factor,
+    ))
 }
 
 /// The error of a comparison with a value that a text or factor column does not hold: it
@@ -693,7 +700,11 @@ pub(crate) fn unknown_value(
     } else {
         format!("no row of data set `{set_name}` has `{value}` in `{column}`")
     };
-    let quoted: Vec<String> = values.iter().take(LISTED).map(|v| format!("`{v}`")).collect();
+    let quoted: Vec<String> = values
+        .iter()
+        .take(LISTED)
+        .map(|v| format!("`{v}`"))
+        .collect();
     let mut list = quoted.join(", ");
     if values.len() > LISTED {
         list.push_str(&format!(" and {} more", values.len() - LISTED));
@@ -711,11 +722,17 @@ pub(crate) fn unknown_value(
         .copied()
         .or_else(|| super::closest(value, values));
     let help = match suggestion {
-        Some(s) => format!("did you mean `{s}`? Values are compared exactly, case included; {known}"),
+        Some(s) => {
+            format!("did you mean `{s}`? Values are compared exactly, case included; {known}")
+        }
         None => format!("{known}; values are compared exactly, case included"),
     };
     Diagnostic::new(span, message)
-        .label(if factor { "not a level" } else { "no row has this" })
+        .label(if factor {
+            "not a level"
+        } else {
+            "no row has this"
+        })
         .help(help)
 }
 
