@@ -16,8 +16,8 @@ use crate::lang::{
 use crate::model::ModelError;
 use crate::pipeline::{self, Shift};
 use crate::session::data_statements::{
-    column_index, default_name, factor_column, factor_error, numeric_values, quote_name,
-    unknown_data_set, unknown_value,
+    column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
+    quote_name, text_for_number, unknown_data_set, unknown_value,
 };
 use crate::session::model_statements::confidence;
 use crate::session::plot_statements::{kind_word, listing};
@@ -765,28 +765,10 @@ impl<'c> Walk<'c> {
                 let numeric = matches!(set.columns[idx].values, Values::Numeric(_));
                 if numeric {
                     if matches!(value.value, Literal::Text(_)) {
-                        self.error(
-                            Diagnostic::new(
-                                value.span,
-                                format!(
-                                    "`{}` is numeric, so it is compared with a number",
-                                    column.value
-                                ),
-                            )
-                            .label("not a number"),
-                        );
+                        self.error(text_for_number(column, &value.value, value.span, false));
                     }
                 } else if !matches!(op, CompareOp::Eq | CompareOp::Ne) {
-                    self.error(
-                        Diagnostic::new(
-                            value.span,
-                            format!(
-                                "`{}` holds text or levels, which can only be tested with ==, != or in",
-                                column.value
-                            ),
-                        )
-                        .label("order comparison on text"),
-                    );
+                    self.error(order_on_text(column, value.span));
                 } else {
                     self.known_value(column, &value.value, value.span);
                 }
@@ -799,16 +781,7 @@ impl<'c> Walk<'c> {
                 for v in values {
                     if numeric {
                         if matches!(v.value, Literal::Text(_)) {
-                            self.error(
-                                Diagnostic::new(
-                                    v.span,
-                                    format!(
-                                        "`{}` is numeric, so its values are numbers",
-                                        column.value
-                                    ),
-                                )
-                                .label("not a number"),
-                            );
+                            self.error(text_for_number(column, &v.value, v.span, true));
                         }
                     } else {
                         self.known_value(column, &v.value, v.span);

@@ -601,14 +601,7 @@ fn check_condition(set: &DataSet, c: &Condition) -> Result<(), Diagnostic> {
                 return Ok(());
             }
             if !matches!(op, CompareOp::Eq | CompareOp::Ne) {
-                return Err(Diagnostic::new(
-                    value.span,
-                    format!(
-                        "`{}` holds text or levels, which can only be tested with ==, != or in",
-                        column.value
-                    ),
-                )
-                .label("order comparison on text"));
+                return Err(order_on_text(column, value.span));
             }
             known_value(set, col, column, value)
         }
@@ -629,8 +622,22 @@ fn check_condition(set: &DataSet, c: &Condition) -> Result<(), Diagnostic> {
     }
 }
 
-/// The error of a numeric column compared with text (`yield_kg > "abc"`).
-fn text_for_number(
+/// The error of a text or factor column compared by order (`site < "north"`). The language
+/// server gives the same.
+pub(crate) fn order_on_text(column: &Spanned<String>, span: Span) -> Diagnostic {
+    Diagnostic::new(
+        span,
+        format!(
+            "`{}` holds text or levels, which can only be tested with ==, != or in",
+            column.value
+        ),
+    )
+    .label("order comparison on text")
+}
+
+/// The error of a numeric column compared with text (`yield_kg > "abc"`); `listed` for a
+/// value of `in (...)`. The language server gives the same.
+pub(crate) fn text_for_number(
     column: &Spanned<String>,
     value: &Literal,
     span: Span,
@@ -762,32 +769,15 @@ fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<
                     *missing = true;
                     false
                 }
-                Some(CellValue::Number(x)) => {
-                    let Literal::Number(v, _) = &value.value else {
-                        return Err(Diagnostic::new(
-                            value.span,
-                            format!(
-                                "`{}` is numeric, so it is compared with a number",
-                                column.value
-                            ),
-                        )
-                        .label("not a number"));
-                    };
-                    compare_numbers(x, *op, *v)
-                }
+                // [`check_condition`] has refused text for a number and an order on text.
+                Some(CellValue::Number(x)) => match &value.value {
+                    Literal::Number(v, _) => compare_numbers(x, *op, *v),
+                    Literal::Text(_) => false,
+                },
                 Some(CellValue::Text(s)) => match op {
                     CompareOp::Eq => s == value.value.as_text(),
                     CompareOp::Ne => s != value.value.as_text(),
-                    _ => {
-                        return Err(Diagnostic::new(
-                            value.span,
-                            format!(
-                            "`{}` holds text or levels, which can only be tested with ==, != or in",
-                            column.value
-                        ),
-                        )
-                        .label("order comparison on text"))
-                    }
+                    _ => false,
                 },
             }
         }
@@ -798,20 +788,9 @@ fn eval(set: &DataSet, c: &Condition, row: usize, missing: &mut bool) -> Result<
                     *missing = true;
                     false
                 }
-                Some(CellValue::Number(x)) => {
-                    let mut hit = false;
-                    for v in values {
-                        let Literal::Number(n, _) = &v.value else {
-                            return Err(Diagnostic::new(
-                                v.span,
-                                format!("`{}` is numeric, so its values are numbers", column.value),
-                            )
-                            .label("not a number"));
-                        };
-                        hit |= x == *n;
-                    }
-                    hit
-                }
+                Some(CellValue::Number(x)) => values
+                    .iter()
+                    .any(|v| matches!(v.value, Literal::Number(n, _) if n == x)),
                 Some(CellValue::Text(s)) => values.iter().any(|v| s == v.value.as_text()),
             }
         }
