@@ -438,7 +438,7 @@ fn draw<'a>(
             .filter(|p| p.group == g)
             .map(|p| (p.x, p.y));
         for (x, y) in pts {
-            draw_marker(&mut ctx, (x, y), g)?;
+            draw_marker(root, &ctx, (x, y), g)?;
         }
     }
     for c in &chart.curves {
@@ -452,7 +452,7 @@ fn draw<'a>(
         )))?;
     }
     for iv in &chart.intervals {
-        draw_marker(&mut ctx, (iv.x, iv.centre), iv.group)?;
+        draw_marker(root, &ctx, (iv.x, iv.centre), iv.group)?;
     }
     if let Some((labels, _)) = &layout.direct {
         direct_labels(root, &ctx, chart, labels, (x_range.1, y_range))?;
@@ -534,9 +534,15 @@ fn direct_labels<'a>(
 
 type Ctx<'a, 'b> = ChartContext<'b, SVGBackend<'a>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
 
-fn draw_marker<'a>(ctx: &mut Ctx<'a, '_>, at: (f64, f64), group: usize) -> DrawResult<'a> {
-    let (x, y) = ctx.backend_coord(&at);
-    marker(&ctx.plotting_area().strip_coord_spec(), (x, y), group)
+/// The marker of `group` at data point `at`, drawn on the whole figure (`root`) so that a
+/// marker at the panel's edge is not cut.
+fn draw_marker<'a>(
+    root: &DrawingArea<SVGBackend<'a>, Shift>,
+    ctx: &Ctx<'a, '_>,
+    at: (f64, f64),
+    group: usize,
+) -> DrawResult<'a> {
+    marker(root, ctx.backend_coord(&at), group)
 }
 
 /// The marker of `group` centred at backend pixel `at`, drawn on `area`: filled, or an
@@ -603,7 +609,7 @@ fn legend<'a>(
         for (k, line) in lines.iter().enumerate() {
             area.draw(&Text::new(
                 line.clone(),
-                (x + LEGEND_TEXT_X, y + LINE * k as i32),
+                (LEGEND_TEXT_X, y + LINE * k as i32),
                 label.clone(),
             ))?;
         }
@@ -626,7 +632,7 @@ fn legend<'a>(
         for (k, line) in lines.iter().enumerate() {
             area.draw(&Text::new(
                 line.clone(),
-                (x + LEGEND_TEXT_X, y + LINE * k as i32),
+                (LEGEND_TEXT_X, y + LINE * k as i32),
                 label.clone(),
             ))?;
         }
