@@ -481,3 +481,43 @@ fn points_by_more_than_twelve_levels_are_refused() {
         "{all}"
     );
 }
+
+/// A row of leverage 1 (the only row of its level) has a standardized residual and a Cook's
+/// distance of 0/0: the quantile and influence figures leave it out and say so, instead of
+/// drawing rounding noise divided by nearly zero.
+#[test]
+fn rows_of_leverage_one_are_left_out_and_said() {
+    let mut csv = String::from("g,x,y\n");
+    for i in 0..12 {
+        let x = f64::from(i);
+        let y = 3.0 + 0.5 * x + f64::from(i % 3) + (f64::from(i) * 1.7).sin();
+        csv.push_str(&format!("{},{x},{y:.3}\n", ["a", "b"][i as usize % 2]));
+    }
+    csv.push_str("alone,4.5,9.25\n");
+    let doc = "```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\nplot quantiles m\nplot influence m\n```\n";
+    let world = MemoryWorld::new().with("d.csv", csv.into_bytes());
+    let run = pipeline::run(doc, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    // However the Markdown escapes the parentheses.
+    let plain = run.rendered.replace('\\', "");
+    for what in [
+        "standardized residual undefined",
+        "Cook's distance undefined",
+    ] {
+        assert!(
+            plain.contains(&format!("; 1 row with leverage 1 left out ({what})")),
+            "{what}:\n{plain}"
+        );
+    }
+    // The level `alone` (the third colour) has its marker in the legend and none in the panel.
+    let third = style::PALETTE[2];
+    let fill = format!("fill=\"#{:02X}{:02X}{:02X}\"", third.0, third.1, third.2);
+    for (path, svg) in &run.figures {
+        assert_eq!(
+            svg.matches(&fill).count(),
+            1,
+            "{path}: the row of leverage 1 is drawn"
+        );
+    }
+}
