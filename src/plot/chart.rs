@@ -745,3 +745,60 @@ fn padded(v: &[f64]) -> (f64, f64) {
     }
     (lo - PAD * w, hi + PAD * w)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn wrapping_keeps_every_character_and_the_width() {
+        let size = style::TEXT_SIZE;
+        for (text, width) in [
+            ("variety number 10", 80.0),
+            ("variety number 10", 500.0),
+            ("averyveryverylongwordwithoutanyspace and more", 60.0),
+            ("", 40.0),
+            ("a  b", 5.0),
+        ] {
+            let lines = wrap(text, width, size);
+            let joined: String = lines.concat().replace(' ', "");
+            assert_eq!(joined, text.replace(' ', ""), "{text:?} at {width}");
+            for l in &lines {
+                // A line is wider than asked only when it is one character.
+                assert!(
+                    text_width(l, size) <= width || l.chars().count() == 1,
+                    "{l:?} of {text:?} at {width}"
+                );
+            }
+        }
+        assert_eq!(
+            wrap("variety number 10", 500.0, size),
+            ["variety number 10"]
+        );
+        assert_eq!(
+            wrap("variety number 10", 80.0, size),
+            ["variety", "number 10"]
+        );
+    }
+
+    #[test]
+    fn category_labels_stand_flat_wrap_or_turn() {
+        let names = |n: usize, f: &dyn Fn(usize) -> String| (1..=n).map(f).collect::<Vec<_>>();
+        let short = names(4, &|i| format!("L{i}"));
+        assert!(
+            matches!(category_layout(&short, 400.0), Categories::Flat(l) if l.iter().all(|x| x.len() == 1))
+        );
+        // Room for either word, not for both on one line.
+        let two_words = names(4, &|i| format!("site number{i}"));
+        let room = text_width("number4", style::TEXT_SIZE) + 2.0;
+        let panel = 4.0 * (room + LABEL_GAP);
+        assert!(
+            matches!(category_layout(&two_words, panel), Categories::Flat(l) if l.iter().all(|x| x.len() == 2))
+        );
+        let long = names(12, &|i| format!("variety number {i}"));
+        assert!(matches!(
+            category_layout(&long, 400.0),
+            Categories::Turned(_)
+        ));
+    }
+}
