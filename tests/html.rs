@@ -133,14 +133,12 @@ fn decode_references(text: &str) -> String {
 /// The hostile document, run and turned into a page.
 fn hostile_page() -> String {
     let world = MemoryWorld::new().with("d.csv", HOSTILE_DATA.as_bytes());
-    let run = pipeline::run(HOSTILE_DOC, "doc.md", &world, RunOptions::default())
+    // The page's title comes from the front matter.
+    let doc = format!("---\ntitle: '<script>alert(8)</script> & \"title\"'\n---\n{HOSTILE_DOC}");
+    let run = pipeline::run(&doc, "doc.md", &world, RunOptions::default())
         .unwrap_or_else(|e| panic!("document does not run: {:?}", e.errors));
     assert!(!run.failed(), "statements failed: {:?}", run.errors);
-    page(
-        "<script>alert(8)</script> & \"title\"",
-        &run.rendered,
-        &run.figures,
-    )
+    page("doc.md", &run.rendered, &run.figures)
 }
 
 #[test]
@@ -292,6 +290,63 @@ fn page_has_covey_style_and_no_script() {
         assert!(html.contains(needed), "missing {needed:?}");
     }
     assert!(!html.to_ascii_lowercase().contains("<script"));
+}
+
+/// The text of the page's `<title>`, decoded.
+fn page_title(html: &str) -> String {
+    let inner = html
+        .split_once("<title>")
+        .and_then(|(_, t)| t.split_once("</title>"))
+        .map_or("", |(t, _)| t);
+    decode_references(inner)
+}
+
+/// A rendered document with YAML front matter: the front matter stays in the Markdown (it is
+/// the author's) and is left out of the page, whose title is the front matter's `title`;
+/// without one, the document's first heading; without either, the file name.
+#[test]
+fn front_matter_is_left_out_of_the_page_and_titles_it() {
+    let data = "g,x,y\na,1,2.0\na,2,2.9\nb,1,3.1\nb,2,4.2\nb,3,4.8\na,3,4.1\n";
+    let world = MemoryWorld::new().with("d.csv", data.as_bytes().to_vec());
+    let block = "```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\n```\n";
+    let run = |doc: &str| {
+        let run = pipeline::run(doc, "trial.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+        assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+        (
+            run.rendered.clone(),
+            page("trial.md", &run.rendered, &run.figures),
+        )
+    };
+
+    let doc = format!(
+        "---\ntitle: 'Oven trial: week 3 & 4'\nauthor: Invented Person\ntags: [ovens]\n---\n\n# Loaves by oven\n\n{block}"
+    );
+    let (rendered, html) = run(&doc);
+    assert!(
+        rendered.starts_with("---\ntitle: 'Oven trial"),
+        "{rendered}"
+    );
+    assert_eq!(page_title(&html), "Oven trial: week 3 & 4");
+    let text = visible_text(&html);
+    assert!(
+        !text.contains("Invented Person") && !text.contains("tags"),
+        "{text}"
+    );
+    assert!(!html.contains("<hr"), "the closing delimiter became a rule");
+    assert!(
+        !html.contains("<h2>title"),
+        "the front matter became a heading"
+    );
+    assert!(text.contains("Loaves by oven") && text.contains("Rendered by covey"));
+
+    let doc = format!("---\nauthor: Invented Person\n---\n\n## Loaves by *oven*\n\n{block}");
+    let (_, html) = run(&doc);
+    assert_eq!(page_title(&html), "Loaves by oven");
+    assert!(!visible_text(&html).contains("Invented Person"));
+
+    let (_, html) = run(&format!("No heading here.\n\n{block}"));
+    assert_eq!(page_title(&html), "trial.md");
 }
 
 // ------------------------------------------------------------ the browser
