@@ -1,6 +1,7 @@
 //! The HTML page: user text is escaped, nothing is fetched from elsewhere,
 //! figures are inline, and a real browser draws a readable page (when one is
-//! installed; CI installs it).
+//! installed; CI installs it, and without one outside CI the browser tests are
+//! reported as ignored, with the reason: see `src/build.rs`).
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -351,8 +352,25 @@ fn front_matter_is_left_out_of_the_page_and_titles_it() {
 
 // ------------------------------------------------------------ the browser
 
-/// Where the browser is expected.
+/// Where the browser is expected (`BROWSER` in `src/build.rs`, which marks the browser tests
+/// as ignored, with the reason, when it is missing outside CI).
 const CHROMIUM: &str = "/usr/bin/chromium";
+
+/// Fails a browser test with the reason when there is no browser: under CI, which must install
+/// one; or when the browser was removed after the tests were built (they are built again at
+/// the next `cargo test`, and then report themselves ignored).
+fn require_browser() {
+    if Path::new(CHROMIUM).exists() {
+        return;
+    }
+    if std::env::var_os("CI").is_some() {
+        panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
+    }
+    panic!(
+        "{CHROMIUM} is missing, though it was there when the tests were built: run `cargo test` \
+         again (the tests are then built again and report the browser tests as ignored)"
+    );
+}
 
 /// How long a screenshot may take before the browser is killed.
 const BROWSER_TIMEOUT: Duration = Duration::from_secs(60);
@@ -467,14 +485,12 @@ fn ink_share(png_path: &Path) -> (f64, u32, u32) {
 }
 
 #[test]
+#[cfg_attr(
+    no_browser,
+    ignore = "no browser: /usr/bin/chromium was missing when the tests were built (install chromium to run it)"
+)]
 fn a_browser_draws_the_page() {
-    if !Path::new(CHROMIUM).exists() {
-        if std::env::var_os("CI").is_some() {
-            panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
-        }
-        eprintln!("note: {CHROMIUM} is not installed; the browser test did not run");
-        return;
-    }
+    require_browser();
     let work = Path::new(env!("CARGO_TARGET_TMPDIR")).join("html-browser");
     let _ = std::fs::remove_dir_all(&work);
     std::fs::create_dir_all(&work).unwrap_or_else(|e| panic!("{e}"));
@@ -509,14 +525,12 @@ fn a_browser_draws_the_page() {
 /// Every worked document, rendered with its figures, opens in the browser
 /// and shows content at a reading width.
 #[test]
+#[cfg_attr(
+    no_browser,
+    ignore = "no browser: /usr/bin/chromium was missing when the tests were built (install chromium to run it)"
+)]
 fn every_worked_document_opens_in_the_browser() {
-    if !Path::new(CHROMIUM).exists() {
-        if std::env::var_os("CI").is_some() {
-            panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
-        }
-        eprintln!("note: {CHROMIUM} is not installed; the browser test did not run");
-        return;
-    }
+    require_browser();
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("worked");
     let work = Path::new(env!("CARGO_TARGET_TMPDIR")).join("html-worked");
     let _ = std::fs::remove_dir_all(&work);
