@@ -1,6 +1,7 @@
 //! The HTML page: user text is escaped, nothing is fetched from elsewhere,
 //! figures are inline, and a real browser draws a readable page (when one is
-//! installed; CI installs it).
+//! installed; CI installs it, and without one outside CI the browser tests are
+//! reported as ignored, with the reason: see `src/build.rs`).
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -133,14 +134,12 @@ fn decode_references(text: &str) -> String {
 /// The hostile document, run and turned into a page.
 fn hostile_page() -> String {
     let world = MemoryWorld::new().with("d.csv", HOSTILE_DATA.as_bytes());
-    let run = pipeline::run(HOSTILE_DOC, "doc.md", &world, RunOptions::default())
+    // The page's title comes from the front matter.
+    let doc = format!("---\ntitle: '<script>alert(8)</script> & \"title\"'\n---\n{HOSTILE_DOC}");
+    let run = pipeline::run(&doc, "doc.md", &world, RunOptions::default())
         .unwrap_or_else(|e| panic!("document does not run: {:?}", e.errors));
     assert!(!run.failed(), "statements failed: {:?}", run.errors);
-    page(
-        "<script>alert(8)</script> & \"title\"",
-        &run.rendered,
-        &run.figures,
-    )
+    page("doc.md", &run.rendered, &run.figures)
 }
 
 #[test]
@@ -294,10 +293,84 @@ fn page_has_covey_style_and_no_script() {
     assert!(!html.to_ascii_lowercase().contains("<script"));
 }
 
+/// The text of the page's `<title>`, decoded.
+fn page_title(html: &str) -> String {
+    let inner = html
+        .split_once("<title>")
+        .and_then(|(_, t)| t.split_once("</title>"))
+        .map_or("", |(t, _)| t);
+    decode_references(inner)
+}
+
+/// A rendered document with YAML front matter: the front matter stays in the Markdown (it is
+/// the author's) and is left out of the page, whose title is the front matter's `title`;
+/// without one, the document's first heading; without either, the file name.
+#[test]
+fn front_matter_is_left_out_of_the_page_and_titles_it() {
+    let data = "g,x,y\na,1,2.0\na,2,2.9\nb,1,3.1\nb,2,4.2\nb,3,4.8\na,3,4.1\n";
+    let world = MemoryWorld::new().with("d.csv", data.as_bytes().to_vec());
+    let block = "```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\n```\n";
+    let run = |doc: &str| {
+        let run = pipeline::run(doc, "trial.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+        assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+        (
+            run.rendered.clone(),
+            page("trial.md", &run.rendered, &run.figures),
+        )
+    };
+
+    let doc = format!(
+        "---\ntitle: 'Oven trial: week 3 & 4'\nauthor: Invented Person\ntags: [ovens]\n---\n\n# Loaves by oven\n\n{block}"
+    );
+    let (rendered, html) = run(&doc);
+    assert!(
+        rendered.starts_with("---\ntitle: 'Oven trial"),
+        "{rendered}"
+    );
+    assert_eq!(page_title(&html), "Oven trial: week 3 & 4");
+    let text = visible_text(&html);
+    assert!(
+        !text.contains("Invented Person") && !text.contains("tags"),
+        "{text}"
+    );
+    assert!(!html.contains("<hr"), "the closing delimiter became a rule");
+    assert!(
+        !html.contains("<h2>title"),
+        "the front matter became a heading"
+    );
+    assert!(text.contains("Loaves by oven") && text.contains("Rendered by covey"));
+
+    let doc = format!("---\nauthor: Invented Person\n---\n\n## Loaves by *oven*\n\n{block}");
+    let (_, html) = run(&doc);
+    assert_eq!(page_title(&html), "Loaves by oven");
+    assert!(!visible_text(&html).contains("Invented Person"));
+
+    let (_, html) = run(&format!("No heading here.\n\n{block}"));
+    assert_eq!(page_title(&html), "trial.md");
+}
+
 // ------------------------------------------------------------ the browser
 
-/// Where the browser is expected.
+/// Where the browser is expected (`BROWSER` in `src/build.rs`, which marks the browser tests
+/// as ignored, with the reason, when it is missing outside CI).
 const CHROMIUM: &str = "/usr/bin/chromium";
+
+/// Fails a browser test with the reason when there is no browser: under CI, which must install
+/// one; or when the browser was removed after the tests were built (they are built again at
+/// the next `cargo test`, and then report themselves ignored).
+fn require_browser() {
+    if Path::new(CHROMIUM).exists() {
+        return;
+    }
+    if std::env::var_os("CI").is_some() {
+        panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
+    }
+    panic!(
+        "{CHROMIUM} is missing, though it was there when the tests were built: run `cargo test` \
+         again (the tests are then built again and report the browser tests as ignored)"
+    );
+}
 
 /// How long a screenshot may take before the browser is killed.
 const BROWSER_TIMEOUT: Duration = Duration::from_secs(60);
@@ -412,14 +485,12 @@ fn ink_share(png_path: &Path) -> (f64, u32, u32) {
 }
 
 #[test]
+#[cfg_attr(
+    no_browser,
+    ignore = "no browser: /usr/bin/chromium was missing when the tests were built (install chromium to run it)"
+)]
 fn a_browser_draws_the_page() {
-    if !Path::new(CHROMIUM).exists() {
-        if std::env::var_os("CI").is_some() {
-            panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
-        }
-        eprintln!("note: {CHROMIUM} is not installed; the browser test did not run");
-        return;
-    }
+    require_browser();
     let work = Path::new(env!("CARGO_TARGET_TMPDIR")).join("html-browser");
     let _ = std::fs::remove_dir_all(&work);
     std::fs::create_dir_all(&work).unwrap_or_else(|e| panic!("{e}"));
@@ -454,14 +525,12 @@ fn a_browser_draws_the_page() {
 /// Every worked document, rendered with its figures, opens in the browser
 /// and shows content at a reading width.
 #[test]
+#[cfg_attr(
+    no_browser,
+    ignore = "no browser: /usr/bin/chromium was missing when the tests were built (install chromium to run it)"
+)]
 fn every_worked_document_opens_in_the_browser() {
-    if !Path::new(CHROMIUM).exists() {
-        if std::env::var_os("CI").is_some() {
-            panic!("{CHROMIUM} is missing: CI must install it (see .ci/run)");
-        }
-        eprintln!("note: {CHROMIUM} is not installed; the browser test did not run");
-        return;
-    }
+    require_browser();
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("worked");
     let work = Path::new(env!("CARGO_TARGET_TMPDIR")).join("html-worked");
     let _ = std::fs::remove_dir_all(&work);

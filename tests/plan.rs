@@ -570,12 +570,13 @@ mod statements {
     }
 
     #[test]
-    fn a_power_figure_has_at_most_seven_lines_and_a_sensible_axis() {
+    fn a_power_figure_has_at_most_twelve_lines_and_a_sensible_axis() {
         let doc = format!(
-            "{SETUP}```covey\nplan q for 3 groups effect f 0.3 power 0.8\nplot power q by f 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8\n```\n"
+            "{SETUP}```covey\nplan q for 3 groups effect f 0.3 power 0.8\nplot power q by f 0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.45, 0.5, 0.55, 0.6, 0.65, 0.7\n```\n"
         );
         let error = run(&doc).errors.join("\n");
-        assert!(error.contains("at most 7 lines"), "{error}");
+        // One line per colour-and-shape pair (`plot::style::STYLES`).
+        assert!(error.contains("at most 12 lines"), "{error}");
         let doc = format!(
             "{SETUP}```covey\nplan q for 3 groups effect f 0.3 power 0.8\nplot power q to 2\n```\n"
         );

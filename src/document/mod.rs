@@ -23,6 +23,7 @@
 //! [`strip`] of an [`assemble`]d document gives back the source byte for byte (a value region
 //! gives back its reference).
 
+pub mod front_matter;
 mod lines;
 mod outline;
 mod regions;

@@ -1650,6 +1650,19 @@ impl Diagnostics {
         }
     }
 
+    /// Standardized (internally studentized) residual e / (s sqrt(1-h)) of a row with
+    /// residual `r` and leverage `h`; NaN at leverage 1, where it is 0/0 (within
+    /// [`LEVERAGE_ONE_TOL`], since such a row's 1 - h comes out of the arithmetic as about
+    /// 1e-16 and its residual as rounding noise), and in an exact fit (s = 0).
+    pub fn standardized(&self, r: f64, h: f64) -> f64 {
+        let one_h = 1.0 - h;
+        if one_h > LEVERAGE_ONE_TOL && self.s2 > 0.0 {
+            r / (self.s2.sqrt() * one_h.sqrt())
+        } else {
+            f64::NAN
+        }
+    }
+
     /// Externally studentized residual e / (s_(i) sqrt(1-h)), s_(i)^2 = (RSS - e^2/(1-h)) /
     /// (df - 1), of a row with residual `r` and leverage `h`; NaN where s_(i) is undefined
     /// and at leverage 1 (0/0).

@@ -649,8 +649,16 @@ fn leverage_one_is_undefined() {
     let d = f.diagnostics();
     assert!(d.cook(r[last], h[last]).is_nan());
     assert!(d.student(r[last], h[last]).is_nan());
+    assert!(d.standardized(r[last], h[last]).is_nan());
     assert!(h[..last].iter().all(|&v| v < 1.0));
     assert!(d.cook(r[0], h[0]).is_finite());
+    let s = f.summary().sigma;
+    close(
+        d.standardized(r[0], h[0]),
+        r[0] / (s * (1.0 - h[0]).sqrt()),
+        1e-14,
+        "standardized residual",
+    );
 }
 
 /// A term that adds nothing (0 df) has an undefined mean square, F, p and effect size.

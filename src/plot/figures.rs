@@ -79,10 +79,23 @@ struct Groups<'a> {
 const NO_GROUP: u16 = u16::MAX;
 
 impl<'a> Groups<'a> {
-    /// Refuses more levels than a legend can hold.
+    /// Refuses more levels than a figure of lines or of levels along the axis can name.
     fn checked(self, req: &Request) -> Result<Groups<'a>, PlotError> {
         if self.labels.len() > super::MAX_LEVELS {
             return Err(PlotError::TooManyLevels {
+                factor: req.factor_name.clone().unwrap_or_default(),
+                levels: self.labels.len(),
+            });
+        }
+        Ok(self)
+    }
+
+    /// Refuses more levels than a scatter of points tells apart: points scattered over the
+    /// panel can be told apart only by colour and shape, and there are
+    /// [`style::STYLES`] of those.
+    fn checked_points(self, req: &Request) -> Result<Groups<'a>, PlotError> {
+        if self.labels.len() > super::MAX_POINT_LEVELS {
+            return Err(PlotError::TooManyPointLevels {
                 factor: req.factor_name.clone().unwrap_or_default(),
                 levels: self.labels.len(),
             });
@@ -336,13 +349,82 @@ fn thousands(n: usize) -> String {
     out
 }
 
-/// A note when there are more levels than distinct styles.
-fn repeat_note(levels: usize) -> &'static str {
-    if levels > style::STYLES {
-        " Colours and markers repeat after the seventh level."
-    } else {
-        ""
+/// What a figure says about rows whose value is undefined and so not drawn.
+struct LeftOut {
+    /// A sentence for the alternative text (empty when none).
+    sentence: String,
+    /// A clause for the caption (empty when none).
+    clause: String,
+}
+
+/// [`LeftOut`] for `count` rows whose `what` is 0/0: rows of leverage 1, or every row when
+/// the fit is `exact` (no residual variance).
+fn undefined_note(count: usize, what: &str, exact: bool) -> LeftOut {
+    let (rows, verb) = match count {
+        0 => {
+            return LeftOut {
+                sentence: String::new(),
+                clause: String::new(),
+            }
+        }
+        _ if exact => {
+            return LeftOut {
+                sentence: format!(
+                    " The fit is exact (residual standard deviation 0), so every {what} is undefined (0/0) and none is drawn."
+                ),
+                clause: format!("; none drawn: the fit is exact, so every {what} is undefined"),
+            }
+        }
+        1 => ("1 row".to_string(), "has"),
+        k => (format!("{} rows", thousands(k)), "have"),
+    };
+    LeftOut {
+        sentence: format!(
+            " {rows} with leverage 1 (such as the only row of a level) {verb} an undefined {what} (0/0) and {} not drawn.",
+            if count == 1 { "is" } else { "are" }
+        ),
+        clause: format!("; {rows} with leverage 1 left out ({what} undefined)"),
     }
+}
+
+/// How the levels of a figure with more of them than distinct styles are told apart.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Named {
+    /// Each line is labelled at its right end.
+    AtLineEnds,
+    /// Each level stands at its own place along the axis, which names it.
+    OnTheAxis,
+}
+
+/// The sentence for a caption (and the alternative text) when there are more levels than
+/// distinct styles: that colours and shapes repeat, and how each level is named instead.
+fn repeat_note(levels: usize, named: Named) -> String {
+    if levels <= style::STYLES {
+        return String::new();
+    }
+    let how = match named {
+        Named::AtLineEnds => "each line is labelled with its level at its right end",
+        Named::OnTheAxis => "each level is named on the axis",
+    };
+    format!(
+        " Colours and marker shapes repeat after the {}th level; {how}.",
+        style::STYLES
+    )
+}
+
+/// [`repeat_note`] as a clause at the end of a caption.
+fn repeat_clause(levels: usize, named: Named) -> String {
+    if levels <= style::STYLES {
+        return String::new();
+    }
+    let how = match named {
+        Named::AtLineEnds => "each line labelled at its end",
+        Named::OnTheAxis => "each level named on the axis",
+    };
+    format!(
+        "; colours and marker shapes repeat after the {}th level, {how}",
+        style::STYLES
+    )
 }
 
 fn by_factor(req: &Request) -> String {
@@ -491,14 +573,15 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
             ""
         },
         others,
-        repeat_note(groups.labels.len()),
+        repeat_note(groups.labels.len(), Named::AtLineEnds),
     );
     let caption = format!(
-        "{} against {}{}, fitted lines{}",
+        "{} against {}{}, fitted lines{}{}",
         req.response_name,
         x_name,
         by_factor(req),
-        note
+        note,
+        repeat_clause(groups.labels.len(), Named::AtLineEnds)
     );
     let chart = Chart {
         x_label: req.covariate_label.clone().unwrap_or_default(),
@@ -524,7 +607,7 @@ pub fn lines(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 /// `plot residuals`: residuals against fitted values (or against covariate X), zero line.
 pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let rows = Rows::of(fit);
-    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let groups = Groups::of(fit, &rows, req.factor).checked_points(req)?;
     let covariate = var_values(fit, req.covariate);
     let (rows, groups) = (&rows, &groups);
     // Each block's residuals (and fitted values) are computed as the block is read.
@@ -562,12 +645,11 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     // A weighted model's residuals are the weighted ones, sqrt(w) times the residual.
     let weighted = if fit.is_weighted() { "weighted " } else { "" };
     let alt = format!(
-        "Scatter of the {weighted}residuals of {} against {}{}, with a horizontal line at zero{}.{}",
+        "Scatter of the {weighted}residuals of {} against {}{}, with a horizontal line at zero{}.",
         req.response_name,
         against,
         marked_by(req),
         note,
-        repeat_note(groups.labels.len())
     );
     let caption = format!(
         "{}esiduals against {against}{note}",
@@ -606,21 +688,23 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
 pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
     let rows = Rows::of(fit);
-    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
-    let s = fit.summary().sigma;
+    let groups = Groups::of(fit, &rows, req.factor).checked_points(req)?;
     let mut r: Vec<(f64, usize)> = Vec::new();
     let (residuals, leverage) = (fit.residuals(0..d.len()), fit.leverages(0..d.len()));
+    // A row of leverage 1 has a standardized residual of 0/0: it is left out and counted.
+    let mut undefined = 0usize;
     for ((e, h), g) in residuals.iter().zip(leverage.iter()).zip(groups.rows()) {
-        let one_h = 1.0 - h;
         if let Some(g) = g {
-            if one_h > 0.0 && s > 0.0 {
-                let v = e / (s * one_h.sqrt());
-                if v.is_finite() {
-                    r.push((v, g));
-                }
+            let v = d.standardized(*e, *h);
+            if v.is_finite() {
+                r.push((v, g));
+            } else {
+                undefined += 1;
             }
         }
     }
+    let exact = fit.summary().sigma <= 0.0;
+    let left_out = undefined_note(undefined, "standardized residual", exact);
     r.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
     let n = r.len();
     let normal = Normal::new(0.0, 1.0).map_err(|_| PlotError::NothingToDraw)?;
@@ -641,10 +725,13 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         req.response_name,
         marked_by(req),
         note,
-        repeat_note(groups.labels.len())
+        left_out.sentence
     );
     let weighted = if fit.is_weighted() { "weighted " } else { "" };
-    let caption = format!("Normal quantiles of standardized {weighted}residuals{note}");
+    let caption = format!(
+        "Normal quantiles of standardized {weighted}residuals{note}{}",
+        left_out.clause
+    );
     let chart = Chart {
         x_label: "normal quantile (Blom)".to_string(),
         y_label: format!("standardized {weighted}residual"),
@@ -713,11 +800,12 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         fname,
         adjusted,
         others,
-        repeat_note(labels.len())
+        repeat_note(labels.len(), Named::OnTheAxis)
     );
     let caption = format!(
-        "Adjusted means of {} by {fname}, 95% intervals",
-        req.response_name
+        "Adjusted means of {} by {fname}, 95% intervals{}",
+        req.response_name,
+        repeat_clause(labels.len(), Named::OnTheAxis)
     );
     let chart = Chart {
         x_label: fname.clone(),
@@ -825,11 +913,12 @@ pub fn interaction(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         bname,
         adjusted,
         gaps,
-        repeat_note(b_levels.len())
+        repeat_note(b_levels.len(), Named::AtLineEnds)
     );
     let caption = format!(
-        "Adjusted means of {} by {fname} and {bname}, 95% intervals",
-        req.response_name
+        "Adjusted means of {} by {fname} and {bname}, 95% intervals{}",
+        req.response_name,
+        repeat_clause(b_levels.len(), Named::AtLineEnds)
     );
     let chart = Chart {
         x_label: fname,
@@ -856,10 +945,12 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     let d = fit.diagnostics();
     let (residuals, leverage) = (fit.residuals(0..d.len()), fit.leverages(0..d.len()));
     let rows = Rows::of(fit);
-    let groups = Groups::of(fit, &rows, req.factor).checked(req)?;
+    let groups = Groups::of(fit, &rows, req.factor).checked_points(req)?;
     let mut points = Vec::new();
     let lines = &fit.spec().row_numbers;
     let row_line = |i: usize| lines.get(i).unwrap_or(i);
+    // A row of leverage 1 has a Cook's distance of 0/0: it is left out and counted.
+    let mut undefined = 0usize;
     for ((r, c), g) in rows
         .index
         .iter()
@@ -867,14 +958,17 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         .zip(d.cooks_distances(&residuals, &leverage))
         .zip(groups.rows())
     {
-        if let (Some(g), true) = (g, c.is_finite()) {
-            points.push(Point {
+        match (g, c.is_finite()) {
+            (Some(g), true) => points.push(Point {
                 group: g,
                 x: r as f64,
                 y: c,
-            });
+            }),
+            (Some(_), false) => undefined += 1,
+            (None, _) => {}
         }
     }
+    let left_out = undefined_note(undefined, "Cook's distance", fit.summary().sigma <= 0.0);
     let n = d.len();
     let shown = points.len();
     let note = if shown > MAX_POINTS {
@@ -906,9 +1000,9 @@ pub fn influence(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         above,
         n,
         note,
-        repeat_note(groups.labels.len())
+        left_out.sentence
     );
-    let caption = format!("Cook's distance by row{note}");
+    let caption = format!("Cook's distance by row{note}{}", left_out.clause);
     let chart = Chart {
         x_label: "row in data file".to_string(),
         y_label: "Cook's distance".to_string(),
@@ -989,9 +1083,13 @@ pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         req.response_name,
         fname,
         note,
-        repeat_note(k)
+        repeat_note(k, Named::OnTheAxis)
     );
-    let caption = format!("{} by {fname}{note}", req.response_name);
+    let caption = format!(
+        "{} by {fname}{note}{}",
+        req.response_name,
+        repeat_clause(k, Named::OnTheAxis)
+    );
     let chart = Chart {
         x_label: fname.clone(),
         y_label: req.response_label.clone(),

@@ -2,8 +2,9 @@
 //! residuals, normal quantiles, adjusted means, influence and the raw data by level; and
 //! the power curves of a plan ([`power`]).
 //!
-//! Every figure has the same size and look ([`style`]), a legend beside the panel, one
-//! colour and one marker shape per level, and is byte-for-byte the same on every run: no
+//! Every figure has the same width and look ([`style`]), a legend beside the panel whose
+//! long names wrap, one colour and one marker shape per level (up to [`style::STYLES`]
+//! levels), and is byte-for-byte the same on every run: no
 //! random state, no hash-map order, the font embedded. At most
 //! [`figures::MAX_POINTS`] markers are drawn; beyond that, points are thinned
 //! deterministically and the caption says so.
@@ -18,9 +19,16 @@ use std::fmt;
 use crate::lang::PlotKind;
 use crate::model::{Fit, ModelError};
 
-/// Most levels a figure tells apart: what the legend column can list (each of the seven
-/// styles used twice at most).
+/// Most levels a figure of lines or of levels along the axis shows. Up to
+/// [`style::STYLES`] levels each have their own colour and marker shape; beyond that the
+/// styles repeat, and each line is labelled at its end, or each level stands at its own
+/// place on the axis, which names it.
 pub const MAX_LEVELS: usize = 14;
+
+/// Most levels a scatter of points (residuals, quantiles, influence) tells apart: points
+/// spread over the panel are told apart by colour and marker shape alone, so no more levels
+/// than there are styles.
+pub const MAX_POINT_LEVELS: usize = style::STYLES;
 
 /// What a figure is asked for, with names already resolved against the model.
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -67,6 +75,8 @@ pub enum PlotError {
     NothingToDraw,
     /// The factor has more levels than a figure can tell apart.
     TooManyLevels { factor: String, levels: usize },
+    /// The factor has more levels than a scatter of points can tell apart.
+    TooManyPointLevels { factor: String, levels: usize },
 }
 
 impl fmt::Display for PlotError {
@@ -82,6 +92,10 @@ impl fmt::Display for PlotError {
             PlotError::TooManyLevels { factor, levels } => write!(
                 f,
                 "`{factor}` has {levels} levels; a figure tells at most {MAX_LEVELS} apart"
+            ),
+            PlotError::TooManyPointLevels { factor, levels } => write!(
+                f,
+                "`{factor}` has {levels} levels; points are told apart by {MAX_POINT_LEVELS} colours and marker shapes at most: leave out `for {factor}` (all points alike), or draw `plot groups` (each level at its own place)"
             ),
         }
     }

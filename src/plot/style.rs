@@ -22,11 +22,13 @@ pub const INK: RGBColor = RGBColor(0x33, 0x33, 0x33);
 /// Reference lines (zero, y = x, thresholds) and level means: a mid grey that no level uses.
 pub const GUIDE: RGBColor = RGBColor(0x6E, 0x6E, 0x6E);
 
-/// The colours of levels, in level order: the palette of Okabe & Ito (2008), "Color
-/// Universal Design (CUD): how to make figures and presentations that are friendly to
-/// colorblind people", J*FLY. Yellow, weakest on a light page, is last; black is left out
-/// because the text is near black.
-pub const PALETTE: [RGBColor; 7] = [
+/// The colours of levels, in level order. The first seven are the palette of Okabe & Ito
+/// (2008), "Color Universal Design (CUD): how to make figures and presentations that are
+/// friendly to colorblind people", J*FLY, with yellow, weakest on a light page, last and black
+/// left out because the text is near black. The last five are covey's own: deep tones, darker
+/// than every one of the first seven, so that they differ from them in lightness (and so in
+/// grey) as well as in hue; each is paired with an open marker shape ([`SHAPES`]).
+pub const PALETTE: [RGBColor; STYLES] = [
     RGBColor(0x00, 0x72, 0xB2), // blue
     RGBColor(0xD5, 0x5E, 0x00), // vermillion
     RGBColor(0x00, 0x9E, 0x73), // bluish green
@@ -34,6 +36,11 @@ pub const PALETTE: [RGBColor; 7] = [
     RGBColor(0xE6, 0x9F, 0x00), // orange
     RGBColor(0x56, 0xB4, 0xE9), // sky blue
     RGBColor(0xF0, 0xE4, 0x42), // yellow
+    RGBColor(0x3A, 0x2C, 0x8C), // indigo
+    RGBColor(0x9B, 0x23, 0x2E), // brick red
+    RGBColor(0x4A, 0x6B, 0x12), // moss green
+    RGBColor(0x7A, 0x45, 0x19), // umber
+    RGBColor(0x70, 0x1F, 0x66), // plum
 ];
 
 /// A marker shape. Each level gets its own, so that a figure printed in grey still tells
@@ -47,10 +54,18 @@ pub enum Shape {
     TriangleDown,
     Plus,
     Cross,
+    /// A five-pointed star, filled.
+    Star,
+    /// The open shapes: outlines only.
+    Ring,
+    OpenSquare,
+    OpenTriangle,
+    OpenDiamond,
 }
 
-/// The marker shapes of levels, in level order (as many as colours).
-pub const SHAPES: [Shape; 7] = [
+/// The marker shapes of levels, in level order (as many as colours): level i has colour i
+/// and shape i, so the first [`STYLES`] levels differ from each other in both.
+pub const SHAPES: [Shape; STYLES] = [
     Shape::Circle,
     Shape::Triangle,
     Shape::Square,
@@ -58,10 +73,16 @@ pub const SHAPES: [Shape; 7] = [
     Shape::TriangleDown,
     Shape::Plus,
     Shape::Cross,
+    Shape::Star,
+    Shape::Ring,
+    Shape::OpenSquare,
+    Shape::OpenTriangle,
+    Shape::OpenDiamond,
 ];
 
-/// Number of distinct level styles; levels beyond it repeat them (and the caption says so).
-pub const STYLES: usize = 7;
+/// Number of distinct level styles (colour and shape together); levels beyond it repeat them
+/// in the same order, and the figure says so and names each line or group directly.
+pub const STYLES: usize = 12;
 
 /// Colour of level `i` (0-based).
 pub fn colour(i: usize) -> RGBColor {
@@ -73,21 +94,47 @@ pub fn shape(i: usize) -> Shape {
     SHAPES.get(i % STYLES).copied().unwrap_or(Shape::Circle)
 }
 
+/// Stroke width of an open marker's outline, in pixels.
+pub const OPEN_STROKE: u32 = 2;
+
 /// Half-size of a marker in pixels.
 pub const MARKER: i32 = 4;
 
 impl Shape {
-    /// Vertices of the shape around (0, 0) in pixels (y down); `None` for the circle.
+    /// Whether the shape is drawn as an outline ([`OPEN_STROKE`] wide) rather than filled.
+    pub fn is_open(self) -> bool {
+        matches!(
+            self,
+            Shape::Ring | Shape::OpenSquare | Shape::OpenTriangle | Shape::OpenDiamond
+        )
+    }
+
+    /// Vertices of the shape around (0, 0) in pixels (y down); `None` for the circle and
+    /// the ring.
     pub fn outline(self) -> Option<Vec<(i32, i32)>> {
         let s = MARKER;
         let t = MARKER + 1;
         let w = 2; // half-width of the bars of plus and cross
         Some(match self {
-            Shape::Circle => return None,
-            Shape::Triangle => vec![(0, -t), (t, s), (-t, s)],
+            Shape::Circle | Shape::Ring => return None,
+            Shape::Triangle | Shape::OpenTriangle => vec![(0, -t), (t, s), (-t, s)],
             Shape::TriangleDown => vec![(0, t), (t, -s), (-t, -s)],
-            Shape::Square => vec![(-s, -s), (s, -s), (s, s), (-s, s)],
-            Shape::Diamond => vec![(0, -t), (t, 0), (0, t), (-t, 0)],
+            Shape::Square | Shape::OpenSquare => vec![(-s, -s), (s, -s), (s, s), (-s, s)],
+            Shape::Diamond | Shape::OpenDiamond => vec![(0, -t), (t, 0), (0, t), (-t, 0)],
+            // Points at radius 6 and inner corners at about half of it, fuller than a
+            // regular star so that so small a marker keeps some area; whole pixels.
+            Shape::Star => vec![
+                (0, -6),
+                (2, -2),
+                (6, -2),
+                (3, 1),
+                (4, 5),
+                (0, 3),
+                (-4, 5),
+                (-3, 1),
+                (-6, -2),
+                (-2, -2),
+            ],
             Shape::Plus => vec![
                 (-w, -t),
                 (w, -t),

@@ -32,9 +32,21 @@ use comrak::options::Plugins;
 use crate::document::{OUTPUT_BEGIN, OUTPUT_END, PROVENANCE_BEGIN, PROVENANCE_END};
 
 /// The HTML page of a rendered document: `markdown` is the rendering,
-/// `figures` the (relative path, SVG) pairs it links.
-pub fn page(title: &str, markdown: &str, figures: &[(String, String)]) -> String {
-    let body = body(markdown, figures);
+/// `figures` the (relative path, SVG) pairs it links. YAML front matter is
+/// left out of the page; the page's title is the front matter's `title`
+/// ([`crate::document::front_matter::title`]), else the text of the
+/// document's first heading, else `name` (the document's file name).
+pub fn page(name: &str, markdown: &str, figures: &[(String, String)]) -> String {
+    use crate::document::front_matter;
+    let (yaml, markdown) = match front_matter::front_matter(markdown) {
+        Some((yaml, end)) => (Some(yaml), markdown.get(end..).unwrap_or("")),
+        None => (None, markdown),
+    };
+    let (body, heading) = body(markdown, figures);
+    let title = yaml
+        .and_then(front_matter::title)
+        .or(heading)
+        .unwrap_or_else(|| name.to_string());
     format!(
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
          <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n\
@@ -42,7 +54,7 @@ pub fn page(title: &str, markdown: &str, figures: &[(String, String)]) -> String
          <meta name=\"generator\" content=\"covey {}\">\n\
          <title>{}</title>\n<style>\n{STYLE}</style>\n</head>\n<body>\n<main>\n{body}</main>\n</body>\n</html>\n",
         env!("CARGO_PKG_VERSION"),
-        escape(&crate::report::visible::visible(title))
+        escape(&crate::report::visible::visible(&title))
     )
 }
 
@@ -52,25 +64,39 @@ pub fn page(title: &str, markdown: &str, figures: &[(String, String)]) -> String
 const POLICY: &str = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; \
                       base-uri 'none'; form-action 'none'";
 
-/// The body of the page: the Markdown as HTML, with figures inline.
-fn body(markdown: &str, figures: &[(String, String)]) -> String {
+/// The body of the page: the Markdown as HTML, with figures inline; and the
+/// text of the first heading, if there is one with any text.
+fn body(markdown: &str, figures: &[(String, String)]) -> (String, Option<String>) {
     let options = options();
     let arena = comrak::Arena::new();
     let root = comrak::parse_document(&arena, markdown, &options);
     images_to_links(&arena, root, figures);
+    let heading = root
+        .descendants()
+        .filter(|n| matches!(n.data().value, NodeValue::Heading(_)))
+        .map(|n| alt_text(n).split_whitespace().collect::<Vec<_>>().join(" "))
+        .find(|t| !t.is_empty());
     let mut out = String::new();
     let state = State {
         figures,
         region: None,
     };
     let plugins = Plugins::default();
-    match format_document_with_formatter(root, &options, &mut out, &plugins, format_node, state) {
+    let html = match format_document_with_formatter(
+        root,
+        &options,
+        &mut out,
+        &plugins,
+        format_node,
+        state,
+    ) {
         Ok(_) => out,
         // Writing into a String cannot fail, and neither can our formatter;
         // should comrak ever report an error, the reader still gets the
         // text, escaped.
         Err(fmt::Error) => format!("<pre>{}</pre>\n", escape(markdown)),
-    }
+    };
+    (html, heading)
 }
 
 /// Whether an image's address names the figure drawn at `path`: as covey links it
@@ -267,7 +293,8 @@ fn has_long_token(text: &str) -> bool {
         .any(|word| word.chars().count() >= LONG_TOKEN)
 }
 
-/// The alternative text of an image node: the text of its description.
+/// The alternative text of an image node: the text of its description (and
+/// the text of any other node: a heading's, for the page title).
 fn alt_text<'a>(node: &'a AstNode<'a>) -> String {
     let mut alt = String::new();
     for d in node.descendants() {
@@ -645,6 +672,44 @@ img { max-width: 100%; height: auto; }
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The text between `<title>` and `</title>`, and the body.
+    fn title_and_body(html: &str) -> (&str, &str) {
+        let title = html
+            .split_once("<title>")
+            .and_then(|(_, t)| t.split_once("</title>"))
+            .map_or("", |(t, _)| t);
+        let body = html.split_once("<main>").map_or("", |(_, b)| b);
+        (title, body)
+    }
+
+    #[test]
+    fn front_matter_is_left_out_and_gives_the_title() {
+        let md =
+            "---\ntitle: \"Oven <trial> & co\"\nauthor: A. Baker\n---\n\n# Heading one\n\nText.\n";
+        let html = page("doc.md", md, &[]);
+        let (title, body) = title_and_body(&html);
+        assert_eq!(title, "Oven &lt;trial&gt; &amp; co");
+        assert!(!body.contains("<hr"), "{body}");
+        assert!(
+            !body.contains("author") && !body.contains("title:"),
+            "{body}"
+        );
+        assert!(body.contains("<h1>Heading one</h1>"), "{body}");
+
+        // No title in the front matter: the first heading's text, code spans and all.
+        let md = "---\nauthor: A. Baker\n---\nIntro.\n\n## The `oven` *trial*\n\n# Later\n";
+        let html = page("doc.md", md, &[]);
+        assert_eq!(title_and_body(&html).0, "The oven trial");
+        assert!(!title_and_body(&html).1.contains("author"));
+
+        // Neither: the file name.
+        let html = page("doc.md", "Just text.\n", &[]);
+        assert_eq!(title_and_body(&html).0, "doc.md");
+        // A rule and a heading later in the document are not front matter.
+        let html = page("doc.md", "Text.\n\n---\ntitle: x\n---\n", &[]);
+        assert!(title_and_body(&html).1.contains("<hr"));
+    }
 
     #[test]
     fn svg_loses_scripts_handlers_and_outside_links() {

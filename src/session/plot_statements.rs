@@ -151,7 +151,7 @@ impl Session<'_> {
             (_, None) => None,
         };
         let too_many = |i: usize| match spec.vars.get(i) {
-            Some(Var::Factor { levels, .. }) => levels.len() > plot::MAX_LEVELS,
+            Some(Var::Factor { levels, .. }) => levels.len() > plot::MAX_POINT_LEVELS,
             _ => false,
         };
         let f = match factor {
