@@ -177,10 +177,16 @@ fn rows_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> S
     for stmt in &before {
         match &stmt.kind {
             StatementKind::Missing { markers: m } => markers = m.clone(),
-            StatementKind::Load { path, .. } => match data.lookup(folder, &path.value, &markers) {
-                Lookup::Ready(s) => bytes += s.bytes,
-                _ => return "rows used: not known until its data are read".to_string(),
-            },
+            StatementKind::Load { path, clauses, .. } => {
+                match data.lookup(folder, &path.value, clauses, &markers) {
+                    Lookup::Ready(s) => bytes += s.bytes,
+                    _ => return "rows used: not known until its data are read".to_string(),
+                }
+            }
+            // The language server never connects to a database.
+            StatementKind::LoadDatabase { .. } => {
+                return "rows used: not known here for data from a database (`covey render` tells them)".to_string()
+            }
             _ => {}
         }
     }
