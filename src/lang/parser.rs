@@ -125,6 +125,10 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, .. } => {
             let mut wanted: Vec<&str> = positives.iter().map(|r| describe(*r)).collect();
+            // After `load`: a path, or `database NAME`, said as one thing.
+            if positives.contains(&Rule::kw_database) && positives.contains(&Rule::text) {
+                wanted = vec!["the data file's path in double quotes (or a parameter, or `database NAME`)"];
+            }
             wanted.sort_unstable();
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {

@@ -113,7 +113,7 @@ pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
 
 /// A `@NAME` at `at` in `source`: its span and name.
 pub fn parameter_at(source: &str, at: usize) -> Option<(Span, String)> {
-    let is_name = |c: char| c.is_ascii_alphanumeric() || c == '_' || c == '.';
+    let is_name = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
     let at = super::position::floor_boundary(source, at);
     let start = source[..at]
         .char_indices()

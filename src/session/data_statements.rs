@@ -293,9 +293,9 @@ impl Session<'_> {
             ..InputRecord::default()
         };
         let sentence = format!(
-            "Loaded {}, {}, as data set {}: {} rows, {} columns (SHA-256 `{}`); rows are named by the sheet's own row numbers.",
+            "Loaded {}, sheet {}, as data set {}: {} rows, {} columns (SHA-256 `{}`); rows are named by the sheet's own row numbers.",
             code(&path.value),
-            crate::report::markdown::escape(&part),
+            code(&read.sheet),
             code(set_name),
             read.set.n_rows(),
             read.set.columns.len(),
@@ -830,13 +830,8 @@ pub(crate) fn default_name(path: &str) -> String {
 
 /// A column name as it must be written in a statement.
 pub(crate) fn quote_name(name: &str) -> String {
-    let bare = name
-        .chars()
-        .next()
-        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
-        && name
-            .chars()
-            .all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.');
+    // Bare exactly when the grammar reads it as one name (letters of any script).
+    let bare = crate::lang::parser::is_whole(crate::lang::parser::Rule::ident, name);
     if bare {
         name.to_string()
     } else {
@@ -855,6 +850,12 @@ pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<us
                 format!("data set `{}` has no column `{}`", set.name, column.value),
             )
             .label("unknown column");
+            // An unquoted word that starts a name with spaces: the name, quoted.
+            if let Some(q) = super::derived::quoted_suggestion(set, &column.value) {
+                return d.help(format!(
+                    "a column name with spaces is written in double quotes: did you mean {q}?"
+                ));
+            }
             d = match set.closest_name(&column.value) {
                 Some(c) => d.help(format!("did you mean `{c}`?")),
                 None => {

@@ -72,7 +72,7 @@ impl Eval<'_> {
             value: name.to_string(),
             span,
         };
-        let i = column_index(self.set, &column).map_err(|d| with_quoted_hint(self.set, d, name))?;
+        let i = column_index(self.set, &column)?;
         numeric_values(self.set, i, &column)
     }
 
@@ -170,15 +170,6 @@ fn inputs(e: &Expr, out: &mut Vec<(String, Span)>) {
     }
 }
 
-/// An unknown-column error for an unquoted word that begins a column name with spaces gets
-/// the quoted name as its hint (`yield` for the column `yield kg`).
-pub(crate) fn with_quoted_hint(set: &DataSet, d: Diagnostic, word: &str) -> Diagnostic {
-    match quoted_suggestion(set, word) {
-        Some(q) => d.help(format!("column names with spaces are quoted: did you mean {q}?")),
-        None => d,
-    }
-}
-
 /// The quoted name of a column whose name starts with `word` followed by a space, if any.
 pub(crate) fn quoted_suggestion(set: &DataSet, word: &str) -> Option<String> {
     set.columns
@@ -203,7 +194,7 @@ pub(crate) fn evaluate(set: &DataSet, expr: &Expr) -> Result<Vec<f64>, Diagnosti
             value: name.clone(),
             span: *span,
         };
-        let i = column_index(set, &column).map_err(|d| with_quoted_hint(set, d, name))?;
+        let i = column_index(set, &column)?;
         let values = numeric_values(set, i, &column)?;
         for (m, x) in missing.iter_mut().zip(values.iter()) {
             *m |= x.is_nan();

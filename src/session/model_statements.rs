@@ -22,9 +22,7 @@ impl Session<'_> {
     pub(super) fn model(&mut self, decl: &ModelDecl, span: Span) -> Outcome {
         let set = self.current(span)?;
         let si = self.current.unwrap_or(0);
-        let ridx = column_index(set, &decl.response).map_err(|d| {
-            super::derived::with_quoted_hint(set, d, &decl.response.value)
-        })?;
+        let ridx = column_index(set, &decl.response)?;
         let plain = numeric_values(set, ridx, &decl.response)?;
         // A transformed response (`log(y)`) is fitted on its scale; long cells (e.g.
         // 1000000000000.4) come with exact residuals about an offset.
