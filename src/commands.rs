@@ -484,28 +484,35 @@ pub(crate) fn prepare_documents(
         } else {
             Role::Rendering
         };
-        plan.output(
-            targets.rendering.clone(),
-            run.rendered.as_bytes(),
-            role,
-            doc,
-        );
-        if let Some(html) = &targets.html {
+        // The rendering and the figures move into the plan: a long document's outputs are
+        // held once, not copied. The rendering is planned first, so that a path it shares with
+        // another output is reported as the rendering's.
+        let page = targets.html.as_ref().map(|html| {
             let page = crate::report::html::page(&display_name(doc), &run.rendered, &run.figures);
-            plan.output(html.clone(), page, Role::Html, doc);
+            (html.clone(), page)
+        });
+        let exported = opts
+            .json
+            .as_ref()
+            .map(|j| (j.clone(), json::to_text(&run.json())));
+        let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
+        let failed = run.failed();
+        plan.output(targets.rendering.clone(), run.rendered, role, doc);
+        if let Some((path, page)) = page {
+            plan.output(path, page, Role::Html, doc);
         }
-        if let Some(j) = &opts.json {
-            plan.output(j.clone(), json::to_text(&run.json()), Role::Json, doc);
+        if let Some((path, text)) = exported {
+            plan.output(path, text, Role::Json, doc);
         }
         let figures = run
             .figures
-            .iter()
-            .map(|(rel, svg)| (targets.folder.join(rel), svg.as_bytes().to_vec()))
+            .into_iter()
+            .map(|(rel, svg)| (targets.folder.join(rel), svg.into_bytes()))
             .collect();
         plan.figures(targets.figures.clone(), doc, figures);
         done.push(format!(
             "{}: {} -> {}",
-            if run.failed() {
+            if failed {
                 "rendered with errors"
             } else {
                 "rendered"
@@ -513,7 +520,6 @@ pub(crate) fn prepare_documents(
             doc.display(),
             targets.rendering.display()
         ));
-        let in_place = opts.in_place.then(|| Digest::of(run.rendered.as_bytes()));
         reads.push((doc.clone(), seen, in_place));
     }
     let batch = match plan.check() {

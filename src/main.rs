@@ -157,6 +157,9 @@ fn put(stream: &mut dyn Write, line: &str, failed: &mut Option<std::io::Error>) 
     if failed.is_some() {
         return ControlFlow::Break(());
     }
+    // A name the user gave (a document's, a data file's) may hold characters a terminal would
+    // obey or hide; they are written as `<U+XXXX>`, as in the renderings.
+    let line = covey::report::visible::visible_except(line, &['\n', '\t']);
     match writeln!(stream, "{line}").and_then(|()| stream.flush()) {
         Ok(()) => ControlFlow::Continue(()),
         Err(e) => {

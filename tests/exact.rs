@@ -261,7 +261,7 @@ fn check_case(case: &Value, worst: &mut Worst) {
                     );
                 }
             }
-        } else if statement.starts_with("table pairs") {
+        } else if statement.starts_with("table differences") {
             for w in want.as_array().into_iter().flatten() {
                 let (a, b) = (&w["first"], &w["second"]);
                 let r = got

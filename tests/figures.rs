@@ -49,7 +49,7 @@ fn painted_pixels(svg: &str) -> usize {
 #[test]
 fn every_fixture_figure_parses_and_is_not_blank() {
     let figures = fixture_figures();
-    assert_eq!(figures.len(), 11, "the fixture draws eleven figures");
+    assert_eq!(figures.len(), 12, "the fixture draws twelve figures");
     for (path, svg) in &figures {
         roxmltree::Document::parse(svg).unwrap_or_else(|e| panic!("{path}: not XML: {e}"));
         let painted = painted_pixels(svg);

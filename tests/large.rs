@@ -108,6 +108,7 @@ fn spec(d: &Data) -> ModelSpec {
         intercept: true,
         row_numbers: (2..ROWS + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     }
 }
 

@@ -233,12 +233,12 @@ fn a_table_of_too_many_pairs_is_refused() {
     write(&dir.join("d.csv"), &grouped(1206, 201));
     write(
         &dir.join("doc.md"),
-        &doc("load \"d.csv\"\nfactor group\nmodel m: y on group + x\ntable means m for group\ntable pairs m for group"),
+        &doc("load \"d.csv\"\nfactor group\nmodel m: y on group + x\ntable means m for group\ntable differences m for group"),
     );
     let (code, err) = covey(&dir, &["render", "doc.md"]);
     assert_eq!(code, 2, "{err}");
     assert!(
-        err.contains("doc.md:8:19: error: `group` has 201 levels, which make 20100 pairs"),
+        err.contains("doc.md:8:25: error: `group` has 201 levels, which make 20100 pairs"),
         "{err}"
     );
     // The means of all 201 levels were given.

@@ -299,7 +299,7 @@ fn a_session_answers_real_protocol_messages() {
         json!({"textDocument": {"uri": u, "version": 5}, "contentChanges": [{"text": edit}]}),
     );
     let got = labels(&c.at("textDocument/completion", &u, line, ch + 1));
-    assert_eq!(got, ["at", "level"]);
+    assert_eq!(got, ["by", "at", "robust", "level"]);
     // The factors of the model after `for`.
     let got = labels(&c.at("textDocument/completion", &u, line, ch - 6));
     assert_eq!(got, ["ration"]);
@@ -1023,12 +1023,13 @@ fn completion_follows_the_grammar_and_the_data() {
             "means",
             "influence",
             "groups",
+            "interaction",
             "power"
         ]
     );
     assert_eq!(
-        at_end(&mut checker, "table pairs m for ration adjust "),
-        ["tukey", "holm", "bonferroni", "sidak", "none"]
+        at_end(&mut checker, "table differences m for ration correction "),
+        ["tukey", "holm", "bonferroni", "sidak", "dunnett", "none"]
     );
     assert_eq!(at_end(&mut checker, "use "), ["pens"]);
     assert_eq!(at_end(&mut checker, "check "), ["m"]);
@@ -1176,7 +1177,7 @@ table summary ration
 table means p for start_kg
 table means q for ration
 table means p for ration at pen = 3
-table pairs q for ration adjust holm
+table differences q for ration correction holm
 table contrast p for start_kg weights 1, -1
 table slopes q for ration
 table slopes p of ration for ration
@@ -1190,7 +1191,7 @@ require equal slopes q for ration
 require 3 rows per start_kg
 require balance ration by ration
 require normality p alpha 2
-report p pairs ration between barley and oats
+report p differences ration between barley and oats
 unit weight \"kg\"
 keep where ration < maize
 keep where start_kg == heavy

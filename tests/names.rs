@@ -301,3 +301,24 @@ fn user_strings_are_escaped_for_every_context() {
     assert!(json.contains("esc\\u001b[31mred"), "{json}");
     assert!(json.contains("\u{202e}evil"));
 }
+
+#[test]
+fn terminal_messages_show_hidden_characters_in_names() {
+    // A document whose name holds a right-to-left override and an escape: what covey prints
+    // about it names it visibly, and no character a terminal would obey or hide gets through.
+    let dir = scratch("terminal");
+    let name = "trial\u{202e}dm.\u{1b}[2J.md";
+    std::fs::write(dir.join(name), "# Trial\n\n```covey\nparam a = 1\n```\n")
+        .unwrap_or_else(|e| panic!("{e}"));
+    let (code, stderr) = covey(&dir, &["render", name]);
+    assert_eq!(code, 0, "{stderr}");
+    assert!(
+        stderr.contains("trial<U+202E>dm.<U+001B>[2J.md"),
+        "{stderr}"
+    );
+    assert!(
+        hidden_left(&stderr).is_empty(),
+        "{:?}",
+        hidden_left(&stderr)
+    );
+}

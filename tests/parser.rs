@@ -28,14 +28,14 @@ fn blank_and_comment_lines_are_no_statement() {
 #[test]
 fn load_with_and_without_name() {
     match parse(r#"load "data/pens.csv" as pens   # the pens"#) {
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             assert_eq!(path.value, "data/pens.csv");
             assert_eq!(name.map(|n| n.value).as_deref(), Some("pens"));
         }
         k => panic!("{k:?}"),
     }
     match parse(r#"load "a \"quoted\" name.csv""#) {
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             assert_eq!(path.value, r#"a "quoted" name.csv"#);
             assert!(name.is_none());
         }
@@ -202,26 +202,95 @@ fn every_table_form() {
         }
         r => panic!("{r:?}"),
     }
+    match t("table differences m for ration") {
+        T::Differences {
+            correction: None,
+            versus: None,
+            within: None,
+            robust: false,
+            ..
+        } => {}
+        r => panic!("{r:?}"),
+    }
+    // Optional clauses in any order.
+    for text in [
+        "table differences m for ration correction holm level 0.9 at start = 12",
+        "table differences m for ration level 0.9 at start = 12 correction holm",
+        "table differences m for ration at start = 12 correction holm level 0.9",
+    ] {
+        match t(text) {
+            T::Differences {
+                correction: Some(c),
+                level: Some(l),
+                at,
+                ..
+            } => {
+                assert_eq!(c.value, Correction::Holm, "{text}");
+                assert_eq!(l.value, 0.9, "{text}");
+                assert_eq!(at.len(), 1, "{text}");
+            }
+            r => panic!("{text}: {r:?}"),
+        }
+    }
+    match t(
+        "table differences m for ration within sex versus barley above correction dunnett robust",
+    ) {
+        T::Differences {
+            within: Some(w),
+            versus: Some(v),
+            correction: Some(c),
+            robust: true,
+            ..
+        } => {
+            assert_eq!(w.value, "sex");
+            assert_eq!(v.control.value, "barley");
+            assert_eq!(v.side, Side::Above);
+            assert_eq!(c.value, Correction::Dunnett);
+        }
+        r => panic!("{r:?}"),
+    }
+    match t("table differences m for ration robust versus \"maize+soy\" below") {
+        T::Differences {
+            versus: Some(v),
+            robust: true,
+            ..
+        } => {
+            assert_eq!(v.control.value, "maize+soy");
+            assert_eq!(v.side, Side::Below);
+        }
+        r => panic!("{r:?}"),
+    }
+    match t("table means m for ration by sex robust level 0.9") {
+        T::Means {
+            by: Some(b),
+            robust: true,
+            level: Some(l),
+            ..
+        } => {
+            assert_eq!(b.value, "sex");
+            assert_eq!(l.value, 0.9);
+        }
+        r => panic!("{r:?}"),
+    }
     assert!(matches!(
-        t("table pairs m for ration"),
-        T::Pairs {
-            adjust: AdjustMethod::Tukey,
+        t("table coefficients m robust level 0.9"),
+        T::Coefficients {
+            robust: true,
+            level: Some(_),
             ..
         }
     ));
     assert!(matches!(
-        t("table pairs m for ration adjust holm"),
-        T::Pairs {
-            adjust: AdjustMethod::Holm,
+        t("table anova m robust type 3"),
+        T::Anova {
+            robust: true,
+            kind: SsKind::Marginal,
             ..
         }
     ));
     assert!(matches!(
-        t("table pairs m for ration adjust none level 0.9"),
-        T::Pairs {
-            adjust: AdjustMethod::None,
-            ..
-        }
+        t("table contrast m for ration weights 1, -1, 0 robust"),
+        T::Contrast { robust: true, .. }
     ));
     assert!(matches!(
         t("table slopes m for ration"),
@@ -249,6 +318,70 @@ fn every_table_form() {
             assert_eq!(alpha.map(|a| a.value), Some(0.01));
         }
         r => panic!("{r:?}"),
+    }
+}
+
+#[test]
+fn old_words_name_the_new_ones() {
+    let e = error("table pairs m for ration");
+    assert!(e.message.contains("table differences"), "{}", e.message);
+    let e = error("table differences m for ration adjust holm");
+    assert!(e.message.contains("`correction holm`"), "{}", e.message);
+    let e = error("report m pairs ration between a and b");
+    assert!(e.message.contains("differences"), "{}", e.message);
+    let e = error("table differences m for ration level 0.9 level 0.8");
+    assert!(e.message.contains("given twice"), "{}", e.message);
+    let e = error("model m: y on x weights w weights v");
+    assert!(e.message.contains("given twice"), "{}", e.message);
+}
+
+#[test]
+fn weights_alpha_interaction_and_report_forms() {
+    match parse("model m: y on g + x weights area") {
+        StatementKind::Model(d) => {
+            assert!(d.intercept);
+            assert_eq!(d.weights.map(|w| w.value).as_deref(), Some("area"));
+        }
+        k => panic!("{k:?}"),
+    }
+    for text in [
+        "model m: y on g + x weights area without intercept",
+        "model m: y on g + x without intercept weights area",
+    ] {
+        match parse(text) {
+            StatementKind::Model(d) => {
+                assert!(!d.intercept, "{text}");
+                assert_eq!(d.weights.map(|w| w.value).as_deref(), Some("area"));
+            }
+            k => panic!("{k:?}"),
+        }
+    }
+    match parse("check m alpha 0.01") {
+        StatementKind::Check { alpha: Some(a), .. } => assert_eq!(a.value, 0.01),
+        k => panic!("{k:?}"),
+    }
+    assert!(matches!(
+        parse("check m"),
+        StatementKind::Check { alpha: None, .. }
+    ));
+    match parse("plot interaction m for ration by sex") {
+        StatementKind::Plot {
+            kind: PlotKind::Interaction,
+            factor: Some(first),
+            by: Some(second),
+            ..
+        } => {
+            assert_eq!(first.value, "ration");
+            assert_eq!(second.value, "sex");
+        }
+        k => panic!("{k:?}"),
+    }
+    match parse("report m differences ration between barley and maize correction holm") {
+        StatementKind::Report(ReportRequest::Difference {
+            correction: Some(c),
+            ..
+        }) => assert_eq!(c.value, Correction::Holm),
+        k => panic!("{k:?}"),
     }
 }
 
@@ -292,13 +425,13 @@ fn unknown_statement() {
 fn unquoted_path() {
     let e = error("load data.csv");
     assert_eq!(e.span.start, 105);
-    assert!(e.message.contains("double-quoted"), "{}", e.message);
+    assert!(e.message.contains("path in double quotes"), "{}", e.message);
 }
 
 #[test]
 fn unterminated_string() {
     let e = error("load \"data.csv");
-    assert!(e.message.contains("double-quoted"), "{}", e.message);
+    assert!(e.message.contains("path in double quotes"), "{}", e.message);
 }
 
 #[test]
@@ -351,7 +484,7 @@ fn unknown_table_kind() {
 
 #[test]
 fn unknown_adjustment() {
-    let e = error("table pairs m for g adjust scheffe");
+    let e = error("table differences m for g correction scheffe");
     assert!(e.message.contains("tukey"), "{}", e.message);
 }
 

@@ -279,3 +279,8 @@ mod live {
 fn plans_and_power_figures() {
     render_fixture("plan");
 }
+
+#[test]
+fn two_factors_control_robust_weights() {
+    render_fixture("two-factors");
+}

@@ -30,7 +30,7 @@ model logged: log(final_kg) on ration + start_kg
 table anova parallel type 3
 table coefficients parallel
 table means parallel for ration
-table pairs parallel for ration
+table differences parallel for ration
 table means logged for ration
 plot lines parallel
 plot means logged for ration
@@ -145,15 +145,23 @@ fn each_load_says_what_it_read() {
 fn a_sheet_keeps_its_own_row_numbers_dates_and_names() {
     let doc = "# W\n\n```covey\nload \"rations.xlsx\" sheet \"Week 8\" as w8\nlabel rows by pen\nshow\nfactor grazed\nmodel m: final_kg on grazed + \"höhe cm\"\ncheck m\nmodel e: final_kg on höhe\n```\n";
     let world = FsWorld::new(&sources(), false);
-    let run = pipeline::run(doc, "w.md", &world, RunOptions { keep_going: true, ..RunOptions::default() })
-        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let run = pipeline::run(
+        doc,
+        "w.md",
+        &world,
+        RunOptions {
+            keep_going: true,
+            ..RunOptions::default()
+        },
+    )
+    .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
     let r = &run.rendered;
     for want in [
         "| row of sheet | pen | weighed | grazed | höhe cm | final\\_kg |",
         "| 4 | P03 | 2024\\-05\\-06 | TRUE | 37.5 | 29.9 |",
         "| 5 | P14 | 2024\\-05\\-07 | FALSE | 34.4 | — |",
         "Dates and times in `weighed` are read as ISO 8601 text",
-        "row is the row of sheet \\\"Week 8\\\" as the spreadsheet numbers it",
+        "row is the row of sheet \"Week 8\" as the spreadsheet numbers it",
     ] {
         assert!(r.contains(want), "lacks {want:?}\n{r}");
     }
@@ -191,12 +199,20 @@ fn a_mixed_column_is_text_and_said_so() {
         "{}",
         run.rendered
     );
-    assert!(run.rendered.contains("| y | text | 1 | — |"), "{}", run.rendered);
+    assert!(
+        run.rendered.contains("| y | text | 1 | — |"),
+        "{}",
+        run.rendered
+    );
     // With the marker declared, the column is numeric.
     let doc = "# M\n\n```covey\nmissing \"n/a\"\nload \"m.sqlite\" table m\n```\n";
     let run = pipeline::run(doc, "m.md", &world, RunOptions::default())
         .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
-    assert!(run.rendered.contains("| y | numeric | 2 | — |"), "{}", run.rendered);
+    assert!(
+        run.rendered.contains("| y | numeric | 2 | — |"),
+        "{}",
+        run.rendered
+    );
 }
 
 /// A one-column file stays one column; a header with a semicolon inside quotes is one name.
@@ -213,7 +229,11 @@ fn one_column_files_stay_legal() {
         .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
     assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
     assert!(!run.rendered.contains("separated by"), "{}", run.rendered);
-    assert!(run.rendered.contains("| a;b | numeric | 0 | — |"), "{}", run.rendered);
+    assert!(
+        run.rendered.contains("| a;b | numeric | 0 | — |"),
+        "{}",
+        run.rendered
+    );
 }
 
 /// PostgreSQL: the same rows from a database as from the file. `.ci/run` starts a server on
@@ -270,7 +290,10 @@ fn a_database_gives_the_same_rendering_as_the_file() {
     postgres_server::fill(&address);
     let databases = || Databases::new(vec![("lab".to_string(), address.clone())]);
     let (csv, csv_figures) = render("load \"rations.csv\" as pens", Databases::default());
-    let (sqlite, _) = render("load \"rations.sqlite\" table pens as pens", Databases::default());
+    let (sqlite, _) = render(
+        "load \"rations.sqlite\" table pens as pens",
+        Databases::default(),
+    );
     let (db, db_figures) = render(
         "load database lab query \"SELECT pen, ration, start_kg, final_kg FROM pens ORDER BY ord\" as pens",
         databases(),
@@ -287,9 +310,18 @@ fn a_database_gives_the_same_rendering_as_the_file() {
     // Refused before anything runs: a statement that writes, two statements; an error of the
     // server is told at the query.
     for (query, want) in [
-        ("INSERT INTO pens (ord) VALUES (99)", "the statement returns no rows"),
-        ("SELECT 1 AS a; DELETE FROM pens", "the database refused the query"),
-        ("SELECT nope FROM pens", "the database refused the query: column \"nope\" does not exist"),
+        (
+            "INSERT INTO pens (ord) VALUES (99)",
+            "the statement returns no rows",
+        ),
+        (
+            "SELECT 1 AS a; DELETE FROM pens",
+            "the database refused the query",
+        ),
+        (
+            "SELECT nope FROM pens",
+            "the database refused the query: column \"nope\" does not exist",
+        ),
         ("SELECT nextval('s')", "the database refused the query"),
     ] {
         let doc = format!("# D\n\n```covey\nload database lab query \"{query}\"\n```\n");
@@ -298,10 +330,15 @@ fn a_database_gives_the_same_rendering_as_the_file() {
             databases: databases(),
             ..RunOptions::default()
         };
-        let run = pipeline::run(&doc, "d.md", &world, opts).unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+        let run = pipeline::run(&doc, "d.md", &world, opts)
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
         assert_eq!(run.errors.len(), 1, "{query}");
         assert!(run.errors[0].contains(want), "{query}: {}", run.errors[0]);
-        assert!(run.errors[0].contains("d.md:4:25"), "{query}: {}", run.errors[0]);
+        assert!(
+            run.errors[0].contains("d.md:4:25"),
+            "{query}: {}",
+            run.errors[0]
+        );
     }
     // Nothing was written by any of them.
     let mut client =

@@ -51,7 +51,7 @@ fn csv(rows: &[String]) -> String {
     text
 }
 
-const DOC: &str = "# Stability\n\n```covey\nload \"d.csv\"\nfactor group levels A, B, C\nfactor site levels north, south\ntable summary y by group\nmodel m: y on group + x\nmodel s: y on group + x + group by x\nmodel w: y on group + site + group by site + x\ntable fit m\ntable coefficients m\ntable anova m type 1\ntable anova w type 3\ntable compare m, s\ntable means w for group\ntable pairs m for group\ntable pairs m for group adjust holm\ntable slopes s of x for group\ntable contrast m for group weights 1, -0.5, -0.5\ntable regions s of x for group between A and C\ncheck m\n```\n";
+const DOC: &str = "# Stability\n\n```covey\nload \"d.csv\"\nfactor group levels A, B, C\nfactor site levels north, south\ntable summary y by group\nmodel m: y on group + x\nmodel s: y on group + x + group by x\nmodel w: y on group + site + group by site + x\ntable fit m\ntable coefficients m\ntable anova m type 1\ntable anova w type 3\ntable compare m, s\ntable means w for group\ntable differences m for group\ntable differences m for group correction holm\ntable slopes s of x for group\ntable contrast m for group weights 1, -0.5, -0.5\ntable regions s of x for group between A and C\ncheck m\n```\n";
 
 /// The JSON with numbers rounded, `row` fields dropped, the inputs (whose
 /// digests differ) left out, and rows of by-line listings sorted.

@@ -24,7 +24,7 @@ table anova parallel type 1
 table anova separate type 3
 table compare parallel, separate
 table means parallel for g
-table pairs parallel for g
+table differences parallel for g
 check parallel
 plot lines parallel
 plot residuals parallel

@@ -169,12 +169,15 @@ mod tests {
         let Values::Text(t) = &col.values else {
             panic!("not text: {col:?}");
         };
-        assert_eq!(t.to_vec(), vec![
-            Some("1.5".to_string()),
-            None,
-            Some("n/a".to_string()),
-            Some("2".to_string())
-        ]);
+        assert_eq!(
+            t.to_vec(),
+            vec![
+                Some("1.5".to_string()),
+                None,
+                Some("n/a".to_string()),
+                Some("2".to_string())
+            ]
+        );
         assert_eq!(
             mixed,
             Some(MixedColumn {

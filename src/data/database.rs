@@ -46,7 +46,11 @@ impl Databases {
 impl fmt::Debug for Databases {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.debug_list()
-            .entries(self.0.iter().map(|(n, _)| format!("{n}=<address not shown>")))
+            .entries(
+                self.0
+                    .iter()
+                    .map(|(n, _)| format!("{n}=<address not shown>")),
+            )
             .finish()
     }
 }

@@ -475,7 +475,10 @@ impl Builder {
                 } else {
                     Some(cell)
                 };
-                if let Some((v, digits, c)) = point.and_then(|c| Some((fast_decimal(c)?, c))).map(|((v, d), c)| (v, d, c)) {
+                if let Some((v, digits, c)) = point
+                    .and_then(|c| Some((fast_decimal(c)?, c)))
+                    .map(|((v, d), c)| (v, d, c))
+                {
                     // The cell is ASCII, so the text check cannot fail; it is only needed
                     // when the exact scan can learn from the cell.
                     if scan.wants_plain(digits) {

@@ -23,12 +23,12 @@ mod reference;
 #[cfg(test)]
 mod tests;
 
+pub use cells::{ColumnBuilder, MixedColumn};
 pub use error::{FactorError, LoadError};
 pub use factor::{
     make_factor, take_factor, unused_levels, Code, Factor, LevelOrder, MAX_FACTOR_LEVELS,
 };
 pub use lines::RowLines;
-pub use cells::{ColumnBuilder, MixedColumn};
 pub use load::{detect_separator, read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
 pub use stream::{stream_delimited, Streamed};
@@ -77,14 +77,18 @@ impl RowOrigin {
         }
     }
 
-    /// What the numbers of a table's `row` column are, for its notes.
-    pub fn meaning(&self) -> String {
+    /// What the numbers of a table's `row` column are, for its notes; `name` writes the
+    /// sheet's name as the note's format needs it (escaped for Markdown, say).
+    pub fn meaning(&self, name: impl Fn(&str) -> String) -> String {
         match self {
             RowOrigin::FileLines => {
                 "row is the line in the data file (the header is line 1)".to_string()
             }
             RowOrigin::Sheet(sheet) => {
-                format!("row is the row of sheet \"{sheet}\" as the spreadsheet numbers it")
+                format!(
+                    "row is the row of sheet \"{}\" as the spreadsheet numbers it",
+                    name(sheet)
+                )
             }
             RowOrigin::Result => {
                 "row is the position in the rows the table or query gave (the first is 1)"

@@ -82,11 +82,23 @@ pub enum SheetError {
     /// Header cells that are blank above a column that holds values.
     BlankHeader { sheet: String, cells: Vec<String> },
     /// A merged region in the table: its cells as a range such as `B1:C1`.
-    Merged { sheet: String, range: String, header: bool },
+    Merged {
+        sheet: String,
+        range: String,
+        header: bool,
+    },
     /// Two columns with one name.
-    DuplicateHeader { sheet: String, name: String, cells: Vec<String> },
+    DuplicateHeader {
+        sheet: String,
+        name: String,
+        cells: Vec<String>,
+    },
     /// An error cell whose text is not a declared missing-value marker.
-    ErrorCell { sheet: String, cell: String, text: String },
+    ErrorCell {
+        sheet: String,
+        cell: String,
+        text: String,
+    },
 }
 
 impl fmt::Display for SheetError {
@@ -343,7 +355,10 @@ pub fn read_workbook(
     let (Some(start), Some(_)) = (range.start(), range.end()) else {
         return Err(SheetError::EmptySheet { sheet });
     };
-    let mut rows = range.rows().enumerate().map(|(i, r)| (start.0 + i as u32, r));
+    let mut rows = range
+        .rows()
+        .enumerate()
+        .map(|(i, r)| (start.0 + i as u32, r));
     // The header: the first row with a value.
     let Some((header_row, header)) = rows.find(|(_, r)| !r.iter().all(is_blank)) else {
         return Err(SheetError::EmptySheet { sheet });
@@ -376,7 +391,10 @@ pub fn read_workbook(
         match header_text(cell) {
             Some(t) => columns.push((j, t)),
             None => {
-                if data.iter().any(|(_, r)| r.get(j).is_some_and(|c| !is_blank(c))) {
+                if data
+                    .iter()
+                    .any(|(_, r)| r.get(j).is_some_and(|c| !is_blank(c)))
+                {
                     blank.push(cell_name(header_row, col));
                 }
             }
@@ -502,7 +520,10 @@ mod tests {
     fn garbage_is_a_damaged_workbook_and_an_encrypted_one_says_password() {
         for kind in [WorkbookKind::Xlsx, WorkbookKind::Xls, WorkbookKind::Ods] {
             let e = read_workbook(b"not a workbook at all", kind, None, "x", &[]);
-            assert!(matches!(e, Err(SheetError::Damaged { .. })), "{kind:?}: {e:?}");
+            assert!(
+                matches!(e, Err(SheetError::Damaged { .. })),
+                "{kind:?}: {e:?}"
+            );
         }
         let mut cfb = CFB_MAGIC.to_vec();
         cfb.extend([0u8; 504]);

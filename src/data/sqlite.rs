@@ -148,7 +148,8 @@ fn open(path: &Path) -> Result<Connection, SqlError> {
         (DbConfig::SQLITE_DBCONFIG_TRUSTED_SCHEMA, false),
         (DbConfig::SQLITE_DBCONFIG_ENABLE_TRIGGER, false),
     ] {
-        conn.set_db_config(setting, on).map_err(|e| open_error(&e))?;
+        conn.set_db_config(setting, on)
+            .map_err(|e| open_error(&e))?;
     }
     conn.pragma_update(None, "query_only", true)
         .map_err(|e| open_error(&e))?;

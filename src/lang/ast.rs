@@ -73,6 +73,8 @@ pub enum StatementKind {
     /// `check M`: the assumption checks of a fitted model.
     Check {
         model: Spanned<String>,
+        /// `alpha A`: the level the verdicts use (0.05 when absent).
+        alpha: Option<Spanned<f64>>,
     },
     /// `plot KIND M [of X] [for F]`: a figure.
     Plot {
@@ -80,6 +82,8 @@ pub enum StatementKind {
         model: Spanned<String>,
         covariate: Option<Spanned<String>>,
         factor: Option<Spanned<String>>,
+        /// `by B`: the second factor of an interaction figure.
+        by: Option<Spanned<String>>,
     },
     /// `unit COLUMN "TEXT"`: the unit that axis labels show for a column.
     Unit {
@@ -269,13 +273,13 @@ pub enum ReportRequest {
         term: Spanned<String>,
         kind: SsKind,
     },
-    /// `report M pairs F between A and B [adjust METHOD]`
-    Pair {
+    /// `report M differences F between A and B [correction METHOD]`
+    Difference {
         model: Spanned<String>,
         factor: Spanned<String>,
         first: Spanned<String>,
         second: Spanned<String>,
-        adjust: AdjustMethod,
+        correction: Option<Spanned<Correction>>,
     },
 }
 
@@ -294,6 +298,8 @@ pub enum PlotKind {
     Influence,
     /// The raw response by level.
     Groups,
+    /// Adjusted cell means of two factors, one line per level of the second.
+    Interaction,
 }
 
 /// A row filter of `keep where`.
@@ -350,6 +356,8 @@ pub struct ModelDecl {
     pub response_transform: TransformDecl,
     pub terms: Vec<TermDecl>,
     pub intercept: bool,
+    /// `weights W`: a numeric column of case weights (weighted least squares).
+    pub weights: Option<Spanned<String>>,
 }
 
 /// A product of parts joined with `by`.
@@ -382,13 +390,34 @@ pub enum SsKind {
     Marginal,
 }
 
+/// The correction for several comparisons made at once (`correction METHOD`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum AdjustMethod {
+pub enum Correction {
     Tukey,
     Holm,
     Bonferroni,
     Sidak,
+    /// Many-to-one against a control; only with `versus`.
+    Dunnett,
     None,
+}
+
+/// Which side a comparison against a control is tested on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Side {
+    /// Two-sided.
+    Both,
+    /// Each level above the control (one-sided).
+    Above,
+    /// Each level below the control (one-sided).
+    Below,
+}
+
+/// `versus LEVEL [above|below]`: every other level against this one.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Versus {
+    pub control: Spanned<String>,
+    pub side: Side,
 }
 
 /// `at X = VALUE, ...`
@@ -410,27 +439,37 @@ pub enum TableRequest {
     Coefficients {
         model: Spanned<String>,
         level: Option<Spanned<f64>>,
+        robust: bool,
     },
     Anova {
         model: Spanned<String>,
         kind: SsKind,
+        robust: bool,
     },
     Compare {
         first: Spanned<String>,
         second: Spanned<String>,
     },
+    /// `table means M for A [by B] [at ...] [level L] [robust]`
     Means {
         model: Spanned<String>,
         factor: Spanned<String>,
+        by: Option<Spanned<String>>,
         at: Vec<Setting>,
         level: Option<Spanned<f64>>,
+        robust: bool,
     },
-    Pairs {
+    /// `table differences M for A [within B] [at ...] [correction C] [level L]
+    /// [versus LEVEL [above|below]] [robust]`
+    Differences {
         model: Spanned<String>,
         factor: Spanned<String>,
+        within: Option<Spanned<String>>,
         at: Vec<Setting>,
-        adjust: AdjustMethod,
+        correction: Option<Spanned<Correction>>,
         level: Option<Spanned<f64>>,
+        versus: Option<Versus>,
+        robust: bool,
     },
     Slopes {
         model: Spanned<String>,
@@ -444,6 +483,7 @@ pub enum TableRequest {
         weights: Spanned<Vec<f64>>,
         at: Vec<Setting>,
         level: Option<Spanned<f64>>,
+        robust: bool,
     },
     Regions {
         model: Spanned<String>,
@@ -464,7 +504,7 @@ impl TableRequest {
             | TableRequest::Coefficients { model, .. }
             | TableRequest::Anova { model, .. }
             | TableRequest::Means { model, .. }
-            | TableRequest::Pairs { model, .. }
+            | TableRequest::Differences { model, .. }
             | TableRequest::Slopes { model, .. }
             | TableRequest::Contrast { model, .. }
             | TableRequest::Regions { model, .. } => &model.value,

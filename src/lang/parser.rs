@@ -127,7 +127,9 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             let mut wanted: Vec<&str> = positives.iter().map(|r| describe(*r)).collect();
             // After `load`: a path, or `database NAME`, said as one thing.
             if positives.contains(&Rule::kw_database) && positives.contains(&Rule::text) {
-                wanted = vec!["the data file's path in double quotes (or a parameter, or `database NAME`)"];
+                wanted = vec![
+                    "the data file's path in double quotes (or a parameter, or `database NAME`)",
+                ];
             }
             wanted.sort_unstable();
             wanted.dedup();
@@ -204,7 +206,17 @@ fn describe(rule: Rule) -> &'static str {
         Rule::compute_stmt => "`compute NAME = EXPRESSION`",
         Rule::label_stmt => "`label rows by COLUMN`",
         Rule::ss_type => "1, 2 or 3",
-        Rule::adjust_method => "tukey, holm, bonferroni, sidak or none",
+        Rule::correction_method => "tukey, holm, bonferroni, sidak, dunnett or none",
+        Rule::correction_opt => "`correction` and a method (tukey, holm, bonferroni, sidak, dunnett, none)",
+        Rule::versus_opt => "`versus` and the control level",
+        Rule::side => "`above` or `below`",
+        Rule::robust_opt | Rule::kw_robust => "`robust`",
+        Rule::weights_opt => "`weights` and a column of weights",
+        Rule::anova_type => "`type` and 1, 2 or 3",
+        Rule::kw_differences => "`differences`",
+        Rule::kw_within => "`within`",
+        Rule::kw_correction => "`correction`",
+        Rule::kw_versus => "`versus`",
         Rule::setting | Rule::at_clause => "a setting such as `x = 20`",
         Rule::EOI => "the end of the line",
         Rule::statement
@@ -225,11 +237,12 @@ fn describe(rule: Rule) -> &'static str {
         | Rule::anova_table
         | Rule::compare_table
         | Rule::means_table
-        | Rule::pairs_table
+        | Rule::differences_table
+        | Rule::old_pairs_table
         | Rule::slopes_table
         | Rule::contrast_table
         | Rule::regions_table => {
-            "a table kind (summary, fit, coefficients, anova, compare, means, pairs, slopes, contrast, regions)"
+            "a table kind (summary, fit, coefficients, anova, compare, means, differences, slopes, contrast, regions)"
         }
         Rule::no_intercept => "`without intercept`",
         Rule::colon => "`:`",
@@ -301,10 +314,13 @@ fn describe(rule: Rule) -> &'static str {
         | Rule::require_balance => {
             "a gate: `equal slopes M for F`, `normality M`, `N rows per F` or `balance X by F`"
         }
-        Rule::report_stmt | Rule::report_term | Rule::report_pair => {
-            "`term NAME` or `pairs F between A and B`"
+        Rule::report_stmt
+        | Rule::report_term
+        | Rule::report_difference
+        | Rule::report_old_pairs => "`term NAME` or `differences F between A and B`",
+        Rule::plot_kind => {
+            "a figure kind (lines, residuals, quantiles, means, influence, groups, interaction)"
         }
-        Rule::plot_kind => "a figure kind (lines, residuals, quantiles, means, influence, groups)",
         Rule::kw_plan => "`plan`",
         Rule::kw_groups => "`groups`",
         Rule::kw_ratio => "`ratio`",
@@ -378,6 +394,11 @@ fn is_keyword(rule: Rule) -> bool {
             | Rule::kw_for
             | Rule::kw_at
             | Rule::kw_pairs
+            | Rule::kw_differences
+            | Rule::kw_within
+            | Rule::kw_correction
+            | Rule::kw_versus
+            | Rule::kw_robust
             | Rule::kw_adjust
             | Rule::kw_slopes
             | Rule::kw_of
@@ -478,7 +499,12 @@ impl Builder<'_> {
                         continue;
                     };
                     let rule = c.as_rule();
-                    let word = c.as_str().split_whitespace().next().unwrap_or("").to_string();
+                    let word = c
+                        .as_str()
+                        .split_whitespace()
+                        .next()
+                        .unwrap_or("")
+                        .to_string();
                     let at = c.clone();
                     let value = next(&mut children(c).into_iter());
                     let slot = match rule {
@@ -490,7 +516,9 @@ impl Builder<'_> {
                         _ => &mut name,
                     };
                     if slot.is_some() {
-                        return Err(self.error(&at, format!("`{word}` is given twice; give it once")));
+                        return Err(
+                            self.error(&at, format!("`{word}` is given twice; give it once"))
+                        );
                     }
                     *slot = Some(match (rule, value) {
                         (Rule::load_as, Ok(v)) => self.ident(v),
@@ -515,7 +543,12 @@ impl Builder<'_> {
                 let mut name = None;
                 for clause in kids {
                     let rule = clause.as_rule();
-                    let word = clause.as_str().split_whitespace().next().unwrap_or("").to_string();
+                    let word = clause
+                        .as_str()
+                        .split_whitespace()
+                        .next()
+                        .unwrap_or("")
+                        .to_string();
                     let at = clause.clone();
                     let v = next(&mut children(clause).into_iter())?;
                     let value = if rule == Rule::load_as {
@@ -529,7 +562,9 @@ impl Builder<'_> {
                         &mut query
                     };
                     if slot.is_some() {
-                        return Err(self.error(&at, format!("`{word}` is given twice; give it once")));
+                        return Err(
+                            self.error(&at, format!("`{word}` is given twice; give it once"))
+                        );
                     }
                     *slot = Some(value);
                 }
@@ -616,6 +651,15 @@ impl Builder<'_> {
                         value: self.literal(p)?.as_text().to_string(),
                     })
                 };
+                if wrule == Rule::report_old_pairs {
+                    return Err(self.error(
+                        &what,
+                        "`report M pairs` is now `report M differences F between A and B [correction METHOD]`".into(),
+                    ));
+                }
+                if let Some(old) = find(Rule::old_adjust) {
+                    return Err(old_adjust_error(self, &old));
+                }
                 StatementKind::Report(if wrule == Rule::report_term {
                     ReportRequest::Term {
                         model,
@@ -627,21 +671,21 @@ impl Builder<'_> {
                         ),
                     }
                 } else {
-                    ReportRequest::Pair {
+                    once(self, &parts, &[Rule::correction_opt])?;
+                    ReportRequest::Difference {
                         model,
                         factor: self.name(names.first().cloned().ok_or_else(missing_part)?),
                         first: text_of(names.get(1))?,
                         second: text_of(names.get(2))?,
-                        adjust: adjust_of(
-                            find(Rule::adjust_method)
-                                .map(|p| p.as_str().to_string())
-                                .as_deref(),
-                        ),
+                        correction: find(Rule::correction_opt)
+                            .map(|p| self.correction(p))
+                            .transpose()?,
                     }
                 })
             }
             Rule::check_stmt => StatementKind::Check {
                 model: self.ident(next(&mut kids)?),
+                alpha: kids.next().map(|p| self.option_number(p)).transpose()?,
             },
             Rule::unit_stmt => StatementKind::Unit {
                 column: self.name(next(&mut kids)?),
@@ -652,13 +696,14 @@ impl Builder<'_> {
                 // optional names apart by the keyword before each.
                 let mut covariate = None;
                 let mut factor = None;
+                let mut by = None;
                 let mut kind = PlotKind::Lines;
                 let mut model = None;
                 let mut after: Option<Rule> = None;
                 let all: Vec<Pair<'_, Rule>> = pair_kids;
                 for p in all {
                     match p.as_rule() {
-                        Rule::kw_of | Rule::kw_for => after = Some(p.as_rule()),
+                        Rule::kw_of | Rule::kw_for | Rule::kw_by => after = Some(p.as_rule()),
                         Rule::plot_kind => {
                             kind = match p.as_str() {
                                 "residuals" => PlotKind::Residuals,
@@ -666,12 +711,14 @@ impl Builder<'_> {
                                 "means" => PlotKind::Means,
                                 "influence" => PlotKind::Influence,
                                 "groups" => PlotKind::Groups,
+                                "interaction" => PlotKind::Interaction,
                                 _ => PlotKind::Lines,
                             }
                         }
                         Rule::ident if model.is_none() => model = Some(self.ident(p)),
                         Rule::name => match after {
                             Some(Rule::kw_of) => covariate = Some(self.name(p)),
+                            Some(Rule::kw_by) => by = Some(self.name(p)),
                             _ => factor = Some(self.name(p)),
                         },
                         _ => {}
@@ -682,6 +729,7 @@ impl Builder<'_> {
                     model: model.ok_or_else(missing_part)?,
                     covariate,
                     factor,
+                    by,
                 }
             }
             Rule::plan_stmt => StatementKind::Plan(self.plan(pair_kids)?),
@@ -871,13 +919,21 @@ impl Builder<'_> {
             }
             terms.push(TermDecl { parts, span });
         }
-        let intercept = kids.next().is_none();
+        let rest: Vec<Pair<'a, Rule>> = kids.collect();
+        once(self, &rest, &[Rule::no_intercept, Rule::weights_opt])?;
+        let intercept = !rest.iter().any(|p| p.as_rule() == Rule::no_intercept);
+        let weights = rest
+            .iter()
+            .find(|p| p.as_rule() == Rule::weights_opt)
+            .map(|p| next(&mut children(p.clone()).into_iter()).map(|n| self.name(n)))
+            .transpose()?;
         Ok(ModelDecl {
             name,
             response,
             response_transform,
             terms,
             intercept,
+            weights,
         })
     }
 
@@ -1041,6 +1097,7 @@ impl Builder<'_> {
 
     fn table(&self, pair: Pair<'_, Rule>) -> Result<TableRequest, SyntaxError> {
         let rule = pair.as_rule();
+        let pair_span = pair.clone();
         let kids = children(pair);
         // Optional clauses can appear in any subset; pick them out by rule.
         let find = |r: Rule| kids.iter().find(|p| p.as_rule() == r).cloned();
@@ -1053,6 +1110,31 @@ impl Builder<'_> {
             let p = plain.first().cloned().ok_or_else(missing_part)?;
             Ok(self.ident(p))
         };
+        if rule == Rule::old_pairs_table {
+            return Err(SyntaxError {
+                span: Span {
+                    start: self.span(&pair_span).start,
+                    end: self.span(&pair_span).start + "pairs".len(),
+                },
+                message: "`table pairs` is now `table differences M for F [at ...] [correction METHOD] [level L]`".into(),
+            });
+        }
+        if let Some(old) = find(Rule::old_adjust) {
+            return Err(old_adjust_error(self, &old));
+        }
+        once(
+            self,
+            &kids,
+            &[
+                Rule::level_opt,
+                Rule::at_clause,
+                Rule::robust_opt,
+                Rule::anova_type,
+                Rule::correction_opt,
+                Rule::versus_opt,
+            ],
+        )?;
+        let robust = find(Rule::robust_opt).is_some();
         let level = find(Rule::level_opt)
             .map(|p| self.option_number(p))
             .transpose()?;
@@ -1071,14 +1153,17 @@ impl Builder<'_> {
             Rule::coefficients_table => TableRequest::Coefficients {
                 model: first_ident()?,
                 level,
+                robust,
             },
             Rule::anova_table => TableRequest::Anova {
                 model: first_ident()?,
                 kind: ss_kind_of(
-                    find(Rule::ss_type)
+                    find(Rule::anova_type)
+                        .and_then(|p| p.into_inner().find(|q| q.as_rule() == Rule::ss_type))
                         .map(|p| p.as_str().to_string())
                         .as_deref(),
                 ),
+                robust,
             },
             Rule::compare_table => TableRequest::Compare {
                 first: first_ident()?,
@@ -1087,20 +1172,49 @@ impl Builder<'_> {
             Rule::means_table => TableRequest::Means {
                 model: first_ident()?,
                 factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                by: plain.get(2).cloned().map(|p| self.name(p)),
                 at,
                 level,
+                robust,
             },
-            Rule::pairs_table => TableRequest::Pairs {
-                model: first_ident()?,
-                factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
-                at,
-                adjust: adjust_of(
-                    find(Rule::adjust_method)
-                        .map(|p| p.as_str().to_string())
-                        .as_deref(),
-                ),
-                level,
-            },
+            Rule::differences_table => {
+                let versus = match find(Rule::versus_opt) {
+                    Some(v) => {
+                        let mut control = None;
+                        let mut side = Side::Both;
+                        for q in v.into_inner() {
+                            match q.as_rule() {
+                                Rule::value => {
+                                    control = Some(Spanned {
+                                        span: self.span(&q),
+                                        value: self.literal(q)?.as_text().to_string(),
+                                    })
+                                }
+                                Rule::side if q.as_str() == "above" => side = Side::Above,
+                                Rule::side => side = Side::Below,
+                                _ => {}
+                            }
+                        }
+                        Some(Versus {
+                            control: control.ok_or_else(missing_part)?,
+                            side,
+                        })
+                    }
+                    None => None,
+                };
+                TableRequest::Differences {
+                    model: first_ident()?,
+                    factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
+                    within: plain.get(2).cloned().map(|p| self.name(p)),
+                    at,
+                    correction: find(Rule::correction_opt)
+                        .map(|p| self.correction(p))
+                        .transpose()?,
+                    level,
+                    versus,
+                    robust,
+                }
+            }
             Rule::slopes_table => {
                 let (covariate, factor) = if plain.len() >= 3 {
                     (
@@ -1146,6 +1260,7 @@ impl Builder<'_> {
                     },
                     at,
                     level,
+                    robust,
                 }
             }
             Rule::regions_table => {
@@ -1427,14 +1542,53 @@ fn ss_kind_of(word: Option<&str>) -> SsKind {
     }
 }
 
-fn adjust_of(word: Option<&str>) -> AdjustMethod {
-    match word {
-        Some("holm") => AdjustMethod::Holm,
-        Some("bonferroni") => AdjustMethod::Bonferroni,
-        Some("sidak") => AdjustMethod::Sidak,
-        Some("none") => AdjustMethod::None,
-        _ => AdjustMethod::Tukey,
+impl Builder<'_> {
+    /// `correction METHOD` with its place.
+    fn correction(&self, pair: Pair<'_, Rule>) -> Result<Spanned<Correction>, SyntaxError> {
+        let m = pair
+            .into_inner()
+            .find(|p| p.as_rule() == Rule::correction_method)
+            .ok_or_else(missing_part)?;
+        let value = match m.as_str() {
+            "holm" => Correction::Holm,
+            "bonferroni" => Correction::Bonferroni,
+            "sidak" => Correction::Sidak,
+            "dunnett" => Correction::Dunnett,
+            "none" => Correction::None,
+            _ => Correction::Tukey,
+        };
+        Ok(Spanned {
+            value,
+            span: self.span(&m),
+        })
     }
+}
+
+/// The clause word of earlier versions, `adjust`, names the one that replaced it.
+fn old_adjust_error(b: &Builder<'_>, old: &Pair<'_, Rule>) -> SyntaxError {
+    let method = old
+        .clone()
+        .into_inner()
+        .find(|p| p.as_rule() == Rule::ident)
+        .map_or("METHOD".to_string(), |p| p.as_str().to_string());
+    b.error(
+        old,
+        format!("the clause `adjust` is now `correction`: write `correction {method}`"),
+    )
+}
+
+/// An error at the second of any optional clause (among `rules`) given twice.
+fn once(b: &Builder<'_>, kids: &[Pair<'_, Rule>], rules: &[Rule]) -> Result<(), SyntaxError> {
+    for r in rules {
+        if let Some(second) = kids.iter().filter(|p| p.as_rule() == *r).nth(1) {
+            let word = second.as_str().split_whitespace().next().unwrap_or("");
+            return Err(b.error(
+                second,
+                format!("the clause `{word}` is given twice; keep one"),
+            ));
+        }
+    }
+    Ok(())
 }
 
 /// The text of a double-quoted string without its quotes and escapes.

@@ -536,7 +536,7 @@ impl<'c> Walk<'c> {
             }
             StatementKind::Model(decl) => self.model_statement(stmt, decl),
             StatementKind::Table(request) => self.table(request, stmt.span),
-            StatementKind::Check { model } => {
+            StatementKind::Check { model, .. } => {
                 self.model(model);
             }
             StatementKind::Plot {
@@ -544,6 +544,7 @@ impl<'c> Walk<'c> {
                 model,
                 covariate,
                 factor,
+                ..
             } => {
                 if let Some(m) = self.model(model) {
                     self.plot(*kind, &m, model, covariate.as_ref(), factor.as_ref());
@@ -626,22 +627,27 @@ impl<'c> Walk<'c> {
         let set_name = name.map_or_else(|| default_name(&path.value), |n| n.value.clone());
         let summary = match &self.folder {
             None => None,
-            Some(folder) => match self.data.lookup(folder, &path.value, clauses, &self.state.markers) {
-                Lookup::Ready(s) => Some(s),
-                Lookup::Pending => {
-                    self.pending = true;
-                    None
-                }
-                Lookup::Failed(f) => {
-                    let mut d =
-                        Diagnostic::new(path.span, f.message.clone()).label(f.label.clone());
-                    if let Some(h) = &f.help {
-                        d = d.help(h.clone());
+            Some(folder) => {
+                match self
+                    .data
+                    .lookup(folder, &path.value, clauses, &self.state.markers)
+                {
+                    Lookup::Ready(s) => Some(s),
+                    Lookup::Pending => {
+                        self.pending = true;
+                        None
                     }
-                    self.error(d);
-                    None
+                    Lookup::Failed(f) => {
+                        let mut d =
+                            Diagnostic::new(path.span, f.message.clone()).label(f.label.clone());
+                        if let Some(h) = &f.help {
+                            d = d.help(h.clone());
+                        }
+                        self.error(d);
+                        None
+                    }
                 }
-            },
+            }
         };
         let state = DataSetState {
             shape: summary.as_ref().map(|s| s.shape(&set_name)),
@@ -1153,7 +1159,7 @@ impl<'c> Walk<'c> {
             TableRequest::Fit { model } | TableRequest::Anova { model, .. } => {
                 self.model(model);
             }
-            TableRequest::Coefficients { model, level } => {
+            TableRequest::Coefficients { model, level, .. } => {
                 let known = self.model(model).is_some();
                 if known {
                     self.confidence(level.as_ref());
@@ -1170,8 +1176,9 @@ impl<'c> Walk<'c> {
                 factor,
                 at,
                 level,
+                ..
             }
-            | TableRequest::Pairs {
+            | TableRequest::Differences {
                 model,
                 factor,
                 at,
@@ -1437,7 +1444,7 @@ impl<'c> Walk<'c> {
             ReportRequest::Term { model, .. } => {
                 self.model(model);
             }
-            ReportRequest::Pair {
+            ReportRequest::Difference {
                 model,
                 factor,
                 first,

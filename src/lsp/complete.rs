@@ -490,7 +490,7 @@ fn row_keys(a: &Analysis, kind: &str, subject: &str) -> Vec<String> {
         }
         let factor = match request {
             TableRequest::Means { model, factor, .. }
-            | TableRequest::Pairs { model, factor, .. }
+            | TableRequest::Differences { model, factor, .. }
             | TableRequest::Slopes { model, factor, .. }
             | TableRequest::Regions { model, factor, .. }
                 if model.value == subject =>

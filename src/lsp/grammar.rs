@@ -239,15 +239,15 @@ mod tests {
         let after = |p: &str| words(&next_tokens(p).unwrap_or_default());
         assert_eq!(
             after("table means m for g "),
-            vec!["at".to_string(), "level".to_string()]
+            ["by", "at", "robust", "level"].map(String::from)
         );
         assert_eq!(
-            after("table pairs m for g adjust "),
-            ["tukey", "holm", "bonferroni", "sidak", "none"].map(String::from)
+            after("table differences m for g correction "),
+            ["tukey", "holm", "bonferroni", "sidak", "dunnett", "none"].map(String::from)
         );
         assert_eq!(
             after("model m: y on x "),
-            ["by", "without"].map(String::from)
+            ["by", "without", "weights"].map(String::from)
         );
         assert!(after("table ").contains(&"regions".to_string()));
         assert!(after("plot ").contains(&"influence".to_string()));

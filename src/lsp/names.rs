@@ -3,8 +3,8 @@
 //! of a column. Hover, go to definition and completion all start here.
 
 use crate::lang::{
-    Condition, Expr, ExprKind, Gate, ReportRequest, Span, Spanned, Statement, StatementKind,
-    TableRequest,
+    Condition, Expr, ExprKind, Gate, ReportRequest, Setting, Span, Spanned, Statement,
+    StatementKind, TableRequest,
 };
 
 /// What a name in a statement stands for.
@@ -127,14 +127,18 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
             }
         }
         StatementKind::Table(request) => table_uses(request, o),
-        StatementKind::Check { model } => push(o, model.span, &model.value, Role::Model, ""),
+        StatementKind::Check { model, .. } => push(o, model.span, &model.value, Role::Model, ""),
         StatementKind::Plot {
             model,
             covariate,
             factor,
+            by,
             ..
         } => {
             push(o, model.span, &model.value, Role::Model, "");
+            if let Some(b) = by {
+                push(o, b.span, &b.value, Role::ModelFactor, &model.value);
+            }
             if let Some(c) = covariate {
                 push(o, c.span, &c.value, Role::ModelCovariate, &model.value);
             }
@@ -186,7 +190,7 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
         },
         StatementKind::Report(request) => match request {
             ReportRequest::Term { model, .. } => push(o, model.span, &model.value, Role::Model, ""),
-            ReportRequest::Pair {
+            ReportRequest::Difference {
                 model,
                 factor,
                 first,
@@ -272,31 +276,30 @@ fn table_uses(request: &TableRequest, o: &mut Vec<NameUse>) {
             model_span(o, second);
         }
         TableRequest::Means {
-            model, factor, at, ..
+            model,
+            factor,
+            at,
+            by: second,
+            ..
         }
-        | TableRequest::Pairs {
-            model, factor, at, ..
+        | TableRequest::Differences {
+            model,
+            factor,
+            at,
+            within: second,
+            ..
+        } => {
+            model_span(o, model);
+            if let Some(b) = second {
+                push(o, b.span, &b.value, Role::ModelFactor, &model.value);
+            }
+            factor_and_settings(o, model, factor, at);
         }
-        | TableRequest::Contrast {
+        TableRequest::Contrast {
             model, factor, at, ..
         } => {
             model_span(o, model);
-            push(
-                o,
-                factor.span,
-                &factor.value,
-                Role::ModelFactor,
-                &model.value,
-            );
-            for s in at {
-                push(
-                    o,
-                    s.column.span,
-                    &s.column.value,
-                    Role::ModelCovariate,
-                    &model.value,
-                );
-            }
+            factor_and_settings(o, model, factor, at);
         }
         TableRequest::Slopes {
             model,
@@ -348,6 +351,31 @@ fn table_uses(request: &TableRequest, o: &mut Vec<NameUse>) {
     }
 }
 
+/// The factor of a table about `model`'s adjusted means, and the covariates its `at` sets.
+fn factor_and_settings(
+    o: &mut Vec<NameUse>,
+    model: &Spanned<String>,
+    factor: &Spanned<String>,
+    at: &[Setting],
+) {
+    push(
+        o,
+        factor.span,
+        &factor.value,
+        Role::ModelFactor,
+        &model.value,
+    );
+    for s in at {
+        push(
+            o,
+            s.column.span,
+            &s.column.value,
+            Role::ModelCovariate,
+            &model.value,
+        );
+    }
+}
+
 /// The JSON kind of the tables a statement computes, with their subject (the model, the
 /// summarised column, or the plan), as live references name them. A table statement's kind is its second
 /// word (`table means ...` computes `means`), so a table added to the grammar is known here.
@@ -361,13 +389,18 @@ pub fn tables_of(stmt: &Statement) -> Vec<(String, String)> {
                 TableRequest::Summary { column, .. } => column.value.clone(),
                 other => other.model_name().to_string(),
             };
+            // Cell means of two factors are a kind of their own.
+            let word = match request {
+                TableRequest::Means { by: Some(_), .. } => "cell-means",
+                _ => word,
+            };
             let mut out = vec![(word.to_string(), subject.clone())];
             if word == "slopes" {
                 out.push(("slopes-equality".to_string(), subject));
             }
             out
         }
-        StatementKind::Check { model } => vec![
+        StatementKind::Check { model, .. } => vec![
             ("check".to_string(), model.value.clone()),
             ("influence".to_string(), model.value.clone()),
         ],

@@ -94,12 +94,19 @@ pub const KINDS: &[Kind] = &[
         columns: &["level", "mean", "se", "df", "lower", "upper"],
     },
     Kind {
-        kind: "pairs",
+        kind: "differences",
         subject: Subject::Model,
+        // Three with `within B`, whose level comes first.
         key_words: 2,
         columns: &[
             "first", "second", "estimate", "se", "t", "df", "p", "lower", "upper",
         ],
+    },
+    Kind {
+        kind: "cell-means",
+        subject: Subject::Model,
+        key_words: 2,
+        columns: &["level", "by", "rows", "mean", "se", "df", "lower", "upper"],
     },
     Kind {
         kind: "slopes",
@@ -187,6 +194,12 @@ pub fn check(
     maybe: &[(String, String)],
 ) -> Result<(), LiveError> {
     let parsed = live::parse(reference)?;
+    if parsed.kind == "pairs" {
+        return Err(LiveError::Renamed {
+            old: "pairs",
+            new: "differences",
+        });
+    }
     let computed = |list: &[(String, String)]| {
         list.iter()
             .any(|(k, s)| *k == parsed.kind && *s == parsed.subject)
@@ -213,13 +226,16 @@ pub fn check(
     };
     let rest = &parsed.rest;
     let width = k.key_words;
-    let column = if rest.len() == width + 1 {
+    let column = if k.kind == "differences" && (width..=width + 2).contains(&rest.len()) {
+        // A table of differences `within B` has a third key word, the level of B, which
+        // only the computed table tells from a column: check the column only when the
+        // words leave no doubt.
+        rest.get(width + 2)
+    } else if rest.len() == width + 1 {
         rest.get(width)
     } else if rest.len() == 1 {
         // A table of one row needs no row words; how many rows it has is known only once
         // it is computed.
-        None
-    } else if rest.len() == width && k.kind == "pairs" {
         None
     } else {
         return Err(LiveError::Shape {

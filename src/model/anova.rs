@@ -27,7 +27,32 @@ impl Fit {
         let mut rows = Vec::new();
         let mut notes = Vec::new();
         let ms_res = self.rss / self.df_res as f64;
-        let push = |rows: &mut Vec<AnovaRow>, t: usize, df: usize, ss: f64| {
+        let robust = self.robust.is_some();
+        // In the robust view each row is the HC3 Wald test of the same hypothesis, on the
+        // same df; its statistic replaces the F of sums of squares, which it does not use.
+        let wald =
+            |g: &super::graded::Graded, extra: &[usize]| -> Result<Option<f64>, ModelError> {
+                if robust {
+                    Ok(Some(self.robust_wald(g, extra)?.0))
+                } else {
+                    Ok(None)
+                }
+            };
+        let push = |rows: &mut Vec<AnovaRow>, t: usize, df: usize, ss: f64, w: Option<f64>| {
+            if let Some(f) = w {
+                let ok = df > 0 && !self.exact && f.is_finite();
+                rows.push(AnovaRow {
+                    term: self.lay.term_names.get(t).cloned().unwrap_or_default(),
+                    term_index: t,
+                    df,
+                    ss: f64::NAN,
+                    ms: f64::NAN,
+                    f: ok.then_some(f),
+                    p: ok.then(|| f_p(f, df, self.df_res)),
+                    partial_eta_sq: f64::NAN,
+                });
+                return;
+            }
             // 0 df: the term adds nothing; its mean square, F, p and effect size are 0/0.
             let ss = if df == 0 { 0.0 } else { ss.max(0.0) };
             let ms = if df == 0 { f64::NAN } else { ss / df as f64 };
@@ -59,7 +84,8 @@ impl Fit {
                 for t in 0..nterms {
                     let mine = e.term_cols.get(t).cloned().unwrap_or_default();
                     let (df, ss) = self.g.ss_of(&mine);
-                    push(&mut rows, t, df, ss * ys2);
+                    let w = wald(&self.g, &mine)?;
+                    push(&mut rows, t, df, ss * ys2, w);
                 }
             }
             SsType::II => {
@@ -74,7 +100,14 @@ impl Fit {
                     }
                     let mine = e.term_cols.get(t).cloned().unwrap_or_default();
                     let (df, ss) = e.extra_ss(&e.a, &cols, &mine);
-                    push(&mut rows, t, df, ss);
+                    let w = if robust {
+                        let mut all = cols.clone();
+                        all.extend(mine.iter().copied().filter(|c| !cols.contains(c)));
+                        wald(&e.graded(&e.a, &all), &mine)?
+                    } else {
+                        None
+                    };
+                    push(&mut rows, t, df, ss, w);
                 }
             }
             SsType::III => {
@@ -101,7 +134,14 @@ impl Fit {
                     let others: Vec<usize> =
                         all.iter().copied().filter(|c| !mine.contains(c)).collect();
                     let (df, ss) = e.extra_ss(&e.ea, &others, &mine);
-                    push(&mut rows, t, df, ss);
+                    let w = if robust {
+                        let mut all = others.clone();
+                        all.extend(mine.iter().copied());
+                        wald(&e.graded(&e.ea, &all), &mine)?
+                    } else {
+                        None
+                    };
+                    push(&mut rows, t, df, ss, w);
                 }
                 notes = self.type3_notes();
             }
@@ -175,6 +215,19 @@ pub fn compare(first: &Fit, second: &Fit) -> Result<Comparison, ModelError> {
     }
     if !same_response(first, second) {
         return Err(ModelError::DifferentResponse);
+    }
+    let weights = |f: &Fit| match &f.spec.weights {
+        Some(Var::Numeric { values, .. }) => Some(
+            f.lay
+                .used
+                .iter()
+                .map(|i| values.get(i).copied().unwrap_or(f64::NAN).to_bits())
+                .collect::<Vec<u64>>(),
+        ),
+        _ => None,
+    };
+    if weights(first) != weights(second) {
+        return Err(ModelError::DifferentWeights);
     }
     let by_names = |small: &Fit, big: &Fit| {
         (!small.spec.intercept || big.spec.intercept)

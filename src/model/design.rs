@@ -150,6 +150,8 @@ pub(crate) struct Layout {
     pub used: UsedRows,
     /// Number of rows in the input.
     pub total_rows: usize,
+    /// Rows left out because their weight is 0.
+    pub zero_weight: usize,
     pub factors: Vec<FactorLevels>,
     pub warnings: Vec<ModelWarning>,
     /// Term names.
@@ -352,10 +354,28 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
     if used.is_empty() {
         return Err(ModelError::NoRows);
     }
+    // Rows of weight 0 are counted apart from those with a missing value.
+    let zero_weight = match &spec.weights {
+        Some(Var::Numeric { values, .. }) => {
+            if values.len() != n {
+                return Err(ModelError::LengthMismatch {
+                    variable: spec
+                        .weights
+                        .as_ref()
+                        .map(|w| w.name().to_string())
+                        .unwrap_or_default(),
+                    expected: n,
+                    found: values.len(),
+                });
+            }
+            values.iter().filter(|w| **w == 0.0).count()
+        }
+        _ => 0,
+    };
     let mut warnings = Vec::new();
-    if used.len() < n {
+    if used.len() + zero_weight < n {
         warnings.push(ModelWarning::RowsDropped {
-            count: n - used.len(),
+            count: n - used.len() - zero_weight,
         });
     }
 
@@ -514,6 +534,7 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
     Ok(Layout {
         used,
         total_rows: n,
+        zero_weight,
         factors,
         warnings,
         term_names,
@@ -530,6 +551,19 @@ fn row_complete(
     yi: f64,
 ) -> Result<bool, ModelError> {
     let row_no = |i: usize| spec.row_numbers.get(i).unwrap_or(i);
+    if let Some(Var::Numeric { name, values }) = &spec.weights {
+        let w = values.get(i).copied().unwrap_or(f64::NAN);
+        if w.is_nan() || w == 0.0 {
+            return Ok(false);
+        }
+        if w < 0.0 || !w.is_finite() {
+            return Err(ModelError::BadWeight {
+                variable: name.clone(),
+                row: row_no(i),
+                value: w,
+            });
+        }
+    }
     if yi.is_nan() {
         return Ok(false);
     }

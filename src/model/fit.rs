@@ -129,6 +129,13 @@ pub struct Fit {
     /// Coefficients of the model as written after one step of refinement, when their
     /// recovery asked for it and the step could be trusted (made on first use).
     pub(crate) refined: OnceLock<Option<Vec<f64>>>,
+    /// The HC3 meat sum_i u_i u_i' e_i^2 / (1 - h_i)^2 in the fit's orthonormal coordinates
+    /// (k x k), made on first use; Err: the data-file line of a row with leverage 1.
+    pub(crate) hc3: OnceLock<Result<Arc<Mat>, usize>>,
+    /// Set in the robust view of a fit ([`Fit::robust`]): the k x k matrix F with
+    /// F'F = the HC3 meat, so that the robust covariance of two functions with
+    /// coordinates t1, t2 is (F t1) . (F t2).
+    pub(crate) robust: Option<Arc<Mat>>,
     /// Warnings about this fit.
     pub warnings: Vec<ModelWarning>,
 }
@@ -299,6 +306,8 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
         exact,
         cov_means,
         refined: OnceLock::new(),
+        hc3: OnceLock::new(),
+        robust: None,
         warnings,
     })
 }
@@ -413,7 +422,9 @@ pub(crate) fn build_engine(
     let mut basis = Basis::new(spec, lay, &[&cols, &ecols], &first);
     let q = basis.monos.len();
     within_budget(p, q, lay.used.len())?;
-    let lead_block = Block::fill(spec, &basis, y, &first, 0.0, 1.0);
+    // Unweighted: the centres and scales only condition the columns, and a weight must not
+    // move the response's centre out of the data's range.
+    let lead_block = Block::fill(spec, &basis, y, &first, 0.0, 1.0, None);
     let lead = lead_block.moments();
     let n_lead = lead.count.max(1.0);
     // Powers of two, so that scaling changes no digit of a monomial (the scaled columns
@@ -465,7 +476,8 @@ pub(crate) fn build_engine(
     for (b, batch) in blocks.chunks(FACTORED_AT_ONCE).enumerate() {
         let partial: Vec<Result<BlockPart, ModelError>> = crate::parallel::map(batch, |at| {
             let rows = lay.used.slice(at.clone());
-            let mut block = Block::fill(spec, &basis, y, &rows, y_centre, y_scale);
+            let mut block =
+                Block::fill(spec, &basis, y, &rows, y_centre, y_scale, weights_of(spec));
             block.check_finite(spec, &basis, &rows)?;
             let range = range_of(y, &rows);
             Ok((range, qr::block_factor(&mut block.a)))
@@ -594,7 +606,9 @@ struct Block {
 }
 
 impl Block {
-    /// The block of `rows`, the response as (y - y_centre) / y_scale.
+    /// The block of `rows`, the response as (y - y_centre) / y_scale; with case weights, each
+    /// row (monomials and response) times the square root of its weight, so that least
+    /// squares on the block is weighted least squares on the rows.
     fn fill(
         spec: &ModelSpec,
         basis: &Basis,
@@ -602,6 +616,7 @@ impl Block {
         rows: &[usize],
         y_centre: f64,
         y_scale: f64,
+        weights: Option<&[f64]>,
     ) -> Block {
         let q = basis.monos.len();
         let width = q + 1;
@@ -613,6 +628,19 @@ impl Block {
         if let Some(col) = a.data.get_mut(q * ld + width..(q + 1) * ld) {
             for (o, &i) in col.iter_mut().zip(rows) {
                 *o = (y.get(i).copied().unwrap_or(f64::NAN) - y_centre) * inv;
+            }
+        }
+        if let Some(w) = weights {
+            let roots: Vec<f64> = rows
+                .iter()
+                .map(|&i| w.get(i).copied().unwrap_or(f64::NAN).sqrt())
+                .collect();
+            for j in 0..width {
+                if let Some(col) = a.data.get_mut(j * ld + width..(j + 1) * ld) {
+                    for (o, r) in col.iter_mut().zip(&roots) {
+                        *o *= r;
+                    }
+                }
             }
         }
         Block { a, top: width }
@@ -679,6 +707,14 @@ fn range_of(y: &[f64], rows: &[usize]) -> (f64, f64) {
         })
 }
 
+/// The case weights of a weighted model, row by row (None without weights).
+pub(crate) fn weights_of(spec: &ModelSpec) -> Option<&[f64]> {
+    match &spec.weights {
+        Some(Var::Numeric { values, .. }) => Some(values.as_slice()),
+        _ => None,
+    }
+}
+
 /// The sum over the count, corrected once by the mean of the deviations from it (which
 /// recovers the rounding of the first sum); 0 for no values.
 fn mean_of(x: &[f64]) -> f64 {
@@ -719,6 +755,184 @@ pub(crate) fn check_level(level: f64) -> Result<(), ModelError> {
 }
 
 impl Fit {
+    /// Half the log-likelihood's share from case weights: the sum of ln w over the fitted
+    /// rows (0 without weights).
+    pub(crate) fn sum_log_weights(&self) -> f64 {
+        match weights_of(&self.spec) {
+            Some(w) => self
+                .lay
+                .used
+                .iter()
+                .map(|i| w.get(i).copied().unwrap_or(1.0).ln())
+                .sum(),
+            None => 0.0,
+        }
+    }
+
+    /// Whether the fit has case weights.
+    pub fn is_weighted(&self) -> bool {
+        self.spec.weights.is_some()
+    }
+
+    /// The name of the weights' column, if any.
+    pub fn weights_name(&self) -> Option<&str> {
+        self.spec.weights.as_ref().map(|w| w.name())
+    }
+
+    /// Whether this is the robust (HC3) view of a fit.
+    pub fn is_robust(&self) -> bool {
+        self.robust.is_some()
+    }
+
+    /// The HC3 meat (see [`Fit::hc3`]), summed over fixed blocks of rows in block order.
+    fn hc3_meat(&self) -> Result<Arc<Mat>, ModelError> {
+        let made = made_once(&self.hc3, || {
+            let blocks = self.lay.used.blocks(CHUNK_ROWS);
+            let pass = RowPass::new(self);
+            let parts =
+                crate::parallel::map(&blocks, |at| pass.meat(&self.lay.used.slice(at.clone())));
+            let k = self.kept.len();
+            let mut total = Mat::zeros(k, k);
+            for part in parts {
+                let m = part?;
+                for (t, v) in total.data.iter_mut().zip(&m.data) {
+                    *t += v;
+                }
+            }
+            Ok(Arc::new(total))
+        });
+        made.clone()
+            .map_err(|row| ModelError::RobustLeverageOne { row })
+    }
+
+    /// The same fit whose standard errors, tests and limits use the heteroscedasticity-
+    /// consistent covariance HC3 of MacKinnon & White (1985, "Some heteroskedasticity-
+    /// consistent covariance matrix estimators with improved finite sample properties",
+    /// Journal of Econometrics 29): (X'X)^-1 X' diag(e_i^2 / (1 - h_i)^2) X (X'X)^-1, with
+    /// weighted residuals and leverages in a weighted fit. Estimates do not change; t and F
+    /// keep the residual df. The sandwich is formed in the fit's orthonormal coordinates
+    /// u_i = R^-T V' w_i, so it keeps the accuracy of the centred fit.
+    pub fn robust(&self) -> Result<Fit, ModelError> {
+        let meat = self.hc3_meat()?;
+        let k = self.kept.len();
+        let m = nalgebra::DMatrix::from_fn(k, k, |i, j| 0.5 * (meat.get(i, j) + meat.get(j, i)));
+        let eig = nalgebra::SymmetricEigen::new(m);
+        // F = diag(sqrt(lambda)) Q', so F'F = Q diag(lambda) Q' (the meat).
+        let mut f = Mat::zeros(k, k);
+        for r in 0..k {
+            let l = eig
+                .eigenvalues
+                .get(r)
+                .copied()
+                .unwrap_or(0.0)
+                .max(0.0)
+                .sqrt();
+            for c in 0..k {
+                f.set(
+                    r,
+                    c,
+                    l * eig.eigenvectors.get((c, r)).copied().unwrap_or(0.0),
+                );
+            }
+        }
+        let mut out = self.clone();
+        out.robust = Some(Arc::new(f));
+        Ok(out)
+    }
+
+    /// The vector w with Cov(l1, l2) = w1 . w2 from a function's coordinates t = R^-T s:
+    /// sigma t, or F t in the robust view.
+    pub(crate) fn spread(&self, t: Vec<f64>) -> Vec<f64> {
+        match &self.robust {
+            None => t.into_iter().map(|v| v * self.sigma).collect(),
+            Some(f) => (0..f.rows)
+                .map(|r| {
+                    (0..f.cols)
+                        .map(|c| f.get(r, c) * t.get(c).copied().unwrap_or(0.0))
+                        .sum()
+                })
+                .collect(),
+        }
+    }
+
+    /// The robust (HC3) Wald test that the coordinates of the response along the columns
+    /// `extra` of the sub-fit `sub` are 0: (F statistic, df). The hypothesis space D is the
+    /// part of those columns orthogonal to the sub-fit's earlier columns; its coordinates
+    /// in the full fit's orthonormal basis are E = F_full' S_sub with F = R_w V R^-1 (R_w
+    /// the monomials' triangular factor), and the statistic g' (E' M E)^-1 g / d with
+    /// g = D'y and M the HC3 meat (Wald 1943; White 1980, Econometrica 48).
+    pub(crate) fn robust_wald(
+        &self,
+        sub: &Graded,
+        extra: &[usize],
+    ) -> Result<(f64, usize), ModelError> {
+        let meat = self.hc3_meat()?;
+        let e = &self.eng;
+        let q = e.basis.monos.len();
+        let orth = |g: &Graded| -> Mat {
+            // R_w V R^-1, q x k, column by column.
+            let k = g.kept.len();
+            let mut y = Mat::zeros(q, k);
+            for (c, v) in g.v.iter().enumerate() {
+                for i in 0..q {
+                    let s: f64 = (i..q)
+                        .map(|m| e.r_aug.get(i, m) * v.get(m).copied().unwrap_or(0.0))
+                        .sum();
+                    y.set(i, c, s);
+                }
+            }
+            let mut z = Mat::zeros(q, k);
+            for c in 0..k {
+                let d = g.r.get(c, c);
+                for i in 0..q {
+                    let mut s = y.get(i, c);
+                    for j in 0..c {
+                        s -= z.get(i, j) * g.r.get(j, c);
+                    }
+                    z.set(i, c, if d != 0.0 { s / d } else { 0.0 });
+                }
+            }
+            z
+        };
+        let full = orth(&self.g);
+        let part = orth(sub);
+        let pos: Vec<usize> = sub
+            .kept
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| extra.contains(c))
+            .map(|(i, _)| i)
+            .collect();
+        let d = pos.len();
+        if d == 0 {
+            return Ok((f64::NAN, 0));
+        }
+        let k = self.kept.len();
+        // E (k x d) and g (d).
+        let mut em = nalgebra::DMatrix::<f64>::zeros(k, d);
+        for (a, &p) in pos.iter().enumerate() {
+            for r in 0..k {
+                let s: f64 = (0..q).map(|i| full.get(i, r) * part.get(i, p)).sum();
+                em[(r, a)] = s;
+            }
+        }
+        let g = nalgebra::DVector::from_iterator(
+            d,
+            pos.iter()
+                .map(|&p| sub.qy.get(p).copied().unwrap_or(0.0) * e.y_scale),
+        );
+        let mm = nalgebra::DMatrix::from_fn(k, k, |i, j| meat.get(i, j));
+        let v = em.transpose() * mm * &em;
+        let stat = match v.clone().cholesky() {
+            Some(ch) => {
+                let x = ch.solve(&g);
+                g.dot(&x) / d as f64
+            }
+            None => f64::NAN,
+        };
+        Ok((stat, d))
+    }
+
     /// Estimate and standard error of a linear function of the fit given by its values on the
     /// scaled monomials (a row of [`Fit::row_at`], or a combination of such rows). Err(())
     /// when it is not estimable.
@@ -751,10 +965,7 @@ impl Fit {
             .iter()
             .map(|v| v.iter().zip(l).map(|(a, b)| a * b).sum())
             .collect();
-        let w = qr::solve_upper_transpose(&self.g.r, &s)
-            .into_iter()
-            .map(|v| v * self.sigma)
-            .collect();
+        let w = self.spread(qr::solve_upper_transpose(&self.g.r, &s));
         Ok((est, w))
     }
 
@@ -784,11 +995,15 @@ impl Fit {
         } else {
             (None, None)
         };
-        let loglik = -nf / 2.0 * ((2.0 * std::f64::consts::PI).ln() + (self.rss / nf).ln() + 1.0);
+        // With case weights, the rows' variances are sigma^2 / w, which adds half the sum of
+        // the log weights to the log-likelihood.
+        let loglik = -nf / 2.0 * ((2.0 * std::f64::consts::PI).ln() + (self.rss / nf).ln() + 1.0)
+            + 0.5 * self.sum_log_weights();
         let k = (rank + 1) as f64;
         FitSummary {
             n,
-            dropped_missing: self.lay.total_rows - n,
+            dropped_missing: self.lay.total_rows - n - self.lay.zero_weight,
+            dropped_zero_weight: self.lay.zero_weight,
             df_model,
             df_residual: self.df_res,
             sigma: self.sigma,
@@ -826,10 +1041,7 @@ impl Fit {
                 est = e.y_offset + (e.y_centre + est);
                 size += e.y_centre.abs() + e.y_offset.abs();
             }
-            let w = qr::solve_upper_transpose(&self.g.r, &row)
-                .into_iter()
-                .map(|v| v * self.sigma)
-                .collect();
+            let w = self.spread(qr::solve_upper_transpose(&self.g.r, &row));
             out.push((c, est, w, size));
         }
         out
@@ -902,6 +1114,10 @@ impl Fit {
                     let t = dd_mul(x, *bj);
                     terms += t.0.abs();
                     acc = dd_add(acc, (-t.0, -t.1));
+                }
+                // Weighted least squares: the gradient is W'(w r).
+                if let Some(wt) = weights_of(&self.spec) {
+                    acc = dd_mul(acc, wt.get(i).copied().unwrap_or(1.0));
                 }
                 terms_max = terms_max.max(terms);
                 // W'r in double-double too: it is the small gradient left by the large
@@ -1019,6 +1235,16 @@ impl Fit {
             .factors
             .iter()
             .any(|f| design::var_name(&self.spec, f.var) != factor)
+    }
+
+    /// The names of the model's factors other than `factor`, in the order they enter it.
+    pub fn other_factors(&self, factor: &str) -> Vec<String> {
+        self.lay
+            .factors
+            .iter()
+            .map(|f| design::var_name(&self.spec, f.var))
+            .filter(|n| n != factor)
+            .collect()
     }
 
     /// Each numeric covariate of the model (variable name) with its mean over the fitted
@@ -1249,7 +1475,10 @@ impl<'a> RowPass<'a> {
         let fit = self.fit;
         let e = &fit.eng;
         let q = e.basis.monos.len();
-        let block = Block::fill(&fit.spec, &e.basis, self.y, rows, e.y_centre, e.y_scale);
+        let weights = weights_of(&fit.spec);
+        let block = Block::fill(
+            &fit.spec, &e.basis, self.y, rows, e.y_centre, e.y_scale, weights,
+        );
         if out.fitted.is_some() || out.residual.is_some() {
             // Fitted values in the scaled coordinates, monomial by monomial.
             let mut fz = vec![0.0; rows.len()];
@@ -1266,16 +1495,44 @@ impl<'a> RowPass<'a> {
                 }
             }
             if let Some(fitted) = out.fitted {
+                // A weighted block holds sqrt(w) times the fitted value (weights are > 0 on
+                // fitted rows); the residuals stay weighted, sqrt(w) (y - fitted).
+                if let Some(w) = weights {
+                    for (f, &i) in fz.iter_mut().zip(rows) {
+                        *f /= w.get(i).copied().unwrap_or(1.0).sqrt();
+                    }
+                }
                 for (o, f) in fitted.iter_mut().zip(&fz) {
                     *o = e.y_offset + (e.y_centre + f * e.y_scale);
                 }
             }
         }
         if let Some(lev) = out.leverage {
-            // u = R^-T V' w for every row at once: the reduced columns at the rows, then
-            // forward substitution over whole columns, each u_i overwriting its column.
             let k = fit.kept.len();
             let m = rows.len();
+            let u = self.coordinates(&block, m);
+            lev.fill(0.0);
+            for i in 0..k {
+                for (h, p) in lev.iter_mut().zip(&u.data[i * m..(i + 1) * m]) {
+                    *h += p * p;
+                }
+            }
+            for h in lev.iter_mut() {
+                if (1.0 - *h).abs() <= LEVERAGE_ONE_TOL {
+                    *h = 1.0;
+                }
+            }
+        }
+    }
+
+    /// u_i = R^-T V' w_i for every row of the block at once (m x k, column-major): the rows'
+    /// coordinates along the fit's orthonormal columns (leverage h_i = |u_i|^2). The reduced
+    /// columns at the rows, then forward substitution over whole columns, each u_i
+    /// overwriting its column.
+    fn coordinates(&self, block: &Block, m: usize) -> Mat {
+        let fit = self.fit;
+        let k = fit.kept.len();
+        {
             let mut u = Mat::zeros(m, k);
             for (i, v) in fit.g.v.iter().enumerate() {
                 let col = &mut u.data[i * m..(i + 1) * m];
@@ -1304,18 +1561,58 @@ impl<'a> RowPass<'a> {
                     *z = if d != 0.0 { *z / d } else { 0.0 };
                 }
             }
-            lev.fill(0.0);
-            for i in 0..k {
-                for (h, p) in lev.iter_mut().zip(&u.data[i * m..(i + 1) * m]) {
-                    *h += p * p;
-                }
-            }
-            for h in lev.iter_mut() {
-                if (1.0 - *h).abs() <= LEVERAGE_ONE_TOL {
-                    *h = 1.0;
+            u
+        }
+    }
+
+    /// The HC3 meat of the block's rows, sum_i u_i u_i' e_i^2 / (1 - h_i)^2 (k x k, e_i the
+    /// weighted residual in the response's units), or the data-file line of a row with
+    /// leverage 1.
+    fn meat(&self, rows: &[usize]) -> Result<Mat, usize> {
+        let fit = self.fit;
+        let e = &fit.eng;
+        let q = e.basis.monos.len();
+        let k = fit.kept.len();
+        let m = rows.len();
+        let block = Block::fill(
+            &fit.spec,
+            &e.basis,
+            self.y,
+            rows,
+            e.y_centre,
+            e.y_scale,
+            weights_of(&fit.spec),
+        );
+        let mut res: Vec<f64> = block.column(q).to_vec();
+        for (j, g) in fit.gamma.iter().enumerate() {
+            if *g != 0.0 {
+                for (o, z) in res.iter_mut().zip(block.column(j)) {
+                    *o -= g * z;
                 }
             }
         }
+        let u = self.coordinates(&block, m);
+        let mut out = Mat::zeros(k, k);
+        for (r, &i) in rows.iter().enumerate() {
+            let h: f64 = (0..k).map(|c| u.data[c * m + r] * u.data[c * m + r]).sum();
+            let one_h = 1.0 - h;
+            if one_h <= LEVERAGE_ONE_TOL {
+                return Err(fit.spec.row_numbers.get(i).unwrap_or(i));
+            }
+            let er = res[r] * e.y_scale;
+            let omega = er * er / (one_h * one_h);
+            for a in 0..k {
+                let ua = u.data[a * m + r] * omega;
+                if ua == 0.0 {
+                    continue;
+                }
+                for b in 0..k {
+                    let x = out.get(a, b) + ua * u.data[b * m + r];
+                    out.set(a, b, x);
+                }
+            }
+        }
+        Ok(out)
     }
 }
 

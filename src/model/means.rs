@@ -6,7 +6,8 @@
 use super::cause::{cell_name, empty_cells};
 use super::design::{self, Point};
 use super::fit::{check_level, t_p, t_quantile, Fit};
-use super::{Adjust, AdjustedMean, Contrast, ModelError, Pair, Transform, Var};
+use super::{Adjust, AdjustedMean, CellMean, Contrast, ModelError, Pair, Side, Transform, Var};
+use crate::stats::mvt::MaxT;
 use crate::stats::tukey::{ptukey_upper, qtukey};
 
 /// Weights whose sum is within this of 0 (relative to the sum of their absolute values)
@@ -15,6 +16,33 @@ const WEIGHT_SUM_TOL: f64 = 1e-9;
 
 /// A level's label, code and row (see [`Fit::row_at`]).
 type LevelRow = (String, u32, Vec<f64>);
+
+/// The reason a difference inside one level of another factor is not estimable.
+const UNDETERMINED_CELL: &str =
+    "a cell it compares has no rows, and the model lets the effect differ between cells";
+
+/// The p of a t statistic: two-sided, or the upper (above) or lower (below) tail.
+fn one_p(t: f64, df: usize, side: Side) -> f64 {
+    let two = t_p(t, df);
+    match side {
+        Side::Both => two,
+        Side::Above if t > 0.0 => two / 2.0,
+        Side::Above => 1.0 - two / 2.0,
+        Side::Below if t < 0.0 => two / 2.0,
+        Side::Below => 1.0 - two / 2.0,
+    }
+}
+
+/// Holds factor `v` of a point at level `code` (weight 1 there, 0 elsewhere).
+fn fix_level(pt: &mut Point, v: usize, code: u32) {
+    for (fv, w) in pt.factor_weights.iter_mut() {
+        if *fv == v {
+            for (c, x) in w.iter_mut().enumerate() {
+                *x = if c == code as usize { 1.0 } else { 0.0 };
+            }
+        }
+    }
+}
 
 /// Empty cells named at most in the reason a mean or difference is not estimable.
 const MAX_CELLS_SHOWN: usize = 4;
@@ -206,36 +234,7 @@ impl Fit {
     ) -> Result<(usize, Vec<LevelRow>), ModelError> {
         let v = self.model_factor(factor)?;
         let numeric = self.covariate_values(at)?;
-        let levels = match self.spec.vars.get(v) {
-            Some(Var::Factor { levels, .. }) => levels.clone(),
-            _ => Vec::new(),
-        };
-        let present = self
-            .lay
-            .factor(v)
-            .map(|f| f.present.clone())
-            .unwrap_or_default();
-        if present.len() < 2 {
-            return Err(ModelError::TooFewLevels {
-                term: None,
-                factor: factor.to_string(),
-                levels: present.len(),
-            });
-        }
-        Ok((
-            v,
-            present
-                .iter()
-                .map(|&c| {
-                    let pt = self.point(v, Some(c), numeric.clone(), None);
-                    (
-                        levels.get(c as usize).cloned().unwrap_or_default(),
-                        c,
-                        self.row_at(&pt),
-                    )
-                })
-                .collect(),
-        ))
+        Ok((v, self.rows_of_levels(v, &numeric, &[])?))
     }
 
     /// Adjusted means of each level of `factor` (levels with rows, declared order), other
@@ -277,9 +276,8 @@ impl Fit {
     }
 
     /// Every pairwise difference of adjusted means (first minus second, levels i < j in
-    /// order) with the chosen multiplicity adjustment. A difference the design does not
-    /// determine comes with NaN numbers and the reason, and is not counted among the
-    /// comparisons the adjustment is for.
+    /// order) with the chosen multiplicity adjustment: [`Fit::differences`] without `within`
+    /// or a control.
     pub fn pairs(
         &self,
         factor: &str,
@@ -287,144 +285,366 @@ impl Fit {
         adjust: Adjust,
         level: f64,
     ) -> Result<Vec<Pair>, ModelError> {
+        self.differences(factor, None, at, adjust, None, level)
+    }
+
+    /// Differences of adjusted means of `factor`: every pair (first minus second, levels
+    /// i < j in order), or with `versus` every other level minus the control. With `within`,
+    /// the levels of `factor` are compared inside each level of that factor (cell means),
+    /// and the adjustment is made within each level. A difference the design does not
+    /// determine comes with NaN numbers and the reason, and is not counted among the
+    /// comparisons the adjustment is for.
+    pub fn differences(
+        &self,
+        factor: &str,
+        within: Option<&str>,
+        at: &[(String, f64)],
+        adjust: Adjust,
+        versus: Option<(&str, Side)>,
+        level: f64,
+    ) -> Result<Vec<Pair>, ModelError> {
         check_level(level)?;
-        let (v, rows) = self.level_rows(factor, at)?;
-        let k = rows.len();
-        super::check_pairs(factor, k)?;
-        let m = k * k.saturating_sub(1) / 2;
-        let df = self.df_res;
-        let alpha = 1.0 - level;
-        let mut out = Vec::with_capacity(m);
-        let mut raw = Vec::with_capacity(m);
-        for i in 0..k {
-            for j in (i + 1)..k {
-                let (Some((li, ci, ri)), Some((lj, cj, rj))) = (rows.get(i), rows.get(j)) else {
-                    continue;
-                };
-                let d: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a - b).collect();
-                let Ok((est, se)) = self.linear(&d) else {
-                    out.push(Pair {
-                        first: li.clone(),
-                        second: lj.clone(),
-                        estimate: f64::NAN,
-                        se: f64::NAN,
-                        t: f64::NAN,
-                        df,
-                        p: f64::NAN,
-                        lower: None,
-                        upper: None,
-                        not_estimable: Some(self.why_not(v, &[*ci, *cj])),
+        let v = self.model_factor(factor)?;
+        let numeric = self.covariate_values(at)?;
+        let groups: Vec<Option<(String, usize, u32)>> = match within {
+            None => vec![None],
+            Some(b) => {
+                let bv = self.model_factor(b)?;
+                if bv == v {
+                    return Err(ModelError::WithinSameFactor {
+                        factor: factor.to_string(),
                     });
-                    raw.push(f64::NAN);
-                    continue;
+                }
+                let labels = match self.spec.vars.get(bv) {
+                    Some(Var::Factor { levels, .. }) => levels.clone(),
+                    _ => Vec::new(),
                 };
-                let t = if self.exact { f64::NAN } else { est / se };
-                let p = t_p(t, df);
-                raw.push(p);
-                out.push(Pair {
-                    first: li.clone(),
-                    second: lj.clone(),
-                    estimate: est,
-                    se,
-                    t,
-                    df,
-                    p,
-                    lower: None,
-                    upper: None,
-                    not_estimable: None,
+                self.lay
+                    .factor(bv)
+                    .map(|f| f.present.clone())
+                    .unwrap_or_default()
+                    .into_iter()
+                    .map(|c| Some((labels.get(c as usize).cloned().unwrap_or_default(), bv, c)))
+                    .collect()
+            }
+        };
+        let mut out = Vec::new();
+        for g in groups {
+            let fixed: Vec<(usize, u32)> = g.iter().map(|(_, bv, c)| (*bv, *c)).collect();
+            let rows = self.rows_of_levels(v, &numeric, &fixed)?;
+            let family: Vec<(usize, usize)> = match versus {
+                None => {
+                    super::check_pairs(factor, rows.len())?;
+                    (0..rows.len())
+                        .flat_map(|i| ((i + 1)..rows.len()).map(move |j| (i, j)))
+                        .collect()
+                }
+                Some((control, _)) => {
+                    let c = rows.iter().position(|r| r.0 == control).ok_or_else(|| {
+                        ModelError::UnknownControl {
+                            factor: factor.to_string(),
+                            level: control.to_string(),
+                        }
+                    })?;
+                    (0..rows.len())
+                        .filter(|&j| j != c)
+                        .map(|j| (j, c))
+                        .collect()
+                }
+            };
+            let side = versus.map_or(Side::Both, |(_, s)| s);
+            let mut part = self.family(v, &rows, &family, adjust, side, level, &fixed);
+            for p in &mut part {
+                p.within = g.as_ref().map(|x| x.0.clone());
+            }
+            out.extend(part);
+        }
+        Ok(out)
+    }
+
+    /// Adjusted cell means of every combination of the levels of `first` and `second`
+    /// (levels with rows, declared order, `second` varying fastest), other factors averaged
+    /// with equal weights, covariates at `at` or at their means; with the number of fitted
+    /// rows in each cell.
+    pub fn cell_means(
+        &self,
+        first: &str,
+        second: &str,
+        at: &[(String, f64)],
+        level: f64,
+    ) -> Result<Vec<CellMean>, ModelError> {
+        check_level(level)?;
+        let a = self.model_factor(first)?;
+        let b = self.model_factor(second)?;
+        if a == b {
+            return Err(ModelError::WithinSameFactor {
+                factor: first.to_string(),
+            });
+        }
+        let numeric = self.covariate_values(at)?;
+        let tq = t_quantile(0.5 + level / 2.0, self.df_res);
+        let (la, ca) = self.labels_present(a);
+        let (lb, cb) = self.labels_present(b);
+        let codes = |v: usize| match self.spec.vars.get(v) {
+            Some(Var::Factor { codes, .. }) => Some(codes.clone()),
+            _ => None,
+        };
+        let (Some(codes_a), Some(codes_b)) = (codes(a), codes(b)) else {
+            return Ok(Vec::new());
+        };
+        let mut counts = vec![0usize; la.len() * lb.len()];
+        for i in self.lay.used.iter() {
+            let (Some(x), Some(y)) = (
+                codes_a.get(i).and_then(|c| c.get()),
+                codes_b.get(i).and_then(|c| c.get()),
+            ) else {
+                continue;
+            };
+            if let Some(n) = counts.get_mut(x as usize * lb.len() + y as usize) {
+                *n += 1;
+            }
+        }
+        let mut out = Vec::new();
+        for &x in &ca {
+            for &y in &cb {
+                let mut pt = self.point(a, Some(x), numeric.clone(), None);
+                fix_level(&mut pt, b, y);
+                let l = self.row_at(&pt);
+                let rows = counts
+                    .get(x as usize * lb.len() + y as usize)
+                    .copied()
+                    .unwrap_or(0);
+                let name = |v: &[String], c: u32| v.get(c as usize).cloned().unwrap_or_default();
+                out.push(match self.linear(&l) {
+                    Ok((m, se)) => CellMean {
+                        first: name(&la, x),
+                        second: name(&lb, y),
+                        rows,
+                        mean: m,
+                        se,
+                        df: self.df_res,
+                        lower: m - tq * se,
+                        upper: m + tq * se,
+                        not_estimable: None,
+                    },
+                    Err(()) => CellMean {
+                        first: name(&la, x),
+                        second: name(&lb, y),
+                        rows,
+                        mean: f64::NAN,
+                        se: f64::NAN,
+                        df: self.df_res,
+                        lower: f64::NAN,
+                        upper: f64::NAN,
+                        not_estimable: Some(self.why_not(a, &[x])),
+                    },
                 });
             }
         }
-        // The adjustment is for the comparisons that can be made.
-        let mf = out
+        Ok(out)
+    }
+
+    /// A factor's level labels and the codes of its levels with rows.
+    fn labels_present(&self, v: usize) -> (Vec<String>, Vec<u32>) {
+        let labels = match self.spec.vars.get(v) {
+            Some(Var::Factor { levels, .. }) => levels.clone(),
+            _ => Vec::new(),
+        };
+        let present = self
+            .lay
+            .factor(v)
+            .map(|f| f.present.clone())
+            .unwrap_or_default();
+        (labels, present)
+    }
+
+    /// Level rows (see [`Fit::row_at`]) of factor `v` with the factors in `fixed` held at
+    /// their levels.
+    fn rows_of_levels(
+        &self,
+        v: usize,
+        numeric: &[(usize, f64)],
+        fixed: &[(usize, u32)],
+    ) -> Result<Vec<LevelRow>, ModelError> {
+        let (labels, present) = self.labels_present(v);
+        if present.len() < 2 {
+            return Err(ModelError::TooFewLevels {
+                term: None,
+                factor: design::var_name(&self.spec, v),
+                levels: present.len(),
+            });
+        }
+        Ok(present
             .iter()
-            .filter(|q| q.not_estimable.is_none())
-            .count()
-            .max(1) as f64;
-        let half_width = |crit: f64, se: f64| crit * se;
-        let mut out_na: Vec<Pair> = Vec::new();
-        let mut slots: Vec<Option<usize>> = Vec::with_capacity(out.len());
-        let mut kept: Vec<Pair> = Vec::new();
-        let mut kept_raw: Vec<f64> = Vec::new();
-        for (q, r) in out.into_iter().zip(raw) {
-            if q.not_estimable.is_some() {
-                slots.push(None);
-                out_na.push(q);
-            } else {
-                slots.push(Some(kept.len()));
-                kept.push(q);
-                kept_raw.push(r);
-            }
-        }
-        let (mut out, raw) = (kept, kept_raw);
-        // The studentized range is over the levels the estimable differences compare.
-        let mut compared: Vec<&str> = Vec::new();
-        for q in &out {
-            for l in [q.first.as_str(), q.second.as_str()] {
-                if !compared.contains(&l) {
-                    compared.push(l);
+            .map(|&c| {
+                let mut pt = self.point(v, Some(c), numeric.to_vec(), None);
+                for &(fv, fc) in fixed {
+                    fix_level(&mut pt, fv, fc);
                 }
-            }
-        }
-        let k = compared.len().max(2);
-        match adjust {
-            Adjust::None => {
-                let c = t_quantile(1.0 - alpha / 2.0, df);
-                for q in &mut out {
-                    q.lower = Some(q.estimate - half_width(c, q.se));
-                    q.upper = Some(q.estimate + half_width(c, q.se));
-                }
-            }
-            Adjust::Bonferroni => {
-                let c = t_quantile(1.0 - alpha / (2.0 * mf), df);
-                for q in &mut out {
-                    q.p = (q.p * mf).min(1.0);
-                    q.lower = Some(q.estimate - half_width(c, q.se));
-                    q.upper = Some(q.estimate + half_width(c, q.se));
-                }
-            }
-            Adjust::Sidak => {
-                let c = t_quantile(1.0 - (1.0 - level.powf(1.0 / mf)) / 2.0, df);
-                for q in &mut out {
-                    // 1 - (1 - p)^m, computed without cancellation for small p.
-                    q.p = (-((mf) * (-q.p).ln_1p()).exp_m1()).clamp(0.0, 1.0);
-                    q.lower = Some(q.estimate - half_width(c, q.se));
-                    q.upper = Some(q.estimate + half_width(c, q.se));
-                }
-            }
-            Adjust::Holm => {
-                let mut order: Vec<usize> = (0..out.len()).collect();
-                order.sort_by(|&a, &b| raw[a].total_cmp(&raw[b]).then(a.cmp(&b)));
-                let mut running: f64 = 0.0;
-                for (rank, &idx) in order.iter().enumerate() {
-                    let adj = ((mf - rank as f64) * raw[idx]).min(1.0);
-                    running = running.max(adj);
-                    if let Some(q) = out.get_mut(idx) {
-                        q.p = running;
-                    }
-                }
-            }
-            Adjust::Tukey => {
-                let c = qtukey(level, k, df as f64) / std::f64::consts::SQRT_2;
-                for q in &mut out {
-                    q.p = ptukey_upper(q.t.abs() * std::f64::consts::SQRT_2, k, df as f64)
-                        .clamp(0.0, 1.0);
-                    q.lower = Some(q.estimate - half_width(c, q.se));
-                    q.upper = Some(q.estimate + half_width(c, q.se));
-                }
-            }
-        }
-        let mut done: Vec<Option<Pair>> = out.into_iter().map(Some).collect();
-        let mut na = out_na.into_iter();
-        Ok(slots
-            .into_iter()
-            .filter_map(|s| match s {
-                Some(i) => done.get_mut(i).and_then(Option::take),
-                None => na.next(),
+                (
+                    labels.get(c as usize).cloned().unwrap_or_default(),
+                    c,
+                    self.row_at(&pt),
+                )
             })
             .collect())
     }
 
+    /// The differences rows[i] - rows[j] for each (i, j) of `family`, adjusted together.
+    #[allow(clippy::too_many_arguments)]
+    fn family(
+        &self,
+        v: usize,
+        rows: &[LevelRow],
+        family: &[(usize, usize)],
+        adjust: Adjust,
+        side: Side,
+        level: f64,
+        fixed: &[(usize, u32)],
+    ) -> Vec<Pair> {
+        let df = self.df_res;
+        let alpha = 1.0 - level;
+        let mut out: Vec<Pair> = Vec::with_capacity(family.len());
+        let mut spreads: Vec<Option<Vec<f64>>> = Vec::with_capacity(family.len());
+        for &(i, j) in family {
+            let (Some((li, ci, ri)), Some((lj, cj, rj))) = (rows.get(i), rows.get(j)) else {
+                continue;
+            };
+            let d: Vec<f64> = ri.iter().zip(rj).map(|(a, b)| a - b).collect();
+            let mut pair = Pair {
+                within: None,
+                p_error: 0.0,
+                first: li.clone(),
+                second: lj.clone(),
+                estimate: f64::NAN,
+                se: f64::NAN,
+                t: f64::NAN,
+                df,
+                p: f64::NAN,
+                lower: None,
+                upper: None,
+                not_estimable: None,
+            };
+            match self.linear_parts(&d) {
+                Ok((est, w)) => {
+                    let se = w.iter().map(|x| x * x).sum::<f64>().sqrt();
+                    let t = if self.exact { f64::NAN } else { est / se };
+                    pair.estimate = est;
+                    pair.se = se;
+                    pair.t = t;
+                    pair.p = one_p(t, df, side);
+                    spreads.push(Some(w));
+                }
+                Err(()) => {
+                    let why = if fixed.is_empty() {
+                        self.why_not(v, &[*ci, *cj])
+                    } else {
+                        UNDETERMINED_CELL.to_string()
+                    };
+                    pair.not_estimable = Some(why);
+                    spreads.push(None);
+                }
+            }
+            out.push(pair);
+        }
+        // The adjustment is for the comparisons that can be made.
+        let made: Vec<usize> = (0..out.len())
+            .filter(|&i| out[i].not_estimable.is_none())
+            .collect();
+        let mf = made.len().max(1) as f64;
+        let sides = if side == Side::Both { 2.0 } else { 1.0 };
+        let set_limits = |q: &mut Pair, crit: f64| {
+            let h = crit * q.se;
+            q.lower = (side != Side::Below).then_some(q.estimate - h);
+            q.upper = (side != Side::Above).then_some(q.estimate + h);
+        };
+        match adjust {
+            Adjust::None => {
+                let c = t_quantile(1.0 - alpha / sides, df);
+                for &i in &made {
+                    set_limits(&mut out[i], c);
+                }
+            }
+            Adjust::Bonferroni => {
+                let c = t_quantile(1.0 - alpha / (sides * mf), df);
+                for &i in &made {
+                    out[i].p = (out[i].p * mf).min(1.0);
+                    set_limits(&mut out[i], c);
+                }
+            }
+            Adjust::Sidak => {
+                let c = t_quantile(1.0 - (1.0 - level.powf(1.0 / mf)) / sides, df);
+                for &i in &made {
+                    // 1 - (1 - p)^m, computed without cancellation for small p.
+                    out[i].p = (-(mf * (-out[i].p).ln_1p()).exp_m1()).clamp(0.0, 1.0);
+                    set_limits(&mut out[i], c);
+                }
+            }
+            Adjust::Holm => {
+                let mut order: Vec<usize> = made.clone();
+                order.sort_by(|&a, &b| out[a].p.total_cmp(&out[b].p).then(a.cmp(&b)));
+                let mut running: f64 = 0.0;
+                for (rank, &idx) in order.iter().enumerate() {
+                    let adj = ((mf - rank as f64) * out[idx].p).min(1.0);
+                    running = running.max(adj);
+                    out[idx].p = running;
+                }
+            }
+            Adjust::Tukey => {
+                // The studentized range is over the levels the estimable differences compare.
+                let mut compared: Vec<&str> = Vec::new();
+                for &i in &made {
+                    for l in [out[i].first.as_str(), out[i].second.as_str()] {
+                        if !compared.contains(&l) {
+                            compared.push(l);
+                        }
+                    }
+                }
+                let k = compared.len().max(2);
+                let c = qtukey(level, k, df as f64) / std::f64::consts::SQRT_2;
+                for &i in &made {
+                    let q = &mut out[i];
+                    q.p = ptukey_upper(q.t.abs() * std::f64::consts::SQRT_2, k, df as f64)
+                        .clamp(0.0, 1.0);
+                    set_limits(q, c);
+                }
+            }
+            Adjust::Dunnett => {
+                let ws: Vec<&Vec<f64>> = made
+                    .iter()
+                    .filter_map(|&i| spreads.get(i).and_then(|s| s.as_ref()))
+                    .collect();
+                let defined = ws.iter().all(|w| w.iter().any(|x| *x != 0.0))
+                    && made.iter().all(|&i| out[i].t.is_finite());
+                if !defined || made.is_empty() {
+                    return out;
+                }
+                let norm = |w: &Vec<f64>| w.iter().map(|x| x * x).sum::<f64>().sqrt();
+                let corr: Vec<Vec<f64>> = ws
+                    .iter()
+                    .map(|a| {
+                        ws.iter()
+                            .map(|b| {
+                                a.iter().zip(b.iter()).map(|(x, y)| x * y).sum::<f64>()
+                                    / (norm(a) * norm(b))
+                            })
+                            .collect()
+                    })
+                    .collect();
+                let mut dist = MaxT::new(&corr, df as f64, side == Side::Both);
+                let (c, _) = dist.quantile(level);
+                for &i in &made {
+                    let q = &mut out[i];
+                    let signed = if side == Side::Below { -q.t } else { q.t };
+                    let e = dist.p_value(signed);
+                    q.p = e.value;
+                    q.p_error = e.error;
+                    set_limits(q, c);
+                }
+            }
+        }
+        out
+    }
     /// A contrast sum_i w_i * mean_i of the adjusted means of `factor` (one weight per level
     /// with rows, in declared order).
     pub fn contrast(

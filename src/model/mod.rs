@@ -130,6 +130,11 @@ pub struct ModelSpec {
     /// large responses such as 1000000000000.4 keep the digits that differ between rows.
     /// In a model without an intercept the offset is folded into the values before fitting.
     pub response_offset: f64,
+    /// Case weights (a [`Var::Numeric`], aligned with the response): weighted least squares,
+    /// each row's squared residual counted `w` times. A row of weight 0 is left out of the
+    /// fit (and of the residual df), a missing weight leaves its row out like any missing
+    /// value, and a negative or infinite weight is an error.
+    pub weights: Option<Var>,
 }
 
 /// Which kind of sums of squares an analysis-of-variance table holds.
@@ -154,8 +159,44 @@ pub enum Adjust {
     Bonferroni,
     /// Sidak.
     Sidak,
+    /// Dunnett's many-to-one comparisons (only against a control).
+    Dunnett,
     /// No adjustment.
     None,
+}
+
+/// The side of a comparison against a control.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Side {
+    /// Two-sided.
+    Both,
+    /// One-sided: is each level above the control?
+    Above,
+    /// One-sided: is each level below the control?
+    Below,
+}
+
+/// An adjusted mean of one cell of two factors.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CellMean {
+    /// Level of the first factor.
+    pub first: String,
+    /// Level of the second factor.
+    pub second: String,
+    /// Fitted rows in the cell.
+    pub rows: usize,
+    /// The mean (NaN when not estimable) with SE, df and limits.
+    pub mean: f64,
+    /// Standard error.
+    pub se: f64,
+    /// Degrees of freedom.
+    pub df: usize,
+    /// Lower confidence limit.
+    pub lower: f64,
+    /// Upper confidence limit.
+    pub upper: f64,
+    /// Why the mean is not estimable, when it is not.
+    pub not_estimable: Option<String>,
 }
 
 /// Overall statistics of a fit.
@@ -165,6 +206,8 @@ pub struct FitSummary {
     pub n: usize,
     /// Rows dropped for missing values.
     pub dropped_missing: usize,
+    /// Rows left out because their weight is 0.
+    pub dropped_zero_weight: usize,
     /// Model degrees of freedom (estimated coefficients, less the intercept).
     pub df_model: usize,
     /// Residual degrees of freedom.
@@ -321,6 +364,10 @@ pub struct AdjustedMean {
 /// A pairwise comparison of adjusted means (first minus second).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Pair {
+    /// The level of the `within` factor the comparison is made in, if any.
+    pub within: Option<String>,
+    /// The error estimate of a p computed by numerical integration (Dunnett), else 0.
+    pub p_error: f64,
     /// First level.
     pub first: String,
     /// Second level.
@@ -670,6 +717,32 @@ pub enum ModelError {
         /// Largest minus smallest response.
         width: f64,
     },
+    /// A case weight is negative or infinite.
+    BadWeight {
+        /// The weights' column.
+        variable: String,
+        /// Line in the data file.
+        row: usize,
+        /// The weight.
+        value: f64,
+    },
+    /// Robust (HC3) standard errors are undefined: a row has leverage 1.
+    RobustLeverageOne {
+        /// Line in the data file of the first such row.
+        row: usize,
+    },
+    /// A comparison against a control names a level the factor does not have (with rows).
+    UnknownControl {
+        /// The factor.
+        factor: String,
+        /// The level given.
+        level: String,
+    },
+    /// The factor `within` is the factor compared.
+    WithinSameFactor {
+        /// The factor.
+        factor: String,
+    },
     /// A covariate is constant over the fitted rows.
     CovariateZeroVariance {
         /// First term using it.
@@ -767,6 +840,8 @@ pub enum ModelError {
     NotNested,
     /// The two models were fitted on different rows.
     DifferentRows,
+    /// The two models of a comparison have different case weights.
+    DifferentWeights,
     /// The two models have different responses.
     DifferentResponse,
     /// The two models have the same column space.
@@ -793,9 +868,13 @@ impl fmt::Display for ModelError {
             E::SqrtOfNegative { variable, row: Some(r), value, .. } => write!(f, "sqrt({variable}) is undefined at line {r}, where {variable} = {value}; sqrt needs values >= 0"),
             E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
             E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
-            E::TooManyPairs { factor, levels } => write!(f, "`{factor}` has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M pairs`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2),
+            E::TooManyPairs { factor, levels } => write!(f, "`{factor}` has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M differences`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2),
             E::TooLarge { coefficients, megabytes } => write!(f, "the model has {coefficients} coefficients, and fitting it would take about {megabytes} MiB of working memory, more than covey's limit of {} MiB; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)", fit::MODEL_MEMORY_BUDGET >> 20),
             E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
+            E::BadWeight { variable, row, value } => write!(f, "the weight `{variable}` is {value} at line {row}; weights must be 0 or more (0 leaves a row out)"),
+            E::RobustLeverageOne { row } => write!(f, "robust (HC3) standard errors are undefined because the row at line {row} has leverage 1 (it alone determines a coefficient, such as the only row of a level); remove that row or leave out `robust`"),
+            E::UnknownControl { factor, level } => write!(f, "`{level}` is not a level of `{factor}` with rows in the fitted data"),
+            E::WithinSameFactor { factor } => write!(f, "`within` names the factor compared (`{factor}`); name another factor of the model"),
             E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
             E::ResponseOutOfRange { width } => write!(f, "the response's values spread over {width:.1e} (largest minus smallest), too {} for their sums of squares to be held as numbers (covey needs a spread between {:e} and {:e}); rescale the response, for example {} it by 1e{}", if *width > 1.0 { "wide" } else { "narrow" }, fit::RESPONSE_SPREAD_MIN, fit::RESPONSE_SPREAD_MAX, if *width > 1.0 { "divide" } else { "multiply" }, width.log10().round().abs()),
             E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
@@ -816,6 +895,7 @@ impl fmt::Display for ModelError {
             E::BadLevel { value } => write!(f, "{value} is not between 0 and 1"),
             E::UnknownLevel { factor, level } => write!(f, "`{level}` is not a level of `{factor}` in this model"),
             E::NotNested => write!(f, "neither model is nested in the other (each has columns that are not combinations of the other's columns); compare a model only with one that extends it"),
+            E::DifferentWeights => write!(f, "the two models have different case weights (or only one has weights), so their residual sums of squares are not on one scale; give both the same `weights`"),
             E::DifferentRows => write!(f, "the two models were fitted on different rows (missing values differ); fit both on the same rows"),
             E::DifferentResponse => write!(f, "the two models have different responses, so their residual sums of squares cannot be compared"),
             E::SameColumnSpace => write!(f, "the two models have the same columns, so there is nothing to test"),
@@ -825,7 +905,7 @@ impl fmt::Display for ModelError {
 
 impl core::error::Error for ModelError {}
 
-/// Most levels of a factor whose every pair of levels a table compares (`table pairs`, `table
+/// Most levels of a factor whose every pair of levels a table compares (`table differences`, `table
 /// regions` without `between`): 200 levels make 19,900 pairs, already more than anyone reads,
 /// and each costs a studentized-range quantile.
 pub const MAX_PAIRED_LEVELS: usize = 200;

@@ -180,6 +180,7 @@ fn reference_spec(rows: &[(&str, &str, f64, f64)], terms: Vec<TermSpec>) -> Mode
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     }
 }
 
@@ -619,6 +620,7 @@ fn leverage_one_is_undefined() {
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     };
     let f = fit(&spec).expect("fit");
     let n = f.diagnostics().len();
@@ -944,6 +946,7 @@ fn no_panic_on_degenerate_inputs() {
             intercept: next(3) != 0,
             row_numbers: (0..n).collect(),
             response_offset: 0.0,
+            weights: None,
         };
         if let Ok(f) = fit(&spec) {
             let _ = f.summary();
@@ -1033,6 +1036,7 @@ fn nist_anova(name: &str, exact_shift: bool) -> f64 {
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     };
     let f = fit(&spec).expect("NIST anova fits");
     let a = f.anova(SsType::I).expect("anova");
@@ -1086,6 +1090,7 @@ fn nist_norris() {
         intercept: true,
         row_numbers: (2..rows.len() + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     };
     let f = fit(&spec).expect("Norris fits");
     let c = f.coefficients(0.95);
@@ -1264,6 +1269,7 @@ fn design_fixtures() {
                 intercept: true,
                 row_numbers: (2..rows.len() + 2).collect(),
                 response_offset: 0.0,
+                weights: None,
             };
             let f = fit(&spec).expect("fixture model fits");
             let ctx = format!("d{d} {}", m["terms"]);
@@ -1524,6 +1530,7 @@ fn textbook_ancova_examples() {
             intercept: true,
             row_numbers: (2..rows.len() + 2).collect(),
             response_offset: 0.0,
+            weights: None,
         };
         let f = fit(&spec).expect("fit");
         let c = &js["computed"];
@@ -1811,6 +1818,7 @@ fn rows_used_across_blocks() {
         intercept: true,
         row_numbers: (2..n + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     };
     let f = fit(&spec(y.clone())).expect("fit");
     let want: Vec<usize> = (0..n).filter(|i| !gaps.contains(i)).collect();
@@ -1842,6 +1850,7 @@ fn row_values_are_the_same_whatever_range_they_are_asked_in() {
         intercept: true,
         row_numbers: (2..n + 2).collect(),
         response_offset: 0.0,
+        weights: None,
     };
     let f = fit(&spec).expect("fit");
     let d = f.diagnostics();

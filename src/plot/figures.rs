@@ -559,21 +559,30 @@ pub fn residuals(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         Some(x) => x.clone(),
         None => "fitted values".to_string(),
     };
+    // A weighted model's residuals are the weighted ones, sqrt(w) times the residual.
+    let weighted = if fit.is_weighted() { "weighted " } else { "" };
     let alt = format!(
-        "Scatter of the residuals of {} against {}{}, with a horizontal line at zero{}.{}",
+        "Scatter of the {weighted}residuals of {} against {}{}, with a horizontal line at zero{}.{}",
         req.response_name,
         against,
         marked_by(req),
         note,
         repeat_note(groups.labels.len())
     );
-    let caption = format!("Residuals against {against}{note}");
+    let caption = format!(
+        "{}esiduals against {against}{note}",
+        if weighted.is_empty() {
+            "R"
+        } else {
+            "Weighted r"
+        }
+    );
     let chart = Chart {
         x_label: match &req.covariate_label {
             Some(l) => l.clone(),
             None => format!("fitted {}", req.response_label),
         },
-        y_label: format!("residual of {}", req.response_label),
+        y_label: format!("{weighted}residual of {}", req.response_label),
         legend_title: req.factor_name.clone(),
         groups: groups.legend(),
         points,
@@ -634,10 +643,11 @@ pub fn quantiles(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         note,
         repeat_note(groups.labels.len())
     );
-    let caption = format!("Normal quantiles of standardized residuals{note}");
+    let weighted = if fit.is_weighted() { "weighted " } else { "" };
+    let caption = format!("Normal quantiles of standardized {weighted}residuals{note}");
     let chart = Chart {
         x_label: "normal quantile (Blom)".to_string(),
-        y_label: "standardized residual".to_string(),
+        y_label: format!("standardized {weighted}residual"),
         legend_title: req.factor_name.clone(),
         groups: groups.legend(),
         points,
@@ -716,6 +726,120 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         groups: labels.clone(),
         categories: Some(labels),
         intervals,
+        ..Chart::default()
+    };
+    Ok(Drawn {
+        svg: super::chart::render(&chart)?,
+        alt,
+        caption,
+    })
+}
+
+/// `plot interaction M for A by B`: the adjusted mean of every cell of A and B with its 95%
+/// interval, A's levels along the axis and one line (colour and marker shape) per level of B,
+/// each group's intervals set a little apart so that they do not hide each other. A cell
+/// whose mean the design does not determine is left out, and the caption says so.
+pub fn interaction(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
+    let fname = req.factor_name.clone().ok_or(PlotError::NoFactor)?;
+    let bname = req.by_name.clone().ok_or(PlotError::NoFactor)?;
+    let cells = fit
+        .cell_means(&fname, &bname, &[], MEANS_LEVEL)
+        .map_err(PlotError::Model)?;
+    let mut a_levels: Vec<String> = Vec::new();
+    let mut b_levels: Vec<String> = Vec::new();
+    for c in &cells {
+        if !a_levels.contains(&c.first) {
+            a_levels.push(c.first.clone());
+        }
+        if !b_levels.contains(&c.second) {
+            b_levels.push(c.second.clone());
+        }
+    }
+    for (name, k) in [(&fname, a_levels.len()), (&bname, b_levels.len())] {
+        if k > super::MAX_LEVELS {
+            return Err(PlotError::TooManyLevels {
+                factor: name.clone(),
+                levels: k,
+            });
+        }
+    }
+    let g = b_levels.len().max(1) as f64;
+    // Dodge: the groups' intervals spread over a fifth of the space between categories.
+    let dodge = |j: usize| (j as f64 - (g - 1.0) / 2.0) * (0.2 / g.max(2.0));
+    let mut intervals = Vec::new();
+    let mut curves = Vec::new();
+    let mut missing = 0;
+    for (j, b) in b_levels.iter().enumerate() {
+        let mut line = Vec::new();
+        for (i, a) in a_levels.iter().enumerate() {
+            let Some(c) = cells.iter().find(|c| &c.first == a && &c.second == b) else {
+                continue;
+            };
+            if c.not_estimable.is_some() || !c.mean.is_finite() {
+                missing += 1;
+                continue;
+            }
+            let x = i as f64 + dodge(j);
+            intervals.push(Interval {
+                group: j,
+                x,
+                centre: c.mean,
+                lower: c.lower,
+                upper: c.upper,
+            });
+            line.push((x, c.mean));
+        }
+        if line.len() > 1 {
+            curves.push(Curve {
+                group: Some(j),
+                points: line,
+            });
+        }
+    }
+    if intervals.is_empty() {
+        return Err(PlotError::NothingToDraw);
+    }
+    let covs: Vec<String> = fit.covariate_means().into_iter().map(|(n, _)| n).collect();
+    let adjusted = if covs.is_empty() {
+        String::new()
+    } else {
+        format!(
+            ", with {} at {}",
+            covs.join(", "),
+            if covs.len() == 1 {
+                "its mean"
+            } else {
+                "their means"
+            }
+        )
+    };
+    let gaps = match missing {
+        0 => String::new(),
+        1 => " One cell's mean is not estimable from this design and is left out.".to_string(),
+        k => format!(" {k} cells' means are not estimable from this design and are left out."),
+    };
+    let alt = format!(
+        "Adjusted means of {} for each combination of {} (along the axis) and {} (one line and marker shape per level) with 95% confidence intervals{}.{}{}",
+        req.response_name,
+        fname,
+        bname,
+        adjusted,
+        gaps,
+        repeat_note(b_levels.len())
+    );
+    let caption = format!(
+        "Adjusted means of {} by {fname} and {bname}, 95% intervals",
+        req.response_name
+    );
+    let chart = Chart {
+        x_label: fname,
+        y_label: format!("adjusted mean of {}", req.response_label),
+        legend_title: Some(bname),
+        groups: b_levels,
+        categories: Some(a_levels),
+        intervals,
+        curves,
+        group_lines: true,
         ..Chart::default()
     };
     Ok(Drawn {

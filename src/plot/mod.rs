@@ -33,6 +33,8 @@ pub struct Request {
     /// Index of the factor (`for F`) in the model's variables.
     pub factor: Option<usize>,
     pub factor_name: Option<String>,
+    /// The second factor of an interaction figure (`by B`).
+    pub by_name: Option<String>,
     pub response_name: String,
     /// Axis label of the response (name with unit).
     pub response_label: String,
@@ -96,5 +98,6 @@ pub fn draw(kind: PlotKind, fit: &Fit, req: &Request) -> Result<Drawn, PlotError
         PlotKind::Means => figures::means(fit, req),
         PlotKind::Influence => figures::influence(fit, req),
         PlotKind::Groups => figures::groups(fit, req),
+        PlotKind::Interaction => figures::interaction(fit, req),
     }
 }

@@ -19,7 +19,8 @@ pub fn document(inputs: &[InputRecord], outputs: &[Output]) -> Value {
     let inputs: Vec<Value> = inputs
         .iter()
         .map(|i| {
-            let mut v = json!({"path": i.path, "sha256": i.sha256, "rows": i.rows, "columns": i.columns});
+            let mut v =
+                json!({"path": i.path, "sha256": i.sha256, "rows": i.rows, "columns": i.columns});
             if let Value::Object(m) = &mut v {
                 if let Some(p) = &i.part {
                     m.insert("part".into(), Value::String(p.clone()));

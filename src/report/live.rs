@@ -1,10 +1,10 @@
 //! Live numbers in prose: a reference `@[KIND MODEL ROW COLUMN]` names one value of a table the
 //! document computes, and the rendering shows that value formatted as its table shows it.
 //!
-//! * KIND is a table's JSON kind (`fit`, `anova`, `means`, `pairs`, ...).
+//! * KIND is a table's JSON kind (`fit`, `anova`, `means`, `differences`, ...).
 //! * MODEL is what the table is about: the model's name, or for `summary` the column summarised.
-//! * ROW names a row by its leading text columns (the term, the level; for `pairs` and `regions`
-//!   the two levels `first second`). A table with a single row needs no ROW.
+//! * ROW names a row by its leading text columns (the term, the level; for `differences` and
+//!   `regions` the two levels `first second`, after the level of the `within` factor if any). A table with a single row needs no ROW.
 //! * COLUMN is a JSON column key (`p`, `mean`, `r_squared`, ...). A pair without COLUMN gives
 //!   the difference with its confidence limits.
 //!
@@ -66,6 +66,13 @@ pub enum LiveError {
         /// The table's value column keys.
         columns: Vec<String>,
     },
+    /// A kind of an earlier version, renamed.
+    Renamed {
+        /// The old kind.
+        old: &'static str,
+        /// The kind that replaced it.
+        new: &'static str,
+    },
     /// The words after the subject do not fit the table's shape.
     Shape {
         kind: String,
@@ -88,6 +95,9 @@ impl fmt::Display for LiveError {
             }
             LiveError::NoColumn { kind, column, .. } => {
                 write!(f, "the `{kind}` table has no column `{column}`")
+            }
+            LiveError::Renamed { old, new } => {
+                write!(f, "the table kind `{old}` is now called `{new}`")
             }
             LiveError::Shape {
                 kind,
@@ -133,6 +143,7 @@ impl LiveError {
             LiveError::NoColumn { columns, .. } => {
                 format!("its columns are: {}", columns.join(", "))
             }
+            LiveError::Renamed { new, .. } => format!("write `@[{new} ...]`"),
             LiveError::Shape { key_words: 0, .. } => {
                 "write `@[KIND MODEL COLUMN]`: this table's row needs no name".to_string()
             }
@@ -305,6 +316,12 @@ impl<'a> Resolver<'a> {
     /// The value `reference` names, as [`resolve`] gives it.
     pub fn resolve(&mut self, reference: &str) -> Result<String, LiveError> {
         let parsed = parse(reference)?;
+        if parsed.kind == "pairs" {
+            return Err(LiveError::Renamed {
+                old: "pairs",
+                new: "differences",
+            });
+        }
         let (place, table) = self.find_table(&parsed)?;
         self.value(&parsed, place, table)
     }
@@ -342,7 +359,7 @@ impl<'a> Resolver<'a> {
             (rest.get(..width).unwrap_or(&[]), rest.get(width))
         } else if rest.len() == 1 && table.rows.len() == 1 {
             (&[], rest.first())
-        } else if rest.len() == width && table.kind == "pairs" {
+        } else if rest.len() == width && table.kind == "differences" {
             (rest.as_slice(), None)
         } else {
             return Err(LiveError::Shape {

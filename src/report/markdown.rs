@@ -278,7 +278,10 @@ pub fn provenance(
                     i.rows, i.columns
                 ));
             } else {
-                out.push_str(&format!("| {name} | {} | {} | {file} |\n", i.rows, i.columns));
+                out.push_str(&format!(
+                    "| {name} | {} | {} | {file} |\n",
+                    i.rows, i.columns
+                ));
             }
         }
         out.push('\n');

@@ -15,6 +15,7 @@
 //!   ([`Fit::diagnostics`]) against rules of thumb of common practice.
 
 use super::{Outcome, Session};
+use crate::diagnostic::Diagnostic;
 use crate::lang::Spanned;
 use crate::model::{self, Code, Diagnostics, Fit, ModelError, ModelSpec, UsedRows, Var};
 use crate::report::markdown::code;
@@ -25,6 +26,7 @@ use crate::stats::{levene, shapiro, StatsError};
 /// Significance level of every check. The 5% level is the convention readers expect; these
 /// checks screen the model's assumptions rather than test a hypothesis of interest, so no
 /// correction for the number of checks is made, and the table says that a large p is no proof.
+/// `check M alpha A` sets another level.
 const ALPHA: f64 = 0.05;
 
 /// Confidence level handed to [`Fit::slopes`]; only the slopes' confidence limits depend on
@@ -51,7 +53,20 @@ const STUDENTIZED_LIMIT: f64 = 3.0;
 const MAX_LISTED: usize = 50;
 
 impl Session<'_> {
-    pub(super) fn check(&mut self, model: &Spanned<String>) -> Outcome {
+    pub(super) fn check(
+        &mut self,
+        model: &Spanned<String>,
+        alpha: Option<&Spanned<f64>>,
+    ) -> Outcome {
+        let alpha = match alpha {
+            None => ALPHA,
+            Some(a) if a.value > 0.0 && a.value < 1.0 => a.value,
+            Some(a) => {
+                return Err(Diagnostic::new(a.span, "alpha must lie between 0 and 1")
+                    .label("not a probability")
+                    .help("write it as a proportion, e.g. `alpha 0.01`"))
+            }
+        };
         let m = self.model_entry(model)?;
         let fit = &m.fit;
         let spec = fit.spec();
@@ -83,11 +98,11 @@ impl Session<'_> {
             || {
                 crate::parallel::join_if(
                     big,
-                    || normality_row(fit, n, &m.name),
+                    || normality_row(fit, n, &m.name, alpha),
                     || {
                         factors
                             .iter()
-                            .map(|&f| spread_row(fit, f, used))
+                            .map(|&f| spread_row(fit, f, used, alpha))
                             .collect::<Vec<_>>()
                     },
                 )
@@ -99,7 +114,7 @@ impl Session<'_> {
                         factors
                             .iter()
                             .flat_map(|&f| covariates.iter().map(move |&x| (f, x)))
-                            .map(|(f, x)| balance_row(spec, f, x, used))
+                            .map(|(f, x)| balance_row(spec, f, x, used, alpha))
                             .collect::<Vec<_>>()
                     },
                     || Influence::new(fit, diag, fit.n_coef()),
@@ -114,7 +129,7 @@ impl Session<'_> {
         let mut have_interaction = Vec::new();
         for &f in &factors {
             for &x in &covariates {
-                match slopes_row(fit, spec, f, x, &known) {
+                match slopes_row(fit, spec, f, x, &known, alpha) {
                     Some(row) => t.push(row),
                     None => have_interaction.push((f, x)),
                 }
@@ -128,8 +143,14 @@ impl Session<'_> {
 
         t.notes.push(format!(
             "Every check uses the {n} rows the model was fitted to and the {} level. A small p is evidence against an assumption; a large p does not show that it holds, least of all in small samples.",
-            percent(ALPHA)
+            percent(alpha)
         ));
+        if let Some(w) = fit.weights_name() {
+            t.notes.push(format!(
+                "The model is weighted by {}: every check here uses the weighted residuals, sqrt(w) times the residual, and the weighted leverages.",
+                code(w)
+            ));
+        }
         t.notes.push(
             "df gives the degrees of freedom of an F test as text, numerator then denominator (for example \"2, 26\"), and is empty for the other checks.".into(),
         );
@@ -190,7 +211,9 @@ fn factor_parts(spec: &ModelSpec, f: usize) -> (&[Code], &[String]) {
 
 /// ALPHA as a percentage ("5%").
 fn percent(a: f64) -> String {
-    format!("{}%", a * 100.0)
+    // Rounded to 8 decimals first: 0.1 * 100 is 10.000000000000002 in binary.
+    let p = format!("{:.8}", a * 100.0);
+    format!("{}%", p.trim_end_matches('0').trim_end_matches('.'))
 }
 
 /// ALPHA as a p-value bound in the tables' style (".05").
@@ -224,20 +247,20 @@ fn df_text(df1: usize, df2: usize) -> Cell {
 /// [`Fit::residuals`]: kept by the fit for a data set of moderate size, else computed again
 /// from the design for each block, so that a large data set is not joined by a column of its
 /// length.
-fn normality_row(fit: &Fit, n: usize, model: &str) -> Vec<Cell> {
+fn normality_row(fit: &Fit, n: usize, model: &str, alpha: f64) -> Vec<Cell> {
     let check = "normality of residuals (Shapiro-Wilk)".to_string();
     let tested = shapiro::sample_size(n).and_then(|()| shapiro::shapiro_wilk(&fit.residuals(0..n)));
     match tested {
         Ok(sw) => {
-            let verdict = if sw.p < ALPHA {
+            let verdict = if sw.p < alpha {
                 format!(
                     "the residuals depart from a normal shape (p < {}): tests and limits are less exact, the more so in small groups; look at the normal quantile figure (`plot quantiles {model}`)",
-                    bound(ALPHA)
+                    bound(alpha)
                 )
             } else {
                 format!(
                     "no evidence against normal residuals at the {} level",
-                    percent(ALPHA)
+                    percent(alpha)
                 )
             };
             row(check, sw.w.into(), Cell::Missing, sw.p.into(), verdict)
@@ -252,17 +275,17 @@ fn normality_row(fit: &Fit, n: usize, model: &str) -> Vec<Cell> {
     }
 }
 
-fn spread_row(fit: &Fit, f: usize, used: &UsedRows) -> Vec<Cell> {
+fn spread_row(fit: &Fit, f: usize, used: &UsedRows, alpha: f64) -> Vec<Cell> {
     let spec = fit.spec();
     let name = var_name(spec, f);
     let check = format!("equal residual spread across {name} (Brown-Forsythe)");
     let (codes, levels) = factor_parts(spec, f);
     match residual_spread(codes, levels.len(), used, fit) {
         Ok(bf) => {
-            let verdict = if bf.p < ALPHA {
+            let verdict = if bf.p < alpha {
                 format!(
                     "the residual spread differs between levels of {name} (p < {}): adjusted means stay unbiased, but their SEs and tests, which pool one residual SD, are less trustworthy, most of all when group sizes differ",
-                    bound(ALPHA)
+                    bound(alpha)
                 )
             } else {
                 format!("no evidence that the residual spread differs between levels of {name}")
@@ -331,6 +354,7 @@ fn slopes_row(
     f: usize,
     x: usize,
     known: &[&Fit],
+    alpha: f64,
 ) -> Option<Vec<Cell>> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("equal slopes of {xname} across {fname}");
@@ -341,10 +365,10 @@ fn slopes_row(
             "the {fname} by {xname} term adds no estimable column to this design"
         ))),
         Ok(s) => {
-            let verdict = if s.equality_p < ALPHA {
+            let verdict = if s.equality_p < alpha {
                 format!(
                     "the slope of {xname} differs between levels of {fname} (p < {}): a single adjusted difference does not describe the groups; add {fname} by {xname} to the model and compare levels at chosen values of {xname}",
-                    bound(ALPHA)
+                    bound(alpha)
                 )
             } else {
                 format!("no evidence that the slope of {xname} differs between levels of {fname}")
@@ -364,7 +388,7 @@ fn slopes_row(
     }
 }
 
-fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cell> {
+fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows, alpha: f64) -> Vec<Cell> {
     let (fname, xname) = (var_name(spec, f), var_name(spec, x));
     let check = format!("balance of {xname} across {fname} (one-way ANOVA)");
     let not_tested = |why: String| not_tested(&check, why);
@@ -376,10 +400,10 @@ fn balance_row(spec: &ModelSpec, f: usize, x: usize, used: &UsedRows) -> Vec<Cel
     match one_way(values, codes, levels.len(), used) {
         Ok((fv, df1, df2)) => {
             let p = model::dist::f_upper_p(fv, df1, df2);
-            let verdict = if p < ALPHA {
+            let verdict = if p < alpha {
                 format!(
                     "warning sign: {xname} differs between levels of {fname} (p < {}): the treatment may have changed it, or the groups were not comparable at the start; adjusted means then rest on the straight-line model where the groups overlap little",
-                    bound(ALPHA)
+                    bound(alpha)
                 )
             } else {
                 format!("no evidence that {xname} differs between levels of {fname}")
@@ -629,7 +653,7 @@ impl Influence {
         }
         t.notes.push(format!(
             "{}; the studentized residual is externally studentized (the row's own residual left out of its SD).",
-            crate::report::markdown::escape(&m.rows_are.meaning())
+            m.rows_are.meaning(crate::report::markdown::escape)
         ));
         let (count, ones) = &self.leverage_one;
         if *count > 0 {

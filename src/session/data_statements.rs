@@ -42,8 +42,13 @@ impl Session<'_> {
         name: Option<&Spanned<String>>,
         clauses: &LoadClauses,
     ) -> Outcome {
-        let kind = FileKind::of(&path.value).ok_or_else(|| {
-            Diagnostic::new(
+        let Some(kind) = FileKind::of(&path.value) else {
+            // What is wrong with the file itself (missing, outside the folder, a device) is
+            // said first, as for a file of a known kind.
+            self.world
+                .open(&path.value)
+                .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
+            return Err(Diagnostic::new(
                 path.span,
                 format!(
                     "covey reads delimited text (.csv, .txt, .tsv, .tab), workbooks (.xlsx, .xlsm, .xls, .ods) and SQLite files (.sqlite, .sqlite3, .db), not \"{}\"",
@@ -51,15 +56,17 @@ impl Session<'_> {
                 ),
             )
             .label("unknown kind of file")
-            .help("save the data in one of these kinds of file, or rename it if it is one")
-        })?;
+            .help("save the data in one of these kinds of file, or rename it if it is one"));
+        };
         kind.check_clauses(&path.value, clauses)?;
         let set_name = match name {
             Some(n) => n.value.clone(),
             None => default_name(&path.value),
         };
         let loaded = match kind {
-            FileKind::Delimited(delimiter) => self.load_delimited(path, &set_name, delimiter, clauses)?,
+            FileKind::Delimited(delimiter) => {
+                self.load_delimited(path, &set_name, delimiter, clauses)?
+            }
             FileKind::Workbook(kind) => self.load_workbook(path, &set_name, kind, clauses)?,
             FileKind::Sqlite => self.load_sqlite(path, &set_name, clauses)?,
         };
@@ -89,15 +96,17 @@ impl Session<'_> {
             )));
         };
         let set_name = name.map_or_else(|| database.value.clone(), |n| n.value.clone());
-        let read = data::database::read_database(url, &query.value, &set_name, &self.missing_markers)
-            .map_err(|e| {
-                let span = match e {
-                    data::database::DbError::BadAddress(_) | data::database::DbError::Connect(_) => database.span,
-                    _ => query.span,
-                };
-                Diagnostic::new(span, format!("database `{}`: {e}", database.value))
-                    .label("while reading this database")
-            })?;
+        let read =
+            data::database::read_database(url, &query.value, &set_name, &self.missing_markers)
+                .map_err(|e| {
+                    let span = match e {
+                        data::database::DbError::BadAddress(_)
+                        | data::database::DbError::Connect(_) => database.span,
+                        _ => query.span,
+                    };
+                    Diagnostic::new(span, format!("database `{}`: {e}", database.value))
+                        .label("while reading this database")
+                })?;
         let rows_sha = read.set.rows_sha256();
         let record = InputRecord {
             path: database.value.clone(),
@@ -171,7 +180,10 @@ impl Session<'_> {
             Some(d) => {
                 return Err(Diagnostic::new(
                     d.span,
-                    format!("`decimal \"{}\"`: decimals are marked by a point or a comma", d.value),
+                    format!(
+                        "`decimal \"{}\"`: decimals are marked by a point or a comma",
+                        d.value
+                    ),
                 )
                 .label("not a decimal mark")
                 .help("write decimal \",\" for 3,5 or decimal \".\" for 3.5"))
@@ -184,7 +196,8 @@ impl Session<'_> {
         let mut detected = None;
         let mut head = Vec::new();
         if given.is_none() && default == b',' {
-            read_head(&mut *reader, &mut head).map_err(|e| world_error(io_error(&path.value, &e)))?;
+            read_head(&mut *reader, &mut head)
+                .map_err(|e| world_error(io_error(&path.value, &e)))?;
             detected = data::detect_separator(&head);
         }
         let delimiter = given.or(detected).unwrap_or(default);
@@ -690,11 +703,31 @@ impl FileKind {
         let workbook = matches!(self, FileKind::Workbook(_));
         let sqlite = self == FileKind::Sqlite;
         let checks = [
-            (&c.sheet, "sheet", workbook, "workbooks (.xlsx, .xlsm, .xls, .ods)"),
+            (
+                &c.sheet,
+                "sheet",
+                workbook,
+                "workbooks (.xlsx, .xlsm, .xls, .ods)",
+            ),
             (&c.table, "table", sqlite, "SQLite files"),
-            (&c.query, "query", sqlite, "SQLite files (and `load database`)"),
-            (&c.separator, "separator", delimited, "delimited text (.csv, .txt, .tsv, .tab)"),
-            (&c.decimal, "decimal", delimited, "delimited text (.csv, .txt, .tsv, .tab)"),
+            (
+                &c.query,
+                "query",
+                sqlite,
+                "SQLite files (and `load database`)",
+            ),
+            (
+                &c.separator,
+                "separator",
+                delimited,
+                "delimited text (.csv, .txt, .tsv, .tab)",
+            ),
+            (
+                &c.decimal,
+                "decimal",
+                delimited,
+                "delimited text (.csv, .txt, .tsv, .tab)",
+            ),
         ];
         for (clause, word, fits, goes_with) in checks {
             if let (Some(cl), false) = (clause, fits) {

@@ -83,7 +83,8 @@ impl Eval<'_> {
             ExprKind::Column(name) => self.column(name, e.span)?.to_vec(),
             ExprKind::Aggregate(a, column) => {
                 let values = self.column(&column.value, column.span)?;
-                let mut present: Vec<f64> = values.iter().copied().filter(|x| !x.is_nan()).collect();
+                let mut present: Vec<f64> =
+                    values.iter().copied().filter(|x| !x.is_nan()).collect();
                 let d = crate::stats::describe::describe(&mut present);
                 let (x, what) = match a {
                     Aggregate::Mean => (d.mean, "mean"),
@@ -142,10 +143,15 @@ impl Eval<'_> {
                     .collect();
                 let op = *op;
                 self.mark(&out, |i| {
-                    let (x, y) = (a.get(i).copied().unwrap_or(0.0), b.get(i).copied().unwrap_or(0.0));
+                    let (x, y) = (
+                        a.get(i).copied().unwrap_or(0.0),
+                        b.get(i).copied().unwrap_or(0.0),
+                    );
                     match op {
                         BinaryOp::Divide if y == 0.0 => Fault::DivideByZero,
-                        BinaryOp::Power if (x < 0.0 && y.fract() != 0.0) || (x == 0.0 && y < 0.0) => {
+                        BinaryOp::Power
+                            if (x < 0.0 && y.fract() != 0.0) || (x == 0.0 && y < 0.0) =>
+                        {
                             Fault::NoRealPower
                         }
                         _ => Fault::TooLarge,

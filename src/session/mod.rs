@@ -144,7 +144,7 @@ impl<'w> Session<'w> {
         let model = match &stmt.kind {
             StatementKind::Table(TableRequest::Summary { .. }) => return items,
             StatementKind::Table(t) => t.model_name(),
-            StatementKind::Plot { model, .. } | StatementKind::Check { model } => &model.value,
+            StatementKind::Plot { model, .. } | StatementKind::Check { model, .. } => &model.value,
             _ => return items,
         };
         let Some(scale) = self
@@ -160,7 +160,8 @@ impl<'w> Session<'w> {
                 Item::Table(t) => t.caption.push_str(&format!(", on the {scale} scale")),
                 Item::Figure(f) => {
                     f.caption.push_str(&format!(", on the {scale} scale"));
-                    f.alt.push_str(&format!(" The response is on the {scale} scale."));
+                    f.alt
+                        .push_str(&format!(" The response is on the {scale} scale."));
                 }
                 _ => {}
             }
@@ -188,13 +189,20 @@ impl<'w> Session<'w> {
             StatementKind::Keep { condition } => self.keep(condition, stmt.span),
             StatementKind::Show { name } => self.show(name.as_ref(), stmt.span),
             StatementKind::Model(decl) => self.model(decl, stmt.span),
-            StatementKind::Check { model } => self.check(model),
+            StatementKind::Check { model, alpha } => self.check(model, alpha.as_ref()),
             StatementKind::Plot {
                 kind,
                 model,
                 covariate,
                 factor,
-            } => self.plot(*kind, model, covariate.as_ref(), factor.as_ref()),
+                by,
+            } => self.plot(
+                *kind,
+                model,
+                covariate.as_ref(),
+                factor.as_ref(),
+                by.as_ref(),
+            ),
             StatementKind::Unit { column, unit } => self.unit(column, unit),
             StatementKind::Param { name, value } => self.param(name, value),
             StatementKind::Require(gate) => self.require(gate),

@@ -7,7 +7,7 @@ use super::{ModelEntry, Outcome, Session};
 use crate::data::Values;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{
-    AdjustMethod, ModelDecl, Setting, Span, Spanned, SsKind, TableRequest, TransformDecl,
+    Correction, ModelDecl, Setting, Side, Span, Spanned, SsKind, TableRequest, TransformDecl,
 };
 use crate::model::{self, Adjust, ModelSpec, Part, SsType, TermSpec, Transform, Var};
 use crate::report::markdown::code;
@@ -26,10 +26,18 @@ impl Session<'_> {
         let plain = numeric_values(set, ridx, &decl.response)?;
         // A transformed response (`log(y)`) is fitted on its scale; long cells (e.g.
         // 1000000000000.4) come with exact residuals about an offset.
-        let transformed = super::derived::transformed_name(decl.response_transform, &decl.response.value);
-        let (response, response_offset) = match (&transformed, set.columns.get(ridx).and_then(|c| c.exact.as_deref())) {
+        let transformed =
+            super::derived::transformed_name(decl.response_transform, &decl.response.value);
+        let (response, response_offset) = match (
+            &transformed,
+            set.columns.get(ridx).and_then(|c| c.exact.as_deref()),
+        ) {
             (Some(_), _) => (
-                Arc::new(super::derived::transformed_response(set, decl.response_transform, &decl.response)?),
+                Arc::new(super::derived::transformed_response(
+                    set,
+                    decl.response_transform,
+                    &decl.response,
+                )?),
                 0.0,
             ),
             (None, Some(e)) => (self.shared_residuals(si, ridx, &e.residuals), e.offset),
@@ -97,6 +105,19 @@ impl Session<'_> {
             }
             terms.push(TermSpec { parts });
         }
+        let weights = match &decl.weights {
+            Some(w) => {
+                let wi = column_index(set, w)?;
+                let values = numeric_values(set, wi, w).map_err(|d| {
+                    d.help("case weights are a numeric column of numbers 0 or more")
+                })?;
+                Some(Var::Numeric {
+                    name: set.columns[wi].name.clone(),
+                    values: Arc::clone(values),
+                })
+            }
+            None => None,
+        };
         let spec = ModelSpec {
             response: Var::Numeric {
                 name: response_name.clone(),
@@ -107,15 +128,40 @@ impl Session<'_> {
             intercept: decl.intercept,
             row_numbers: set.row_numbers.clone(),
             response_offset,
+            weights,
         };
         let term_span =
             |i: Option<usize>| i.and_then(|i| decl.terms.get(i)).map_or(span, |t| t.span);
         let fit = model::fit_owned(spec).map_err(|e| {
-            Diagnostic::new(term_span(e.term()), e.to_string()).label("in this model")
+            let at = match (&e, &decl.weights) {
+                (model::ModelError::BadWeight { .. }, Some(w)) => w.span,
+                _ => term_span(e.term()),
+            };
+            Diagnostic::new(at, e.to_string()).label("in this model")
         })?;
         let s = fit.summary();
+        let weighting = match fit.weights_name() {
+            Some(w) => format!(
+                ", weighted by {} (weighted least squares){}",
+                code(w),
+                match s.dropped_zero_weight {
+                    0 => String::new(),
+                    1 => "; 1 row of weight 0 left out of the fit and of its degrees of freedom"
+                        .to_string(),
+                    k => format!(
+                        "; {k} rows of weight 0 left out of the fit and of its degrees of freedom"
+                    ),
+                }
+            ),
+            None => String::new(),
+        };
+        let missing_what = if fit.is_weighted() {
+            "a missing value or weight"
+        } else {
+            "a missing value"
+        };
         let mut items = vec![Item::Text(format!(
-            "Model {}: {} on {}{}, fitted to {} rows{}.",
+            "Model {}: {} on {}{}{weighting}, fitted to {} rows{}.",
             code(&decl.name.value),
             code(&response_name),
             fit.term_names()
@@ -131,8 +177,8 @@ impl Session<'_> {
             s.n,
             match s.dropped_missing {
                 0 => String::new(),
-                1 => " (1 row with a missing value left out)".to_string(),
-                k => format!(" ({k} rows with a missing value left out)"),
+                1 => format!(" (1 row with {missing_what} left out)"),
+                k => format!(" ({k} rows with {missing_what} left out)"),
             }
         ))];
         // Rows left out are told in the sentence above, not as a warning.
@@ -183,16 +229,22 @@ impl Session<'_> {
                 let m = self.model_entry(model)?;
                 Ok(vec![Item::Table(fit_table(m))])
             }
-            TableRequest::Coefficients { model, level } => {
+            TableRequest::Coefficients {
+                model,
+                level,
+                robust,
+            } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
-                let rows = m.fit.coefficients(level);
+                let fit = view(&m.fit, *robust, model.span)?;
+                let rows = fit.coefficients(level);
                 let mut t = Table::new(
                     "coefficients",
                     format!(
-                        "Coefficients of model {} ({}% confidence limits)",
+                        "Coefficients of model {} ({}% confidence limits{})",
                         code(&m.name),
-                        pct(level)
+                        pct(level),
+                        robust_words(*robust)
                     ),
                     vec![
                         Col::new("term", "term", Format::Text),
@@ -231,9 +283,14 @@ impl Session<'_> {
                 }
                 Ok(vec![Item::Table(t)])
             }
-            TableRequest::Anova { model, kind } => {
+            TableRequest::Anova {
+                model,
+                kind,
+                robust,
+            } => {
                 let m = self.model_entry(model)?;
-                let a = m.fit.anova(ss_type(*kind)).map_err(fail(model.span))?;
+                let fit = view(&m.fit, *robust, model.span)?;
+                let a = fit.anova(ss_type(*kind)).map_err(fail(model.span))?;
                 let what = match kind {
                     SsKind::Sequential => "Type I (sequential, in the order written)",
                     SsKind::Partial => "Type II (each term after all terms that do not contain it)",
@@ -241,10 +298,17 @@ impl Session<'_> {
                 };
                 let mut t = Table::new(
                     "anova",
-                    format!(
-                        "Analysis of variance of model {}: {what} sums of squares",
-                        code(&m.name)
-                    ),
+                    if *robust {
+                        format!(
+                            "Robust tests of the terms of model {}: HC3 Wald F tests of the {what} hypotheses, with the residual df",
+                            code(&m.name)
+                        )
+                    } else {
+                        format!(
+                            "Analysis of variance of model {}: {what} sums of squares",
+                            code(&m.name)
+                        )
+                    },
                     vec![
                         Col::new("term", "term", Format::Text),
                         Col::new("df", "df", Format::Count),
@@ -286,6 +350,9 @@ impl Session<'_> {
                 ]);
                 for n in &a.notes {
                     t.notes.push(sentence(&n.to_string()));
+                }
+                if *robust {
+                    t.notes.push("Each F is a Wald statistic divided by its df, from the HC3 covariance (MacKinnon and White 1985), which stays valid when the residual spread differs between rows; it uses no sums of squares, so their columns are empty on the term rows.".into());
                 }
                 Ok(vec![Item::Table(t)])
             }
@@ -338,24 +405,30 @@ impl Session<'_> {
             TableRequest::Means {
                 model,
                 factor,
+                by,
                 at,
                 level,
+                robust,
             } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
-                let rows = m
-                    .fit
+                let fit = view(&m.fit, *robust, model.span)?;
+                if let Some(by) = by {
+                    return cell_means_table(m, &fit, factor, by, &at, level, *robust);
+                }
+                let rows = fit
                     .means(&factor.value, &at, level)
                     .map_err(fail(factor.span))?;
                 let mut t = Table::new(
                     "means",
                     format!(
-                        "Adjusted means of {} in model {}{} ({}% confidence limits)",
+                        "Adjusted means of {} in model {}{} ({}% confidence limits{})",
                         code(&factor.value),
                         code(&m.name),
                         at_text(&m.fit, &at),
-                        pct(level)
+                        pct(level),
+                        robust_words(*robust)
                     ),
                     vec![
                         Col::new("level", "level", Format::Text),
@@ -384,10 +457,9 @@ impl Session<'_> {
                         r.upper.into(),
                     ]);
                 }
-                if m.fit.has_other_factors(&factor.value) {
-                    t.notes.push(
-                        "Averaged over the levels of the other factors with equal weights.".into(),
-                    );
+                if let Some(n) = equal_weight_note(&m.fit, &[factor.value.as_str()], "these means")
+                {
+                    t.notes.push(n);
                 }
                 if !not_estimable.is_empty() {
                     t.notes.push(format!(
@@ -397,63 +469,151 @@ impl Session<'_> {
                 }
                 Ok(vec![Item::Table(t)])
             }
-            TableRequest::Pairs {
+            TableRequest::Differences {
                 model,
                 factor,
+                within,
                 at,
-                adjust,
+                correction,
                 level,
+                versus,
+                robust,
             } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
-                let method = adjustment(*adjust);
-                let rows = m
-                    .fit
-                    .pairs(&factor.value, &at, method, level)
-                    .map_err(fail(factor.span))?;
-                let how = match adjust {
-                    AdjustMethod::Tukey => "Tukey-Kramer adjusted p and simultaneous limits",
-                    AdjustMethod::Holm => {
-                        "Holm step-down adjusted p; no simultaneous limits exist for this method"
+                let fit = view(&m.fit, *robust, model.span)?;
+                let method = match (correction, versus) {
+                    (None, None) => Correction::Tukey,
+                    (None, Some(_)) => Correction::Dunnett,
+                    (Some(c), None) if c.value == Correction::Dunnett => {
+                        return Err(Diagnostic::new(
+                            c.span,
+                            "`correction dunnett` compares every level with a control; name the control with `versus`",
+                        )
+                        .label("no control named")
+                        .help(format!(
+                            "write `table differences {} for {} versus LEVEL`",
+                            m.name, factor.value
+                        )))
                     }
-                    AdjustMethod::Bonferroni => "Bonferroni adjusted p and simultaneous limits",
-                    AdjustMethod::Sidak => "Sidak adjusted p and simultaneous limits",
-                    AdjustMethod::None => "unadjusted p and limits, one comparison at a time",
+                    (Some(c), Some(_)) if c.value == Correction::Tukey => {
+                        return Err(Diagnostic::new(
+                            c.span,
+                            "Tukey-Kramer's correction is for all pairs of levels; against a control use `dunnett` (the default with `versus`), or holm, bonferroni, sidak or none",
+                        )
+                        .label("not for comparisons with a control"))
+                    }
+                    (Some(c), _) => c.value,
                 };
-                let mut t = Table::new(
-                    "pairs",
-                    format!(
-                        "Pairwise differences of adjusted means of {} in model {}{}: {how} ({}%)",
+                let side = versus.as_ref().map_or(Side::Both, |v| v.side);
+                let rows = fit
+                    .differences(
+                        &factor.value,
+                        within.as_ref().map(|w| w.value.as_str()),
+                        &at,
+                        adjustment(method),
+                        versus
+                            .as_ref()
+                            .map(|v| (v.control.value.as_str(), engine_side(v.side))),
+                        level,
+                    )
+                    .map_err(|e| {
+                        let at = match (&e, versus, within) {
+                            (model::ModelError::UnknownControl { .. }, Some(v), _) => {
+                                v.control.span
+                            }
+                            (model::ModelError::WithinSameFactor { .. }, _, Some(w)) => w.span,
+                            (_, _, Some(w)) if factor_named(&e) == Some(w.value.as_str()) => w.span,
+                            _ => factor.span,
+                        };
+                        Diagnostic::new(at, e.to_string()).label("cannot compute this")
+                    })?;
+                let how = match method {
+                    Correction::Tukey => {
+                        "Tukey-Kramer adjusted p and simultaneous limits".to_string()
+                    }
+                    Correction::Holm => {
+                        "Holm step-down adjusted p; no simultaneous limits exist for this method"
+                            .to_string()
+                    }
+                    Correction::Bonferroni => {
+                        "Bonferroni adjusted p and simultaneous limits".to_string()
+                    }
+                    Correction::Sidak => "Sidak adjusted p and simultaneous limits".to_string(),
+                    Correction::Dunnett => "Dunnett adjusted p and simultaneous limits".to_string(),
+                    Correction::None => {
+                        "unadjusted p and limits, one comparison at a time".to_string()
+                    }
+                };
+                let sided = match side {
+                    Side::Both => "",
+                    Side::Above => ", one-sided: above the control",
+                    Side::Below => ", one-sided: below the control",
+                };
+                let subject = match versus {
+                    Some(v) => format!(
+                        "Differences of adjusted means of {} from the control {}",
                         code(&factor.value),
+                        code(&v.control.value)
+                    ),
+                    None => format!("Differences of adjusted means of {}", code(&factor.value)),
+                };
+                let inside = match within {
+                    Some(w) => format!(" within each level of {}", code(&w.value)),
+                    None => String::new(),
+                };
+                let mut cols = Vec::new();
+                if let Some(w) = within {
+                    cols.push(Col::new("within", &w.value, Format::Text));
+                }
+                cols.extend([
+                    Col::new("first", "first", Format::Text),
+                    Col::new("second", "second", Format::Text),
+                    Col::new("estimate", "difference", Format::Digits(4)),
+                    Col::new("se", "SE", Format::Digits(3)),
+                    Col::new("t", "t", Format::Statistic),
+                    Col::new("df", "df", Format::Count),
+                    Col::new("p", "p", Format::P),
+                    Col::new("lower", "lower", Format::Digits(4)),
+                    Col::new("upper", "upper", Format::Digits(4)),
+                ]);
+                let mut t = Table::new(
+                    "differences",
+                    format!(
+                        "{subject}{inside} in model {}{}: {how}{sided} ({}%{})",
                         code(&m.name),
                         at_text(&m.fit, &at),
-                        pct(level)
+                        pct(level),
+                        robust_words(*robust)
                     ),
-                    vec![
-                        Col::new("first", "first", Format::Text),
-                        Col::new("second", "second", Format::Text),
-                        Col::new("estimate", "difference", Format::Digits(4)),
-                        Col::new("se", "SE", Format::Digits(3)),
-                        Col::new("t", "t", Format::Statistic),
-                        Col::new("df", "df", Format::Count),
-                        Col::new("p", "p", Format::P),
-                        Col::new("lower", "lower", Format::Digits(4)),
-                        Col::new("upper", "upper", Format::Digits(4)),
-                    ],
+                    cols,
                 );
                 t.level = Some(level);
                 let mut not_estimable: Vec<String> = Vec::new();
+                let mut worst_error: f64 = 0.0;
+                let mut unbounded = false;
                 for r in rows {
                     if let Some(why) = &r.not_estimable {
                         not_estimable.push(format!(
-                            "{} - {}: {}",
+                            "{}{} - {}: {}",
+                            r.within
+                                .as_ref()
+                                .map_or(String::new(), |w| format!("in {}, ", code(w))),
                             code(&r.first),
                             code(&r.second),
                             crate::report::markdown::escape(why)
                         ));
                     }
-                    t.push(vec![
+                    worst_error = worst_error.max(r.p_error);
+                    unbounded |= r.not_estimable.is_none()
+                        && method != Correction::Holm
+                        && (r.lower.is_none() || r.upper.is_none());
+                    let mut row: Vec<Cell> = Vec::new();
+                    if let Some(w) = r.within {
+                        row.push(w.into());
+                    }
+                    row.extend([
                         r.first.into(),
                         r.second.into(),
                         r.estimate.into(),
@@ -464,11 +624,62 @@ impl Session<'_> {
                         r.lower.into(),
                         r.upper.into(),
                     ]);
+                    t.push(row);
                 }
-                t.notes.push("difference = first - second.".into());
+                t.notes.push(match versus {
+                    Some(v) => format!(
+                        "Each row is one level's adjusted mean minus that of the control, {}.",
+                        code(&v.control.value)
+                    ),
+                    None => {
+                        "Each row is the adjusted mean of the first level minus that of the second."
+                            .into()
+                    }
+                });
+                let mut held: Vec<&str> = vec![factor.value.as_str()];
+                if let Some(w) = within {
+                    held.push(w.value.as_str());
+                }
+                if let Some(n) = equal_weight_note(&m.fit, &held, "the means compared") {
+                    t.notes.push(n);
+                }
+                if let Some(w) = within {
+                    t.notes.push(format!(
+                        "The levels of {} are compared inside each level of {}, and the correction counts only the comparisons made inside that level.",
+                        code(&factor.value),
+                        code(&w.value)
+                    ));
+                }
+                if method == Correction::Dunnett {
+                    let fmt = |x: f64| {
+                        crate::report::number::format_column(&[Some(x)], Format::Digits(1)).join("")
+                    };
+                    let accuracy = if worst_error <= DUNNETT_P_BOUND {
+                        format!(
+                            "every p is within {} of its exact value (largest error estimate here: {})",
+                            fmt(DUNNETT_P_BOUND),
+                            fmt(worst_error)
+                        )
+                    } else {
+                        format!(
+                            "the integration stopped at its largest rule with an error estimate of {} on some p, above the {} it aims at",
+                            fmt(worst_error),
+                            fmt(DUNNETT_P_BOUND)
+                        )
+                    };
+                    t.notes.push(format!(
+                        "Dunnett's p and limits come from the joint (multivariate t) distribution of the comparisons' t statistics, with the correlations this design gives them, integrated by Genz and Bretz's randomised lattice method with a fixed seed; {accuracy}."
+                    ));
+                }
+                if unbounded {
+                    t.notes.push(match side {
+                        Side::Above => "One-sided: each limit is a lower bound; the upper side is unbounded (shown as —).".to_string(),
+                        _ => "One-sided: each limit is an upper bound; the lower side is unbounded (shown as —).".to_string(),
+                    });
+                }
                 if !not_estimable.is_empty() {
                     t.notes.push(format!(
-                        "Not estimable from this design, shown as — and left out of the multiplicity adjustment: {}.",
+                        "Not estimable from this design, shown as — and left out of the correction: {}.",
                         not_estimable.join("; ")
                     ));
                 }
@@ -556,22 +767,24 @@ impl Session<'_> {
                 weights,
                 at,
                 level,
+                robust,
             } => {
                 let m = self.model_entry(model)?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
-                let c = m
-                    .fit
+                let fit = view(&m.fit, *robust, model.span)?;
+                let c = fit
                     .contrast(&factor.value, &weights.value, &at, level)
                     .map_err(fail(weights.span))?;
                 let mut t = Table::new(
                     "contrast",
                     format!(
-                        "Contrast of adjusted means of {} in model {} with weights {} ({}% confidence limits)",
+                        "Contrast of adjusted means of {} in model {} with weights {} ({}% confidence limits{})",
                         code(&factor.value),
                         code(&m.name),
                         weights.value.iter().map(|w| format!("{w}")).collect::<Vec<_>>().join(", "),
-                        pct(level)
+                        pct(level),
+                        robust_words(*robust)
                     ),
                     vec![
                         Col::new("estimate", "estimate", Format::Digits(4)),
@@ -665,15 +878,177 @@ pub(super) fn ss_type(kind: SsKind) -> SsType {
     }
 }
 
-/// The engine's adjustment for the one the statement names.
-pub(super) fn adjustment(a: AdjustMethod) -> Adjust {
+/// The engine's adjustment for the correction the statement names.
+pub(super) fn adjustment(a: Correction) -> Adjust {
     match a {
-        AdjustMethod::Tukey => Adjust::Tukey,
-        AdjustMethod::Holm => Adjust::Holm,
-        AdjustMethod::Bonferroni => Adjust::Bonferroni,
-        AdjustMethod::Sidak => Adjust::Sidak,
-        AdjustMethod::None => Adjust::None,
+        Correction::Tukey => Adjust::Tukey,
+        Correction::Holm => Adjust::Holm,
+        Correction::Bonferroni => Adjust::Bonferroni,
+        Correction::Sidak => Adjust::Sidak,
+        Correction::Dunnett => Adjust::Dunnett,
+        Correction::None => Adjust::None,
     }
+}
+
+/// The engine's side of a comparison with a control.
+fn engine_side(s: Side) -> model::Side {
+    match s {
+        Side::Both => model::Side::Both,
+        Side::Above => model::Side::Above,
+        Side::Below => model::Side::Below,
+    }
+}
+
+/// The bound on the error of every Dunnett p that the tables state: the integration aims at
+/// [`crate::stats::mvt::TARGET_ERROR`], ten times smaller.
+const DUNNETT_P_BOUND: f64 = 1e-5;
+
+/// The fit itself, or its robust (HC3) view.
+fn view(
+    fit: &model::Fit,
+    robust: bool,
+    span: Span,
+) -> Result<std::borrow::Cow<'_, model::Fit>, Diagnostic> {
+    if robust {
+        fit.robust()
+            .map(std::borrow::Cow::Owned)
+            .map_err(|e| Diagnostic::new(span, e.to_string()).label("cannot compute this"))
+    } else {
+        Ok(std::borrow::Cow::Borrowed(fit))
+    }
+}
+
+/// The factor an error of the engine is about, when it is about a factor (so that the
+/// message can point at the words that named it).
+fn factor_named(e: &model::ModelError) -> Option<&str> {
+    match e {
+        model::ModelError::UnknownVariable { name } | model::ModelError::NotAFactor { name } => {
+            Some(name)
+        }
+        model::ModelError::FactorNotInModel { factor } => Some(factor),
+        _ => None,
+    }
+}
+
+/// What a caption adds for robust standard errors.
+fn robust_words(robust: bool) -> &'static str {
+    if robust {
+        "; robust HC3 standard errors, t with the residual df"
+    } else {
+        ""
+    }
+}
+
+/// The note that names the factors whose levels count equally in adjusted means, when the
+/// model has factors besides those held at a level (`held`).
+fn equal_weight_note(fit: &model::Fit, held: &[&str], what: &str) -> Option<String> {
+    let others: Vec<String> = fit
+        .other_factors("")
+        .into_iter()
+        .filter(|f| !held.contains(&f.as_str()))
+        .collect();
+    match others.as_slice() {
+        [] => None,
+        [one] => Some(format!(
+            "Each level of {} counts equally in {what}, whatever its number of rows.",
+            code(one)
+        )),
+        many => Some(format!(
+            "Each level of {} counts equally in {what}, whatever its number of rows.",
+            many.iter()
+                .map(|f| code(f))
+                .collect::<Vec<_>>()
+                .join(" and of ")
+        )),
+    }
+}
+
+/// `table means M for A by B`: the adjusted mean of every cell of A and B.
+fn cell_means_table(
+    m: &ModelEntry,
+    fit: &model::Fit,
+    factor: &Spanned<String>,
+    by: &Spanned<String>,
+    at: &[(String, f64)],
+    level: f64,
+    robust: bool,
+) -> Outcome {
+    let rows = fit
+        .cell_means(&factor.value, &by.value, at, level)
+        .map_err(|e| {
+            let at = if factor_named(&e) == Some(by.value.as_str()) {
+                by.span
+            } else {
+                factor.span
+            };
+            Diagnostic::new(at, e.to_string()).label("cannot compute this")
+        })?;
+    let mut t = Table::new(
+        "cell-means",
+        format!(
+            "Adjusted means of each combination of {} and {} in model {}{} ({}% confidence limits{})",
+            code(&factor.value),
+            code(&by.value),
+            code(&m.name),
+            at_text(&m.fit, at),
+            pct(level),
+            robust_words(robust)
+        ),
+        vec![
+            Col::new("level", &factor.value, Format::Text),
+            Col::new("by", &by.value, Format::Text),
+            Col::new("rows", "rows", Format::Count),
+            Col::new("mean", "adjusted mean", Format::Digits(4)),
+            Col::new("se", "SE", Format::Digits(3)),
+            Col::new("df", "df", Format::Count),
+            Col::new("lower", "lower", Format::Digits(4)),
+            Col::new("upper", "upper", Format::Digits(4)),
+        ],
+    );
+    let mut empty: Vec<String> = Vec::new();
+    let mut not_estimable: Vec<String> = Vec::new();
+    for r in rows {
+        let cell = format!("{} × {}", code(&r.first), code(&r.second));
+        match (&r.not_estimable, r.rows) {
+            (Some(why), _) => {
+                not_estimable.push(format!("{cell}: {}", crate::report::markdown::escape(why)))
+            }
+            (None, 0) => empty.push(cell),
+            _ => {}
+        }
+        t.push(vec![
+            r.first.into(),
+            r.second.into(),
+            r.rows.into(),
+            r.mean.into(),
+            r.se.into(),
+            r.df.into(),
+            r.lower.into(),
+            r.upper.into(),
+        ]);
+    }
+    if let Some(n) = equal_weight_note(
+        &m.fit,
+        &[factor.value.as_str(), by.value.as_str()],
+        "these means",
+    ) {
+        t.notes.push(n);
+    }
+    if !empty.is_empty() {
+        t.notes.push(format!(
+            "No rows in {}: the mean{} there come{} from the model alone, which assumes the effects of the two factors add up.",
+            empty.join(", "),
+            if empty.len() == 1 { "" } else { "s" },
+            if empty.len() == 1 { "s" } else { "" }
+        ));
+    }
+    if !not_estimable.is_empty() {
+        t.notes.push(format!(
+            "Not estimable from this design (a cell without rows in a model that lets the two factors interact), shown as —: {}.",
+            not_estimable.join("; ")
+        ));
+    }
+    Ok(vec![Item::Table(t)])
 }
 
 fn fit_table(m: &ModelEntry) -> Table {

@@ -3,7 +3,7 @@
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
 use crate::lang::{PlotKind, Spanned};
-use crate::model::Var;
+use crate::model::{self, Var};
 use crate::plot::{self, PlotError, Request};
 use crate::report::markdown::code;
 use crate::report::{Figure, Item};
@@ -17,6 +17,7 @@ pub(crate) fn kind_word(kind: PlotKind) -> &'static str {
         PlotKind::Means => "means",
         PlotKind::Influence => "influence",
         PlotKind::Groups => "groups",
+        PlotKind::Interaction => "interaction",
     }
 }
 
@@ -37,6 +38,7 @@ impl Session<'_> {
         model: &Spanned<String>,
         covariate: Option<&Spanned<String>>,
         factor: Option<&Spanned<String>>,
+        by: Option<&Spanned<String>>,
     ) -> Outcome {
         let entry = self.model_entry(model)?;
         let fit = &entry.fit;
@@ -112,7 +114,42 @@ impl Session<'_> {
             },
             None => None,
         };
-        let needs_factor = matches!(kind, PlotKind::Means | PlotKind::Groups);
+        let needs_factor = matches!(
+            kind,
+            PlotKind::Means | PlotKind::Groups | PlotKind::Interaction
+        );
+        let by_index = match (kind, by) {
+            (PlotKind::Interaction, Some(b)) => match factors.iter().find(|(_, n)| *n == b.value) {
+                Some(&(i, _)) => Some(i),
+                None => {
+                    return Err(Diagnostic::new(
+                        b.span,
+                        format!("`{}` is not a factor of model `{}`", b.value, model.value),
+                    )
+                    .label("not a factor of this model")
+                    .help(format!("its factors are {}", listing(&factor_names))))
+                }
+            },
+            (PlotKind::Interaction, None) => {
+                return Err(Diagnostic::new(
+                    model.span,
+                    "`plot interaction` needs two factors: `plot interaction M for A by B`",
+                )
+                .label("no second factor")
+                .help(format!(
+                    "name them with `for` and `by`: {}",
+                    listing(&factor_names)
+                )))
+            }
+            (_, Some(b)) => {
+                return Err(
+                    Diagnostic::new(b.span, format!("`plot {word}` does not take `by`"))
+                        .label("not used by this figure")
+                        .help("`by B` goes with `plot interaction M for A by B`"),
+                )
+            }
+            (_, None) => None,
+        };
         let too_many = |i: usize| match spec.vars.get(i) {
             Some(Var::Factor { levels, .. }) => levels.len() > plot::MAX_LEVELS,
             _ => false,
@@ -173,6 +210,7 @@ impl Session<'_> {
             covariate_name,
             factor: f,
             factor_name: name_of(f),
+            by_name: name_of(by_index),
             response_label: self.axis_label(&response_name),
             response_name,
         };
@@ -180,6 +218,9 @@ impl Session<'_> {
             let span = match (&e, covariate, factor) {
                 (PlotError::NoCovariate, Some(c), _) => c.span,
                 (PlotError::NoFactor, _, Some(fa)) => fa.span,
+                (PlotError::Model(model::ModelError::WithinSameFactor { .. }), _, _) => {
+                    by.map_or(model.span, |b| b.span)
+                }
                 _ => model.span,
             };
             Diagnostic::new(span, e.to_string()).label("cannot draw this")

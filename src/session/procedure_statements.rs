@@ -6,7 +6,7 @@ use std::sync::Arc;
 use super::data_statements::{column_index, factor_column, numeric_values};
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
-use crate::lang::{AdjustMethod, Gate, Literal, ReportRequest, Spanned, SsKind};
+use crate::lang::{Correction, Gate, Literal, ReportRequest, Spanned, SsKind};
 use crate::model::{self, ModelSpec, Part, SsType, TermSpec, Transform, Var};
 use crate::report::markdown::code;
 use crate::report::number::p_value;
@@ -150,6 +150,7 @@ impl Session<'_> {
                     intercept: true,
                     row_numbers: set.row_numbers.clone(),
                     response_offset: 0.0,
+                    weights: None,
                 };
                 let fit = model::fit(&spec).map_err(|e| {
                     Diagnostic::new(covariate.span, e.to_string()).label("cannot test this")
@@ -222,15 +223,27 @@ impl Session<'_> {
                     no_leading_zero(row.partial_eta_sq, 2)
                 ))])
             }
-            ReportRequest::Pair {
+            ReportRequest::Difference {
                 model,
                 factor,
                 first,
                 second,
-                adjust,
+                correction,
             } => {
                 let m = self.model_entry(model)?;
-                let method = super::model_statements::adjustment(*adjust);
+                let adjust = correction.as_ref().map_or(Correction::Tukey, |c| c.value);
+                if let (Some(c), Correction::Dunnett) = (correction, adjust) {
+                    return Err(Diagnostic::new(
+                        c.span,
+                        "`correction dunnett` compares levels with a control; it needs `versus`",
+                    )
+                    .label("no control named")
+                    .help(format!(
+                        "ask for `table differences {} for {} versus CONTROL` and refer to its rows",
+                        m.name, factor.value
+                    )));
+                }
+                let method = super::model_statements::adjustment(adjust);
                 let pairs = m.fit.pairs(&factor.value, &[], method, 0.95).map_err(|e| {
                     Diagnostic::new(factor.span, e.to_string()).label("cannot compute this")
                 })?;
@@ -264,11 +277,12 @@ impl Session<'_> {
                     _ => String::new(),
                 };
                 let how = match adjust {
-                    AdjustMethod::Tukey => "Tukey-Kramer adjusted",
-                    AdjustMethod::Holm => "Holm adjusted",
-                    AdjustMethod::Bonferroni => "Bonferroni adjusted",
-                    AdjustMethod::Sidak => "Sidak adjusted",
-                    AdjustMethod::None => "unadjusted",
+                    Correction::Tukey => "Tukey-Kramer adjusted",
+                    Correction::Holm => "Holm adjusted",
+                    Correction::Bonferroni => "Bonferroni adjusted",
+                    Correction::Sidak => "Sidak adjusted",
+                    Correction::Dunnett => "Dunnett adjusted",
+                    Correction::None => "unadjusted",
                 };
                 Ok(vec![Item::Text(format!(
                     "Adjusted means of {} minus {} in model {}: difference = {:.2}{limits}, *t*({}) = {:.2}, *p* {} ({how}).",

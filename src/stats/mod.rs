@@ -2,10 +2,12 @@
 //! ([`describe`]), the studentized range distribution for Tukey-Kramer comparisons ([`tukey`]),
 //! the Shapiro-Wilk test of normality ([`shapiro`]) and the Brown-Forsythe test of equal
 //! variances ([`levene`]); the noncentral F distribution ([`ncf`]) and the power and sample
-//! size of the F test of groups ([`power`]), for planning.
+//! size of the F test of groups ([`power`]), for planning; the largest of correlated t
+//! statistics ([`mvt`]), for comparisons with a control.
 
 pub mod describe;
 pub mod levene;
+pub mod mvt;
 pub mod ncf;
 pub mod power;
 pub mod shapiro;

@@ -339,7 +339,7 @@ def case(name, data, model, y, means=None, extra=None):
         s_ = "table means m for %s at %s" % (factor, at_text)
         st.append(s_)
         expected[s_] = res["means"]
-        s_ = "table pairs m for %s at %s adjust none" % (factor, at_text)
+        s_ = "table differences m for %s at %s correction none" % (factor, at_text)
         st.append(s_)
         expected[s_] = res["pairs"]
     out = {"name": name, "csv": csv, "statements": st, "expected": expected}

@@ -122,7 +122,43 @@ def beet_pilot():
     write("beet-pilot.csv", ["plot", "coating", "previous_t_ha", "roots_t_ha"], rows)
 
 
+def blight():
+    """A field trial of three fungicide programmes against late blight in potatoes, with
+    an untreated control, on two varieties (an early one and a late one that stands longer
+    in the field, so the disease and the sprays matter more to it), five plots of each
+    combination. Marketable yield is adjusted for the plant stand counted at emergence.
+    Blight strikes the untreated plots in patches, so their yields spread almost four
+    times as widely as the sprayed plots': unequal spread by construction. Two plots were harvested
+    on half their area (their harvested area is recorded)."""
+    rng = random.Random(13)
+    gain = {"untreated": 0.0, "prog-A": 4.0, "prog-B": 6.0, "prog-C": 1.5}
+    spread = {"untreated": 4.5, "prog-A": 1.2, "prog-B": 1.2, "prog-C": 1.2}
+    late = {"early": 0.0, "late": 1.0}
+    rows = []
+    plot = 0
+    for variety, is_late in late.items():
+        for programme, g in gain.items():
+            for _ in range(5):
+                plot += 1
+                stand = rng.randint(32, 48)
+                # The late variety yields more, and gains three times as much from each
+                # programme as the early one (half the nominal gain, and one and a half).
+                y = 38.0 + 0.55 * (stand - 40) + 2.0 * is_late + g * (0.5 + 1.0 * is_late)
+                y += rng.gauss(0, spread[programme])
+                rows.append([f"K{plot:02d}", variety, programme, stand, round(y, 1), 20])
+    # Two plots were harvested on half their area.
+    rows[6][5] = 10
+    rows[27][5] = 10
+    rng.shuffle(rows)
+    write(
+        "blight.csv",
+        ["plot", "variety", "programme", "stand", "yield_t_ha", "harvested_m2"],
+        rows,
+    )
+
+
 if __name__ == "__main__":
+    blight()
     beet_pilot()
     batches()
     rations()
