@@ -97,6 +97,16 @@ impl RowOrigin {
         }
     }
 
+    /// What a row's number is, in words: "line in the file", "row in the sheet",
+    /// "position in the result".
+    pub fn number_words(&self) -> &'static str {
+        match self {
+            RowOrigin::FileLines => "line in the file",
+            RowOrigin::Sheet(_) => "row in the sheet",
+            RowOrigin::Result => "position in the result",
+        }
+    }
+
     /// The header of a preview's `row` column.
     pub fn header(&self) -> &'static str {
         match self {

@@ -602,7 +602,7 @@ impl<'c> Walk<'c> {
             );
             return;
         }
-        if let Err(d) = crate::session::derived::evaluate(&set, expr) {
+        if let Err(d) = crate::session::derived::check(&set, expr) {
             self.error(d);
             return;
         }

@@ -176,6 +176,25 @@ fn inputs(e: &Expr, out: &mut Vec<(String, Span)>) {
     }
 }
 
+/// Checks that every column `expr` reads (its aggregates' too) is a numeric column of `set`,
+/// without computing anything: the language server's check as you type, on a data set
+/// whose columns it knows by name and type only.
+pub(crate) fn check(set: &DataSet, expr: &Expr) -> Result<(), Diagnostic> {
+    let (name, span) = match &expr.kind {
+        ExprKind::Number(_) => return Ok(()),
+        ExprKind::Negate(x) | ExprKind::Call(_, x) => return check(set, x),
+        ExprKind::Binary(_, a, b) => {
+            check(set, a)?;
+            return check(set, b);
+        }
+        ExprKind::Column(c) => (c.clone(), expr.span),
+        ExprKind::Aggregate(_, c) => (c.value.clone(), c.span),
+    };
+    let column = Spanned { value: name, span };
+    let i = column_index(set, &column)?;
+    numeric_values(set, i, &column).map(|_| ())
+}
+
 /// The quoted name of a column whose name starts with `word` followed by a space, if any.
 pub(crate) fn quoted_suggestion(set: &DataSet, word: &str) -> Option<String> {
     set.columns
@@ -289,16 +308,17 @@ impl Session<'_> {
             "Rows of data set {} are named by {} in influence tables, previews and figure captions, beside their {}.",
             code(&set.name),
             code(&column.value),
-            escape(set.rows_are.header())
+            escape(set.rows_are.number_words())
         ))];
         if missing > 0 {
             items.push(Item::Warning(format!(
-                "{missing} row{} of {} {} no value: {} named by {} alone.",
+                "{missing} row{} of {} {} no value: {} named by {} {} alone.",
                 if missing == 1 { "" } else { "s" },
                 code(&column.value),
                 if missing == 1 { "has" } else { "have" },
                 if missing == 1 { "it is" } else { "they are" },
-                escape(set.rows_are.header())
+                if missing == 1 { "its" } else { "their" },
+                escape(set.rows_are.number_words())
             )));
         }
         Ok(items)
