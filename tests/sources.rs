@@ -249,7 +249,8 @@ mod postgres_server {
         match std::env::var("COVEY_TEST_POSTGRES") {
             Ok(a) if !a.is_empty() => Some(a),
             _ => {
-                let ci = std::env::var("CI").is_ok_and(|v| !matches!(v.as_str(), "" | "0" | "false"));
+                let ci =
+                    std::env::var("CI").is_ok_and(|v| !matches!(v.as_str(), "" | "0" | "false"));
                 assert!(
                     !ci,
                     "CI is set but COVEY_TEST_POSTGRES is not: .ci/run starts the PostgreSQL server and sets it"

@@ -134,10 +134,8 @@ fn message(e: &postgres::Error) -> String {
     match e.as_db_error() {
         Some(db) => {
             let mut m = db.message().to_string();
-            if let Some(p) = db.position() {
-                if let postgres::error::ErrorPosition::Original(at) = p {
-                    m.push_str(&format!(" (at character {at} of the query)"));
-                }
+            if let Some(postgres::error::ErrorPosition::Original(at)) = db.position() {
+                m.push_str(&format!(" (at character {at} of the query)"));
             }
             m
         }

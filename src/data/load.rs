@@ -705,6 +705,8 @@ const BLOCK_ROWS: usize = 4096;
 /// one run. The error reported is the one reading row by row would meet first: the earliest
 /// row with a bad record or cell, and in that row a bad record before a bad cell, and the
 /// leftmost bad cell.
+// The reader's settings travel as they are; a struct for them would only be unpacked here.
+#[allow(clippy::too_many_arguments)]
 fn read_part(
     body: &[u8],
     part: &Part,

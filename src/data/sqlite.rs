@@ -100,6 +100,12 @@ impl fmt::Display for SqlError {
                 "the statement returns no rows (ATTACH, BEGIN and settings are refused); covey \
                  runs one statement that reads rows, such as a SELECT"
             ),
+            SqlError::Sql(m) if m == "not authorized" => write!(
+                f,
+                "SQLite refused the query: not authorized (covey's read-only connection refuses \
+                 loading extensions and whatever could change the file); read the rows with \
+                 a plain SELECT"
+            ),
             SqlError::Sql(m) => write!(f, "SQLite refused the query: {m}"),
             SqlError::DuplicateColumn(c) => write!(
                 f,

@@ -168,11 +168,7 @@ impl Session<'_> {
     ) -> Result<Loaded, Diagnostic> {
         let world_error =
             |e: WorldError| Diagnostic::new(path.span, e.to_string()).label("this file");
-        let given = clauses
-            .separator
-            .as_ref()
-            .map(|s| separator_byte(s))
-            .transpose()?;
+        let given = clauses.separator.as_ref().map(separator_byte).transpose()?;
         let decimal_comma = match &clauses.decimal {
             None => false,
             Some(d) if d.value == "," => true,
