@@ -333,7 +333,7 @@ impl Session<'_> {
         clauses: &LoadClauses,
     ) -> Result<Loaded, Diagnostic> {
         let (source, at) = match (&clauses.table, &clauses.query) {
-            (Some(t), None) => (data::sqlite::SqlSource::Table(&t.value), t.span),
+            (Some(table), None) => (data::sqlite::SqlSource::Table(&table.value), table.span),
             (None, Some(q)) => (data::sqlite::SqlSource::Query(&q.value), q.span),
             _ => {
                 return Err(Diagnostic::new(
