@@ -7,7 +7,7 @@ use std::sync::Mutex;
 use crate::files::{self, Batch, Digest, Plan, Role, Stamp};
 use crate::pipeline::{self, Run, RunOptions};
 use crate::report::json;
-use crate::world::{FsWorld, Opened, World, WorldError};
+use crate::world::{FsWorld, LocalFile, Opened, World, WorldError};
 
 /// Options of `covey render`.
 #[derive(Debug, Clone, Default)]
@@ -28,6 +28,8 @@ pub struct RenderOptions {
     pub override_gates: bool,
     /// Parameter values (`--set NAME=VALUE`).
     pub params: Vec<(String, String)>,
+    /// Database addresses (`--database NAME=URL`), for `load database`.
+    pub databases: crate::data::database::Databases,
 }
 
 /// Options of `covey check`.
@@ -40,6 +42,9 @@ pub struct CheckOptions {
     pub params: Vec<(String, String)>,
     /// The renderings were made past failed gates.
     pub override_gates: bool,
+    /// Database addresses (`--database NAME=URL`): a document's database loads run again
+    /// and their rows' SHA-256 is compared with the rendering's.
+    pub databases: crate::data::database::Databases,
 }
 
 /// How a command ended, which decides the exit code.
@@ -174,6 +179,11 @@ impl World for Recorder {
     fn open(&self, path: &str) -> Result<Opened, WorldError> {
         self.note(path);
         self.world.open(path)
+    }
+
+    fn local(&self, path: &str) -> Result<LocalFile, WorldError> {
+        self.note(path);
+        self.world.local(path)
     }
 }
 
@@ -434,6 +444,7 @@ pub(crate) fn prepare_documents(
             keep_going: opts.keep_going,
             override_gates: opts.override_gates,
             params: opts.params.clone(),
+            databases: opts.databases.clone(),
         };
         let Ran {
             read,
@@ -554,6 +565,7 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
             keep_going: false,
             override_gates: opts.override_gates,
             params: opts.params.clone(),
+            databases: opts.databases.clone(),
         };
         let run = match run_file(doc, run_opts, opts.allow_outside).outcome {
             Ok(r) => r,

@@ -51,6 +51,10 @@ enum Command {
         /// Keep running: re-render when a document or a data file it loads changes.
         #[arg(long)]
         watch: bool,
+        /// The address of a database a document reads with `load database NAME` (repeatable;
+        /// never written anywhere).
+        #[arg(long = "database", value_name = "NAME=URL", value_parser = parse_database)]
+        database: Vec<(String, String)>,
     },
     /// Write a starter procedure document with a small invented data set.
     New {
@@ -83,6 +87,10 @@ enum Command {
         /// The renderings were made with --override-gates.
         #[arg(long)]
         override_gates: bool,
+        /// The address of a database a document reads with `load database NAME` (repeatable;
+        /// never written anywhere).
+        #[arg(long = "database", value_name = "NAME=URL", value_parser = parse_database)]
+        database: Vec<(String, String)>,
     },
 }
 
@@ -91,6 +99,16 @@ fn parse_setting(s: &str) -> Result<(String, String), String> {
     match s.split_once('=') {
         Some((n, v)) if !n.trim().is_empty() => Ok((n.trim().to_string(), v.to_string())),
         _ => Err(format!("expected NAME=VALUE, found `{s}`")),
+    }
+}
+
+/// `NAME=URL` of `--database`. The error never repeats the address, which may hold a password.
+fn parse_database(s: &str) -> Result<(String, String), String> {
+    match s.split_once('=') {
+        Some((n, v)) if !n.trim().is_empty() && !v.trim().is_empty() => {
+            Ok((n.trim().to_string(), v.trim().to_string()))
+        }
+        _ => Err("expected NAME=URL, such as lab=postgresql://analyst@localhost/lab".to_string()),
     }
 }
 
@@ -189,6 +207,7 @@ fn run(command: Command, console: &mut Console) -> u8 {
             set,
             override_gates,
             watch,
+            database,
         } => {
             let opts = RenderOptions {
                 in_place,
@@ -199,6 +218,7 @@ fn run(command: Command, console: &mut Console) -> u8 {
                 html,
                 params: set,
                 override_gates,
+                databases: covey::data::database::Databases::new(database),
             };
             if watch {
                 // Every line is said as it comes; a closed stderr ends the watch.
@@ -248,6 +268,7 @@ fn run(command: Command, console: &mut Console) -> u8 {
             allow_outside,
             set,
             override_gates,
+            database,
         } => covey::check(
             &paths,
             &CheckOptions {
@@ -255,6 +276,7 @@ fn run(command: Command, console: &mut Console) -> u8 {
                 allow_outside,
                 params: set,
                 override_gates,
+                databases: covey::data::database::Databases::new(database),
             },
         ),
     };

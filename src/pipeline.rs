@@ -18,6 +18,8 @@ pub struct RunOptions {
     pub override_gates: bool,
     /// Parameter values set on the command line (`--set NAME=VALUE`).
     pub params: Vec<(String, String)>,
+    /// Database addresses from the command line (`--database NAME=URL`).
+    pub databases: crate::data::database::Databases,
 }
 
 /// The result of running a document.
@@ -131,6 +133,7 @@ pub fn run(
     }
 
     let mut session = Session::new(world);
+    session.set_databases(opts.databases.clone());
     let mut outputs: Vec<Output> = Vec::new();
     let mut bodies = Vec::with_capacity(blocks.len());
     // Why the blocks after this point are not run, once something stopped the run: the advice

@@ -65,6 +65,16 @@ pub struct Opened {
     pub len: Option<u64>,
 }
 
+/// A data file on disk, for a reader that must open it by its path (SQLite): where it
+/// resolves, and the regular file there, already opened (so that its bytes can be
+/// fingerprinted and its identity compared with what the reader opened).
+pub struct LocalFile {
+    /// The path, resolved within the document's folder (no link left in it).
+    pub path: PathBuf,
+    /// The file, opened for reading.
+    pub file: std::fs::File,
+}
+
 /// Reads the data files that a document names.
 pub trait World {
     /// The bytes of the file at `path`, as written in the document
@@ -79,6 +89,15 @@ pub trait World {
         Ok(Opened {
             reader: Box::new(std::io::Cursor::new(bytes)),
             len,
+        })
+    }
+
+    /// The file at `path` on disk, confined like [`World::read`], for a reader that opens it
+    /// by its path. A world without files on disk has none.
+    fn local(&self, path: &str) -> Result<LocalFile, WorldError> {
+        Err(WorldError::Io {
+            path: path.to_string(),
+            message: "this kind of file can only be read from disk".into(),
         })
     }
 }
@@ -317,6 +336,32 @@ impl World for FsWorld {
             reader: Box::new(file),
             len: Some(len),
         })
+    }
+
+    fn local(&self, path: &str) -> Result<LocalFile, WorldError> {
+        let (file, _) = self.file(path)?;
+        Ok(LocalFile {
+            path: self.resolve(path)?,
+            file,
+        })
+    }
+}
+
+/// True when `file` (open) is the file at `path` now: same device and inode. A reader that
+/// opens a file by its path checks with this that it read the file that was confined.
+pub fn same_file(file: &std::fs::File, path: &Path) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        match (file.metadata(), std::fs::symlink_metadata(path)) {
+            (Ok(a), Ok(b)) => a.dev() == b.dev() && a.ino() == b.ino(),
+            _ => false,
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = (file, path);
+        true
     }
 }
 

@@ -66,8 +66,13 @@ fn run_case(case: &Path, scratch_root: &Path) -> Option<String> {
         std::fs::write(work.join("d.csv"), data).unwrap_or_else(|e| panic!("{e}"));
     }
     let source_before = read_bytes(&case.join("doc.md"));
+    // `args.txt`: more arguments for the command line (a `--database` address, say).
+    let extra: Vec<String> = std::fs::read_to_string(work.join("args.txt"))
+        .map(|t| t.split_whitespace().map(str::to_string).collect())
+        .unwrap_or_default();
     let out = Command::new(env!("CARGO_BIN_EXE_covey"))
         .args(["render", "doc.md"])
+        .args(&extra)
         .current_dir(&work)
         .output()
         .unwrap_or_else(|e| panic!("cannot run covey: {e}"));

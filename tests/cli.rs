@@ -167,7 +167,7 @@ fn exit_codes() {
     let (code, err) = covey(&dir, &["render", "bad.md"]);
     assert_eq!(code, 2);
     assert!(
-        err.contains("bad.md:2:6: error: expected a double-quoted text"),
+        err.contains("bad.md:2:6: error: expected the data file's path in double quotes"),
         "{err}"
     );
     assert!(

@@ -256,6 +256,7 @@ proptest! {
             keep_going: true,
             override_gates: true,
             params: vec![("p".to_string(), set)],
+            ..RunOptions::default()
         };
         let _ = timed("pipeline::run", || pipeline::run(&text, "fuzz.md", &w, opts));
     }
@@ -286,6 +287,8 @@ proptest! {
             name: "fuzz".to_string(),
             delimiter: if tab { b'\t' } else { b',' },
             missing: if marker { vec!["NA".to_string(), String::new()] } else { Vec::new() },
+            // Decimal commas go with another separator, as in files that use them.
+            decimal_comma: tab,
         };
         let _ = timed("read_delimited", || read_delimited(&bytes, &opts));
     }

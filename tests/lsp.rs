@@ -1216,3 +1216,89 @@ fn the_server_finds_what_the_renderer_refuses_without_fitting() {
     assert_eq!(total, statements - 4, "the renderer's errors");
     assert_eq!(found, total, "the server finds each of them");
 }
+
+/// The data sources of issue 19: completion offers a load's clauses and the columns that
+/// `compute` makes; a workbook and a SQLite file are read for their columns (the server reads
+/// files, never a database), and `load database` is checked without connecting.
+#[test]
+fn completion_knows_sources_and_computed_columns_without_a_database() {
+    let dir = workspace("sources");
+    for f in ["rations.xlsx", "rations.sqlite"] {
+        std::fs::copy(
+            root().join("tests/fixtures/sources").join(f),
+            dir.join("data").join(f),
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+    }
+    let mut checker = Checker::new(false);
+    let at_end = |checker: &mut Checker, text: &str| {
+        completions_at_end(checker, &dir, &format!("```covey\n{text}"))
+    };
+    let clauses = at_end(&mut checker, "load \"data/rations.xlsx\" ");
+    for want in ["sheet", "table", "query", "separator", "decimal", "as"] {
+        assert!(clauses.contains(&want.to_string()), "{want}: {clauses:?}");
+    }
+    assert_eq!(
+        at_end(&mut checker, "load \"data/rations.csv\" separator "),
+        ["tab"]
+    );
+    let load = at_end(&mut checker, "load ");
+    assert!(load.contains(&"database".to_string()), "{load:?}");
+    // Columns of a sheet, of a SQLite table, and the one `compute` makes.
+    let head = "load \"data/rations.xlsx\" sheet \"Week 6\" as pens\ncompute start_c = start_kg - mean(start_kg)\n";
+    assert_eq!(
+        at_end(&mut checker, &format!("{head}table summary ")),
+        ["pen", "ration", "start_kg", "final_kg", "start_c"]
+    );
+    assert_eq!(
+        at_end(&mut checker, &format!("{head}label rows by ")),
+        ["pen", "ration", "start_kg", "final_kg", "start_c"]
+    );
+    let head = "load \"data/rations.sqlite\" table pens\n";
+    assert_eq!(
+        at_end(&mut checker, &format!("{head}compute r = final_kg / ")),
+        [
+            "pen", "ration", "start_kg", "final_kg", "log10", "log", "exp", "sqrt", "abs", "mean",
+            "sd"
+        ]
+    );
+    // Checks as you type: a computed name that exists, a column that does not, an unknown
+    // column in an aggregate, and a transformed response of a text column.
+    let text = "```covey\nload \"data/rations.csv\" as pens\ncompute start_kg = 1\ncompute a = nope + 1\ncompute b = mean(nope)\nmodel m: log(pen) on start_kg\n```\n";
+    let a = checker.check(text, &dir.join("doc.md"));
+    let messages: Vec<String> = a.problems.iter().map(|p| p.message.clone()).collect();
+    assert!(
+        messages
+            .iter()
+            .any(|m| m.contains("already has a column `start_kg`")),
+        "{messages:?}"
+    );
+    assert_eq!(
+        messages
+            .iter()
+            .filter(|m| m.contains("no column `nope`"))
+            .count(),
+        2,
+        "{messages:?}"
+    );
+    agree("sources", text, &dir);
+
+    // A database the server does not know: no error, no connection (the address given to
+    // the renderer is never the server's), and the columns after it are not guessed at.
+    let text = "```covey\nload database lab query \"SELECT 1 AS y\" as d\ncompute z = y + 1\ntable summary z\n```\n";
+    let started = std::time::Instant::now();
+    let a = checker.check(text, &dir.join("doc.md"));
+    assert!(
+        a.problems.is_empty(),
+        "{:?}",
+        a.problems.iter().map(|p| &p.message).collect::<Vec<_>>()
+    );
+    assert!(started.elapsed() < Duration::from_secs(5));
+    assert_eq!(
+        at_end(
+            &mut checker,
+            "load database lab query \"SELECT 1\" as d\nuse "
+        ),
+        ["d"]
+    );
+}

@@ -28,14 +28,14 @@ fn blank_and_comment_lines_are_no_statement() {
 #[test]
 fn load_with_and_without_name() {
     match parse(r#"load "data/pens.csv" as pens   # the pens"#) {
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             assert_eq!(path.value, "data/pens.csv");
             assert_eq!(name.map(|n| n.value).as_deref(), Some("pens"));
         }
         k => panic!("{k:?}"),
     }
     match parse(r#"load "a \"quoted\" name.csv""#) {
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             assert_eq!(path.value, r#"a "quoted" name.csv"#);
             assert!(name.is_none());
         }
@@ -425,13 +425,13 @@ fn unknown_statement() {
 fn unquoted_path() {
     let e = error("load data.csv");
     assert_eq!(e.span.start, 105);
-    assert!(e.message.contains("double-quoted"), "{}", e.message);
+    assert!(e.message.contains("path in double quotes"), "{}", e.message);
 }
 
 #[test]
 fn unterminated_string() {
     let e = error("load \"data.csv");
-    assert!(e.message.contains("double-quoted"), "{}", e.message);
+    assert!(e.message.contains("path in double quotes"), "{}", e.message);
 }
 
 #[test]

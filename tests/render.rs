@@ -61,6 +61,7 @@ fn render_fixture(name: &str) {
         keep_going: name.contains("keep-going"),
         override_gates: name.contains("override"),
         params: Vec::new(),
+        ..RunOptions::default()
     };
     let file = format!("{name}.md");
     match pipeline::run(&text, &file, &world, opts.clone()) {

@@ -16,7 +16,7 @@ use super::error::LoadError;
 use super::exact::{self, ExactScan};
 use super::intern::Index;
 use super::lines::LinesBuilder;
-use super::number::{parse_trimmed, NumberParse, Suggestion};
+use super::number::{parse_decimal_comma, parse_trimmed, NumberParse, Suggestion};
 use super::split::{
     chunk_starts, span_bytes, span_len, span_quoted, Fields, RecordStart, Splitter,
 };
@@ -48,6 +48,8 @@ pub struct LoadOptions {
     pub delimiter: u8,
     /// Cell texts that mean "missing", besides the empty cell (compared after trimming).
     pub missing: Vec<String>,
+    /// Decimals are marked by a comma (`3,5`), and a point in a number is refused.
+    pub decimal_comma: bool,
 }
 
 impl Default for LoadOptions {
@@ -56,8 +58,49 @@ impl Default for LoadOptions {
             name: String::new(),
             delimiter: b',',
             missing: Vec::new(),
+            decimal_comma: false,
         }
     }
+}
+
+/// The separator a comma-separated file really uses, when its header is a single field
+/// holding semicolons, tabs or vertical bars (outside quotes) and no comma: the one of those
+/// that occurs most often (a tie goes to the semicolon, then the tab). `None` when the header
+/// has a comma, none of these, or no line break within `head` (the file's first bytes).
+pub fn detect_separator(head: &[u8]) -> Option<u8> {
+    let head = head.strip_prefix(UTF8_BOM).unwrap_or(head);
+    let end = memchr::memchr2(b'\n', b'\r', head)?;
+    let line = head.get(..end)?;
+    let mut counts = [0usize; 3];
+    let mut quoted = false;
+    for &b in line {
+        match b {
+            b'"' => quoted = !quoted,
+            _ if quoted => {}
+            b',' => return None,
+            b';' => counts[0] += 1,
+            b'\t' => counts[1] += 1,
+            b'|' => counts[2] += 1,
+            _ => {}
+        }
+    }
+    let best = (0..3).max_by_key(|&i| (counts[i], std::cmp::Reverse(i)))?;
+    (counts[best] > 0).then(|| [b';', b'\t', b'|'][best])
+}
+
+/// A cell written with a decimal comma as the same cell with a point, in `buf`, for the fast
+/// number reader; `None` (read it the slow way) when it holds a point or is long.
+#[inline(always)]
+fn comma_to_point<'b>(cell: &[u8], buf: &'b mut [u8; 24]) -> Option<&'b [u8]> {
+    let out = buf.get_mut(..cell.len())?;
+    for (o, &b) in out.iter_mut().zip(cell) {
+        *o = match b {
+            b'.' => return None,
+            b',' => b'.',
+            b => b,
+        };
+    }
+    Some(out)
 }
 
 /// Trims spaces and tabs from both ends of a cell.
@@ -346,19 +389,29 @@ impl Builder {
         limit: usize,
         markers: &[&[u8]],
         name: &str,
+        decimal_comma: bool,
     ) -> Result<(), (usize, LoadError)> {
         let mut r = 0;
+        let mut buf = [0u8; 24];
         // Markers are compared only when there are any.
         let marked = |cell: &[u8]| !markers.is_empty() && markers.contains(&cell);
         loop {
             match self {
                 Builder::Numeric { values, scan, .. } => {
                     while r < limit {
-                        let cell = trim_bytes(block.cell(r, j));
+                        let raw = trim_bytes(block.cell(r, j));
+                        let cell = if decimal_comma {
+                            match comma_to_point(raw, &mut buf) {
+                                Some(c) => c,
+                                None => break,
+                            }
+                        } else {
+                            raw
+                        };
                         let Some((v, digits)) = fast_decimal(cell) else {
                             break;
                         };
-                        if scan.wants_plain(digits) || marked(cell) {
+                        if scan.wants_plain(digits) || marked(raw) {
                             break;
                         }
                         values.push(v);
@@ -389,7 +442,8 @@ impl Builder {
                 name,
             };
             let (raw, quoted) = block.cell_quoted(r, j);
-            self.push(raw, quoted, markers, &at).map_err(|e| (r, e))?;
+            self.push(raw, quoted, markers, &at, decimal_comma)
+                .map_err(|e| (r, e))?;
             r += 1;
         }
     }
@@ -401,6 +455,7 @@ impl Builder {
         quoted: bool,
         markers: &[&[u8]],
         at: &Place<'_>,
+        decimal_comma: bool,
     ) -> Result<(), LoadError> {
         let cell = trim_bytes(raw);
         let missing = is_missing_cell(cell, markers);
@@ -414,19 +469,37 @@ impl Builder {
                     values.push(f64::NAN);
                     return Ok(());
                 }
-                if let Some((v, digits)) = fast_decimal(cell) {
+                let mut buf = [0u8; 24];
+                let point = if decimal_comma {
+                    comma_to_point(cell, &mut buf)
+                } else {
+                    Some(cell)
+                };
+                if let Some((v, digits, c)) = point
+                    .and_then(|c| Some((fast_decimal(c)?, c)))
+                    .map(|((v, d), c)| (v, d, c))
+                {
                     // The cell is ASCII, so the text check cannot fail; it is only needed
                     // when the exact scan can learn from the cell.
                     if scan.wants_plain(digits) {
-                        scan.observe(cell_text(cell, at)?);
+                        scan.observe(cell_text(c, at)?);
                     }
                     values.push(v);
                     return Ok(());
                 }
                 let text = cell_text(cell, at)?;
-                match parse_trimmed(text) {
+                let parsed = if decimal_comma {
+                    parse_decimal_comma(text)
+                } else {
+                    parse_trimmed(text)
+                };
+                match parsed {
                     NumberParse::Number(v) => {
-                        scan.observe(text);
+                        if decimal_comma {
+                            scan.observe(&text.replace(',', "."));
+                        } else {
+                            scan.observe(text);
+                        }
                         values.push(v);
                     }
                     NumberParse::Suspicious(suggestion) => {
@@ -632,6 +705,8 @@ const BLOCK_ROWS: usize = 4096;
 /// one run. The error reported is the one reading row by row would meet first: the earliest
 /// row with a bad record or cell, and in that row a bad record before a bad cell, and the
 /// leftmost bad cell.
+// The reader's settings travel as they are; a struct for them would only be unpacked here.
+#[allow(clippy::too_many_arguments)]
 fn read_part(
     body: &[u8],
     part: &Part,
@@ -640,6 +715,7 @@ fn read_part(
     names: &[String],
     text: &[bool],
     buffers: Buffers,
+    decimal_comma: bool,
 ) -> Result<PartRows, PartError> {
     let Buffers {
         mut numbers,
@@ -725,7 +801,7 @@ fn read_part(
         };
         for (j, (b, name)) in columns.iter_mut().zip(names).enumerate() {
             let limit = bad_cell.as_ref().map_or(starts.len(), |(r, _)| *r);
-            if let Err(e) = b.push_cells(&block, j, limit, markers, name) {
+            if let Err(e) = b.push_cells(&block, j, limit, markers, name, decimal_comma) {
                 bad_cell = Some(e);
             }
         }
@@ -891,6 +967,7 @@ fn read_rows(
     markers: &[&[u8]],
     part_bytes: usize,
     last: &mut RecordStart,
+    decimal_comma: bool,
 ) -> Result<Rows, LoadError> {
     let (names, data) = read_header(body, delimiter, last)?;
     let header_line = last.line;
@@ -899,7 +976,7 @@ fn read_rows(
     // grows by copying.
     let rows_bound: usize = parts.iter().map(|p| p.rows_bound).sum();
     let mut sink = Sink::new(names, rows_bound);
-    sink.take(body, parts, delimiter, markers, last)?;
+    sink.take(body, parts, delimiter, markers, last, decimal_comma)?;
     if sink.row_numbers.is_empty() {
         return Err(LoadError::NoDataRows { line: header_line });
     }
@@ -967,6 +1044,7 @@ impl Sink {
         delimiter: u8,
         markers: &[&[u8]],
         last: &mut RecordStart,
+        decimal_comma: bool,
     ) -> Result<(), LoadError> {
         let mut first = self.parts.len();
         self.parts.extend(new_parts);
@@ -1002,6 +1080,7 @@ impl Sink {
                     names,
                     &text,
                     buffers.unwrap_or_default(),
+                    decimal_comma,
                 )
             });
             drop(jobs);
@@ -1325,7 +1404,14 @@ pub(super) fn read_in_parts(
 
     // Where the latest record starts, for the open-quote check.
     let mut last = RecordStart { offset: 0, line: 1 };
-    let rows = read_rows(body, delimiter, &markers, part_bytes, &mut last);
+    let rows = read_rows(
+        body,
+        delimiter,
+        &markers,
+        part_bytes,
+        &mut last,
+        opts.decimal_comma,
+    );
     // A quote left open at the end of the file explains any other complaint about its record
     // (wrong field count, for one), so it is reported first.
     let tail = body.get(last.offset..).unwrap_or_default();
@@ -1353,7 +1439,14 @@ pub(super) fn read_in_parts(
             Merged::Text { .. } => None,
         })
         .collect();
-    let mut exact = exact_pass(body, data, delimiter, &markers, &offsets, row_numbers.len());
+    let mut exact = exact_pass(
+        body,
+        data,
+        (delimiter, opts.decimal_comma),
+        &markers,
+        &offsets,
+        row_numbers.len(),
+    );
 
     let mut columns = finish_columns(names, columns);
     for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
@@ -1363,6 +1456,8 @@ pub(super) fn read_in_parts(
         name: opts.name.clone(),
         columns,
         row_numbers: row_numbers.finish(),
+        rows_are: super::RowOrigin::FileLines,
+        label: None,
     })
 }
 
@@ -1479,7 +1574,7 @@ fn refill(
 fn exact_pass(
     body: &[u8],
     data: (usize, usize),
-    delimiter: u8,
+    (delimiter, decimal_comma): (u8, bool),
     markers: &[&[u8]],
     offsets: &[Option<i64>],
     n_rows: usize,
@@ -1505,9 +1600,13 @@ fn exact_pass(
             let r = if is_missing_cell(cell, markers) {
                 Some(f64::NAN)
             } else {
-                std::str::from_utf8(cell)
-                    .ok()
-                    .and_then(|t| exact::residual(t, *offset))
+                std::str::from_utf8(cell).ok().and_then(|t| {
+                    if decimal_comma {
+                        exact::residual(&t.replace(',', "."), *offset)
+                    } else {
+                        exact::residual(t, *offset)
+                    }
+                })
             };
             match r {
                 Some(r) => res.push(r),

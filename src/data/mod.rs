@@ -1,6 +1,8 @@
 //! Data sets: delimited text loaded into typed columns (numbers, text, factors) with missing
 //! values, plus the helpers messages need (closest column name, first non-number cell).
 
+mod cells;
+pub mod database;
 mod error;
 mod exact;
 mod factor;
@@ -8,7 +10,9 @@ mod intern;
 mod lines;
 mod load;
 mod number;
+pub mod sheet;
 mod split;
+pub mod sqlite;
 mod stream;
 mod swar;
 
@@ -19,12 +23,13 @@ mod reference;
 #[cfg(test)]
 mod tests;
 
+pub use cells::{ColumnBuilder, MixedColumn};
 pub use error::{FactorError, LoadError};
 pub use factor::{
     make_factor, take_factor, unused_levels, Code, Factor, LevelOrder, MAX_FACTOR_LEVELS,
 };
 pub use lines::RowLines;
-pub use load::{read_delimited, LoadOptions, MAX_LINE_BYTES};
+pub use load::{detect_separator, read_delimited, LoadOptions, MAX_LINE_BYTES};
 pub use number::{format_number, parse_number, NumberParse, Suggestion};
 pub use stream::{stream_delimited, Streamed};
 
@@ -40,8 +45,76 @@ pub struct DataSet {
     /// Columns in file order.
     pub columns: Vec<Column>,
     /// For each data row, the 1-based file line where it starts (the header is line 1);
-    /// kept through filtering.
+    /// kept through filtering. For a sheet of a workbook, the row of the sheet; for the
+    /// result of a query, the row's position in it.
     pub row_numbers: RowLines,
+    /// What `row_numbers` count.
+    pub rows_are: RowOrigin,
+    /// The column whose values name the rows (`label rows by COLUMN`), if any.
+    pub label: Option<String>,
+}
+
+/// What the row numbers of a data set count, for the messages and tables that name a row.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub enum RowOrigin {
+    /// Lines of a delimited text file (the header is line 1).
+    #[default]
+    FileLines,
+    /// Rows of the named sheet of a workbook, as the spreadsheet numbers them.
+    Sheet(String),
+    /// Positions in the rows a table or query gave (the first is 1).
+    Result,
+}
+
+impl RowOrigin {
+    /// Where row number `n` is, in words: "line 14", "row 14 of sheet `Week 6`", "row 14 of
+    /// the result".
+    pub fn place(&self, n: usize) -> String {
+        match self {
+            RowOrigin::FileLines => format!("line {n}"),
+            RowOrigin::Sheet(sheet) => format!("row {n} of sheet \"{sheet}\""),
+            RowOrigin::Result => format!("row {n} of the result"),
+        }
+    }
+
+    /// What the numbers of a table's `row` column are, for its notes; `name` writes the
+    /// sheet's name as the note's format needs it (escaped for Markdown, say).
+    pub fn meaning(&self, name: impl Fn(&str) -> String) -> String {
+        match self {
+            RowOrigin::FileLines => {
+                "row is the line in the data file (the header is line 1)".to_string()
+            }
+            RowOrigin::Sheet(sheet) => {
+                format!(
+                    "row is the row of sheet \"{}\" as the spreadsheet numbers it",
+                    name(sheet)
+                )
+            }
+            RowOrigin::Result => {
+                "row is the position in the rows the table or query gave (the first is 1)"
+                    .to_string()
+            }
+        }
+    }
+
+    /// What a row's number is, in words: "line in the file", "row in the sheet",
+    /// "position in the result".
+    pub fn number_words(&self) -> &'static str {
+        match self {
+            RowOrigin::FileLines => "line in the file",
+            RowOrigin::Sheet(_) => "row in the sheet",
+            RowOrigin::Result => "position in the result",
+        }
+    }
+
+    /// The header of a preview's `row` column.
+    pub fn header(&self) -> &'static str {
+        match self {
+            RowOrigin::FileLines => "line in file",
+            RowOrigin::Sheet(_) => "row of sheet",
+            RowOrigin::Result => "row of result",
+        }
+    }
 }
 
 /// A named column.
@@ -480,6 +553,26 @@ impl DataSet {
                 .filter(|(_, k)| **k)
                 .map(|(r, _)| r)
                 .collect(),
+            rows_are: self.rows_are.clone(),
+            label: self.label.clone(),
+        }
+    }
+
+    /// The label of data row `row` (`label rows by`), when the data set has a label column
+    /// and the row's cell is not missing.
+    pub fn label_of(&self, row: usize) -> Option<String> {
+        let col = self.column(self.label.as_deref()?)?;
+        (!col.is_missing(row)).then(|| col.display_value(row))
+    }
+
+    /// Where data row `row` is, in words ("line 14", "row 14 of sheet \"Week 6\""), with its
+    /// label when the rows are labelled.
+    pub fn place_of(&self, row: usize) -> String {
+        let n = self.row_numbers.get(row).unwrap_or(row + 1);
+        let place = self.rows_are.place(n);
+        match self.label_of(row) {
+            Some(l) => format!("{place} ({l})"),
+            None => place,
         }
     }
 
@@ -516,6 +609,72 @@ fn first_non_number_in<'a>(
             _ => Some((i, s)),
         }
     })
+}
+
+impl DataSet {
+    /// A SHA-256 of the rows as covey read them, so that a change in the rows a table or a
+    /// query gives shows in the provenance: the column names, then every cell row by row, a
+    /// missing cell as the byte 0, a number as the byte 1 and its eight bytes (IEEE 754,
+    /// little-endian), a text (or level) as the byte 2, its length in eight bytes and its
+    /// UTF-8 bytes; each name as its length and bytes.
+    pub fn rows_sha256(&self) -> String {
+        let mut h = Sha256::new();
+        let mut buf: Vec<u8> = Vec::with_capacity(1 << 16);
+        let len = |n: usize| (n as u64).to_le_bytes();
+        buf.extend_from_slice(&len(self.columns.len()));
+        for c in &self.columns {
+            buf.extend_from_slice(&len(c.name.len()));
+            buf.extend_from_slice(c.name.as_bytes());
+        }
+        for row in 0..self.n_rows() {
+            for c in &self.columns {
+                let text = match &c.values {
+                    Values::Numeric(v) => {
+                        match v.get(row).copied().filter(|x| !x.is_nan()) {
+                            Some(x) => {
+                                buf.push(1);
+                                buf.extend_from_slice(&x.to_bits().to_le_bytes());
+                            }
+                            None => buf.push(0),
+                        }
+                        continue;
+                    }
+                    Values::Text(t) => t.get(row),
+                    Values::Factor(f) => f.level_of(row),
+                };
+                match text {
+                    Some(t) => {
+                        buf.push(2);
+                        buf.extend_from_slice(&len(t.len()));
+                        buf.extend_from_slice(t.as_bytes());
+                    }
+                    None => buf.push(0),
+                }
+            }
+            if buf.len() >= 1 << 15 {
+                h.update(&buf);
+                buf.clear();
+            }
+        }
+        h.update(&buf);
+        hex(&h.finalize())
+    }
+}
+
+/// SHA-256 (FIPS 180-4) of everything `reader` gives, as 64 lowercase hex digits.
+pub fn sha256_reader(reader: &mut dyn std::io::Read) -> std::io::Result<String> {
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = match reader.read(&mut buf) {
+            Ok(0) => break,
+            Ok(n) => n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+            Err(e) => return Err(e),
+        };
+        h.update(buf.get(..n).unwrap_or_default());
+    }
+    Ok(hex(&h.finalize()))
 }
 
 /// SHA-256 (FIPS 180-4) of the bytes, as 64 lowercase hex digits.

@@ -28,6 +28,12 @@ pub enum Suggestion {
     MissingMarker,
     /// A number outside the range of double precision, as in `1e400`.
     OutOfRange,
+    /// A point in a cell of a file whose decimals are marked by a comma (`decimal ","`), as
+    /// in `1.234,5` or `3.5`: a thousands separator, or a decimal point by mistake.
+    PointWithDecimalComma,
+    /// Digits grouped by spaces or apostrophes where decimals are marked by a comma, as in
+    /// `1 234,5`.
+    ThousandsWithDecimalComma,
 }
 
 impl Suggestion {
@@ -44,6 +50,10 @@ impl Suggestion {
             Suggestion::OutOfRange => {
                 "is outside the range of double-precision numbers (about 1.8e308 in size)"
             }
+            Suggestion::PointWithDecimalComma => {
+                "has a point, but this file marks decimals with a comma (decimal \",\")"
+            }
+            Suggestion::ThousandsWithDecimalComma => "contains thousands separators",
         }
     }
 
@@ -51,7 +61,9 @@ impl Suggestion {
     pub fn advice(self, text: &str) -> String {
         match self {
             Suggestion::DecimalComma => {
-                "use a point as decimal separator (3.5, not 3,5) and no thousands separators"
+                "if the file marks decimals with a comma, load it with decimal \",\" (and a \
+                 separator other than the comma, such as separator \";\"); covey never guesses \
+                 this, nor thousands separators"
                     .to_owned()
             }
             Suggestion::ThousandsSeparator => {
@@ -59,13 +71,21 @@ impl Suggestion {
             }
             Suggestion::AmbiguousComma => {
                 "remove thousands separators (1234, not 1,234) or, if the comma marks decimals, \
-                 use a point as decimal separator (1.234)"
+                 load the file with decimal \",\" (covey never guesses which it is)"
                     .to_owned()
             }
             Suggestion::NonFiniteText | Suggestion::MissingMarker => format!(
                 "write missing values as an empty cell or declare the marker with `missing \"{text}\"` \
                  before `load`"
             ),
+            Suggestion::PointWithDecimalComma => {
+                "write decimals with a comma (3,5) and no thousands separators (1234,5, not \
+                 1.234,5); covey never guesses a thousands separator"
+                    .to_owned()
+            }
+            Suggestion::ThousandsWithDecimalComma => {
+                "remove thousands separators (1234,5, not 1 234,5)".to_owned()
+            }
             Suggestion::OutOfRange => {
                 "check the value, or rescale the column (for example change its units) so every \
                  value is smaller than about 1e308"
@@ -127,6 +147,35 @@ pub(crate) fn parse_trimmed(t: &str) -> NumberParse {
             }
         }
         Err(_) => classify_near_miss(t),
+    }
+}
+
+/// [`parse_trimmed`] for a file whose decimals are marked by a comma (`decimal ","`): `3,5`
+/// is 3.5. A point anywhere in a number-like cell is refused (it is a thousands separator or
+/// a slip, and covey does not guess which), and so are other thousands separators.
+pub(crate) fn parse_decimal_comma(t: &str) -> NumberParse {
+    if t.contains('.') {
+        let swapped: String = t
+            .chars()
+            .map(|c| match c {
+                '.' => ',',
+                ',' => '.',
+                c => c,
+            })
+            .collect();
+        return match (parse_trimmed(t), parse_trimmed(&swapped)) {
+            (NumberParse::NotNumber, NumberParse::NotNumber) => NumberParse::NotNumber,
+            _ => NumberParse::Suspicious(Suggestion::PointWithDecimalComma),
+        };
+    }
+    if !t.contains(',') {
+        return parse_trimmed(t);
+    }
+    match parse_trimmed(&t.replace(',', ".")) {
+        NumberParse::Suspicious(Suggestion::ThousandsSeparator | Suggestion::DecimalComma) => {
+            NumberParse::Suspicious(Suggestion::ThousandsWithDecimalComma)
+        }
+        other => other,
     }
 }
 

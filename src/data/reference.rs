@@ -696,6 +696,8 @@ pub(super) fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet
         name: opts.name.clone(),
         columns,
         row_numbers: row_numbers.as_slice().into(),
+        rows_are: super::RowOrigin::FileLines,
+        label: None,
     })
 }
 

@@ -163,11 +163,27 @@ pub(super) fn stream_in_windows(
         let unhashed = cur.get(fresh..).unwrap_or_default();
         let (taken, filled) = if eof {
             hasher.update(unhashed);
-            let taken = sink.take(done, parts, delimiter, &markers, &mut at);
+            let taken = sink.take(
+                done,
+                parts,
+                delimiter,
+                &markers,
+                &mut at,
+                opts.decimal_comma,
+            );
             (taken, Ok(true))
         } else {
             rayon::join(
-                || sink.take(done, parts, delimiter, &markers, &mut at),
+                || {
+                    sink.take(
+                        done,
+                        parts,
+                        delimiter,
+                        &markers,
+                        &mut at,
+                        opts.decimal_comma,
+                    )
+                },
                 || {
                     hasher.update(unhashed);
                     let before = next.len();
@@ -216,6 +232,8 @@ pub(super) fn stream_in_windows(
             name: opts.name.clone(),
             columns: finish_columns(names, columns),
             row_numbers: row_numbers.finish(),
+            rows_are: super::RowOrigin::FileLines,
+            label: None,
         },
         sha256: hex(&hasher.finalize()),
     })

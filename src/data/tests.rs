@@ -376,12 +376,12 @@ fn error_refused_numbers_with_suggestions() {
         (
             "3,5",
             Suggestion::DecimalComma,
-            "point as decimal separator",
+            "load it with decimal \",\"",
         ),
         (
             "1.234,5",
             Suggestion::DecimalComma,
-            "point as decimal separator",
+            "load it with decimal \",\"",
         ),
         (
             "1,234.5",

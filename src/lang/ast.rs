@@ -31,6 +31,26 @@ pub enum StatementKind {
     Load {
         path: Spanned<String>,
         name: Option<Spanned<String>>,
+        /// `sheet`, `table`, `query`, `separator` and `decimal`, as written.
+        clauses: LoadClauses,
+    },
+    /// `load database NAME query "SQL" [as NAME]`: rows of a PostgreSQL query, the connection
+    /// given on the command line (`--database NAME=URL`).
+    LoadDatabase {
+        /// The logical name of the database.
+        database: Spanned<String>,
+        query: Spanned<String>,
+        name: Option<Spanned<String>>,
+    },
+    /// `compute NAME = EXPRESSION`: a new numeric column of the current data set.
+    Compute {
+        column: Spanned<String>,
+        expr: Expr,
+    },
+    /// `label rows by COLUMN`: rows are named by this column in influence tables, previews
+    /// and figure captions.
+    LabelRows {
+        column: Spanned<String>,
     },
     Missing {
         markers: Vec<String>,
@@ -88,6 +108,84 @@ pub enum StatementKind {
         lines: Option<PowerLines>,
         to: Option<Spanned<f64>>,
     },
+}
+
+/// The optional clauses of `load "FILE" ...`.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct LoadClauses {
+    /// `sheet "NAME"` of a workbook.
+    pub sheet: Option<Spanned<String>>,
+    /// `table NAME` of a SQLite file.
+    pub table: Option<Spanned<String>>,
+    /// `query "SQL"` on a SQLite file.
+    pub query: Option<Spanned<String>>,
+    /// `separator ";"` (or `separator tab`) of delimited text: the separator as written.
+    pub separator: Option<Spanned<String>>,
+    /// `decimal ","` of delimited text.
+    pub decimal: Option<Spanned<String>>,
+}
+
+impl LoadClauses {
+    /// True when no clause is given.
+    pub fn is_empty(&self) -> bool {
+        *self == LoadClauses::default()
+    }
+}
+
+/// An expression of `compute`, with the place of each part.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Expr {
+    pub kind: ExprKind,
+    pub span: Span,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum ExprKind {
+    Number(f64),
+    Column(String),
+    /// A function of an expression, row by row.
+    Call(Function, Box<Expr>),
+    /// A summary of a whole column (its non-missing values in the current data set).
+    Aggregate(Aggregate, Spanned<String>),
+    Negate(Box<Expr>),
+    Binary(BinaryOp, Box<Expr>, Box<Expr>),
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Function {
+    Log,
+    Log10,
+    Exp,
+    Sqrt,
+    Abs,
+}
+
+impl Function {
+    /// The name as written.
+    pub fn name(self) -> &'static str {
+        match self {
+            Function::Log => "log",
+            Function::Log10 => "log10",
+            Function::Exp => "exp",
+            Function::Sqrt => "sqrt",
+            Function::Abs => "abs",
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Aggregate {
+    Mean,
+    Sd,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum BinaryOp {
+    Add,
+    Subtract,
+    Multiply,
+    Divide,
+    Power,
 }
 
 /// `plan NAME for K groups [in ratio R1:R2:...] [with C covariates [explaining R2]] effect
@@ -255,6 +353,8 @@ impl Literal {
 pub struct ModelDecl {
     pub name: Spanned<String>,
     pub response: Spanned<String>,
+    /// A transform of the response (`log(y)`), whose scale the results are on.
+    pub response_transform: TransformDecl,
     pub terms: Vec<TermDecl>,
     pub intercept: bool,
     /// `weights W`: a numeric column of case weights (weighted least squares).

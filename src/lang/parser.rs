@@ -125,11 +125,17 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, .. } => {
             let mut wanted: Vec<&str> = positives.iter().map(|r| describe(*r)).collect();
+            // After `load`: a path, or `database NAME`, said as one thing.
+            if positives.contains(&Rule::kw_database) && positives.contains(&Rule::text) {
+                wanted = vec![
+                    "the data file's path in double quotes (or a parameter, or `database NAME`)",
+                ];
+            }
             wanted.sort_unstable();
             wanted.dedup();
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, model, table, check, plot, unit, param, require, report or plan"
+                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, label, compute, model, table, check, plot, unit, param, require, report or plan"
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
@@ -170,6 +176,35 @@ fn describe(rule: Rule) -> &'static str {
             "a model term (a column, `A by B`, `x^2`, `log(x)` or `sqrt(x)`)"
         }
         Rule::transform => "`log` or `sqrt`",
+        Rule::response => "a response column, or `log(y)` or `sqrt(y)`",
+        Rule::expr | Rule::product | Rule::signed | Rule::raised | Rule::atom => {
+            "an expression (numbers, columns, + - * / ^, parentheses, log, log10, exp, sqrt, abs, mean, sd)"
+        }
+        Rule::call | Rule::function => "a function: log, log10, exp, sqrt or abs",
+        Rule::column_call | Rule::aggregate => "`mean(COLUMN)` or `sd(COLUMN)`",
+        Rule::minus => "`-`",
+        Rule::times => "`*`",
+        Rule::divide => "`/`",
+        Rule::load_clause
+        | Rule::load_sheet
+        | Rule::load_table
+        | Rule::load_query
+        | Rule::load_separator
+        | Rule::load_decimal
+        | Rule::load_as => {
+            "a clause of load (sheet, table, query, separator, decimal or as)"
+        }
+        Rule::kw_sheet => "`sheet`",
+        Rule::kw_query => "`query`",
+        Rule::kw_separator => "`separator`",
+        Rule::kw_tab => "`tab` or a quoted separator",
+        Rule::kw_decimal => "`decimal`",
+        Rule::kw_database => "`database`",
+        Rule::kw_compute => "`compute`",
+        Rule::kw_label => "`label`",
+        Rule::load_database_stmt => "`load database NAME query \"SQL\"`",
+        Rule::compute_stmt => "`compute NAME = EXPRESSION`",
+        Rule::label_stmt => "`label rows by COLUMN`",
         Rule::ss_type => "1, 2 or 3",
         Rule::correction_method => "tukey, holm, bonferroni, sidak, dunnett or none",
         Rule::correction_opt => "`correction` and a method (tukey, holm, bonferroni, sidak, dunnett, none)",
@@ -401,6 +436,13 @@ fn is_keyword(rule: Rule) -> bool {
             | Rule::kw_upper
             | Rule::kw_to
             | Rule::kw_r2
+            | Rule::kw_sheet
+            | Rule::kw_query
+            | Rule::kw_separator
+            | Rule::kw_decimal
+            | Rule::kw_database
+            | Rule::kw_compute
+            | Rule::kw_label
     )
 }
 
@@ -418,6 +460,9 @@ fn is_punctuation(rule: Rule) -> bool {
             | Rule::comma
             | Rule::plus
             | Rule::caret
+            | Rule::minus
+            | Rule::times
+            | Rule::divide
             | Rule::equals
             | Rule::open
             | Rule::close
@@ -447,9 +492,103 @@ impl Builder<'_> {
         Ok(match rule {
             Rule::load_stmt => {
                 let path = self.string(next(&mut kids)?)?;
-                let name = kids.next().map(|p| self.ident(p));
-                StatementKind::Load { path, name }
+                let mut clauses = LoadClauses::default();
+                let mut name = None;
+                for clause in kids {
+                    let Some(c) = clause.into_inner().next() else {
+                        continue;
+                    };
+                    let rule = c.as_rule();
+                    let word = c
+                        .as_str()
+                        .split_whitespace()
+                        .next()
+                        .unwrap_or("")
+                        .to_string();
+                    let at = c.clone();
+                    let value = next(&mut children(c).into_iter());
+                    let slot = match rule {
+                        Rule::load_sheet => &mut clauses.sheet,
+                        Rule::load_table => &mut clauses.table,
+                        Rule::load_query => &mut clauses.query,
+                        Rule::load_separator => &mut clauses.separator,
+                        Rule::load_decimal => &mut clauses.decimal,
+                        _ => &mut name,
+                    };
+                    if slot.is_some() {
+                        return Err(
+                            self.error(&at, format!("`{word}` is given twice; give it once"))
+                        );
+                    }
+                    *slot = Some(match (rule, value) {
+                        (Rule::load_as, Ok(v)) => self.ident(v),
+                        (Rule::load_table, Ok(v)) => self.name(v),
+                        (Rule::load_separator, Ok(v)) if v.as_rule() == Rule::kw_tab => Spanned {
+                            value: "\t".into(),
+                            span: self.span(&v),
+                        },
+                        (_, Ok(v)) => self.string(v)?,
+                        (_, Err(e)) => return Err(e),
+                    });
+                }
+                StatementKind::Load {
+                    path,
+                    name,
+                    clauses,
+                }
             }
+            Rule::load_database_stmt => {
+                let database = self.ident(next(&mut kids)?);
+                let mut query = None;
+                let mut name = None;
+                for clause in kids {
+                    let rule = clause.as_rule();
+                    let word = clause
+                        .as_str()
+                        .split_whitespace()
+                        .next()
+                        .unwrap_or("")
+                        .to_string();
+                    let at = clause.clone();
+                    let v = next(&mut children(clause).into_iter())?;
+                    let value = if rule == Rule::load_as {
+                        self.ident(v)
+                    } else {
+                        self.string(v)?
+                    };
+                    let slot = if rule == Rule::load_as {
+                        &mut name
+                    } else {
+                        &mut query
+                    };
+                    if slot.is_some() {
+                        return Err(
+                            self.error(&at, format!("`{word}` is given twice; give it once"))
+                        );
+                    }
+                    *slot = Some(value);
+                }
+                let query = query.ok_or_else(|| SyntaxError {
+                    span: database.span,
+                    message: format!(
+                        "a database is read by a query: write `load database {} query \"SELECT ...\"`",
+                        database.value
+                    ),
+                })?;
+                StatementKind::LoadDatabase {
+                    database,
+                    query,
+                    name,
+                }
+            }
+            Rule::compute_stmt => {
+                let column = self.name(next(&mut kids)?);
+                let expr = self.expr(next(&mut kids)?)?;
+                StatementKind::Compute { column, expr }
+            }
+            Rule::label_stmt => StatementKind::LabelRows {
+                column: self.name(next(&mut kids)?),
+            },
             Rule::missing_stmt => StatementKind::Missing {
                 markers: kids
                     .map(|p| self.string(p).map(|s| s.value))
@@ -755,7 +894,21 @@ impl Builder<'_> {
         mut kids: impl Iterator<Item = Pair<'a, Rule>>,
     ) -> Result<ModelDecl, SyntaxError> {
         let name = self.ident(next(&mut kids)?);
-        let response = self.name(next(&mut kids)?);
+        let response_pair = next(&mut kids)?;
+        let (response, response_transform) = match response_pair.clone().into_inner().next() {
+            Some(p) if p.as_rule() == Rule::transformed => {
+                let mut k = children(p).into_iter();
+                let f = next(&mut k)?;
+                let t = if f.as_str() == "log" {
+                    TransformDecl::Log
+                } else {
+                    TransformDecl::Sqrt
+                };
+                (self.name(next(&mut k)?), t)
+            }
+            Some(p) => (self.name(p), TransformDecl::None),
+            None => (self.name(response_pair), TransformDecl::None),
+        };
         let terms_pair = next(&mut kids)?;
         let mut terms = Vec::new();
         for term in children(terms_pair) {
@@ -777,10 +930,121 @@ impl Builder<'_> {
         Ok(ModelDecl {
             name,
             response,
+            response_transform,
             terms,
             intercept,
             weights,
         })
+    }
+
+    /// An expression of `compute`: sums of products of signed powers of atoms.
+    fn expr(&self, pair: Pair<'_, Rule>) -> Result<Expr, SyntaxError> {
+        let span = self.span(&pair);
+        let rule = pair.as_rule();
+        match rule {
+            Rule::number | Rule::param_ref => {
+                return Ok(Expr {
+                    kind: ExprKind::Number(self.number(&pair)?),
+                    span,
+                })
+            }
+            Rule::name => {
+                return Ok(Expr {
+                    kind: ExprKind::Column(self.name(pair).value),
+                    span,
+                })
+            }
+            _ => {}
+        }
+        let all: Vec<Pair<'_, Rule>> = pair.into_inner().collect();
+        match rule {
+            Rule::expr | Rule::product => {
+                let mut items = all.into_iter();
+                let mut acc = self.expr(next(&mut items)?)?;
+                while let Some(op) = items.next() {
+                    let right = self.expr(next(&mut items)?)?;
+                    let op = match op.as_rule() {
+                        Rule::plus => BinaryOp::Add,
+                        Rule::minus => BinaryOp::Subtract,
+                        Rule::times => BinaryOp::Multiply,
+                        _ => BinaryOp::Divide,
+                    };
+                    let span = Span {
+                        start: acc.span.start,
+                        end: right.span.end,
+                    };
+                    acc = Expr {
+                        kind: ExprKind::Binary(op, Box::new(acc), Box::new(right)),
+                        span,
+                    };
+                }
+                Ok(acc)
+            }
+            Rule::signed => {
+                let mut items = all.into_iter();
+                let first = next(&mut items)?;
+                if first.as_rule() == Rule::minus {
+                    let inner = self.expr(next(&mut items)?)?;
+                    Ok(Expr {
+                        kind: ExprKind::Negate(Box::new(inner)),
+                        span,
+                    })
+                } else {
+                    self.expr(first)
+                }
+            }
+            Rule::raised => {
+                let mut items = all.into_iter().filter(|p| p.as_rule() != Rule::caret);
+                let base = self.expr(next(&mut items)?)?;
+                match items.next() {
+                    Some(e) => Ok(Expr {
+                        kind: ExprKind::Binary(
+                            BinaryOp::Power,
+                            Box::new(base),
+                            Box::new(self.expr(e)?),
+                        ),
+                        span,
+                    }),
+                    None => Ok(base),
+                }
+            }
+            Rule::atom => {
+                let inner = all
+                    .into_iter()
+                    .find(|p| !is_punctuation(p.as_rule()))
+                    .ok_or_else(missing_part)?;
+                self.expr(inner)
+            }
+            Rule::call => {
+                let mut items = all.into_iter().filter(|p| !is_punctuation(p.as_rule()));
+                let f = match next(&mut items)?.as_str() {
+                    "log10" => Function::Log10,
+                    "log" => Function::Log,
+                    "exp" => Function::Exp,
+                    "sqrt" => Function::Sqrt,
+                    _ => Function::Abs,
+                };
+                let arg = self.expr(next(&mut items)?)?;
+                Ok(Expr {
+                    kind: ExprKind::Call(f, Box::new(arg)),
+                    span,
+                })
+            }
+            Rule::column_call => {
+                let mut items = all.into_iter().filter(|p| !is_punctuation(p.as_rule()));
+                let a = if next(&mut items)?.as_str() == "mean" {
+                    Aggregate::Mean
+                } else {
+                    Aggregate::Sd
+                };
+                let column = self.name(next(&mut items)?);
+                Ok(Expr {
+                    kind: ExprKind::Aggregate(a, column),
+                    span,
+                })
+            }
+            r => unreachable_rule(r),
+        }
     }
 
     fn part(&self, pair: Pair<'_, Rule>) -> Result<PartDecl, SyntaxError> {

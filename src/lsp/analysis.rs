@@ -504,7 +504,20 @@ impl<'c> Walk<'c> {
         // A statement the server does not know yet (added to the grammar later) is only parsed.
         #[allow(unreachable_patterns)]
         match &stmt.kind {
-            StatementKind::Load { path, name } => self.load(path, name.as_ref()),
+            StatementKind::Load {
+                path,
+                name,
+                clauses,
+            } => self.load(path, name.as_ref(), clauses),
+            StatementKind::LoadDatabase { database, name, .. } => {
+                self.load_database(database, name.as_ref())
+            }
+            StatementKind::Compute { column, expr } => self.compute(column, expr, stmt.span),
+            StatementKind::LabelRows { column } => {
+                if let Some(set) = self.shape(column.span) {
+                    self.column(&set, column);
+                }
+            }
             StatementKind::Missing { markers } => self.state.markers = markers.clone(),
             StatementKind::Use { name } => self.use_data_set(name, true),
             StatementKind::Show { name: Some(name) } => self.use_data_set(name, false),
@@ -558,26 +571,84 @@ impl<'c> Walk<'c> {
         }
     }
 
-    fn load(&mut self, path: &Spanned<String>, name: Option<&Spanned<String>>) {
+    /// `load database`: a data set whose columns the server does not know, since it never
+    /// connects to a database.
+    fn load_database(&mut self, database: &Spanned<String>, name: Option<&Spanned<String>>) {
+        let def = name.unwrap_or(database);
+        let state = DataSetState {
+            shape: None,
+            summary: None,
+            name: def.value.clone(),
+            def: def.span,
+            path: format!("database {}", database.value),
+            filtered: false,
+        };
+        self.define(state);
+    }
+
+    /// `compute NAME = EXPRESSION`: the renderer's errors for the columns it reads, and a new
+    /// numeric column in the current data set's shape.
+    fn compute(&mut self, column: &Spanned<String>, expr: &crate::lang::Expr, span: Span) {
+        let Some(mut set) = self.shape(span) else {
+            return;
+        };
+        if set.column(&column.value).is_some() {
+            self.error(
+                Diagnostic::new(
+                    column.span,
+                    format!("data set `{}` already has a column `{}`", set.name, column.value),
+                )
+                .label("already a column")
+                .help("give the new column a name of its own; a column read from the file is never overwritten"),
+            );
+            return;
+        }
+        if let Err(d) = crate::session::derived::check(&set, expr) {
+            self.error(d);
+            return;
+        }
+        set.columns.push(crate::data::Column {
+            name: column.value.clone(),
+            values: Values::Numeric(Arc::new(Vec::new())),
+            exact: None,
+        });
+        if let Some(i) = self.state.current {
+            if let Some(d) = self.state.data_sets.get_mut(i) {
+                d.shape = Some(set);
+            }
+        }
+    }
+
+    fn load(
+        &mut self,
+        path: &Spanned<String>,
+        name: Option<&Spanned<String>>,
+        clauses: &crate::lang::LoadClauses,
+    ) {
         let set_name = name.map_or_else(|| default_name(&path.value), |n| n.value.clone());
         let summary = match &self.folder {
             None => None,
-            Some(folder) => match self.data.lookup(folder, &path.value, &self.state.markers) {
-                Lookup::Ready(s) => Some(s),
-                Lookup::Pending => {
-                    self.pending = true;
-                    None
-                }
-                Lookup::Failed(f) => {
-                    let mut d =
-                        Diagnostic::new(path.span, f.message.clone()).label(f.label.clone());
-                    if let Some(h) = &f.help {
-                        d = d.help(h.clone());
+            Some(folder) => {
+                match self
+                    .data
+                    .lookup(folder, &path.value, clauses, &self.state.markers)
+                {
+                    Lookup::Ready(s) => Some(s),
+                    Lookup::Pending => {
+                        self.pending = true;
+                        None
                     }
-                    self.error(d);
-                    None
+                    Lookup::Failed(f) => {
+                        let mut d =
+                            Diagnostic::new(path.span, f.message.clone()).label(f.label.clone());
+                        if let Some(h) = &f.help {
+                            d = d.help(h.clone());
+                        }
+                        self.error(d);
+                        None
+                    }
                 }
-            },
+            }
         };
         let state = DataSetState {
             shape: summary.as_ref().map(|s| s.shape(&set_name)),
@@ -587,6 +658,11 @@ impl<'c> Walk<'c> {
             path: path.value.clone(),
             filtered: false,
         };
+        self.define(state);
+    }
+
+    /// A data set loaded: it replaces one of its name, and is the current one.
+    fn define(&mut self, state: DataSetState) {
         match self
             .state
             .data_sets

@@ -144,7 +144,7 @@ fn word_start(prefix: &str) -> usize {
     let start = prefix
         .char_indices()
         .rev()
-        .take_while(|(_, c)| c.is_ascii_alphanumeric() || *c == '_' || *c == '.')
+        .take_while(|(_, c)| c.is_alphanumeric() || *c == '_' || *c == '.')
         .last()
         .map_or(prefix.len(), |(i, _)| i);
     if prefix[..start].ends_with('@') {

@@ -13,7 +13,7 @@ use crossbeam_channel::{Receiver, Sender};
 
 use crate::data::{format_number, Column, DataSet, Values};
 use crate::diagnostic::Diagnostic;
-use crate::lang::{Span, Spanned, Statement, StatementKind};
+use crate::lang::{LoadClauses, Span, Spanned, Statement, StatementKind};
 use crate::session::Session;
 use crate::world::{Fingerprint, FsWorld};
 
@@ -77,6 +77,8 @@ impl Summary {
                 })
                 .collect(),
             row_numbers: crate::data::RowLines::from(&[][..]),
+            rows_are: Default::default(),
+            label: None,
         }
     }
 }
@@ -115,6 +117,37 @@ pub struct Key {
     pub folder: PathBuf,
     pub path: String,
     pub markers: Vec<String>,
+    /// The load's clauses: sheet, table, query, separator, decimal (they decide what is read).
+    pub clauses: [Option<String>; 5],
+}
+
+/// The values of a load's clauses, as a [`Key`] holds them.
+pub fn clause_key(c: &LoadClauses) -> [Option<String>; 5] {
+    let v = |s: &Option<Spanned<String>>| s.as_ref().map(|s| s.value.clone());
+    [
+        v(&c.sheet),
+        v(&c.table),
+        v(&c.query),
+        v(&c.separator),
+        v(&c.decimal),
+    ]
+}
+
+/// The clauses of a [`Key`], as a load statement holds them.
+fn clauses_of(k: &[Option<String>; 5]) -> LoadClauses {
+    let v = |i: usize| {
+        k.get(i).cloned().flatten().map(|value| Spanned {
+            value,
+            span: Span::default(),
+        })
+    };
+    LoadClauses {
+        sheet: v(0),
+        table: v(1),
+        query: v(2),
+        separator: v(3),
+        decimal: v(4),
+    }
 }
 
 #[derive(Debug, Clone)]
@@ -172,7 +205,13 @@ impl DataCache {
     /// What is known of the file that a document in `folder` loads as `path` with `markers`:
     /// read, being read, or not readable (with the renderer's message). A file whose
     /// fingerprint changed since it was read is read again.
-    pub fn lookup(&mut self, folder: &Path, path: &str, markers: &[String]) -> Lookup {
+    pub fn lookup(
+        &mut self,
+        folder: &Path,
+        path: &str,
+        clauses: &LoadClauses,
+        markers: &[String],
+    ) -> Lookup {
         let world = FsWorld::new(folder, self.allow_outside);
         let fingerprint = match world.fingerprint(path) {
             Ok(f) => f,
@@ -188,6 +227,7 @@ impl DataCache {
             folder: folder.to_path_buf(),
             path: path.to_string(),
             markers: markers.to_vec(),
+            clauses: clause_key(clauses),
         };
         match self.entries.get(&key) {
             Some(Entry::Done(f, lookup)) if *f == fingerprint => return lookup.clone(),
@@ -269,6 +309,7 @@ fn read(key: &Key, allow_outside: bool, bytes: u64) -> Lookup {
             span: Span::default(),
         },
         name: None,
+        clauses: clauses_of(&key.clauses),
     });
     if let Err(d) = session.run(&load) {
         return Lookup::Failed(Arc::new(Failure::of(d)));
@@ -353,6 +394,8 @@ pub fn rows_used(
             stmt.kind,
             StatementKind::Missing { .. }
                 | StatementKind::Load { .. }
+                | StatementKind::Compute { .. }
+                | StatementKind::LabelRows { .. }
                 | StatementKind::Use { .. }
                 | StatementKind::Factor { .. }
                 | StatementKind::Keep { .. }

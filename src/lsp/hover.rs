@@ -113,7 +113,7 @@ pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
 
 /// A `@NAME` at `at` in `source`: its span and name.
 pub fn parameter_at(source: &str, at: usize) -> Option<(Span, String)> {
-    let is_name = |c: char| c.is_ascii_alphanumeric() || c == '_' || c == '.';
+    let is_name = |c: char| c.is_alphanumeric() || c == '_' || c == '.';
     let at = super::position::floor_boundary(source, at);
     let start = source[..at]
         .char_indices()
@@ -177,10 +177,16 @@ fn rows_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> S
     for stmt in &before {
         match &stmt.kind {
             StatementKind::Missing { markers: m } => markers = m.clone(),
-            StatementKind::Load { path, .. } => match data.lookup(folder, &path.value, &markers) {
-                Lookup::Ready(s) => bytes += s.bytes,
-                _ => return "rows used: not known until its data are read".to_string(),
-            },
+            StatementKind::Load { path, clauses, .. } => {
+                match data.lookup(folder, &path.value, clauses, &markers) {
+                    Lookup::Ready(s) => bytes += s.bytes,
+                    _ => return "rows used: not known until its data are read".to_string(),
+                }
+            }
+            // The language server never connects to a database.
+            StatementKind::LoadDatabase { .. } => {
+                return "rows used: not known here for data from a database (`covey render` tells them)".to_string()
+            }
             _ => {}
         }
     }

@@ -3,7 +3,8 @@
 //! of a column. Hover, go to definition and completion all start here.
 
 use crate::lang::{
-    Condition, Gate, ReportRequest, Setting, Span, Spanned, Statement, StatementKind, TableRequest,
+    Condition, Expr, ExprKind, Gate, ReportRequest, Setting, Span, Spanned, Statement,
+    StatementKind, TableRequest,
 };
 
 /// What a name in a statement stands for.
@@ -81,11 +82,23 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
     // no named parts here; everything else about it (syntax errors, keywords) still works.
     #[allow(unreachable_patterns)]
     match &stmt.kind {
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             push(o, path.span, &path.value, Role::File, "");
             if let Some(n) = name {
                 push(o, n.span, &n.value, Role::DataSetDef, "");
             }
+        }
+        StatementKind::LoadDatabase { database, name, .. } => {
+            // Named after the database when no `as` is given.
+            let def = name.as_ref().unwrap_or(database);
+            push(o, def.span, &def.value, Role::DataSetDef, "");
+        }
+        StatementKind::Compute { column, expr } => {
+            push(o, column.span, &column.value, Role::Column, "");
+            expr_uses(expr, o);
+        }
+        StatementKind::LabelRows { column } => {
+            push(o, column.span, &column.value, Role::Column, "")
         }
         StatementKind::Use { name } => push(o, name.span, &name.value, Role::DataSet, ""),
         StatementKind::Show { name: Some(name) } => {
@@ -227,6 +240,20 @@ pub fn uses_of(stmt: &Statement) -> Vec<NameUse> {
         _ => {}
     }
     out
+}
+
+/// The columns an expression of `compute` reads.
+fn expr_uses(e: &Expr, o: &mut Vec<NameUse>) {
+    match &e.kind {
+        ExprKind::Column(c) => push(o, e.span, c, Role::Column, ""),
+        ExprKind::Aggregate(_, c) => push(o, c.span, &c.value, Role::Column, ""),
+        ExprKind::Number(_) => {}
+        ExprKind::Negate(x) | ExprKind::Call(_, x) => expr_uses(x, o),
+        ExprKind::Binary(_, a, b) => {
+            expr_uses(a, o);
+            expr_uses(b, o);
+        }
+    }
 }
 
 fn condition_uses(c: &Condition, o: &mut Vec<NameUse>) {

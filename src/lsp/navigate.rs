@@ -135,7 +135,7 @@ fn statement_symbol(s: &Statement) -> Option<(String, SymbolKind, Span, Option<S
         StatementKind::Table(_) | StatementKind::Check { .. } => {
             Some((s.text.clone(), SymbolKind::STRUCT, s.span, None))
         }
-        StatementKind::Load { path, name } => {
+        StatementKind::Load { path, name, .. } => {
             let (label, span) = match name {
                 Some(n) => (n.value.clone(), n.span),
                 None => (

@@ -18,7 +18,22 @@ fn cell(c: &Cell) -> Value {
 pub fn document(inputs: &[InputRecord], outputs: &[Output]) -> Value {
     let inputs: Vec<Value> = inputs
         .iter()
-        .map(|i| json!({"path": i.path, "sha256": i.sha256, "rows": i.rows, "columns": i.columns}))
+        .map(|i| {
+            let mut v =
+                json!({"path": i.path, "sha256": i.sha256, "rows": i.rows, "columns": i.columns});
+            if let Value::Object(m) = &mut v {
+                if let Some(p) = &i.part {
+                    m.insert("part".into(), Value::String(p.clone()));
+                }
+                if let Some(r) = &i.rows_sha256 {
+                    m.insert("rows_sha256".into(), Value::String(r.clone()));
+                }
+                if i.database {
+                    m.insert("database".into(), Value::Bool(true));
+                }
+            }
+            v
+        })
         .collect();
     let mut out = Vec::new();
     for o in outputs {

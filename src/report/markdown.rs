@@ -537,15 +537,40 @@ pub fn provenance(
     if inputs.is_empty() {
         out.push_str("No data files were read.\n\n");
     } else {
-        out.push_str("| input | rows | columns | SHA-256 |\n| :-- | --: | --: | :-- |\n");
+        let with_rows = inputs.iter().any(|i| i.rows_sha256.is_some() || i.database);
+        if with_rows {
+            out.push_str(
+                "| input | rows | columns | SHA-256 | rows SHA-256 |\n| :-- | --: | --: | :-- | :-- |\n",
+            );
+        } else {
+            out.push_str("| input | rows | columns | SHA-256 |\n| :-- | --: | --: | :-- |\n");
+        }
         for i in inputs {
-            out.push_str(&format!(
-                "| {} | {} | {} | `{}` |\n",
-                code_in_cell(&i.path),
-                i.rows,
-                i.columns,
-                i.sha256
-            ));
+            let mut name = if i.database {
+                format!("database {}", code_in_cell(&i.path))
+            } else {
+                code_in_cell(&i.path)
+            };
+            if let Some(part) = &i.part {
+                name.push_str(", ");
+                name.push_str(&code_in_cell(part));
+            }
+            let (file, rows) = match (i.database, &i.rows_sha256) {
+                (true, _) => ("—".to_string(), format!("`{}`", i.sha256)),
+                (false, Some(r)) => (format!("`{}`", i.sha256), format!("`{r}`")),
+                (false, None) => (format!("`{}`", i.sha256), "—".to_string()),
+            };
+            if with_rows {
+                out.push_str(&format!(
+                    "| {name} | {} | {} | {file} | {rows} |\n",
+                    i.rows, i.columns
+                ));
+            } else {
+                out.push_str(&format!(
+                    "| {name} | {} | {} | {file} |\n",
+                    i.rows, i.columns
+                ));
+            }
         }
         out.push('\n');
     }

@@ -176,12 +176,22 @@ pub struct Output {
     pub items: Vec<Item>,
 }
 
-/// An input file as the provenance section lists it.
-#[derive(Debug, Clone, PartialEq)]
+/// An input file (or database) as the provenance section lists it.
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct InputRecord {
-    /// The path as written in the document (relative to its folder).
+    /// The path as written in the document (relative to its folder); for a database, its
+    /// logical name.
     pub path: String,
+    /// The SHA-256 of the file's bytes; for a database, of the rows read.
     pub sha256: String,
     pub rows: usize,
     pub columns: usize,
+    /// What was read of it: `sheet "Week 6"`, `table measurements`, `query "SELECT ..."`.
+    pub part: Option<String>,
+    /// A SHA-256 of the rows a table or query gave, as covey read them
+    /// ([`crate::data::DataSet::rows_sha256`]).
+    pub rows_sha256: Option<String>,
+    /// The input is a database named on the command line, not a file (its address is never
+    /// recorded).
+    pub database: bool,
 }

@@ -172,7 +172,7 @@ impl Session<'_> {
                 )),
             ])
         } else {
-            let mut listed = influence.table(fit, diag, &m.name);
+            let mut listed = influence.table(m, diag);
             listed.subject = Some(m.name.clone());
             Ok(vec![Item::Table(t), Item::Table(listed)])
         }
@@ -627,20 +627,27 @@ impl Influence {
         )
     }
 
-    fn table(&self, fit: &Fit, d: &Diagnostics, model: &str) -> Table {
+    fn table(&self, m: &super::ModelEntry, d: &Diagnostics) -> Table {
+        let (fit, model) = (&m.fit, m.name.as_str());
+        let labelled = m.labels.is_some();
+        let mut columns = vec![Col::new("row", "row", Format::Count)];
+        if let Some(l) = &m.labels {
+            // `label rows by`: each row's label beside its number.
+            columns.push(Col::new("label", &l.name, Format::Text));
+        }
+        columns.extend([
+            Col::new("leverage", "leverage", Format::Digits(3)),
+            Col::new("cooks_distance", "Cook's distance", Format::Digits(3)),
+            Col::new(
+                "studentized_residual",
+                "studentized residual",
+                Format::Statistic,
+            ),
+        ]);
         let mut t = Table::new(
             "influence",
             format!("Rows of model {} past an influence threshold", code(model)),
-            vec![
-                Col::new("row", "row", Format::Count),
-                Col::new("leverage", "leverage", Format::Digits(3)),
-                Col::new("cooks_distance", "Cook's distance", Format::Digits(3)),
-                Col::new(
-                    "studentized_residual",
-                    "studentized residual",
-                    Format::Statistic,
-                ),
-            ],
+            columns,
         );
         if self.flagged > self.listed.len() {
             t.notes.push(format!(
@@ -649,21 +656,28 @@ impl Influence {
             ));
         }
         for &(k, h, c, r) in &self.listed {
-            t.push(vec![
-                fit.row_number(k).map_or(Cell::Missing, Cell::from),
-                h.into(),
-                c.into(),
-                d.student(r, h).into(),
-            ]);
+            let mut row = vec![fit.row_number(k).map_or(Cell::Missing, Cell::from)];
+            if labelled {
+                row.push(m.label(k).map_or(Cell::Missing, Cell::Text));
+            }
+            row.extend([h.into(), c.into(), d.student(r, h).into()]);
+            t.push(row);
         }
-        t.notes
-            .push("row is the line in the data file (the header is line 1); the studentized residual is externally studentized (the row's own residual left out of its SD).".into());
+        t.notes.push(format!(
+            "{}; the studentized residual is externally studentized (the row's own residual left out of its SD).",
+            m.rows_are.meaning(crate::report::markdown::escape)
+        ));
         let (count, ones) = &self.leverage_one;
         if *count > 0 {
             let lines: Vec<String> = ones
                 .iter()
-                .filter_map(|&k| fit.row_number(k))
-                .map(|r| r.to_string())
+                .filter_map(|&k| {
+                    let n = fit.row_number(k)?;
+                    Some(match m.label(k) {
+                        Some(l) => format!("{n} ({})", crate::report::markdown::escape(&l)),
+                        None => n.to_string(),
+                    })
+                })
                 .collect();
             let more = count.saturating_sub(lines.len());
             t.notes.push(format!(

@@ -4,9 +4,12 @@
 use std::sync::Arc;
 
 use super::{Outcome, Session};
-use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, Streamed, Values};
+use std::io::Read;
+
+use crate::data::sheet::WorkbookKind;
+use crate::data::{self, Column, DataSet, LevelOrder, LoadOptions, MixedColumn, Streamed, Values};
 use crate::diagnostic::Diagnostic;
-use crate::lang::{CompareOp, Condition, Literal, Span, Spanned};
+use crate::lang::{CompareOp, Condition, Literal, LoadClauses, Span, Spanned};
 use crate::report::markdown::code;
 use crate::report::{Cell, Column as Col, Format, InputRecord, Item, Table};
 use crate::world::{io_error, Opened, WorldError};
@@ -31,39 +34,188 @@ fn read_whole(bytes: &[u8], opts: &LoadOptions) -> (Result<DataSet, data::LoadEr
 }
 
 impl Session<'_> {
+    /// `load "FILE" ...`: delimited text, a sheet of a workbook, or a table or query of a
+    /// SQLite file, by the file's extension.
     pub(super) fn load(
         &mut self,
         path: &Spanned<String>,
         name: Option<&Spanned<String>>,
+        clauses: &LoadClauses,
     ) -> Outcome {
-        let world_error =
-            |e: WorldError| Diagnostic::new(path.span, e.to_string()).label("this file");
-        let opened = self.world.open(&path.value).map_err(world_error)?;
-        let lower = path.value.to_lowercase();
-        let delimiter = if lower.ends_with(".tsv") || lower.ends_with(".tab") {
-            b'\t'
-        } else if lower.ends_with(".csv") || lower.ends_with(".txt") {
-            b','
-        } else {
+        let Some(kind) = FileKind::of(&path.value) else {
+            // What is wrong with the file itself (missing, outside the folder, a device) is
+            // said first, as for a file of a known kind.
+            self.world
+                .open(&path.value)
+                .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
             return Err(Diagnostic::new(
                 path.span,
-                format!("covey reads .csv and .tsv files, not \"{}\"", path.value),
+                format!(
+                    "covey reads delimited text (.csv, .txt, .tsv, .tab), workbooks (.xlsx, .xlsm, .xls, .ods) and SQLite files (.sqlite, .sqlite3, .db), not \"{}\"",
+                    path.value
+                ),
             )
             .label("unknown kind of file")
-            .help("save the data as comma-separated (.csv) or tab-separated (.tsv) text"));
+            .help("save the data in one of these kinds of file, or rename it if it is one"));
         };
+        kind.check_clauses(&path.value, clauses)?;
         let set_name = match name {
             Some(n) => n.value.clone(),
             None => default_name(&path.value),
         };
+        let loaded = match kind {
+            FileKind::Delimited(delimiter) => {
+                self.load_delimited(path, &set_name, delimiter, clauses)?
+            }
+            FileKind::Workbook(kind) => self.load_workbook(path, &set_name, kind, clauses)?,
+            FileKind::Sqlite => self.load_sqlite(path, &set_name, clauses)?,
+        };
+        Ok(self.install(loaded))
+    }
+
+    /// `load database NAME query "SQL"`: the rows of a PostgreSQL query, over the connection
+    /// the command line gives for NAME.
+    pub(super) fn load_database(
+        &mut self,
+        database: &Spanned<String>,
+        query: &Spanned<String>,
+        name: Option<&Spanned<String>>,
+    ) -> Outcome {
+        let Some(url) = self.databases.url(&database.value) else {
+            return Err(Diagnostic::new(
+                database.span,
+                format!(
+                    "no address was given for database `{}`",
+                    database.value
+                ),
+            )
+            .label("which database?")
+            .help(format!(
+                "give its address on the command line: covey render --database {}=postgresql://USER@HOST/DATABASE ... (the address is never written into the document or its rendering)",
+                database.value
+            )));
+        };
+        let set_name = name.map_or_else(|| database.value.clone(), |n| n.value.clone());
+        let read =
+            data::database::read_database(url, &query.value, &set_name, &self.missing_markers)
+                .map_err(|e| {
+                    let span = match e {
+                        data::database::DbError::BadAddress(_)
+                        | data::database::DbError::Connect(_) => database.span,
+                        _ => query.span,
+                    };
+                    Diagnostic::new(span, format!("database `{}`: {e}", database.value))
+                        .label("while reading this database")
+                })?;
+        let rows_sha = read.set.rows_sha256();
+        let record = InputRecord {
+            path: database.value.clone(),
+            sha256: rows_sha.clone(),
+            rows: read.set.n_rows(),
+            columns: read.set.columns.len(),
+            part: Some(format!("query \"{}\"", query.value)),
+            rows_sha256: None,
+            database: true,
+        };
+        let sentence = format!(
+            "Loaded the rows of a query on database {} as data set {}: {} rows, {} columns (rows SHA-256 `{}`).",
+            code(&database.value),
+            code(&set_name),
+            read.set.n_rows(),
+            read.set.columns.len(),
+            rows_sha
+        );
+        let notes = mixed_notes(&read.set, &read.mixed);
+        Ok(self.install(Loaded {
+            set: read.set,
+            record,
+            sentence,
+            notes,
+        }))
+    }
+
+    /// Keeps a loaded data set (in place of one of the same name) as the current one, and
+    /// records its input; the load's output.
+    fn install(&mut self, loaded: Loaded) -> Vec<Item> {
+        let Loaded {
+            set,
+            record,
+            sentence,
+            notes,
+        } = loaded;
+        if !self.inputs.contains(&record) {
+            self.inputs.push(record);
+        }
+        let mut items = vec![Item::Text(sentence)];
+        items.extend(notes);
+        items.push(Item::Table(columns_table(&set, "Columns read")));
+        if let Some(i) = self.data_sets.iter().position(|d| d.name == set.name) {
+            self.data_sets[i] = set;
+            self.current = Some(i);
+        } else {
+            self.data_sets.push(set);
+            self.current = Some(self.data_sets.len() - 1);
+        }
+        items
+    }
+
+    fn load_delimited(
+        &mut self,
+        path: &Spanned<String>,
+        set_name: &str,
+        default: u8,
+        clauses: &LoadClauses,
+    ) -> Result<Loaded, Diagnostic> {
+        let world_error =
+            |e: WorldError| Diagnostic::new(path.span, e.to_string()).label("this file");
+        let given = clauses.separator.as_ref().map(separator_byte).transpose()?;
+        let decimal_comma = match &clauses.decimal {
+            None => false,
+            Some(d) if d.value == "," => true,
+            Some(d) if d.value == "." => false,
+            Some(d) => {
+                return Err(Diagnostic::new(
+                    d.span,
+                    format!(
+                        "`decimal \"{}\"`: decimals are marked by a point or a comma",
+                        d.value
+                    ),
+                )
+                .label("not a decimal mark")
+                .help("write decimal \",\" for 3,5 or decimal \".\" for 3.5"))
+            }
+        };
+        let opened = self.world.open(&path.value).map_err(world_error)?;
+        let Opened { mut reader, len } = opened;
+        // Without a separator, a .csv file whose header is one field holding semicolons,
+        // tabs or vertical bars is read with that separator, and the output says so.
+        let mut detected = None;
+        let mut head = Vec::new();
+        if given.is_none() && default == b',' {
+            read_head(&mut *reader, &mut head)
+                .map_err(|e| world_error(io_error(&path.value, &e)))?;
+            detected = data::detect_separator(&head);
+        }
+        let delimiter = given.or(detected).unwrap_or(default);
+        if decimal_comma && delimiter == b',' {
+            let span = clauses.decimal.as_ref().map_or(path.span, |d| d.span);
+            return Err(Diagnostic::new(
+                span,
+                "a comma cannot both separate the fields and mark the decimals",
+            )
+            .label("decimal comma")
+            .help("give the separator the file uses: separator \";\" (or separator tab, separator \"|\")"));
+        }
         let opts = LoadOptions {
-            name: set_name.clone(),
+            name: set_name.to_string(),
             delimiter,
             missing: self.missing_markers.clone(),
+            decimal_comma,
         };
+        let mut reader: Box<dyn std::io::Read + Send> =
+            Box::new(std::io::Cursor::new(head).chain(reader));
         // A large file is read as a stream; a small one, or one the stream reader hands
         // back, whole.
-        let Opened { mut reader, len } = opened;
         let streamed = data::stream_delimited(&mut *reader, len, &opts)
             .map_err(|e| world_error(io_error(&path.value, &e)))?;
         drop(reader);
@@ -92,27 +244,178 @@ impl Session<'_> {
             sha256: sha.clone(),
             rows: set.n_rows(),
             columns: set.columns.len(),
+            ..InputRecord::default()
         };
-        if !self.inputs.contains(&record) {
-            self.inputs.push(record);
-        }
-        let mut items = vec![Item::Text(format!(
+        let mut sentence = format!(
             "Loaded {} as data set {}: {} rows, {} columns (SHA-256 `{}`).",
             code(&path.value),
-            code(&set_name),
+            code(set_name),
             set.n_rows(),
             set.columns.len(),
             sha
-        ))];
-        items.push(Item::Table(columns_table(&set, "Columns read")));
-        if let Some(i) = self.data_sets.iter().position(|d| d.name == set_name) {
-            self.data_sets[i] = set;
-            self.current = Some(i);
-        } else {
-            self.data_sets.push(set);
-            self.current = Some(self.data_sets.len() - 1);
+        );
+        if let Some(d) = detected {
+            sentence.push_str(&format!(
+                " Its header holds no comma but {}, so its fields are read as separated by {} (write `separator {}` to say so, or `separator \",\"` for one column).",
+                separator_words(d),
+                separator_words(d),
+                separator_clause(d)
+            ));
         }
-        Ok(items)
+        if decimal_comma {
+            sentence.push_str(" Decimals are read with a comma (3,5 is 3.5).");
+        }
+        Ok(Loaded {
+            set,
+            record,
+            sentence,
+            notes: Vec::new(),
+        })
+    }
+
+    fn load_workbook(
+        &mut self,
+        path: &Spanned<String>,
+        set_name: &str,
+        kind: WorkbookKind,
+        clauses: &LoadClauses,
+    ) -> Result<Loaded, Diagnostic> {
+        let bytes = self
+            .world
+            .read(&path.value)
+            .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
+        let sha = data::sha256_hex(&bytes);
+        let sheet = clauses.sheet.as_ref();
+        let read = data::sheet::read_workbook(
+            &bytes,
+            kind,
+            sheet.map(|s| s.value.as_str()),
+            set_name,
+            &self.missing_markers,
+        )
+        .map_err(|e| {
+            let span = match (&e, sheet) {
+                (data::sheet::SheetError::UnknownSheet { .. }, Some(s)) => s.span,
+                _ => path.span,
+            };
+            Diagnostic::new(span, format!("in \"{}\": {e}", path.value))
+                .label("while reading this workbook")
+        })?;
+        let part = format!("sheet \"{}\"", read.sheet);
+        let record = InputRecord {
+            path: path.value.clone(),
+            sha256: sha.clone(),
+            rows: read.set.n_rows(),
+            columns: read.set.columns.len(),
+            part: Some(part.clone()),
+            ..InputRecord::default()
+        };
+        let sentence = format!(
+            "Loaded {}, sheet {}, as data set {}: {} rows, {} columns (SHA-256 `{}`); rows are named by the sheet's own row numbers.",
+            code(&path.value),
+            code(&read.sheet),
+            code(set_name),
+            read.set.n_rows(),
+            read.set.columns.len(),
+            sha
+        );
+        let mut notes = mixed_notes(&read.set, &read.mixed);
+        if !read.dates.is_empty() {
+            let list: Vec<String> = read.dates.iter().map(|c| code(c)).collect();
+            notes.push(Item::Text(format!(
+                "Dates and times in {} are read as ISO 8601 text (such as 2024-05-17, or 2024-05-17T08:30:00), one level per distinct value.",
+                list.join(", ")
+            )));
+        }
+        Ok(Loaded {
+            set: read.set,
+            record,
+            sentence,
+            notes,
+        })
+    }
+
+    fn load_sqlite(
+        &mut self,
+        path: &Spanned<String>,
+        set_name: &str,
+        clauses: &LoadClauses,
+    ) -> Result<Loaded, Diagnostic> {
+        let (source, at) = match (&clauses.table, &clauses.query) {
+            (Some(table), None) => (data::sqlite::SqlSource::Table(&table.value), table.span),
+            (None, Some(q)) => (data::sqlite::SqlSource::Query(&q.value), q.span),
+            _ => {
+                return Err(Diagnostic::new(
+                    path.span,
+                    "a SQLite file is read by a table or by a query, one of the two",
+                )
+                .label("which rows?")
+                .help(format!(
+                    "write load \"{}\" table NAME, or load \"{}\" query \"SELECT ...\"",
+                    path.value, path.value
+                )))
+            }
+        };
+        let local = self
+            .world
+            .local(&path.value)
+            .map_err(|e| Diagnostic::new(path.span, e.to_string()).label("this file"))?;
+        let fingerprint = || -> Result<String, String> {
+            // The file SQLite opened by its path must be the one confined and opened here.
+            if !crate::world::same_file(&local.file, &local.path) {
+                return Err("the file was replaced while it was being read; load it again".into());
+            }
+            let mut file = &local.file;
+            data::sha256_reader(&mut file).map_err(|e| e.to_string())
+        };
+        let read = data::sqlite::read_sqlite(
+            &local.path,
+            source,
+            set_name,
+            &self.missing_markers,
+            fingerprint,
+        )
+        .map_err(|e| {
+            let span = match e {
+                data::sqlite::SqlError::Open(_) | data::sqlite::SqlError::Fingerprint(_) => {
+                    path.span
+                }
+                _ => at,
+            };
+            Diagnostic::new(span, format!("in \"{}\": {e}", path.value))
+                .label("while reading this database file")
+        })?;
+        let rows_sha = read.set.rows_sha256();
+        let part = match source {
+            data::sqlite::SqlSource::Table(t) => format!("table {}", quote_name(t)),
+            data::sqlite::SqlSource::Query(q) => format!("query \"{q}\""),
+        };
+        let record = InputRecord {
+            path: path.value.clone(),
+            sha256: read.file_sha256.clone(),
+            rows: read.set.n_rows(),
+            columns: read.set.columns.len(),
+            part: Some(part.clone()),
+            rows_sha256: Some(rows_sha.clone()),
+            database: false,
+        };
+        let sentence = format!(
+            "Loaded {}, {}, as data set {}: {} rows, {} columns (file SHA-256 `{}`, rows SHA-256 `{}`).",
+            code(&path.value),
+            code(&part),
+            code(set_name),
+            read.set.n_rows(),
+            read.set.columns.len(),
+            read.file_sha256,
+            rows_sha
+        );
+        let notes = mixed_notes(&read.set, &read.mixed);
+        Ok(Loaded {
+            set: read.set,
+            record,
+            sentence,
+            notes,
+        })
     }
 
     pub(super) fn missing(&mut self, markers: &[String]) -> Outcome {
@@ -303,7 +606,7 @@ impl Session<'_> {
                 set.n_rows(),
                 code(&set.name)
             ),
-            std::iter::once(Col::new("row", "line in file", Format::Count))
+            std::iter::once(Col::new("row", set.rows_are.header(), Format::Count))
                 .chain(
                     set.columns
                         .iter()
@@ -319,6 +622,11 @@ impl Session<'_> {
                 )
                 .collect(),
         );
+        if let Some(l) = &set.label {
+            preview
+                .notes
+                .push(format!("Rows are named by {}.", code(l)));
+        }
         for row in 0..set.n_rows().min(PREVIEW_ROWS) {
             let mut cells = vec![Cell::from(set.row_numbers.get(row).unwrap_or(0))];
             for c in &set.columns {
@@ -393,6 +701,176 @@ impl Session<'_> {
     }
 }
 
+/// A data set read by a load, with its record for the provenance and what the load says.
+struct Loaded {
+    set: DataSet,
+    record: InputRecord,
+    sentence: String,
+    /// Said after the first sentence (columns read as text, dates).
+    notes: Vec<Item>,
+}
+
+/// The kinds of data file, by extension.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum FileKind {
+    /// Delimited text, with its default separator.
+    Delimited(u8),
+    Workbook(WorkbookKind),
+    Sqlite,
+}
+
+impl FileKind {
+    fn of(path: &str) -> Option<FileKind> {
+        let lower = path.to_lowercase();
+        let ends = |exts: &[&str]| exts.iter().any(|e| lower.ends_with(e));
+        if ends(&[".tsv", ".tab"]) {
+            Some(FileKind::Delimited(b'\t'))
+        } else if ends(&[".csv", ".txt"]) {
+            Some(FileKind::Delimited(b','))
+        } else if ends(&[".sqlite", ".sqlite3", ".db", ".db3"]) {
+            Some(FileKind::Sqlite)
+        } else {
+            WorkbookKind::of_path(path).map(FileKind::Workbook)
+        }
+    }
+
+    fn name(self) -> &'static str {
+        match self {
+            FileKind::Delimited(_) => "delimited text",
+            FileKind::Workbook(_) => "a workbook",
+            FileKind::Sqlite => "a SQLite file",
+        }
+    }
+
+    /// Refuses a clause that does not go with this kind of file, at the clause.
+    fn check_clauses(self, path: &str, c: &LoadClauses) -> Result<(), Diagnostic> {
+        let wrong = |clause: &Spanned<String>, word: &str, goes_with: &str| {
+            Diagnostic::new(
+                clause.span,
+                format!(
+                    "`{word}` is for {goes_with}, and \"{path}\" is {}",
+                    self.name()
+                ),
+            )
+            .label("not for this kind of file")
+        };
+        let delimited = matches!(self, FileKind::Delimited(_));
+        let workbook = matches!(self, FileKind::Workbook(_));
+        let sqlite = self == FileKind::Sqlite;
+        let checks = [
+            (
+                &c.sheet,
+                "sheet",
+                workbook,
+                "workbooks (.xlsx, .xlsm, .xls, .ods)",
+            ),
+            (&c.table, "table", sqlite, "SQLite files"),
+            (
+                &c.query,
+                "query",
+                sqlite,
+                "SQLite files (and `load database`)",
+            ),
+            (
+                &c.separator,
+                "separator",
+                delimited,
+                "delimited text (.csv, .txt, .tsv, .tab)",
+            ),
+            (
+                &c.decimal,
+                "decimal",
+                delimited,
+                "delimited text (.csv, .txt, .tsv, .tab)",
+            ),
+        ];
+        for (clause, word, fits, goes_with) in checks {
+            if let (Some(cl), false) = (clause, fits) {
+                return Err(wrong(cl, word, goes_with));
+            }
+        }
+        if let (Some(_), Some(q)) = (&c.table, &c.query) {
+            return Err(Diagnostic::new(q.span, "give a table or a query, not both")
+                .label("one of the two"));
+        }
+        Ok(())
+    }
+}
+
+/// Most bytes read to find the end of a delimited file's header line for
+/// [`data::detect_separator`]: as long as the longest line covey reads.
+const HEAD_BYTES: usize = data::MAX_LINE_BYTES;
+
+/// Reads the first bytes of `reader` into `head`, up to and including the first line break
+/// (or [`HEAD_BYTES`], or the end of the file).
+fn read_head(reader: &mut (dyn std::io::Read + Send), head: &mut Vec<u8>) -> std::io::Result<()> {
+    let mut buf = [0u8; 8192];
+    while head.len() < HEAD_BYTES {
+        let n = match reader.read(&mut buf) {
+            Ok(n) => n,
+            Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
+            Err(e) => return Err(e),
+        };
+        let Some(read) = buf.get(..n) else { break };
+        if read.is_empty() {
+            break;
+        }
+        head.extend_from_slice(read);
+        if memchr::memchr2(b'\n', b'\r', read).is_some() {
+            break;
+        }
+    }
+    Ok(())
+}
+
+/// The byte of a `separator` clause: one ASCII character other than the double quote and a
+/// line break (`tab` is the tab).
+fn separator_byte(s: &Spanned<String>) -> Result<u8, Diagnostic> {
+    match s.value.as_bytes() {
+        [b] if b.is_ascii() && *b != b'"' && *b != b'\n' && *b != b'\r' => Ok(*b),
+        _ => Err(Diagnostic::new(
+            s.span,
+            format!("`separator \"{}\"`: a separator is one character", s.value),
+        )
+        .label("not a separator")
+        .help("write separator \";\", separator \"|\", separator \",\" or separator tab")),
+    }
+}
+
+/// A separator in words, for the load's sentence.
+fn separator_words(b: u8) -> &'static str {
+    match b {
+        b';' => "semicolons",
+        b'\t' => "tabs",
+        _ => "vertical bars",
+    }
+}
+
+/// The clause that names a separator.
+fn separator_clause(b: u8) -> &'static str {
+    match b {
+        b';' => "\";\"",
+        b'\t' => "tab",
+        _ => "\"|\"",
+    }
+}
+
+/// What a load says about columns that held both numbers and text.
+fn mixed_notes(set: &DataSet, mixed: &[MixedColumn]) -> Vec<Item> {
+    mixed
+        .iter()
+        .map(|m| {
+            Item::Warning(format!(
+                "Column {} holds numbers and text ({} holds \"{}\"), so it is read as text; if that text marks a missing value, declare it with `missing \"{}\"` before the load.",
+                code(&m.column),
+                crate::report::markdown::escape(&set.place_of(m.row)),
+                crate::report::markdown::escape(&m.text),
+                m.text.replace('\\', "\\\\").replace('"', "\\\"")
+            ))
+        })
+        .collect()
+}
+
 /// The error for `use NAME` of a data set that is not loaded; `known` are those loaded so far.
 pub(crate) fn unknown_data_set(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
     let help = match super::closest(&name.value, known) {
@@ -440,13 +918,8 @@ pub(crate) fn default_name(path: &str) -> String {
 
 /// A column name as it must be written in a statement.
 pub(crate) fn quote_name(name: &str) -> String {
-    let bare = name
-        .chars()
-        .next()
-        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
-        && name
-            .chars()
-            .all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '.');
+    // Bare exactly when the grammar reads it as one name (letters of any script).
+    let bare = crate::lang::parser::is_whole(crate::lang::parser::Rule::ident, name);
     if bare {
         name.to_string()
     } else {
@@ -465,6 +938,12 @@ pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<us
                 format!("data set `{}` has no column `{}`", set.name, column.value),
             )
             .label("unknown column");
+            // An unquoted word that starts a name with spaces: the name, quoted.
+            if let Some(q) = super::derived::quoted_suggestion(set, &column.value) {
+                return d.help(format!(
+                    "a column name with spaces is written in double quotes: did you mean {q}?"
+                ));
+            }
             d = match set.closest_name(&column.value) {
                 Some(c) => d.help(format!("did you mean `{c}`?")),
                 None => {
@@ -517,9 +996,15 @@ pub(crate) fn numeric_values<'a>(
             )
             .label("needs numbers");
             if let Some((row, text)) = t.first_non_number() {
-                let line = set.row_numbers.get(row).unwrap_or(row + 2);
+                let place = match set.rows_are {
+                    data::RowOrigin::FileLines => format!(
+                        "line {} of the file",
+                        set.row_numbers.get(row).unwrap_or(row + 2)
+                    ),
+                    _ => set.place_of(row),
+                };
                 d = d.help(format!(
-                    "line {line} of the file holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
+                    "{place} holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
                 ));
             }
             Err(d)

@@ -6,6 +6,7 @@
 
 mod check_statements;
 pub(crate) mod data_statements;
+pub(crate) mod derived;
 pub(crate) mod model_statements;
 mod plan_statements;
 pub(crate) mod plot_statements;
@@ -26,6 +27,22 @@ pub struct ModelEntry {
     pub name: String,
     pub data_set: String,
     pub fit: Fit,
+    /// The scale of a transformed response ("log" for `log(y)`), which its results are on.
+    pub scale: Option<&'static str>,
+    /// What the row numbers of its data set count (file lines, rows of a sheet, ...).
+    pub rows_are: crate::data::RowOrigin,
+    /// The label column of its data set (`label rows by`) as it was when fitted: the label
+    /// of fitted row k is its value at the data-set row the fit used.
+    pub labels: Option<crate::data::Column>,
+}
+
+impl ModelEntry {
+    /// The label of the model's fitted row `k`, if its rows are labelled.
+    pub fn label(&self, k: usize) -> Option<String> {
+        let i = self.fit.used_rows().get(k)?;
+        let col = self.labels.as_ref()?;
+        (!col.is_missing(i)).then(|| col.display_value(i))
+    }
 }
 
 /// The state shared by every block of one document.
@@ -44,6 +61,8 @@ pub struct Session<'w> {
     units: Vec<(String, String)>,
     /// Plans made with `plan`, for `plot power`.
     plans: Vec<plan_statements::PlanEntry>,
+    /// Database addresses from the command line, for `load database`.
+    databases: crate::data::database::Databases,
     /// Columns of the data sets as models hold them, one shared copy each, made on first use
     /// and forgotten by every statement that changes a data set (factor codes need none: a
     /// factor's codes are shared as they are).
@@ -86,8 +105,14 @@ impl<'w> Session<'w> {
             inputs: Vec::new(),
             units: Vec::new(),
             plans: Vec::new(),
+            databases: Default::default(),
             shared: RefCell::default(),
         }
+    }
+
+    /// Gives the session the database addresses of the command line (`--database`).
+    pub fn set_databases(&mut self, databases: crate::data::database::Databases) {
+        self.databases = databases;
     }
 
     /// Every data file read so far, in order of first reading.
@@ -105,14 +130,64 @@ impl<'w> Session<'w> {
         if matches!(
             stmt.kind,
             StatementKind::Load { .. }
+                | StatementKind::LoadDatabase { .. }
+                | StatementKind::Compute { .. }
+                | StatementKind::LabelRows { .. }
                 | StatementKind::Missing { .. }
                 | StatementKind::Factor { .. }
                 | StatementKind::Keep { .. }
         ) {
             *self.shared.borrow_mut() = SharedColumns::default();
         }
+        let items = self.run_statement(stmt)?;
+        Ok(self.on_scale(stmt, items))
+    }
+
+    /// The results of a model with a transformed response say the scale they are on, in
+    /// every table's caption and every figure's caption.
+    fn on_scale(&self, stmt: &Statement, mut items: Vec<Item>) -> Vec<Item> {
+        let model = match &stmt.kind {
+            StatementKind::Table(TableRequest::Summary { .. }) => return items,
+            StatementKind::Table(t) => t.model_name(),
+            StatementKind::Plot { model, .. } | StatementKind::Check { model, .. } => &model.value,
+            _ => return items,
+        };
+        let Some(scale) = self
+            .models
+            .iter()
+            .find(|m| m.name == model)
+            .and_then(|m| m.scale)
+        else {
+            return items;
+        };
+        for it in &mut items {
+            match it {
+                Item::Table(t) => t.caption.push_str(&format!(", on the {scale} scale")),
+                Item::Figure(f) => {
+                    f.caption.push_str(&format!(", on the {scale} scale"));
+                    f.alt
+                        .push_str(&format!(" The response is on the {scale} scale."));
+                }
+                _ => {}
+            }
+        }
+        items
+    }
+
+    fn run_statement(&mut self, stmt: &Statement) -> Outcome {
         match &stmt.kind {
-            StatementKind::Load { path, name } => self.load(path, name.as_ref()),
+            StatementKind::Load {
+                path,
+                name,
+                clauses,
+            } => self.load(path, name.as_ref(), clauses),
+            StatementKind::LoadDatabase {
+                database,
+                query,
+                name,
+            } => self.load_database(database, query, name.as_ref()),
+            StatementKind::Compute { column, expr } => self.compute(column, expr, stmt.span),
+            StatementKind::LabelRows { column } => self.label_rows(column),
             StatementKind::Missing { markers } => self.missing(markers),
             StatementKind::Use { name } => self.use_data_set(name),
             StatementKind::Factor { column, levels } => self.factor(column, levels.as_deref()),

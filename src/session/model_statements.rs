@@ -24,12 +24,28 @@ impl Session<'_> {
         let si = self.current.unwrap_or(0);
         let ridx = column_index(set, &decl.response)?;
         let plain = numeric_values(set, ridx, &decl.response)?;
-        // Long cells (e.g. 1000000000000.4) come with exact residuals about an offset.
-        let (response, response_offset) =
-            match set.columns.get(ridx).and_then(|c| c.exact.as_deref()) {
-                Some(e) => (self.shared_residuals(si, ridx, &e.residuals), e.offset),
-                None => (Arc::clone(plain), 0.0),
-            };
+        // A transformed response (`log(y)`) is fitted on its scale; long cells (e.g.
+        // 1000000000000.4) come with exact residuals about an offset.
+        let transformed =
+            super::derived::transformed_name(decl.response_transform, &decl.response.value);
+        let (response, response_offset) = match (
+            &transformed,
+            set.columns.get(ridx).and_then(|c| c.exact.as_deref()),
+        ) {
+            (Some(_), _) => (
+                Arc::new(super::derived::transformed_response(
+                    set,
+                    decl.response_transform,
+                    &decl.response,
+                )?),
+                0.0,
+            ),
+            (None, Some(e)) => (self.shared_residuals(si, ridx, &e.residuals), e.offset),
+            (None, None) => (Arc::clone(plain), 0.0),
+        };
+        let response_name = transformed
+            .as_ref()
+            .map_or_else(|| decl.response.value.clone(), |(n, _)| n.clone());
         let mut vars: Vec<Var> = Vec::new();
         let mut var_names: Vec<String> = Vec::new();
         let mut terms = Vec::new();
@@ -104,7 +120,7 @@ impl Session<'_> {
         };
         let spec = ModelSpec {
             response: Var::Numeric {
-                name: decl.response.value.clone(),
+                name: response_name.clone(),
                 values: response,
             },
             vars,
@@ -147,7 +163,7 @@ impl Session<'_> {
         let mut items = vec![Item::Text(format!(
             "Model {}: {} on {}{}{weighting}, fitted to {} rows{}.",
             code(&decl.name.value),
-            code(&decl.response.value),
+            code(&response_name),
             fit.term_names()
                 .iter()
                 .map(|t| code(t))
@@ -174,9 +190,18 @@ impl Session<'_> {
             items.push(Item::Warning(sentence(&w.to_string())));
         }
         let data_set = set.name.clone();
+        if let Some((_, scale)) = &transformed {
+            items.push(Item::Text(format!(
+                "Its response is {}: its estimates, means, differences, residuals and figures are on the {scale} scale.",
+                code(&response_name)
+            )));
+        }
         let entry = ModelEntry {
             name: decl.name.value.clone(),
             data_set,
+            scale: transformed.map(|(_, s)| s),
+            rows_are: set.rows_are.clone(),
+            labels: set.label.as_deref().and_then(|l| set.column(l)).cloned(),
             fit,
         };
         match self.models.iter().position(|m| m.name == entry.name) {

@@ -9,8 +9,13 @@ It needs only Python's standard library.
 """
 
 import csv
+import datetime
+import math
 import os
 import random
+import sqlite3
+import zipfile
+from xml.sax.saxutils import escape
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
@@ -157,7 +162,201 @@ def blight():
     )
 
 
+def column_letters(c):
+    """0 -> A, 25 -> Z, 26 -> AA."""
+    out = ""
+    c += 1
+    while c:
+        c, r = divmod(c - 1, 26)
+        out = chr(65 + r) + out
+    return out
+
+
+class ErrorValue(str):
+    """An error value of a spreadsheet cell, such as #N/A."""
+
+
+def write_xlsx(name, sheets):
+    """A minimal Office Open XML workbook, written with the standard library so that the
+    file is the same byte for byte at every run (fixed times in the archive). sheets: a
+    list of (sheet name, rows); a cell is an ErrorValue (an error cell), a str (shared
+    string), an int or float (number),
+    a datetime.date (a number with a date format, as spreadsheet programs store dates) or
+    None (no cell)."""
+    strings, index = [], {}
+    epoch = datetime.date(1899, 12, 30)
+
+    def cell(ref, v):
+        if v is None:
+            return ""
+        if isinstance(v, ErrorValue):
+            return f'<c r="{ref}" t="e"><v>{escape(v)}</v></c>'
+        if isinstance(v, str):
+            if v not in index:
+                index[v] = len(strings)
+                strings.append(v)
+            return f'<c r="{ref}" t="s"><v>{index[v]}</v></c>'
+        if isinstance(v, datetime.date):
+            return f'<c r="{ref}" s="1"><v>{(v - epoch).days}</v></c>'
+        return f'<c r="{ref}"><v>{v!r}</v></c>'
+
+    parts = {}
+    for k, (sheet, rows) in enumerate(sheets, start=1):
+        body = []
+        for r, row in enumerate(rows, start=1):
+            cells = "".join(cell(f"{column_letters(c)}{r}", v) for c, v in enumerate(row))
+            body.append(f'<row r="{r}">{cells}</row>')
+        parts[f"xl/worksheets/sheet{k}.xml"] = (
+            '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+            '<worksheet xmlns="http://schemas.openxmlformats.org/spreadsheetml/2006/main">'
+            f'<sheetData>{"".join(body)}</sheetData></worksheet>'
+        )
+    ns = "http://schemas.openxmlformats.org"
+    rel = f"{ns}/officeDocument/2006/relationships"
+    parts["xl/sharedStrings.xml"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<sst xmlns="{ns}/spreadsheetml/2006/main" count="{len(strings)}" uniqueCount="{len(strings)}">'
+        + "".join(f"<si><t>{escape(t)}</t></si>" for t in strings)
+        + "</sst>"
+    )
+    parts["xl/styles.xml"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<styleSheet xmlns="{ns}/spreadsheetml/2006/main">'
+        '<fonts count="1"><font><sz val="11"/><name val="Calibri"/></font></fonts>'
+        '<fills count="1"><fill><patternFill patternType="none"/></fill></fills>'
+        '<borders count="1"><border/></borders>'
+        '<cellStyleXfs count="1"><xf numFmtId="0" fontId="0" fillId="0" borderId="0"/></cellStyleXfs>'
+        '<cellXfs count="2"><xf numFmtId="0" fontId="0" fillId="0" borderId="0" xfId="0"/>'
+        '<xf numFmtId="14" fontId="0" fillId="0" borderId="0" xfId="0" applyNumberFormat="1"/></cellXfs>'
+        "</styleSheet>"
+    )
+    listed = "".join(
+        f'<sheet name="{escape(n)}" sheetId="{k}" r:id="rId{k}"/>'
+        for k, (n, _) in enumerate(sheets, start=1)
+    )
+    parts["xl/workbook.xml"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<workbook xmlns="{ns}/spreadsheetml/2006/main" xmlns:r="{rel}">'
+        f"<sheets>{listed}</sheets></workbook>"
+    )
+    n = len(sheets)
+    links = "".join(
+        f'<Relationship Id="rId{k}" Type="{rel}/worksheet" Target="worksheets/sheet{k}.xml"/>'
+        for k in range(1, n + 1)
+    )
+    links += f'<Relationship Id="rId{n + 1}" Type="{rel}/sharedStrings" Target="sharedStrings.xml"/>'
+    links += f'<Relationship Id="rId{n + 2}" Type="{rel}/styles" Target="styles.xml"/>'
+    parts["xl/_rels/workbook.xml.rels"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<Relationships xmlns="{ns}/package/2006/relationships">{links}</Relationships>'
+    )
+    parts["_rels/.rels"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<Relationships xmlns="{ns}/package/2006/relationships">'
+        f'<Relationship Id="rId1" Type="{rel}/officeDocument" Target="xl/workbook.xml"/>'
+        "</Relationships>"
+    )
+    main = "application/vnd.openxmlformats-officedocument.spreadsheetml"
+    overrides = "".join(
+        f'<Override PartName="/xl/worksheets/sheet{k}.xml" ContentType="{main}.worksheet+xml"/>'
+        for k in range(1, n + 1)
+    )
+    parts["[Content_Types].xml"] = (
+        '<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\n'
+        f'<Types xmlns="{ns}/package/2006/content-types">'
+        '<Default Extension="rels" ContentType="application/vnd.openxmlformats-package.relationships+xml"/>'
+        '<Default Extension="xml" ContentType="application/xml"/>'
+        f'<Override PartName="/xl/workbook.xml" ContentType="{main}.sheet.main+xml"/>'
+        f"{overrides}"
+        f'<Override PartName="/xl/sharedStrings.xml" ContentType="{main}.sharedStrings+xml"/>'
+        f'<Override PartName="/xl/styles.xml" ContentType="{main}.styles+xml"/>'
+        "</Types>"
+    )
+    order = ["[Content_Types].xml", "_rels/.rels", "xl/workbook.xml",
+             "xl/_rels/workbook.xml.rels", "xl/styles.xml", "xl/sharedStrings.xml"]
+    order += sorted(k for k in parts if k.startswith("xl/worksheets/"))
+    with zipfile.ZipFile(os.path.join(HERE, name), "w") as z:
+        for part in order:
+            info = zipfile.ZipInfo(part, date_time=(2026, 1, 1, 0, 0, 0))
+            info.compress_type = zipfile.ZIP_DEFLATED
+            z.writestr(info, parts[part].encode("utf-8"))
+
+
+def greenhouse():
+    """A workbook as a greenhouse team keeps it: three feeding schedules for tomatoes, 12
+    plots each; yield per plant adjusted for the plant's height at transplanting. The
+    schedules multiply the yield (so their effects are even on the log scale), and taller
+    transplants yield more. Sheet "Plan" (notes) comes first; the data are on sheet
+    "Harvest", with the harvest date, and one plot whose weighing failed holds the error
+    value #N/A, as a spreadsheet shows a failed lookup."""
+    rng = random.Random(5)
+    effect = {"standard": 0.0, "slow-release": 0.07, "liquid": 0.15}
+    rows = []
+    plot = 0
+    for schedule, shift in effect.items():
+        for _ in range(12):
+            plot += 1
+            height = round(rng.gauss(21.0, 2.6), 1)
+            log_yield = math.log(4.2) + 0.035 * (height - 21.0) + shift + rng.gauss(0, 0.07)
+            day = datetime.date(2026, 8, 17) + datetime.timedelta(days=rng.randrange(3))
+            rows.append([f"T{plot:02d}", schedule, height, round(math.exp(log_yield), 2), day])
+    rows[20][3] = ErrorValue("#N/A")
+    rng.shuffle(rows)
+    plan = [
+        ["Tomato feeding trial (invented data for covey's worked examples)"],
+        ["Three feeding schedules, 12 plots each, plots assigned at random"],
+        ["height_cm: plant height at transplanting; yield_kg: fruit per plant"],
+    ]
+    write_xlsx(
+        "greenhouse.xlsx",
+        [
+            ("Plan", plan),
+            ("Harvest", [["plot", "schedule", "height_cm", "yield_kg", "harvested"]] + rows),
+        ],
+    )
+
+
+def assays():
+    """A laboratory's SQLite file: three extraction methods for lead in soil, 15 soil
+    samples each, assigned at random; the recovery of a spiked amount (%) falls with the
+    sample's organic matter (%), the covariate. Table samples holds the samples, table runs
+    the extractions; two runs were rejected by the analyst and one lost its reading
+    (NULL)."""
+    rng = random.Random(4471)
+    path = os.path.join(HERE, "assays.sqlite")
+    if os.path.exists(path):
+        os.remove(path)
+    con = sqlite3.connect(path)
+    con.executescript(
+        """
+        CREATE TABLE samples (sample_id TEXT PRIMARY KEY, site TEXT, organic_pct REAL);
+        CREATE TABLE runs (run_id INTEGER PRIMARY KEY, sample_id TEXT REFERENCES samples,
+                           method TEXT, recovery_pct REAL, rejected INTEGER);
+        """
+    )
+    methods = ["acid digest"] * 15 + ["microwave"] * 15 + ["ultrasonic"] * 15
+    rng.shuffle(methods)
+    effect = {"acid digest": 0.0, "microwave": 3.5, "ultrasonic": -2.0}
+    for s, method in enumerate(methods, start=1):
+        sample = f"S{s:02d}"
+        organic = round(rng.uniform(1.0, 9.0), 1)
+        site = rng.choice(["north field", "south field", "orchard"])
+        con.execute("INSERT INTO samples VALUES (?, ?, ?)", (sample, site, organic))
+        recovery = 96.0 - 1.6 * (organic - 5.0) + effect[method] + rng.gauss(0, 1.4)
+        con.execute(
+            "INSERT INTO runs VALUES (?, ?, ?, ?, 0)",
+            (100 + s, sample, method, round(recovery, 1)),
+        )
+    con.execute("UPDATE runs SET rejected = 1 WHERE run_id IN (108, 131)")
+    con.execute("UPDATE runs SET recovery_pct = NULL WHERE run_id = 119")
+    con.commit()
+    con.execute("VACUUM")
+    con.close()
+
+
 if __name__ == "__main__":
+    greenhouse()
+    assays()
     blight()
     beet_pilot()
     batches()

@@ -8,6 +8,7 @@ fuzz_target!(|bytes: &[u8]| {
         name: "fuzz".into(),
         delimiter: b',',
         missing: vec!["NA".into()],
+        decimal_comma: false,
     };
     let _ = covey::data::read_delimited(bytes, &opts);
 });
