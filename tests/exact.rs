@@ -126,9 +126,9 @@ fn num(cell: &Value) -> Option<f64> {
 }
 
 /// The significant digits the coefficients table says each named coefficient keeps.
-fn promised_digits(t: &Value) -> BTreeMap<String, f64> {
+fn promised_digits(table: &Value) -> BTreeMap<String, f64> {
     let mut out = BTreeMap::new();
-    for n in t["notes"].as_array().into_iter().flatten() {
+    for n in table["notes"].as_array().into_iter().flatten() {
         let Some(text) = n.as_str() else { continue };
         let Some(at) = text.find("to only about ") else {
             continue;
