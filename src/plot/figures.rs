@@ -775,20 +775,7 @@ pub fn means(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
             upper: m.upper,
         })
         .collect();
-    let covs: Vec<String> = fit.covariate_means().into_iter().map(|(n, _)| n).collect();
-    let adjusted = if covs.is_empty() {
-        String::new()
-    } else {
-        format!(
-            ", with {} at {}",
-            covs.join(", "),
-            if covs.len() == 1 {
-                "its mean"
-            } else {
-                "their means"
-            }
-        )
-    };
+    let adjusted = at_means(fit);
     let others = if fit.has_other_factors(&fname) {
         ", other factors averaged with equal weights"
     } else {
@@ -887,20 +874,7 @@ pub fn interaction(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
     if intervals.is_empty() {
         return Err(PlotError::NothingToDraw);
     }
-    let covs: Vec<String> = fit.covariate_means().into_iter().map(|(n, _)| n).collect();
-    let adjusted = if covs.is_empty() {
-        String::new()
-    } else {
-        format!(
-            ", with {} at {}",
-            covs.join(", "),
-            if covs.len() == 1 {
-                "its mean"
-            } else {
-                "their means"
-            }
-        )
-    };
+    let adjusted = at_means(fit);
     let gaps = match missing {
         0 => String::new(),
         1 => " One cell's mean is not estimable from this design and is left out.".to_string(),
@@ -1106,6 +1080,17 @@ pub fn groups(fit: &Fit, req: &Request) -> Result<Drawn, PlotError> {
         alt,
         caption,
     })
+}
+
+/// The caption's words for where adjusted means hold the covariates (", with x at its
+/// mean"), or nothing for a model without covariates.
+fn at_means(fit: &Fit) -> String {
+    let covs: Vec<String> = fit.covariate_means().into_iter().map(|(n, _)| n).collect();
+    match covs.len() {
+        0 => String::new(),
+        1 => format!(", with {} at its mean", covs.join(", ")),
+        _ => format!(", with {} at their means", covs.join(", ")),
+    }
 }
 
 #[cfg(test)]

@@ -444,14 +444,10 @@ impl Session<'_> {
                         pct(level),
                         robust_words(*robust)
                     ),
-                    vec![
-                        Col::new("level", "level", Format::Text),
-                        Col::new("mean", "adjusted mean", Format::Digits(4)),
-                        Col::new("se", "SE", Format::Digits(3)),
-                        Col::new("df", "df", Format::Count),
-                        Col::new("lower", "lower", Format::Digits(4)),
-                        Col::new("upper", "upper", Format::Digits(4)),
-                    ],
+                    [Col::new("level", "level", Format::Text)]
+                        .into_iter()
+                        .chain(adjusted_mean_columns())
+                        .collect(),
                 );
                 let mut not_estimable: Vec<String> = Vec::new();
                 for r in rows {
@@ -1008,16 +1004,14 @@ fn cell_means_table(
             pct(level),
             robust_words(robust)
         ),
-        vec![
+        [
             Col::new("level", &factor.value, Format::Text),
             Col::new("by", &by.value, Format::Text),
             Col::new("rows", "rows", Format::Count),
-            Col::new("mean", "adjusted mean", Format::Digits(4)),
-            Col::new("se", "SE", Format::Digits(3)),
-            Col::new("df", "df", Format::Count),
-            Col::new("lower", "lower", Format::Digits(4)),
-            Col::new("upper", "upper", Format::Digits(4)),
-        ],
+        ]
+        .into_iter()
+        .chain(adjusted_mean_columns())
+        .collect(),
     );
     let mut empty: Vec<String> = Vec::new();
     let mut not_estimable: Vec<String> = Vec::new();
@@ -1123,6 +1117,17 @@ pub(crate) fn confidence(level: Option<&Spanned<f64>>) -> Result<f64, Diagnostic
                 .help("write it as a proportion, e.g. `level 0.99`"),
         ),
     }
+}
+
+/// The columns of an adjusted mean with its limits, after the columns that name it.
+fn adjusted_mean_columns() -> [Col; 5] {
+    [
+        Col::new("mean", "adjusted mean", Format::Digits(4)),
+        Col::new("se", "SE", Format::Digits(3)),
+        Col::new("df", "df", Format::Count),
+        Col::new("lower", "lower", Format::Digits(4)),
+        Col::new("upper", "upper", Format::Digits(4)),
+    ]
 }
 
 fn pct(level: f64) -> String {
