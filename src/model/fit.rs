@@ -715,15 +715,13 @@ pub(crate) fn weights_of(spec: &ModelSpec) -> Option<&[f64]> {
     }
 }
 
-/// The sum over the count, corrected once by the mean of the deviations from it (which
-/// recovers the rounding of the first sum); 0 for no values.
+/// The mean of a covariate over the fitted rows, by covey's one mean (the same number
+/// `table summary` and `compute`'s `mean(X)` give on those rows); 0 for no values.
 fn mean_of(x: &[f64]) -> f64 {
     if x.is_empty() {
         return 0.0;
     }
-    let k = x.len() as f64;
-    let first = qr::sum_of(x, |v| v) / k;
-    first + qr::sum_of(x, |v| v - first) / k
+    crate::stats::describe::mean(x)
 }
 
 /// Count, means and centred sums of squares of a set of columns.
@@ -1253,6 +1251,26 @@ impl Fit {
         self.cov_means
             .iter()
             .map(|&(v, m)| (design::var_name(&self.spec, v), m))
+            .collect()
+    }
+
+    /// The smallest and largest value of each numeric covariate over the fitted rows, in the
+    /// order of [`Fit::covariate_means`]: the resolution its mean is shown at.
+    pub fn covariate_ranges(&self) -> Vec<(f64, f64)> {
+        self.cov_means
+            .iter()
+            .map(|&(v, _)| match self.spec.vars.get(v) {
+                Some(Var::Numeric { values, .. }) => {
+                    let at = |i: usize| values.get(i).copied().unwrap_or(f64::NAN);
+                    let fold = |(lo, hi): (f64, f64), x: f64| (lo.min(x), hi.max(x));
+                    let start = (f64::INFINITY, f64::NEG_INFINITY);
+                    match &self.lay.used {
+                        UsedRows::All(n) => (0..*n).map(at).fold(start, fold),
+                        UsedRows::Listed(rows) => rows.iter().map(|&i| at(i)).fold(start, fold),
+                    }
+                }
+                _ => (f64::NAN, f64::NAN),
+            })
             .collect()
     }
 

@@ -417,9 +417,20 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
                 .collect()
         };
         let nums = numbers(j);
+        // A column in the data's units shows rounding residue as zero beside its class.
+        if let Format::Units(sig) = c.format {
+            let mut class = Vec::new();
+            for (k, d) in t.columns.iter().enumerate() {
+                if d.format == Format::Units(sig) {
+                    class.extend(numbers(k));
+                }
+            }
+            let f = super::number::units_column(&nums, &class, sig);
+            return with_text_cells(t, j, f);
+        }
         // The two limits of an interval share one number of decimals: the column and its
         // partner are rounded as one.
-        let mut f = match limit_partner(t, j) {
+        let f = match limit_partner(t, j) {
             Some(k) => {
                 let mut both = nums.clone();
                 both.extend(numbers(k));
@@ -429,13 +440,19 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
             }
             None => format_column(&nums, c.format),
         };
-        for (i, r) in t.rows.iter().enumerate() {
-            if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), f.get_mut(i)) {
-                *slot = cell(s);
-            }
-        }
-        f
+        with_text_cells(t, j, f)
     }
+}
+
+/// `formatted` with the text cells of column `j` (rare in a numeric column: a label row) put
+/// back as their text.
+fn with_text_cells(t: &Table, j: usize, mut formatted: Vec<String>) -> Vec<String> {
+    for (i, r) in t.rows.iter().enumerate() {
+        if let (Some(Cell::Text(s)), Some(slot)) = (r.get(j), formatted.get_mut(i)) {
+            *slot = cell(s);
+        }
+    }
+    formatted
 }
 
 /// The column holding the other limit of the interval whose limit column `j` holds (`lower`

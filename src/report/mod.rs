@@ -22,6 +22,11 @@ pub enum Format {
     /// Decimals chosen per column so that values show about this many
     /// significant digits.
     Digits(u8),
+    /// Values in the data's own units (a mean, a minimum, a median): decimals chosen as for
+    /// `Digits`, except that a value that is rounding residue beside the table's other `Units`
+    /// values shows as zero at their decimals (the mean of a centred column reads 0.000, not
+    /// -2.961e-16).
+    Units(u8),
     /// Test statistics (t, F, W): two decimals, as reporting style guides
     /// ask.
     Statistic,

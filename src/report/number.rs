@@ -14,8 +14,8 @@ const MAX_SIGNIFICANT: i32 = 10;
 /// become an em dash.
 pub fn format_column(values: &[Option<f64>], format: Format) -> Vec<String> {
     match format {
-        Format::Digits(sig) => digits(values, i32::from(sig)),
-        Format::Statistic => values.iter().map(|v| fixed(*v, 2)).collect(),
+        Format::Digits(sig) | Format::Units(sig) => digits(values, i32::from(sig)),
+        Format::Statistic => values.iter().map(|v| statistic(*v)).collect(),
         Format::Count => values
             .iter()
             .map(|v| match v {
@@ -26,6 +26,19 @@ pub fn format_column(values: &[Option<f64>], format: Format) -> Vec<String> {
             .collect(),
         Format::P => values.iter().map(|v| p_value(*v)).collect(),
         Format::Exact | Format::Text => values.iter().map(|v| exact(*v)).collect(),
+    }
+}
+
+/// Beyond this magnitude a test statistic is shown in scientific notation: two decimals of an
+/// F of 1.3e20 would print 21 digits, nearly all of them noise.
+const STATISTIC_SCIENTIFIC: f64 = 1e6;
+
+/// A test statistic: two decimals, or three significant digits in scientific notation from
+/// 1e6 up (an exact or nearly exact fit).
+fn statistic(v: Option<f64>) -> String {
+    match v {
+        Some(x) if x.is_finite() && x.abs() >= STATISTIC_SCIENTIFIC => scientific(x, 3),
+        _ => fixed(v, 2),
     }
 }
 
@@ -80,22 +93,67 @@ fn fixed(v: Option<f64>, decimals: usize) -> String {
     }
 }
 
-/// One number of decimals for the whole column, so that its values line up:
-/// enough for its largest value to show `sig` significant digits, and for its
-/// smallest non-zero value to show at least two.
-/// Columns whose values are all very large or very small switch to
-/// scientific notation.
-fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
-    let mags: Vec<f64> = values
+/// `value` shown with `sig` significant digits as a `Units` column would show it beside
+/// `companions`, values in the same units (a covariate's mean beside its smallest and largest
+/// value): on its own, unless it is rounding residue against them.
+pub fn in_units(value: f64, companions: &[f64], sig: u8) -> String {
+    let class: Vec<Option<f64>> = std::iter::once(value)
+        .chain(companions.iter().copied())
+        .map(Some)
+        .collect();
+    units_column(&[Some(value)], &class, sig).swap_remove(0)
+}
+
+/// A column of `Units` values: formatted on its own as `Digits` would format it, except that
+/// a value below 10^-MAX_SIGNIFICANT of the largest of its class (every value in the same units
+/// in the table) is rounding residue (the mean of a centred column, -2.961e-16 beside values
+/// near 8): it neither asks for decimals nor sends the column to scientific notation, and a
+/// column of nothing else takes the decimals of its class, so the residue reads 0.000.
+pub fn units_column(values: &[Option<f64>], class: &[Option<f64>], sig: u8) -> Vec<String> {
+    let sig = i32::from(sig);
+    let Some(class_max) = largest(class) else {
+        return digits(values, sig);
+    };
+    let floor = class_max * 10f64.powi(-MAX_SIGNIFICANT);
+    let real = |v: &Option<f64>| v.is_some_and(|x| x.is_finite() && x.abs() >= floor);
+    if values.iter().any(real) {
+        return digits(values, sig);
+    }
+    let mut all = values.to_vec();
+    all.extend(class.iter().filter(|v| real(v)));
+    let mut f = digits(&all, sig);
+    f.truncate(values.len());
+    f
+}
+
+/// The largest magnitude of the finite non-zero values, if any.
+fn largest(values: &[Option<f64>]) -> Option<f64> {
+    values
         .iter()
         .flatten()
         .filter(|x| x.is_finite() && **x != 0.0)
         .map(|x| x.abs())
-        .collect();
-    let Some(min) = mags.iter().copied().reduce(f64::min) else {
+        .reduce(f64::max)
+}
+
+/// One number of decimals for the whole column, so that its values line up:
+/// enough for its largest value to show `sig` significant digits, and for its
+/// smallest non-zero value to show at least two. A value below 10^-MAX_SIGNIFICANT
+/// of the largest would round to zero at any allowed number of decimals, so it does
+/// not ask for more.
+/// Columns whose values are all very large or very small switch to
+/// scientific notation.
+fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
+    let Some(max) = largest(values) else {
         return values.iter().map(|v| fixed(*v, 0)).collect();
     };
-    let max = mags.iter().copied().fold(min, f64::max);
+    let floor = max * 10f64.powi(-MAX_SIGNIFICANT);
+    let min = values
+        .iter()
+        .flatten()
+        .map(|x| x.abs())
+        .filter(|&m| m.is_finite() && m >= floor)
+        .fold(max, f64::min);
     if !(1e-4..1e10).contains(&max) {
         return values
             .iter()
@@ -115,6 +173,8 @@ fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
 
 fn scientific(x: f64, sig: i32) -> String {
     let prec = (sig - 1).max(0) as usize;
+    // -0.0 would print as -0.000e0, a sign that is not there.
+    let x = if x == 0.0 { 0.0 } else { x };
     format!("{x:.prec$e}")
 }
 
@@ -149,10 +209,43 @@ mod tests {
         assert_eq!(digits(&[Some(2.0e-7)], 3), vec!["2.00e-7"]);
     }
 
+    /// The mean of `compute xc = x - mean(x)` is rounding residue: it shows as zero at the
+    /// decimals of the values beside it, never as -2.961e-16.
+    #[test]
+    fn rounding_residue_shows_as_zero_beside_its_companions() {
+        assert_eq!(in_units(-2.961e-16, &[-8.752, 8.817], 4), "0.000");
+        assert_eq!(in_units(20.13456, &[10.31, 29.87], 4), "20.13");
+        let class = [Some(-2.961e-16), Some(-8.752), Some(8.817)];
+        assert_eq!(units_column(&[Some(-2.961e-16)], &class, 4), vec!["0.000"]);
+        // A column of real values keeps its own decimals beside larger ones.
+        let class = [Some(95.96), Some(102.6), Some(91.0)];
+        assert_eq!(units_column(&[Some(95.96)], &class, 4), vec!["95.96"]);
+        assert_eq!(digits(&class, 4), vec!["95.96", "102.60", "91.00"]);
+        // A genuinely small value among its peers keeps two significant digits.
+        assert_eq!(
+            digits(&[Some(0.0123), Some(8.8)], 4),
+            vec!["0.012", "8.800"]
+        );
+    }
+
+    /// An F of 1.3e20 (a nearly exact fit) printed as 129999999934648074240.00 before.
+    #[test]
+    fn huge_statistics_go_scientific() {
+        let f = format_column(
+            &[Some(1.2999999993464807e20), Some(999_999.994), Some(-2.5e9)],
+            Format::Statistic,
+        );
+        assert_eq!(f, vec!["1.30e20", "999999.99", "-2.50e9"]);
+    }
+
     #[test]
     fn negative_zero_loses_its_sign() {
         assert_eq!(fixed(Some(-0.0001), 2), "0.00");
         assert_eq!(exact(Some(-0.0)), "0");
+        assert_eq!(
+            digits(&[Some(-0.0), Some(2.0e-7)], 3),
+            vec!["0.00e0", "2.00e-7"]
+        );
     }
 
     #[test]

@@ -663,12 +663,12 @@ impl Session<'_> {
                 Col::new("level", "level", Format::Text),
                 Col::new("n", "n", Format::Count),
                 Col::new("missing", "missing", Format::Count),
-                Col::new("mean", "mean", Format::Digits(4)),
+                Col::new("mean", "mean", Format::Units(4)),
                 Col::new("sd", "SD", Format::Digits(4)),
                 Col::new("se", "SE", Format::Digits(4)),
-                Col::new("min", "min", Format::Digits(4)),
-                Col::new("median", "median", Format::Digits(4)),
-                Col::new("max", "max", Format::Digits(4)),
+                Col::new("min", "min", Format::Units(4)),
+                Col::new("median", "median", Format::Units(4)),
+                Col::new("max", "max", Format::Units(4)),
             ],
         );
         // Live references in prose name a summary by its column.

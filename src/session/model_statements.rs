@@ -1147,16 +1147,21 @@ fn at_text(fit: &model::Fit, at: &[(String, f64)]) -> String {
     if covs.is_empty() {
         return String::new();
     }
+    let ranges = fit.covariate_ranges();
     let parts: Vec<String> = covs
         .iter()
-        .map(|(name, mean)| match at.iter().find(|(n, _)| n == name) {
-            Some((_, v)) => format!("{} = {v}", code(name)),
-            None => format!(
-                "{} at its mean {}",
-                code(name),
-                crate::report::number::format_column(&[Some(*mean)], Format::Digits(4)).join("")
-            ),
-        })
+        .zip(ranges)
+        .map(
+            |((name, mean), (lo, hi))| match at.iter().find(|(n, _)| n == name) {
+                Some((_, v)) => format!("{} = {v}", code(name)),
+                // At the resolution of the covariate's own values, as `table summary` shows it.
+                None => format!(
+                    "{} at its mean {}",
+                    code(name),
+                    crate::report::number::in_units(*mean, &[lo, hi], 4)
+                ),
+            },
+        )
         .collect();
     format!(", with {}", parts.join(", "))
 }

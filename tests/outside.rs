@@ -1,0 +1,123 @@
+//! An independent check of the numbers covey prints on one invented analysis of covariance
+//! with unequal groups, a second factor, an empty cell and case weights:
+//! tests/reference/outside_check.py renders tests/reference/outside/outside.md, recomputes
+//! every number of its tables by exact rational least squares (Python's fractions) and, for
+//! distribution functions and the tests of assumptions, scipy (version in reference.json:
+//! studentized_range, multivariate_t, dunnett, shapiro, levene(center='median'), t, f, ncf),
+//! and writes each comparison with its reference value and tolerance to
+//! tests/reference/outside/reference.json. This test renders the same document and holds covey
+//! to those tolerances (the script's header says why each is what it is);
+//! `cargo test --release --test outside -- --nocapture` prints the worst LRE of each quantity.
+
+use covey::pipeline::{self, RunOptions};
+use covey::world::MemoryWorld;
+use serde_json::Value;
+use std::collections::BTreeMap;
+
+const DIR: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/outside/");
+
+fn read(name: &str) -> String {
+    std::fs::read_to_string(format!("{DIR}{name}")).unwrap_or_else(|e| panic!("{name}: {e}"))
+}
+
+fn render() -> Value {
+    let data = read("outside.csv");
+    let world = MemoryWorld::new().with("outside.csv", data.into_bytes());
+    let run = pipeline::run(
+        &read("outside.md"),
+        "outside.md",
+        &world,
+        RunOptions::default(),
+    )
+    .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")));
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    run.json()
+}
+
+/// The `index`-th row of the table of `kind` that `statement` made.
+fn cell<'a>(json: &'a Value, statement: &str, kind: &str, index: usize, key: &str) -> &'a Value {
+    let table = json["outputs"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .find(|o| o["statement"] == statement && o["kind"] == kind)
+        .unwrap_or_else(|| panic!("no {kind} table from `{statement}`"));
+    &table["rows"][index][key]
+}
+
+#[test]
+fn every_number_agrees_with_exact_arithmetic_and_scipy() {
+    let reference: Value = serde_json::from_str(&read("reference.json")).expect("reference.json");
+    let json = render();
+    let checks = reference["checks"].as_array().expect("checks");
+    assert!(
+        checks.len() > 500,
+        "the reference holds {} checks",
+        checks.len()
+    );
+    let mut worst: BTreeMap<String, f64> = BTreeMap::new();
+    for c in checks {
+        let s = |k: &str| c[k].as_str().unwrap_or_default().to_string();
+        let index = c["row"].as_u64().unwrap_or(0) as usize;
+        let quantity = s("quantity");
+        let got = cell(&json, &s("statement"), &s("kind"), index, &s("column"));
+        let at = format!("{quantity} (`{}`, row {index})", s("statement"));
+        let Some(want) = c["reference"].as_f64() else {
+            assert!(
+                got.is_null(),
+                "{at}: covey gives {got}, the value is not estimable"
+            );
+            continue;
+        };
+        let got = got
+            .as_f64()
+            .unwrap_or_else(|| panic!("{at}: covey gives {got}, reference {want}"));
+        let tol = c["tolerance"].as_f64().unwrap_or(0.0);
+        let err = match c["scale"].as_f64() {
+            Some(scale) => (got - want).abs() / scale,
+            None if c["absolute"].as_bool() == Some(true) => (got - want).abs(),
+            None => (got - want).abs() / want.abs().max(f64::MIN_POSITIVE),
+        };
+        assert!(
+            err <= tol,
+            "{at}: covey {got}, reference {want} (error {err:e}, tolerance {tol:e})"
+        );
+        let lre = if err == 0.0 {
+            15.0
+        } else {
+            (-err.log10()).min(15.0)
+        };
+        let w = worst.entry(quantity).or_insert(15.0);
+        *w = w.min(lre);
+    }
+    println!("| quantity | worst LRE |\n| :-- | --: |");
+    for (q, v) in &worst {
+        println!("| {q} | {v:.1} |");
+    }
+}
+
+/// The centred covariate of the document: its mean is rounding residue of the subtraction,
+/// shown as 0.000 at the resolution of its values, and the same number (one computation of a
+/// mean) in the adjusted means' caption and in a live reference.
+#[test]
+fn a_centred_covariate_shows_its_mean_as_zero() {
+    let data = read("outside.csv");
+    let world = MemoryWorld::new().with("outside.csv", data.into_bytes());
+    let run = pipeline::run(
+        &read("outside.md"),
+        "outside.md",
+        &world,
+        RunOptions::default(),
+    )
+    .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let md = &run.rendered;
+    assert!(md.contains("| all | 24 | 0 | 0.000 | 5.637 |"), "{md}");
+    assert!(md.contains("with `xc` at its mean 0.000 "), "{md}");
+    assert!(md.contains("The mean of `xc` is <!-- covey:value @[summary xc all mean] -->0.000<"));
+    assert!(!md.contains("e-16") && !md.contains("e-17"), "{md}");
+    let json = run.json();
+    let summary = cell(&json, "table summary xc", "summary", 0, "mean")
+        .as_f64()
+        .unwrap();
+    assert!(summary.abs() < 1e-14, "{summary}");
+}
