@@ -220,7 +220,8 @@ mod tests {
         // A column of real values keeps its own decimals beside larger ones.
         let class = [Some(95.96), Some(102.6), Some(91.0)];
         assert_eq!(units_column(&[Some(95.96)], &class, 4), vec!["95.96"]);
-        assert_eq!(digits(&class, 4), vec!["95.96", "102.60", "91.00"]);
+        // (rounded as one column they would lose a digit: the reason each keeps its own)
+        assert_eq!(digits(&class, 4), vec!["96.0", "102.6", "91.0"]);
         // A genuinely small value among its peers keeps two significant digits.
         assert_eq!(
             digits(&[Some(0.0123), Some(8.8)], 4),
