@@ -26,7 +26,7 @@ import sys
 from fractions import Fraction as Fr
 
 import numpy as np
-from scipy import stats
+from scipy import optimize, stats
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from comparisons import product_form_cdf, product_form_quantile  # noqa: E402
@@ -290,8 +290,8 @@ def cmp(quantity, where, ref, absolute=False, scale=None):
         v = lre(covey, ref)
     if v < worst.get(quantity, 99):
         worst[quantity] = v
-    if v < 9:
-        print(f"LOW {quantity}: covey {covey!r} reference {float(ref)!r} ({v:.1f})")
+    if v < -math.log10(TOLERANCES[mode]):
+        print(f"BEYOND TOLERANCE {quantity}: covey {covey!r} reference {float(ref)!r} ({v:.1f})")
 
 
 def undefined(quantity, where):
@@ -622,6 +622,45 @@ def check_diagnostics(tbl):
         cmp("studentized residual", (r, "studentized_residual"), float(ei) / sqrt_fr(s2i * (1 - h)))
 
 
+def check_more(tbl):
+    """Contrast, the comparison of nested models, HC3 adjusted means, and the separate-slopes
+    model on the centred covariate, whose adjusted means at its mean are those of `sep` at the
+    mean of x."""
+    y = [r["y"] for r in rows]
+    par = Fit(design(PAR), y)
+    sep = Fit(design(SEP), y)
+    row = by_statement(tbl, "table contrast par for g weights 1, -0.5, -0.5, 0")["rows"][0]
+    w = {"a": Fr(1), "b": Fr(-1, 2), "c": Fr(-1, 2), "d": Fr(0)}
+    l = [Fr(0)] * par.p
+    for lv, wt in w.items():
+        l = [u + wt * v for u, v in zip(l, point_row(PAR, {"g": {lv: Fr(1)}, "x": xbar()}))]
+    est = par.at(l)
+    se = sqrt_fr(par.var(l))
+    cmp("contrast", (row, "estimate"), est)
+    cmp("contrast: SE", (row, "se"), se)
+    cmp("contrast: p", (row, "p"), 2 * stats.t.sf(abs(float(est) / se), par.df))
+    row = by_statement(tbl, "table compare par, sep")["rows"][0]
+    f = (par.rss - sep.rss) / 3 / sep.s2
+    cmp("compare: extra SS", (row, "extra_ss"), par.rss - sep.rss)
+    cmp("compare: RSS", (row, "rss_smaller"), par.rss)
+    cmp("compare: F", (row, "f"), f)
+    cmp("compare: p", (row, "p"), stats.f.sf(float(f), 3, sep.df))
+    v = par.hc3()
+    for row in by_statement(tbl, "table means par for g robust")["rows"]:
+        l = point_row(PAR, {"g": {row["level"]: Fr(1)}, "x": xbar()})
+        cmp("HC3 adjusted mean SE", (row, "se"), sqrt_fr(quad(l, v)))
+    for row in by_statement(tbl, "table means sepc for g")["rows"]:
+        l = point_row(SEP, {"g": {row["level"]: Fr(1)}, "x": xbar()})
+        cmp("adjusted mean (centred covariate)", (row, "mean"), sep.at(l))
+        cmp("adjusted mean: SE (centred covariate)", (row, "se"), sqrt_fr(sep.var(l)))
+
+
+def plan_power(k, n_total, f, r2, c, alpha=0.05):
+    df2 = n_total - k - c
+    crit = stats.f.isf(alpha, k - 1, df2)
+    return stats.ncf.sf(crit, k - 1, df2, n_total * f * f / (1 - r2))
+
+
 def check_plan(tbl):
     t = by_statement(tbl, "plan p1 for 4 groups with 1 covariate explaining 0.4 effect f 0.25 n 20")
     row = t["rows"][0]
@@ -629,6 +668,20 @@ def check_plan(tbl):
     lam = n * 0.25 ** 2 / (1 - 0.4)
     crit = stats.f.isf(0.05, k - 1, n - k - c)
     cmp("plan power", (row, "power"), stats.ncf.sf(crit, k - 1, n - k - c, lam))
+    row = by_statement(tbl, "plan p2 for 4 groups with 1 covariate explaining 0.4 effect f 0.25 power 0.9")["rows"][0]
+    n = next(n for n in range(2, 1000) if plan_power(4, 4 * n, 0.25, 0.4, 1) >= 0.9)
+    cmp("plan: n per group", (row, "n_per_group"), n)
+    cmp("plan power", (row, "power"), plan_power(4, 4 * n, 0.25, 0.4, 1))
+    row = by_statement(tbl, "plan p3 for 4 groups effect detectable sd 2 n 20 power 0.8")["rows"][0]
+    f = optimize.brentq(lambda f: plan_power(4, 80, f, 0.0, 0) - 0.8, 0.01, 2, xtol=1e-15, rtol=1e-15)
+    cmp("plan: detectable f", (row, "effect_f"), f)
+    row = by_statement(tbl, "plan p4 for 3 groups in ratio 2:1:1 effect means 10, 11, 12 sd 2 n 10")["rows"][0]
+    share = [Fr(1, 2), Fr(1, 4), Fr(1, 4)]
+    means = [10, 11, 12]
+    grand = sum(s * m for s, m in zip(share, means))
+    f2 = sum(s * (m - grand) ** 2 for s, m in zip(share, means)) / 4
+    cmp("plan: f from means (unequal groups)", (row, "effect_f"), sqrt_fr(f2))
+    cmp("plan power", (row, "power"), plan_power(3, 40, math.sqrt(float(f2)), 0.0, 0))
 
 
 def check_oneway_dunnett(tbl):
@@ -728,6 +781,7 @@ def main():
     check_fit(tbl)
     check_diagnostics(tbl)
     check_plan(tbl)
+    check_more(tbl)
     check_oneway_dunnett(tbl)
     check_holes(tbl)
     with open(OUT, "w") as f:
