@@ -8,8 +8,6 @@
 //!
 //! with `g - 1` and `N - g` degrees of freedom, and an upper-tail p-value from the F distribution.
 
-use statrs::distribution::{ContinuousCDF, FisherSnedecor};
-
 use super::StatsError;
 
 /// Result of a test of equal variances.
@@ -114,12 +112,11 @@ pub fn brown_forsythe_each(
     let df2 = (n_total - g) as f64;
     let f = (between / df1) / (within / df2);
     // Both degrees of freedom are at least 1 here, so the distribution always exists.
-    let dist = FisherSnedecor::new(df1, df2).map_err(|_| StatsError::ZeroWithinSpread)?;
     Ok(EqualVariance {
         f,
         df1,
         df2,
-        p: dist.sf(f),
+        p: crate::model::dist::f_upper_p(f, g - 1, n_total - g),
     })
 }
 
