@@ -399,6 +399,13 @@ fn extends_by(big: &ModelSpec, base: &ModelSpec, term: &TermSpec) -> bool {
         && same_var(&big.response, &base.response)
         && big.vars.len() == base.vars.len()
         && big.vars.iter().zip(&base.vars).all(|(a, b)| same_var(a, b))
+        // An unweighted model is not the weighted one with a term more (`check` of a weighted
+        // model once took its equal-slopes F from an unweighted model of the same terms).
+        && match (&big.weights, &base.weights) {
+            (None, None) => true,
+            (Some(a), Some(b)) => same_var(a, b),
+            _ => false,
+        }
 }
 
 fn same_var(a: &Var, b: &Var) -> bool {

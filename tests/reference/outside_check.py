@@ -586,40 +586,43 @@ def check_fit(tbl):
     cmp("BIC", (t, "bic"), -2 * ll + math.log(n) * (p + 1))
 
 
-def check_diagnostics(tbl):
+def check_diagnostics(tbl, name="par", weighted=False):
     y = [r["y"] for r in rows]
-    fit = Fit(design(PAR), y)
-    checks = by_statement(tbl, "check par", "check")
-    e = [float(v) for v in fit.e]
+    w = [r["w"] for r in rows] if weighted else None
+    fit = Fit(design(PAR), y, w)
+    checks = by_statement(tbl, f"check {name}", "check")
+    # the weighted residuals sqrt(w) e
+    e = [math.sqrt(float(wi)) * float(v) for wi, v in zip(fit.w, fit.e)]
     sw = stats.shapiro(e)
     got = {r["check"]: r for r in checks["rows"]}
-    for name, r in got.items():
-        if name.startswith("normality"):
+    for what, r in got.items():
+        if what.startswith("normality"):
             cmp("Shapiro-Wilk W", (r, "statistic"), sw.statistic)
             cmp("Shapiro-Wilk p", (r, "p"), sw.pvalue)
-        elif "spread" in name:
+        elif "spread" in what:
             groups = [[e[i] for i, rr in enumerate(rows) if rr["g"] == l] for l in LEVELS["g"]]
             bf = stats.levene(*groups, center="median")
             cmp("Brown-Forsythe F", (r, "statistic"), bf.statistic)
             cmp("Brown-Forsythe p", (r, "p"), bf.pvalue)
-        elif "balance" in name:
+        elif "balance" in what:
             groups = [[float(rr["x"]) for rr in rows if rr["g"] == l] for l in LEVELS["g"]]
             ow = stats.f_oneway(*groups)
             cmp("balance F", (r, "statistic"), ow.statistic)
             cmp("balance p", (r, "p"), ow.pvalue)
-        elif "slopes" in name:
-            sep = Fit(design(SEP), y)
+        elif "slopes" in what:
+            sep = Fit(design(SEP), y, w)
             f = (fit.rss - sep.rss) / 3 / sep.s2
             cmp("equal-slopes F", (r, "statistic"), f)
-    infl = by_statement(tbl, "check par", "influence")
+    infl = by_statement(tbl, f"check {name}", "influence")
     for r in infl["rows"]:
         i = int(r["row"]) - 2
         h = fit.h[i]
-        ei = fit.e[i]
+        e2 = fit.w[i] * fit.e[i] ** 2
         cmp("leverage", (r, "leverage"), h)
-        cmp("Cook's distance", (r, "cooks_distance"), ei * ei * h / (fit.p * fit.s2 * (1 - h) ** 2))
-        s2i = (fit.rss - ei * ei / (1 - h)) / (fit.df - 1)
-        cmp("studentized residual", (r, "studentized_residual"), float(ei) / sqrt_fr(s2i * (1 - h)))
+        cmp("Cook's distance", (r, "cooks_distance"), e2 * h / (fit.p * fit.s2 * (1 - h) ** 2))
+        s2i = (fit.rss - e2 / (1 - h)) / (fit.df - 1)
+        sign = 1 if fit.e[i] > 0 else -1
+        cmp("studentized residual", (r, "studentized_residual"), sign * sqrt_fr(e2 / (s2i * (1 - h))))
 
 
 def check_more(tbl):
@@ -682,6 +685,74 @@ def check_plan(tbl):
     f2 = sum(s * (m - grand) ** 2 for s, m in zip(share, means)) / 4
     cmp("plan: f from means (unequal groups)", (row, "effect_f"), sqrt_fr(f2))
     cmp("plan power", (row, "power"), plan_power(3, 40, math.sqrt(float(f2)), 0.0, 0))
+
+
+def check_extra(tbl):
+    """Dunnett within the levels of another factor, the weighted model's anova and checks, and
+    robust Wald F of Types II and III in models with interactions."""
+    y = [r["y"] for r in rows]
+    two = Fit(design(TWO), y)
+    t = by_statement(tbl, "table differences two for g within h versus a")
+    for h in LEVELS["h"]:
+        rs = [r for r in t["rows"] if r["within"] == h]
+        got = diffs(two, TWO, "g", [(r["first"], r["second"]) for r in rs], {"h": {h: Fr(1)}, "x": xbar()})
+        ls = [l for l, _, _ in got]
+        cov = np.array([[float(quad_pair(a, b, two)) for b in ls] for a in ls])
+        sd = np.sqrt(np.diag(cov))
+        mvt = stats.multivariate_t(loc=np.zeros(len(ls)), shape=cov / np.outer(sd, sd), df=two.df, seed=12345)
+        for r, (l, est, v) in zip(rs, got):
+            cmp("difference (within, versus)", (r, "estimate"), est)
+            tv = abs(r["t"])
+            p = 1 - mvt.cdf(np.full(len(ls), tv), lower_limit=np.full(len(ls), -tv), maxpts=5_000_000)
+            cmp("p (Dunnett within levels, mvt)", (r, "p"), p, absolute=True)
+    w = [r["w"] for r in rows]
+    for kind_terms in (PAR,):
+        full = Fit(design(kind_terms), y, w)
+        t = by_statement(tbl, "table anova wpar")
+        for r in t["rows"]:
+            if r["term"] not in ("g", "x"):
+                continue
+            small = [u for u in kind_terms if u != (r["term"],)]
+            ss = Fit(design(small), y, w).rss - full.rss
+            q = 3 if r["term"] == "g" else 1
+            cmp("weighted SS (Type 2)", (r, "ss"), ss)
+            cmp("weighted F (Type 2)", (r, "f"), ss / q / full.s2)
+    check_diagnostics(tbl, "wpar", weighted=True)
+    for statement, terms, coding, test in (
+        ("table anova sep type 3 robust", SEP, "sum", lambda term, u: u == term),
+        ("table anova two type 2 robust", TWO, "ref", None),
+    ):
+        t = by_statement(tbl, statement)
+        for r in t["rows"]:
+            names = [" by ".join(u) for u in terms]
+            if r["term"] not in names:
+                continue
+            term = terms[names.index(r["term"])]
+            fit = Fit(design(terms, coding), y)
+            v = fit.hc3()
+            width = [len(design([u], coding)[0]) - 1 for u in terms]
+            start = 1 + sum(width[: terms.index(term)])
+            idx = list(range(start, start + width[terms.index(term)]))
+            if test is None:
+                # Type II hypothesis in the full model: L = X_T' (I - P0) X, P0 the projection
+                # on the terms that do not contain the term (the term's own columns left out).
+                keep = [0] + [c for u, wd, st in zip(terms, width, [1 + sum(width[:k]) for k in range(len(terms))])
+                              if u != term and not set(term) < set(u) for c in range(st, st + wd)]
+                x = design(terms, coding)
+                x0 = [[r[c] for c in keep] for r in x]
+                f0 = Fit(x0, [Fr(0)] * len(x))
+                resid = []
+                for j in range(fit.p):
+                    col = [r[j] for r in x]
+                    b0 = [dot(rw, [sum(x0[i][a] * col[i] for i in range(len(x))) for a in range(len(keep))]) for rw in f0.xtxi]
+                    resid.append([col[i] - dot(x0[i], b0) for i in range(len(x))])
+                L = [[sum(x[i][t] * resid[j][i] for i in range(len(x))) for j in range(fit.p)] for t in idx]
+            else:
+                L = [[Fr(int(j == t)) for j in range(fit.p)] for t in idx]
+            lb = [dot(l, fit.b) for l in L]
+            lvl = [[dot(a, [dot(rw, b) for rw in v]) for b in L] for a in L]
+            wald = dot(lb, solve(lvl, lb)) / len(idx)
+            cmp("robust Wald F (interaction models)", (r, "f"), wald)
 
 
 def check_oneway_dunnett(tbl):
@@ -783,6 +854,7 @@ def main():
     check_plan(tbl)
     check_more(tbl)
     check_oneway_dunnett(tbl)
+    check_extra(tbl)
     check_holes(tbl)
     with open(OUT, "w") as f:
         json.dump({"scipy": __import__("scipy").__version__, "numpy": np.__version__, "checks": records}, f, indent=1)
