@@ -115,6 +115,10 @@ fn a_centred_covariate_shows_its_mean_as_zero() {
     assert!(md.contains("with `xc` at its mean 0.000 "), "{md}");
     assert!(md.contains("The mean of `xc` is <!-- covey:value @[summary xc all mean] -->0.000<"));
     assert!(!md.contains("e-16") && !md.contains("e-17"), "{md}");
+    // The last anova of `two` is the robust Type II one: its F of `g`, 5.9239 (checked against
+    // exact arithmetic above), as its table rounds it.
+    assert!(md.contains("@[anova two g f] -->5.92<"), "{md}");
+    assert!(md.contains("| g | 3 | — | — | 5.92 | .007 | — |"), "{md}");
     let json = run.json();
     let summary = cell(&json, "table summary xc", "summary", 0, "mean")
         .as_f64()
