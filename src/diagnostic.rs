@@ -152,9 +152,58 @@ impl<'t> Source<'t> {
     }
 }
 
+/// The closest of `candidates` to `name` by edit distance (letters left out, added, changed or
+/// two neighbours swapped, each one edit), if close enough to be a likely typo: at most one
+/// edit per three letters. A tie goes to the candidate that starts with the same letter
+/// (`tabel` is `table`, not `label`), then to the earlier one.
+pub fn closest<'a>(name: &str, candidates: &[&'a str]) -> Option<&'a str> {
+    let lower = name.to_lowercase();
+    let first = lower.chars().next();
+    candidates
+        .iter()
+        .map(|c| (edit_distance(&lower, &c.to_lowercase()), *c))
+        .filter(|(d, c)| *d <= (c.chars().count().max(name.chars().count()) / 3).max(1))
+        .min_by_key(|(d, c)| (*d, c.to_lowercase().chars().next() != first))
+        .map(|(_, c)| c)
+}
+
+/// The optimal string alignment distance: Levenshtein's edits plus the swap of two neighbouring
+/// letters, the commonest slip in typing (`laod`, `alpah`).
+fn edit_distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.chars().collect();
+    let b: Vec<char> = b.chars().collect();
+    // rows[i][j]: the distance between a[..i] and b[..j].
+    let mut rows: Vec<Vec<usize>> = (0..=a.len())
+        .map(|i| (0..=b.len()).map(|j| if i == 0 { j } else { i }).collect())
+        .collect();
+    for i in 1..=a.len() {
+        for j in 1..=b.len() {
+            let cost = usize::from(a[i - 1] != b[j - 1]);
+            let mut d = (rows[i - 1][j - 1] + cost)
+                .min(rows[i - 1][j] + 1)
+                .min(rows[i][j - 1] + 1);
+            if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                d = d.min(rows[i - 2][j - 2] + 1);
+            }
+            rows[i][j] = d;
+        }
+    }
+    rows[a.len()][b.len()]
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn closest_counts_a_swap_as_one_edit() {
+        assert_eq!(edit_distance("laod", "load"), 1);
+        assert_eq!(edit_distance("alpah", "alpha"), 1);
+        assert_eq!(edit_distance("kitten", "sitting"), 3);
+        assert_eq!(closest("tabel", &["label", "table"]), Some("table"));
+        assert_eq!(closest("laod", &["load", "label"]), Some("load"));
+        assert_eq!(closest("zzzz", &["load"]), None);
+    }
 
     #[test]
     fn lines_agree_with_line_col() {

@@ -109,7 +109,14 @@ pub fn run(
         return Err(Unrunnable {
             errors: unknown
                 .iter()
-                .map(|n| for_terminal(format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` (declare it with `param {n} = VALUE`)")))
+                .map(|n| {
+                    let declared: Vec<&str> = params.keys().map(String::as_str).collect();
+                    let what = match crate::diagnostic::closest(n, &declared) {
+                        Some(near) => format!("did you mean `--set {near}=...`?"),
+                        None => format!("declare it with `param {n} = VALUE`"),
+                    };
+                    for_terminal(format!("{file_name}: --set {n}=...: the document declares no parameter `{n}` ({what})"))
+                })
                 .collect(),
         });
     }

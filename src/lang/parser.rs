@@ -124,7 +124,12 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
     };
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, .. } => {
-            let mut wanted: Vec<&str> = positives.iter().map(|r| describe(*r)).collect();
+            // The words of earlier versions (`table pairs`, `adjust`) still parse, to be told
+            // what replaced them, but are never offered as what may come next.
+            let current = positives
+                .iter()
+                .filter(|r| !matches!(r, Rule::kw_pairs | Rule::kw_adjust | Rule::old_pairs_table));
+            let mut wanted: Vec<&str> = current.map(|r| describe(*r)).collect();
             // After `load`: a path, or `database NAME`, said as one thing.
             if positives.contains(&Rule::kw_database) && positives.contains(&Rule::text) {
                 wanted = vec![
@@ -133,19 +138,73 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
             }
             wanted.sort_unstable();
             wanted.dedup();
+            let word = rest.get(..word_len).unwrap_or(rest);
             if pos == 0 || text[..pos].trim().is_empty() {
                 format!(
-                    "this line does not start with a statement (found {found}); a statement starts with load, missing, use, factor, keep, show, label, compute, model, table, check, plot, unit, param, require, report or plan"
+                    "this line does not start with a statement (found {found}); a statement starts with {}{}",
+                    join_or(STATEMENT_WORDS),
+                    suggestion(word, STATEMENT_WORDS)
                 )
             } else if wanted.is_empty() {
                 format!("unexpected {found}")
             } else {
-                format!("expected {}, found {found}", join_or(&wanted))
+                let mut words: Vec<&str> = wanted
+                    .iter()
+                    .filter_map(|w| w.strip_prefix('`')?.strip_suffix('`'))
+                    .filter(|w| !w.contains([' ', '`']))
+                    .collect();
+                if positives.contains(&Rule::plot_kind) {
+                    words.extend(PLOT_KINDS);
+                }
+                format!(
+                    "expected {}, found {found}{}",
+                    join_or(&wanted),
+                    suggestion(word, &words)
+                )
             }
         }
         ErrorVariant::CustomError { message } => message.clone(),
     };
     SyntaxError { span, message }
+}
+
+/// The words a statement starts with, in the order the README introduces them.
+const STATEMENT_WORDS: &[&str] = &[
+    "load", "missing", "use", "factor", "keep", "show", "label", "compute", "model", "table",
+    "check", "plot", "unit", "param", "require", "report", "plan",
+];
+
+/// The kinds of figure, as `plot_kind` in the grammar spells them.
+const PLOT_KINDS: &[&str] = &[
+    "lines",
+    "residuals",
+    "quantiles",
+    "means",
+    "influence",
+    "groups",
+    "interaction",
+];
+
+/// "; did you mean `load`?" when the word the parser stopped at is a likely misspelling of one
+/// of `words` (a few letters swapped, left out or doubled), and nothing otherwise.
+/// A word of three letters or more that begins exactly one of `words` counts as that word cut
+/// short (`coef` for `coefficients`).
+fn suggestion(found: &str, words: &[&str]) -> String {
+    let lower = found.to_lowercase();
+    let mut starts = words
+        .iter()
+        .filter(|w| lower.chars().count() >= 3 && w.starts_with(lower.as_str()));
+    let cut_short = match (starts.next(), starts.next()) {
+        (Some(w), None) => Some(*w),
+        _ => None,
+    };
+    let near = crate::diagnostic::closest(found, words)
+        .or(cut_short)
+        .filter(|w| !w.eq_ignore_ascii_case(found));
+    match near {
+        Some(w) => format!("; did you mean `{w}`?"),
+        None => String::new(),
+    }
 }
 
 fn join_or(items: &[&str]) -> String {

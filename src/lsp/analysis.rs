@@ -988,6 +988,11 @@ impl<'c> Walk<'c> {
             },
             Some(v) if !v.factor => ModelError::NotAFactor {
                 name: factor.to_string(),
+                factors: vars
+                    .iter()
+                    .filter(|v| v.factor)
+                    .map(|v| v.name.clone())
+                    .collect(),
             },
             Some(_) => return true,
         };

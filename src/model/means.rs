@@ -67,6 +67,7 @@ impl Fit {
             _ => {
                 return Err(ModelError::NotAFactor {
                     name: factor.to_string(),
+                    factors: self.other_factors(""),
                 })
             }
         }

@@ -793,6 +793,8 @@ pub enum ModelError {
     NotAFactor {
         /// The name.
         name: String,
+        /// The model's factors, in the order they enter it, for the hint.
+        factors: Vec<String>,
     },
     /// The factor is not in the model.
     FactorNotInModel {
@@ -890,7 +892,14 @@ impl fmt::Display for ModelError {
             E::PerfectFit => write!(f, "the data are fitted exactly (residual sum of squares 0 up to rounding), so there is no error variance for this test; check that the response is not computed from the predictors"),
             E::TypeIIIWithAliased { aliased, cause } => write!(f, "Type III sums of squares test each term against a full-rank design, but these coefficients are not estimable: {}, because {cause}; {}", aliased.join(", "), cause.remedy()),
             E::UnknownVariable { name } => write!(f, "there is no variable `{name}`"),
-            E::NotAFactor { name } => write!(f, "`{name}` is numeric, not a factor"),
+            E::NotAFactor { name, factors } => match factors.as_slice() {
+                [] => write!(f, "`{name}` is numeric, not a factor, and the model has no factor"),
+                some => write!(
+                    f,
+                    "`{name}` is numeric, not a factor; the model's factors: {}",
+                    some.iter().map(|x| format!("`{x}`")).collect::<Vec<_>>().join(", ")
+                ),
+            },
             E::FactorNotInModel { factor } => write!(f, "factor `{factor}` is not in this model; add it as a term first"),
             E::CovariateNotInModel { name } => write!(f, "`{name}` is not a numeric covariate of this model, so it cannot be given a value"),
             E::NoCovariate => write!(f, "the model has no numeric covariate"),

@@ -902,6 +902,24 @@ pub(crate) fn factor_error(
             })
         })
         .unwrap_or(column.span);
+    // A declared level that is a slip for the value the data hold (`hihg` for `high`): point at
+    // it and name the value, rather than leave the user to compare the two lists.
+    if let (data::FactorError::UndeclaredLevel { value, .. }, Some(levels)) = (e, levels) {
+        let names: Vec<&str> = levels.iter().map(|l| l.value.as_str()).collect();
+        if let Some(near) = super::closest(value, &names) {
+            if let Some(level) = levels.iter().find(|l| l.value == near) {
+                return Diagnostic::new(level.span, e.to_string())
+                    .label("close to the value in the data")
+                    .help(format!(
+                        "the declared level {} is close to {}, which the data hold: if it is a \
+                         misspelling, write {} in the levels",
+                        crate::report::markdown::code(near),
+                        crate::report::markdown::code(value),
+                        crate::report::markdown::code(&quote_name(value))
+                    ));
+            }
+        }
+    }
     Diagnostic::new(span, e.to_string()).label("in this factor")
 }
 

@@ -16,6 +16,7 @@ use std::cell::RefCell;
 use std::sync::Arc;
 
 use crate::data::DataSet;
+pub(crate) use crate::diagnostic::closest;
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Span, Spanned, Statement, StatementKind, TableRequest};
 use crate::model::Fit;
@@ -314,30 +315,4 @@ pub(crate) fn unknown_model(name: &Spanned<String>, known: &[&str]) -> Diagnosti
     )
     .label("unknown model")
     .help(help)
-}
-
-/// The closest of `candidates` to `name` by edit distance, if close enough
-/// to be a likely typo.
-pub(crate) fn closest<'a>(name: &str, candidates: &[&'a str]) -> Option<&'a str> {
-    let lower = name.to_lowercase();
-    candidates
-        .iter()
-        .map(|c| (edit_distance(&lower, &c.to_lowercase()), *c))
-        .filter(|(d, c)| *d <= (c.chars().count().max(name.chars().count()) / 3).max(1))
-        .min_by_key(|(d, _)| *d)
-        .map(|(_, c)| c)
-}
-
-fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut cur = vec![i + 1; b.len() + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let cost = usize::from(ca != *cb);
-            cur[j + 1] = (prev[j] + cost).min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        prev = cur;
-    }
-    prev[b.len()]
 }

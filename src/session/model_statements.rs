@@ -23,7 +23,21 @@ impl Session<'_> {
         let set = self.current(span)?;
         let si = self.current.unwrap_or(0);
         let ridx = column_index(set, &decl.response)?;
-        let plain = numeric_values(set, ridx, &decl.response)?;
+        let plain = numeric_values(set, ridx, &decl.response).map_err(|d| {
+            // A factor before `on`: the response and a term in each other's places, or an
+            // outcome that is a category, which a linear model does not fit.
+            let is_factor = matches!(
+                set.columns.get(ridx).map(|c| &c.values),
+                Some(Values::Factor(_))
+            );
+            if is_factor {
+                d.help(
+                    "the response (before `on`) is the measured outcome, a number per row; a factor that groups the rows goes among the terms after `on`; an outcome that is a category (yes/no, a grade) is not one a linear model fits: covey fits only numeric responses",
+                )
+            } else {
+                d
+            }
+        })?;
         // A transformed response (`log(y)`) is fitted on its scale; long cells (e.g.
         // 1000000000000.4) come with exact residuals about an offset.
         let transformed =
@@ -712,7 +726,28 @@ impl Session<'_> {
                         level,
                         &known,
                     )
-                    .map_err(fail(covariate.as_ref().map_or(factor.span, |c| c.span)))?;
+                    .map_err(|e| {
+                        // At the words the error is about: `for F` when F is not a factor.
+                        let about_factor = factor_named(&e) == Some(factor.value.as_str());
+                        let at = match covariate {
+                            Some(c) if !about_factor => c.span,
+                            _ => factor.span,
+                        };
+                        let d = fail(at)(e);
+                        // `of arm for baseline`: the two names in each other's places.
+                        match covariate {
+                            Some(c)
+                                if about_factor
+                                    && m.fit.other_factors("").contains(&c.value) =>
+                            {
+                                d.help(format!(
+                                    "`of` names the covariate and `for` the factor: write `table slopes {} of {} for {}`",
+                                    m.name, factor.value, c.value
+                                ))
+                            }
+                            _ => d,
+                        }
+                    })?;
                 let mut t = Table::new(
                     "slopes",
                     format!(
@@ -843,7 +878,14 @@ impl Session<'_> {
                 let rows = m
                     .fit
                     .regions(&covariate.value, &factor.value, pair, alpha)
-                    .map_err(fail(covariate.span))?;
+                    .map_err(|e| {
+                        let about_factor = factor_named(&e) == Some(factor.value.as_str());
+                        fail(if about_factor {
+                            factor.span
+                        } else {
+                            covariate.span
+                        })(e)
+                    })?;
                 let mut t = Table::new(
                     "regions",
                     format!(
@@ -932,9 +974,8 @@ fn view(
 /// message can point at the words that named it).
 fn factor_named(e: &model::ModelError) -> Option<&str> {
     match e {
-        model::ModelError::UnknownVariable { name } | model::ModelError::NotAFactor { name } => {
-            Some(name)
-        }
+        model::ModelError::UnknownVariable { name }
+        | model::ModelError::NotAFactor { name, .. } => Some(name),
         model::ModelError::FactorNotInModel { factor } => Some(factor),
         _ => None,
     }
