@@ -1302,3 +1302,84 @@ fn completion_knows_sources_and_computed_columns_without_a_database() {
         ["d"]
     );
 }
+
+/// Bytes written by the server, kept for the test to read.
+#[derive(Clone, Default)]
+struct Written(std::sync::Arc<std::sync::Mutex<Vec<u8>>>);
+
+impl Write for Written {
+    fn write(&mut self, b: &[u8]) -> std::io::Result<usize> {
+        if let Ok(mut v) = self.0.lock() {
+            v.extend_from_slice(b);
+        }
+        Ok(b.len())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+#[test]
+fn no_bytes_from_the_editor_end_the_session() {
+    // Through the server's own framing, in memory: a body that is not JSON, JSON that is not a
+    // message (with and without a request's id), a header block without a length, one whose
+    // length is not a number, and one that claims a length far beyond memory at the very end;
+    // each is answered or passed over, and the session goes on to a clean end.
+    let dir = workspace("framing");
+    let u = uri(&dir.join("doc.md"));
+    let mut input = Vec::new();
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "id": 1, "method": "initialize", "params": {"capabilities": {}}}),
+    ));
+    input.extend(b"Content-Length: 5\r\n\r\n{bad}");
+    input.extend(frame(&json!({"jsonrpc": "2.0"})));
+    input.extend(frame(&json!([1, 2, 3])));
+    input.extend(frame(&json!({"jsonrpc": "2.0", "id": 7, "method": 5})));
+    input.extend(b"Content-Type: x\r\n\r\n");
+    input.extend(b"Content-Length: many\r\n\r\n");
+    input.extend(b"\r\n");
+    input.extend(b"Content-Length: 2\r\n\r\n\xff\xfe");
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "method": "textDocument/didOpen", "params": {"textDocument": {"uri": u, "languageId": "markdown", "version": 1, "text": DOC}}}),
+    ));
+    // A header in bare line feeds is read too.
+    let hover = json!({"jsonrpc": "2.0", "id": 2, "method": "textDocument/hover", "params": {"textDocument": {"uri": u}, "position": {"line": 6, "character": 9}}}).to_string();
+    input.extend(format!("Content-Length: {}\n\n{hover}", hover.len()).into_bytes());
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "id": 3, "method": "shutdown"}),
+    ));
+    input.extend(frame(&json!({"jsonrpc": "2.0", "method": "exit"})));
+    input.extend(b"Content-Length: 99999999999999\r\n\r\n{");
+    let written = Written::default();
+    let (connection, threads) =
+        covey::lsp::transport::connect(std::io::Cursor::new(input), written.clone());
+    let ending = serve(&connection, &Options::default());
+    drop(connection);
+    threads.join_writer();
+    assert_eq!(ending, Ok(Ending::Clean));
+    let bytes = written.0.lock().map(|v| v.clone()).unwrap_or_default();
+    let mut r = BufReader::new(&bytes[..]);
+    let mut answers = Vec::new();
+    while !r.fill_buf().map(<[u8]>::is_empty).unwrap_or(true) {
+        let m = read_frame(&mut r);
+        if m.get("id").is_some() {
+            answers.push(m);
+        }
+    }
+    // The reply to the unreadable request is written by the reading thread: it may come
+    // before the reply to `initialize`.
+    answers.sort_by_key(|m| m["id"].as_i64());
+    let ids: Vec<&Value> = answers.iter().map(|m| &m["id"]).collect();
+    assert_eq!(
+        ids,
+        [&json!(1), &json!(2), &json!(3), &json!(7)],
+        "{answers:?}"
+    );
+    assert_eq!(answers[3]["error"]["code"], -32600, "{answers:?}");
+    assert!(
+        answers[1]["result"]["contents"]["value"]
+            .as_str()
+            .is_some_and(|t| t.starts_with("**column `ration`**")),
+        "{answers:?}"
+    );
+}
