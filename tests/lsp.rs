@@ -1383,3 +1383,64 @@ fn no_bytes_from_the_editor_end_the_session() {
         "{answers:?}"
     );
 }
+
+#[test]
+fn influence_references_offer_the_models_and_the_label_column() {
+    // `check` computes an influence table only when some row is past a threshold, so the
+    // server counts it as a table that may be computed; with `label rows by` before the model
+    // the renderer writes a `label` column beside each row's number.
+    let folder = root().join("tests/fixtures");
+    let source = std::fs::read_to_string(folder.join("checks.md")).unwrap_or_default();
+    let labelled = source.replacen("model main:", "label rows by pen\nmodel main:", 1);
+    assert_ne!(labelled, source);
+    let world = FsWorld::new(&folder, false);
+    let run = pipeline::run(&labelled, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{:?}", u.errors));
+    let columns: Vec<Value> = run.json()["outputs"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .find(|o| o["kind"] == "influence")
+        .and_then(|o| o["columns"].as_array().cloned())
+        .unwrap_or_default();
+    assert_eq!(columns.get(1), Some(&json!("label")), "{columns:?}");
+
+    let text = format!(
+        "{labelled}\n```covey\ntable summary strat_kg\n```\n\nA: @[influence \nB: @[influence main \nC: @[influence line \n"
+    );
+    let u = uri(&folder.join("influence-labels.md"));
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &text);
+    // Once the data are read, the misspelt column is found.
+    c.diagnostics_until(&u, |d| {
+        d.iter().any(|p| {
+            p["message"]
+                .as_str()
+                .is_some_and(|m| m.contains("strat_kg"))
+        })
+    });
+    let (line, ch) = pos(&text, "A: @[influence ", 15);
+    let models = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(models.contains(&"main".to_string()), "{models:?}");
+    let (line, ch) = pos(&text, "B: @[influence main ", 20);
+    let main = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(main.contains(&"label".to_string()), "{main:?}");
+    assert!(main.contains(&"leverage".to_string()), "{main:?}");
+    // `line` is declared after `label rows by` too; a model of another data set would not be.
+    let (line, ch) = pos(&text, "C: @[influence line ", 20);
+    let other = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(other.contains(&"label".to_string()), "{other:?}");
+    assert_eq!(c.shutdown(), Ending::Clean);
+
+    // Without `label rows by`, no `label` column.
+    let text = format!("{source}\n@[influence main \n");
+    let u = uri(&folder.join("influence-plain.md"));
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &text);
+    c.diagnostics(&u);
+    let (line, ch) = pos(&text, "@[influence main ", 17);
+    let plain = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(plain.contains(&"leverage".to_string()), "{plain:?}");
+    assert!(!plain.contains(&"label".to_string()), "{plain:?}");
+    assert_eq!(c.shutdown(), Ending::Clean);
+}
