@@ -609,6 +609,23 @@ fn hover_shows_the_value_of_the_last_rendering() {
     let shown = checker.hover(&a, at).unwrap_or_else(|| panic!("no hover"));
     assert!(shown.text.contains(&format!("= {value}")), "{}", shown.text);
     assert!(shown.text.contains("doc.rendered.md"), "{}", shown.text);
+    assert!(!shown.text.contains("render again"), "{}", shown.text);
+    // Edited since the rendering: the value on disk is told as from an earlier version of the
+    // blocks (through the protocol).
+    let edited = DOC.replace("on ration + start_kg", "on ration");
+    let u = uri(&path);
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &edited);
+    c.diagnostics(&u);
+    let (line, ch) = pos(&edited, "@[anova", 4);
+    let hover = c.at("textDocument/hover", &u, line, ch);
+    let told = hover["contents"]["value"].as_str().unwrap_or("");
+    assert!(told.contains(&format!("= {value}")), "{told}");
+    assert!(
+        told.contains("made before the covey blocks were last changed: render again"),
+        "{told}"
+    );
+    assert_eq!(c.shutdown(), Ending::Clean);
     // Rendered in place, the document holds its own values.
     let in_place = covey::RenderOptions {
         in_place: true,
