@@ -609,6 +609,23 @@ fn hover_shows_the_value_of_the_last_rendering() {
     let shown = checker.hover(&a, at).unwrap_or_else(|| panic!("no hover"));
     assert!(shown.text.contains(&format!("= {value}")), "{}", shown.text);
     assert!(shown.text.contains("doc.rendered.md"), "{}", shown.text);
+    assert!(!shown.text.contains("render again"), "{}", shown.text);
+    // Edited since the rendering: the value on disk is told as from an earlier version of the
+    // blocks (through the protocol).
+    let edited = DOC.replace("on ration + start_kg", "on ration");
+    let u = uri(&path);
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &edited);
+    c.diagnostics(&u);
+    let (line, ch) = pos(&edited, "@[anova", 4);
+    let hover = c.at("textDocument/hover", &u, line, ch);
+    let told = hover["contents"]["value"].as_str().unwrap_or("");
+    assert!(told.contains(&format!("= {value}")), "{told}");
+    assert!(
+        told.contains("made before the covey blocks were last changed: render again"),
+        "{told}"
+    );
+    assert_eq!(c.shutdown(), Ending::Clean);
     // Rendered in place, the document holds its own values.
     let in_place = covey::RenderOptions {
         in_place: true,
@@ -1301,4 +1318,146 @@ fn completion_knows_sources_and_computed_columns_without_a_database() {
         ),
         ["d"]
     );
+}
+
+/// Bytes written by the server, kept for the test to read.
+#[derive(Clone, Default)]
+struct Written(std::sync::Arc<std::sync::Mutex<Vec<u8>>>);
+
+impl Write for Written {
+    fn write(&mut self, b: &[u8]) -> std::io::Result<usize> {
+        if let Ok(mut v) = self.0.lock() {
+            v.extend_from_slice(b);
+        }
+        Ok(b.len())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+#[test]
+fn no_bytes_from_the_editor_end_the_session() {
+    // Through the server's own framing, in memory: a body that is not JSON, JSON that is not a
+    // message (with and without a request's id), a header block without a length, one whose
+    // length is not a number, and one that claims a length far beyond memory at the very end;
+    // each is answered or passed over, and the session goes on to a clean end.
+    let dir = workspace("framing");
+    let u = uri(&dir.join("doc.md"));
+    let mut input = Vec::new();
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "id": 1, "method": "initialize", "params": {"capabilities": {}}}),
+    ));
+    input.extend(b"Content-Length: 5\r\n\r\n{bad}");
+    input.extend(frame(&json!({"jsonrpc": "2.0"})));
+    input.extend(frame(&json!([1, 2, 3])));
+    input.extend(frame(&json!({"jsonrpc": "2.0", "id": 7, "method": 5})));
+    input.extend(b"Content-Type: x\r\n\r\n");
+    input.extend(b"Content-Length: many\r\n\r\n");
+    input.extend(b"\r\n");
+    input.extend(b"Content-Length: 2\r\n\r\n\xff\xfe");
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "method": "textDocument/didOpen", "params": {"textDocument": {"uri": u, "languageId": "markdown", "version": 1, "text": DOC}}}),
+    ));
+    // A header in bare line feeds is read too.
+    let hover = json!({"jsonrpc": "2.0", "id": 2, "method": "textDocument/hover", "params": {"textDocument": {"uri": u}, "position": {"line": 6, "character": 9}}}).to_string();
+    input.extend(format!("Content-Length: {}\n\n{hover}", hover.len()).into_bytes());
+    input.extend(frame(
+        &json!({"jsonrpc": "2.0", "id": 3, "method": "shutdown"}),
+    ));
+    input.extend(frame(&json!({"jsonrpc": "2.0", "method": "exit"})));
+    input.extend(b"Content-Length: 99999999999999\r\n\r\n{");
+    let written = Written::default();
+    let (connection, threads) =
+        covey::lsp::transport::connect(std::io::Cursor::new(input), written.clone());
+    let ending = serve(&connection, &Options::default());
+    drop(connection);
+    threads.join_writer();
+    assert_eq!(ending, Ok(Ending::Clean));
+    let bytes = written.0.lock().map(|v| v.clone()).unwrap_or_default();
+    let mut r = BufReader::new(&bytes[..]);
+    let mut answers = Vec::new();
+    while !r.fill_buf().map(<[u8]>::is_empty).unwrap_or(true) {
+        let m = read_frame(&mut r);
+        if m.get("id").is_some() {
+            answers.push(m);
+        }
+    }
+    // The reply to the unreadable request is written by the reading thread: it may come
+    // before the reply to `initialize`.
+    answers.sort_by_key(|m| m["id"].as_i64());
+    let ids: Vec<&Value> = answers.iter().map(|m| &m["id"]).collect();
+    assert_eq!(
+        ids,
+        [&json!(1), &json!(2), &json!(3), &json!(7)],
+        "{answers:?}"
+    );
+    assert_eq!(answers[3]["error"]["code"], -32600, "{answers:?}");
+    assert!(
+        answers[1]["result"]["contents"]["value"]
+            .as_str()
+            .is_some_and(|t| t.starts_with("**column `ration`**")),
+        "{answers:?}"
+    );
+}
+
+#[test]
+fn influence_references_offer_the_models_and_the_label_column() {
+    // `check` computes an influence table only when some row is past a threshold, so the
+    // server counts it as a table that may be computed; with `label rows by` before the model
+    // the renderer writes a `label` column beside each row's number.
+    let folder = root().join("tests/fixtures");
+    let source = std::fs::read_to_string(folder.join("checks.md")).unwrap_or_default();
+    let labelled = source.replacen("model main:", "label rows by pen\nmodel main:", 1);
+    assert_ne!(labelled, source);
+    let world = FsWorld::new(&folder, false);
+    let run = pipeline::run(&labelled, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{:?}", u.errors));
+    let columns: Vec<Value> = run.json()["outputs"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .find(|o| o["kind"] == "influence")
+        .and_then(|o| o["columns"].as_array().cloned())
+        .unwrap_or_default();
+    assert_eq!(columns.get(1), Some(&json!("label")), "{columns:?}");
+
+    let text = format!(
+        "{labelled}\n```covey\ntable summary strat_kg\n```\n\nA: @[influence \nB: @[influence main \nC: @[influence line \n"
+    );
+    let u = uri(&folder.join("influence-labels.md"));
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &text);
+    // Once the data are read, the misspelt column is found.
+    c.diagnostics_until(&u, |d| {
+        d.iter().any(|p| {
+            p["message"]
+                .as_str()
+                .is_some_and(|m| m.contains("strat_kg"))
+        })
+    });
+    let (line, ch) = pos(&text, "A: @[influence ", 15);
+    let models = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(models.contains(&"main".to_string()), "{models:?}");
+    let (line, ch) = pos(&text, "B: @[influence main ", 20);
+    let main = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(main.contains(&"label".to_string()), "{main:?}");
+    assert!(main.contains(&"leverage".to_string()), "{main:?}");
+    // `line` is declared after `label rows by` too; a model of another data set would not be.
+    let (line, ch) = pos(&text, "C: @[influence line ", 20);
+    let other = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(other.contains(&"label".to_string()), "{other:?}");
+    assert_eq!(c.shutdown(), Ending::Clean);
+
+    // Without `label rows by`, no `label` column.
+    let text = format!("{source}\n@[influence main \n");
+    let u = uri(&folder.join("influence-plain.md"));
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, &text);
+    c.diagnostics(&u);
+    let (line, ch) = pos(&text, "@[influence main ", 17);
+    let plain = labels(&c.at("textDocument/completion", &u, line, ch));
+    assert!(plain.contains(&"leverage".to_string()), "{plain:?}");
+    assert!(!plain.contains(&"label".to_string()), "{plain:?}");
+    assert_eq!(c.shutdown(), Ending::Clean);
 }

@@ -71,6 +71,9 @@ pub struct ModelState {
     pub response: String,
     /// The columns of its terms, each once, in order; `None` while the data are not known.
     pub vars: Option<Vec<ModelVar>>,
+    /// The column that names its rows (`label rows by` before it), when known: its influence
+    /// table has a `label` column then.
+    pub labels: Option<String>,
 }
 
 /// A column a model uses.
@@ -515,7 +518,17 @@ impl<'c> Walk<'c> {
             StatementKind::Compute { column, expr } => self.compute(column, expr, stmt.span),
             StatementKind::LabelRows { column } => {
                 if let Some(set) = self.shape(column.span) {
-                    self.column(&set, column);
+                    if let Some(i) = self.column(&set, column) {
+                        let name = set.columns[i].name.clone();
+                        if let Some(shape) = self
+                            .state
+                            .current
+                            .and_then(|c| self.state.data_sets.get_mut(c))
+                            .and_then(|d| d.shape.as_mut())
+                        {
+                            shape.label = Some(name);
+                        }
+                    }
                 }
             }
             StatementKind::Missing { markers } => self.state.markers = markers.clone(),
@@ -958,6 +971,11 @@ impl<'c> Walk<'c> {
             data_set: self.state.current,
             response: decl.response.value.clone(),
             vars,
+            labels: self
+                .state
+                .current()
+                .and_then(|d| d.shape.as_ref())
+                .and_then(|s| s.label.clone()),
         };
         match self.state.models.iter().position(|m| m.name == entry.name) {
             Some(i) => {

@@ -432,7 +432,9 @@ fn in_prose(
         1 => {
             let k = kind?;
             let mut seen = Vec::new();
-            for (tk, subject) in &a.tables {
+            // `maybe_tables` holds every table a statement computes, those computed only
+            // sometimes (influence) too.
+            for (tk, subject) in &a.maybe_tables {
                 if *tk == k.kind && !seen.contains(subject) {
                     seen.push(subject.clone());
                     out.push(Candidate {
@@ -463,7 +465,11 @@ fn in_prose(
                 }
             }
             if given == k.key_words || given == 0 {
-                for c in k.columns.iter().skip(k.key_words) {
+                let labelled = a.end.model(subject).is_some_and(|m| m.labels.is_some());
+                for c in references::columns(k, labelled)
+                    .into_iter()
+                    .skip(k.key_words)
+                {
                     out.push(Candidate {
                         label: c.to_string(),
                         insert: c.to_string(),

@@ -321,7 +321,25 @@ fn reference_value(a: &Analysis, reference: &str) -> String {
     });
     match rendered {
         Some((file, text)) => match find(&text) {
-            Some(v) => format!("`{reference}` = {v}\n\n(value in the last rendering, \"{file}\")"),
+            Some(v) => {
+                // The rendering is of other blocks when the document has been edited since:
+                // its value may be out of date (a data file may have changed too, which only a
+                // render tells).
+                let codes = |d: &document::Document| -> Vec<String> {
+                    d.blocks.iter().map(|b| b.code.clone()).collect()
+                };
+                let same = match (&a.document, document::parse(&text)) {
+                    (Some(now), Ok(then)) => codes(now) == codes(&then),
+                    _ => false,
+                };
+                if same {
+                    format!("`{reference}` = {v}\n\n(value in the last rendering, \"{file}\")")
+                } else {
+                    format!(
+                        "`{reference}` = {v}\n\n(value in the last rendering, \"{file}\", made before the covey blocks were last changed: render again for the current value)"
+                    )
+                }
+            }
             None => format!("`{reference}`: not rendered yet (\"{file}\" does not show it)"),
         },
         None => format!("`{reference}`: not rendered yet"),

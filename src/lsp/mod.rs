@@ -24,6 +24,7 @@ pub mod navigate;
 pub mod position;
 pub mod references;
 mod server;
+pub mod transport;
 
 use std::path::Path;
 
@@ -32,14 +33,15 @@ pub use server::{file_path, serve, Ending, Options, DEBOUNCE_MS};
 /// Runs the server on standard input and output until the editor ends the session; `Ok` with
 /// how it ended, or why it stopped.
 pub fn run_stdio(options: &Options) -> Result<Ending, String> {
-    let (connection, threads) = lsp_server::Connection::stdio();
+    let (connection, threads) =
+        transport::connect(std::io::BufReader::new(std::io::stdin()), std::io::stdout());
     // On an error the thread reading standard input may still be waiting for input: the
     // process ends without it.
     let ending = serve(&connection, options)?;
     // After `exit` the reader has stopped; the writer stops once the connection is dropped,
     // having written every answer.
     drop(connection);
-    let _ = threads.join();
+    threads.join_writer();
     Ok(ending)
 }
 

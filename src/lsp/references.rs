@@ -186,6 +186,16 @@ pub const KINDS: &[Kind] = &[
     },
 ];
 
+/// The JSON columns of a table of kind `k`; an influence table of a model whose rows are
+/// labelled (`label rows by`) has the label beside each row's number, as the renderer writes it.
+pub fn columns(k: &Kind, labelled: bool) -> Vec<&'static str> {
+    let mut out = k.columns.to_vec();
+    if k.kind == "influence" && labelled {
+        out.insert(1, "label");
+    }
+    out
+}
+
 /// The kind called `name`.
 pub fn kind(name: &str) -> Option<&'static Kind> {
     KINDS.iter().find(|k| k.kind == name)
