@@ -1,6 +1,6 @@
 //! Bounded resources and the smaller cases of "files are sacred", each run by the release
 //! binary: special files (a named pipe, a device) refused at their line and column without
-//! being opened for reading; a factor past the level limit, a model past the memory budget and
+//! being opened for reading, and as a document, a rendering or a figure; a factor past the level limit, a model past the memory budget and
 //! a table of too many pairs refused where they are written; the thread count capped and a bad
 //! value refused; many live references; quoted spaces kept (also in a file large enough to be
 //! read as a stream); a `]` in a quoted name; a refused outside load that says nothing of what
@@ -155,6 +155,57 @@ fn a_device_is_refused_before_it_is_read() {
     let (code, err) = covey(&dir, &["render", "doc.md"]);
     assert_eq!(code, 2, "{err}");
     assert!(err.contains("\"folder.csv\" is a folder"), "{err}");
+}
+
+/// The files covey reads that are not data (the document, its rendering, its figures, for
+/// `covey check`) are refused in the same way when they are not regular files: a document
+/// that is a named pipe or a device used to block, or be read for ever.
+#[cfg(unix)]
+#[test]
+fn a_document_rendering_or_figure_that_is_not_a_file_is_refused() {
+    let dir = scratch("special-document");
+    mkfifo(&dir.join("pipe.md"));
+    for command in ["render", "check"] {
+        let (code, err) = covey(&dir, &[command, "pipe.md"]);
+        assert_eq!(code, 2, "{command}: {err}");
+        assert!(
+            err.contains("pipe.md: cannot read: it is a named pipe (FIFO), not a regular file"),
+            "{command}: {err}"
+        );
+    }
+    let (code, err) = covey(&dir, &["render", "/dev/zero"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("it is a character device, not a regular file"),
+        "{err}"
+    );
+    // A rendering that is a named pipe: check says so instead of waiting on it.
+    write(&dir.join("data.csv"), &grouped(40, 2));
+    write(
+        &dir.join("doc.md"),
+        &doc("load \"data.csv\"\nfactor group\nmodel m: y on group + x\nplot residuals m"),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let figure = std::fs::read_dir(dir.join("doc.figures"))
+        .unwrap_or_else(|e| panic!("{e}"))
+        .filter_map(Result::ok)
+        .map(|e| e.path())
+        .find(|p| p.extension().is_some_and(|x| x == "svg"))
+        .unwrap_or_else(|| panic!("no figure written"));
+    std::fs::remove_file(&figure).unwrap_or_else(|e| panic!("{e}"));
+    mkfifo(&figure);
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 1, "{err}");
+    std::fs::remove_file(&figure).unwrap_or_else(|e| panic!("{e}"));
+    std::fs::remove_file(dir.join("doc.rendered.md")).unwrap_or_else(|e| panic!("{e}"));
+    mkfifo(&dir.join("doc.rendered.md"));
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("cannot read its rendering doc.rendered.md: it is a named pipe (FIFO)"),
+        "{err}"
+    );
 }
 
 #[test]
