@@ -1,6 +1,7 @@
 //! Bounded resources and the smaller cases of "files are sacred", each run by the release
 //! binary: special files (a named pipe, a device) refused at their line and column without
-//! being opened for reading, and as a document, a rendering or a figure; a factor past the level limit, a model past the memory budget and
+//! being opened for reading, and as a document, a rendering or a figure; an error on a huge
+//! line shown in part; a factor past the level limit, a model past the memory budget and
 //! a table of too many pairs refused where they are written; the thread count capped and a bad
 //! value refused; many live references; quoted spaces kept (also in a file large enough to be
 //! read as a stream); a `]` in a quoted name; a refused outside load that says nothing of what
@@ -205,6 +206,60 @@ fn a_document_rendering_or_figure_that_is_not_a_file_is_refused() {
     assert!(
         err.contains("cannot read its rendering doc.rendered.md: it is a named pipe (FIFO)"),
         "{err}"
+    );
+}
+
+/// An error on a very long line shows a window of the line around the place it points at,
+/// and quotes an unexpected word only in part: a line of 100,000 brackets (a syntax error) or
+/// a statement followed by 100,000 spaces (a runtime error, also shown in the rendering) is
+/// not repeated whole on stderr.
+#[test]
+fn an_error_on_a_huge_line_shows_a_window_of_it() {
+    let dir = scratch("huge-line");
+    write(&dir.join("doc.md"), &doc(&"(".repeat(100_000)));
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("doc.md:4:1: error: this line does not start"),
+        "{err}"
+    );
+    assert!(
+        err.contains("(found `((((((((((((((((((((((((((((((((((((((((…`)"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n4 | (((") && err.contains("  | ^^^^"),
+        "{err}"
+    );
+    assert!(err.len() < 2_000, "{} bytes on stderr", err.len());
+    write(&dir.join("d.csv"), &grouped(20, 2));
+    let long = format!("table fit nosuch{}", " ".repeat(100_000));
+    write(
+        &dir.join("doc.md"),
+        &doc(&format!(
+            "load \"d.csv\"\nfactor group\nmodel m: y on group + x\n{long}"
+        )),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("doc.md:7:11: error: there is no model called `nosuch`"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n7 | table fit nosuch") && err.contains("…\n"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n  |           ^^^^^^ unknown model\n"),
+        "{err}"
+    );
+    assert!(err.len() < 2_000, "{} bytes on stderr", err.len());
+    let rendered = read(&dir.join("doc.rendered.md"));
+    assert!(
+        rendered.len() < 2 * long.len() + 3_000,
+        "{} bytes",
+        rendered.len()
     );
 }
 
