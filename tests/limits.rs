@@ -333,6 +333,40 @@ fn a_model_past_the_memory_budget_is_refused_before_it_is_fitted() {
     assert!(covey::model::working_bytes(1800, 6000) < covey::model::MODEL_MEMORY_BUDGET);
 }
 
+/// An interaction of many factors has as many columns as the product of their levels less
+/// one: eight factors of 12 levels make 11⁸ + 1 ≈ 214 million. The columns are counted before
+/// they are listed, so the model is refused at its line at once; it used to list them and run
+/// out of memory (tens of GB) before the budget was looked at.
+#[test]
+fn an_interaction_of_many_factors_is_refused_before_its_columns_are_listed() {
+    let dir = scratch("budget-interaction");
+    let names = ["a", "b", "c", "d", "e", "f", "g", "h"];
+    let mut csv = format!("{},y\n", names.join(","));
+    for i in 0..3000usize {
+        let levels: Vec<String> = (0..names.len())
+            .map(|k| format!("l{}", (i / (k + 1) + k * i) % 12))
+            .collect();
+        csv.push_str(&format!(
+            "{},{}\n",
+            levels.join(","),
+            (i % 13) as f64 * 0.25
+        ));
+    }
+    write(&dir.join("d.csv"), &csv);
+    let factors: String = names.iter().map(|n| format!("factor {n}\n")).collect();
+    write(
+        &dir.join("doc.md"),
+        &doc(&format!(
+            "load \"d.csv\"\n{factors}model m: y on {}",
+            names.join(" by ")
+        )),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("doc.md:13:1: error: the model has "), "{err}");
+    assert!(err.contains("more than covey's limit of 1024 MiB"), "{err}");
+}
+
 #[test]
 fn a_table_of_too_many_pairs_is_refused() {
     let dir = scratch("pairs");
