@@ -200,7 +200,7 @@ struct Ran {
 /// Runs one document from disk.
 fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Ran {
     let stamp = Stamp::of(doc);
-    let bytes = match std::fs::read(doc) {
+    let bytes = match crate::world::read_regular(doc) {
         Ok(b) => b,
         Err(e) => {
             return Ran {
@@ -588,8 +588,16 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         } else {
             doc.clone()
         };
-        let on_disk = match std::fs::read(&target) {
+        let on_disk = match crate::world::read_regular(&target) {
             Ok(b) => String::from_utf8_lossy(&b).into_owned(),
+            Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
+                report.fail(format!(
+                    "{}: cannot read its rendering {}: {e}",
+                    doc.display(),
+                    target.display()
+                ));
+                continue;
+            }
             Err(_) => {
                 report.lines.push(format!(
                     "stale: {} has never been rendered (no {})",
@@ -603,10 +611,13 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         let folder = target.parent().map(Path::to_path_buf).unwrap_or_default();
         let mut figure_problems = Vec::new();
         for (rel, svg) in &run.figures {
-            match std::fs::read(folder.join(rel)) {
+            match crate::world::read_regular(&folder.join(rel)) {
                 Ok(b) if b == svg.as_bytes() => {}
                 Ok(_) => figure_problems.push(format!("figure {rel} differs")),
-                Err(_) => figure_problems.push(format!("figure {rel} is missing")),
+                Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                    figure_problems.push(format!("figure {rel} is missing"));
+                }
+                Err(e) => figure_problems.push(format!("figure {rel} cannot be read: {e}")),
             }
         }
         let diff = match (differences(&run, &on_disk), figure_problems.is_empty()) {

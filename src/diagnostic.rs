@@ -135,6 +135,9 @@ impl<'t> Source<'t> {
         let mut out = NoColor::new(Vec::new());
         let (line, col) = self.lines.line_col(start);
         let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
+        if let Some(snippet) = self.long_line_snippet(d, start, end, line, col) {
+            return visible_except(&(head + &snippet), &['\n', '\t']).into_owned();
+        }
         let text = match term::emit(&mut out, &config, &self.file, &diag) {
             Ok(()) => {
                 // codespan repeats the message on its first line; the head
@@ -189,6 +192,62 @@ fn edit_distance(a: &str, b: &str) -> usize {
         }
     }
     rows[a.len()][b.len()]
+}
+
+/// Lines longer than this many bytes are shown in part, around the place a diagnostic points
+/// at: a line of a megabyte is not repeated whole on the terminal or in the rendering.
+const SHOWN_LINE_BYTES: usize = 200;
+
+impl Source<'_> {
+    /// For a line longer than [`SHOWN_LINE_BYTES`], the snippet that [`Source::render`] writes
+    /// under the head, laid out as codespan lays it out, with only a window of the line
+    /// around the span (`…` where it is cut); `None` for a line short enough to show whole.
+    fn long_line_snippet(
+        &self,
+        d: &Diagnostic,
+        start: usize,
+        end: usize,
+        line: usize,
+        col: usize,
+    ) -> Option<String> {
+        let source = self.lines.source;
+        let line_start = self.lines.starts.get(line - 1).copied().unwrap_or(0);
+        let line_end = source
+            .get(start..)
+            .and_then(|rest| rest.find('\n'))
+            .map_or(source.len(), |i| start + i);
+        let line_end = if source.get(..line_end)?.ends_with('\r') {
+            line_end - 1
+        } else {
+            line_end
+        };
+        if line_end.saturating_sub(line_start) <= SHOWN_LINE_BYTES {
+            return None;
+        }
+        let from =
+            floor_char_boundary(source, start.saturating_sub(SHOWN_LINE_BYTES / 4)).max(line_start);
+        let to = floor_char_boundary(source, (from + SHOWN_LINE_BYTES).min(line_end)).max(start);
+        let window = source.get(from..to)?.replace('\t', " ");
+        let lead = if from > line_start { "…" } else { "" };
+        let tail = if to < line_end { "…" } else { "" };
+        let before = source.get(from..start)?.chars().count() + lead.chars().count();
+        let carets = source.get(start..end.min(to))?.chars().count().max(1);
+        let pad = " ".repeat(line.to_string().len());
+        let mut out = format!("{pad} --> {}:{line}:{col}\n{pad} |\n", self.name);
+        out.push_str(&format!("{line} | {lead}{window}{tail}\n"));
+        out.push_str(&format!(
+            "{pad} | {}{} {}",
+            " ".repeat(before),
+            "^".repeat(carets),
+            d.label
+        ));
+        let mut out = out.trim_end().to_string();
+        if let Some(h) = &d.help {
+            out.push_str(&format!("\n{pad} |\n{pad} = help: {h}"));
+        }
+        out.push('\n');
+        Some(out)
+    }
 }
 
 #[cfg(test)]

@@ -28,10 +28,10 @@ enum Command {
         #[arg(long)]
         in_place: bool,
         /// Folder for the rendered documents (default: beside each source).
-        #[arg(long, value_name = "DIR", conflicts_with = "in_place")]
+        #[arg(long, value_name = "DIR", conflicts_with = "in_place", value_parser = parse_output)]
         out: Option<PathBuf>,
         /// Also write every table as JSON to this file (one document only).
-        #[arg(long, value_name = "PATH")]
+        #[arg(long, value_name = "PATH", value_parser = parse_output)]
         json: Option<PathBuf>,
         /// Go on with the remaining blocks after a statement fails.
         #[arg(long)]
@@ -76,7 +76,7 @@ enum Command {
         #[arg(required = true)]
         paths: Vec<PathBuf>,
         /// Folder the renderings were written to, if not beside each source.
-        #[arg(long, value_name = "DIR")]
+        #[arg(long, value_name = "DIR", value_parser = parse_output)]
         out: Option<PathBuf>,
         /// Let `load` read files outside the document's folder.
         #[arg(long)]
@@ -92,6 +92,19 @@ enum Command {
         #[arg(long = "database", value_name = "NAME=URL", value_parser = parse_database)]
         database: Vec<(String, String)>,
     },
+}
+
+/// The path of `--out` or `--json`. covey writes files only, never a stream: `-`, which
+/// commonly means standard output, would otherwise become a file or a folder named `-`.
+fn parse_output(s: &str) -> Result<PathBuf, String> {
+    if s == "-" {
+        return Err(
+            "covey writes its outputs to files, not to standard output; name a file \
+                    or folder (`./-` for one named `-`)"
+                .to_string(),
+        );
+    }
+    Ok(PathBuf::from(s))
 }
 
 /// `NAME=VALUE` of `--set`.

@@ -373,6 +373,31 @@ pub fn io_error(path: &str, e: &std::io::Error) -> WorldError {
     }
 }
 
+/// The bytes of the regular file at `path` (a document, a rendering, a figure: a file covey
+/// reads that is not data). Anything else is refused before a byte is read, with what it is in
+/// the error: the file is opened without waiting (`O_NONBLOCK`), so a named pipe does not block
+/// the open, and checked on the open file, so a device put in its place cannot be read for ever.
+pub fn read_regular(path: &Path) -> std::io::Result<Vec<u8>> {
+    let mut options = std::fs::OpenOptions::new();
+    options.read(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        options.custom_flags(rustix::fs::OFlags::NONBLOCK.bits() as i32);
+    }
+    let mut file = options.open(path)?;
+    let meta = file.metadata()?;
+    if !meta.is_file() {
+        return Err(std::io::Error::other(format!(
+            "it is {}, not a regular file",
+            kind_of(&meta.file_type())
+        )));
+    }
+    let mut bytes = Vec::new();
+    file.read_to_end(&mut bytes)?;
+    Ok(bytes)
+}
+
 /// Files at least this large are read in pieces side by side.
 const PARALLEL_READ_BYTES: u64 = 1 << 22;
 

@@ -383,6 +383,37 @@ fn a_rendering_is_not_rendered_again() {
     assert!(!dir.join("doc.rendered.rendered.md").exists());
 }
 
+/// `-`, which commonly means standard output, is refused as `--json`, `--out` and a `covey new`
+/// name instead of becoming a file or folder named `-` (which `rm -` and the like then trip
+/// over); nothing is written.
+#[test]
+fn a_dash_is_not_taken_for_a_file_name() {
+    let dir = setup("dash");
+    for args in [
+        &["render", "--json", "-", "doc.md"][..],
+        &["render", "--out", "-", "doc.md"],
+        &["check", "--out", "-", "doc.md"],
+        &["new", "--", "-"],
+        &["new", "--", "-study"],
+    ] {
+        let (code, err) = covey(&dir, args);
+        assert_eq!(code, 2, "{args:?}: {err}");
+        assert!(
+            err.contains("not to standard output") || err.contains("begins with a letter"),
+            "{args:?}: {err}"
+        );
+        assert!(
+            !dir.join("-").exists() && !dir.join("-study").exists(),
+            "{args:?}"
+        );
+        assert!(!dir.join("doc.rendered.md").exists(), "{args:?}");
+    }
+    // A file named `-` is still a path the user can give, written as one.
+    let (code, err) = covey(&dir, &["render", "--json", "./-", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(read(&dir.join("-")).contains("\"outputs\""));
+}
+
 #[test]
 fn covey_new_writes_a_running_starter() {
     let dir = scratch("starter");

@@ -1,6 +1,7 @@
 //! Bounded resources and the smaller cases of "files are sacred", each run by the release
 //! binary: special files (a named pipe, a device) refused at their line and column without
-//! being opened for reading; a factor past the level limit, a model past the memory budget and
+//! being opened for reading, and as a document, a rendering or a figure; an error on a huge
+//! line shown in part; a factor past the level limit, a model past the memory budget and
 //! a table of too many pairs refused where they are written; the thread count capped and a bad
 //! value refused; many live references; quoted spaces kept (also in a file large enough to be
 //! read as a stream); a `]` in a quoted name; a refused outside load that says nothing of what
@@ -157,6 +158,111 @@ fn a_device_is_refused_before_it_is_read() {
     assert!(err.contains("\"folder.csv\" is a folder"), "{err}");
 }
 
+/// The files covey reads that are not data (the document, its rendering, its figures, for
+/// `covey check`) are refused in the same way when they are not regular files: a document
+/// that is a named pipe or a device used to block, or be read for ever.
+#[cfg(unix)]
+#[test]
+fn a_document_rendering_or_figure_that_is_not_a_file_is_refused() {
+    let dir = scratch("special-document");
+    mkfifo(&dir.join("pipe.md"));
+    for command in ["render", "check"] {
+        let (code, err) = covey(&dir, &[command, "pipe.md"]);
+        assert_eq!(code, 2, "{command}: {err}");
+        assert!(
+            err.contains("pipe.md: cannot read: it is a named pipe (FIFO), not a regular file"),
+            "{command}: {err}"
+        );
+    }
+    let (code, err) = covey(&dir, &["render", "/dev/zero"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("it is a character device, not a regular file"),
+        "{err}"
+    );
+    // A rendering that is a named pipe: check says so instead of waiting on it.
+    write(&dir.join("data.csv"), &grouped(40, 2));
+    write(
+        &dir.join("doc.md"),
+        &doc("load \"data.csv\"\nfactor group\nmodel m: y on group + x\nplot residuals m"),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let figure = std::fs::read_dir(dir.join("doc.figures"))
+        .unwrap_or_else(|e| panic!("{e}"))
+        .filter_map(Result::ok)
+        .map(|e| e.path())
+        .find(|p| p.extension().is_some_and(|x| x == "svg"))
+        .unwrap_or_else(|| panic!("no figure written"));
+    std::fs::remove_file(&figure).unwrap_or_else(|e| panic!("{e}"));
+    mkfifo(&figure);
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 1, "{err}");
+    std::fs::remove_file(&figure).unwrap_or_else(|e| panic!("{e}"));
+    std::fs::remove_file(dir.join("doc.rendered.md")).unwrap_or_else(|e| panic!("{e}"));
+    mkfifo(&dir.join("doc.rendered.md"));
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("cannot read its rendering doc.rendered.md: it is a named pipe (FIFO)"),
+        "{err}"
+    );
+}
+
+/// An error on a very long line shows a window of the line around the place it points at,
+/// and quotes an unexpected word only in part: a line of 100,000 brackets (a syntax error) or
+/// a statement followed by 100,000 spaces (a runtime error, also shown in the rendering) is
+/// not repeated whole on stderr.
+#[test]
+fn an_error_on_a_huge_line_shows_a_window_of_it() {
+    let dir = scratch("huge-line");
+    write(&dir.join("doc.md"), &doc(&"(".repeat(100_000)));
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("doc.md:4:1: error: this line does not start"),
+        "{err}"
+    );
+    assert!(
+        err.contains("(found `((((((((((((((((((((((((((((((((((((((((…`)"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n4 | (((") && err.contains("  | ^^^^"),
+        "{err}"
+    );
+    assert!(err.len() < 2_000, "{} bytes on stderr", err.len());
+    write(&dir.join("d.csv"), &grouped(20, 2));
+    let long = format!("table fit nosuch{}", " ".repeat(100_000));
+    write(
+        &dir.join("doc.md"),
+        &doc(&format!(
+            "load \"d.csv\"\nfactor group\nmodel m: y on group + x\n{long}"
+        )),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("doc.md:7:11: error: there is no model called `nosuch`"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n7 | table fit nosuch") && err.contains("…\n"),
+        "{err}"
+    );
+    assert!(
+        err.contains("\n  |           ^^^^^^ unknown model\n"),
+        "{err}"
+    );
+    assert!(err.len() < 2_000, "{} bytes on stderr", err.len());
+    let rendered = read(&dir.join("doc.rendered.md"));
+    assert!(
+        rendered.len() < 2 * long.len() + 3_000,
+        "{} bytes",
+        rendered.len()
+    );
+}
+
 #[test]
 fn an_outside_load_says_nothing_of_what_is_there() {
     let dir = scratch("outside");
@@ -225,6 +331,40 @@ fn a_model_past_the_memory_budget_is_refused_before_it_is_fitted() {
     );
     assert!(covey::model::working_bytes(3001, 6000) > covey::model::MODEL_MEMORY_BUDGET);
     assert!(covey::model::working_bytes(1800, 6000) < covey::model::MODEL_MEMORY_BUDGET);
+}
+
+/// An interaction of many factors has as many columns as the product of their levels less
+/// one: eight factors of 12 levels make 11⁸ + 1 ≈ 214 million. The columns are counted before
+/// they are listed, so the model is refused at its line at once; it used to list them and run
+/// out of memory (tens of GB) before the budget was looked at.
+#[test]
+fn an_interaction_of_many_factors_is_refused_before_its_columns_are_listed() {
+    let dir = scratch("budget-interaction");
+    let names = ["a", "b", "c", "d", "e", "f", "g", "h"];
+    let mut csv = format!("{},y\n", names.join(","));
+    for i in 0..3000usize {
+        let levels: Vec<String> = (0..names.len())
+            .map(|k| format!("l{}", (i / (k + 1) + k * i) % 12))
+            .collect();
+        csv.push_str(&format!(
+            "{},{}\n",
+            levels.join(","),
+            (i % 13) as f64 * 0.25
+        ));
+    }
+    write(&dir.join("d.csv"), &csv);
+    let factors: String = names.iter().map(|n| format!("factor {n}\n")).collect();
+    write(
+        &dir.join("doc.md"),
+        &doc(&format!(
+            "load \"d.csv\"\n{factors}model m: y on {}",
+            names.join(" by ")
+        )),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("doc.md:13:1: error: the model has "), "{err}");
+    assert!(err.contains("more than covey's limit of 1024 MiB"), "{err}");
 }
 
 #[test]

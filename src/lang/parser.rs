@@ -10,6 +10,8 @@ use super::ast::*;
 /// model anyone fits on purpose (its coefficients are determined to a few digits at best).
 const MIN_POWER: u32 = 2;
 const MAX_POWER: u32 = 10;
+/// How many characters of an unexpected word a syntax error quotes.
+const FOUND_CHARS: usize = 40;
 
 #[derive(Parser)]
 #[grammar = "../grammar/covey.pest"]
@@ -120,7 +122,13 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
     let found = if rest.trim().is_empty() {
         "the end of the line".to_string()
     } else {
-        format!("`{}`", rest.get(..word_len).unwrap_or(rest))
+        // A word is quoted whole up to a few dozen characters: a line of a million brackets
+        // is not repeated in the message.
+        let word = rest.get(..word_len).unwrap_or(rest);
+        match word.char_indices().nth(FOUND_CHARS) {
+            Some((cut, _)) => format!("`{}…`", word.get(..cut).unwrap_or(word)),
+            None => format!("`{word}`"),
+        }
     };
     let message = match &e.variant {
         ErrorVariant::ParsingError { positives, .. } => {

@@ -642,12 +642,15 @@ fn contrast_coded(spec: &ModelSpec, t: usize, var: usize) -> bool {
 }
 
 /// The design columns (intercept first, then each term's columns) and, for each term, the
-/// indices of its columns.
+/// indices of its columns; or, when there would be more than `limit` of them, how many there
+/// would be (at most `usize::MAX`), found before any is listed: an interaction of many
+/// factors can have more columns than memory holds.
 pub(crate) fn columns(
     spec: &ModelSpec,
     lay: &Layout,
     scheme: Scheme,
-) -> (Vec<Column>, Vec<Vec<usize>>) {
+    limit: usize,
+) -> Result<(Vec<Column>, Vec<Vec<usize>>), usize> {
     let mut cols = Vec::new();
     if spec.intercept {
         cols.push(Column {
@@ -735,7 +738,14 @@ pub(crate) fn columns(
             }
         }
         // Cartesian product, last part varying fastest (a2:b2, a2:b3, a3:b2, ...).
-        let total: usize = choices.iter().map(|c| c.len()).product();
+        let total = choices
+            .iter()
+            .try_fold(1usize, |all, c| all.checked_mul(c.len()))
+            .unwrap_or(usize::MAX);
+        let count = cols.len().saturating_add(total);
+        if count > limit {
+            return Err(count);
+        }
         let mut idx = Vec::new();
         for k in 0..total {
             let mut picks: Vec<&(ColPart, String)> = Vec::with_capacity(choices.len());
@@ -766,7 +776,7 @@ pub(crate) fn columns(
             first.name = INTERCEPT_RENAMED.to_string();
         }
     }
-    (cols, term_cols)
+    Ok((cols, term_cols))
 }
 
 /// The label of the constant column, in tables and JSON.

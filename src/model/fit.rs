@@ -193,7 +193,8 @@ fn invert_upper(t: &Mat) -> Mat {
 fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
     let lay = design::layout(&spec)?;
     let n = lay.used.len();
-    let (tcols, tterms) = design::columns(&spec, &lay, Scheme::Treatment);
+    let (tcols, tterms) = design::columns(&spec, &lay, Scheme::Treatment, MAX_COLUMNS)
+        .map_err(|p| too_many_columns(p, n))?;
     let p = tcols.len();
     if p == 0 {
         return Err(ModelError::EmptyModel);
@@ -208,7 +209,8 @@ fn fit_spec(spec: ModelSpec) -> Result<Fit, ModelError> {
         Var::Numeric { values, .. } => values,
         Var::Factor { .. } => return Err(ModelError::ResponseNotNumeric),
     };
-    let (ecols, eterms) = design::columns(&spec, &lay, Scheme::Effect);
+    let (ecols, eterms) = design::columns(&spec, &lay, Scheme::Effect, MAX_COLUMNS)
+        .map_err(|p| too_many_columns(p, n))?;
     let eng = build_engine(&spec, &lay, y, (tcols, tterms), (ecols, eterms))?;
     let all: Vec<usize> = (0..p).collect();
     let g = eng.graded(&eng.a, &all);
@@ -375,6 +377,21 @@ pub fn working_bytes(p: usize, n: usize) -> usize {
         .saturating_mul(FACTORED_AT_ONCE)
         .saturating_add(square.saturating_mul(FACTORED_AT_ONCE + 4));
     matrices.saturating_mul(std::mem::size_of::<f64>())
+}
+
+/// More design columns than this can never be fitted within [`MODEL_MEMORY_BUDGET`]: their two
+/// codings alone, `2 p²` doubles, would exceed it. The columns are counted before they are
+/// listed, and a model with more is refused then.
+const MAX_COLUMNS: usize = 8192;
+
+/// The error for a model of `p` design columns (more than [`MAX_COLUMNS`]) on `n` rows.
+fn too_many_columns(p: usize, n: usize) -> ModelError {
+    within_budget(p, p, n)
+        .err()
+        .unwrap_or(ModelError::TooLarge {
+            coefficients: p,
+            megabytes: MODEL_MEMORY_BUDGET >> 20,
+        })
 }
 
 /// Refuses a fit whose factorisation of `q` monomials on `n` rows, with the two codings of

@@ -1792,7 +1792,8 @@ fn type3_from_the_shared_monomials_matches_raw_columns() {
     for (k, spec) in specs.iter().enumerate() {
         let f = fit(spec).expect("fits");
         let a3 = f.anova(SsType::III).expect("type III");
-        let (ecols, eterms) = design::columns(&f.spec, &f.lay, design::Scheme::Effect);
+        let (ecols, eterms) = design::columns(&f.spec, &f.lay, design::Scheme::Effect, usize::MAX)
+            .unwrap_or_else(|p| panic!("{p} columns"));
         let y = match &f.spec.response {
             Var::Numeric { values, .. } => values.to_vec(),
             Var::Factor { .. } => Vec::new(),

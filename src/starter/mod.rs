@@ -12,14 +12,16 @@ const DATA: &str = include_str!("example.csv");
 /// Refuses when the folder exists, so nothing of the user's is overwritten.
 /// Returns the document's path.
 pub fn create(parent: &Path, name: &str) -> Result<PathBuf, FileError> {
-    let valid = !name.is_empty()
+    let valid = name.starts_with(|c: char| c.is_ascii_alphanumeric())
         && name
             .chars()
             .all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_');
     if !valid {
         return Err(FileError {
             path: PathBuf::from(name),
-            message: "a name for `covey new` uses letters, digits, `-` and `_` only".into(),
+            message: "a name for `covey new` begins with a letter or a digit and uses letters, \
+                      digits, `-` and `_` only"
+                .into(),
         });
     }
     let folder = parent.join(name);
