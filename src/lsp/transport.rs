@@ -62,7 +62,9 @@ fn read_all(mut input: impl BufRead, server: &Sender<Message>, replies: &Sender<
             Ok(Some(body)) => body,
             Ok(None) => return,
             Err(e) => {
-                eprintln!("covey lsp: a message's header cannot be read ({e}); it is skipped");
+                note(format_args!(
+                    "a message's header cannot be read ({e}); it is skipped"
+                ));
                 continue;
             }
         };
@@ -81,7 +83,7 @@ fn message(body: &[u8], replies: &Sender<Message>) -> Option<Message> {
     let value: Value = match serde_json::from_slice(body) {
         Ok(v) => v,
         Err(e) => {
-            eprintln!("covey lsp: a message is not JSON ({e}); it is skipped");
+            note(format_args!("a message is not JSON ({e}); it is skipped"));
             return None;
         }
     };
@@ -106,7 +108,9 @@ fn message(body: &[u8], replies: &Sender<Message>) -> Option<Message> {
                         format!("the request cannot be read: {e}"),
                     )));
                 }
-                _ => eprintln!("covey lsp: a message cannot be read ({e}); it is skipped"),
+                _ => note(format_args!(
+                    "a message cannot be read ({e}); it is skipped"
+                )),
             }
             None
         }
@@ -161,4 +165,10 @@ fn read_frame(input: &mut impl BufRead) -> io::Result<Option<Vec<u8>>> {
         return Ok(None);
     }
     Ok(Some(body))
+}
+
+/// A line on standard error about a message that was skipped; a closed or full stderr is
+/// no reason to end the session, so a failed write is let go.
+fn note(what: std::fmt::Arguments) {
+    let _ = writeln!(io::stderr().lock(), "covey lsp: {what}");
 }
