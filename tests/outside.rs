@@ -20,16 +20,21 @@ fn read(name: &str) -> String {
     std::fs::read_to_string(format!("{DIR}{name}")).unwrap_or_else(|e| panic!("{name}: {e}"))
 }
 
-fn render() -> Value {
+/// The checked document run on its data, in memory.
+fn run_document() -> pipeline::Run {
     let data = read("outside.csv");
     let world = MemoryWorld::new().with("outside.csv", data.into_bytes());
-    let run = pipeline::run(
+    pipeline::run(
         &read("outside.md"),
         "outside.md",
         &world,
         RunOptions::default(),
     )
-    .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")));
+    .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")))
+}
+
+fn render() -> Value {
+    let run = run_document();
     assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
     run.json()
 }
@@ -101,15 +106,7 @@ fn every_number_agrees_with_exact_arithmetic_and_scipy() {
 /// mean) in the adjusted means' caption and in a live reference.
 #[test]
 fn a_centred_covariate_shows_its_mean_as_zero() {
-    let data = read("outside.csv");
-    let world = MemoryWorld::new().with("outside.csv", data.into_bytes());
-    let run = pipeline::run(
-        &read("outside.md"),
-        "outside.md",
-        &world,
-        RunOptions::default(),
-    )
-    .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let run = run_document();
     let md = &run.rendered;
     assert!(md.contains("| all | 24 | 0 | 0.000 | 5.637 |"), "{md}");
     assert!(md.contains("with `xc` at its mean 0.000 "), "{md}");
