@@ -620,6 +620,7 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
                 Err(e) => figure_problems.push(format!("figure {rel} cannot be read: {e}")),
             }
         }
+        figure_problems.extend(manifest_problem(&folder, doc, &run.figures));
         let diff = match (differences(&run, &on_disk), figure_problems.is_empty()) {
             (None, true) => None,
             (None, false) => Some(figure_problems),
@@ -642,6 +643,42 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         }
     }
     report
+}
+
+/// What is wrong with the figures folder's list of covey's figures
+/// ([`files::manifest`]), or None when it holds exactly what a fresh render
+/// would leave there: the list of `figures` when there are any, and no list
+/// of covey's when there are none (a render removes it).
+fn manifest_problem(folder: &Path, doc: &Path, figures: &[(String, String)]) -> Option<String> {
+    let path = files::figures_dir(Path::new(""), doc).join(files::manifest::FILE_NAME);
+    let on_disk = crate::world::read_regular(&folder.join(&path));
+    let rel = path.display();
+    if figures.is_empty() {
+        return match on_disk {
+            Ok(b) if files::manifest::parse(&b).is_some() => Some(format!(
+                "figure list {rel} is left from an earlier rendering that drew figures"
+            )),
+            _ => None,
+        };
+    }
+    let listed: Vec<(String, Digest)> = figures
+        .iter()
+        .map(|(path, svg)| {
+            let name = Path::new(path)
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default();
+            (name, Digest::of(svg.as_bytes()))
+        })
+        .collect();
+    match on_disk {
+        Ok(b) if b == files::manifest::text(&listed).as_bytes() => None,
+        Ok(_) => Some(format!("figure list {rel} differs")),
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+            Some(format!("figure list {rel} is missing"))
+        }
+        Err(e) => Some(format!("figure list {rel} cannot be read: {e}")),
+    }
 }
 
 /// What differs between a fresh run and the rendering on disk, or None

@@ -510,6 +510,54 @@ fn figures_are_written_and_stale_ones_removed() {
 }
 
 #[test]
+fn check_compares_the_figure_list_too() {
+    let dir = setup("figure-list");
+    write(
+        &dir.join("doc.md"),
+        &DOC.replace(
+            "table summary y by group\n",
+            "table summary y by group\nmodel m: y on group + x\nplot lines m\n",
+        ),
+    );
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert_eq!(covey(&dir, &["check", "doc.md"]).0, 0);
+    let list = dir.join("doc.figures/covey-figures.sha256");
+    let written = read(&list);
+    let stale = |dir: &Path, what: &str| {
+        let (code, err) = covey(dir, &["check", "doc.md"]);
+        assert_eq!(code, 1, "{err}");
+        assert!(err.contains("stale: doc.md"), "{err}");
+        assert!(
+            err.contains(&format!(
+                "figure list doc.figures/covey-figures.sha256 {what}"
+            )),
+            "{err}"
+        );
+    };
+    // Junk appended, a line edited, the list removed: each is not what a render writes.
+    write(&list, &format!("{written}junk\n"));
+    stale(&dir, "differs");
+    write(&list, &written.replacen("block1-1.svg", "block1-9.svg", 1));
+    stale(&dir, "differs");
+    std::fs::remove_file(&list).unwrap();
+    stale(&dir, "is missing");
+    // A render puts it right again.
+    assert_eq!(covey(&dir, &["render", "doc.md"]).0, 0);
+    assert_eq!(read(&list), written);
+    assert_eq!(covey(&dir, &["check", "doc.md"]).0, 0);
+    // A document that no longer draws figures: a render removes covey's list,
+    // so one put back is stale.
+    write(&dir.join("doc.md"), DOC);
+    assert_eq!(covey(&dir, &["render", "doc.md"]).0, 0);
+    assert!(!list.exists());
+    assert_eq!(covey(&dir, &["check", "doc.md"]).0, 0);
+    std::fs::create_dir_all(dir.join("doc.figures")).unwrap();
+    write(&list, &written);
+    stale(&dir, "is left from an earlier rendering");
+}
+
+#[test]
 fn redefining_a_model_is_said() {
     let dir = setup("redefine");
     write(

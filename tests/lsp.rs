@@ -643,6 +643,85 @@ fn hover_shows_the_value_of_the_last_rendering() {
     assert!(shown.text.contains(&format!("= {value}")), "{}", shown.text);
 }
 
+/// A rendering made before a data file changed shows its value with a note, told by the
+/// SHA-256 in its provenance region; rendering again makes the note go.
+#[test]
+fn hover_tells_a_rendering_made_from_other_data() {
+    let dir = workspace("rendered-data");
+    let path = dir.join("doc.md");
+    std::fs::write(&path, DOC).unwrap_or_else(|e| panic!("{e}"));
+    let render = || {
+        let report = covey::render(
+            std::slice::from_ref(&path),
+            &covey::RenderOptions::default(),
+        );
+        assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
+    };
+    render();
+    let u = uri(&path);
+    let (mut c, _) = Client::initialized(Options::default(), json!({}));
+    c.open(&u, DOC);
+    c.diagnostics(&u);
+    let (line, ch) = pos(DOC, "@[anova", 4);
+    let mut hover = || {
+        let h = c.at("textDocument/hover", &u, line, ch);
+        h["contents"]["value"].as_str().unwrap_or("").to_string()
+    };
+    let told = hover();
+    assert!(told.contains("doc.rendered.md"), "{told}");
+    assert!(!told.contains("render again"), "{told}");
+    // One row more in the data file (its first row again): the rendering is of other data.
+    let csv = dir.join("data/rations.csv");
+    let text = std::fs::read_to_string(&csv).unwrap_or_default();
+    let first_row = text.lines().nth(1).unwrap_or_default().to_string();
+    std::fs::write(&csv, format!("{text}{first_row}\n")).unwrap_or_else(|e| panic!("{e}"));
+    let told = hover();
+    assert!(
+        told.contains(
+            "made from other data than the files now hold: render again for the current value"
+        ),
+        "{told}"
+    );
+    assert!(!told.contains("covey blocks"), "{told}");
+    // Rendered again from the file as it is now: no note.
+    render();
+    let told = hover();
+    assert!(!told.contains("render again"), "{told}");
+    assert_eq!(c.shutdown(), Ending::Clean);
+    // Rendered in place, the document's own provenance region is compared.
+    let in_place = covey::RenderOptions {
+        in_place: true,
+        ..covey::RenderOptions::default()
+    };
+    let report = covey::render(std::slice::from_ref(&path), &in_place);
+    assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
+    let text = std::fs::read_to_string(&path).unwrap_or_default();
+    let at = text.find("@[anova").unwrap_or(0) + 4;
+    let mut checker = Checker::new(false);
+    let a = checker.check(&text, &path);
+    let shown = checker.hover(&a, at).unwrap_or_else(|| panic!("no hover"));
+    assert!(shown.text.contains("rendering in place)"), "{}", shown.text);
+    std::fs::write(&csv, without_last_line(&csv)).unwrap_or_else(|e| panic!("{e}"));
+    let shown = checker.hover(&a, at).unwrap_or_else(|| panic!("no hover"));
+    assert!(
+        shown
+            .text
+            .contains("made from other data than the files now hold"),
+        "{}",
+        shown.text
+    );
+}
+
+/// The data file less its last line.
+fn without_last_line(csv: &Path) -> String {
+    let text = std::fs::read_to_string(csv).unwrap_or_default();
+    let body = text.strip_suffix('\n').unwrap_or(&text);
+    format!(
+        "{}\n",
+        body.rsplit_once('\n').map_or(body, |(head, _)| head)
+    )
+}
+
 /// The first line of each renderer error: (line, column, message), or (line, 0, message) for a
 /// problem given as `file: line L, column C: ...`.
 fn renderer_errors(errors: &[String], file: &str) -> Vec<(usize, usize, String)> {

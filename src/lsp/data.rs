@@ -175,6 +175,20 @@ pub struct DataCache {
     entries: BTreeMap<Key, Entry>,
     /// Where files to read go; `None` reads them at once, on the caller's thread.
     jobs: Option<Sender<Job>>,
+    /// The SHA-256 of each data file a hover compared with a rendering's provenance, by
+    /// document folder and path as written, kept while the file's fingerprint stays the same.
+    digests: BTreeMap<(PathBuf, String), (Fingerprint, String)>,
+}
+
+/// What a hover knows of a data file's SHA-256.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FileDigest {
+    /// In hex, as a rendering's provenance region writes it.
+    Known(String),
+    /// Not read: the file is larger than the hover reads.
+    TooLarge,
+    /// Not readable (the document's diagnostics say why).
+    Unreadable,
 }
 
 impl DataCache {
@@ -185,6 +199,7 @@ impl DataCache {
             allow_outside,
             entries: BTreeMap::new(),
             jobs: None,
+            digests: BTreeMap::new(),
         }
     }
 
@@ -194,6 +209,7 @@ impl DataCache {
             allow_outside,
             entries: BTreeMap::new(),
             jobs: Some(jobs),
+            digests: BTreeMap::new(),
         }
     }
 
@@ -252,6 +268,33 @@ impl DataCache {
                     .insert(key, Entry::Done(fingerprint, lookup.clone()));
                 lookup
             }
+        }
+    }
+
+    /// The SHA-256 of the file that a document in `folder` loads as `path`, read through the
+    /// same confined access as its data and kept while its fingerprint stays the same. A file
+    /// not known yet is read only up to `limit` bytes.
+    pub fn digest(&mut self, folder: &Path, path: &str, limit: u64) -> FileDigest {
+        let world = FsWorld::new(folder, self.allow_outside);
+        let Ok(fingerprint) = world.fingerprint(path) else {
+            return FileDigest::Unreadable;
+        };
+        let key = (folder.to_path_buf(), path.to_string());
+        if let Some((f, hex)) = self.digests.get(&key) {
+            if *f == fingerprint {
+                return FileDigest::Known(hex.clone());
+            }
+        }
+        if fingerprint.len > limit {
+            return FileDigest::TooLarge;
+        }
+        match crate::world::World::read(&world, path) {
+            Ok(bytes) => {
+                let hex = crate::files::Digest::of(&bytes).hex();
+                self.digests.insert(key, (fingerprint, hex.clone()));
+                FileDigest::Known(hex)
+            }
+            Err(_) => FileDigest::Unreadable,
         }
     }
 

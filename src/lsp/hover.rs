@@ -10,7 +10,7 @@ use crate::lang::{Span, StatementKind};
 use crate::world::{FsWorld, World};
 
 use super::analysis::{Analysis, State};
-use super::data::{rows_used, DataCache, Lookup};
+use super::data::{rows_used, DataCache, FileDigest, Lookup};
 use super::names::{NameUse, Role};
 use super::position::{Encoding, Lines};
 
@@ -56,7 +56,7 @@ pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
                 start: r.start,
                 end: r.end,
             }),
-            text: reference_value(a, &r.text),
+            text: reference_value(a, data, &r.text),
         });
     }
     if let Some((span, name)) = parameter_at(a.source(), at_source) {
@@ -297,8 +297,9 @@ fn level_text(state: &State, u: &NameUse) -> Option<String> {
 
 /// The value the last rendering shows for a reference: the document's own value regions (when
 /// it was rendered in place), else `NAME.rendered.md` beside it, read through the same confined
-/// access as data files.
-fn reference_value(a: &Analysis, reference: &str) -> String {
+/// access as data files. The value is told as out of date when the rendering was made from
+/// other covey blocks, or from other data than the files it records now hold.
+fn reference_value(a: &Analysis, data: &mut DataCache, reference: &str) -> String {
     let find = |text: &str| {
         document::rendered_values(text)
             .into_iter()
@@ -306,8 +307,10 @@ fn reference_value(a: &Analysis, reference: &str) -> String {
             .map(|(_, v)| v)
     };
     if let Some(v) = find(&a.text) {
+        let (notes, more) = data_notes(a, data, &a.text, Vec::new());
         return format!(
-            "`{reference}` = {v}\n\n(value in this document's last rendering in place)"
+            "`{reference}` = {v}\n\n(value in this document's last rendering in place{}){more}",
+            joined(&notes)
         );
     }
     let rendered = a.path.as_ref().and_then(|p| {
@@ -323,8 +326,7 @@ fn reference_value(a: &Analysis, reference: &str) -> String {
         Some((file, text)) => match find(&text) {
             Some(v) => {
                 // The rendering is of other blocks when the document has been edited since:
-                // its value may be out of date (a data file may have changed too, which only a
-                // render tells).
+                // its value may be out of date.
                 let codes = |d: &document::Document| -> Vec<String> {
                     d.blocks.iter().map(|b| b.code.clone()).collect()
                 };
@@ -332,16 +334,89 @@ fn reference_value(a: &Analysis, reference: &str) -> String {
                     (Some(now), Ok(then)) => codes(now) == codes(&then),
                     _ => false,
                 };
-                if same {
-                    format!("`{reference}` = {v}\n\n(value in the last rendering, \"{file}\")")
-                } else {
-                    format!(
-                        "`{reference}` = {v}\n\n(value in the last rendering, \"{file}\", made before the covey blocks were last changed: render again for the current value)"
-                    )
+                let mut notes = Vec::new();
+                if !same {
+                    notes.push("made before the covey blocks were last changed");
                 }
+                let (notes, more) = data_notes(a, data, &text, notes);
+                format!(
+                    "`{reference}` = {v}\n\n(value in the last rendering, \"{file}\"{}){more}",
+                    joined(&notes)
+                )
             }
             None => format!("`{reference}`: not rendered yet (\"{file}\" does not show it)"),
         },
         None => format!("`{reference}`: not rendered yet"),
+    }
+}
+
+/// The notes of [`reference_value`] after the rendering's name: ", NOTE and NOTE: render again
+/// for the current value", or nothing.
+fn joined(notes: &[&str]) -> String {
+    if notes.is_empty() {
+        return String::new();
+    }
+    format!(
+        ", {}: render again for the current value",
+        notes.join(" and ")
+    )
+}
+
+/// `notes`, with a note when the rendering `text` was made from other data than its files now
+/// hold: a file the document loads whose rows in the rendering's provenance region lack the
+/// file's current SHA-256. A file the region does not list, or that cannot be read, is not
+/// compared; one larger than [`HOVER_READ_LIMIT`] and not read yet is said to be left
+/// uncompared, in the paragraph returned beside the notes.
+fn data_notes(
+    a: &Analysis,
+    data: &mut DataCache,
+    text: &str,
+    mut notes: Vec<&'static str>,
+) -> (Vec<&'static str>, String) {
+    let provenance = document::split_rendered(text)
+        .ok()
+        .and_then(|r| r.provenance);
+    let (Some(provenance), Some(folder)) = (provenance, a.folder()) else {
+        return (notes, String::new());
+    };
+    let mut changed = false;
+    let mut too_large = false;
+    for stmt in a.statements() {
+        let StatementKind::Load { path, .. } = &stmt.kind else {
+            continue;
+        };
+        // The rows of its file in the table of inputs: "| `PATH` |", or "| `PATH`, PART |".
+        let cell = format!("| {}", crate::report::markdown::code_in_cell(&path.value));
+        let rows: Vec<&str> = provenance
+            .lines()
+            .filter(|l| {
+                l.strip_prefix(&cell)
+                    .is_some_and(|rest| rest.starts_with(" |") || rest.starts_with(", "))
+            })
+            .collect();
+        if rows.is_empty() {
+            continue;
+        }
+        match data.digest(folder, &path.value, HOVER_READ_LIMIT) {
+            FileDigest::Known(hex) => {
+                if !rows.iter().any(|r| r.contains(&format!("`{hex}`"))) {
+                    changed = true;
+                }
+            }
+            FileDigest::TooLarge => too_large = true,
+            FileDigest::Unreadable => {}
+        }
+    }
+    if changed {
+        notes.push("made from other data than the files now hold");
+        (notes, String::new())
+    } else if too_large {
+        let more = format!(
+            "\n\n(data files over {} MiB are not compared with the rendering here: `covey check` tells whether it is current)",
+            HOVER_READ_LIMIT >> 20
+        );
+        (notes, more)
+    } else {
+        (notes, String::new())
     }
 }
