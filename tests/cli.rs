@@ -421,6 +421,16 @@ fn covey_new_writes_a_running_starter() {
     assert_eq!(code, 0, "{err}");
     let doc = dir.join("first-study/first-study.md");
     assert!(doc.exists() && dir.join("first-study/data/example.csv").exists());
+    // The starter's own prose carries the whole caution (README, "Caution"), not a part of it.
+    let prose = read(&doc).split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        prose.contains(
+            "*Caution.* These results support, and do not replace, review by a qualified \
+             statistician. Decisions about health, clinical care or safety follow the applicable \
+             guidelines and local regulations."
+        ),
+        "{prose}"
+    );
     let (code, err) = covey(&dir, &["render", "first-study/first-study.md"]);
     assert_eq!(code, 0, "the starter renders: {err}");
     let rendered = read(&dir.join("first-study/first-study.rendered.md"));
