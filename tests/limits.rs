@@ -305,7 +305,7 @@ fn a_factor_past_the_level_limit_is_refused_at_its_statement() {
     let (code, err) = covey(&dir, &["render", "doc.md"]);
     assert_eq!(code, 2, "{err}");
     assert!(
-        err.contains("doc.md:5:8: error: column 'group' has more than 10000 distinct values"),
+        err.contains("doc.md:5:8: error: column `group` has more than 10000 distinct values"),
         "{err}"
     );
     assert!(err.contains("first occurs at line 10002"), "{err}");
