@@ -414,7 +414,41 @@ pub fn prepare(paths: &[PathBuf], opts: &RenderOptions) -> Prepared {
             docs.len()
         ));
     }
+    if let Some(out) = &opts.out_dir {
+        if let Err(line) = out_folder(out) {
+            return Prepared::failed(line);
+        }
+    }
     prepare_documents(&docs, &|_| true, opts, &[])
+}
+
+/// Refuses an `--out` that is, or lies under, something other than a folder (a regular file,
+/// say), with one line naming it, before anything runs: otherwise every output path under it
+/// fails on its own with the system's "Not a directory". A folder that does not exist yet is
+/// made when the renderings are written.
+fn out_folder(out: &Path) -> Result<(), String> {
+    for at in out.ancestors().filter(|a| !a.as_os_str().is_empty()) {
+        match std::fs::metadata(at) {
+            Ok(m) if m.is_dir() => return Ok(()),
+            Ok(_) if at == out => {
+                return Err(format!(
+                    "{}: --out must be a folder for the renderings, and this is a file; name a \
+                     folder (one that does not exist yet is made); nothing was written",
+                    out.display()
+                ))
+            }
+            Ok(_) => {
+                return Err(format!(
+                    "{}: --out must be a folder for the renderings, but {} is a file; name a \
+                     folder (one that does not exist yet is made); nothing was written",
+                    out.display(),
+                    at.display()
+                ))
+            }
+            Err(_) => continue,
+        }
+    }
+    Ok(())
 }
 
 /// Runs the documents of `docs` that `selected` picks and plans their

@@ -421,6 +421,16 @@ fn covey_new_writes_a_running_starter() {
     assert_eq!(code, 0, "{err}");
     let doc = dir.join("first-study/first-study.md");
     assert!(doc.exists() && dir.join("first-study/data/example.csv").exists());
+    // The starter's own prose carries the whole caution (README, "Caution"), not a part of it.
+    let prose = read(&doc).split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(
+        prose.contains(
+            "*Caution.* These results support, and do not replace, review by a qualified \
+             statistician. Decisions about health, clinical care or safety follow the applicable \
+             guidelines and local regulations."
+        ),
+        "{prose}"
+    );
     let (code, err) = covey(&dir, &["render", "first-study/first-study.md"]);
     assert_eq!(code, 0, "the starter renders: {err}");
     let rendered = read(&dir.join("first-study/first-study.rendered.md"));
@@ -570,4 +580,37 @@ fn redefining_a_model_is_said() {
         err.contains("m.md:5: warning: This replaces the earlier model `m`"),
         "{err}"
     );
+}
+
+/// `--out` naming a regular file used to give one "Not a directory" line per output path; now
+/// one line names it and says it must be a folder, and nothing is written.
+#[test]
+fn render_out_that_is_a_file_is_refused_in_one_line() {
+    let dir = setup("out-is-a-file");
+    write(&dir.join("second.md"), DOC);
+    write(&dir.join("notes.txt"), "mine\n");
+    let (code, err) = covey(
+        &dir,
+        &["render", "doc.md", "second.md", "--out", "notes.txt"],
+    );
+    assert_eq!(code, 2, "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.starts_with("notes.txt: --out must be a folder for the renderings, and this is a file"),
+        "{err}"
+    );
+    assert!(err.contains("nothing was written"), "{err}");
+    assert!(!err.contains("Not a directory"), "{err}");
+    // A folder under the file is refused the same way, naming the file.
+    let (code, err) = covey(&dir, &["render", "doc.md", "--out", "notes.txt/out"]);
+    assert_eq!(code, 2, "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains(
+            "notes.txt/out: --out must be a folder for the renderings, but notes.txt is a file"
+        ),
+        "{err}"
+    );
+    assert_eq!(read(&dir.join("notes.txt")), "mine\n");
+    assert!(!dir.join("doc.rendered.md").exists() && !dir.join("second.rendered.md").exists());
 }

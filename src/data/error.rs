@@ -128,7 +128,7 @@ impl fmt::Display for LoadError {
             LoadError::BadDelimiter { delimiter } => write!(
                 f,
                 "the delimiter {:?} cannot separate fields; choose an ASCII character other than \
-                 the double quote and the line break (for example ',' or a tab)",
+                 the double quote and the line break (for example `,` or a tab)",
                 char::from(*delimiter)
             ),
             LoadError::NulByte { line } => write!(
@@ -149,7 +149,7 @@ impl fmt::Display for LoadError {
             LoadError::NonUtf8 { line, column, name } => match name {
                 Some(name) => write!(
                     f,
-                    "line {line}, column {column} ('{name}') holds bytes that are not valid UTF-8; \
+                    "line {line}, column {column} (`{name}`) holds bytes that are not valid UTF-8; \
                      save the file as UTF-8 and load it again"
                 ),
                 None => write!(
@@ -170,7 +170,7 @@ impl fmt::Display for LoadError {
                 positions,
             } => write!(
                 f,
-                "the header (line {line}) uses the name '{name}' for columns {}; give every column \
+                "the header (line {line}) uses the name `{name}` for columns {}; give every column \
                  a different name",
                 list_positions(positions)
             ),
@@ -196,13 +196,13 @@ impl fmt::Display for LoadError {
                 suggestion,
             } => write!(
                 f,
-                "line {line}, column {column} ('{name}'): '{text}' {} in a column of numbers; {}",
+                "line {line}, column {column} (`{name}`): `{text}` {} in a column of numbers; {}",
                 suggestion.reason(),
                 suggestion.advice(text)
             ),
             LoadError::TooManyTexts { line, name } => write!(
                 f,
-                "line {line}: column '{name}' has more distinct texts than covey can hold; \
+                "line {line}: column `{name}` has more distinct texts than covey can hold; \
                  split the file"
             ),
             LoadError::Malformed { line } => write!(
@@ -286,23 +286,23 @@ impl fmt::Display for FactorError {
                 };
                 write!(
                     f,
-                    "column '{column}' holds '{value}' ({place}), which is not among the declared \
+                    "column `{column}` holds `{value}` ({place}), which is not among the declared \
                      levels; add it to the levels or correct the data"
                 )
             }
             FactorError::DuplicateDeclaredLevel { column, level } => write!(
                 f,
-                "the levels declared for '{column}' name '{level}' twice; list each level once"
+                "the levels declared for `{column}` name `{level}` twice; list each level once"
             ),
             FactorError::TooFewLevels { column, found } => match found.first() {
                 Some(only) => write!(
                     f,
-                    "column '{column}' has only one level ('{only}') among the rows used; a factor \
+                    "column `{column}` has only one level (`{only}`) among the rows used; a factor \
                      needs at least two"
                 ),
                 None => write!(
                     f,
-                    "column '{column}' has no values (every row is missing); a factor needs at \
+                    "column `{column}` has no values (every row is missing); a factor needs at \
                      least two levels"
                 ),
             },
@@ -311,7 +311,7 @@ impl fmt::Display for FactorError {
                 match (row, line) {
                     (None, _) => write!(
                         f,
-                        "the levels declared for '{column}' are more than a factor may have \
+                        "the levels declared for `{column}` are more than a factor may have \
                          ({limit}); a grouping of so many levels is not a factor"
                     ),
                     (Some(row), line) => {
@@ -321,7 +321,7 @@ impl fmt::Display for FactorError {
                         };
                         write!(
                             f,
-                            "column '{column}' has more than {limit} distinct values (value \
+                            "column `{column}` has more than {limit} distinct values (value \
                              number {} first occurs at {place}), more than a factor may have as \
                              levels; a column of so many groups is an identifier or a \
                              measurement, not a factor",

@@ -164,7 +164,7 @@ impl fmt::Display for SheetError {
             }
             SheetError::DuplicateHeader { sheet, name, cells } => write!(
                 f,
-                "sheet \"{sheet}\": the header uses the name '{name}' in cells {}; give every \
+                "sheet \"{sheet}\": the header uses the name `{name}` in cells {}; give every \
                  column a different name",
                 cells.join(", ")
             ),

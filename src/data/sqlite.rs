@@ -109,12 +109,12 @@ impl fmt::Display for SqlError {
             SqlError::Sql(m) => write!(f, "SQLite refused the query: {m}"),
             SqlError::DuplicateColumn(c) => write!(
                 f,
-                "the result has two columns named '{c}'; give each column its own name with \
+                "the result has two columns named `{c}`; give each column its own name with \
                  AS in the query"
             ),
             SqlError::Blob { column, row } => write!(
                 f,
-                "column '{column}' holds binary data (a BLOB) in row {row} of the result; \
+                "column `{column}` holds binary data (a BLOB) in row {row} of the result; \
                  select numbers or text"
             ),
             SqlError::NoRows => write!(

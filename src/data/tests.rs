@@ -293,7 +293,7 @@ fn error_non_utf8_cell_and_header() {
         }
     );
     let m = e.to_string();
-    assert!(m.contains("line 3") && m.contains("column 2") && m.contains("'name'"));
+    assert!(m.contains("line 3") && m.contains("column 2") && m.contains("`name`"));
     let e = err(b"y,\xFFx\n1,2\n");
     assert_eq!(
         e,
@@ -333,7 +333,7 @@ fn error_duplicate_column_names() {
         }
     );
     let m = e.to_string();
-    assert!(m.contains("line 1") && m.contains("columns 2 and 4") && m.contains("'b'"));
+    assert!(m.contains("line 1") && m.contains("columns 2 and 4") && m.contains("`b`"));
     // Case matters: y and Y are different names.
     assert!(load("y,Y\n1,2\n").is_ok());
 }
@@ -366,7 +366,7 @@ fn refused(text: &str) -> (LoadError, String) {
     let m = e.to_string();
     assert!(m.contains("line 3"), "{m}");
     assert!(m.contains("column 2"), "{m}");
-    assert!(m.contains("'y'"), "{m}");
+    assert!(m.contains("`y`"), "{m}");
     (e, m)
 }
 
@@ -681,7 +681,7 @@ fn factor_error_undeclared_level() {
         })
     );
     let m = e.map(|e| e.to_string()).unwrap_or_default();
-    assert!(m.contains("'q'") && m.contains("line 4") && m.contains("'g'"));
+    assert!(m.contains("`q`") && m.contains("line 4") && m.contains("`g`"));
     let bare = make_factor(&c, Some(&declared))
         .err()
         .map(|e| e.to_string());
@@ -699,7 +699,7 @@ fn factor_error_too_few_levels() {
             found: strings(&["a"])
         })
     );
-    assert!(e.map(|e| e.to_string()).unwrap_or_default().contains("'a'"));
+    assert!(e.map(|e| e.to_string()).unwrap_or_default().contains("`a`"));
     let none = text_col(&[None, None]);
     let declared = strings(&["a", "b"]);
     assert!(matches!(
@@ -731,7 +731,7 @@ fn factor_error_duplicate_declared() {
         line: Some(10_002),
     }
     .to_string();
-    assert!(m.contains("'id'") && m.contains("line 10002"), "{m}");
+    assert!(m.contains("`id`") && m.contains("line 10002"), "{m}");
 }
 
 #[test]

@@ -19,7 +19,7 @@ use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
     quote_name, text_for_number, unknown_data_set, unknown_value,
 };
-use crate::session::model_statements::confidence;
+use crate::session::model_statements::{column_not_in_model, confidence};
 use crate::session::plot_statements::{kind_word, listing};
 use crate::session::procedure_statements::balance_not_in_model;
 use crate::session::{closest, no_data_set, unknown_model};
@@ -995,15 +995,42 @@ impl<'c> Walk<'c> {
         }
     }
 
-    /// The renderer's error when `factor` is not a factor of model `m`, at `span`.
-    fn model_factor(&mut self, m: &ModelState, factor: &str, span: Span, label: &str) -> bool {
+    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. For the
+    /// tables, which first check that a named column of the data is in the model, `column_at`
+    /// is where the renderer puts that error (the factor's own words).
+    fn model_factor(
+        &mut self,
+        m: &ModelState,
+        factor: &str,
+        span: Span,
+        label: &str,
+        column_at: Option<Span>,
+    ) -> bool {
         let Some(vars) = &m.vars else {
             return true;
         };
         let e = match vars.iter().find(|v| v.name == factor) {
-            None => ModelError::UnknownVariable {
-                name: factor.to_string(),
-            },
+            None => {
+                let column = column_at
+                    .and(m.data_set)
+                    .and_then(|i| self.state.data_sets.get(i))
+                    .and_then(|d| d.shape.as_ref())
+                    .and_then(|d| d.columns.iter().find(|c| c.name == factor));
+                if let Some(c) = column {
+                    let factors: Vec<String> = vars
+                        .iter()
+                        .filter(|v| v.factor)
+                        .map(|v| v.name.clone())
+                        .collect();
+                    let at = column_at.unwrap_or(span);
+                    let d = column_not_in_model(at, factor, &c.values, &m.name, &factors);
+                    self.error(d);
+                    return false;
+                }
+                ModelError::UnknownVariable {
+                    name: factor.to_string(),
+                }
+            }
             Some(v) if !v.factor => ModelError::NotAFactor {
                 name: factor.to_string(),
                 factors: vars
@@ -1183,7 +1210,25 @@ impl<'c> Walk<'c> {
                     return;
                 };
                 self.confidence(level.as_ref());
-                if self.model_factor(&m, &factor.value, factor.span, "cannot compute this") {
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot compute this",
+                    Some(factor.span),
+                ) {
+                    if let TableRequest::Means { by: Some(by), .. } = request {
+                        // `by` names a second factor of the model, checked as the first.
+                        if !self.model_factor(
+                            &m,
+                            &by.value,
+                            by.span,
+                            "cannot compute this",
+                            Some(by.span),
+                        ) {
+                            return;
+                        }
+                    }
                     self.settings(&m, at, factor.span);
                 }
             }
@@ -1198,7 +1243,13 @@ impl<'c> Walk<'c> {
                 };
                 self.confidence(level.as_ref());
                 let span = covariate.as_ref().map_or(factor.span, |c| c.span);
-                if self.model_factor(&m, &factor.value, span, "cannot compute this") {
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    span,
+                    "cannot compute this",
+                    Some(factor.span),
+                ) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
                 }
@@ -1213,7 +1264,13 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(&m, &factor.value, covariate.span, "cannot compute this") {
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    covariate.span,
+                    "cannot compute this",
+                    Some(factor.span),
+                ) {
                     self.slope_covariate(
                         &m,
                         Some(&covariate.value),
@@ -1380,7 +1437,7 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(&m, &factor.value, factor.span, "cannot test this") {
+                if self.model_factor(&m, &factor.value, factor.span, "cannot test this", None) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, factor.span, "cannot test this");
                 }
@@ -1466,7 +1523,7 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if !self.model_factor(&m, &factor.value, factor.span, "cannot compute this") {
+                if !self.model_factor(&m, &factor.value, factor.span, "cannot compute this", None) {
                     return;
                 }
                 let Some(levels) = m

@@ -856,6 +856,10 @@ pub enum ModelError {
     SameColumnSpace,
 }
 
+/// From this estimate of working memory on (1 TiB, in MiB) a refused model is said to need
+/// "far more" than the limit: the estimates saturate there, and the digits mean nothing.
+const FAR_MORE_MIB: usize = 1 << 20;
+
 impl fmt::Display for ModelError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         use ModelError as E;
@@ -877,7 +881,20 @@ impl fmt::Display for ModelError {
             E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
             E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
             E::TooManyPairs { factor, levels } => write!(f, "`{factor}` has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M differences`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2),
-            E::TooLarge { coefficients, megabytes } => write!(f, "the model has {coefficients} coefficients, and fitting it would take about {megabytes} MiB of working memory, more than covey's limit of {} MiB; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)", fit::MODEL_MEMORY_BUDGET >> 20),
+            E::TooLarge { coefficients, megabytes } => {
+                // Past 1 TiB (where the estimates saturate) a number of MiB says nothing more.
+                let limit = fit::MODEL_MEMORY_BUDGET >> 20;
+                match *coefficients {
+                    usize::MAX => write!(f, "the model has more coefficients than can be counted")?,
+                    p => write!(f, "the model has {p} coefficients")?,
+                }
+                if *megabytes >= FAR_MORE_MIB {
+                    write!(f, ", and fitting it would take far more working memory than covey's limit of {limit} MiB (over 1 TiB)")?;
+                } else {
+                    write!(f, ", and fitting it would take about {megabytes} MiB of working memory, more than covey's limit of {limit} MiB")?;
+                }
+                write!(f, "; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)")
+            }
             E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
             E::BadWeight { variable, row, value } => write!(f, "the weight `{variable}` is {value} at line {row}; weights must be 0 or more (0 leaves a row out)"),
             E::RobustLeverageOne { row } => write!(f, "robust (HC3) standard errors are undefined because the row at line {row} has leverage 1 (it alone determines a coefficient, such as the only row of a level); remove that row or leave out `robust`"),

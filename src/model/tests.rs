@@ -1967,3 +1967,21 @@ fn the_response_scale_does_not_decide_whether_it_is_constant() {
         assert_eq!(fit(&spec).err(), Some(ModelError::ResponseZeroVariance));
     }
 }
+
+#[test]
+fn a_model_far_past_the_memory_budget_is_worded_without_saturated_numbers() {
+    // An interaction whose count of coefficients overflows, and an estimate at its ceiling.
+    let e = ModelError::TooLarge {
+        coefficients: usize::MAX,
+        megabytes: usize::MAX >> 20,
+    };
+    let text = e.to_string();
+    assert!(text.starts_with("the model has more coefficients than can be counted, and fitting it would take far more working memory than covey's limit of 1024 MiB (over 1 TiB);"), "{text}");
+    // Below 1 TiB the estimate is given.
+    let e = ModelError::TooLarge {
+        coefficients: 3001,
+        megabytes: 2000,
+    };
+    let text = e.to_string();
+    assert!(text.contains("the model has 3001 coefficients, and fitting it would take about 2000 MiB of working memory, more than covey's limit of 1024 MiB;"), "{text}");
+}

@@ -231,6 +231,36 @@ impl Session<'_> {
         Ok(items)
     }
 
+    /// An error at the first of `names` (factors a table asks model `m` about) that is a
+    /// column of the model's data set but no variable of the model: the engine knows only the
+    /// model's own variables, and "there is no variable" would be untrue of a column the user
+    /// can see in the data. Names that are not columns either are left to the engine.
+    fn named_in_model<'n>(
+        &self,
+        m: &ModelEntry,
+        names: impl IntoIterator<Item = &'n Spanned<String>>,
+    ) -> Result<(), Diagnostic> {
+        let Some(set) = self.data_sets.iter().find(|d| d.name == m.data_set) else {
+            return Ok(());
+        };
+        for name in names {
+            if m.fit.spec.vars.iter().any(|v| v.name() == name.value) {
+                continue;
+            }
+            let Some(column) = set.columns.iter().find(|c| c.name == name.value) else {
+                continue;
+            };
+            return Err(column_not_in_model(
+                name.span,
+                &name.value,
+                &column.values,
+                &m.name,
+                &m.fit.other_factors(""),
+            ));
+        }
+        Ok(())
+    }
+
     pub(super) fn model_table(&mut self, request: &TableRequest) -> Outcome {
         let fail = |s: Span| {
             move |e: model::ModelError| {
@@ -439,6 +469,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, std::iter::once(factor).chain(by))?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -504,6 +535,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, std::iter::once(factor).chain(within))?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -716,6 +748,7 @@ impl Session<'_> {
                 level,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, [factor])?;
                 let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let level = confidence(level.as_ref())?;
                 let s = m
@@ -815,6 +848,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, [factor])?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -864,6 +898,7 @@ impl Session<'_> {
                 alpha,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, [factor])?;
                 let alpha = match alpha {
                     Some(a) if a.value > 0.0 && a.value < 1.0 => a.value,
                     Some(a) => {
@@ -1205,4 +1240,51 @@ fn at_text(fit: &model::Fit, at: &[(String, f64)]) -> String {
         )
         .collect();
     format!(", with {}", parts.join(", "))
+}
+
+/// The error for a table that names a factor `name`, a column of the data (holding `values`)
+/// but no variable of model `model`, whose factors are `factors` (shared with the language
+/// server).
+pub(crate) fn column_not_in_model(
+    span: Span,
+    name: &str,
+    values: &Values,
+    model: &str,
+    factors: &[String],
+) -> Diagnostic {
+    let what = match values {
+        Values::Factor(_) => "a factor of the data",
+        Values::Text(_) => "a text column of the data (not declared a factor)",
+        Values::Numeric(_) => "a numeric column of the data",
+    };
+    let factors = match factors {
+        [] => "which has no factor".to_string(),
+        [one] => format!("whose only factor is {}", code(one)),
+        some => format!(
+            "whose factors are {}",
+            some.iter().map(|f| code(f)).collect::<Vec<_>>().join(", ")
+        ),
+    };
+    let d = Diagnostic::new(
+        span,
+        format!(
+            "{} is {what} but not in model {}, {factors}",
+            code(name),
+            code(model)
+        ),
+    )
+    .label("not in this model");
+    match values {
+        Values::Numeric(_) => d,
+        Values::Factor(_) => d.help(format!(
+            "add {} to the terms of model {} to compare its levels, or name one of its factors",
+            code(name),
+            code(model)
+        )),
+        Values::Text(_) => d.help(format!(
+            "declare it a factor (`factor {} levels ...`) and add it to the terms of model {}",
+            quote_name(name),
+            code(model)
+        )),
+    }
 }
