@@ -627,13 +627,7 @@ fn hover_shows_the_value_of_the_last_rendering() {
     );
     assert_eq!(c.shutdown(), Ending::Clean);
     // Rendered in place, the document holds its own values.
-    let in_place = covey::RenderOptions {
-        in_place: true,
-        ..covey::RenderOptions::default()
-    };
-    let report = covey::render(std::slice::from_ref(&path), &in_place);
-    assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
-    let text = std::fs::read_to_string(&path).unwrap_or_default();
+    let text = render_in_place(&path);
     let a = checker.check(&text, &path);
     assert!(a.problems.is_empty(), "{:?}", a.problems);
     let at = text.find("@[anova").unwrap_or(0) + 4;
@@ -689,13 +683,7 @@ fn hover_tells_a_rendering_made_from_other_data() {
     assert!(!told.contains("render again"), "{told}");
     assert_eq!(c.shutdown(), Ending::Clean);
     // Rendered in place, the document's own provenance region is compared.
-    let in_place = covey::RenderOptions {
-        in_place: true,
-        ..covey::RenderOptions::default()
-    };
-    let report = covey::render(std::slice::from_ref(&path), &in_place);
-    assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
-    let text = std::fs::read_to_string(&path).unwrap_or_default();
+    let text = render_in_place(&path);
     let at = text.find("@[anova").unwrap_or(0) + 4;
     let mut checker = Checker::new(false);
     let a = checker.check(&text, &path);
@@ -1539,4 +1527,15 @@ fn influence_references_offer_the_models_and_the_label_column() {
     assert!(plain.contains(&"leverage".to_string()), "{plain:?}");
     assert!(!plain.contains(&"label".to_string()), "{plain:?}");
     assert_eq!(c.shutdown(), Ending::Clean);
+}
+
+/// Renders the document at `path` in place and gives its text afterwards.
+fn render_in_place(path: &std::path::Path) -> String {
+    let in_place = covey::RenderOptions {
+        in_place: true,
+        ..covey::RenderOptions::default()
+    };
+    let report = covey::render(&[path.to_path_buf()], &in_place);
+    assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
+    std::fs::read_to_string(path).unwrap_or_default()
 }
