@@ -304,20 +304,8 @@ impl FsWorld {
             }
         };
         regular(&std::fs::metadata(&resolved).map_err(|e| io_error(path, &e))?)?;
-        let mut options = std::fs::OpenOptions::new();
-        options.read(true);
-        #[cfg(unix)]
-        {
-            use std::os::unix::fs::OpenOptionsExt;
-            let nofollow = if self.allow_outside {
-                0
-            } else {
-                rustix::fs::OFlags::NOFOLLOW.bits()
-            };
-            let flags = rustix::fs::OFlags::NONBLOCK.bits() | nofollow;
-            options.custom_flags(flags as i32);
-        }
-        let file = options.open(&resolved).map_err(|e| io_error(path, &e))?;
+        let file =
+            open_without_waiting(&resolved, !self.allow_outside).map_err(|e| io_error(path, &e))?;
         let meta = file.metadata().map_err(|e| io_error(path, &e))?;
         regular(&meta)?;
         Ok((file, meta.len()))
@@ -378,14 +366,7 @@ pub fn io_error(path: &str, e: &std::io::Error) -> WorldError {
 /// the error: the file is opened without waiting (`O_NONBLOCK`), so a named pipe does not block
 /// the open, and checked on the open file, so a device put in its place cannot be read for ever.
 pub fn read_regular(path: &Path) -> std::io::Result<Vec<u8>> {
-    let mut options = std::fs::OpenOptions::new();
-    options.read(true);
-    #[cfg(unix)]
-    {
-        use std::os::unix::fs::OpenOptionsExt;
-        options.custom_flags(rustix::fs::OFlags::NONBLOCK.bits() as i32);
-    }
-    let mut file = options.open(path)?;
+    let mut file = open_without_waiting(path, false)?;
     let meta = file.metadata()?;
     if !meta.is_file() {
         return Err(std::io::Error::other(format!(
@@ -396,6 +377,26 @@ pub fn read_regular(path: &Path) -> std::io::Result<Vec<u8>> {
     let mut bytes = Vec::new();
     file.read_to_end(&mut bytes)?;
     Ok(bytes)
+}
+
+/// `path` opened for reading without waiting (`O_NONBLOCK`: a named pipe does not block the
+/// open) and, with `nofollow`, without following a link in its last step (`O_NOFOLLOW`). The
+/// caller checks the open file's type.
+fn open_without_waiting(path: &Path, nofollow: bool) -> std::io::Result<std::fs::File> {
+    let mut options = std::fs::OpenOptions::new();
+    options.read(true);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        let mut flags = rustix::fs::OFlags::NONBLOCK;
+        if nofollow {
+            flags |= rustix::fs::OFlags::NOFOLLOW;
+        }
+        options.custom_flags(flags.bits() as i32);
+    }
+    #[cfg(not(unix))]
+    let _ = nofollow;
+    options.open(path)
 }
 
 /// Files at least this large are read in pieces side by side.
