@@ -641,6 +641,27 @@ fn contrast_coded(spec: &ModelSpec, t: usize, var: usize) -> bool {
     (0..t).any(|u| term_keys(spec, u) == rest)
 }
 
+/// For each term with a factor part: whether some factor part is coded by contrasts (its
+/// coefficients compare levels with the reference level) and whether some is coded by
+/// indicators of all its levels (one coefficient per level, no reference level).
+pub(crate) fn factor_codings(spec: &ModelSpec) -> Vec<(usize, bool, bool)> {
+    (0..spec.terms.len())
+        .filter_map(|t| {
+            let factors: Vec<usize> = term_keys(spec, t)
+                .into_iter()
+                .map(|k| k.0)
+                .filter(|&v| matches!(spec.vars.get(v), Some(Var::Factor { .. })))
+                .collect();
+            if factors.is_empty() {
+                return None;
+            }
+            let contrast = factors.iter().any(|&v| contrast_coded(spec, t, v));
+            let indicator = factors.iter().any(|&v| !contrast_coded(spec, t, v));
+            Some((t, contrast, indicator))
+        })
+        .collect()
+}
+
 /// The design columns (intercept first, then each term's columns) and, for each term, the
 /// indices of its columns; or, when there would be more than `limit` of them, how many there
 /// would be (at most `usize::MAX`), found before any is listed: an interaction of many

@@ -1296,6 +1296,22 @@ impl Fit {
         self.lay.term_names.clone()
     }
 
+    /// How the coefficients of the factor terms read: (whether some compare levels with
+    /// a reference level, the terms that have one coefficient per level of a factor). A term
+    /// has one per level when nothing earlier in the model holds the constant it would be
+    /// compared with: a factor first in a model without intercept, or `g by x` without `x`.
+    pub fn factor_coding(&self) -> (bool, Vec<String>) {
+        let names = self.term_names();
+        let codings = design::factor_codings(&self.spec);
+        let contrast = codings.iter().any(|c| c.1);
+        let per_level = codings
+            .iter()
+            .filter(|c| c.2)
+            .filter_map(|c| names.get(c.0).cloned())
+            .collect();
+        (contrast, per_level)
+    }
+
     /// Number of estimated (non-aliased) coefficients.
     pub fn n_coef(&self) -> usize {
         self.kept.len()

@@ -456,6 +456,10 @@ pub struct Slopes {
     pub equality_p: f64,
     /// True when the model lacked the factor-by-covariate term and was refitted with it.
     pub refitted: bool,
+    /// The other variables that share a term with the covariate, on which the slopes then
+    /// depend: (name, whether it is a factor). The slopes are taken with covariates at their
+    /// means and each level of a factor counted equally.
+    pub depends_on: Vec<(String, bool)>,
 }
 
 /// The set of covariate values where a difference is significant.

@@ -8,6 +8,7 @@ use std::sync::Arc;
 
 use super::design::term_keys;
 use super::fit::{check_level, f_p, fit_owned, t_p, t_quantile, Fit};
+use super::qr;
 use super::{
     ModelError, ModelSpec, Part, Region, RegionKind, Slope, Slopes, TermSpec, Transform, Var,
 };
@@ -67,11 +68,11 @@ impl Fit {
         f: usize,
         x: usize,
         known: &[&'a Fit],
-    ) -> Result<(Refit<'a>, usize), ModelError> {
+    ) -> Result<Refit<'a>, ModelError> {
         let mut want = vec![(f, Transform::Identity), (x, Transform::Identity)];
         want.sort();
-        if let Some(t) = (0..self.spec.terms.len()).find(|&t| term_keys(&self.spec, t) == want) {
-            return Ok((Refit::Same(self), t));
+        if (0..self.spec.terms.len()).any(|t| term_keys(&self.spec, t) == want) {
+            return Ok(Refit::Same(self));
         }
         let term = TermSpec {
             parts: vec![
@@ -85,21 +86,20 @@ impl Fit {
                 },
             ],
         };
-        let t = self.spec.terms.len();
         if let Some(k) = known
             .iter()
             .find(|k| extends_by(&k.spec, &self.spec, &term))
         {
-            return Ok((Refit::Known(k), t));
+            return Ok(Refit::Known(k));
         }
         let mut spec = self.spec.clone();
         spec.terms.push(term);
-        Ok((Refit::New(Box::new(fit_owned(spec)?)), t))
+        Ok(Refit::New(Box::new(fit_owned(spec)?)))
     }
 
     /// Slope of the covariate within each level of `factor`, from a model with the
     /// factor-by-covariate term (refitted with it when absent), and the F test that the
-    /// slopes are equal (the model with versus without that term).
+    /// slopes shown are equal (see [`Fit::equal_slopes_f`]).
     pub fn slopes(
         &self,
         covariate: Option<&str>,
@@ -121,7 +121,7 @@ impl Fit {
         check_level(level)?;
         let f = self.model_factor(factor)?;
         let x = self.slope_covariate(covariate)?;
-        let (refit, ti) = self.with_interaction(f, x, known)?;
+        let refit = self.with_interaction(f, x, known)?;
         let refitted = !matches!(refit, Refit::Same(_));
         let m: &Fit = refit.fit();
         let numeric = m.covariate_values(&[])?;
@@ -137,11 +137,13 @@ impl Fit {
         let df = m.df_res;
         let tq = t_quantile(0.5 + level / 2.0, df);
         let mut rows = Vec::new();
+        let mut slope_rows = Vec::new();
         for &c in &present {
             let lab = levels.get(c as usize).cloned().unwrap_or_default();
             let pt = m.point(f, Some(c), numeric.clone(), Some(x));
+            let l = m.row_at(&pt);
             let (s, se) = m
-                .linear(&m.row_at(&pt))
+                .linear(&l)
                 .map_err(|_| ModelError::NotEstimable {
                     what: format!("the slope within {factor} = {lab}"),
                     why: m.why_not(f, &[c]),
@@ -157,15 +159,21 @@ impl Fit {
                 lower: s - tq * se,
                 upper: s + tq * se,
             });
+            slope_rows.push(l);
         }
-        let e = &m.eng;
-        let mine = e.term_cols.get(ti).cloned().unwrap_or_default();
-        let all: Vec<usize> = (0..e.cols.len()).collect();
-        let without: Vec<usize> = all.iter().copied().filter(|c| !mine.contains(c)).collect();
-        let (df1, extra) = e.extra_ss(&e.a, &without, &mine);
+        let mut depends_on: Vec<(String, bool)> = Vec::new();
+        for term in m.spec.terms.iter().filter(|t| t.parts.iter().any(|p| p.var == x)) {
+            for p in term.parts.iter().filter(|p| p.var != x && p.var != f) {
+                let name = super::design::var_name(&m.spec, p.var);
+                let factor = matches!(m.spec.vars.get(p.var), Some(Var::Factor { .. }));
+                if !depends_on.iter().any(|(n, _)| *n == name) {
+                    depends_on.push((name, factor));
+                }
+            }
+        }
+        let (df1, ef) = m.equal_slopes_f(&slope_rows);
         let (ef, ep) = if df1 > 0 && !m.exact {
-            let fv = (extra.max(0.0) / df1 as f64) / (m.rss / df as f64);
-            (fv, f_p(fv, df1, df))
+            (ef, f_p(ef, df1, df))
         } else {
             (f64::NAN, f64::NAN)
         };
@@ -177,7 +185,50 @@ impl Fit {
             df2: df,
             equality_p: ep,
             refitted,
+            depends_on,
         })
+    }
+
+    /// The F test that the slopes `rows` (their functions on the fit's columns, one per
+    /// level) are all equal: the Wald statistic of the differences from the first,
+    /// (L b)' (L V L')^-1 (L b) / q with V the covariance of the coefficients (s^2 times the
+    /// inverse of the cross-products), q the rank of L V L'; and q. When no other term holds
+    /// the factor and the covariate together this is the extra-sum-of-squares F of the
+    /// factor-by-covariate term. When one does (`g by h by x`), the slopes shown average over
+    /// the other factor's levels, and this tests those, where the term's extra sum of
+    /// squares would test the slopes at the other factor's reference level only.
+    fn equal_slopes_f(&self, rows: &[Vec<f64>]) -> (usize, f64) {
+        let Some((first, rest)) = rows.split_first() else {
+            return (0, f64::NAN);
+        };
+        let mut est = Vec::new();
+        let mut ws: Vec<Vec<f64>> = Vec::new();
+        for r in rest {
+            let l: Vec<f64> = r.iter().zip(first).map(|(a, b)| a - b).collect();
+            match self.linear_parts(&l) {
+                Ok((e, w)) => {
+                    est.push(e);
+                    ws.push(w);
+                }
+                Err(()) => return (0, f64::NAN),
+            }
+        }
+        let len = ws.first().map_or(0, Vec::len);
+        // Cov(l_i, l_j) = w_i . w_j: with W = [w_1 ... w_q] = Q R, L V L' = R'R.
+        let mut a = qr::Mat::zeros(len, ws.len());
+        for (j, w) in ws.iter().enumerate() {
+            for (i, v) in w.iter().enumerate() {
+                a.set(i, j, *v);
+            }
+        }
+        let tri = qr::triangularize(&mut a, Some(qr::ALIAS_TOL), false);
+        let q = tri.kept.len();
+        if q == 0 {
+            return (0, f64::NAN);
+        }
+        let kept: Vec<f64> = tri.kept.iter().map(|&j| est[j]).collect();
+        let u = qr::solve_upper_transpose(&tri.r, &kept);
+        (q, u.iter().map(|v| v * v).sum::<f64>() / q as f64)
     }
 
     /// Johnson-Neyman regions: for each pair of levels of `factor` (or the given pair), the
@@ -198,7 +249,7 @@ impl Fit {
             let levels = self.lay.factor(f).map_or(0, |x| x.present.len());
             super::check_pairs(factor, levels)?;
         }
-        let (refit, _) = self.with_interaction(f, x, &[])?;
+        let refit = self.with_interaction(f, x, &[])?;
         let refitted = !matches!(refit, Refit::Same(_));
         let m: &Fit = refit.fit();
         let numeric = m.covariate_values(&[])?;

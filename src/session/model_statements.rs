@@ -311,7 +311,22 @@ impl Session<'_> {
                         c.upper.into(),
                     ]);
                 }
-                t.notes.push("A factor's coefficients compare each level with the reference level (the first).".into());
+                let (contrast, per_level) = m.fit.factor_coding();
+                if !per_level.is_empty() {
+                    let terms: Vec<String> = per_level.iter().map(|n| code(n)).collect();
+                    t.notes.push(format!(
+                        "{} {} a coefficient for every level, not a comparison with the reference level: each is that level's own value (its intercept, or its slope), since no earlier term holds what it would be compared with.",
+                        terms.join(", "),
+                        if terms.len() == 1 { "has" } else { "have" }
+                    ));
+                }
+                if contrast {
+                    t.notes.push(if per_level.is_empty() {
+                        "A factor's coefficients compare each level with the reference level (the first).".into()
+                    } else {
+                        "The other factor coefficients compare each level with the reference level (the first).".into()
+                    });
+                }
                 if m.fit.is_exact() {
                     t.notes.push("The model fits the data exactly: the standard errors are 0 and t and p are undefined.".into());
                 }
@@ -819,6 +834,33 @@ impl Session<'_> {
                         code(&m.name),
                         code(&factor.value),
                         code(&s.covariate)
+                    ));
+                }
+                if !s.depends_on.is_empty() {
+                    let means: Vec<(String, f64)> = m.fit.covariate_means();
+                    let ranges = m.fit.covariate_ranges();
+                    let names: Vec<String> = s.depends_on.iter().map(|(n, _)| code(n)).collect();
+                    let how: Vec<String> = s
+                        .depends_on
+                        .iter()
+                        .map(|(n, factor)| {
+                            let at = means.iter().zip(&ranges).find(|((c, _), _)| c == n);
+                            match (factor, at) {
+                                (false, Some(((_, mean), (lo, hi)))) => format!(
+                                    "{} at its mean {}",
+                                    code(n),
+                                    crate::report::number::in_units(*mean, &[*lo, *hi], 4)
+                                ),
+                                _ => format!("each level of {} counted equally", code(n)),
+                            }
+                        })
+                        .collect();
+                    t.notes.push(format!(
+                        "The slope of {} depends on {}, which {} a term with it: each slope is taken with {}, and the test compares these slopes.",
+                        code(&s.covariate),
+                        names.join(" and "),
+                        if names.len() == 1 { "shares" } else { "share" },
+                        how.join(" and ")
                     ));
                 }
                 let mut eq = Table::new(
