@@ -1,12 +1,23 @@
-//! An independent check of the numbers covey prints on one invented analysis of covariance
-//! with unequal groups, a second factor, an empty cell and case weights:
-//! tests/reference/outside_check.py renders tests/reference/outside/outside.md, recomputes
-//! every number of its tables by exact rational least squares (Python's fractions) and, for
-//! distribution functions and the tests of assumptions, scipy (version in reference.json:
-//! studentized_range, multivariate_t, dunnett, shapiro, levene(center='median'), t, f, ncf),
-//! and writes each comparison with its reference value and tolerance to
-//! tests/reference/outside/reference.json. This test renders the same document and holds covey
-//! to those tolerances (the script's header says why each is what it is);
+//! Independent checks of the numbers covey prints, on two invented documents:
+//!
+//! - `tests/reference/outside/`: an analysis of covariance with unequal groups, a second
+//!   factor, an empty cell and case weights, checked by tests/reference/outside_check.py;
+//! - `tests/reference/outside2/`: a factor-by-factor-by-covariate model, two covariates with
+//!   their product, a weighted quadratic, transforms, models without intercept, means and
+//!   differences at chosen values, by cell and within levels (every correction, plain and
+//!   HC3, weighted HC3), Dunnett below and above a control, weighted slopes and their
+//!   equality test, Johnson-Neyman regions, `check` of two-factor and two-covariate models,
+//!   plans from pilot models and the power figures' numbers, and a weighted model with an
+//!   empty cell, checked by tests/reference/outside2_check.py.
+//!
+//! Each script renders its document, recomputes every number of its tables by exact rational
+//! least squares (Python's fractions) and, for distribution functions and the tests of
+//! assumptions, scipy (version in reference.json: studentized_range, multivariate_t,
+//! dunnett, shapiro, levene(center='median'), t, f, chi2, ncf), and writes each comparison
+//! with its reference value and tolerance to the set's reference.json, with the sentences
+//! (from the plans, the power figures' descriptions and the reporting sentences) whose
+//! numbers it recomputed. These tests render the same documents and hold covey to those
+//! tolerances (the scripts' headers say why each is what it is);
 //! `cargo test --release --test outside -- --nocapture` prints the worst LRE of each quantity.
 
 use covey::pipeline::{self, RunOptions};
@@ -14,29 +25,21 @@ use covey::world::MemoryWorld;
 use serde_json::Value;
 use std::collections::BTreeMap;
 
-const DIR: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/outside/");
+const DIR: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/");
 
-fn read(name: &str) -> String {
-    std::fs::read_to_string(format!("{DIR}{name}")).unwrap_or_else(|e| panic!("{name}: {e}"))
+fn read(set: &str, name: &str) -> String {
+    std::fs::read_to_string(format!("{DIR}{set}/{name}"))
+        .unwrap_or_else(|e| panic!("{set}/{name}: {e}"))
 }
 
-/// The checked document run on its data, in memory.
-fn run_document() -> pipeline::Run {
-    let data = read("outside.csv");
-    let world = MemoryWorld::new().with("outside.csv", data.into_bytes());
-    pipeline::run(
-        &read("outside.md"),
-        "outside.md",
-        &world,
-        RunOptions::default(),
-    )
-    .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")))
-}
-
-fn render() -> Value {
-    let run = run_document();
-    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
-    run.json()
+/// The checked document of `set` run on its data, in memory.
+fn run_document(set: &str) -> pipeline::Run {
+    let csv = format!("{set}.csv");
+    let data = read(set, &csv);
+    let world = MemoryWorld::new().with(&csv, data.into_bytes());
+    let md = format!("{set}.md");
+    pipeline::run(&read(set, &md), &md, &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")))
 }
 
 /// The `index`-th row of the table of `kind` that `statement` made.
@@ -50,13 +53,17 @@ fn cell<'a>(json: &'a Value, statement: &str, kind: &str, index: usize, key: &st
     &table["rows"][index][key]
 }
 
-#[test]
-fn every_number_agrees_with_exact_arithmetic_and_scipy() {
-    let reference: Value = serde_json::from_str(&read("reference.json")).expect("reference.json");
-    let json = render();
+/// Holds every number of `set`'s document to its reference and returns the worst LRE of each
+/// quantity (printed).
+fn check_set(set: &str, at_least: usize) -> BTreeMap<String, f64> {
+    let reference: Value =
+        serde_json::from_str(&read(set, "reference.json")).expect("reference.json");
+    let run = run_document(set);
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    let json = run.json();
     let checks = reference["checks"].as_array().expect("checks");
     assert!(
-        checks.len() > 500,
+        checks.len() > at_least,
         "the reference holds {} checks",
         checks.len()
     );
@@ -95,10 +102,31 @@ fn every_number_agrees_with_exact_arithmetic_and_scipy() {
         let w = worst.entry(quantity).or_insert(15.0);
         *w = w.min(lre);
     }
-    println!("| quantity | worst LRE |\n| :-- | --: |");
+    // Sentences whose numbers the script recomputed (plans, figures' descriptions, reports).
+    for t in reference["texts"].as_array().into_iter().flatten() {
+        let text = t["text"].as_str().expect("text");
+        assert!(
+            run.rendered.contains(text),
+            "{} ({}): the rendering lacks {text:?}",
+            t["quantity"],
+            t["source"]
+        );
+    }
+    println!("{set}:\n| quantity | worst LRE |\n| :-- | --: |");
     for (q, v) in &worst {
         println!("| {q} | {v:.1} |");
     }
+    worst
+}
+
+#[test]
+fn every_number_agrees_with_exact_arithmetic_and_scipy() {
+    check_set("outside", 500);
+}
+
+#[test]
+fn every_number_of_the_second_set_agrees_with_exact_arithmetic_and_scipy() {
+    check_set("outside2", 800);
 }
 
 /// The centred covariate of the document: its mean is rounding residue of the subtraction,
@@ -106,7 +134,7 @@ fn every_number_agrees_with_exact_arithmetic_and_scipy() {
 /// mean) in the adjusted means' caption and in a live reference.
 #[test]
 fn a_centred_covariate_shows_its_mean_as_zero() {
-    let run = run_document();
+    let run = run_document("outside");
     let md = &run.rendered;
     assert!(md.contains("| all | 24 | 0 | 0.000 | 5.637 |"), "{md}");
     assert!(md.contains("with `xc` at its mean 0.000 "), "{md}");
