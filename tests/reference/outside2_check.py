@@ -48,9 +48,11 @@ OUT = os.path.join(HERE, "outside2", "reference.json")
 def make_data():
     """Invented, not measured: three groups g crossed with two levels of h in unequal cells
     (a/p 5, a/q 3, b/p 4, b/q 6, c/p 6, c/q 3), covariates x near 20 and z near 5, a response
-    y with separate slopes by group and an x-by-z part, and case weights w."""
+    y with separate slopes by group and an x-by-z part, case weights w, the same weights v with
+    three rows weighted 0, and a copy m of x with two cells missing."""
     random.seed(2718)
-    rows = ["g,h,x,z,y,w"]
+    rows = ["g,h,x,z,y,w,v,m"]
+    k = 0
     cells = [("a", "p", 5), ("a", "q", 3), ("b", "p", 4), ("b", "q", 6), ("c", "p", 6), ("c", "q", 3)]
     shift = {"a": 0, "b": 1.5, "c": -1}
     hs = {"p": 0, "q": 0.8}
@@ -62,7 +64,11 @@ def make_data():
             y = 4 + shift[g] + hs[h] + slope[g] * x + 0.9 * z + 0.04 * (x - 20) * (z - 5)
             y = round(y + random.gauss(0, 1.5 * (1 + (g == "c"))), 2)
             w = random.choice([1, 2, 3, 0.5])
-            rows.append(f"{g},{h},{x},{z},{y},{w}")
+            k += 1
+            # v: the weights with three rows weighted 0; m: x with two cells left empty
+            v = 0 if k in (2, 10, 20) else w
+            m = "" if k in (4, 15) else x
+            rows.append(f"{g},{h},{x},{z},{y},{w},{v},{m}")
     return "\n".join(rows) + "\n"
 
 
@@ -172,8 +178,8 @@ def load():
         head = f.readline().strip().split(",")
         for i, line in enumerate(f):
             cells = dict(zip(head, line.strip().split(",")))
-            for k in ("x", "z", "y", "w"):
-                cells[k] = Fr(cells[k])
+            for k in ("x", "z", "y", "w", "v", "m"):
+                cells[k] = Fr(cells[k]) if cells[k] != "" else None
             cells["line"] = i + 2
             ALL.append(cells)
     rows.extend(ALL)
@@ -240,7 +246,10 @@ def even(f):
 def point(terms, **given):
     """The row of coefficients of the prediction at a point: each factor averaged evenly
     unless given, each covariate at its mean unless given."""
-    p = {"g": even("g"), "h": even("h"), "x": mean_of("x"), "z": mean_of("z")}
+    p = {"g": even("g"), "h": even("h")}
+    for c in ("x", "z", "m"):
+        if all(r[c] is not None for r in rows):
+            p[c] = mean_of(c)
     for k, v in given.items():
         p[k] = {v: Fr(1)} if isinstance(v, str) else v
     return design(terms, "ref", p)[0]
@@ -515,7 +524,7 @@ def critical(method, m, k, df, level=0.95):
     return None
 
 
-def check_differences(statement, terms, factor, method, weighted=False, robust=False, within=None, **at):
+def check_differences(statement, terms, factor, method, weighted=False, robust=False, within=None, level=0.95, **at):
     """All pairs of `factor` (within each level of `within`), with the correction counted in
     each level of `within` over the estimable comparisons only."""
     fm = fit(terms, weighted)
@@ -549,7 +558,7 @@ def check_differences(statement, terms, factor, method, weighted=False, robust=F
         else:
             k = None
             ps = adjust(method, [p for *_, p in made], m)
-        q = critical(method, m, k, fm.df)
+        q = critical(method, m, k, fm.df, level)
         for (row, est, se, _), p in zip(made, ps):
             cmp(f"p ({method}{', within' if within else ''}{tag})", (row, "p"), p, absolute=method == "tukey")
             if q is not None:
@@ -557,10 +566,11 @@ def check_differences(statement, terms, factor, method, weighted=False, robust=F
                 cmp(f"difference limits ({method}{tag})", (row, "upper"), float(est) + q * se, scale=q * se)
 
 
-def check_versus(statement, terms, control, side, method, robust=False):
+def check_versus(statement, terms, control, side, method, robust=False, weighted=False, level=0.95):
     """Comparisons with a control: Dunnett from scipy's multivariate_t with the design's
-    correlations (plain or HC3), or a correction of one-sided raw p."""
-    fm = fit(terms)
+    correlations (plain or HC3), or a correction of raw (one- or two-sided) p with its
+    limits (Bonferroni: t at 1 - alpha / m on one side, alpha / 2m on two)."""
+    fm = fit(terms, weighted)
     t = table(statement)
     ls, got = [], []
     for row in t["rows"]:
@@ -592,6 +602,19 @@ def check_versus(statement, terms, control, side, method, robust=False):
             raw.append({"two": 2 * stats.t.sf(abs(tv), fm.df), "above": stats.t.sf(tv, fm.df), "below": stats.t.cdf(tv, fm.df)}[side])
         for (row, _, _), p in zip(got, adjust(method, raw, k)):
             cmp(f"p ({method}, versus, {side})", (row, "p"), p)
+        m = {"bonferroni": k, "none": 1}.get(method)
+        if m is not None:
+            a = (1 - level) / m
+            q = stats.t.ppf(1 - (a if side != "two" else a / 2), fm.df)
+            for row, est, se in got:
+                if side in ("two", "above"):
+                    cmp(f"limit ({method}, versus, {side})", (row, "lower"), float(est) - q * se, scale=q * se)
+                else:
+                    undefined(f"lower limit ({method}, versus, below)", (row, "lower"))
+                if side in ("two", "below"):
+                    cmp(f"limit ({method}, versus, {side})", (row, "upper"), float(est) + q * se, scale=q * se)
+                else:
+                    undefined(f"upper limit ({method}, versus, above)", (row, "upper"))
 
 
 def check_oneway_below():
@@ -1001,6 +1024,42 @@ def check_reports():
          "exact, scipy t")
 
 
+class Rows:
+    """The rows a model is fitted to: those with every value it uses (and, weighted, a
+    weight above 0; `weights` names the column, copied into w)."""
+
+    def __init__(self, keep, weights="w"):
+        self.keep, self.weights = keep, weights
+
+    def __enter__(self):
+        self.saved = list(rows)
+        rows[:] = [dict(r, w=r[self.weights]) for r in self.saved if self.keep(r)]
+
+    def __exit__(self, *exc):
+        rows[:] = self.saved
+
+
+ZW = [("g",), ("h",), ("x",)]
+MM = [("g",), ("m",), ("z",)]
+
+
+def check_zero_weights_and_missing():
+    """Rows of weight 0 are left out of the fit and its df, and rows with a missing value out
+    of the model: every number is that of the model fitted to the rows left, with covariates
+    at their means over those rows."""
+    with Rows(lambda r: r["v"] > 0, "v"):
+        check_means("table means zw for g", ZW, weighted=True)
+        check_anova("table anova zw", ZW, 2, weighted=True)
+        check_fit("table fit zw", ZW, True)
+        check_checks("check zw", ZW, weighted=True)
+        check_versus("table differences zw for g versus a above correction bonferroni level 0.9", ZW, "a", "above", "bonferroni", weighted=True, level=0.9)
+    with Rows(lambda r: r["m"] is not None):
+        check_means("table means mm for g", MM)
+        check_checks("check mm", MM)
+        check_differences("table differences mm for g level 0.99", MM, "g", "tukey", level=0.99)
+        check_versus("table differences mm for g versus b correction none", MM, "b", "two", "none")
+
+
 def check_transform():
     """log(x) and sqrt(z) at the covariates' means: covey evaluates the transform at the mean
     of the column (log of the mean, not the mean of the log)."""
@@ -1063,6 +1122,7 @@ def main():
     check_checks("check ff", FF)
     check_checks("check tr", TR)
     check_reports()
+    check_zero_weights_and_missing()
     # the empty cell: keep where not (g == c and h == q)
     rows[:] = [r for r in ALL if not (r["g"] == "c" and r["h"] == "q")]
     for kind in (1, 2):
