@@ -232,20 +232,36 @@ fn every_table_form() {
             r => panic!("{text}: {r:?}"),
         }
     }
-    match t(
+    // `within B` is a clause like the others: the README's form `versus LEVEL [above|below]
+    // [within B]` and `at ... within B` were once refused (the grammar wanted it right after
+    // `for F`).
+    for text in [
         "table differences m for ration within sex versus barley above correction dunnett robust",
-    ) {
+        "table differences m for ration versus barley above within sex correction dunnett robust",
+        "table differences m for ration robust correction dunnett versus barley above within sex",
+    ] {
+        match t(text) {
+            T::Differences {
+                within: Some(w),
+                versus: Some(v),
+                correction: Some(c),
+                robust: true,
+                ..
+            } => {
+                assert_eq!(w.value, "sex", "{text}");
+                assert_eq!(v.control.value, "barley", "{text}");
+                assert_eq!(v.side, Side::Above, "{text}");
+                assert_eq!(c.value, Correction::Dunnett, "{text}");
+            }
+            r => panic!("{text}: {r:?}"),
+        }
+    }
+    match t("table differences m for ration at start = 12 within sex") {
         T::Differences {
-            within: Some(w),
-            versus: Some(v),
-            correction: Some(c),
-            robust: true,
-            ..
+            within: Some(w), at, ..
         } => {
             assert_eq!(w.value, "sex");
-            assert_eq!(v.control.value, "barley");
-            assert_eq!(v.side, Side::Above);
-            assert_eq!(c.value, Correction::Dunnett);
+            assert_eq!(at.len(), 1);
         }
         r => panic!("{r:?}"),
     }

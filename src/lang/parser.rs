@@ -281,7 +281,7 @@ fn describe(rule: Rule) -> &'static str {
         Rule::weights_opt => "`weights` and a column of weights",
         Rule::anova_type => "`type` and 1, 2 or 3",
         Rule::kw_differences => "`differences`",
-        Rule::kw_within => "`within`",
+        Rule::kw_within | Rule::within_opt => "`within` and a factor",
         Rule::kw_correction => "`correction`",
         Rule::kw_versus => "`versus`",
         Rule::setting | Rule::at_clause => "a setting such as `x = 20`",
@@ -1199,6 +1199,7 @@ impl Builder<'_> {
                 Rule::anova_type,
                 Rule::correction_opt,
                 Rule::versus_opt,
+                Rule::within_opt,
             ],
         )?;
         let robust = find(Rule::robust_opt).is_some();
@@ -1272,7 +1273,9 @@ impl Builder<'_> {
                 TableRequest::Differences {
                     model: first_ident()?,
                     factor: self.name(plain.get(1).cloned().ok_or_else(missing_part)?),
-                    within: plain.get(2).cloned().map(|p| self.name(p)),
+                    within: find(Rule::within_opt)
+                        .and_then(|w| w.into_inner().find(|q| q.as_rule() == Rule::name))
+                        .map(|p| self.name(p)),
                     at,
                     correction: find(Rule::correction_opt)
                         .map(|p| self.correction(p))

@@ -566,15 +566,27 @@ def check_differences(statement, terms, factor, method, weighted=False, robust=F
                 cmp(f"difference limits ({method}{tag})", (row, "upper"), float(est) + q * se, scale=q * se)
 
 
-def check_versus(statement, terms, control, side, method, robust=False, weighted=False, level=0.95):
+def check_versus(statement, terms, control, side, method, robust=False, weighted=False, level=0.95, within=None):
     """Comparisons with a control: Dunnett from scipy's multivariate_t with the design's
     correlations (plain or HC3), or a correction of raw (one- or two-sided) p with its
-    limits (Bonferroni: t at 1 - alpha / m on one side, alpha / 2m on two)."""
+    limits (Bonferroni: t at 1 - alpha / m on one side, alpha / 2m on two); with `within`,
+    in each level of that factor on its own."""
+    if within:
+        for lv in LEVELS[within]:
+            versus_rows(statement, terms, control, side, method, robust, weighted, level, within, lv)
+    else:
+        versus_rows(statement, terms, control, side, method, robust, weighted, level, None, None)
+
+
+def versus_rows(statement, terms, control, side, method, robust, weighted, level, within, at):
     fm = fit(terms, weighted)
     t = table(statement)
     ls, got = [], []
+    given = {within: at} if within else {}
     for row in t["rows"]:
-        l = [u - v for u, v in zip(point(terms, g=row["first"]), point(terms, g=control))]
+        if within and row["within"] != at:
+            continue
+        l = [u - v for u, v in zip(point(terms, g=row["first"], **given), point(terms, g=control, **given))]
         est, se = fm.at(l), sqrt_fr(fm.var(l, robust))
         tag = " (robust)" if robust else ""
         cmp("difference from control" + tag, (row, "estimate"), est)
@@ -1111,7 +1123,7 @@ def main():
     check_oneway_below()
     check_no_intercept()
     check_means("table means ff for g", FF)
-    check_differences("table differences ff for g within h at x = 25 correction sidak", FF, "g", "sidak", within="h", x=Fr(25))
+    check_differences("table differences ff for g at x = 25 within h correction sidak", FF, "g", "sidak", within="h", x=Fr(25))
     check_slopes_general("table slopes ff of x for g", FF, "g")
     check_slopes_general("table slopes xz of x for g", XZ, "g")
     check_slopes_general("table slopes hx of x for h", HX, "h")
@@ -1123,6 +1135,7 @@ def main():
     check_checks("check tr", TR)
     check_reports()
     check_zero_weights_and_missing()
+    check_versus("table differences hx for g versus c below within h", HX, "c", "below", "dunnett", within="h")
     # the empty cell: keep where not (g == c and h == q)
     rows[:] = [r for r in ALL if not (r["g"] == "c" and r["h"] == "q")]
     for kind in (1, 2):
