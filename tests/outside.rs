@@ -150,3 +150,29 @@ fn a_centred_covariate_shows_its_mean_as_zero() {
         .unwrap();
     assert!(summary.abs() < 1e-14, "{summary}");
 }
+
+/// What the second set's numbers are of, where that is not the plain reading: tests that
+/// depend on where a covariate is 0, slopes taken at other variables' values, and
+/// coefficients of a factor that are per level rather than comparisons.
+#[test]
+fn the_second_set_says_what_its_numbers_are_of() {
+    let run = run_document("outside2");
+    let md = &run.rendered;
+    for text in [
+        // Type III of x beside x by z is the slope of x where z = 0 (checked above against
+        // exact arithmetic on exactly that hypothesis)
+        "*Note.* The Type III test of `x` is of its effect where z = 0, because the model also has `x by z`",
+        // Type II and III of x beside x^2: the slope where x = 0
+        "*Note.* The Type II test of `x` is of its effect where x = 0, because the model also has `x^2`",
+        "*Note.* The Type III test of `x` is of its effect where x = 0, because the model also has `x^2`",
+        // slopes that depend on another variable
+        "*Note.* The slope of `x` depends on `h`, which shares a term with it: each slope is taken with each level of `h` counted equally",
+        "*Note.* The slope of `x` depends on `z`, which shares a term with it: each slope is taken with `z` at its mean 4.859",
+        // a factor first in a model without intercept
+        "*Note.* `g` has a coefficient for every level, not a comparison with the reference level",
+    ] {
+        assert!(md.contains(text), "the rendering lacks {text:?}");
+    }
+    // Type II of x beside x by z tests x without x by z: no note.
+    assert!(!md.contains("The Type II test of `x` is of its effect where z = 0"));
+}

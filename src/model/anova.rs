@@ -6,7 +6,7 @@ use super::cause::alias_cause;
 use super::design::{self, term_keys};
 use super::fit::{f_p, Fit};
 use super::qr::{Mat, RAccumulator, CHUNK_ROWS};
-use super::{Anova, AnovaRow, Comparison, ModelError, Note, SsType, Var};
+use super::{Anova, AnovaRow, Comparison, ModelError, Note, SsType, Transform, Var};
 
 impl Fit {
     /// The analysis-of-variance table of the given type.
@@ -109,6 +109,7 @@ impl Fit {
                     };
                     push(&mut rows, t, df, ss, w);
                 }
+                notes = self.origin_notes("II");
             }
             SsType::III => {
                 let refuse = |cols: &[super::design::Column], mut aliased: Vec<usize>| {
@@ -144,6 +145,7 @@ impl Fit {
                     push(&mut rows, t, df, ss, w);
                 }
                 notes = self.type3_notes();
+                notes.extend(self.origin_notes("III"));
             }
         }
         let n = self.lay.used.len();
@@ -194,6 +196,72 @@ impl Fit {
                     term_name: self.lay.term_names.get(t).cloned().unwrap_or_default(),
                     covariate: c,
                 });
+            }
+        }
+        notes
+    }
+}
+
+impl Fit {
+    /// Notes for tests of covariate terms that depend on an origin: in Type III, a term of
+    /// covariates only inside a bigger term with a further covariate (`x` with `x by z`:
+    /// the slope of x where z = 0); in Types II and III, a term whose covariate also enters
+    /// a later term as a higher power with the same other parts (`x` with `x^2`, `g by x`
+    /// with `g by x^2`: the slope where x = 0), which neither type takes out first.
+    fn origin_notes(&self, kind: &'static str) -> Vec<Note> {
+        let spec = &self.spec;
+        let nterms = spec.terms.len();
+        let keys: Vec<_> = (0..nterms).map(|t| term_keys(spec, t)).collect();
+        let numeric = |v: usize| matches!(spec.vars.get(v), Some(Var::Numeric { .. }));
+        let part = |k: &(usize, Transform)| match spec.vars.get(k.0) {
+            Some(Var::Numeric { name, .. }) => design::part_name(name, k.1),
+            _ => String::new(),
+        };
+        let names = &self.lay.term_names;
+        let mut notes = Vec::new();
+        for t in 0..nterms {
+            let mut seen: Vec<String> = Vec::new();
+            let mut note = |covariate: String, u: usize| {
+                if !seen.contains(&covariate) {
+                    seen.push(covariate.clone());
+                    notes.push(Note::AtOrigin {
+                        term: t,
+                        term_name: names.get(t).cloned().unwrap_or_default(),
+                        kind,
+                        covariate,
+                        because: names.get(u).cloned().unwrap_or_default(),
+                    });
+                }
+            };
+            for u in (0..nterms).filter(|&u| u != t) {
+                // x inside x by z (Type III only: Type II tests x without x by z).
+                if kind == "III"
+                    && keys[t].iter().all(|k| numeric(k.0))
+                    && keys[u].len() > keys[t].len()
+                    && keys[t].iter().all(|k| keys[u].contains(k))
+                {
+                    for k in keys[u].iter().filter(|k| !keys[t].contains(k)) {
+                        if numeric(k.0) {
+                            note(part(k), u);
+                        }
+                    }
+                }
+                // x with x^2: the same other parts, the covariate to a higher power.
+                for k in &keys[t] {
+                    let lower = match k.1 {
+                        Transform::Identity => 1,
+                        Transform::Power(p) => p,
+                        _ => continue,
+                    };
+                    let higher = keys[u]
+                        .iter()
+                        .any(|h| h.0 == k.0 && matches!(h.1, Transform::Power(q) if q > lower));
+                    let rest_t: Vec<_> = keys[t].iter().filter(|x| x.0 != k.0).collect();
+                    let rest_u: Vec<_> = keys[u].iter().filter(|x| x.0 != k.0).collect();
+                    if higher && rest_t == rest_u && keys[u].len() == keys[t].len() {
+                        note(part(&(k.0, Transform::Identity)), u);
+                    }
+                }
             }
         }
         notes

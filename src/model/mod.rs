@@ -285,6 +285,21 @@ pub enum Note {
         /// The covariate (part name, e.g. `x`).
         covariate: String,
     },
+    /// A test of a covariate term that depends on where another covariate, or the covariate
+    /// itself, is 0: the Type III test of `x` when `x by z` is in the model (its slope where
+    /// z = 0), or the Type II or III test of `x` when `x^2` is (its slope where x = 0).
+    AtOrigin {
+        /// Index of the tested term.
+        term: usize,
+        /// Name of the tested term.
+        term_name: String,
+        /// "II" or "III".
+        kind: &'static str,
+        /// The covariate whose origin the test depends on (part name).
+        covariate: String,
+        /// The term of the model that makes it so.
+        because: String,
+    },
 }
 
 impl fmt::Display for Note {
@@ -293,6 +308,16 @@ impl fmt::Display for Note {
             Note::AtCovariateZero { term_name, covariate, .. } => write!(
                 f,
                 "the Type III test of `{term_name}` compares groups where {covariate} = 0, because the model lets the effect depend on {covariate}; centre {covariate} or give adjusted means at chosen values to compare elsewhere"
+            ),
+            Note::AtOrigin {
+                term_name,
+                kind,
+                covariate,
+                because,
+                ..
+            } => write!(
+                f,
+                "the Type {kind} test of `{term_name}` is of its effect where {covariate} = 0, because the model also has `{because}`; it changes when {covariate} is shifted, so centre {covariate} to test it at the mean of {covariate}"
             ),
         }
     }

@@ -142,12 +142,10 @@ impl Fit {
             let lab = levels.get(c as usize).cloned().unwrap_or_default();
             let pt = m.point(f, Some(c), numeric.clone(), Some(x));
             let l = m.row_at(&pt);
-            let (s, se) = m
-                .linear(&l)
-                .map_err(|_| ModelError::NotEstimable {
-                    what: format!("the slope within {factor} = {lab}"),
-                    why: m.why_not(f, &[c]),
-                })?;
+            let (s, se) = m.linear(&l).map_err(|_| ModelError::NotEstimable {
+                what: format!("the slope within {factor} = {lab}"),
+                why: m.why_not(f, &[c]),
+            })?;
             let t = if m.exact { f64::NAN } else { s / se };
             rows.push(Slope {
                 level: lab,
@@ -162,7 +160,12 @@ impl Fit {
             slope_rows.push(l);
         }
         let mut depends_on: Vec<(String, bool)> = Vec::new();
-        for term in m.spec.terms.iter().filter(|t| t.parts.iter().any(|p| p.var == x)) {
+        for term in m
+            .spec
+            .terms
+            .iter()
+            .filter(|t| t.parts.iter().any(|p| p.var == x))
+        {
             for p in term.parts.iter().filter(|p| p.var != x && p.var != f) {
                 let name = super::design::var_name(&m.spec, p.var);
                 let factor = matches!(m.spec.vars.get(p.var), Some(Var::Factor { .. }));
