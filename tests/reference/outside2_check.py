@@ -1038,14 +1038,14 @@ def check_reports():
 
 class Rows:
     """The rows a model is fitted to: those with every value it uses (and, weighted, a
-    weight above 0; `weights` names the column, copied into w)."""
+    weight above 0; `weights` names the column, copied into w; `response` likewise into y)."""
 
-    def __init__(self, keep, weights="w"):
-        self.keep, self.weights = keep, weights
+    def __init__(self, keep, weights="w", response="y"):
+        self.keep, self.weights, self.response = keep, weights, response
 
     def __enter__(self):
         self.saved = list(rows)
-        rows[:] = [dict(r, w=r[self.weights]) for r in self.saved if self.keep(r)]
+        rows[:] = [dict(r, w=r[self.weights], y=r[self.response]) for r in self.saved if self.keep(r)]
 
     def __exit__(self, *exc):
         rows[:] = self.saved
@@ -1070,6 +1070,53 @@ def check_zero_weights_and_missing():
         check_checks("check mm", MM)
         check_differences("table differences mm for g level 0.99", MM, "g", "tukey", level=0.99)
         check_versus("table differences mm for g versus b correction none", MM, "b", "two", "none")
+
+
+BIG = [("g",), ("xb",), ("zb",), ("xb", "zb")]
+BY = [("g",), ("x",), ("x^2",)]
+
+
+def check_offsets():
+    """Covariates near 10^6 with their product, and a response near 10^8 with a quadratic:
+    the columns are the doubles `compute` makes (x + 1e6 rounded), taken exactly, and every
+    number is checked against exact least squares on them. Type I and II sums of squares,
+    adjusted means and differences are those of the unshifted model; Type III of xb and zb
+    (their slopes where the other is 0, far outside the data) are not, and are checked as
+    such. The adjusted means are at the exact mean of the covariates: covey's mean is the
+    double nearest it (1000020.3099999999, 5.6e-11 off), which alone costs the means and
+    their SEs about three of their digits here (at that double they agree to 3e-16)."""
+    for r in ALL:
+        r["xb"] = Fr(float(r["x"]) + 1e6)
+        r["zb"] = Fr(float(r["z"]) + 1e6)
+        r["yb"] = Fr(float(r["y"]) + 1e8)
+    for kind in (1, 2, 3):
+        check_anova(f"table anova big type {kind}", BIG, kind)
+    fm = fit(BIG)
+    p = {"g": even("g"), "h": even("h"), "xb": mean_of("xb"), "zb": mean_of("zb")}
+    q = stats.t.ppf(0.975, fm.df)
+    for row in table("table means big for g")["rows"]:
+        l = design(BIG, "ref", dict(p, g={row["level"]: Fr(1)}))[0]
+        est, se = fm.at(l), sqrt_fr(fm.var(l))
+        cmp("adjusted mean (covariates near 1e6)", (row, "mean"), est)
+        cmp("adjusted mean: SE (covariates near 1e6)", (row, "se"), se)
+        cmp("adjusted mean: limits (covariates near 1e6)", (row, "lower"), float(est) - q * se, scale=q * se)
+    for i, row in enumerate(table("table coefficients big")["rows"]):
+        l = [Fr(int(j == i)) for j in range(fm.p)]
+        cmp("coefficient (covariates near 1e6)", (row, "estimate"), fm.b[i])
+        cmp("coefficient: SE (covariates near 1e6)", (row, "se"), sqrt_fr(fm.var(l)))
+    t = table("table differences big for g robust")
+    for row in t["rows"]:
+        la = design(BIG, "ref", dict(p, g={row["first"]: Fr(1)}))[0]
+        lb = design(BIG, "ref", dict(p, g={row["second"]: Fr(1)}))[0]
+        l = [u - v for u, v in zip(la, lb)]
+        cmp("difference (covariates near 1e6)", (row, "estimate"), fm.at(l))
+        cmp("difference: SE (robust, covariates near 1e6)", (row, "se"), sqrt_fr(fm.var(l, True)))
+    check_checks("check big", BIG)
+    with Rows(lambda r: True, response="yb"):
+        check_anova("table anova by type 2", BY, 2, weighted=True)
+        check_means("table means by for g at x = 25", BY, weighted=True, x=Fr(25))
+        check_fit("table fit by", BY, True)
+        check_checks("check by", BY, weighted=True)
 
 
 def check_transform():
@@ -1136,6 +1183,7 @@ def main():
     check_reports()
     check_zero_weights_and_missing()
     check_versus("table differences hx for g versus c below within h", HX, "c", "below", "dunnett", within="h")
+    check_offsets()
     # the empty cell: keep where not (g == c and h == q)
     rows[:] = [r for r in ALL if not (r["g"] == "c" and r["h"] == "q")]
     for kind in (1, 2):
