@@ -953,12 +953,12 @@ def check_slopes_general(statement, terms, factor):
     cmp("equal-slopes p (Wald, slopes shown)", (row, "p"), stats.f.sf(float(f), len(L), fm.df))
 
 
-def check_regions_general(statement, terms, a, b):
+def check_regions_general(statement, terms, a, b, weighted=False, row_index=0):
     """Johnson-Neyman bounds of a - b where other terms hold x or the factor (other factors
     averaged evenly, other covariates at their means)."""
     if ("g", "x") not in terms:
         terms = terms + [("g", "x")]
-    fm = fit(terms)
+    fm = fit(terms, weighted)
     l0 = [u - v for u, v in zip(point(terms, g=a, x=Fr(0)), point(terms, g=b, x=Fr(0)))]
     l1 = [u - v for u, v in zip(point(terms, g=a, x=Fr(1)), point(terms, g=b, x=Fr(1)))]
     l1 = [u - v for u, v in zip(l1, l0)]
@@ -967,8 +967,15 @@ def check_regions_general(statement, terms, a, b):
     t2 = Fr(stats.t.ppf(0.975, fm.df) ** 2)
     qa, qb, qc = d1 * d1 - t2 * v11, 2 * (d0 * d1 - t2 * v01), d0 * d0 - t2 * v00
     disc = qb * qb - 4 * qa * qc
+    row = table(statement)["rows"][row_index]
+    if disc <= 0:
+        want = "for every value of x" if qa > 0 else "for no value of x"
+        if row["significant"] != want:
+            print(f"WRONG REGION {statement}: covey {row['significant']!r}, reference {want!r}")
+            worst["Johnson-Neyman side"] = -99
+        undefined("Johnson-Neyman bound where there is none", (row, "lower_bound"))
+        return
     lo, hi = sorted([float((-qb - sqrt_fr(disc)) / (2 * qa)), float((-qb + sqrt_fr(disc)) / (2 * qa))])
-    row = table(statement)["rows"][0]
     cmp("Johnson-Neyman bound (other terms hold x or the factor)", (row, "lower_bound"), lo)
     cmp("Johnson-Neyman bound (other terms hold x or the factor)", (row, "upper_bound"), hi)
     want = "where x is between the bounds" if qa < 0 else "where x is below the lower or above the upper bound"
@@ -1176,6 +1183,8 @@ def main():
     check_slopes_general("table slopes hx of x for h", HX, "h")
     check_regions_general("table regions ff of x for g between b and c", FF, "b", "c")
     check_regions_general("table regions xz of x for g between a and c", XZ, "a", "c")
+    for i, (a, b) in enumerate((("a", "b"), ("a", "c"), ("b", "c"))):
+        check_regions_general("table regions wsep of x for g", WSEP, a, b, weighted=True, row_index=i)
     check_robust_weighted()
     check_contrast("table contrast hx for g weights -1, 0.5, 0.5", HX, [-1, Fr(1, 2), Fr(1, 2)], False, 0.95)
     check_checks("check ff", FF)
@@ -1199,6 +1208,17 @@ def main():
         cmp("adjusted mean: SE (empty cell, weighted)", (row, "se"), sqrt_fr(fm.var(l)))
     check_differences("table differences wholes for g within h correction holm", HOLES, "g", "holm", weighted=True, within="h")
     check_differences("table differences wholes for h within g", HOLES, "h", "tukey", weighted=True, within="g")
+    check_differences("table differences wholes for g within h", HOLES, "g", "tukey", weighted=True, within="h")
+    fm = fit(HOLES, True)
+    for row in table("table means wholes for g")["rows"]:
+        l = point(HOLES, g=row["level"])
+        if not estimable(fm, l):
+            undefined("adjusted mean averaging over an empty cell", (row, "mean"))
+            continue
+        cmp("adjusted mean (empty cell, weighted)", (row, "mean"), fm.at(l))
+        cmp("adjusted mean: SE (empty cell, weighted)", (row, "se"), sqrt_fr(fm.var(l)))
+    check_contrast("table contrast wholes for g weights 1, -1, 0", HOLES, [1, -1, 0], False, 0.95, weighted=True)
+    check_regions_general("table regions wholes of x for g between a and b", HOLES, "a", "b", weighted=True)
 
     rendered = open("/tmp/outside2_check/outside2.rendered.md").read()
     for tx in texts:
