@@ -1126,6 +1126,61 @@ def check_offsets():
         check_checks("check by", BY, weighted=True)
 
 
+def check_robust_anova(statement, terms, kind, weighted=False):
+    """Robust (HC3) Wald F of Types I and II in a model with an aliased column: the
+    hypothesis of a term is L b = 0 with L = X_T' W (I - P0) X, P0 the weighted projection
+    on the columns tested before it (Type I: earlier terms; Type II: the terms that do not
+    contain it), on the kept columns; F = (Lb)' (L V L')^-1 (Lb) / rank, V the HC3
+    covariance (exact)."""
+    fm = fit(terms, weighted)
+    x = design(terms)
+    x = [[r[j] for j in fm.keep] for r in x]
+    w = fm.w
+    width = [len(column_parts(u, rows[0], "ref")) for u in terms]
+    start = [1 + sum(width[:k]) for k in range(len(terms))]
+    col_of = {j: k for k, j in enumerate(fm.keep)}
+    for row in table(statement)["rows"]:
+        names = [name(u) for u in terms]
+        if row["term"] not in names:
+            continue
+        t = names.index(row["term"])
+        term = terms[t]
+        if kind == 1:
+            before = list(range(t))
+        else:
+            before = [u for u in range(len(terms)) if u != t and not set(term) < set(terms[u])]
+        c0 = [0] + [col_of[c] for u in before for c in range(start[u], start[u] + width[u]) if c in col_of]
+        ct = [col_of[c] for c in range(start[t], start[t] + width[t]) if c in col_of]
+        x0 = [[r[c] for c in c0] for r in x]
+        g0 = Fit(x0, [Fr(0)] * len(x), w)
+        resid = []
+        for j in range(fm.p):
+            col = [r[j] for r in x]
+            xty = [sum(w[i] * x0[i][a] * col[i] for i in range(len(x))) for a in range(len(c0))]
+            b0 = [dot(rw, xty) for rw in g0.xtxi]
+            resid.append([col[i] - dot(x0[i], b0) for i in range(len(x))])
+        L = [[sum(w[i] * x[i][c] * resid[j][i] for i in range(len(x))) for j in range(fm.p)] for c in ct]
+        # drop rows that are combinations of earlier ones (a term's part already in P0)
+        keep = []
+        for l in L:
+            trial = keep + [l]
+            gram = [[dot(a, b) for b in trial] for a in trial]
+            try:
+                inverse(gram)
+                keep = trial
+            except StopIteration:
+                pass
+        L = keep
+        lb = [dot(l, fm.b) for l in L]
+        lvl = [[bilinear(a, b, fm.hc3()) for b in L] for a in L]
+        f = dot(lb, solve(lvl, lb)) / len(L)
+        cmp(f"robust Wald F (Type {kind}, weighted, empty cell)", (row, "f"), f)
+        cmp(f"robust Wald p (Type {kind}, weighted, empty cell)", (row, "p"), stats.f.sf(float(f), len(L), fm.df))
+        if row["df"] != len(L):
+            print(f"WRONG DF {statement} {row['term']}: {row['df']} vs {len(L)}")
+            worst["robust Wald df"] = -99
+
+
 def check_transform():
     """log(x) and sqrt(z) at the covariates' means: covey evaluates the transform at the mean
     of the column (log of the mean, not the mean of the log)."""
@@ -1219,6 +1274,15 @@ def main():
         cmp("adjusted mean: SE (empty cell, weighted)", (row, "se"), sqrt_fr(fm.var(l)))
     check_contrast("table contrast wholes for g weights 1, -1, 0", HOLES, [1, -1, 0], False, 0.95, weighted=True)
     check_regions_general("table regions wholes of x for g between a and b", HOLES, "a", "b", weighted=True)
+    check_robust_anova("table anova wholes type 2 robust", HOLES, 2, weighted=True)
+    check_robust_anova("table anova wholes type 1 robust", HOLES, 1, weighted=True)
+    fm = fit(HOLES, True)
+    for row in table("table means wholes for g by h robust")["rows"]:
+        l = point(HOLES, g=row["level"], h=row["by"])
+        if not estimable(fm, l):
+            undefined("robust cell mean of an empty cell", (row, "mean"))
+            continue
+        cmp("cell mean: SE (robust, weighted, empty cell)", (row, "se"), sqrt_fr(fm.var(l, True)))
 
     rendered = open("/tmp/outside2_check/outside2.rendered.md").read()
     for tx in texts:
