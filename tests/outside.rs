@@ -170,6 +170,8 @@ fn the_second_set_says_what_its_numbers_are_of() {
         "*Note.* The slope of `x` depends on `z`, which shares a term with it: each slope is taken with `z` at its mean 4.859",
         // a factor first in a model without intercept
         "*Note.* `g` has a coefficient for every level, not a comparison with the reference level",
+        // a weighted pilot's SD is that of a row of weight 1 (checked above: 3.344 exact)
+        "its residual SD is 3.344 (the model is weighted: the SD of a row of weight 1)",
     ] {
         assert!(md.contains(text), "the rendering lacks {text:?}");
     }

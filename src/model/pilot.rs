@@ -27,6 +27,8 @@ pub struct Pilot {
     /// With one covariate column, the sign of its coefficient (the sign of the partial
     /// correlation).
     pub sign: Option<f64>,
+    /// Whether the model is weighted: its residual SD is then that of a row of weight 1.
+    pub weighted: bool,
 }
 
 /// Why a model cannot serve as a pilot.
@@ -103,6 +105,7 @@ impl Fit {
             covariate_df,
             partial_r_squared,
             sign,
+            weighted: spec.weights.is_some(),
         })
     }
 }

@@ -791,14 +791,19 @@ fn input_notes(
                 short(p.info.partial_r_squared)
             ),
         };
+        let weight_one = if p.info.weighted {
+            " (the model is weighted: the SD of a row of weight 1)"
+        } else {
+            ""
+        };
         let sigma = match p.level {
             Some(l) => format!(
-                "its residual SD is {}, planned with its one-sided upper {}% confidence limit {}",
+                "its residual SD is {}{weight_one}, planned with its one-sided upper {}% confidence limit {}",
                 short(p.info.sigma),
                 short(l * 100.0),
                 short(p.sigma)
             ),
-            None => format!("its residual SD is {}", short(p.info.sigma)),
+            None => format!("its residual SD is {}{weight_one}", short(p.info.sigma)),
         };
         let mut uses = Vec::new();
         let sd_used = !matches!(decl.effect, PlanEffect::F(_))
