@@ -436,20 +436,32 @@ pub(super) fn one_way_in(
 }
 
 /// The one-way analysis of variance of `values` on the factor `codes` over the rows `used`:
-/// (F, numerator df, denominator df). Group means by a corrected two-pass sum, then the
-/// between- and within-level sums of squares about them; the same F as the Type II test of a
-/// model of the covariate on the factor, without building one.
+/// (F, numerator df, denominator df). The values are first taken about a centre near their
+/// mean, so that group means far from 0 (a covariate near 10^6) keep the digits of their
+/// differences; then group means by a corrected two-pass sum, and the between- and
+/// within-level sums of squares about them; the same F as the Type II test of a model of the
+/// covariate on the factor, without building one.
 fn one_way(
     values: &[f64],
     codes: &[Code],
     nlevels: usize,
     used: &UsedRows,
 ) -> Result<(f64, usize, usize), ModelError> {
-    let cell = |i: usize| -> Option<(usize, f64)> {
+    let raw = |i: usize| -> Option<(usize, f64)> {
         let c = codes.get(i).and_then(|c| c.get())? as usize;
         let v = values.get(i).copied()?;
         (c < nlevels && v.is_finite()).then_some((c, v))
     };
+    let (total, rows) = used
+        .iter()
+        .filter_map(raw)
+        .fold((0.0, 0usize), |(s, k), (_, v)| (s + v, k + 1));
+    let centre = if rows > 0 && (total / rows as f64).is_finite() {
+        total / rows as f64
+    } else {
+        0.0
+    };
+    let cell = |i: usize| raw(i).map(|(c, v)| (c, v - centre));
     let mut count = vec![0usize; nlevels];
     let mut sum = vec![0.0; nlevels];
     for (c, v) in used.iter().filter_map(cell) {
