@@ -258,7 +258,9 @@ fn every_table_form() {
     }
     match t("table differences m for ration at start = 12 within sex") {
         T::Differences {
-            within: Some(w), at, ..
+            within: Some(w),
+            at,
+            ..
         } => {
             assert_eq!(w.value, "sex");
             assert_eq!(at.len(), 1);

@@ -502,6 +502,8 @@ pub enum RegionKind {
     Between(f64, f64),
     /// Significant below the first or above the second bound.
     Outside(f64, f64),
+    /// The difference is not determined by the design (an empty cell, say): why.
+    NotEstimable(String),
 }
 
 /// A Johnson-Neyman region for one pair of levels.

@@ -330,8 +330,30 @@ impl Fit {
                 let rb = m.row_at(&m.point(f, Some(b), numeric.clone(), deriv));
                 ra.iter().zip(&rb).map(|(p, q)| p - q).collect::<Vec<f64>>()
             };
-            let (ea, wa) = m.linear_parts(&diff(None)).map_err(|_| what())?;
-            let (eb, wb) = m.linear_parts(&diff(Some(x))).map_err(|_| what())?;
+            let parts = m
+                .linear_parts(&diff(None))
+                .and_then(|a| Ok((a, m.linear_parts(&diff(Some(x)))?)));
+            let ((ea, wa), (eb, wb)) = match parts {
+                Ok(p) => p,
+                // Every pair: the others are still shown, as `table differences` does.
+                Err(()) if between.is_none() => {
+                    out.push(Region {
+                        first: label(a),
+                        second: label(b),
+                        kind: RegionKind::NotEstimable(m.why_not(f, &[a, b])),
+                        boundaries: Vec::new(),
+                        significant_inside: false,
+                        lower_bound: None,
+                        upper_bound: None,
+                        description: "not estimable from this design".to_string(),
+                        observed_min: lo,
+                        observed_max: hi,
+                        refitted,
+                    });
+                    continue;
+                }
+                Err(()) => return Err(what()),
+            };
             // d(x0 + sd u) = ea + (eb sd) u; Var = |wa + u sd wb|^2.
             let bb = eb * sd;
             let wbs: Vec<f64> = wb.iter().map(|v| v * sd).collect();
@@ -396,6 +418,7 @@ impl Fit {
                     Some(q),
                     format!("where {xname} is below the lower or above the upper bound"),
                 ),
+                RegionKind::NotEstimable(_) => (None, None, String::new()),
             };
             let (boundaries, inside) = match kind {
                 RegionKind::Everywhere => (Vec::new(), true),
@@ -403,6 +426,7 @@ impl Fit {
                 RegionKind::Below(v) | RegionKind::Above(v) => (vec![v], false),
                 RegionKind::Between(p, q) => (vec![p, q], true),
                 RegionKind::Outside(p, q) => (vec![p, q], false),
+                RegionKind::NotEstimable(_) => (Vec::new(), false),
             };
             out.push(Region {
                 first: label(a),

@@ -981,6 +981,15 @@ impl Session<'_> {
                         Col::new("observed_max", "observed max", Format::Digits(4)),
                     ],
                 );
+                let not_estimable: Vec<String> = rows
+                    .iter()
+                    .filter_map(|r| match &r.kind {
+                        model::RegionKind::NotEstimable(why) => {
+                            Some(format!("{} - {}: {why}", code(&r.first), code(&r.second)))
+                        }
+                        _ => None,
+                    })
+                    .collect();
                 for r in rows {
                     t.push(vec![
                         r.first.into(),
@@ -991,6 +1000,12 @@ impl Session<'_> {
                         r.observed_min.into(),
                         r.observed_max.into(),
                     ]);
+                }
+                if !not_estimable.is_empty() {
+                    t.notes.push(format!(
+                        "Not estimable from this design, its bounds shown as —: {}.",
+                        not_estimable.join("; ")
+                    ));
                 }
                 Ok(vec![Item::Table(t)])
             }

@@ -1285,7 +1285,12 @@ def main():
         cmp("adjusted mean (empty cell, weighted)", (row, "mean"), fm.at(l))
         cmp("adjusted mean: SE (empty cell, weighted)", (row, "se"), sqrt_fr(fm.var(l)))
     check_contrast("table contrast wholes for g weights 1, -1, 0", HOLES, [1, -1, 0], False, 0.95, weighted=True)
-    check_regions_general("table regions wholes of x for g between a and b", HOLES, "a", "b", weighted=True)
+    check_regions_general("table regions wholes of x for g", HOLES, "a", "b", weighted=True)
+    for row in table("table regions wholes of x for g")["rows"][1:]:
+        # a - c and b - c compare the empty cell: shown, without bounds (once an error that
+        # took the whole table)
+        undefined("Johnson-Neyman bound of a pair that is not estimable", (row, "lower_bound"))
+        undefined("Johnson-Neyman bound of a pair that is not estimable", (row, "upper_bound"))
     check_robust_anova("table anova wholes type 2 robust", HOLES, 2, weighted=True)
     check_robust_anova("table anova wholes type 1 robust", HOLES, 1, weighted=True)
     fm = fit(HOLES, True)
