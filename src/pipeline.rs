@@ -35,7 +35,8 @@ pub struct Run {
     pub warnings: Vec<String>,
     /// The input files read, for provenance.
     pub inputs: Vec<InputRecord>,
-    /// Figure files as (path relative to the rendered document, SVG text).
+    /// Figure files as (path relative to the rendered document, SVG text); empty from
+    /// [`run_with`], which hands each to its caller as it is drawn.
     pub figures: Vec<(String, String)>,
     /// The gates that did not hold, as sentences.
     pub gates_failed: Vec<String>,
@@ -72,6 +73,23 @@ pub fn run(
     file_name: &str,
     world: &dyn World,
     opts: RunOptions,
+) -> Result<Run, Unrunnable> {
+    let mut figures = Vec::new();
+    let mut run = run_with(text, file_name, world, opts, &mut |path, svg| {
+        figures.push((path.to_string(), svg));
+    })?;
+    run.figures = figures;
+    Ok(run)
+}
+
+/// [`run`], giving each figure to `figure` as it is drawn (its path relative to the rendered
+/// document, its SVG text) instead of holding them all: a long document draws thousands.
+pub fn run_with(
+    text: &str,
+    file_name: &str,
+    world: &dyn World,
+    opts: RunOptions,
+    figure: &mut dyn FnMut(&str, String),
 ) -> Result<Run, Unrunnable> {
     let doc = document::parse(text).map_err(|e| Unrunnable {
         errors: vec![for_terminal(format!("{file_name}: {e}"))],
@@ -148,7 +166,6 @@ pub fn run(
     let mut stopped: Option<Stop> = None;
     let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
-    let mut figures = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
     for (bi, statements) in blocks.iter().enumerate() {
         let mut figure_count = 0;
@@ -177,9 +194,9 @@ pub fn run(
                         if let Item::Figure(f) = it {
                             figure_count += 1;
                             f.file = format!("{stem}.figures/block{}-{figure_count}.svg", bi + 1);
-                            // The SVG text moves to the run's figures; the item keeps
-                            // what the Markdown shows (caption, alternative text, link).
-                            figures.push((f.file.clone(), std::mem::take(&mut f.svg)));
+                            // The SVG text goes to the caller; the item keeps what the
+                            // Markdown shows (caption, alternative text, link).
+                            figure(&f.file, std::mem::take(&mut f.svg));
                         }
                     }
                     items
@@ -294,7 +311,7 @@ pub fn run(
         errors,
         warnings,
         inputs,
-        figures,
+        figures: Vec::new(),
         gates_failed,
         document: doc,
     })

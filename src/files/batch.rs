@@ -33,11 +33,11 @@
 //! has to be put back.
 
 use std::fs;
-use std::io::{self, Read, Write};
+use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
 use super::temp::{self, Staging};
-use super::{Digest, FileError};
+use super::{Digest, FileError, NewBytes};
 
 /// What a path must hold for covey to write there.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -84,7 +84,7 @@ pub struct Committed {
 
 struct Planned {
     path: PathBuf,
-    bytes: Vec<u8>,
+    bytes: NewBytes,
     expect: Expect,
 }
 
@@ -104,7 +104,7 @@ struct Pending<'a> {
 }
 
 /// A new file written in a temporary folder: its path there and its identity.
-struct Staged {
+struct Ready {
     path: PathBuf,
     identity: (u64, u64),
 }
@@ -152,7 +152,7 @@ impl Batch {
     }
 
     /// Adds a file to write at `path`, which must hold what `expect` says.
-    pub fn write(&mut self, path: PathBuf, bytes: impl Into<Vec<u8>>, expect: Expect) {
+    pub fn write(&mut self, path: PathBuf, bytes: impl Into<NewBytes>, expect: Expect) {
         self.writes.push(Planned {
             path,
             bytes: bytes.into(),
@@ -194,7 +194,7 @@ impl Batch {
         // What changes, and whether each target holds what it should.
         let mut pending = Vec::new();
         for planned in &self.writes {
-            let old = match read_target(&planned.path, &planned.bytes)? {
+            let old = match read_target(&planned.path, planned.bytes.digest())? {
                 Target::Same => continue,
                 Target::Absent => None,
                 Target::Other(digest, perms) => Some((digest, perms)),
@@ -228,7 +228,7 @@ impl Batch {
             _ => None,
         };
         let indexed: Vec<(usize, &Pending)> = pending.iter().enumerate().collect();
-        let staged: Vec<Result<Staged, FileError>> = crate::parallel::map(&indexed, |(i, p)| {
+        let staged: Vec<Result<Ready, FileError>> = crate::parallel::map(&indexed, |(i, p)| {
             if stage_fault == Some(*i) {
                 return Err(FileError {
                     path: p.planned.path.clone(),
@@ -325,10 +325,10 @@ enum Target {
     Other(Digest, fs::Permissions),
 }
 
-/// The file at `path` now, compared with `new`: an error when it is a link, a
-/// folder or another special file, which covey never replaces. The file is
-/// read a piece at a time, not held.
-fn read_target(path: &Path, new: &[u8]) -> Result<Target, FileError> {
+/// The file at `path` now, compared with the new bytes (their digest): an
+/// error when it is a link, a folder or another special file, which covey
+/// never replaces. The file is read a piece at a time, not held.
+fn read_target(path: &Path, new: Digest) -> Result<Target, FileError> {
     let fail = |message: String| FileError {
         path: path.to_path_buf(),
         message,
@@ -348,34 +348,11 @@ fn read_target(path: &Path, new: &[u8]) -> Result<Target, FileError> {
             "is not a regular file; covey does not replace it; nothing was written".into(),
         ));
     }
-    let read = || -> io::Result<Target> {
-        if u64::try_from(new.len()).ok() == Some(meta.len()) && same_bytes(path, new)? {
-            return Ok(Target::Same);
-        }
-        match Digest::of_file(path)? {
-            Some(d) => Ok(Target::Other(d, meta.permissions())),
-            None => Ok(Target::Absent),
-        }
-    };
-    read().map_err(|e| fail(format!("cannot read: {e}")))
-}
-
-/// True when the file at `path` holds exactly `bytes`.
-fn same_bytes(path: &Path, mut bytes: &[u8]) -> io::Result<bool> {
-    let mut file = fs::File::open(path)?;
-    let mut buf = vec![0u8; 1 << 16];
-    loop {
-        let n = file.read(&mut buf)?;
-        let Some(read) = buf.get(..n) else {
-            return Ok(false);
-        };
-        if n == 0 {
-            return Ok(bytes.is_empty());
-        }
-        match bytes.strip_prefix(read) {
-            Some(rest) => bytes = rest,
-            None => return Ok(false),
-        }
+    match Digest::of_file(path) {
+        Ok(Some(d)) if d == new => Ok(Target::Same),
+        Ok(Some(d)) => Ok(Target::Other(d, meta.permissions())),
+        Ok(None) => Ok(Target::Absent),
+        Err(e) => Err(fail(format!("cannot read: {e}"))),
     }
 }
 
@@ -400,31 +377,41 @@ fn expected(path: &Path, expect: Expect, found: Option<Digest>) -> Result<(), Fi
 }
 
 /// The new bytes of the `i`-th changed file, `p`, in the temporary folder
-/// beside it, flushed to disk and closed.
-fn stage(staging: &Staging, i: usize, p: &Pending) -> io::Result<Staged> {
-    let (path, mut file) = staging.file(&format!("new-{i}"))?;
+/// beside it (or where they were staged already), flushed to disk and closed.
+fn stage(staging: &Staging, i: usize, p: &Pending) -> io::Result<Ready> {
+    let (path, mut file, held) = match &p.planned.bytes {
+        NewBytes::Held(bytes) => {
+            let (path, file) = staging.file(&format!("new-{i}"))?;
+            (path, file, Some(bytes))
+        }
+        NewBytes::Staged { path, .. } => (path.clone(), temp::open_nofollow(path)?, None),
+    };
     let written = (|| {
         if let Some((_, perms)) = &p.old {
             file.set_permissions(perms.clone())?;
         }
-        file.write_all(&p.planned.bytes)?;
+        if let Some(bytes) = held {
+            file.write_all(bytes)?;
+        }
         file.sync_all()?;
         file.metadata()
     })();
     match written {
-        Ok(meta) => Ok(Staged {
+        Ok(meta) => Ok(Ready {
             path,
             identity: super::identity(&meta),
         }),
         Err(e) => {
-            let _ = fs::remove_file(&path);
+            if held.is_some() {
+                let _ = fs::remove_file(&path);
+            }
             Err(e)
         }
     }
 }
 
 /// Moves the new file `new` of the `i`-th changed file, `p`, into place.
-fn place<'a>(p: &'a Pending, stagings: &Stagings, i: usize, new: Staged) -> io::Result<Done<'a>> {
+fn place<'a>(p: &'a Pending, stagings: &Stagings, i: usize, new: Ready) -> io::Result<Done<'a>> {
     let path = p.planned.path.as_path();
     let changed = || {
         io::Error::other(format!(

@@ -95,11 +95,14 @@ pub fn open_exclusive(path: &Path) -> io::Result<File> {
     options.open(path)
 }
 
-/// A temporary folder in a target folder, for the files of one batch there:
-/// created exclusively under a fresh temporary name and locked until
-/// dropped. Files in it are created exclusively too, never through a link.
+/// A temporary folder in a target folder, for new files on their way there:
+/// created exclusively under a fresh temporary name, locked, and removed with
+/// what it holds when dropped. Files in it are created exclusively too, never
+/// through a link.
 pub struct Staging {
     pub path: PathBuf,
+    /// Left in place when dropped (see [`Staging::finish`]).
+    keep: bool,
     /// The folder itself, open and locked.
     _lock: File,
 }
@@ -115,7 +118,11 @@ impl Staging {
                 Ok(()) => {
                     let locked = open_nofollow(&path).and_then(|f| try_lock(&f).map(|()| f));
                     return match locked {
-                        Ok(lock) => Ok(Staging { path, _lock: lock }),
+                        Ok(lock) => Ok(Staging {
+                            path,
+                            keep: false,
+                            _lock: lock,
+                        }),
                         Err(e) => {
                             let _ = fs::remove_dir(&path);
                             Err(io::Error::other(format!(
@@ -155,8 +162,14 @@ impl Staging {
 
     /// Removes the folder with what it holds, unless `keep` is true (it then
     /// holds a file that could not be put back: the message says where).
-    pub fn finish(self, keep: bool) {
-        if !keep {
+    pub fn finish(mut self, keep: bool) {
+        self.keep = keep;
+    }
+}
+
+impl Drop for Staging {
+    fn drop(&mut self) {
+        if !self.keep {
             empty_and_remove(&self.path);
         }
     }
@@ -202,7 +215,7 @@ fn no_follow() -> i32 {
 }
 
 /// Opens `path` for reading, refusing a link.
-fn open_nofollow(path: &Path) -> io::Result<File> {
+pub fn open_nofollow(path: &Path) -> io::Result<File> {
     let mut options = OpenOptions::new();
     options.read(true);
     #[cfg(unix)]
