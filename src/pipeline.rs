@@ -170,7 +170,7 @@ pub fn run_with(
     for (bi, statements) in blocks.iter().enumerate() {
         let mut figure_count = 0;
         if let Some(stop) = stopped {
-            bodies.push(format!("\n*Not run: {}*\n\n", stop.advice()));
+            bodies.push(Body::NotRun(stop));
             continue;
         }
         let first = outputs.len();
@@ -236,9 +236,7 @@ pub fn run_with(
                 break;
             }
         }
-        bodies.push(markdown::block_body(
-            outputs[first..].iter().flat_map(|o| &o.items),
-        ));
+        bodies.push(Body::Ran(first..outputs.len()));
     }
     for line in &doc.ignored_nested {
         warnings.push(for_terminal(format!(
@@ -285,8 +283,21 @@ pub fn run_with(
         }
     }
     let values: Vec<Option<&str>> = values.iter().map(|v| Some(v.as_str())).collect();
-    let regions: Vec<Option<&str>> = bodies.iter().map(|b| Some(b.as_str())).collect();
-    let assembled = document::assemble_with_values(&doc, Some(&provenance), &regions, &values);
+    // Each block's output region is laid out only as it goes into the rendering.
+    let region = |i: usize| {
+        bodies.get(i).map(|body| match body {
+            Body::NotRun(stop) => format!("\n*Not run: {}*\n\n", stop.advice()).into(),
+            Body::Ran(range) => markdown::block_body(
+                outputs
+                    .get(range.clone())
+                    .unwrap_or_default()
+                    .iter()
+                    .flat_map(|o| &o.items),
+            )
+            .into(),
+        })
+    };
+    let assembled = document::assemble_made(&doc, Some(&provenance), &region, &values);
     for &i in &assembled.left {
         if let Some(reference) = doc.references.get(i) {
             let span = Span {
@@ -315,6 +326,13 @@ pub fn run_with(
         gates_failed,
         document: doc,
     })
+}
+
+/// What goes under a block: the outputs of its statements (a range of the run's outputs), or why
+/// it was not run.
+enum Body {
+    Ran(std::ops::Range<usize>),
+    NotRun(Stop),
 }
 
 /// What stopped a run before its last block.
