@@ -167,7 +167,9 @@ pub fn run_with(
     let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
-    for (bi, statements) in blocks.iter().enumerate() {
+    // Each block's statements go once they have run: a long document's syntax trees are not
+    // held to the end.
+    for (bi, statements) in blocks.into_iter().enumerate() {
         let mut figure_count = 0;
         if let Some(stop) = stopped {
             bodies.push(Body::NotRun(stop));
@@ -175,7 +177,7 @@ pub fn run_with(
         }
         let first = outputs.len();
         for stmt in statements {
-            let items = match session.run(stmt) {
+            let items = match session.run(&stmt) {
                 Ok(mut items) => {
                     for it in &items {
                         if let Item::GateFailed(g) = it {
@@ -229,7 +231,7 @@ pub fn run_with(
             outputs.push(Output {
                 block: bi + 1,
                 line: source.line_col(stmt.span.start).0,
-                statement: stmt.text.clone(),
+                statement: stmt.text,
                 items,
             });
             if stopped.is_some() {
