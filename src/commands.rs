@@ -4,7 +4,8 @@
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 
-use crate::files::{self, Batch, Digest, Plan, Role, Stamp};
+use crate::files::temp::Staging;
+use crate::files::{self, Batch, Digest, NewBytes, Plan, Role, Stamp};
 use crate::pipeline::{self, Run, RunOptions};
 use crate::report::json;
 use crate::world::{FsWorld, LocalFile, Opened, World, WorldError};
@@ -197,8 +198,13 @@ struct Ran {
     outcome: Result<Run, Vec<String>>,
 }
 
-/// Runs one document from disk.
-fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Ran {
+/// Runs one document from disk, giving each figure to `figure` as it is drawn.
+fn run_file(
+    doc: &Path,
+    opts: RunOptions,
+    allow_outside: bool,
+    figure: &mut dyn FnMut(&str, String),
+) -> Ran {
     let stamp = Stamp::of(doc);
     let bytes = match crate::world::read_regular(doc) {
         Ok(b) => b,
@@ -245,7 +251,8 @@ fn run_file(doc: &Path, opts: RunOptions, allow_outside: bool) -> Ran {
         folder: folder.to_path_buf(),
         asked: Mutex::new(Vec::new()),
     };
-    let outcome = pipeline::run(&text, &display_name(doc), &world, opts).map_err(|u| u.errors);
+    let outcome =
+        pipeline::run_with(&text, &display_name(doc), &world, opts, figure).map_err(|u| u.errors);
     let asked = world.asked.into_inner().unwrap_or_default();
     for (path, mut s) in asked {
         // A file loaded is known by the digest of the bytes loaded.
@@ -313,6 +320,9 @@ impl Targets {
 pub struct Prepared {
     report: Report,
     batch: Option<Batch>,
+    /// The temporary folders that hold the figures drawn, removed (with what is
+    /// left in them) once the batch is written or refused.
+    stagings: Vec<Staging>,
     /// What to say once the files are written.
     done: Vec<String>,
     /// What each document run read, and for one rendered in place, the
@@ -328,6 +338,7 @@ impl Prepared {
         Prepared {
             report,
             batch: None,
+            stagings: Vec::new(),
             done: Vec::new(),
             reads: Vec::new(),
         }
@@ -345,6 +356,7 @@ impl Prepared {
         let Prepared {
             mut report,
             batch,
+            stagings,
             done,
             reads,
         } = self;
@@ -365,6 +377,7 @@ impl Prepared {
                 Err(e) => report.fail(e.to_string()),
             }
         }
+        drop(stagings);
         let reads = reads
             .into_iter()
             .map(|(doc, mut seen, in_place)| {
@@ -464,6 +477,7 @@ pub(crate) fn prepare_documents(
     let mut plan = Plan::new();
     let mut done = Vec::new();
     let mut reads = Vec::new();
+    let mut stagings = Vec::new();
     for (file, doc) in known_inputs {
         plan.input(file, doc);
     }
@@ -480,11 +494,31 @@ pub(crate) fn prepare_documents(
             params: opts.params.clone(),
             databases: opts.databases.clone(),
         };
+        // Each figure waits on disk as soon as it is drawn, in a temporary folder beside the
+        // rendering (the folder it is moved from into the figures folder), rather than in
+        // memory. The HTML page holds the figures themselves, so with --html they are held;
+        // so they are when the folder does not exist yet or takes no temporary folder.
+        let staging = if opts.html {
+            None
+        } else {
+            Staging::create(&targets.folder).ok()
+        };
+        let mut drawn: Vec<(String, NewBytes)> = Vec::new();
+        let mut held: Vec<(String, String)> = Vec::new();
         let Ran {
             read,
             seen,
             outcome,
-        } = run_file(doc, run_opts, opts.allow_outside);
+        } = run_file(
+            doc,
+            run_opts,
+            opts.allow_outside,
+            &mut |path, svg| match &staging {
+                Some(s) => drawn.push((path.to_string(), stage_figure(s, drawn.len(), svg))),
+                None => held.push((path.to_string(), svg)),
+            },
+        );
+        stagings.extend(staging);
         plan.source(doc, read);
         for s in seen.iter().filter(|s| s.why == Why::Data) {
             plan.input(&s.file, doc);
@@ -522,7 +556,7 @@ pub(crate) fn prepare_documents(
         // held once, not copied. The rendering is planned first, so that a path it shares with
         // another output is reported as the rendering's.
         let page = targets.html.as_ref().map(|html| {
-            let page = crate::report::html::page(&display_name(doc), &run.rendered, &run.figures);
+            let page = crate::report::html::page(&display_name(doc), &run.rendered, &held);
             (html.clone(), page)
         });
         let exported = opts
@@ -538,10 +572,11 @@ pub(crate) fn prepare_documents(
         if let Some((path, text)) = exported {
             plan.output(path, text, Role::Json, doc);
         }
-        let figures = run
-            .figures
+        // Only one of the two holds figures, so they stay in the order drawn.
+        let figures = drawn
             .into_iter()
-            .map(|(rel, svg)| (targets.folder.join(rel), svg.into_bytes()))
+            .chain(held.into_iter().map(|(rel, svg)| (rel, svg.into())))
+            .map(|(rel, bytes)| (targets.folder.join(rel), bytes))
             .collect();
         plan.figures(targets.figures.clone(), doc, figures);
         done.push(format!(
@@ -578,8 +613,27 @@ pub(crate) fn prepare_documents(
     Prepared {
         report,
         batch,
+        stagings,
         done,
         reads,
+    }
+}
+
+/// The figure `svg`, the `n`-th of its document, written into the temporary folder `staging`;
+/// held in memory when it cannot be written there (the batch then says why, if it cannot write
+/// it either).
+fn stage_figure(staging: &Staging, n: usize, svg: String) -> NewBytes {
+    use std::io::Write as _;
+    let digest = Digest::of(svg.as_bytes());
+    match staging.file(&format!("figure-{n}")) {
+        Ok((path, mut file)) => match file.write_all(svg.as_bytes()) {
+            Ok(()) => NewBytes::Staged { path, digest },
+            Err(_) => {
+                let _ = std::fs::remove_file(&path);
+                svg.into()
+            }
+        },
+        Err(_) => svg.into(),
     }
 }
 
@@ -601,7 +655,12 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
             params: opts.params.clone(),
             databases: opts.databases.clone(),
         };
-        let run = match run_file(doc, run_opts, opts.allow_outside).outcome {
+        let mut figures = Vec::new();
+        let outcome = run_file(doc, run_opts, opts.allow_outside, &mut |path, svg| {
+            figures.push((path.to_string(), svg));
+        })
+        .outcome;
+        let run = match outcome {
             Ok(r) => r,
             Err(errors) => {
                 for e in errors {
@@ -644,7 +703,7 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
         };
         let folder = target.parent().map(Path::to_path_buf).unwrap_or_default();
         let mut figure_problems = Vec::new();
-        for (rel, svg) in &run.figures {
+        for (rel, svg) in &figures {
             match crate::world::read_regular(&folder.join(rel)) {
                 Ok(b) if b == svg.as_bytes() => {}
                 Ok(_) => figure_problems.push(format!("figure {rel} differs")),
@@ -654,7 +713,7 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
                 Err(e) => figure_problems.push(format!("figure {rel} cannot be read: {e}")),
             }
         }
-        figure_problems.extend(manifest_problem(&folder, doc, &run.figures));
+        figure_problems.extend(manifest_problem(&folder, doc, &figures));
         let diff = match (differences(&run, &on_disk), figure_problems.is_empty()) {
             (None, true) => None,
             (None, false) => Some(figure_problems),

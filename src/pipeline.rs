@@ -35,7 +35,8 @@ pub struct Run {
     pub warnings: Vec<String>,
     /// The input files read, for provenance.
     pub inputs: Vec<InputRecord>,
-    /// Figure files as (path relative to the rendered document, SVG text).
+    /// Figure files as (path relative to the rendered document, SVG text); empty from
+    /// [`run_with`], which hands each to its caller as it is drawn.
     pub figures: Vec<(String, String)>,
     /// The gates that did not hold, as sentences.
     pub gates_failed: Vec<String>,
@@ -72,6 +73,23 @@ pub fn run(
     file_name: &str,
     world: &dyn World,
     opts: RunOptions,
+) -> Result<Run, Unrunnable> {
+    let mut figures = Vec::new();
+    let mut run = run_with(text, file_name, world, opts, &mut |path, svg| {
+        figures.push((path.to_string(), svg));
+    })?;
+    run.figures = figures;
+    Ok(run)
+}
+
+/// [`run`], giving each figure to `figure` as it is drawn (its path relative to the rendered
+/// document, its SVG text) instead of holding them all: a long document draws thousands.
+pub fn run_with(
+    text: &str,
+    file_name: &str,
+    world: &dyn World,
+    opts: RunOptions,
+    figure: &mut dyn FnMut(&str, String),
 ) -> Result<Run, Unrunnable> {
     let doc = document::parse(text).map_err(|e| Unrunnable {
         errors: vec![for_terminal(format!("{file_name}: {e}"))],
@@ -148,17 +166,18 @@ pub fn run(
     let mut stopped: Option<Stop> = None;
     let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
-    let mut figures = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
-    for (bi, statements) in blocks.iter().enumerate() {
+    // Each block's statements go once they have run: a long document's syntax trees are not
+    // held to the end.
+    for (bi, statements) in blocks.into_iter().enumerate() {
         let mut figure_count = 0;
         if let Some(stop) = stopped {
-            bodies.push(format!("\n*Not run: {}*\n\n", stop.advice()));
+            bodies.push(Body::NotRun(stop));
             continue;
         }
         let first = outputs.len();
         for stmt in statements {
-            let items = match session.run(stmt) {
+            let items = match session.run(&stmt) {
                 Ok(mut items) => {
                     for it in &items {
                         if let Item::GateFailed(g) = it {
@@ -177,9 +196,9 @@ pub fn run(
                         if let Item::Figure(f) = it {
                             figure_count += 1;
                             f.file = format!("{stem}.figures/block{}-{figure_count}.svg", bi + 1);
-                            // The SVG text moves to the run's figures; the item keeps
-                            // what the Markdown shows (caption, alternative text, link).
-                            figures.push((f.file.clone(), std::mem::take(&mut f.svg)));
+                            // The SVG text goes to the caller; the item keeps what the
+                            // Markdown shows (caption, alternative text, link).
+                            figure(&f.file, std::mem::take(&mut f.svg));
                         }
                     }
                     items
@@ -212,16 +231,14 @@ pub fn run(
             outputs.push(Output {
                 block: bi + 1,
                 line: source.line_col(stmt.span.start).0,
-                statement: stmt.text.clone(),
+                statement: stmt.text,
                 items,
             });
             if stopped.is_some() {
                 break;
             }
         }
-        bodies.push(markdown::block_body(
-            outputs[first..].iter().flat_map(|o| &o.items),
-        ));
+        bodies.push(Body::Ran(first..outputs.len()));
     }
     for line in &doc.ignored_nested {
         warnings.push(for_terminal(format!(
@@ -268,8 +285,21 @@ pub fn run(
         }
     }
     let values: Vec<Option<&str>> = values.iter().map(|v| Some(v.as_str())).collect();
-    let regions: Vec<Option<&str>> = bodies.iter().map(|b| Some(b.as_str())).collect();
-    let assembled = document::assemble_with_values(&doc, Some(&provenance), &regions, &values);
+    // Each block's output region is laid out only as it goes into the rendering.
+    let region = |i: usize| {
+        bodies.get(i).map(|body| match body {
+            Body::NotRun(stop) => format!("\n*Not run: {}*\n\n", stop.advice()).into(),
+            Body::Ran(range) => markdown::block_body(
+                outputs
+                    .get(range.clone())
+                    .unwrap_or_default()
+                    .iter()
+                    .flat_map(|o| &o.items),
+            )
+            .into(),
+        })
+    };
+    let assembled = document::assemble_made(&doc, Some(&provenance), &region, &values);
     for &i in &assembled.left {
         if let Some(reference) = doc.references.get(i) {
             let span = Span {
@@ -294,10 +324,17 @@ pub fn run(
         errors,
         warnings,
         inputs,
-        figures,
+        figures: Vec::new(),
         gates_failed,
         document: doc,
     })
+}
+
+/// What goes under a block: the outputs of its statements (a range of the run's outputs), or why
+/// it was not run.
+enum Body {
+    Ran(std::ops::Range<usize>),
+    NotRun(Stop),
 }
 
 /// What stopped a run before its last block.

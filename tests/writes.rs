@@ -505,6 +505,58 @@ fn leftovers_of_a_killed_run_are_cleaned_and_nothing_else() {
     assert!(mine.is_empty(), "{mine:?}");
 }
 
+#[test]
+fn a_leftover_temporary_folder_is_cleaned_and_a_busy_one_is_not() {
+    let dir = setup("leftover-folders");
+    let name = || covey::files::temp::fresh_name().unwrap_or_default();
+    let left = name();
+    write(&dir.join(&left).join("new-0"), "half a figure");
+    write(&dir.join(&left).join("old-1"), "a second name");
+    let busy = name();
+    write(&dir.join(&busy).join("new-0"), "in use");
+    let held = std::fs::File::open(dir.join(&busy)).unwrap_or_else(|e| panic!("{e}"));
+    rustix::fs::flock(&held, rustix::fs::FlockOperation::NonBlockingLockExclusive)
+        .unwrap_or_else(|e| panic!("{e}"));
+    std::thread::sleep(Duration::from_millis(1100));
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(
+        err.contains("removed 2 temporary files left by an interrupted covey run"),
+        "{err}"
+    );
+    assert!(!dir.join(&left).exists());
+    assert_eq!(read(&dir.join(&busy).join("new-0")), "in use");
+    drop(held);
+}
+
+#[test]
+fn a_render_of_more_figures_than_open_files_allowed_is_written() {
+    // Every figure used to wait in its own open temporary file: 100 figures
+    // under a limit of 32 open files failed with "Too many open files".
+    let dir = setup("open-files");
+    let plots = "plot lines m\n".repeat(100);
+    write(
+        &dir.join("doc.md"),
+        &format!("# Many figures\n\n```covey\nload \"data/d.csv\"\nfactor group\nmodel m: y on group + x\n{plots}```\n"),
+    );
+    let out = Command::new("sh")
+        .args(["-c", "ulimit -n 32 && exec \"$0\" render doc.md"])
+        .arg(env!("CARGO_BIN_EXE_covey"))
+        .current_dir(&dir)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run covey: {e}"));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    let figures = names(&dir.join("doc.figures"));
+    assert_eq!(figures.len(), 101, "100 figures and their list");
+    let temps: Vec<String> = names(&dir)
+        .into_iter()
+        .chain(figures)
+        .filter(|n| covey::files::temp::is_covey_temp(n))
+        .collect();
+    assert!(temps.is_empty(), "{temps:?}");
+}
+
 fn expect(p: &Path) -> Expect {
     Expect::current(p).unwrap_or_else(|e| panic!("{e}"))
 }

@@ -34,6 +34,7 @@ mod proptests;
 #[cfg(test)]
 mod tests;
 
+use std::borrow::Cow;
 use std::collections::BTreeSet;
 use std::fmt;
 
@@ -501,7 +502,8 @@ pub fn assemble_parts(
     provenance: Option<&str>,
     outputs: &[Option<&str>],
 ) -> String {
-    assemble_unchecked(doc, provenance, outputs, &[])
+    let body = |i: usize| outputs.get(i).copied().flatten().map(Cow::Borrowed);
+    assemble_unchecked(doc, provenance, &body, &[])
 }
 
 /// A value made ready for a value region: one line, markers defused, no backtick (a backtick
@@ -541,6 +543,19 @@ pub fn assemble_with_values(
     doc: &Document,
     provenance: Option<&str>,
     outputs: &[Option<&str>],
+    values: &[Option<&str>],
+) -> Assembled {
+    let body = |i: usize| outputs.get(i).copied().flatten().map(Cow::Borrowed);
+    assemble_made(doc, provenance, &body, values)
+}
+
+/// [`assemble_with_values`] with block `i + 1`'s region body made by `outputs(i)` only as it
+/// is written, so that a long document's outputs are not held twice over (as bodies, and in
+/// the rendering).
+pub fn assemble_made<'o>(
+    doc: &Document,
+    provenance: Option<&str>,
+    outputs: &dyn Fn(usize) -> Option<Cow<'o, str>>,
     values: &[Option<&str>],
 ) -> Assembled {
     let (settled, left) = settle(doc, values);
@@ -589,7 +604,7 @@ fn settle<'v>(doc: &Document, values: &[Option<&'v str>]) -> (Vec<Option<&'v str
         if expected.is_empty() {
             break;
         }
-        let text = assemble_unchecked(doc, None, &[], &settled);
+        let text = assemble_unchecked(doc, None, &|_| None, &settled);
         let found = regions_found(&text, doc, &settled);
         let put: BTreeSet<(usize, usize)> = expected.iter().map(|&(_, s, e)| (s, e)).collect();
         let missing = expected
@@ -675,10 +690,10 @@ fn regions_found(text: &str, doc: &Document, values: &[Option<&str>]) -> BTreeSe
 }
 
 /// [`assemble_with_values`] without the check that value regions read back.
-fn assemble_unchecked(
+fn assemble_unchecked<'o>(
     doc: &Document,
     provenance: Option<&str>,
-    outputs: &[Option<&str>],
+    outputs: &dyn Fn(usize) -> Option<Cow<'o, str>>,
     values: &[Option<&str>],
 ) -> String {
     let source = &doc.source;
@@ -686,7 +701,8 @@ fn assemble_unchecked(
     /// the outputs are not held twice over.
     enum Put<'d> {
         Provenance(String),
-        Output(&'d Block, &'d str),
+        /// A block and its number, from 0.
+        Output(&'d Block, usize),
         Value(&'d Reference, &'d str),
     }
     // (offset, bytes of the source replaced, what is put there)
@@ -711,10 +727,8 @@ fn assemble_unchecked(
         };
         inserts.push((at, 0, Put::Provenance(region)));
     }
-    for (block, body) in doc.blocks.iter().zip(outputs) {
-        if let Some(body) = body {
-            inserts.push((block.insert_at, 0, Put::Output(block, body)));
-        }
+    for (i, block) in doc.blocks.iter().enumerate() {
+        inserts.push((block.insert_at, 0, Put::Output(block, i)));
     }
     for (reference, value) in doc.references.iter().zip(values) {
         if let Some(value) = value {
@@ -732,7 +746,8 @@ fn assemble_unchecked(
         .iter()
         .map(|(_, _, put)| match put {
             Put::Provenance(r) => r.len(),
-            Put::Output(_, body) => body.len() + OUTPUT_BEGIN.len() + OUTPUT_END.len() + 4,
+            // The bodies are made later; the text grows as they are written.
+            Put::Output(..) => OUTPUT_BEGIN.len() + OUTPUT_END.len() + 4,
             Put::Value(_, value) => value.len() + VALUE_BEGIN.len() + VALUE_END.len() + 32,
         })
         .sum();
@@ -744,13 +759,15 @@ fn assemble_unchecked(
             out.push_str(piece);
             match put {
                 Put::Provenance(region) => out.push_str(region),
-                Put::Output(block, body) => {
-                    let le = block.line_ending;
-                    out.push_str(le);
-                    out.push_str(OUTPUT_BEGIN);
-                    out.push_str(le);
-                    out.push_str(&prepare_body(body, le));
-                    out.push_str(OUTPUT_END);
+                Put::Output(block, i) => {
+                    if let Some(body) = outputs(*i) {
+                        let le = block.line_ending;
+                        out.push_str(le);
+                        out.push_str(OUTPUT_BEGIN);
+                        out.push_str(le);
+                        out.push_str(&prepare_body(&body, le));
+                        out.push_str(OUTPUT_END);
+                    }
                 }
                 Put::Value(reference, value) => out.push_str(&value_region(reference, value)),
             }

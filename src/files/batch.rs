@@ -8,18 +8,25 @@
 //! 2. reads every target: a file that already holds the new bytes is left as
 //!    it is; any other must hold what was expected (nothing, or the bytes
 //!    covey read or checked earlier), or nothing at all is written;
-//! 3. writes every new file to a temporary file in its target's folder and
-//!    flushes it to disk (side by side on the thread pool), keeping the
-//!    replaced file's permissions;
+//! 3. writes every new file into a temporary folder in its target's folder
+//!    ([`temp::Staging`], one for each folder written into) and flushes it to
+//!    disk (side by side on the thread pool), keeping the replaced file's
+//!    permissions. No file stays open: however many files a batch writes, it
+//!    holds one open file (the lock) for each folder;
 //! 4. moves them into place in the order they were added. Before each
-//!    replacement it gives the old file a second name (a hard link) and checks
-//!    once more that it still holds the expected bytes; a new file is placed
+//!    replacement it gives the old file a second name in the temporary folder
+//!    (a hard link) and checks once more that it still holds the expected
+//!    bytes; a new file is placed
 //!    with a link that fails if the name was taken meanwhile, so it never
 //!    replaces anything. If any step fails, the files already moved are put
 //!    back (the old ones from their second names, the new ones removed), so
 //!    new and old files are never left mixed;
-//! 5. only then removes the second names, and the files the batch was asked
-//!    to remove (each only while it holds the bytes given).
+//! 5. only then removes the temporary folders with the second names, and the
+//!    files the batch was asked to remove (each only while it holds the bytes
+//!    given).
+//!
+//! The batch holds the new files' bytes, never the old ones': a target is
+//! compared with the new bytes and hashed as it is read, a piece at a time.
 //!
 //! The file whose loss would hurt most (the document itself, in place) is
 //! added last: it is replaced last, right after its final check, and never
@@ -29,8 +36,8 @@ use std::fs;
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use super::temp::{self, Temp};
-use super::{Digest, FileError};
+use super::temp::{self, Staging};
+use super::{Digest, FileError, NewBytes};
 
 /// What a path must hold for covey to write there.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -77,7 +84,7 @@ pub struct Committed {
 
 struct Planned {
     path: PathBuf,
-    bytes: Vec<u8>,
+    bytes: NewBytes,
     expect: Expect,
 }
 
@@ -92,8 +99,14 @@ pub struct Batch {
 /// A file that changes, as found before anything is written.
 struct Pending<'a> {
     planned: &'a Planned,
-    /// The file there now, if any: its digest, bytes and permissions.
-    old: Option<(Digest, Vec<u8>, fs::Permissions)>,
+    /// The file there now, if any: its digest and permissions.
+    old: Option<(Digest, fs::Permissions)>,
+}
+
+/// A new file written in a temporary folder: its path there and its identity.
+struct Ready {
+    path: PathBuf,
+    identity: (u64, u64),
 }
 
 /// A file moved into place, and how to undo it.
@@ -102,12 +115,35 @@ enum Done<'a> {
         path: &'a Path,
         /// The old file under its second name, or its bytes where no hard
         /// link could be made.
-        kept: Result<Temp, &'a [u8]>,
+        kept: Result<PathBuf, Vec<u8>>,
     },
     Created {
         path: &'a Path,
-        new: Temp,
+        /// The new file's identity, so that undoing removes only that file.
+        identity: (u64, u64),
     },
+}
+
+/// The temporary folder of each folder a batch writes into.
+struct Stagings<'a>(Vec<(&'a Path, Staging)>);
+
+impl<'a> Stagings<'a> {
+    fn of(&self, path: &Path) -> io::Result<&Staging> {
+        let folder = folder_of(path);
+        self.0
+            .iter()
+            .find(|(f, _)| *f == folder)
+            .map(|(_, s)| s)
+            .ok_or_else(|| io::Error::other("no temporary folder here (please report this)"))
+    }
+
+    /// Removes every temporary folder, unless `keep` is true (one holds a file
+    /// that could not be put back).
+    fn finish(self, keep: bool) {
+        for (_, s) in self.0 {
+            s.finish(keep);
+        }
+    }
 }
 
 impl Batch {
@@ -116,7 +152,7 @@ impl Batch {
     }
 
     /// Adds a file to write at `path`, which must hold what `expect` says.
-    pub fn write(&mut self, path: PathBuf, bytes: impl Into<Vec<u8>>, expect: Expect) {
+    pub fn write(&mut self, path: PathBuf, bytes: impl Into<NewBytes>, expect: Expect) {
         self.writes.push(Planned {
             path,
             bytes: bytes.into(),
@@ -158,23 +194,32 @@ impl Batch {
         // What changes, and whether each target holds what it should.
         let mut pending = Vec::new();
         for planned in &self.writes {
-            let old = read_target(&planned.path)?;
-            if old
-                .as_ref()
-                .is_some_and(|(_, bytes, _)| *bytes == planned.bytes)
-            {
-                continue;
-            }
-            let found = old.as_ref().map(|(d, _, _)| *d);
+            let old = match read_target(&planned.path, planned.bytes.digest())? {
+                Target::Same => continue,
+                Target::Absent => None,
+                Target::Other(digest, perms) => Some((digest, perms)),
+            };
+            let found = old.as_ref().map(|(d, _)| *d);
             expected(&planned.path, planned.expect, found)?;
             pending.push(Pending { planned, old });
         }
+        let mut stagings = Stagings(Vec::new());
         for p in &pending {
             let folder = folder_of(&p.planned.path);
-            fs::create_dir_all(folder).map_err(|e| FileError {
-                path: folder.to_path_buf(),
-                message: format!("cannot create the folder: {e}"),
-            })?;
+            if stagings.0.iter().any(|(f, _)| *f == folder) {
+                continue;
+            }
+            let made = fs::create_dir_all(folder).and_then(|()| Staging::create(folder));
+            match made {
+                Ok(s) => stagings.0.push((folder, s)),
+                Err(e) => {
+                    stagings.finish(false);
+                    return Err(nothing_written(FileError {
+                        path: folder.to_path_buf(),
+                        message: format!("cannot write in this folder: {e}"),
+                    }));
+                }
+            }
         }
 
         // Every new file written and flushed to disk before any is moved.
@@ -183,54 +228,50 @@ impl Batch {
             _ => None,
         };
         let indexed: Vec<(usize, &Pending)> = pending.iter().enumerate().collect();
-        let staged: Vec<Result<Temp, FileError>> = crate::parallel::map(&indexed, |(i, p)| {
+        let staged: Vec<Result<Ready, FileError>> = crate::parallel::map(&indexed, |(i, p)| {
             if stage_fault == Some(*i) {
                 return Err(FileError {
                     path: p.planned.path.clone(),
                     message: "injected failure while writing (test hook)".into(),
                 });
             }
-            stage(p).map_err(|e| FileError {
-                path: p.planned.path.clone(),
-                message: format!("cannot write: {e}"),
-            })
+            stagings
+                .of(&p.planned.path)
+                .and_then(|s| stage(s, *i, p))
+                .map_err(|e| FileError {
+                    path: p.planned.path.clone(),
+                    message: format!("cannot write: {e}"),
+                })
         });
-        let mut temps = Vec::with_capacity(staged.len());
-        let mut failed = None;
+        let mut news = Vec::with_capacity(staged.len());
         for s in staged {
             match s {
-                Ok(t) => temps.push(t),
-                Err(e) => failed = failed.or(Some(e)),
+                Ok(n) => news.push(n),
+                Err(e) => {
+                    stagings.finish(false);
+                    return Err(nothing_written(e));
+                }
             }
-        }
-        if let Some(e) = failed {
-            discard(temps);
-            return Err(nothing_written(e));
         }
 
         // Into place, in order; on any failure, everything back.
         let mut journal: Vec<Done> = Vec::with_capacity(pending.len());
-        let mut temps = temps.into_iter();
-        for (i, p) in pending.iter().enumerate() {
-            let Some(new) = temps.next() else { break };
+        for (i, (p, new)) in pending.iter().zip(news).enumerate() {
             let placed = match &mut fault {
-                Some(Fault::Rename(k)) if *k == i => {
-                    discard(vec![new]);
-                    Err(io::Error::other(
-                        "injected failure while moving (test hook)",
-                    ))
-                }
+                Some(Fault::Rename(k)) if *k == i => Err(io::Error::other(
+                    "injected failure while moving (test hook)",
+                )),
                 Some(Fault::BeforeRename(k, hook)) if *k == i => {
                     hook();
-                    place(p, new)
+                    place(p, &stagings, i, new)
                 }
-                _ => place(p, new),
+                _ => place(p, &stagings, i, new),
             };
             match placed {
                 Ok(d) => journal.push(d),
                 Err(e) => {
-                    let problems = undo(journal);
-                    discard(temps.collect());
+                    let problems = undo(journal, &stagings);
+                    stagings.finish(!problems.is_empty());
                     let mut message = e.to_string();
                     if problems.is_empty() {
                         message.push_str("; every file of this run was put back as it was");
@@ -246,11 +287,8 @@ impl Batch {
             }
         }
         done.written = journal.len();
-        for d in journal {
-            if let Done::Replaced { kept: Ok(old), .. } = d {
-                let _ = fs::remove_file(&old.path);
-            }
-        }
+        drop(journal);
+        stagings.finish(false);
         for folder in &folders {
             sync_folder(folder);
         }
@@ -277,16 +315,27 @@ fn folder_of(path: &Path) -> &Path {
     }
 }
 
-/// The file at `path` now: None when there is none; an error when it is a
-/// link, a folder or another special file, which covey never replaces.
-fn read_target(path: &Path) -> Result<Option<(Digest, Vec<u8>, fs::Permissions)>, FileError> {
+/// What a target holds, as found before anything is written.
+enum Target {
+    /// No file.
+    Absent,
+    /// Exactly the new bytes: nothing to write.
+    Same,
+    /// Other bytes (their digest), and the file's permissions.
+    Other(Digest, fs::Permissions),
+}
+
+/// The file at `path` now, compared with the new bytes (their digest): an
+/// error when it is a link, a folder or another special file, which covey
+/// never replaces. The file is read a piece at a time, not held.
+fn read_target(path: &Path, new: Digest) -> Result<Target, FileError> {
     let fail = |message: String| FileError {
         path: path.to_path_buf(),
         message,
     };
     let meta = match fs::symlink_metadata(path) {
         Ok(m) => m,
-        Err(e) if e.kind() == io::ErrorKind::NotFound => return Ok(None),
+        Err(e) if e.kind() == io::ErrorKind::NotFound => return Ok(Target::Absent),
         Err(e) => return Err(fail(format!("cannot read: {e}"))),
     };
     if meta.file_type().is_symlink() {
@@ -299,8 +348,12 @@ fn read_target(path: &Path) -> Result<Option<(Digest, Vec<u8>, fs::Permissions)>
             "is not a regular file; covey does not replace it; nothing was written".into(),
         ));
     }
-    let bytes = fs::read(path).map_err(|e| fail(format!("cannot read: {e}")))?;
-    Ok(Some((Digest::of(&bytes), bytes, meta.permissions())))
+    match Digest::of_file(path) {
+        Ok(Some(d)) if d == new => Ok(Target::Same),
+        Ok(Some(d)) => Ok(Target::Other(d, meta.permissions())),
+        Ok(None) => Ok(Target::Absent),
+        Err(e) => Err(fail(format!("cannot read: {e}"))),
+    }
 }
 
 /// Whether a target that holds `found` may be replaced as `expect` says.
@@ -323,27 +376,42 @@ fn expected(path: &Path, expect: Expect, found: Option<Digest>) -> Result<(), Fi
     })
 }
 
-/// The new bytes of `p` in a temporary file beside it, flushed to disk.
-fn stage(p: &Pending) -> io::Result<Temp> {
-    let mut t = temp::create(folder_of(&p.planned.path))?;
-    let written = (|| {
-        if let Some((_, _, perms)) = &p.old {
-            t.file.set_permissions(perms.clone())?;
+/// The new bytes of the `i`-th changed file, `p`, in the temporary folder
+/// beside it (or where they were staged already), flushed to disk and closed.
+fn stage(staging: &Staging, i: usize, p: &Pending) -> io::Result<Ready> {
+    let (path, mut file, held) = match &p.planned.bytes {
+        NewBytes::Held(bytes) => {
+            let (path, file) = staging.file(&format!("new-{i}"))?;
+            (path, file, Some(bytes))
         }
-        t.file.write_all(&p.planned.bytes)?;
-        t.file.sync_all()
+        NewBytes::Staged { path, .. } => (path.clone(), temp::open_nofollow(path)?, None),
+    };
+    let written = (|| {
+        if let Some((_, perms)) = &p.old {
+            file.set_permissions(perms.clone())?;
+        }
+        if let Some(bytes) = held {
+            file.write_all(bytes)?;
+        }
+        file.sync_all()?;
+        file.metadata()
     })();
     match written {
-        Ok(()) => Ok(t),
+        Ok(meta) => Ok(Ready {
+            path,
+            identity: super::identity(&meta),
+        }),
         Err(e) => {
-            let _ = fs::remove_file(&t.path);
+            if held.is_some() {
+                let _ = fs::remove_file(&path);
+            }
             Err(e)
         }
     }
 }
 
-/// Moves the new file `new` into place at `p`.
-fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
+/// Moves the new file `new` of the `i`-th changed file, `p`, into place.
+fn place<'a>(p: &'a Pending, stagings: &Stagings, i: usize, new: Ready) -> io::Result<Done<'a>> {
     let path = p.planned.path.as_path();
     let changed = || {
         io::Error::other(format!(
@@ -353,8 +421,16 @@ fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
         ))
     };
     match &p.old {
-        Some((digest, bytes, _)) => {
-            let kept = match temp::keep(path) {
+        Some((digest, _)) => {
+            // The old file kept under a second name, or as bytes.
+            let kept = stagings
+                .of(path)
+                .and_then(|s| s.keep(path, &format!("old-{i}")))
+                .and_then(|k| match k {
+                    Some(k) => Ok(Ok(k)),
+                    None => fs::read(path).map(Err),
+                });
+            let kept = match kept {
                 Ok(k) => k,
                 Err(e) => {
                     let _ = fs::remove_file(&new.path);
@@ -363,17 +439,20 @@ fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
             };
             // The last check: the file about to be replaced still holds what
             // was read at the start.
-            let now = Digest::of_file(kept.as_ref().map_or(path, |k| k.path.as_path()));
+            let now = match &kept {
+                Ok(k) => Digest::of_file(k),
+                Err(bytes) => Ok(Some(Digest::of(bytes))),
+            };
             if !matches!(now, Ok(Some(d)) if d == *digest) {
-                if let Some(k) = &kept {
-                    let _ = fs::remove_file(&k.path);
+                if let Ok(k) = &kept {
+                    let _ = fs::remove_file(k);
                 }
                 let _ = fs::remove_file(&new.path);
                 return Err(changed());
             }
             if let Err(e) = fs::rename(&new.path, path) {
-                if let Some(k) = &kept {
-                    let _ = fs::remove_file(&k.path);
+                if let Ok(k) = &kept {
+                    let _ = fs::remove_file(k);
                 }
                 let _ = fs::remove_file(&new.path);
                 return Err(io::Error::new(
@@ -381,18 +460,19 @@ fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
                     format!("cannot move the new file into place: {e}"),
                 ));
             }
-            Ok(Done::Replaced {
-                path,
-                kept: kept.ok_or(bytes.as_slice()),
-            })
+            Ok(Done::Replaced { path, kept })
         }
         None => {
+            let created = Done::Created {
+                path,
+                identity: new.identity,
+            };
             // A hard link fails when the name is taken: a new file never
             // replaces one that appeared meanwhile.
             match fs::hard_link(&new.path, path) {
                 Ok(()) => {
                     let _ = fs::remove_file(&new.path);
-                    Ok(Done::Created { path, new })
+                    Ok(created)
                 }
                 Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {
                     let _ = fs::remove_file(&new.path);
@@ -411,7 +491,7 @@ fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
                             format!("cannot move the new file into place: {e}"),
                         ));
                     }
-                    Ok(Done::Created { path, new })
+                    Ok(created)
                 }
             }
         }
@@ -420,20 +500,20 @@ fn place<'a>(p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
 
 /// Puts back every file moved into place, last first. Returns what could
 /// not be put back, in words.
-fn undo(journal: Vec<Done>) -> Vec<String> {
+fn undo(journal: Vec<Done>, stagings: &Stagings) -> Vec<String> {
     let mut problems = Vec::new();
-    for d in journal.into_iter().rev() {
+    for (n, d) in journal.into_iter().rev().enumerate() {
         match d {
             Done::Replaced {
                 path,
                 kept: Ok(old),
             } => {
-                if let Err(e) = fs::rename(&old.path, path) {
+                if let Err(e) = fs::rename(&old, path) {
                     problems.push(format!(
                         "could not put back {} ({e}); its earlier content is in {}: move it \
                          elsewhere before rendering again",
                         path.display(),
-                        old.path.display()
+                        old.display()
                     ));
                 }
             }
@@ -441,21 +521,22 @@ fn undo(journal: Vec<Done>) -> Vec<String> {
                 path,
                 kept: Err(bytes),
             } => {
-                let restored = temp::create(folder_of(path)).and_then(|mut t| {
-                    t.file.write_all(bytes)?;
-                    t.file.sync_all()?;
-                    fs::rename(&t.path, path)
-                });
+                let restored = stagings
+                    .of(path)
+                    .and_then(|s| s.file(&format!("back-{n}")))
+                    .and_then(|(back, mut file)| {
+                        file.write_all(&bytes)?;
+                        file.sync_all()?;
+                        fs::rename(&back, path)
+                    });
                 if let Err(e) = restored {
                     problems.push(format!("could not put back {} ({e})", path.display()));
                 }
             }
-            Done::Created { path, new } => {
+            Done::Created { path, identity } => {
                 // Only the file covey placed, not one put there since.
-                let ours = match (new.file.metadata(), fs::symlink_metadata(path)) {
-                    (Ok(a), Ok(b)) => super::identity(&a) == super::identity(&b),
-                    _ => false,
-                };
+                let ours =
+                    fs::symlink_metadata(path).is_ok_and(|m| super::identity(&m) == identity);
                 if ours {
                     if let Err(e) = fs::remove_file(path) {
                         problems.push(format!("could not remove {} ({e})", path.display()));
@@ -465,12 +546,6 @@ fn undo(journal: Vec<Done>) -> Vec<String> {
         }
     }
     problems
-}
-
-fn discard(temps: Vec<Temp>) {
-    for t in temps {
-        let _ = fs::remove_file(&t.path);
-    }
 }
 
 fn nothing_written(mut e: FileError) -> FileError {

@@ -14,6 +14,42 @@ pub mod temp;
 pub use batch::{Batch, Committed, Expect, Fault};
 pub use plan::{Plan, Refusal, Role};
 
+/// The bytes of a file to write: held in memory, or already written to a
+/// file in a temporary folder ([`temp::Staging`]) that is moved into place.
+#[derive(Debug)]
+pub enum NewBytes {
+    Held(Vec<u8>),
+    Staged { path: PathBuf, digest: Digest },
+}
+
+impl NewBytes {
+    /// The SHA-256 of the bytes.
+    pub fn digest(&self) -> Digest {
+        match self {
+            NewBytes::Held(bytes) => Digest::of(bytes),
+            NewBytes::Staged { digest, .. } => *digest,
+        }
+    }
+}
+
+impl From<Vec<u8>> for NewBytes {
+    fn from(bytes: Vec<u8>) -> NewBytes {
+        NewBytes::Held(bytes)
+    }
+}
+
+impl From<String> for NewBytes {
+    fn from(text: String) -> NewBytes {
+        NewBytes::Held(text.into_bytes())
+    }
+}
+
+impl From<&str> for NewBytes {
+    fn from(text: &str) -> NewBytes {
+        NewBytes::Held(text.as_bytes().to_vec())
+    }
+}
+
 /// The suffix of a rendered document: `trial.md` renders to
 /// `trial.rendered.md`.
 pub const RENDERED_SUFFIX: &str = ".rendered.md";

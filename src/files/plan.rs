@@ -23,7 +23,7 @@ use std::fs;
 use std::path::{Path, PathBuf};
 
 use super::batch::{Batch, Expect};
-use super::{location, manifest, same_file, Digest};
+use super::{location, manifest, same_file, Digest, NewBytes};
 
 /// The longest file name (in bytes) that common file systems allow.
 pub const NAME_MAX: usize = 255;
@@ -91,7 +91,7 @@ impl std::fmt::Display for Refusal {
 
 struct Output {
     path: PathBuf,
-    bytes: Vec<u8>,
+    bytes: NewBytes,
     role: Role,
     doc: PathBuf,
 }
@@ -99,7 +99,7 @@ struct Output {
 struct FigureSet {
     dir: PathBuf,
     doc: PathBuf,
-    figures: Vec<(PathBuf, Vec<u8>)>,
+    figures: Vec<(PathBuf, NewBytes)>,
 }
 
 /// Every output of a run, with what the run read, to be checked together.
@@ -135,7 +135,7 @@ impl Plan {
     }
 
     /// An output of `doc`.
-    pub fn output(&mut self, path: PathBuf, bytes: impl Into<Vec<u8>>, role: Role, doc: &Path) {
+    pub fn output(&mut self, path: PathBuf, bytes: impl Into<NewBytes>, role: Role, doc: &Path) {
         self.outputs.push(Output {
             path,
             bytes: bytes.into(),
@@ -146,7 +146,7 @@ impl Plan {
 
     /// The figures of `doc`, each a path inside `dir` with its bytes (none,
     /// when the document draws none: earlier figures of covey's are removed).
-    pub fn figures(&mut self, dir: PathBuf, doc: &Path, figures: Vec<(PathBuf, Vec<u8>)>) {
+    pub fn figures(&mut self, dir: PathBuf, doc: &Path, figures: Vec<(PathBuf, NewBytes)>) {
         self.figure_sets.push(FigureSet {
             dir,
             doc: doc.to_path_buf(),
@@ -245,7 +245,7 @@ impl Plan {
                     });
                     continue;
                 }
-                new_list.push((name, Digest::of(&bytes)));
+                new_list.push((name, bytes.digest()));
                 outputs.push(Output {
                     path,
                     bytes,
@@ -263,7 +263,7 @@ impl Plan {
             if writes {
                 outputs.push(Output {
                     path: manifest_path,
-                    bytes: manifest::text(&new_list).into_bytes(),
+                    bytes: manifest::text(&new_list).into(),
                     role: Role::Manifest,
                     doc: set.doc.clone(),
                 });
@@ -394,7 +394,11 @@ impl Plan {
                         continue;
                     };
                     let digest = Digest::of(&bytes);
-                    if bytes != out.bytes && !ours(out.role, &out.path, &bytes, digest, &listed) {
+                    let same = match &out.bytes {
+                        NewBytes::Held(new) => *new == bytes,
+                        NewBytes::Staged { digest: new, .. } => *new == digest,
+                    };
+                    if !same && !ours(out.role, &out.path, &bytes, digest, &listed) {
                         refusals.push(refuse(format!(
                             "a file is there that covey did not write ({}); covey never \
                              replaces a file it did not write: {}",

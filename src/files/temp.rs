@@ -1,20 +1,25 @@
 //! Temporary files: where covey puts a file's new bytes before moving them
 //! into place, and where it keeps a replaced file until the whole batch is in.
 //!
-//! A temporary file lives in its target's folder, so that the final rename
-//! stays on one file system. Its name is `.covey-` followed by 24 random hex
-//! digits from the operating system, 8 check digits and `.tmp` (43 bytes
-//! whatever the target's name, so a long but legal name still works). Nobody
-//! can predict the name, so nobody can plant a link there in advance; and the
-//! file is created exclusively (`O_CREAT | O_EXCL`, plus `O_NOFOLLOW` on
-//! Unix), so even a link that is there is never followed. The check digits
-//! (the start of the SHA-256 of the random part) make covey's own temporary
-//! files recognisable: a user's file does not carry them by accident.
+//! A batch writes its files for one folder into a temporary folder there
+//! ([`Staging`]), so that the final renames stay on one file system: the new
+//! files and the second names of the replaced ones, however many, under one
+//! open file and one lock, so a render of many figures never runs out of open
+//! files. Its name is `.covey-` followed by 24 random hex digits from the
+//! operating system, 8 check digits and `.tmp` (43 bytes whatever the
+//! target's name, so a long but legal name still works). Nobody can predict
+//! the name, so nobody can plant a link there in advance; the folder is
+//! created exclusively (creating a folder never follows a link), and so is
+//! every file in it (`O_CREAT | O_EXCL`, plus `O_NOFOLLOW` on Unix), so even a
+//! link that is there is never followed. The check digits (the start of the
+//! SHA-256 of the random part) make covey's own temporary names
+//! recognisable: a user's file does not carry them by accident.
 //!
-//! While covey uses a temporary file it holds an advisory lock on it. A run
-//! that was killed leaves its temporary files unlocked, and the next render
-//! that writes into that folder removes them ([`clean_leftovers`]); a
-//! temporary file of a run still going on is locked and left alone.
+//! While covey uses a temporary folder it holds an advisory lock on it. A run
+//! that was killed leaves it unlocked, and the next render that writes into
+//! that folder removes it ([`clean_leftovers`]), as it removes a temporary
+//! file of that name left by an earlier version of covey; those of a run
+//! still going on are locked and left alone.
 
 use std::fs::{self, File, OpenOptions};
 use std::io;
@@ -40,12 +45,6 @@ const CHECK_DOMAIN: &[u8] = b"covey temporary file ";
 const LEFTOVER_MIN_AGE: Duration = Duration::from_secs(1);
 #[cfg(not(unix))]
 const LEFTOVER_MIN_AGE: Duration = Duration::from_secs(86_400);
-
-/// A temporary file created by this run, open and locked until dropped.
-pub struct Temp {
-    pub path: PathBuf,
-    pub file: File,
-}
 
 /// A fresh temporary name: 24 random hex digits from the operating system and
 /// their check digits.
@@ -96,59 +95,101 @@ pub fn open_exclusive(path: &Path) -> io::Result<File> {
     options.open(path)
 }
 
-/// A new temporary file in `folder`, created, opened for writing and locked.
-pub fn create(folder: &Path) -> io::Result<Temp> {
-    // A name already taken (by chance, or by something planted) is simply
-    // passed over for another.
-    let mut last = None;
-    for _ in 0..8 {
-        let path = folder.join(fresh_name()?);
-        match open_exclusive(&path) {
-            Ok(file) => {
-                if let Err(e) = try_lock(&file) {
-                    let _ = fs::remove_file(&path);
-                    return Err(io::Error::other(format!(
-                        "cannot lock {}: {e}",
-                        path.display()
-                    )));
-                }
-                return Ok(Temp { path, file });
-            }
-            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => last = Some(e),
-            Err(e) => return Err(e),
-        }
-    }
-    Err(last.unwrap_or_else(|| io::Error::other("no free temporary name")))
+/// A temporary folder in a target folder, for new files on their way there:
+/// created exclusively under a fresh temporary name, locked, and removed with
+/// what it holds when dropped. Files in it are created exclusively too, never
+/// through a link.
+pub struct Staging {
+    pub path: PathBuf,
+    /// Left in place when dropped (see [`Staging::finish`]).
+    keep: bool,
+    /// The folder itself, open and locked.
+    _lock: File,
 }
 
-/// A second name, in its folder, for the file at `target` (a hard link), so
-/// that the file can be put back if the batch it is replaced in fails.
-/// None when no hard link can be made there.
-pub fn keep(target: &Path) -> io::Result<Option<Temp>> {
-    let folder = target.parent().unwrap_or(Path::new("."));
-    for _ in 0..8 {
-        let path = folder.join(fresh_name()?);
-        match fs::hard_link(target, &path) {
-            Ok(()) => {
-                let file = match open_nofollow(&path) {
-                    Ok(f) => f,
-                    Err(e) => {
-                        let _ = fs::remove_file(&path);
-                        return Err(e);
-                    }
-                };
-                // The lock keeps another run's clean-up away; failing to take
-                // it only loses that protection.
-                let _ = try_lock(&file);
-                return Ok(Some(Temp { path, file }));
+impl Staging {
+    /// A new temporary folder in `folder`, created and locked.
+    pub fn create(folder: &Path) -> io::Result<Staging> {
+        let mut last = None;
+        for _ in 0..8 {
+            let path = folder.join(fresh_name()?);
+            // Creating a folder never follows a link, and fails if the name is taken.
+            match fs::create_dir(&path) {
+                Ok(()) => {
+                    let locked = open_nofollow(&path).and_then(|f| try_lock(&f).map(|()| f));
+                    return match locked {
+                        Ok(lock) => Ok(Staging {
+                            path,
+                            keep: false,
+                            _lock: lock,
+                        }),
+                        Err(e) => {
+                            let _ = fs::remove_dir(&path);
+                            Err(io::Error::other(format!(
+                                "cannot lock {}: {e}",
+                                path.display()
+                            )))
+                        }
+                    };
+                }
+                Err(e) if e.kind() == io::ErrorKind::AlreadyExists => last = Some(e),
+                Err(e) => return Err(e),
             }
-            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {}
+        }
+        Err(last.unwrap_or_else(|| io::Error::other("no free temporary name")))
+    }
+
+    /// A new file called `name` in the folder, created and opened for writing.
+    pub fn file(&self, name: &str) -> io::Result<(PathBuf, File)> {
+        let path = self.path.join(name);
+        let file = open_exclusive(&path)?;
+        Ok((path, file))
+    }
+
+    /// A second name `name` in the folder for the file at `target` (a hard
+    /// link), so that the file can be put back if its batch fails. None when
+    /// no hard link can be made there.
+    pub fn keep(&self, target: &Path, name: &str) -> io::Result<Option<PathBuf>> {
+        let path = self.path.join(name);
+        match fs::hard_link(target, &path) {
+            Ok(()) => Ok(Some(path)),
+            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => Err(e),
             // No hard links here (some network and FAT file systems): the
             // caller keeps the old bytes itself.
-            Err(_) => return Ok(None),
+            Err(_) => Ok(None),
         }
     }
-    Err(io::Error::other("no free temporary name"))
+
+    /// Removes the folder with what it holds, unless `keep` is true (it then
+    /// holds a file that could not be put back: the message says where).
+    pub fn finish(mut self, keep: bool) {
+        self.keep = keep;
+    }
+}
+
+impl Drop for Staging {
+    fn drop(&mut self) {
+        if !self.keep {
+            empty_and_remove(&self.path);
+        }
+    }
+}
+
+/// Removes the files in the folder at `path` (never following a link, never
+/// going into a folder), then the folder if that left it empty. Returns how
+/// many files were removed.
+fn empty_and_remove(path: &Path) -> usize {
+    let mut removed = 0;
+    if let Ok(entries) = fs::read_dir(path) {
+        for entry in entries.flatten() {
+            let is_dir = entry.file_type().is_ok_and(|t| t.is_dir());
+            if !is_dir && fs::remove_file(entry.path()).is_ok() {
+                removed += 1;
+            }
+        }
+    }
+    let _ = fs::remove_dir(path);
+    removed
 }
 
 /// Takes an exclusive advisory lock on `file` without waiting (released when
@@ -174,7 +215,7 @@ fn no_follow() -> i32 {
 }
 
 /// Opens `path` for reading, refusing a link.
-fn open_nofollow(path: &Path) -> io::Result<File> {
+pub fn open_nofollow(path: &Path) -> io::Result<File> {
     let mut options = OpenOptions::new();
     options.read(true);
     #[cfg(unix)]
@@ -186,9 +227,10 @@ fn open_nofollow(path: &Path) -> io::Result<File> {
 }
 
 /// Removes the temporary files that an interrupted covey run left in
-/// `folder`: regular files (never links) with covey's temporary names and
-/// valid check digits, that no running covey holds locked, at least a second
-/// old. Returns how many were removed.
+/// `folder`: regular files and folders (never links) with covey's temporary
+/// names and valid check digits, that no running covey holds locked, at least
+/// a second old; a folder goes with the files in it. Returns how many files
+/// were removed (a folder counts as its files, or as one when empty).
 pub fn clean_leftovers(folder: &Path) -> usize {
     let Ok(entries) = fs::read_dir(folder) else {
         return 0;
@@ -203,13 +245,19 @@ pub fn clean_leftovers(folder: &Path) -> usize {
         let Ok(meta) = fs::symlink_metadata(&path) else {
             continue;
         };
-        if !meta.file_type().is_file() || changed_within(&meta, LEFTOVER_MIN_AGE) {
+        let kind = meta.file_type();
+        if !(kind.is_file() || kind.is_dir()) || changed_within(&meta, LEFTOVER_MIN_AGE) {
             continue;
         }
         let Ok(file) = open_nofollow(&path) else {
             continue;
         };
-        if try_lock(&file).is_ok() && fs::remove_file(&path).is_ok() {
+        if try_lock(&file).is_err() {
+            continue;
+        }
+        if kind.is_dir() {
+            removed += empty_and_remove(&path).max(1);
+        } else if fs::remove_file(&path).is_ok() {
             removed += 1;
         }
     }
