@@ -645,6 +645,7 @@ fn watch(
             during(line);
             ControlFlow::Continue(())
         },
+        &|| false,
     );
     heard
 }
@@ -851,6 +852,67 @@ fn a_closed_or_full_stream_ends_quietly() {
     assert_eq!(code, 0);
 }
 
+/// Waits for `child` to end (at most 30 s, a guard against a hang, not a
+/// timing assertion); its exit code.
+fn ended(child: &mut std::process::Child, what: &str) -> Option<i32> {
+    let start = Instant::now();
+    loop {
+        match child.try_wait() {
+            Ok(Some(s)) => return s.code(),
+            _ if start.elapsed() > Duration::from_secs(30) => {
+                let _ = child.kill();
+                panic!("{what} did not end");
+            }
+            _ => std::thread::sleep(Duration::from_millis(50)),
+        }
+    }
+}
+
+#[test]
+fn an_idle_watch_ends_when_its_stderr_closes() {
+    use std::io::BufRead;
+    // The reader leaves and nothing changes: the watcher used to go on until
+    // the next change gave it something to say. It ends within a look, with
+    // the code of its last render.
+    let dir = setup("watch-idle-stderr");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_covey"))
+        .args(["render", "--watch", "doc.md"])
+        .current_dir(&dir)
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap_or_else(|e| panic!("{e}"));
+    let Some(stderr) = child.stderr.take() else {
+        panic!("no stderr");
+    };
+    let mut lines = std::io::BufReader::new(stderr).lines();
+    let first = lines.next().and_then(Result::ok).unwrap_or_default();
+    assert!(first.starts_with("rendered: "), "{first}");
+    drop(lines);
+    assert_eq!(ended(&mut child, "the idle watcher"), Some(0));
+    // A watch told to be silent (`2>/dev/null`) goes on rendering.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_covey"))
+        .args(["render", "--watch", "doc.md"])
+        .current_dir(&dir)
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap_or_else(|e| panic!("{e}"));
+    std::fs::remove_file(dir.join("doc.rendered.md")).unwrap_or_else(|e| panic!("{e}"));
+    write(&dir.join("data/d.csv"), &DATA.replace("16.1", "18.4"));
+    let start = Instant::now();
+    while !std::fs::read_to_string(dir.join("doc.rendered.md")).is_ok_and(|t| t.contains("18.4")) {
+        assert!(
+            start.elapsed() < Duration::from_secs(30),
+            "the silent watcher did not render the change"
+        );
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    assert!(matches!(child.try_wait(), Ok(None)), "still watching");
+    let _ = child.kill();
+    let _ = child.wait();
+}
+
 #[test]
 fn a_watch_ends_quietly_when_its_stderr_closes() {
     use std::io::BufRead;
@@ -871,16 +933,6 @@ fn a_watch_ends_quietly_when_its_stderr_closes() {
     drop(lines);
     // The next change makes the watcher speak into the closed pipe.
     write(&dir.join("data/d.csv"), &DATA.replace("16.1", "18.4"));
-    let start = Instant::now();
-    let code = loop {
-        match child.try_wait() {
-            Ok(Some(s)) => break s.code(),
-            _ if start.elapsed() > Duration::from_secs(30) => {
-                let _ = child.kill();
-                panic!("the watcher did not end");
-            }
-            _ => std::thread::sleep(Duration::from_millis(50)),
-        }
-    };
+    let code = ended(&mut child, "the watcher");
     assert_eq!(code, Some(0), "a quiet end, not a panic (101)");
 }
