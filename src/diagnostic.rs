@@ -51,6 +51,26 @@ pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
     (line, before[line_start..].chars().count() + 1)
 }
 
+/// `text` with every lone carriage return turned into a line feed: the same bytes at the same
+/// offsets, with its lines where Markdown, the language server and the user's editor see them
+/// (a lone CR ends a line there), for [`Source`] to count.
+pub fn lone_cr_as_lf(text: &str) -> std::borrow::Cow<'_, str> {
+    let bytes = text.as_bytes();
+    let lone = |i: usize| bytes[i] == b'\r' && bytes.get(i + 1) != Some(&b'\n');
+    if !memchr::memchr_iter(b'\r', bytes).any(lone) {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    let mut out = String::with_capacity(text.len());
+    let mut from = 0;
+    for i in memchr::memchr_iter(b'\r', bytes).filter(|&i| lone(i)) {
+        out.push_str(&text[from..i]);
+        out.push('\n');
+        from = i + 1;
+    }
+    out.push_str(&text[from..]);
+    std::borrow::Cow::Owned(out)
+}
+
 /// [`line_col`] for many offsets of one text, the line starts found once.
 struct Lines<'t> {
     source: &'t str,
@@ -338,6 +358,21 @@ mod tests {
             " ".repeat(1 + 43 + 4 + 1)
         );
         assert_eq!(text, want);
+    }
+
+    #[test]
+    fn a_lone_carriage_return_is_counted_as_a_line_ending() {
+        assert_eq!(lone_cr_as_lf("a\r\nb\rc\r"), "a\r\nb\nc\n");
+        assert!(matches!(
+            lone_cr_as_lf("a\r\nb\n"),
+            std::borrow::Cow::Borrowed(_)
+        ));
+        let text = "x\ry\r\nz";
+        let lf = lone_cr_as_lf(text);
+        assert_eq!(
+            Source::new("d.md", &lf).line_col(text.find('z').unwrap_or(0)),
+            (3, 1)
+        );
     }
 
     #[test]
