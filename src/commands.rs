@@ -675,7 +675,23 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
             doc.clone()
         };
         let on_disk = match crate::world::read_regular(&target) {
-            Ok(b) => String::from_utf8_lossy(&b).into_owned(),
+            // Bytes that are not UTF-8 (an edit by hand) differ from any rendering; read with
+            // replacement characters, they could have compared equal to one.
+            Ok(b) => match String::from_utf8(b) {
+                Ok(text) => text,
+                Err(e) => {
+                    report
+                        .lines
+                        .push(format!("stale: {} ({})", doc.display(), target.display()));
+                    report.lines.push(format!(
+                        "  the rendering is not valid UTF-8 (first bad byte at offset {}), so \
+                         it is not what covey wrote; render again",
+                        e.utf8_error().valid_up_to()
+                    ));
+                    report.verdict = report.verdict.max(Verdict::Stale);
+                    continue;
+                }
+            },
             Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
                 report.fail(format!(
                     "{}: cannot read its rendering {}: {e}",
