@@ -936,3 +936,90 @@ fn a_watch_ends_quietly_when_its_stderr_closes() {
     let code = ended(&mut child, "the watcher");
     assert_eq!(code, Some(0), "a quiet end, not a panic (101)");
 }
+
+// ---------------------------------------------------------------------------
+// Changes made between the run and the writes.
+
+/// What the folders hold after `change` is made between `prepare` and `commit`: the report's
+/// verdict and lines.
+fn render_with_change(
+    dir: &Path,
+    opts: &covey::RenderOptions,
+    change: impl FnOnce(),
+) -> (covey::Verdict, String) {
+    let doc = dir.join("doc.md");
+    let prepared = covey::prepare(std::slice::from_ref(&doc), opts);
+    change();
+    let report = prepared.commit();
+    (report.verdict, report.lines.join("\n"))
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_file_meanwhile_is_left_alone() {
+    let dir = setup("figures-became-a-file");
+    let figures = dir.join("doc.figures");
+    let opts = covey::RenderOptions::default();
+    let (verdict, said) = render_with_change(&dir, &opts, || write(&figures, "mine\n"));
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert_eq!(read(&figures), "mine\n", "{said}");
+    assert!(!dir.join("doc.rendered.md").exists(), "{said}");
+    assert_eq!(names(&dir), ["data", "doc.figures", "doc.md"], "{said}");
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_link_meanwhile_is_not_followed() {
+    let dir = setup("figures-became-a-link");
+    let outside = scratch("figures-became-a-link-outside");
+    let figures = dir.join("doc.figures");
+    let opts = covey::RenderOptions::default();
+    let (verdict, said) = render_with_change(&dir, &opts, || {
+        symlink(&outside, &figures).unwrap_or_else(|e| panic!("{e}"));
+    });
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert_eq!(names(&outside), ["data"], "nothing written outside: {said}");
+    assert!(is_link(&figures));
+    assert!(!dir.join("doc.rendered.md").exists(), "{said}");
+}
+
+#[test]
+fn a_document_deleted_during_its_render_is_not_brought_back() {
+    // In place: the document the user deleted is not written again from the run's copy.
+    let dir = setup("deleted-in-place");
+    let opts = covey::RenderOptions {
+        in_place: true,
+        ..Default::default()
+    };
+    let doc = dir.join("doc.md");
+    let (verdict, said) = render_with_change(&dir, &opts, || {
+        std::fs::remove_file(&doc).unwrap_or_else(|e| panic!("{e}"));
+    });
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert!(!doc.exists(), "{said}");
+    assert_eq!(names(&dir), ["data"], "{said}");
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_link_just_before_a_rename_stops_the_batch() {
+    // Between the staging of the new figures and the move of the second one into place, the
+    // folder is moved aside and a link to a folder outside takes its name.
+    let dir = scratch("last-check-folder");
+    let outside = scratch("last-check-folder-outside");
+    let figures = dir.join("doc.figures");
+    let (a, b) = (figures.join("block1-1.svg"), figures.join("block1-2.svg"));
+    let mut batch = Batch::new();
+    batch.real_folder(figures.clone());
+    batch.write(a.clone(), "<svg/>", expect(&a));
+    batch.write(b.clone(), "<svg></svg>", expect(&b));
+    let (figures2, outside2, aside) = (figures.clone(), outside.clone(), dir.join("aside"));
+    let mut swap = move || {
+        std::fs::rename(&figures2, &aside).unwrap_or_else(|e| panic!("{e}"));
+        symlink(&outside2, &figures2).unwrap_or_else(|e| panic!("{e}"));
+    };
+    let e = batch
+        .commit_with(Some(Fault::BeforeRename(1, &mut swap)))
+        .err()
+        .unwrap_or_else(|| panic!("the link is noticed"));
+    assert!(e.message.contains("replaced by a link or a file"), "{e}");
+    assert_eq!(names(&outside), ["data"], "nothing written outside: {e}");
+    assert!(is_link(&figures));
+}

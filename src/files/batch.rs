@@ -87,6 +87,10 @@ pub struct Batch {
     writes: Vec<Planned>,
     removals: Vec<(PathBuf, Digest)>,
     empty_folders: Vec<PathBuf>,
+    /// Folders that must be real folders, not links nor files, whenever covey writes or
+    /// removes a file in them (figures folders: one replaced by a link after the plan was
+    /// checked would lead the writes outside).
+    real_folders: Vec<PathBuf>,
 }
 
 /// A file that changes, as found before anything is written.
@@ -135,6 +139,42 @@ impl Batch {
         self.empty_folders.push(path);
     }
 
+    /// Asks that the folder at `path` be a real folder (when it exists) each time a file in it
+    /// is written or removed.
+    pub fn real_folder(&mut self, path: PathBuf) {
+        self.real_folders.push(path);
+    }
+
+    /// An error when a folder that must be real and holds `path` is now a link or a file.
+    fn still_real(&self, path: &Path) -> Result<(), FileError> {
+        for folder in self.real_folders.iter().filter(|f| path.starts_with(f)) {
+            match fs::symlink_metadata(folder) {
+                Ok(m) if !m.is_dir() => {
+                    return Err(FileError {
+                        path: folder.clone(),
+                        message: "the figures folder was replaced by a link or a file while \
+                                  covey was working, and covey never writes through a link \
+                                  nor over a file it did not write; render again"
+                            .into(),
+                    })
+                }
+                _ => {}
+            }
+        }
+        Ok(())
+    }
+
+    /// [`place`], once the folders that must be real still are.
+    fn checked_place<'a>(&self, p: &'a Pending, new: Temp) -> io::Result<Done<'a>> {
+        match self.still_real(&p.planned.path) {
+            Ok(()) => place(p, new),
+            Err(e) => {
+                discard(vec![new]);
+                Err(io::Error::other(e.message))
+            }
+        }
+    }
+
     /// Writes every file, or none.
     pub fn commit(self) -> Result<Committed, FileError> {
         self.commit_with(None)
@@ -151,6 +191,9 @@ impl Batch {
             .collect();
         folders.sort();
         folders.dedup();
+        for folder in &folders {
+            self.still_real(folder).map_err(nothing_written)?;
+        }
         for folder in &folders {
             done.leftovers += temp::clean_leftovers(folder);
         }
@@ -175,6 +218,7 @@ impl Batch {
                 path: folder.to_path_buf(),
                 message: format!("cannot create the folder: {e}"),
             })?;
+            self.still_real(folder).map_err(nothing_written)?;
         }
 
         // Every new file written and flushed to disk before any is moved.
@@ -222,9 +266,9 @@ impl Batch {
                 }
                 Some(Fault::BeforeRename(k, hook)) if *k == i => {
                     hook();
-                    place(p, new)
+                    self.checked_place(p, new)
                 }
-                _ => place(p, new),
+                _ => self.checked_place(p, new),
             };
             match placed {
                 Ok(d) => journal.push(d),
@@ -256,7 +300,8 @@ impl Batch {
         }
 
         for (path, digest) in &self.removals {
-            let ours = fs::symlink_metadata(path).is_ok_and(|m| m.file_type().is_file())
+            let ours = self.still_real(path).is_ok()
+                && fs::symlink_metadata(path).is_ok_and(|m| m.file_type().is_file())
                 && Digest::of_file(path).ok().flatten() == Some(*digest);
             if ours && fs::remove_file(path).is_ok() {
                 done.removed += 1;
