@@ -428,40 +428,86 @@ pub fn prepare(paths: &[PathBuf], opts: &RenderOptions) -> Prepared {
         ));
     }
     if let Some(out) = &opts.out_dir {
-        if let Err(line) = out_folder(out) {
+        if let Err(line) = render_out_folder(out) {
             return Prepared::failed(line);
         }
     }
     prepare_documents(&docs, &|_| true, opts, &[])
 }
 
-/// Refuses an `--out` that is, or lies under, something other than a folder (a regular file,
-/// say), with one line naming it, before anything runs: otherwise every output path under it
-/// fails on its own with the system's "Not a directory". A folder that does not exist yet is
-/// made when the renderings are written.
-fn out_folder(out: &Path) -> Result<(), String> {
+/// What is wrong with an `--out` folder.
+enum OutProblem {
+    /// It is a file (or other non-folder).
+    IsFile,
+    /// It lies under this file.
+    UnderFile(PathBuf),
+    /// Nothing is there.
+    Missing,
+}
+
+/// Looks at an `--out` before anything runs, so that a wrong one is refused with one line
+/// naming it rather than every output path under it failing on its own with the system's
+/// "Not a directory".
+fn out_folder(out: &Path) -> Result<(), OutProblem> {
     for at in out.ancestors().filter(|a| !a.as_os_str().is_empty()) {
         match std::fs::metadata(at) {
-            Ok(m) if m.is_dir() => return Ok(()),
-            Ok(_) if at == out => {
-                return Err(format!(
-                    "{}: --out must be a folder for the renderings, and this is a file; name a \
-                     folder (one that does not exist yet is made); nothing was written",
-                    out.display()
-                ))
+            Ok(m) if m.is_dir() && at == out => return Ok(()),
+            Ok(m) if m.is_dir() => return Err(OutProblem::Missing),
+            Ok(_) if at == out => return Err(OutProblem::IsFile),
+            Ok(_) => return Err(OutProblem::UnderFile(at.to_path_buf())),
+            Err(e)
+                if matches!(
+                    e.kind(),
+                    std::io::ErrorKind::NotFound | std::io::ErrorKind::NotADirectory
+                ) =>
+            {
+                continue
             }
-            Ok(_) => {
-                return Err(format!(
-                    "{}: --out must be a folder for the renderings, but {} is a file; name a \
-                     folder (one that does not exist yet is made); nothing was written",
-                    out.display(),
-                    at.display()
-                ))
-            }
-            Err(_) => continue,
+            // Unreadable, say: whoever reads or writes there says what is wrong.
+            Err(_) => return Ok(()),
         }
     }
-    Ok(())
+    Err(OutProblem::Missing)
+}
+
+/// `render`'s line for an `--out` that is, or lies under, a file; a folder that does not
+/// exist yet is made when the renderings are written.
+fn render_out_folder(out: &Path) -> Result<(), String> {
+    let tail = "name a folder (one that does not exist yet is made); nothing was written";
+    match out_folder(out) {
+        Ok(()) | Err(OutProblem::Missing) => Ok(()),
+        Err(OutProblem::IsFile) => Err(format!(
+            "{}: --out must be a folder for the renderings, and this is a file; {tail}",
+            out.display()
+        )),
+        Err(OutProblem::UnderFile(at)) => Err(format!(
+            "{}: --out must be a folder for the renderings, but {} is a file; {tail}",
+            out.display(),
+            at.display()
+        )),
+    }
+}
+
+/// `check`'s line for an `--out` that is not a folder, in the words of `render`'s: there is
+/// nothing to compare with, which is a mistake in the command, not a stale rendering.
+fn check_out_folder(out: &Path) -> Result<(), String> {
+    let tail = "name the folder the renderings were written to; nothing was checked";
+    match out_folder(out) {
+        Ok(()) => Ok(()),
+        Err(OutProblem::IsFile) => Err(format!(
+            "{}: --out must be a folder of renderings, and this is a file; {tail}",
+            out.display()
+        )),
+        Err(OutProblem::UnderFile(at)) => Err(format!(
+            "{}: --out must be a folder of renderings, but {} is a file; {tail}",
+            out.display(),
+            at.display()
+        )),
+        Err(OutProblem::Missing) => Err(format!(
+            "{}: --out must be a folder of renderings, and there is no such folder; {tail}",
+            out.display()
+        )),
+    }
 }
 
 /// Runs the documents of `docs` that `selected` picks and plans their
@@ -641,6 +687,12 @@ fn stage_figure(staging: &Staging, n: usize, svg: String) -> NewBytes {
 /// re-runs each one and compares the result with the rendering on disk.
 pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
     let mut report = Report::new();
+    if let Some(out) = &opts.out_dir {
+        if let Err(line) = check_out_folder(out) {
+            report.fail(line);
+            return report;
+        }
+    }
     let docs = match files::documents(paths) {
         Ok(d) => d,
         Err(e) => {
@@ -682,7 +734,23 @@ pub fn check(paths: &[PathBuf], opts: &CheckOptions) -> Report {
             doc.clone()
         };
         let on_disk = match crate::world::read_regular(&target) {
-            Ok(b) => String::from_utf8_lossy(&b).into_owned(),
+            // Bytes that are not UTF-8 (an edit by hand) differ from any rendering; read with
+            // replacement characters, they could have compared equal to one.
+            Ok(b) => match String::from_utf8(b) {
+                Ok(text) => text,
+                Err(e) => {
+                    report
+                        .lines
+                        .push(format!("stale: {} ({})", doc.display(), target.display()));
+                    report.lines.push(format!(
+                        "  the rendering is not valid UTF-8 (first bad byte at offset {}), so \
+                         it is not what covey wrote; render again",
+                        e.utf8_error().valid_up_to()
+                    ));
+                    report.verdict = report.verdict.max(Verdict::Stale);
+                    continue;
+                }
+            },
             Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
                 report.fail(format!(
                     "{}: cannot read its rendering {}: {e}",

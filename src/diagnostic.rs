@@ -51,6 +51,26 @@ pub fn line_col(source: &str, offset: usize) -> (usize, usize) {
     (line, before[line_start..].chars().count() + 1)
 }
 
+/// `text` with every lone carriage return turned into a line feed: the same bytes at the same
+/// offsets, with its lines where Markdown, the language server and the user's editor see them
+/// (a lone CR ends a line there), for [`Source`] to count.
+pub fn lone_cr_as_lf(text: &str) -> std::borrow::Cow<'_, str> {
+    let bytes = text.as_bytes();
+    let lone = |i: usize| bytes[i] == b'\r' && bytes.get(i + 1) != Some(&b'\n');
+    if !memchr::memchr_iter(b'\r', bytes).any(lone) {
+        return std::borrow::Cow::Borrowed(text);
+    }
+    let mut out = String::with_capacity(text.len());
+    let mut from = 0;
+    for i in memchr::memchr_iter(b'\r', bytes).filter(|&i| lone(i)) {
+        out.push_str(&text[from..i]);
+        out.push('\n');
+        from = i + 1;
+    }
+    out.push_str(&text[from..]);
+    std::borrow::Cow::Owned(out)
+}
+
 /// [`line_col`] for many offsets of one text, the line starts found once.
 struct Lines<'t> {
     source: &'t str,
@@ -198,10 +218,59 @@ fn edit_distance(a: &str, b: &str) -> usize {
 /// at: a line of a megabyte is not repeated whole on the terminal or in the rendering.
 const SHOWN_LINE_BYTES: usize = 200;
 
+/// A window of one long line, as a file of one line that codespan lays out: its line and
+/// column are those of the place in the whole text.
+struct Window {
+    name: String,
+    text: String,
+    line: usize,
+    column: usize,
+}
+
+impl<'a> codespan_reporting::files::Files<'a> for Window {
+    type FileId = ();
+    type Name = &'a str;
+    type Source = &'a str;
+
+    fn name(&'a self, (): ()) -> Result<&'a str, codespan_reporting::files::Error> {
+        Ok(&self.name)
+    }
+
+    fn source(&'a self, (): ()) -> Result<&'a str, codespan_reporting::files::Error> {
+        Ok(&self.text)
+    }
+
+    fn line_index(&'a self, (): (), _: usize) -> Result<usize, codespan_reporting::files::Error> {
+        Ok(0)
+    }
+
+    fn line_number(&'a self, (): (), _: usize) -> Result<usize, codespan_reporting::files::Error> {
+        Ok(self.line)
+    }
+
+    fn column_number(
+        &'a self,
+        (): (),
+        _: usize,
+        _: usize,
+    ) -> Result<usize, codespan_reporting::files::Error> {
+        Ok(self.column)
+    }
+
+    fn line_range(
+        &'a self,
+        (): (),
+        _: usize,
+    ) -> Result<std::ops::Range<usize>, codespan_reporting::files::Error> {
+        Ok(0..self.text.len())
+    }
+}
+
 impl Source<'_> {
     /// For a line longer than [`SHOWN_LINE_BYTES`], the snippet that [`Source::render`] writes
-    /// under the head, laid out as codespan lays it out, with only a window of the line
-    /// around the span (`…` where it is cut); `None` for a line short enough to show whole.
+    /// under the head: codespan's layout of only a window of the line around the span (`…`
+    /// where it is cut, a tab shown as one space), at the line and column of the whole text;
+    /// `None` for a line short enough to show whole.
     fn long_line_snippet(
         &self,
         d: &Diagnostic,
@@ -227,32 +296,84 @@ impl Source<'_> {
         let from =
             floor_char_boundary(source, start.saturating_sub(SHOWN_LINE_BYTES / 4)).max(line_start);
         let to = floor_char_boundary(source, (from + SHOWN_LINE_BYTES).min(line_end)).max(start);
-        let window = source.get(from..to)?.replace('\t', " ");
         let lead = if from > line_start { "…" } else { "" };
         let tail = if to < line_end { "…" } else { "" };
-        let before = source.get(from..start)?.chars().count() + lead.chars().count();
-        let carets = source.get(start..end.min(to))?.chars().count().max(1);
-        let pad = " ".repeat(line.to_string().len());
-        let mut out = format!("{pad} --> {}:{line}:{col}\n{pad} |\n", self.name);
-        out.push_str(&format!("{line} | {lead}{window}{tail}\n"));
-        out.push_str(&format!(
-            "{pad} | {}{} {}",
-            " ".repeat(before),
-            "^".repeat(carets),
-            d.label
-        ));
-        let mut out = out.trim_end().to_string();
+        let window = Window {
+            name: self.name.to_string(),
+            text: format!("{lead}{}{tail}", source.get(from..to)?.replace('\t', " ")),
+            line,
+            column: col,
+        };
+        let shift = |at: usize| {
+            lead.len()
+                + source
+                    .get(from..at)
+                    .map_or(0, |s| s.replace('\t', " ").len())
+        };
+        let (a, b) = (shift(start), shift(end.min(to)));
+        let mut diag = CsDiagnostic::error()
+            .with_message(&d.message)
+            .with_labels(vec![Label::primary((), a..b).with_message(&d.label)]);
         if let Some(h) = &d.help {
-            out.push_str(&format!("\n{pad} |\n{pad} = help: {h}"));
+            diag = diag.with_notes(vec![format!("help: {h}")]);
         }
-        out.push('\n');
-        Some(out)
+        let config = Config {
+            chars: Chars::ascii(),
+            ..Config::default()
+        };
+        let mut out = NoColor::new(Vec::new());
+        term::emit(&mut out, &config, &window, &diag).ok()?;
+        let body = String::from_utf8_lossy(out.get_ref());
+        let snippet = body.split_once('\n').map_or("", |(_, rest)| rest);
+        Some(snippet.trim_end().to_string() + "\n")
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_long_line_is_shown_as_a_window_around_the_caret() {
+        // 300 letters before and after the place, a window of 200 bytes shown; 漢 is two
+        // columns wide on a terminal, so the carets stand one column further right for each
+        // before them (the snippet laid out by hand counted it as one and missed the word).
+        let line = format!("{}漢漢 bad{}", "a".repeat(300), "b".repeat(300));
+        let src = format!("# T\n\n```covey\n{line}\n```\n");
+        let at = src.find(" bad").unwrap_or(0) + 1;
+        let d = Diagnostic::new(
+            Span {
+                start: at,
+                end: at + 3,
+            },
+            "not a statement",
+        )
+        .label("this word")
+        .help("delete it");
+        let text = render("doc.md", &src, &d);
+        let window = format!("…{}漢漢 bad{}…", "a".repeat(43), "b".repeat(147));
+        let want = format!(
+            "doc.md:4:304: error: not a statement\n  --> doc.md:4:304\n  |\n4 | {window}\n  | {}^^^ \
+             this word\n  |\n  = help: delete it\n",
+            " ".repeat(1 + 43 + 4 + 1)
+        );
+        assert_eq!(text, want);
+    }
+
+    #[test]
+    fn a_lone_carriage_return_is_counted_as_a_line_ending() {
+        assert_eq!(lone_cr_as_lf("a\r\nb\rc\r"), "a\r\nb\nc\n");
+        assert!(matches!(
+            lone_cr_as_lf("a\r\nb\n"),
+            std::borrow::Cow::Borrowed(_)
+        ));
+        let text = "x\ry\r\nz";
+        let lf = lone_cr_as_lf(text);
+        assert_eq!(
+            Source::new("d.md", &lf).line_col(text.find('z').unwrap_or(0)),
+            (3, 1)
+        );
+    }
 
     #[test]
     fn closest_counts_a_swap_as_one_edit() {

@@ -241,6 +241,7 @@ fn run(command: Command, console: &mut Console) -> u8 {
                     std::time::Duration::from_millis(WATCH_INTERVAL_MS),
                     None,
                     &mut |line: &str| console.err(line),
+                    &stderr_gone,
                 );
                 return code(report.verdict);
             }
@@ -299,6 +300,31 @@ fn run(command: Command, console: &mut Console) -> u8 {
         }
     }
     code(report.verdict)
+}
+
+/// Whether standard error leads to a reader that has gone (a pipe or socket
+/// whose other end is closed, a terminal that hung up), found without writing
+/// to it, so that an idle watch ends too. A stream closed before covey started
+/// (`2>&-`) is not gone: the standard library opens `/dev/null` in its place,
+/// and a watch told to be silent goes on rendering.
+#[cfg(unix)]
+fn stderr_gone() -> bool {
+    use rustix::event::{poll, PollFd, PollFlags, Timespec};
+    let err = std::io::stderr();
+    let mut fds = [PollFd::new(&err, PollFlags::OUT)];
+    let now = Timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    match poll(&mut fds, Some(&now)) {
+        Ok(n) if n > 0 => fds[0].revents().intersects(PollFlags::ERR | PollFlags::HUP),
+        _ => false,
+    }
+}
+
+#[cfg(not(unix))]
+fn stderr_gone() -> bool {
+    false
 }
 
 /// How often `--watch` looks at the files (a few `stat` calls each time).

@@ -98,8 +98,12 @@ pub fn run_with(
     // The text as given and the source without regions, each indexed once for all messages
     // and line numbers, so that a document of many statements or errors costs no more than
     // its length.
-    let given = diagnostic::Source::new(file_name, text);
-    let source = diagnostic::Source::new(file_name, &doc.source);
+    // A lone carriage return ends a line for Markdown and for the editor, so messages count it
+    // as one too.
+    let given_lines = diagnostic::lone_cr_as_lf(text);
+    let source_lines = diagnostic::lone_cr_as_lf(&doc.source);
+    let given = diagnostic::Source::new(file_name, &given_lines);
+    let source = diagnostic::Source::new(file_name, &source_lines);
     let show = |d: &Diagnostic| {
         let mut d = d.clone();
         d.span = shift.span(d.span);

@@ -20,14 +20,17 @@ use crate::files::Stamp;
 /// Renders the documents named by `paths`, then waits and renders again
 /// every document whose text or data changed, telling `say` each line of
 /// what happened (a [`ControlFlow::Break`] from `say`, e.g. on a closed
-/// stderr, ends the watch). Looks every `interval`; `rounds` bounds the looks
-/// (None: until interrupted). Returns the report of the last render.
+/// stderr, ends the watch). Looks every `interval`, and first asks `gone`
+/// whether anyone still hears `say` (true ends the watch, so that one whose
+/// reader left does not wait for a change to find out). `rounds` bounds the
+/// looks (None: until interrupted). Returns the report of the last render.
 pub fn watch(
     paths: &[PathBuf],
     opts: &RenderOptions,
     interval: Duration,
     rounds: Option<usize>,
     say: &mut dyn FnMut(&str) -> ControlFlow<()>,
+    gone: &dyn Fn() -> bool,
 ) -> Report {
     // What each document of the last renders read.
     let mut known: Vec<(PathBuf, Vec<Seen>)> = Vec::new();
@@ -40,7 +43,7 @@ pub fn watch(
     let mut first = true;
     loop {
         if !first {
-            if rounds.is_some_and(|r| round >= r) {
+            if rounds.is_some_and(|r| round >= r) || gone() {
                 return last;
             }
             round += 1;

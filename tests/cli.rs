@@ -460,6 +460,7 @@ fn watch_renders_again_when_data_change() {
             heard.push(line.to_string());
             std::ops::ControlFlow::Continue(())
         },
+        &|| false,
     );
     let _ = changer.join();
     assert_eq!(report.verdict, covey::Verdict::Ok);
@@ -613,4 +614,87 @@ fn render_out_that_is_a_file_is_refused_in_one_line() {
     );
     assert_eq!(read(&dir.join("notes.txt")), "mine\n");
     assert!(!dir.join("doc.rendered.md").exists() && !dir.join("second.rendered.md").exists());
+}
+
+/// `check --out` naming a file said, for each document, "cannot read its rendering
+/// notes.txt/doc.rendered.md: Not a directory"; naming a missing folder, that each document
+/// "has never been rendered" (exit 1), which hides a misspelt folder. Both are now one line in
+/// `render --out`'s words, exit 2.
+#[test]
+fn check_out_that_is_not_a_folder_is_refused_in_one_line() {
+    let dir = setup("check-out-not-a-folder");
+    write(&dir.join("second.md"), DOC);
+    write(&dir.join("notes.txt"), "mine\n");
+    let cases = [
+        (
+            "notes.txt",
+            "notes.txt: --out must be a folder of renderings, and this is a file; ",
+        ),
+        (
+            "notes.txt/out",
+            "notes.txt/out: --out must be a folder of renderings, but notes.txt is a file; ",
+        ),
+        (
+            "missing",
+            "missing: --out must be a folder of renderings, and there is no such folder; ",
+        ),
+        (
+            "missing/out",
+            "missing/out: --out must be a folder of renderings, and there is no such folder; ",
+        ),
+    ];
+    for (out, want) in cases {
+        let (code, err) = covey(&dir, &["check", "doc.md", "second.md", "--out", out]);
+        assert_eq!(code, 2, "{out}: {err}");
+        assert_eq!(err.lines().count(), 1, "{out}: {err}");
+        assert!(err.starts_with(want), "{out}: {err}");
+        assert!(
+            err.trim_end()
+                .ends_with("name the folder the renderings were written to; nothing was checked"),
+            "{out}: {err}"
+        );
+    }
+    assert_eq!(read(&dir.join("notes.txt")), "mine\n");
+    assert!(!dir.join("missing").exists());
+    // A folder that exists is checked as before.
+    let (code, err) = covey(&dir, &["render", "doc.md", "--out", "out"]);
+    assert_eq!(code, 0, "{err}");
+    let (code, err) = covey(&dir, &["check", "doc.md", "--out", "out"]);
+    assert_eq!(code, 0, "{err}");
+}
+
+/// A rendering edited by hand so that it holds a byte that is not UTF-8 where covey wrote a
+/// replacement character (U+FFFD, here a level of the data): `check` read the rendering with
+/// replacement characters and said `current`; the bytes differ, so it is stale.
+#[test]
+fn check_finds_a_rendering_that_is_not_utf8_stale() {
+    let dir = scratch("check-not-utf8");
+    write(&dir.join("data/d.csv"), &DATA.replace(",A,", ",A\u{FFFD},"));
+    write(&dir.join("doc.md"), DOC);
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let path = dir.join("doc.rendered.md");
+    let mut bytes = std::fs::read(&path).unwrap_or_else(|e| panic!("{e}"));
+    let region = bytes
+        .windows(12)
+        .position(|w| w == b"covey:output")
+        .unwrap_or_else(|| panic!("no output region"));
+    let at = region
+        + bytes[region..]
+            .windows(3)
+            .position(|w| w == "\u{FFFD}".as_bytes())
+            .unwrap_or_else(|| panic!("no U+FFFD in the output"));
+    bytes.splice(at..at + 3, [0xFF]);
+    std::fs::write(&path, &bytes).unwrap_or_else(|e| panic!("{e}"));
+    let (code, err) = covey(&dir, &["check", "doc.md"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(err.starts_with("stale: doc.md (doc.rendered.md)"), "{err}");
+    assert!(
+        err.contains(&format!(
+            "the rendering is not valid UTF-8 (first bad byte at offset {at})"
+        )),
+        "{err}"
+    );
 }

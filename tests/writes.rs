@@ -697,6 +697,7 @@ fn watch(
             during(line);
             ControlFlow::Continue(())
         },
+        &|| false,
     );
     heard
 }
@@ -903,6 +904,67 @@ fn a_closed_or_full_stream_ends_quietly() {
     assert_eq!(code, 0);
 }
 
+/// Waits for `child` to end (at most 30 s, a guard against a hang, not a
+/// timing assertion); its exit code.
+fn ended(child: &mut std::process::Child, what: &str) -> Option<i32> {
+    let start = Instant::now();
+    loop {
+        match child.try_wait() {
+            Ok(Some(s)) => return s.code(),
+            _ if start.elapsed() > Duration::from_secs(30) => {
+                let _ = child.kill();
+                panic!("{what} did not end");
+            }
+            _ => std::thread::sleep(Duration::from_millis(50)),
+        }
+    }
+}
+
+#[test]
+fn an_idle_watch_ends_when_its_stderr_closes() {
+    use std::io::BufRead;
+    // The reader leaves and nothing changes: the watcher used to go on until
+    // the next change gave it something to say. It ends within a look, with
+    // the code of its last render.
+    let dir = setup("watch-idle-stderr");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_covey"))
+        .args(["render", "--watch", "doc.md"])
+        .current_dir(&dir)
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap_or_else(|e| panic!("{e}"));
+    let Some(stderr) = child.stderr.take() else {
+        panic!("no stderr");
+    };
+    let mut lines = std::io::BufReader::new(stderr).lines();
+    let first = lines.next().and_then(Result::ok).unwrap_or_default();
+    assert!(first.starts_with("rendered: "), "{first}");
+    drop(lines);
+    assert_eq!(ended(&mut child, "the idle watcher"), Some(0));
+    // A watch told to be silent (`2>/dev/null`) goes on rendering.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_covey"))
+        .args(["render", "--watch", "doc.md"])
+        .current_dir(&dir)
+        .stdout(Stdio::null())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap_or_else(|e| panic!("{e}"));
+    std::fs::remove_file(dir.join("doc.rendered.md")).unwrap_or_else(|e| panic!("{e}"));
+    write(&dir.join("data/d.csv"), &DATA.replace("16.1", "18.4"));
+    let start = Instant::now();
+    while !std::fs::read_to_string(dir.join("doc.rendered.md")).is_ok_and(|t| t.contains("18.4")) {
+        assert!(
+            start.elapsed() < Duration::from_secs(30),
+            "the silent watcher did not render the change"
+        );
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    assert!(matches!(child.try_wait(), Ok(None)), "still watching");
+    let _ = child.kill();
+    let _ = child.wait();
+}
+
 #[test]
 fn a_watch_ends_quietly_when_its_stderr_closes() {
     use std::io::BufRead;
@@ -923,16 +985,93 @@ fn a_watch_ends_quietly_when_its_stderr_closes() {
     drop(lines);
     // The next change makes the watcher speak into the closed pipe.
     write(&dir.join("data/d.csv"), &DATA.replace("16.1", "18.4"));
-    let start = Instant::now();
-    let code = loop {
-        match child.try_wait() {
-            Ok(Some(s)) => break s.code(),
-            _ if start.elapsed() > Duration::from_secs(30) => {
-                let _ = child.kill();
-                panic!("the watcher did not end");
-            }
-            _ => std::thread::sleep(Duration::from_millis(50)),
-        }
-    };
+    let code = ended(&mut child, "the watcher");
     assert_eq!(code, Some(0), "a quiet end, not a panic (101)");
+}
+
+// ---------------------------------------------------------------------------
+// Changes made between the run and the writes.
+
+/// What the folders hold after `change` is made between `prepare` and `commit`: the report's
+/// verdict and lines.
+fn render_with_change(
+    dir: &Path,
+    opts: &covey::RenderOptions,
+    change: impl FnOnce(),
+) -> (covey::Verdict, String) {
+    let doc = dir.join("doc.md");
+    let prepared = covey::prepare(std::slice::from_ref(&doc), opts);
+    change();
+    let report = prepared.commit();
+    (report.verdict, report.lines.join("\n"))
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_file_meanwhile_is_left_alone() {
+    let dir = setup("figures-became-a-file");
+    let figures = dir.join("doc.figures");
+    let opts = covey::RenderOptions::default();
+    let (verdict, said) = render_with_change(&dir, &opts, || write(&figures, "mine\n"));
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert_eq!(read(&figures), "mine\n", "{said}");
+    assert!(!dir.join("doc.rendered.md").exists(), "{said}");
+    assert_eq!(names(&dir), ["data", "doc.figures", "doc.md"], "{said}");
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_link_meanwhile_is_not_followed() {
+    let dir = setup("figures-became-a-link");
+    let outside = scratch("figures-became-a-link-outside");
+    let figures = dir.join("doc.figures");
+    let opts = covey::RenderOptions::default();
+    let (verdict, said) = render_with_change(&dir, &opts, || {
+        symlink(&outside, &figures).unwrap_or_else(|e| panic!("{e}"));
+    });
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert_eq!(names(&outside), ["data"], "nothing written outside: {said}");
+    assert!(is_link(&figures));
+    assert!(!dir.join("doc.rendered.md").exists(), "{said}");
+}
+
+#[test]
+fn a_document_deleted_during_its_render_is_not_brought_back() {
+    // In place: the document the user deleted is not written again from the run's copy.
+    let dir = setup("deleted-in-place");
+    let opts = covey::RenderOptions {
+        in_place: true,
+        ..Default::default()
+    };
+    let doc = dir.join("doc.md");
+    let (verdict, said) = render_with_change(&dir, &opts, || {
+        std::fs::remove_file(&doc).unwrap_or_else(|e| panic!("{e}"));
+    });
+    assert_eq!(verdict, covey::Verdict::Failed, "{said}");
+    assert!(!doc.exists(), "{said}");
+    assert_eq!(names(&dir), ["data"], "{said}");
+}
+
+#[test]
+fn a_figures_folder_replaced_by_a_link_just_before_a_rename_stops_the_batch() {
+    // Between the staging of the new figures and the move of the second one into place, the
+    // folder is moved aside and a link to a folder outside takes its name.
+    let dir = scratch("last-check-folder");
+    let outside = scratch("last-check-folder-outside");
+    let figures = dir.join("doc.figures");
+    let (a, b) = (figures.join("block1-1.svg"), figures.join("block1-2.svg"));
+    let mut batch = Batch::new();
+    batch.real_folder(figures.clone());
+    batch.write(a.clone(), "<svg/>", expect(&a));
+    batch.write(b.clone(), "<svg></svg>", expect(&b));
+    let (figures2, outside2, aside) = (figures.clone(), outside.clone(), dir.join("aside"));
+    let mut swap = move || {
+        std::fs::rename(&figures2, &aside).unwrap_or_else(|e| panic!("{e}"));
+        symlink(&outside2, &figures2).unwrap_or_else(|e| panic!("{e}"));
+    };
+    let e = batch
+        .commit_with(Some(Fault::BeforeRename(1, &mut swap)))
+        .err()
+        .unwrap_or_else(|| panic!("the link is noticed"));
+    assert!(e.message.contains("replaced by a link or a file"), "{e}");
+    assert_eq!(names(&outside), ["data"], "nothing written outside: {e}");
+    assert!(is_link(&figures));
 }

@@ -94,6 +94,10 @@ pub struct Batch {
     writes: Vec<Planned>,
     removals: Vec<(PathBuf, Digest)>,
     empty_folders: Vec<PathBuf>,
+    /// Folders that must be real folders, not links nor files, whenever covey writes or
+    /// removes a file in them (figures folders: one replaced by a link after the plan was
+    /// checked would lead the writes outside).
+    real_folders: Vec<PathBuf>,
 }
 
 /// A file that changes, as found before anything is written.
@@ -171,6 +175,44 @@ impl Batch {
         self.empty_folders.push(path);
     }
 
+    /// Asks that the folder at `path` be a real folder (when it exists) each time a file in it
+    /// is written or removed.
+    pub fn real_folder(&mut self, path: PathBuf) {
+        self.real_folders.push(path);
+    }
+
+    /// An error when a folder that must be real and holds `path` is now a link or a file.
+    fn still_real(&self, path: &Path) -> Result<(), FileError> {
+        for folder in self.real_folders.iter().filter(|f| path.starts_with(f)) {
+            match fs::symlink_metadata(folder) {
+                Ok(m) if !m.is_dir() => {
+                    return Err(FileError {
+                        path: folder.clone(),
+                        message: "the figures folder was replaced by a link or a file while \
+                                  covey was working, and covey never writes through a link \
+                                  nor over a file it did not write; render again"
+                            .into(),
+                    })
+                }
+                _ => {}
+            }
+        }
+        Ok(())
+    }
+
+    /// [`place`], once the folders that must be real still are.
+    fn checked_place<'a>(
+        &self,
+        p: &'a Pending,
+        stagings: &Stagings,
+        i: usize,
+        new: Ready,
+    ) -> io::Result<Done<'a>> {
+        self.still_real(&p.planned.path)
+            .map_err(|e| io::Error::other(e.message))?;
+        place(p, stagings, i, new)
+    }
+
     /// Writes every file, or none.
     pub fn commit(self) -> Result<Committed, FileError> {
         self.commit_with(None)
@@ -187,6 +229,9 @@ impl Batch {
             .collect();
         folders.sort();
         folders.dedup();
+        for folder in &folders {
+            self.still_real(folder).map_err(nothing_written)?;
+        }
         for folder in &folders {
             done.leftovers += temp::clean_leftovers(folder);
         }
@@ -209,15 +254,15 @@ impl Batch {
             if stagings.0.iter().any(|(f, _)| *f == folder) {
                 continue;
             }
-            let made = fs::create_dir_all(folder).and_then(|()| Staging::create(folder));
+            let made = fs::create_dir_all(folder)
+                .map_err(|e| cannot_write_in(folder, e))
+                .and_then(|()| self.still_real(folder))
+                .and_then(|()| Staging::create(folder).map_err(|e| cannot_write_in(folder, e)));
             match made {
                 Ok(s) => stagings.0.push((folder, s)),
                 Err(e) => {
                     stagings.finish(false);
-                    return Err(nothing_written(FileError {
-                        path: folder.to_path_buf(),
-                        message: format!("cannot write in this folder: {e}"),
-                    }));
+                    return Err(nothing_written(e));
                 }
             }
         }
@@ -263,9 +308,9 @@ impl Batch {
                 )),
                 Some(Fault::BeforeRename(k, hook)) if *k == i => {
                     hook();
-                    place(p, &stagings, i, new)
+                    self.checked_place(p, &stagings, i, new)
                 }
-                _ => place(p, &stagings, i, new),
+                _ => self.checked_place(p, &stagings, i, new),
             };
             match placed {
                 Ok(d) => journal.push(d),
@@ -294,7 +339,8 @@ impl Batch {
         }
 
         for (path, digest) in &self.removals {
-            let ours = fs::symlink_metadata(path).is_ok_and(|m| m.file_type().is_file())
+            let ours = self.still_real(path).is_ok()
+                && fs::symlink_metadata(path).is_ok_and(|m| m.file_type().is_file())
                 && Digest::of_file(path).ok().flatten() == Some(*digest);
             if ours && fs::remove_file(path).is_ok() {
                 done.removed += 1;
@@ -562,4 +608,12 @@ fn sync_folder(folder: &Path) {
     }
     #[cfg(not(unix))]
     let _ = folder;
+}
+
+/// The error of a folder that covey could not create or write in.
+fn cannot_write_in(folder: &Path, e: io::Error) -> FileError {
+    FileError {
+        path: folder.to_path_buf(),
+        message: format!("cannot write in this folder: {e}"),
+    }
 }

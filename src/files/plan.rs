@@ -167,6 +167,8 @@ impl Plan {
         let mut refusals = Vec::new();
         let mut removals: Vec<(PathBuf, Digest)> = Vec::new();
         let mut empty_folders = Vec::new();
+        // Figures folders, which must still be real folders (not links) when covey writes.
+        let mut real_folders = Vec::new();
         // Each figures folder's earlier list of covey's figures.
         let mut listed: Vec<(PathBuf, Vec<(String, Digest)>)> = Vec::new();
 
@@ -223,6 +225,7 @@ impl Plan {
                 }
                 _ => {}
             }
+            real_folders.push(set.dir.clone());
             if writes && name_len(&set.dir) > NAME_MAX {
                 refusals.push(refuse(too_long(&set.dir, "shorten the document's name")));
                 continue;
@@ -425,6 +428,9 @@ impl Plan {
         }
         for folder in empty_folders {
             batch.remove_folder_if_empty(folder);
+        }
+        for folder in real_folders {
+            batch.real_folder(folder);
         }
         Ok(batch)
     }

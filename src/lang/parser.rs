@@ -49,6 +49,23 @@ pub fn parse_line_with(
     line_no: usize,
     params: &Params,
 ) -> Result<Option<Statement>, SyntaxError> {
+    // A line's own CRLF ending is not part of `text`, so a carriage return here is a lone one:
+    // Markdown (and the user's editor) ends a line there, covey's lines end at LF. Said as what
+    // it is, rather than as a character the grammar did not expect.
+    if let Some(at) = text.find('\r') {
+        // An empty span at the end of the line the carriage return ends: the messages count it
+        // as a line ending, and a span over it would reach into the next line.
+        return Err(SyntaxError {
+            span: Span {
+                start: offset + at,
+                end: offset + at,
+            },
+            message: "a carriage return alone (CR, as in files from old Mac systems) ends a line \
+                      here, and covey reads lines ended by LF or CRLF; save the document with \
+                      LF or CRLF line endings"
+                .to_string(),
+        });
+    }
     let mut pairs =
         CoveyParser::parse(Rule::line, text).map_err(|e| syntax_error(&e, text, offset))?;
     let Some(line) = pairs.next() else {

@@ -260,6 +260,7 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
         end: State::default(),
         pending: false,
     };
+    let mut unclosed = false;
     let doc = match document::parse(text) {
         Ok(d) => d,
         Err(e) => {
@@ -280,8 +281,10 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
                     .to_string(),
                 help: None,
             });
-            // A block being written has no closing fence yet: it is checked, and completed, as
-            // if closed at the end of the document.
+            // A block being written has no closing fence yet: it is completed, hovered and
+            // navigated as if closed at the end of the document; but, like the renderer, which
+            // runs nothing then, the server reports only the missing fence.
+            unclosed = matches!(e, DocumentError::UnclosedFence { .. });
             let closed = match &e {
                 DocumentError::UnclosedFence { fence, .. } => {
                     document::parse(&format!("{text}\n{fence}\n")).ok()
@@ -389,6 +392,9 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
             help: d.help,
         })
         .collect();
+    if unclosed {
+        problems.clear();
+    }
     problems.append(&mut a.problems);
     problems.sort_by_key(|p| (p.span.start, p.span.end));
     a.problems = problems;

@@ -398,6 +398,13 @@ impl Server<'_> {
                     Err(e) => Err(invalid(&e)),
                 }
             }
+            // The protocol allows one `initialize` a session: a second is a request out of
+            // place, not an unknown method.
+            "initialize" => Err((
+                ErrorCode::InvalidRequest as i32,
+                "the server is already initialized; `initialize` is sent once a session"
+                    .to_string(),
+            )),
             other => Err((
                 ErrorCode::MethodNotFound as i32,
                 format!("covey's language server does not answer `{other}`"),

@@ -176,9 +176,10 @@ class ErrorValue(str):
     """An error value of a spreadsheet cell, such as #N/A."""
 
 
-def write_xlsx(name, sheets):
-    """A minimal Office Open XML workbook, written with the standard library so that the
-    file is the same byte for byte at every run (fixed times in the archive). sheets: a
+def write_xlsx(path, sheets):
+    """A minimal Office Open XML workbook at path, written with the standard library so
+    that the file is the same byte for byte at every run (fixed times in the archive); the
+    data-source benchmark (tests/bench/make_sources.py) writes its workbook with it too. sheets: a
     list of (sheet name, rows); a cell is an ErrorValue (an error cell), a str (shared
     string), an int or float (number),
     a datetime.date (a number with a date format, as spreadsheet programs store dates) or
@@ -275,7 +276,7 @@ def write_xlsx(name, sheets):
     order = ["[Content_Types].xml", "_rels/.rels", "xl/workbook.xml",
              "xl/_rels/workbook.xml.rels", "xl/styles.xml", "xl/sharedStrings.xml"]
     order += sorted(k for k in parts if k.startswith("xl/worksheets/"))
-    with zipfile.ZipFile(os.path.join(HERE, name), "w") as z:
+    with zipfile.ZipFile(path, "w") as z:
         for part in order:
             info = zipfile.ZipInfo(part, date_time=(2026, 1, 1, 0, 0, 0))
             info.compress_type = zipfile.ZIP_DEFLATED
@@ -308,7 +309,7 @@ def greenhouse():
         ["height_cm: plant height at transplanting; yield_kg: fruit per plant"],
     ]
     write_xlsx(
-        "greenhouse.xlsx",
+        os.path.join(HERE, "greenhouse.xlsx"),
         [
             ("Plan", plan),
             ("Harvest", [["plot", "schedule", "height_cm", "yield_kg", "harvested"]] + rows),
