@@ -19,7 +19,7 @@ use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
     quote_name, text_for_number, unknown_data_set, unknown_value,
 };
-use crate::session::model_statements::{column_not_in_model, confidence};
+use crate::session::model_statements::{column_not_in_model, confidence, Role};
 use crate::session::plot_statements::{kind_word, listing};
 use crate::session::procedure_statements::balance_not_in_model;
 use crate::session::{closest, no_data_set, unknown_model};
@@ -995,24 +995,24 @@ impl<'c> Walk<'c> {
         }
     }
 
-    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. For the
-    /// tables, which first check that a named column of the data is in the model, `column_at`
-    /// is where the renderer puts that error (the factor's own words).
+    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. Every
+    /// statement first checks that a named column of the data is in the model; `column_at` is
+    /// where the renderer puts that error (the factor's own words).
     fn model_factor(
         &mut self,
         m: &ModelState,
         factor: &str,
         span: Span,
         label: &str,
-        column_at: Option<Span>,
+        column_at: Span,
     ) -> bool {
         let Some(vars) = &m.vars else {
             return true;
         };
         let e = match vars.iter().find(|v| v.name == factor) {
             None => {
-                let column = column_at
-                    .and(m.data_set)
+                let column = m
+                    .data_set
                     .and_then(|i| self.state.data_sets.get(i))
                     .and_then(|d| d.shape.as_ref())
                     .and_then(|d| d.columns.iter().find(|c| c.name == factor));
@@ -1022,8 +1022,7 @@ impl<'c> Walk<'c> {
                         .filter(|v| v.factor)
                         .map(|v| v.name.clone())
                         .collect();
-                    let at = column_at.unwrap_or(span);
-                    let d = column_not_in_model(at, factor, &c.values, &m.name, &factors);
+                                        let d = column_not_in_model(column_at, factor, &c.values, &m.name, Role::Factor, &factors);
                     self.error(d);
                     return false;
                 }
@@ -1062,10 +1061,32 @@ impl<'c> Walk<'c> {
             Some(name) => match numeric.iter().find(|v| v.name == name) {
                 Some(v) => *v,
                 None => {
-                    let e = ModelError::CovariateNotInModel {
-                        name: name.to_string(),
+                    let covariates: Vec<String> = numeric.iter().map(|v| v.name.clone()).collect();
+                    let column = m
+                        .data_set
+                        .and_then(|i| self.state.data_sets.get(i))
+                        .and_then(|d| d.shape.as_ref())
+                        .and_then(|d| d.columns.iter().find(|c| c.name == name));
+                    let d = match column {
+                        // A column of the data that is no variable of the model, as the renderer
+                        // says it before it asks the engine.
+                        Some(c) if !vars.iter().any(|v| v.name == name) => column_not_in_model(
+                            span,
+                            name,
+                            &c.values,
+                            &m.name,
+                            Role::Covariate,
+                            &covariates,
+                        ),
+                        _ => {
+                            let e = ModelError::NoSuchCovariate {
+                                name: name.to_string(),
+                                covariates,
+                            };
+                            Diagnostic::new(span, e.to_string()).label(label)
+                        }
                     };
-                    self.error(Diagnostic::new(span, e.to_string()).label(label));
+                    self.error(d);
                     return;
                 }
             },
@@ -1215,7 +1236,7 @@ impl<'c> Walk<'c> {
                     &factor.value,
                     factor.span,
                     "cannot compute this",
-                    Some(factor.span),
+                    factor.span,
                 ) {
                     if let TableRequest::Means { by: Some(by), .. } = request {
                         // `by` names a second factor of the model, checked as the first.
@@ -1224,7 +1245,7 @@ impl<'c> Walk<'c> {
                             &by.value,
                             by.span,
                             "cannot compute this",
-                            Some(by.span),
+                            by.span,
                         ) {
                             return;
                         }
@@ -1248,7 +1269,7 @@ impl<'c> Walk<'c> {
                     &factor.value,
                     span,
                     "cannot compute this",
-                    Some(factor.span),
+                    factor.span,
                 ) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
@@ -1269,7 +1290,7 @@ impl<'c> Walk<'c> {
                     &factor.value,
                     covariate.span,
                     "cannot compute this",
-                    Some(factor.span),
+                    factor.span,
                 ) {
                     self.slope_covariate(
                         &m,
@@ -1437,9 +1458,16 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(&m, &factor.value, factor.span, "cannot test this", None) {
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot test this",
+                    factor.span,
+                ) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
-                    self.slope_covariate(&m, c, factor.span, "cannot test this");
+                    let at = covariate.as_ref().map_or(factor.span, |c| c.span);
+                    self.slope_covariate(&m, c, at, "cannot test this");
                 }
             }
             Gate::Normality { model, alpha } => {
@@ -1523,7 +1551,13 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if !self.model_factor(&m, &factor.value, factor.span, "cannot compute this", None) {
+                if !self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot compute this",
+                    factor.span,
+                ) {
                     return;
                 }
                 let Some(levels) = m

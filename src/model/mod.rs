@@ -714,7 +714,15 @@ pub enum ModelError {
         megabytes: usize,
     },
     /// No row is left after dropping missing values.
-    NoRows,
+    NoRows {
+        /// Rows of the data.
+        rows: usize,
+        /// Each column the model uses (response first, then its variables in order) with the
+        /// number of rows on which it is missing.
+        lost: Vec<(String, usize)>,
+        /// The weights column, if any, with the number of rows on which it is missing or 0.
+        weights: Option<(String, usize)>,
+    },
     /// The response is constant over the fitted rows.
     ResponseZeroVariance,
     /// The response's values spread over a range whose squares doubles cannot hold (see
@@ -806,6 +814,13 @@ pub enum ModelError {
         /// The name.
         name: String,
     },
+    /// The covariate of a slope is not a numeric covariate of the model.
+    NoSuchCovariate {
+        /// The name.
+        name: String,
+        /// The model's numeric covariates, in variable order, for the hint.
+        covariates: Vec<String>,
+    },
     /// The model has no numeric covariate.
     NoCovariate,
     /// Several covariates and none named.
@@ -895,7 +910,19 @@ impl fmt::Display for ModelError {
                 }
                 write!(f, "; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)")
             }
-            E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
+            E::NoRows { rows, lost, weights } => {
+                let code = crate::report::markdown::code;
+                let mut named: Vec<String> = lost
+                    .iter()
+                    .filter(|(_, k)| *k > 0)
+                    .map(|(name, k)| format!("{} is missing on {k}", code(name)))
+                    .collect();
+                if let Some((name, k)) = weights.as_ref().filter(|(_, k)| *k > 0) {
+                    named.push(format!("the weight {} is missing or 0 on {k}", code(name)));
+                }
+                write!(f, "no row has every value the model needs, so none is left to fit (of the {rows} rows, {})", named.join(", "))?;
+                write!(f, "; a row is left out when any of its columns in the model is missing: fill in the values, or leave the emptiest columns out of the model")
+            }
             E::BadWeight { variable, row, value } => write!(f, "the weight `{variable}` is {value} at line {row}; weights must be 0 or more (0 leaves a row out)"),
             E::RobustLeverageOne { row } => write!(f, "robust (HC3) standard errors are undefined because the row at line {row} has leverage 1 (it alone determines a coefficient, such as the only row of a level); remove that row or leave out `robust`"),
             E::UnknownControl { factor, level } => write!(f, "`{level}` is not a level of `{factor}` with rows in the fitted data"),
@@ -919,6 +946,14 @@ impl fmt::Display for ModelError {
             },
             E::FactorNotInModel { factor } => write!(f, "factor `{factor}` is not in this model; add it as a term first"),
             E::CovariateNotInModel { name } => write!(f, "`{name}` is not a numeric covariate of this model, so it cannot be given a value"),
+            E::NoSuchCovariate { name, covariates } => match covariates.as_slice() {
+                [] => write!(f, "`{name}` is not a covariate of this model, which has no numeric covariate"),
+                some => write!(
+                    f,
+                    "`{name}` is not a numeric covariate of this model; its covariates: {}",
+                    some.iter().map(|x| format!("`{x}`")).collect::<Vec<_>>().join(", ")
+                ),
+            },
             E::NoCovariate => write!(f, "the model has no numeric covariate"),
             E::AmbiguousCovariate { candidates } => write!(f, "the model has several covariates ({}); name the one you mean", candidates.join(", ")),
             E::NonlinearCovariate { covariate } => write!(f, "`{covariate}` enters the model through a power, log or sqrt, so it has no single slope; use it untransformed"),

@@ -1021,13 +1021,74 @@ pub(crate) fn numeric_values<'a>(
                     ),
                     _ => set.place_of(row),
                 };
-                d = d.help(format!(
-                    "{place} holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
-                ));
+                d = d.help(match data::beyond_limit(text) {
+                    Some(_) => limit_advice(&column.value, &place, t.iter()),
+                    None => format!(
+                        "{place} holds {}, which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`",
+                        code(text)
+                    ),
+                });
             }
             Err(d)
         }
     }
+}
+
+/// Distinct limit texts named in full in the advice on `<0.5`-style cells; more are counted.
+const LIMIT_TEXTS_SHOWN: usize = 6;
+
+/// The advice for a numeric column that holds cells such as `<0.5` or `>2000` (`cells`, in row
+/// order; the first such is at `place`): values reported as beyond a limit of detection or of
+/// a measuring range, which covey will not turn into numbers by itself.
+fn limit_advice<'a>(column: &str, place: &str, cells: impl Iterator<Item = Option<&'a str>>) -> String {
+    let mut texts: Vec<&str> = Vec::new();
+    let mut count = 0usize;
+    for text in cells.flatten() {
+        if data::beyond_limit(text).is_some() {
+            count += 1;
+            if !texts.contains(&text) {
+                texts.push(text);
+            }
+        }
+    }
+    let Some((&first, _)) = texts.split_first() else {
+        return String::new();
+    };
+    let (below, limit) = data::beyond_limit(first).unwrap_or((true, f64::NAN));
+    let what = if below {
+        format!("a value below a limit of detection ({})", data::format_number(limit))
+    } else {
+        format!(
+            "a value above a limit (such as the top of a measuring range, {})",
+            data::format_number(limit)
+        )
+    };
+    let markers = texts
+        .iter()
+        .take(LIMIT_TEXTS_SHOWN)
+        .map(|t| format!("\"{}\"", t.replace('\\', "\\\\").replace('"', "\\\"")))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let more = texts.len().saturating_sub(LIMIT_TEXTS_SHOWN);
+    let more = if more > 0 {
+        format!(" (and the {more} other such texts)")
+    } else {
+        String::new()
+    };
+    let cells = if count == 1 {
+        "it is the only such cell".to_string()
+    } else {
+        format!("{} has {count} such cells", code(column))
+    };
+    format!(
+        "{place} holds {}, {what}, not a measured value; {cells}. covey does not choose a number \
+         for such a value: either declare these cells missing with `missing {markers}`{more} \
+         before `load` (their rows are then left out wherever {} is used), or write in the data \
+         file the number each stands for (for example the limit itself, or half of it) and say \
+         in the document which you chose",
+        code(first),
+        code(column)
+    )
 }
 
 fn summary_row(level: &str, values: impl Iterator<Item = f64>) -> Vec<crate::report::Cell> {

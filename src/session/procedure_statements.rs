@@ -4,6 +4,7 @@
 use std::sync::Arc;
 
 use super::data_statements::{column_index, factor_column, numeric_values};
+use super::model_statements::{factor_named, Role};
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Correction, Gate, Literal, ReportRequest, Spanned, SsKind};
@@ -46,6 +47,8 @@ impl Session<'_> {
             } => {
                 let alpha = alpha_of(alpha)?;
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, Role::Factor, [factor])?;
+                self.named_in_model(m, Role::Covariate, covariate)?;
                 let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let s = m
                     .fit
@@ -56,7 +59,12 @@ impl Session<'_> {
                         &known,
                     )
                     .map_err(|e| {
-                        Diagnostic::new(factor.span, e.to_string()).label("cannot test this")
+                        // At the words the error is about: `of X` unless it is about `for F`.
+                        let at = match covariate {
+                            Some(c) if factor_named(&e) != Some(factor.value.as_str()) => c.span,
+                            _ => factor.span,
+                        };
+                        Diagnostic::new(at, e.to_string()).label("cannot test this")
                     })?;
                 (
                     s.equality_p >= alpha,
@@ -271,6 +279,7 @@ impl Session<'_> {
                 correction,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, Role::Factor, [factor])?;
                 let adjust = correction.as_ref().map_or(Correction::Tukey, |c| c.value);
                 if let (Some(c), Correction::Dunnett) = (correction, adjust) {
                     return Err(Diagnostic::new(
