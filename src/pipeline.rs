@@ -247,12 +247,26 @@ pub fn run(
     // document (the last of its kind and subject counts).
     let mut values = Vec::with_capacity(doc.references.len());
     let mut resolver = live::Resolver::new(&outputs);
+    // After a failure stopped the run, a table a reference needs may simply not have been
+    // computed; the reference is still checked against what the statements would compute
+    // (its form, its kind, a table no statement computes, its words), as the language server
+    // checks it.
+    let (tables, maybe) = if stopped.is_some() {
+        computed_tables(&blocks)
+    } else {
+        (Vec::new(), Vec::new())
+    };
     for reference in &doc.references {
-        match resolver.resolve(&reference.text) {
+        let resolved = resolver.resolve(&reference.text);
+        let resolved = match resolved {
+            Err(_) if stopped.is_some() => {
+                crate::lsp::references::check(&reference.text, &tables, &maybe)
+                    .map(|()| live::unresolved(&reference.text))
+            }
+            other => other,
+        };
+        match resolved {
             Ok(value) => values.push(value),
-            // After a failure stopped the run, a table the reference needs
-            // may simply not have been computed: that is no new error.
-            Err(_) if stopped.is_some() => values.push(live::unresolved(&reference.text)),
             Err(e) => {
                 let span = Span {
                     start: reference.start,
@@ -298,6 +312,23 @@ pub fn run(
         gates_failed,
         document: doc,
     })
+}
+
+/// The (kind, subject) of every table the statements compute, and of those they may compute
+/// (`check` lists influential rows only when there are some), for checking live references
+/// that a stopped run left unresolved.
+fn computed_tables(blocks: &[Vec<Statement>]) -> (Vec<(String, String)>, Vec<(String, String)>) {
+    let mut tables = Vec::new();
+    let mut maybe = Vec::new();
+    for stmt in blocks.iter().flatten() {
+        for (kind, subject) in crate::lsp::names::tables_of(stmt) {
+            if kind != "influence" {
+                tables.push((kind.clone(), subject.clone()));
+            }
+            maybe.push((kind, subject));
+        }
+    }
+    (tables, maybe)
 }
 
 /// What stopped a run before its last block.
