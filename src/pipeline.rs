@@ -389,7 +389,10 @@ pub fn declared_parameters(
             errors.push(
                 Diagnostic::new(
                     name.span,
-                    format!("parameter `{}` is declared twice", name.value),
+                    format!(
+                        "parameter {} is declared twice",
+                        crate::report::markdown::code(&name.value)
+                    ),
                 )
                 .label("declared again")
                 .help("declare each parameter once"),
@@ -454,7 +457,12 @@ fn literal_text(value: &lang::Literal) -> String {
 /// value given there, not about anything written in the document: the message says so, with
 /// the value, and the help says which value to give `--set` instead (the document's own
 /// value is one that works when the error does not come from it).
-fn traced_to_set(d: Diagnostic, source: &str, doc: &Document, set: &[(String, String)]) -> Diagnostic {
+fn traced_to_set(
+    d: Diagnostic,
+    source: &str,
+    doc: &Document,
+    set: &[(String, String)],
+) -> Diagnostic {
     let Some(name) = source
         .get(d.span.start..d.span.end)
         .and_then(|t| t.strip_prefix('@'))
@@ -468,7 +476,10 @@ fn traced_to_set(d: Diagnostic, source: &str, doc: &Document, set: &[(String, St
         .into_iter()
         .find(|(n, _)| n.value == name)
         .map(|(_, v)| literal_text(&v));
-    let what = d.help.as_deref().map_or(String::new(), |h| format!(" ({h})"));
+    let what = d
+        .help
+        .as_deref()
+        .map_or(String::new(), |h| format!(" ({h})"));
     let instead = match default.filter(|v| v != given) {
         Some(v) => format!(
             "run again with `--set {name}=` and a value that fits here, as the message says{what}, for example the document's own value {}, or leave out `--set {name}`",

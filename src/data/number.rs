@@ -130,9 +130,16 @@ pub fn parse_number(text: &str) -> NumberParse {
 /// below (`<`, `<=`, `≤`), and the limit. `None` for anything else.
 pub fn beyond_limit(text: &str) -> Option<(bool, f64)> {
     let t = trim_str(text);
-    let (below, rest) = [("<=", true), ("≤", true), ("<", true), (">=", false), ("≥", false), (">", false)]
-        .iter()
-        .find_map(|(p, below)| t.strip_prefix(p).map(|rest| (*below, rest)))?;
+    let (below, rest) = [
+        ("<=", true),
+        ("≤", true),
+        ("<", true),
+        (">=", false),
+        ("≥", false),
+        (">", false),
+    ]
+    .iter()
+    .find_map(|(p, below)| t.strip_prefix(p).map(|rest| (*below, rest)))?;
     match parse_number(rest) {
         NumberParse::Number(limit) => Some((below, limit)),
         _ => None,

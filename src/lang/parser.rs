@@ -127,7 +127,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
         let word = rest.get(..word_len).unwrap_or(rest);
         match word.char_indices().nth(FOUND_CHARS) {
             Some((cut, _)) => format!("`{}…`", word.get(..cut).unwrap_or(word)),
-            None => format!("`{word}`"),
+            None => format!("{word}", word = crate::report::markdown::code(&word)),
         }
     };
     let message = match &e.variant {
@@ -210,7 +210,7 @@ fn suggestion(found: &str, words: &[&str]) -> String {
         .or(cut_short)
         .filter(|w| !w.eq_ignore_ascii_case(found));
     match near {
-        Some(w) => format!("; did you mean `{w}`?"),
+        Some(w) => format!("; did you mean {w}?", w = crate::report::markdown::code(&w)),
         None => String::new(),
     }
 }
@@ -583,9 +583,13 @@ impl Builder<'_> {
                         _ => &mut name,
                     };
                     if slot.is_some() {
-                        return Err(
-                            self.error(&at, format!("`{word}` is given twice; give it once"))
-                        );
+                        return Err(self.error(
+                            &at,
+                            format!(
+                                "{word} is given twice; give it once",
+                                word = crate::report::markdown::code(&word)
+                            ),
+                        ));
                     }
                     *slot = Some(match (rule, value) {
                         (Rule::load_as, Ok(v)) => self.ident(v),
@@ -629,9 +633,13 @@ impl Builder<'_> {
                         &mut query
                     };
                     if slot.is_some() {
-                        return Err(
-                            self.error(&at, format!("`{word}` is given twice; give it once"))
-                        );
+                        return Err(self.error(
+                            &at,
+                            format!(
+                                "{word} is given twice; give it once",
+                                word = crate::report::markdown::code(&word)
+                            ),
+                        ));
                     }
                     *slot = Some(value);
                 }
@@ -1550,15 +1558,21 @@ impl Builder<'_> {
                 Literal::Text(t) => Err(self.error(
                     pair,
                     format!(
-                        "parameter `{}` holds the text \"{t}\", but a number is needed here",
-                        pair.as_str().trim_start_matches('@')
+                        "parameter {} holds the text \"{t}\", but a number is needed here",
+                        crate::report::markdown::code(&pair.as_str().trim_start_matches('@'))
                     ),
                 )),
             };
         }
         match pair.as_str().parse::<f64>() {
             Ok(v) if v.is_finite() => Ok(v),
-            _ => Err(self.error(pair, format!("`{}` is not a finite number", pair.as_str()))),
+            _ => Err(self.error(
+                pair,
+                format!(
+                    "{} is not a finite number",
+                    crate::report::markdown::code(&pair.as_str())
+                ),
+            )),
         }
     }
 
@@ -1652,7 +1666,10 @@ fn once(b: &Builder<'_>, kids: &[Pair<'_, Rule>], rules: &[Rule]) -> Result<(), 
             let word = second.as_str().split_whitespace().next().unwrap_or("");
             return Err(b.error(
                 second,
-                format!("the clause `{word}` is given twice; keep one"),
+                format!(
+                    "the clause {word} is given twice; keep one",
+                    word = crate::report::markdown::code(&word)
+                ),
             ));
         }
     }

@@ -21,7 +21,7 @@ use crate::session::data_statements::{
 };
 use crate::session::model_statements::{column_not_in_model, confidence, Role};
 use crate::session::plot_statements::{kind_word, listing};
-use crate::session::procedure_statements::balance_not_in_model;
+use crate::session::procedure_statements::{balance_not_in_model, unknown_pair};
 use crate::session::{closest, no_data_set, unknown_model};
 
 use super::data::{DataCache, Lookup, Summary};
@@ -609,7 +609,7 @@ impl<'c> Walk<'c> {
             self.error(
                 Diagnostic::new(
                     column.span,
-                    format!("data set `{}` already has a column `{}`", set.name, column.value),
+                    format!("data set {} already has a column {}", crate::report::markdown::code(&set.name), crate::report::markdown::code(&column.value)),
                 )
                 .label("already a column")
                 .help("give the new column a name of its own; a column read from the file is never overwritten"),
@@ -734,9 +734,15 @@ impl<'c> Walk<'c> {
             for (i, a) in decl.iter().enumerate() {
                 if decl[..i].iter().any(|b| b.value == a.value) {
                     self.error(
-                        Diagnostic::new(a.span, format!("level `{}` is listed twice", a.value))
-                            .label("repeated")
-                            .help("list each level once"),
+                        Diagnostic::new(
+                            a.span,
+                            format!(
+                                "level {} is listed twice",
+                                crate::report::markdown::code(&a.value)
+                            ),
+                        )
+                        .label("repeated")
+                        .help("list each level once"),
                     );
                     return;
                 }
@@ -941,8 +947,8 @@ impl<'c> Walk<'c> {
                             Diagnostic::new(
                                 part.span,
                                 format!(
-                                    "`{}` is a factor; it cannot be transformed",
-                                    part.column.value
+                                    "{} is a factor; it cannot be transformed",
+                                    crate::report::markdown::code(&part.column.value)
                                 ),
                             )
                             .label("transform of a factor"),
@@ -983,8 +989,8 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         decl.name.span,
                         format!(
-                            "This replaces the earlier model `{}`; tables from here on use the new one.",
-                            entry.name
+                            "This replaces the earlier model {}; tables from here on use the new one.",
+                            crate::report::markdown::code(&entry.name)
                         ),
                     )
                     .label("declared again"),
@@ -1022,7 +1028,14 @@ impl<'c> Walk<'c> {
                         .filter(|v| v.factor)
                         .map(|v| v.name.clone())
                         .collect();
-                                        let d = column_not_in_model(column_at, factor, &c.values, &m.name, Role::Factor, &factors);
+                    let d = column_not_in_model(
+                        column_at,
+                        factor,
+                        &c.values,
+                        &m.name,
+                        Role::Factor,
+                        &factors,
+                    );
                     self.error(d);
                     return false;
                 }
@@ -1156,7 +1169,7 @@ impl<'c> Walk<'c> {
                 };
                 let names: Vec<&str> = levels.iter().map(String::as_str).collect();
                 let help = match closest(&w.value, &names) {
-                    Some(c) => format!("did you mean `{c}`?"),
+                    Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(&c)),
                     None => format!("its levels are {}", listing(&names)),
                 };
                 self.error(
@@ -1264,13 +1277,7 @@ impl<'c> Walk<'c> {
                 };
                 self.confidence(level.as_ref());
                 let span = covariate.as_ref().map_or(factor.span, |c| c.span);
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    span,
-                    "cannot compute this",
-                    factor.span,
-                ) {
+                if self.model_factor(&m, &factor.value, span, "cannot compute this", factor.span) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
                 }
@@ -1344,7 +1351,10 @@ impl<'c> Walk<'c> {
             }
             Some(c) if !numeric.contains(&c.value.as_str()) => {
                 let help = if numeric.is_empty() {
-                    format!("model `{}` has no covariate", model.value)
+                    format!(
+                        "model {} has no covariate",
+                        crate::report::markdown::code(&model.value)
+                    )
                 } else {
                     format!("its covariates are {}", listing(&numeric))
                 };
@@ -1352,8 +1362,9 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         c.span,
                         format!(
-                            "`{}` is not a covariate of model `{}`",
-                            c.value, model.value
+                            "{} is not a covariate of model {}",
+                            crate::report::markdown::code(&c.value),
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("not a covariate of this model")
@@ -1366,8 +1377,8 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         model.span,
                         format!(
-                            "model `{}` has no covariate to draw lines along",
-                            model.value
+                            "model {} has no covariate to draw lines along",
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("no covariate")
@@ -1379,7 +1390,10 @@ impl<'c> Walk<'c> {
                 self.error(
                     Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several covariates", model.value),
+                        format!(
+                            "model {} has several covariates",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which covariate?")
                     .help(format!("name one with `of`: {}", listing(&numeric))),
@@ -1392,7 +1406,10 @@ impl<'c> Walk<'c> {
         match factor {
             Some(named) if !factors.contains(&named.value.as_str()) => {
                 let help = if factors.is_empty() {
-                    format!("model `{}` has no factor", model.value)
+                    format!(
+                        "model {} has no factor",
+                        crate::report::markdown::code(&model.value)
+                    )
                 } else {
                     format!("its factors are {}", listing(&factors))
                 };
@@ -1400,8 +1417,9 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         named.span,
                         format!(
-                            "`{}` is not a factor of model `{}`",
-                            named.value, model.value
+                            "{} is not a factor of model {}",
+                            crate::report::markdown::code(&named.value),
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("not a factor of this model")
@@ -1410,18 +1428,27 @@ impl<'c> Walk<'c> {
             }
             None if needs_factor && factors.is_empty() => {
                 self.error(
-                    Diagnostic::new(model.span, format!("model `{}` has no factor", model.value))
-                        .label("no factor")
-                        .help(format!(
-                            "`plot {word}` shows the levels of a factor of the model"
-                        )),
+                    Diagnostic::new(
+                        model.span,
+                        format!(
+                            "model {} has no factor",
+                            crate::report::markdown::code(&model.value)
+                        ),
+                    )
+                    .label("no factor")
+                    .help(format!(
+                        "`plot {word}` shows the levels of a factor of the model"
+                    )),
                 );
             }
             None if (needs_factor || kind == PlotKind::Lines) && factors.len() > 1 => {
                 self.error(
                     Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several factors", model.value),
+                        format!(
+                            "model {} has several factors",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which factor?")
                     .help(format!("name one with `for`: {}", listing(&factors))),
@@ -1570,16 +1597,7 @@ impl<'c> Walk<'c> {
                 };
                 let known = |s: &Spanned<String>| levels.contains(&s.value);
                 if !known(first) || !known(second) || first.value == second.value {
-                    self.error(
-                        Diagnostic::new(
-                            first.span,
-                            format!(
-                                "`{}` and `{}` are not two levels of `{}` in model `{}`",
-                                first.value, second.value, factor.value, m.name
-                            ),
-                        )
-                        .label("unknown pair"),
-                    );
+                    self.error(unknown_pair(first, second, &factor.value, &m.name, &levels));
                 }
             }
             // A kind added to the language later: nothing to check here yet.

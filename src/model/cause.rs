@@ -64,7 +64,7 @@ impl AliasCause {
     pub fn remedy(&self) -> String {
         match self {
             AliasCause::EmptyCells { term, .. } => {
-                format!("use Type I or II, or remove the interaction `{term}`")
+                format!("use Type I or II, or remove the interaction {term}", term = crate::report::markdown::code(&term))
             }
             AliasCause::ConstantWithin {
                 covariate,
@@ -259,8 +259,7 @@ pub(crate) fn alias_cause(
             }
         }
     }
-    constant_within(spec, lay, cols, aliased, &terms)
-        .unwrap_or(AliasCause::Combination { terms })
+    constant_within(spec, lay, cols, aliased, &terms).unwrap_or(AliasCause::Combination { terms })
 }
 
 /// A covariate constant within levels of a factor that explains the aliased columns: a
@@ -292,16 +291,29 @@ fn constant_within(
             own
         };
         for fv in candidates {
-            let (Some(Var::Numeric { name: xname, values }), Some(Var::Factor { name: fname, codes, levels })) =
-                (spec.vars.get(*x), spec.vars.get(fv))
+            let (
+                Some(Var::Numeric {
+                    name: xname,
+                    values,
+                }),
+                Some(Var::Factor {
+                    name: fname,
+                    codes,
+                    levels,
+                }),
+            ) = (spec.vars.get(*x), spec.vars.get(fv))
             else {
                 continue;
             };
-            let present = lay.factor(fv).map(|f| f.present.clone()).unwrap_or_default();
+            let present = lay
+                .factor(fv)
+                .map(|f| f.present.clone())
+                .unwrap_or_default();
             // Per level code: the first value seen and whether every other equals it.
             let mut first: Vec<Option<(f64, bool)>> = vec![None; levels.len()];
             for i in lay.used.iter() {
-                let (Some(code), Some(&v)) = (codes.get(i).and_then(|k| k.get()), values.get(i)) else {
+                let (Some(code), Some(&v)) = (codes.get(i).and_then(|k| k.get()), values.get(i))
+                else {
                     continue;
                 };
                 if let Some(slot) = first.get_mut(code as usize) {
@@ -319,7 +331,11 @@ fn constant_within(
                 })
                 .collect();
             let every = !present.is_empty() && constant.len() == present.len();
-            let fits = if col.parts.len() == 1 { every } else { !constant.is_empty() };
+            let fits = if col.parts.len() == 1 {
+                every
+            } else {
+                !constant.is_empty()
+            };
             if fits {
                 return Some(AliasCause::ConstantWithin {
                     covariate: xname.clone(),

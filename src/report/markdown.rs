@@ -766,6 +766,47 @@ mod tests {
     }
 
     #[test]
+    fn estimates_within_one_se_of_zero_ask_for_no_decimals() {
+        // A nearly exact fit (values from memory of such a fit: SEs near 1e-10): the
+        // coefficient of noise size once made the column show eight decimals of zeros.
+        let mut t = Table::new(
+            "coefficients",
+            "Demo",
+            vec![
+                Column::new("term", "term", Format::Text),
+                Column::new("estimate", "estimate", Format::Digits(4)),
+                Column::new("se", "SE", Format::Digits(3)),
+                Column::new("lower", "lower", Format::Digits(4)),
+                Column::new("upper", "upper", Format::Digits(4)),
+            ],
+        );
+        t.push(vec![
+            "x".into(),
+            3.0.into(),
+            1.5e-10.into(),
+            3.0.into(),
+            3.0.into(),
+        ]);
+        t.push(vec![
+            "b".into(),
+            (-5.8e-10).into(),
+            6.2e-10.into(),
+            (-1.9e-9).into(),
+            7.4e-10.into(),
+        ]);
+        assert_eq!(formatted_column(&t, 1), ["3.000", "0.000"]);
+        assert_eq!(formatted_column(&t, 3), ["3.000", "0.000"]);
+        assert_eq!(formatted_column(&t, 4), ["3.000", "0.000"]);
+        // An estimate beyond its SE still asks for its two significant digits; within it,
+        // not.
+        t.rows[1][1] = 0.00123.into();
+        t.rows[1][2] = 0.0004.into();
+        assert_eq!(formatted_column(&t, 1), ["3.0000", "0.0012"]);
+        t.rows[1][2] = 0.01.into();
+        assert_eq!(formatted_column(&t, 1), ["3.000", "0.001"]);
+    }
+
+    #[test]
     fn tables_align_numbers_right() {
         let mut t = Table::new(
             "summary",

@@ -101,8 +101,8 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         part.span,
                         format!(
-                            "`{}` is a factor; it cannot be transformed",
-                            part.column.value
+                            "{} is a factor; it cannot be transformed",
+                            crate::report::markdown::code(&part.column.value)
                         ),
                     )
                     .label("transform of a factor"));
@@ -255,7 +255,12 @@ impl Session<'_> {
             };
             let names = match role {
                 Role::Factor => m.fit.other_factors(""),
-                Role::Covariate => m.fit.covariate_means().into_iter().map(|(n, _)| n).collect(),
+                Role::Covariate => m
+                    .fit
+                    .covariate_means()
+                    .into_iter()
+                    .map(|(n, _)| n)
+                    .collect(),
             };
             return Err(column_not_in_model(
                 name.span,
