@@ -167,7 +167,8 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
                 format!(
                     "expected {}, found {found}{}",
                     join_or(&wanted),
-                    suggestion(word, &words)
+                    form_hint(word, &text[..pos], &words)
+                        .unwrap_or_else(|| suggestion(word, &words))
                 )
             }
         }
@@ -213,6 +214,35 @@ fn suggestion(found: &str, words: &[&str]) -> String {
         Some(w) => format!("; did you mean {w}?", w = crate::report::markdown::code(&w)),
         None => String::new(),
     }
+}
+
+/// A hint for a word written in another notation's habit (`y ~ x`, `a * b`, `a:b`), or for a
+/// keyword read as a name because the name before it is missing (`table differences for g m`:
+/// `for` taken for the model's name, and `for` expected again at `g`).
+fn form_hint(found: &str, before: &str, words: &[&str]) -> Option<String> {
+    if found.starts_with('~') && words.contains(&"on") {
+        return Some(
+            "; covey writes a model as `model NAME: RESPONSE on TERM + TERM`, with `on` between \
+             the response and the terms"
+                .to_string(),
+        );
+    }
+    if (found.starts_with('*') || found.starts_with(':')) && words.contains(&"+") {
+        return Some(
+            "; an interaction is written `A by B`, and its main effects are terms of their own \
+             (`A + B + A by B`)"
+                .to_string(),
+        );
+    }
+    let last = before.split_whitespace().last()?;
+    if words.contains(&last) {
+        return Some(format!(
+            "; {} before it was read as a name: is a name missing before {}?",
+            crate::report::markdown::code(last),
+            crate::report::markdown::code(last)
+        ));
+    }
+    None
 }
 
 fn join_or(items: &[&str]) -> String {
