@@ -4,7 +4,7 @@
 
 use crate::diagnostic::{self, Diagnostic};
 use crate::document::{self, Document};
-use crate::lang::{self, Span, Statement};
+use crate::lang::{self, Span, Spanned, Statement};
 use crate::report::{json, live, markdown, InputRecord, Item, Output};
 use crate::session::Session;
 use crate::world::World;
@@ -151,7 +151,8 @@ pub fn run_with(
             Ok(s) => blocks.push(s),
             Err(errs) => {
                 for e in errs {
-                    errors.push(show(&Diagnostic::new(e.span, e.message).label("here")));
+                    let d = Diagnostic::new(e.span, e.message).label("here");
+                    errors.push(show(&traced_to_set(d, &doc.source, &doc, &opts.params)));
                 }
                 blocks.push(Vec::new());
             }
@@ -171,6 +172,9 @@ pub fn run_with(
     let mut gates_failed = Vec::new();
     let mut warnings = Vec::new();
     let stem = file_name.strip_suffix(".md").unwrap_or(file_name);
+    // What the statements compute, kept (as names only) for checking live references should a
+    // failure stop the run.
+    let (tables, maybe) = computed_tables(&blocks);
     // Each block's statements go once they have run: a long document's syntax trees are not
     // held to the end.
     for (bi, statements) in blocks.into_iter().enumerate() {
@@ -208,6 +212,7 @@ pub fn run_with(
                     items
                 }
                 Err(d) => {
+                    let d = traced_to_set(d, &doc.source, &doc, &opts.params);
                     let shown = show(&d);
                     errors.push(shown.clone());
                     // The rendered copy points into the source without
@@ -268,12 +273,21 @@ pub fn run_with(
     // document (the last of its kind and subject counts).
     let mut values = Vec::with_capacity(doc.references.len());
     let mut resolver = live::Resolver::new(&outputs);
+    // After a failure stopped the run, a table a reference needs may simply not have been
+    // computed; the reference is still checked against what the statements would compute
+    // (its form, its kind, a table no statement computes, its words), as the language server
+    // checks it.
     for reference in &doc.references {
-        match resolver.resolve(&reference.text) {
+        let resolved = resolver.resolve(&reference.text);
+        let resolved = match resolved {
+            Err(_) if stopped.is_some() => {
+                crate::lsp::references::check(&reference.text, &tables, &maybe)
+                    .map(|()| live::unresolved(&reference.text))
+            }
+            other => other,
+        };
+        match resolved {
             Ok(value) => values.push(value),
-            // After a failure stopped the run, a table the reference needs
-            // may simply not have been computed: that is no new error.
-            Err(_) if stopped.is_some() => values.push(live::unresolved(&reference.text)),
             Err(e) => {
                 let span = Span {
                     start: reference.start,
@@ -341,6 +355,26 @@ enum Body {
     NotRun(Stop),
 }
 
+/// A table's kind and subject, as a live reference names it.
+type Table = (String, String);
+
+/// The (kind, subject) of every table the statements compute, and of those they may compute
+/// (`check` lists influential rows only when there are some), for checking live references
+/// that a stopped run left unresolved.
+fn computed_tables(blocks: &[Vec<Statement>]) -> (Vec<Table>, Vec<Table>) {
+    let mut tables = Vec::new();
+    let mut maybe = Vec::new();
+    for stmt in blocks.iter().flatten() {
+        for (kind, subject) in crate::lsp::names::tables_of(stmt) {
+            if kind != "influence" {
+                tables.push((kind.clone(), subject.clone()));
+            }
+            maybe.push((kind, subject));
+        }
+    }
+    (tables, maybe)
+}
+
 /// What stopped a run before its last block.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Stop {
@@ -392,6 +426,50 @@ pub fn declared_parameters(
     let mut params = lang::Params::new();
     let mut shown = Vec::new();
     let mut errors = Vec::new();
+    for (name, value) in declarations(doc) {
+        if params.contains_key(&name.value) {
+            errors.push(
+                Diagnostic::new(
+                    name.span,
+                    format!(
+                        "parameter {} is declared twice",
+                        crate::report::markdown::code(&name.value)
+                    ),
+                )
+                .label("declared again")
+                .help("declare each parameter once"),
+            );
+            continue;
+        }
+        let (value, from) = match set.iter().rev().find(|(n, _)| *n == name.value) {
+            Some((_, v)) => (
+                match v.parse::<f64>() {
+                    Ok(x) if x.is_finite() => lang::Literal::Number(x, v.clone()),
+                    _ => lang::Literal::Text(v.clone()),
+                },
+                "set with --set",
+            ),
+            None => (value, "the document's default"),
+        };
+        shown.push(format!(
+            "{} = {} ({from})",
+            markdown::code(&name.value),
+            markdown::code(&literal_text(&value))
+        ));
+        params.insert(name.value, value);
+    }
+    let notes = if shown.is_empty() {
+        Vec::new()
+    } else {
+        vec![format!("Parameters: {}.", shown.join("; "))]
+    };
+    (params, notes, errors)
+}
+
+/// Every `param NAME = VALUE` of the document, in order, as written (a name declared twice
+/// comes twice).
+fn declarations(doc: &Document) -> Vec<(Spanned<String>, lang::Literal)> {
+    let mut out = Vec::new();
     for block in &doc.blocks {
         for (line, offset, no) in block_lines(&doc.source, block) {
             if !line.trim_start().starts_with("param") {
@@ -402,46 +480,66 @@ pub fn declared_parameters(
                 ..
             })) = lang::parse_line(line, offset, no)
             {
-                if params.contains_key(&name.value) {
-                    errors.push(
-                        Diagnostic::new(
-                            name.span,
-                            format!("parameter `{}` is declared twice", name.value),
-                        )
-                        .label("declared again")
-                        .help("declare each parameter once"),
-                    );
-                    continue;
-                }
-                let (value, from) = match set.iter().rev().find(|(n, _)| *n == name.value) {
-                    Some((_, v)) => (
-                        match v.parse::<f64>() {
-                            Ok(x) if x.is_finite() => lang::Literal::Number(x, v.clone()),
-                            _ => lang::Literal::Text(v.clone()),
-                        },
-                        "set with --set",
-                    ),
-                    None => (value, "the document's default"),
-                };
-                let text = match &value {
-                    lang::Literal::Number(_, t) => t.clone(),
-                    lang::Literal::Text(t) => format!("\"{t}\""),
-                };
-                shown.push(format!(
-                    "{} = {} ({from})",
-                    markdown::code(&name.value),
-                    markdown::code(&text)
-                ));
-                params.insert(name.value, value);
+                out.push((name, value));
             }
         }
     }
-    let notes = if shown.is_empty() {
-        Vec::new()
-    } else {
-        vec![format!("Parameters: {}.", shown.join("; "))]
+    out
+}
+
+/// A parameter's value as a document would write it: a number as given, a text quoted.
+fn literal_text(value: &lang::Literal) -> String {
+    match value {
+        lang::Literal::Number(_, t) => t.clone(),
+        lang::Literal::Text(t) => format!("\"{t}\""),
+    }
+}
+
+/// An error at a use `@NAME` of a parameter given on the command line (`set`) is about the
+/// value given there, not about anything written in the document: the message says so, with
+/// the value, and the help says which value to give `--set` instead (the document's own
+/// value is one that works when the error does not come from it).
+fn traced_to_set(
+    d: Diagnostic,
+    source: &str,
+    doc: &Document,
+    set: &[(String, String)],
+) -> Diagnostic {
+    let Some(name) = source
+        .get(d.span.start..d.span.end)
+        .and_then(|t| t.strip_prefix('@'))
+    else {
+        return d;
     };
-    (params, notes, errors)
+    let Some((_, given)) = set.iter().rev().find(|(n, _)| n == name) else {
+        return d;
+    };
+    let default = declarations(doc)
+        .into_iter()
+        .find(|(n, _)| n.value == name)
+        .map(|(_, v)| literal_text(&v));
+    let what = d
+        .help
+        .as_deref()
+        .map_or(String::new(), |h| format!(" ({h})"));
+    let instead = match default.filter(|v| v != given) {
+        Some(v) => format!(
+            "run again with `--set {name}=` and a value that fits here, as the message says{what}, for example the document's own value {}, or leave out `--set {name}`",
+            markdown::code(&v)
+        ),
+        None => format!("run again with `--set {name}=` and a value that fits here, as the message says{what}"),
+    };
+    Diagnostic {
+        message: format!(
+            "{} (the value of `@{name}` here, {}, comes from {} on the command line, not from the document)",
+            d.message,
+            markdown::code(given),
+            markdown::code(&format!("--set {name}={given}"))
+        ),
+        label: "value given with --set".to_string(),
+        help: Some(instead),
+        ..d
+    }
 }
 
 /// The lines of a block as (text, document offset, line number), read from

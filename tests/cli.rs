@@ -698,3 +698,32 @@ fn check_finds_a_rendering_that_is_not_utf8_stale() {
         "{err}"
     );
 }
+
+#[test]
+fn a_document_that_is_not_there_names_the_one_meant() {
+    let dir = scratch("nearby-document");
+    let (code, err) = covey(&dir, &["new", "trial"]);
+    assert_eq!(code, 0, "{err}");
+    // `covey new trial` writes trial/trial.md: the name alone, the name with .md beside the
+    // folder, the path without .md, and a misspelt name each point at it.
+    for (given, meant) in [
+        ("trial.md", "trial/trial.md"),
+        ("trial/trial", "trial/trial.md"),
+        ("trial/trail.md", "trial/trial.md"),
+    ] {
+        let (code, err) = covey(&dir, &["render", given]);
+        assert_eq!(code, 2, "{given}: {err}");
+        assert!(
+            err.contains(&format!(
+                "{given}: no such file or folder; did you mean {meant}?"
+            )),
+            "{given}: {err}"
+        );
+    }
+    let (_, err) = covey(&dir, &["render", "trial/zzzzzzzz.md"]);
+    assert!(
+        err.contains("trial/zzzzzzzz.md: no such file or folder\n"),
+        "{err}"
+    );
+    assert!(!dir.join("trial/trial.rendered.md").exists());
+}

@@ -466,6 +466,33 @@ fn formula_with_tilde_is_refused() {
 }
 
 #[test]
+fn other_notations_and_missing_names_get_the_form() {
+    let e = error("model m: y ~ x");
+    assert!(
+        e.message.contains("`model NAME: RESPONSE on TERM + TERM`"),
+        "{}",
+        e.message
+    );
+    for line in ["model m: y on a + x + a * x", "model m: y on a + x + a:x"] {
+        let e = error(line);
+        assert!(
+            e.message.contains("written `A by B`"),
+            "{line}: {}",
+            e.message
+        );
+    }
+    // `for` is taken for the model's name, and then `for` is wanted at `g`.
+    let e = error("table differences for g m");
+    assert_eq!(e.span.start, 100 + "table differences for ".len());
+    assert!(
+        e.message
+            .contains("`for` before it was read as a name: is a name missing before `for`?"),
+        "{}",
+        e.message
+    );
+}
+
+#[test]
 fn dangling_plus() {
     let e = error("model m: y on x +");
     assert!(e.message.contains("model term"), "{}", e.message);

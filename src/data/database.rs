@@ -102,13 +102,16 @@ impl fmt::Display for DbError {
             DbError::Sql(m) => write!(f, "the database refused the query: {m}"),
             DbError::DuplicateColumn(c) => write!(
                 f,
-                "the result has two columns named `{c}`; give each column its own name with \
-                 AS in the query"
+                "the result has two columns named {c}; give each column its own name with \
+                 AS in the query",
+                c = crate::report::markdown::code(c)
             ),
             DbError::NotFinite { column, row, text } => write!(
                 f,
-                "column `{column}` holds `{text}` in row {row} of the result, which is not a \
-                 finite number; filter it out in the query or make it NULL"
+                "column {column} holds {text} in row {row} of the result, which is not a \
+                 finite number; filter it out in the query or make it NULL",
+                column = crate::report::markdown::code(column),
+                text = crate::report::markdown::code(text)
             ),
             DbError::NoRows => write!(
                 f,

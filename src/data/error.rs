@@ -149,8 +149,8 @@ impl fmt::Display for LoadError {
             LoadError::NonUtf8 { line, column, name } => match name {
                 Some(name) => write!(
                     f,
-                    "line {line}, column {column} (`{name}`) holds bytes that are not valid UTF-8; \
-                     save the file as UTF-8 and load it again"
+                    "line {line}, column {column} ({name}) holds bytes that are not valid UTF-8; \
+                     save the file as UTF-8 and load it again", name = crate::report::markdown::code(name)
                 ),
                 None => write!(
                     f,
@@ -170,9 +170,9 @@ impl fmt::Display for LoadError {
                 positions,
             } => write!(
                 f,
-                "the header (line {line}) uses the name `{name}` for columns {}; give every column \
+                "the header (line {line}) uses the name {name} for columns {}; give every column \
                  a different name",
-                list_positions(positions)
+                list_positions(positions), name = crate::report::markdown::code(name)
             ),
             LoadError::NoDataRows { line } => write!(
                 f,
@@ -196,14 +196,14 @@ impl fmt::Display for LoadError {
                 suggestion,
             } => write!(
                 f,
-                "line {line}, column {column} (`{name}`): `{text}` {} in a column of numbers; {}",
+                "line {line}, column {column} ({name}): {text} {} in a column of numbers; {}",
                 suggestion.reason(),
-                suggestion.advice(text)
+                suggestion.advice(text), name = crate::report::markdown::code(name), text = crate::report::markdown::code(text)
             ),
             LoadError::TooManyTexts { line, name } => write!(
                 f,
-                "line {line}: column `{name}` has more distinct texts than covey can hold; \
-                 split the file"
+                "line {line}: column {name} has more distinct texts than covey can hold; \
+                 split the file", name = crate::report::markdown::code(name)
             ),
             LoadError::Malformed { line } => write!(
                 f,
@@ -286,24 +286,31 @@ impl fmt::Display for FactorError {
                 };
                 write!(
                     f,
-                    "column `{column}` holds `{value}` ({place}), which is not among the declared \
-                     levels; add it to the levels or correct the data"
+                    "column {column} holds {value} ({place}), which is not among the declared \
+                     levels; add it to the levels or correct the data",
+                    column = crate::report::markdown::code(column),
+                    value = crate::report::markdown::code(value)
                 )
             }
             FactorError::DuplicateDeclaredLevel { column, level } => write!(
                 f,
-                "the levels declared for `{column}` name `{level}` twice; list each level once"
+                "the levels declared for {column} name {level} twice; list each level once",
+                column = crate::report::markdown::code(column),
+                level = crate::report::markdown::code(level)
             ),
             FactorError::TooFewLevels { column, found } => match found.first() {
                 Some(only) => write!(
                     f,
-                    "column `{column}` has only one level (`{only}`) among the rows used; a factor \
-                     needs at least two"
+                    "column {column} has only one level ({only}) among the rows used; a factor \
+                     needs at least two",
+                    column = crate::report::markdown::code(column),
+                    only = crate::report::markdown::code(only)
                 ),
                 None => write!(
                     f,
-                    "column `{column}` has no values (every row is missing); a factor needs at \
-                     least two levels"
+                    "column {column} has no values (every row is missing); a factor needs at \
+                     least two levels",
+                    column = crate::report::markdown::code(column)
                 ),
             },
             FactorError::TooManyLevels { column, row, line } => {
@@ -311,8 +318,9 @@ impl fmt::Display for FactorError {
                 match (row, line) {
                     (None, _) => write!(
                         f,
-                        "the levels declared for `{column}` are more than a factor may have \
-                         ({limit}); a grouping of so many levels is not a factor"
+                        "the levels declared for {column} are more than a factor may have \
+                         ({limit}); a grouping of so many levels is not a factor",
+                        column = crate::report::markdown::code(column)
                     ),
                     (Some(row), line) => {
                         let place = match line {
@@ -321,11 +329,12 @@ impl fmt::Display for FactorError {
                         };
                         write!(
                             f,
-                            "column `{column}` has more than {limit} distinct values (value \
+                            "column {column} has more than {limit} distinct values (value \
                              number {} first occurs at {place}), more than a factor may have as \
                              levels; a column of so many groups is an identifier or a \
                              measurement, not a factor",
-                            limit + 1
+                            limit + 1,
+                            column = crate::report::markdown::code(column)
                         )
                     }
                 }

@@ -30,7 +30,7 @@ pub use factor::{
 };
 pub use lines::RowLines;
 pub use load::{detect_separator, read_delimited, LoadOptions, MAX_LINE_BYTES};
-pub use number::{format_number, parse_number, NumberParse, Suggestion};
+pub use number::{beyond_limit, format_number, parse_number, NumberParse, Suggestion};
 pub use stream::{stream_delimited, Streamed};
 
 use std::sync::Arc;

@@ -125,6 +125,27 @@ pub fn parse_number(text: &str) -> NumberParse {
     parse_trimmed(trim_str(text))
 }
 
+/// A cell that reports a value beyond a limit rather than the value, such as `<0.5` (below a
+/// limit of detection) or `>2000` (above the top of a measuring range): the sign, `true` for
+/// below (`<`, `<=`, `≤`), and the limit. `None` for anything else.
+pub fn beyond_limit(text: &str) -> Option<(bool, f64)> {
+    let t = trim_str(text);
+    let (below, rest) = [
+        ("<=", true),
+        ("≤", true),
+        ("<", true),
+        (">=", false),
+        ("≥", false),
+        (">", false),
+    ]
+    .iter()
+    .find_map(|(p, below)| t.strip_prefix(p).map(|rest| (*below, rest)))?;
+    match parse_number(rest) {
+        NumberParse::Number(limit) => Some((below, limit)),
+        _ => None,
+    }
+}
+
 /// [`parse_number`] for text that is already trimmed.
 ///
 /// The plain-number grammar is exactly that of Rust's `f64::from_str` (documented in the

@@ -164,9 +164,10 @@ impl fmt::Display for SheetError {
             }
             SheetError::DuplicateHeader { sheet, name, cells } => write!(
                 f,
-                "sheet \"{sheet}\": the header uses the name `{name}` in cells {}; give every \
+                "sheet \"{sheet}\": the header uses the name {name} in cells {}; give every \
                  column a different name",
-                cells.join(", ")
+                cells.join(", "),
+                name = crate::report::markdown::code(name)
             ),
             SheetError::ErrorCell { sheet, cell, text } => write!(
                 f,

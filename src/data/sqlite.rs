@@ -109,13 +109,15 @@ impl fmt::Display for SqlError {
             SqlError::Sql(m) => write!(f, "SQLite refused the query: {m}"),
             SqlError::DuplicateColumn(c) => write!(
                 f,
-                "the result has two columns named `{c}`; give each column its own name with \
-                 AS in the query"
+                "the result has two columns named {c}; give each column its own name with \
+                 AS in the query",
+                c = crate::report::markdown::code(c)
             ),
             SqlError::Blob { column, row } => write!(
                 f,
-                "column `{column}` holds binary data (a BLOB) in row {row} of the result; \
-                 select numbers or text"
+                "column {column} holds binary data (a BLOB) in row {row} of the result; \
+                 select numbers or text",
+                column = crate::report::markdown::code(column)
             ),
             SqlError::NoRows => write!(
                 f,

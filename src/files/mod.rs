@@ -75,7 +75,12 @@ pub fn documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FileError> {
         let meta = fs::metadata(p).map_err(|e| FileError {
             path: p.clone(),
             message: match e.kind() {
-                std::io::ErrorKind::NotFound => "no such file or folder".into(),
+                std::io::ErrorKind::NotFound => match nearby_document(p) {
+                    Some(near) => {
+                        format!("no such file or folder; did you mean {}?", near.display())
+                    }
+                    None => "no such file or folder".into(),
+                },
                 _ => e.to_string(),
             },
         })?;
@@ -106,6 +111,36 @@ pub fn documents(paths: &[PathBuf]) -> Result<Vec<PathBuf>, FileError> {
         }
     }
     Ok(out)
+}
+
+/// A document the user may have meant by a path that does not exist: the path with `.md`
+/// added, the document `covey new` makes (`NAME/NAME.md` for `NAME.md` or `NAME`), or the
+/// document of the folder whose name is closest to the one given (a misspelling).
+fn nearby_document(p: &Path) -> Option<PathBuf> {
+    let name = p.file_name()?.to_string_lossy().into_owned();
+    let stem = name.strip_suffix(".md").unwrap_or(&name).to_string();
+    let parent = p.parent().unwrap_or(Path::new(""));
+    let candidates = [
+        parent.join(format!("{stem}.md")),
+        parent.join(&stem).join(format!("{stem}.md")),
+    ];
+    if let Some(c) = candidates.into_iter().find(|c| c.is_file()) {
+        return Some(c);
+    }
+    let folder = if parent.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        parent
+    };
+    let names: Vec<String> = fs::read_dir(folder)
+        .ok()?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|f| is_source(f))
+        .filter_map(|f| f.file_name().map(|n| n.to_string_lossy().into_owned()))
+        .collect();
+    let refs: Vec<&str> = names.iter().map(String::as_str).collect();
+    let want = format!("{stem}.md");
+    crate::diagnostic::closest(&want, &refs).map(|n| parent.join(n))
 }
 
 fn is_source(p: &Path) -> bool {

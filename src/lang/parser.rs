@@ -144,7 +144,7 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
         let word = rest.get(..word_len).unwrap_or(rest);
         match word.char_indices().nth(FOUND_CHARS) {
             Some((cut, _)) => format!("`{}…`", word.get(..cut).unwrap_or(word)),
-            None => format!("`{word}`"),
+            None => crate::report::markdown::code(word).to_string(),
         }
     };
     let message = match &e.variant {
@@ -184,7 +184,8 @@ fn syntax_error(e: &pest::error::Error<Rule>, text: &str, offset: usize) -> Synt
                 format!(
                     "expected {}, found {found}{}",
                     join_or(&wanted),
-                    suggestion(word, &words)
+                    form_hint(word, &text[..pos], &words)
+                        .unwrap_or_else(|| suggestion(word, &words))
                 )
             }
         }
@@ -227,9 +228,38 @@ fn suggestion(found: &str, words: &[&str]) -> String {
         .or(cut_short)
         .filter(|w| !w.eq_ignore_ascii_case(found));
     match near {
-        Some(w) => format!("; did you mean `{w}`?"),
+        Some(w) => format!("; did you mean {w}?", w = crate::report::markdown::code(w)),
         None => String::new(),
     }
+}
+
+/// A hint for a word written in another notation's habit (`y ~ x`, `a * b`, `a:b`), or for a
+/// keyword read as a name because the name before it is missing (`table differences for g m`:
+/// `for` taken for the model's name, and `for` expected again at `g`).
+fn form_hint(found: &str, before: &str, words: &[&str]) -> Option<String> {
+    if found.starts_with('~') && words.contains(&"on") {
+        return Some(
+            "; covey writes a model as `model NAME: RESPONSE on TERM + TERM`, with `on` between \
+             the response and the terms"
+                .to_string(),
+        );
+    }
+    if (found.starts_with('*') || found.starts_with(':')) && words.contains(&"+") {
+        return Some(
+            "; an interaction is written `A by B`, and its main effects are terms of their own \
+             (`A + B + A by B`)"
+                .to_string(),
+        );
+    }
+    let last = before.split_whitespace().last()?;
+    if words.contains(&last) {
+        return Some(format!(
+            "; {} before it was read as a name: is a name missing before {}?",
+            crate::report::markdown::code(last),
+            crate::report::markdown::code(last)
+        ));
+    }
+    None
 }
 
 fn join_or(items: &[&str]) -> String {
@@ -600,9 +630,13 @@ impl Builder<'_> {
                         _ => &mut name,
                     };
                     if slot.is_some() {
-                        return Err(
-                            self.error(&at, format!("`{word}` is given twice; give it once"))
-                        );
+                        return Err(self.error(
+                            &at,
+                            format!(
+                                "{word} is given twice; give it once",
+                                word = crate::report::markdown::code(&word)
+                            ),
+                        ));
                     }
                     *slot = Some(match (rule, value) {
                         (Rule::load_as, Ok(v)) => self.ident(v),
@@ -646,9 +680,13 @@ impl Builder<'_> {
                         &mut query
                     };
                     if slot.is_some() {
-                        return Err(
-                            self.error(&at, format!("`{word}` is given twice; give it once"))
-                        );
+                        return Err(self.error(
+                            &at,
+                            format!(
+                                "{word} is given twice; give it once",
+                                word = crate::report::markdown::code(&word)
+                            ),
+                        ));
                     }
                     *slot = Some(value);
                 }
@@ -1570,15 +1608,21 @@ impl Builder<'_> {
                 Literal::Text(t) => Err(self.error(
                     pair,
                     format!(
-                        "parameter `{}` holds the text \"{t}\", but a number is needed here",
-                        pair.as_str().trim_start_matches('@')
+                        "parameter {} holds the text \"{t}\", but a number is needed here",
+                        crate::report::markdown::code(pair.as_str().trim_start_matches('@'))
                     ),
                 )),
             };
         }
         match pair.as_str().parse::<f64>() {
             Ok(v) if v.is_finite() => Ok(v),
-            _ => Err(self.error(pair, format!("`{}` is not a finite number", pair.as_str()))),
+            _ => Err(self.error(
+                pair,
+                format!(
+                    "{} is not a finite number",
+                    crate::report::markdown::code(pair.as_str())
+                ),
+            )),
         }
     }
 
@@ -1672,7 +1716,10 @@ fn once(b: &Builder<'_>, kids: &[Pair<'_, Rule>], rules: &[Rule]) -> Result<(), 
             let word = second.as_str().split_whitespace().next().unwrap_or("");
             return Err(b.error(
                 second,
-                format!("the clause `{word}` is given twice; keep one"),
+                format!(
+                    "the clause {word} is given twice; keep one",
+                    word = crate::report::markdown::code(word)
+                ),
             ));
         }
     }

@@ -19,9 +19,9 @@ use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
     quote_name, text_for_number, unknown_data_set, unknown_value,
 };
-use crate::session::model_statements::{column_not_in_model, confidence};
+use crate::session::model_statements::{column_not_in_model, confidence, Role};
 use crate::session::plot_statements::{kind_word, listing};
-use crate::session::procedure_statements::balance_not_in_model;
+use crate::session::procedure_statements::{balance_not_in_model, unknown_pair};
 use crate::session::{closest, no_data_set, unknown_model};
 
 use super::data::{DataCache, Lookup, Summary};
@@ -615,7 +615,7 @@ impl<'c> Walk<'c> {
             self.error(
                 Diagnostic::new(
                     column.span,
-                    format!("data set `{}` already has a column `{}`", set.name, column.value),
+                    format!("data set {} already has a column {}", crate::report::markdown::code(&set.name), crate::report::markdown::code(&column.value)),
                 )
                 .label("already a column")
                 .help("give the new column a name of its own; a column read from the file is never overwritten"),
@@ -740,9 +740,15 @@ impl<'c> Walk<'c> {
             for (i, a) in decl.iter().enumerate() {
                 if decl[..i].iter().any(|b| b.value == a.value) {
                     self.error(
-                        Diagnostic::new(a.span, format!("level `{}` is listed twice", a.value))
-                            .label("repeated")
-                            .help("list each level once"),
+                        Diagnostic::new(
+                            a.span,
+                            format!(
+                                "level {} is listed twice",
+                                crate::report::markdown::code(&a.value)
+                            ),
+                        )
+                        .label("repeated")
+                        .help("list each level once"),
                     );
                     return;
                 }
@@ -947,8 +953,8 @@ impl<'c> Walk<'c> {
                             Diagnostic::new(
                                 part.span,
                                 format!(
-                                    "`{}` is a factor; it cannot be transformed",
-                                    part.column.value
+                                    "{} is a factor; it cannot be transformed",
+                                    crate::report::markdown::code(&part.column.value)
                                 ),
                             )
                             .label("transform of a factor"),
@@ -989,8 +995,8 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         decl.name.span,
                         format!(
-                            "This replaces the earlier model `{}`; tables from here on use the new one.",
-                            entry.name
+                            "This replaces the earlier model {}; tables from here on use the new one.",
+                            crate::report::markdown::code(&entry.name)
                         ),
                     )
                     .label("declared again"),
@@ -1001,24 +1007,24 @@ impl<'c> Walk<'c> {
         }
     }
 
-    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. For the
-    /// tables, which first check that a named column of the data is in the model, `column_at`
-    /// is where the renderer puts that error (the factor's own words).
+    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. Every
+    /// statement first checks that a named column of the data is in the model; `column_at` is
+    /// where the renderer puts that error (the factor's own words).
     fn model_factor(
         &mut self,
         m: &ModelState,
         factor: &str,
         span: Span,
         label: &str,
-        column_at: Option<Span>,
+        column_at: Span,
     ) -> bool {
         let Some(vars) = &m.vars else {
             return true;
         };
         let e = match vars.iter().find(|v| v.name == factor) {
             None => {
-                let column = column_at
-                    .and(m.data_set)
+                let column = m
+                    .data_set
                     .and_then(|i| self.state.data_sets.get(i))
                     .and_then(|d| d.shape.as_ref())
                     .and_then(|d| d.columns.iter().find(|c| c.name == factor));
@@ -1028,8 +1034,14 @@ impl<'c> Walk<'c> {
                         .filter(|v| v.factor)
                         .map(|v| v.name.clone())
                         .collect();
-                    let at = column_at.unwrap_or(span);
-                    let d = column_not_in_model(at, factor, &c.values, &m.name, &factors);
+                    let d = column_not_in_model(
+                        column_at,
+                        factor,
+                        &c.values,
+                        &m.name,
+                        Role::Factor,
+                        &factors,
+                    );
                     self.error(d);
                     return false;
                 }
@@ -1068,10 +1080,32 @@ impl<'c> Walk<'c> {
             Some(name) => match numeric.iter().find(|v| v.name == name) {
                 Some(v) => *v,
                 None => {
-                    let e = ModelError::CovariateNotInModel {
-                        name: name.to_string(),
+                    let covariates: Vec<String> = numeric.iter().map(|v| v.name.clone()).collect();
+                    let column = m
+                        .data_set
+                        .and_then(|i| self.state.data_sets.get(i))
+                        .and_then(|d| d.shape.as_ref())
+                        .and_then(|d| d.columns.iter().find(|c| c.name == name));
+                    let d = match column {
+                        // A column of the data that is no variable of the model, as the renderer
+                        // says it before it asks the engine.
+                        Some(c) if !vars.iter().any(|v| v.name == name) => column_not_in_model(
+                            span,
+                            name,
+                            &c.values,
+                            &m.name,
+                            Role::Covariate,
+                            &covariates,
+                        ),
+                        _ => {
+                            let e = ModelError::NoSuchCovariate {
+                                name: name.to_string(),
+                                covariates,
+                            };
+                            Diagnostic::new(span, e.to_string()).label(label)
+                        }
                     };
-                    self.error(Diagnostic::new(span, e.to_string()).label(label));
+                    self.error(d);
                     return;
                 }
             },
@@ -1141,7 +1175,7 @@ impl<'c> Walk<'c> {
                 };
                 let names: Vec<&str> = levels.iter().map(String::as_str).collect();
                 let help = match closest(&w.value, &names) {
-                    Some(c) => format!("did you mean `{c}`?"),
+                    Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
                     None => format!("its levels are {}", listing(&names)),
                 };
                 self.error(
@@ -1221,7 +1255,7 @@ impl<'c> Walk<'c> {
                     &factor.value,
                     factor.span,
                     "cannot compute this",
-                    Some(factor.span),
+                    factor.span,
                 ) {
                     if let TableRequest::Means { by: Some(by), .. } = request {
                         // `by` names a second factor of the model, checked as the first.
@@ -1230,7 +1264,7 @@ impl<'c> Walk<'c> {
                             &by.value,
                             by.span,
                             "cannot compute this",
-                            Some(by.span),
+                            by.span,
                         ) {
                             return;
                         }
@@ -1249,13 +1283,7 @@ impl<'c> Walk<'c> {
                 };
                 self.confidence(level.as_ref());
                 let span = covariate.as_ref().map_or(factor.span, |c| c.span);
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    span,
-                    "cannot compute this",
-                    Some(factor.span),
-                ) {
+                if self.model_factor(&m, &factor.value, span, "cannot compute this", factor.span) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
                 }
@@ -1275,7 +1303,7 @@ impl<'c> Walk<'c> {
                     &factor.value,
                     covariate.span,
                     "cannot compute this",
-                    Some(factor.span),
+                    factor.span,
                 ) {
                     self.slope_covariate(
                         &m,
@@ -1329,7 +1357,10 @@ impl<'c> Walk<'c> {
             }
             Some(c) if !numeric.contains(&c.value.as_str()) => {
                 let help = if numeric.is_empty() {
-                    format!("model `{}` has no covariate", model.value)
+                    format!(
+                        "model {} has no covariate",
+                        crate::report::markdown::code(&model.value)
+                    )
                 } else {
                     format!("its covariates are {}", listing(&numeric))
                 };
@@ -1337,8 +1368,9 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         c.span,
                         format!(
-                            "`{}` is not a covariate of model `{}`",
-                            c.value, model.value
+                            "{} is not a covariate of model {}",
+                            crate::report::markdown::code(&c.value),
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("not a covariate of this model")
@@ -1351,8 +1383,8 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         model.span,
                         format!(
-                            "model `{}` has no covariate to draw lines along",
-                            model.value
+                            "model {} has no covariate to draw lines along",
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("no covariate")
@@ -1364,7 +1396,10 @@ impl<'c> Walk<'c> {
                 self.error(
                     Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several covariates", model.value),
+                        format!(
+                            "model {} has several covariates",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which covariate?")
                     .help(format!("name one with `of`: {}", listing(&numeric))),
@@ -1377,7 +1412,10 @@ impl<'c> Walk<'c> {
         match factor {
             Some(named) if !factors.contains(&named.value.as_str()) => {
                 let help = if factors.is_empty() {
-                    format!("model `{}` has no factor", model.value)
+                    format!(
+                        "model {} has no factor",
+                        crate::report::markdown::code(&model.value)
+                    )
                 } else {
                     format!("its factors are {}", listing(&factors))
                 };
@@ -1385,8 +1423,9 @@ impl<'c> Walk<'c> {
                     Diagnostic::new(
                         named.span,
                         format!(
-                            "`{}` is not a factor of model `{}`",
-                            named.value, model.value
+                            "{} is not a factor of model {}",
+                            crate::report::markdown::code(&named.value),
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("not a factor of this model")
@@ -1395,18 +1434,27 @@ impl<'c> Walk<'c> {
             }
             None if needs_factor && factors.is_empty() => {
                 self.error(
-                    Diagnostic::new(model.span, format!("model `{}` has no factor", model.value))
-                        .label("no factor")
-                        .help(format!(
-                            "`plot {word}` shows the levels of a factor of the model"
-                        )),
+                    Diagnostic::new(
+                        model.span,
+                        format!(
+                            "model {} has no factor",
+                            crate::report::markdown::code(&model.value)
+                        ),
+                    )
+                    .label("no factor")
+                    .help(format!(
+                        "`plot {word}` shows the levels of a factor of the model"
+                    )),
                 );
             }
             None if (needs_factor || kind == PlotKind::Lines) && factors.len() > 1 => {
                 self.error(
                     Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several factors", model.value),
+                        format!(
+                            "model {} has several factors",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which factor?")
                     .help(format!("name one with `for`: {}", listing(&factors))),
@@ -1443,9 +1491,16 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(&m, &factor.value, factor.span, "cannot test this", None) {
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot test this",
+                    factor.span,
+                ) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
-                    self.slope_covariate(&m, c, factor.span, "cannot test this");
+                    let at = covariate.as_ref().map_or(factor.span, |c| c.span);
+                    self.slope_covariate(&m, c, at, "cannot test this");
                 }
             }
             Gate::Normality { model, alpha } => {
@@ -1529,7 +1584,13 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if !self.model_factor(&m, &factor.value, factor.span, "cannot compute this", None) {
+                if !self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot compute this",
+                    factor.span,
+                ) {
                     return;
                 }
                 let Some(levels) = m
@@ -1542,16 +1603,7 @@ impl<'c> Walk<'c> {
                 };
                 let known = |s: &Spanned<String>| levels.contains(&s.value);
                 if !known(first) || !known(second) || first.value == second.value {
-                    self.error(
-                        Diagnostic::new(
-                            first.span,
-                            format!(
-                                "`{}` and `{}` are not two levels of `{}` in model `{}`",
-                                first.value, second.value, factor.value, m.name
-                            ),
-                        )
-                        .label("unknown pair"),
-                    );
+                    self.error(unknown_pair(first, second, &factor.value, &m.name, &levels));
                 }
             }
             // A kind added to the language later: nothing to check here yet.

@@ -67,7 +67,7 @@ pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
         };
         return Some(Shown {
             span: a.span_to_given(span),
-            text: format!("**parameter `{name}`** = `{text}` (the document's default; `--set {name}=VALUE` changes it for a run)"),
+            text: format!("**parameter `{name}`** = {text} (the document's default; `--set {name}=VALUE` changes it for a run)", text = crate::report::markdown::code(&text)),
         });
     }
     let u = a
@@ -98,11 +98,19 @@ pub fn hover(a: &Analysis, data: &mut DataCache, at: usize) -> Option<Shown> {
                 StatementKind::Plan(decl) if decl.name.value == u.name => Some(s.text.clone()),
                 _ => None,
             })?;
-            format!("**plan `{}`**: `{text}`", u.name)
+            format!(
+                "**plan {}**: {text}",
+                crate::report::markdown::code(&u.name),
+                text = crate::report::markdown::code(&text)
+            )
         }
         Role::ParamDef => {
             let v = a.params.get(&u.name)?;
-            format!("**parameter `{}`** = `{}`", u.name, v.as_text())
+            format!(
+                "**parameter {}** = {}",
+                crate::report::markdown::code(&u.name),
+                crate::report::markdown::code(v.as_text())
+            )
         }
     };
     Some(Shown {
@@ -147,9 +155,17 @@ fn model_text(a: &Analysis, data: &mut DataCache, state: &State, name: &str) -> 
         .split_once(':')
         .map_or(m.statement.text.as_str(), |(_, f)| f.trim());
     let ds = m.data_set.and_then(|i| state.data_sets.get(i));
-    let mut text = format!("**model `{}`**: `{formula}`", m.name);
+    let mut text = format!(
+        "**model {}**: {formula}",
+        crate::report::markdown::code(&m.name),
+        formula = crate::report::markdown::code(formula)
+    );
     if let Some(ds) = ds {
-        text.push_str(&format!("\n\ndata set `{}` (\"{}\")", ds.name, ds.path));
+        text.push_str(&format!(
+            "\n\ndata set {} (\"{}\")",
+            crate::report::markdown::code(&ds.name),
+            ds.path
+        ));
     }
     text.push_str(&format!("\n\n{}", rows_text(a, data, state, name)));
     Some(text)
@@ -215,12 +231,18 @@ fn column_text(state: &State, data_set: Option<usize>, name: &str) -> Option<Str
     };
     if ds.shape.is_none() {
         return Some(format!(
-            "**column `{name}`** of data set `{}` (its file \"{}\" is not read yet, or cannot be read)",
-            ds.name, ds.path
+            "**column {name}** of data set {} (its file \"{}\" is not read yet, or cannot be read)",
+            crate::report::markdown::code(&ds.name),
+            ds.path,
+            name = crate::report::markdown::code(name)
         ));
     }
     let kind = ds.kind_of(name)?;
-    let mut text = format!("**column `{name}`** of data set `{}`: {kind}", ds.name);
+    let mut text = format!(
+        "**column {name}** of data set {}: {kind}",
+        crate::report::markdown::code(&ds.name),
+        name = crate::report::markdown::code(name)
+    );
     if let Some(s) = ds.summary.as_ref() {
         if let Some(c) = s.column(name) {
             text.push_str(&format!(", {} missing of {} rows", c.missing, s.rows));
@@ -234,7 +256,7 @@ fn column_text(state: &State, data_set: Option<usize>, name: &str) -> Option<Str
         let shown: Vec<String> = levels
             .iter()
             .take(LISTED_LEVELS)
-            .map(|l| format!("`{l}`"))
+            .map(|l| crate::report::markdown::code(l).to_string())
             .collect();
         let more = levels.len().saturating_sub(LISTED_LEVELS);
         let what = if numeric_values {
@@ -258,10 +280,18 @@ fn column_text(state: &State, data_set: Option<usize>, name: &str) -> Option<Str
 
 fn data_set_text(state: &State, name: &str) -> Option<String> {
     let ds = state.data_sets.iter().find(|d| d.name == name)?;
-    let mut text = format!("**data set `{}`** from \"{}\"", ds.name, ds.path);
+    let mut text = format!(
+        "**data set {}** from \"{}\"",
+        crate::report::markdown::code(&ds.name),
+        ds.path
+    );
     match &ds.summary {
         Some(s) => {
-            let cols: Vec<String> = s.columns.iter().map(|c| format!("`{}`", c.name)).collect();
+            let cols: Vec<String> = s
+                .columns
+                .iter()
+                .map(|c| crate::report::markdown::code(&c.name).to_string())
+                .collect();
             text.push_str(&format!(
                 ": {} rows, {} columns ({})",
                 s.rows,
@@ -285,12 +315,16 @@ fn level_text(state: &State, u: &NameUse) -> Option<String> {
         .map(|(_, line)| *line);
     Some(match line {
         Some(line) => format!(
-            "**`{}`**: a value of `{}`, first on line {line} of \"{}\"",
-            u.name, u.context, ds.path
+            "**{}**: a value of {}, first on line {line} of \"{}\"",
+            crate::report::markdown::code(&u.name),
+            crate::report::markdown::code(&u.context),
+            ds.path
         ),
         None => format!(
-            "**`{}`**: not a value of `{}` in \"{}\"",
-            u.name, u.context, ds.path
+            "**{}**: not a value of {} in \"{}\"",
+            crate::report::markdown::code(&u.name),
+            crate::report::markdown::code(&u.context),
+            ds.path
         ),
     })
 }
@@ -309,8 +343,9 @@ fn reference_value(a: &Analysis, data: &mut DataCache, reference: &str) -> Strin
     if let Some(v) = find(&a.text) {
         let (notes, more) = data_notes(a, data, &a.text, Vec::new());
         return format!(
-            "`{reference}` = {v}\n\n(value in this document's last rendering in place{}){more}",
-            joined(&notes)
+            "{reference} = {v}\n\n(value in this document's last rendering in place{}){more}",
+            joined(&notes),
+            reference = crate::report::markdown::code(reference)
         );
     }
     let rendered = a.path.as_ref().and_then(|p| {
@@ -340,13 +375,20 @@ fn reference_value(a: &Analysis, data: &mut DataCache, reference: &str) -> Strin
                 }
                 let (notes, more) = data_notes(a, data, &text, notes);
                 format!(
-                    "`{reference}` = {v}\n\n(value in the last rendering, \"{file}\"{}){more}",
-                    joined(&notes)
+                    "{reference} = {v}\n\n(value in the last rendering, \"{file}\"{}){more}",
+                    joined(&notes),
+                    reference = crate::report::markdown::code(reference)
                 )
             }
-            None => format!("`{reference}`: not rendered yet (\"{file}\" does not show it)"),
+            None => format!(
+                "{reference}: not rendered yet (\"{file}\" does not show it)",
+                reference = crate::report::markdown::code(reference)
+            ),
         },
-        None => format!("`{reference}`: not rendered yet"),
+        None => format!(
+            "{reference}: not rendered yet",
+            reference = crate::report::markdown::code(reference)
+        ),
     }
 }
 
@@ -399,7 +441,10 @@ fn data_notes(
         }
         match data.digest(folder, &path.value, HOVER_READ_LIMIT) {
             FileDigest::Known(hex) => {
-                if !rows.iter().any(|r| r.contains(&format!("`{hex}`"))) {
+                if !rows
+                    .iter()
+                    .any(|r| r.contains(&crate::report::markdown::code(&hex).to_string()))
+                {
                     changed = true;
                 }
             }

@@ -119,7 +119,7 @@ impl Fit {
                             .iter()
                             .filter_map(|&c| cols.get(c).map(|x| x.name.clone()))
                             .collect(),
-                        cause: alias_cause(&self.spec, &self.lay, cols, &aliased),
+                        cause: Box::new(alias_cause(&self.spec, &self.lay, cols, &aliased)),
                     }
                 };
                 if !self.g.aliased.is_empty() {

@@ -23,6 +23,24 @@ pub enum AliasCause {
         /// The interaction term whose coefficients need them.
         term: String,
     },
+    /// A covariate takes a single value within some levels of a factor (on the fitted rows):
+    /// within every level, it carries nothing the factor does not; within some, its slope
+    /// there cannot be estimated.
+    ConstantWithin {
+        /// The covariate.
+        covariate: String,
+        /// The factor.
+        factor: String,
+        /// The levels within which it is constant, each with that value (at most
+        /// `MAX_CELLS_NAMED`).
+        levels: Vec<(String, f64)>,
+        /// How many more such levels there are than those named.
+        more: usize,
+        /// Whether it is constant within every level of the factor that has rows.
+        every: bool,
+        /// The terms of the columns left out.
+        terms: Vec<String>,
+    },
     /// The columns are combinations of the model's other columns whatever the data (for
     /// instance the same term written twice in another form) or on these rows (a covariate
     /// constant within the levels of a factor, a multiple of another covariate).
@@ -46,13 +64,33 @@ impl AliasCause {
     pub fn remedy(&self) -> String {
         match self {
             AliasCause::EmptyCells { term, .. } => {
-                format!("use Type I or II, or remove the interaction `{term}`")
+                format!("use Type I or II, or remove the interaction {term}", term = crate::report::markdown::code(term))
             }
+            AliasCause::ConstantWithin {
+                covariate,
+                factor,
+                every: true,
+                ..
+            } => format!(
+                "leave {} out of the model (within the levels of {} it adds nothing), or measure it \
+                 so that it varies within the groups",
+                crate::report::markdown::code(covariate),
+                crate::report::markdown::code(factor)
+            ),
+            AliasCause::ConstantWithin { terms, .. } => format!(
+                "remove {} so that one slope serves every level, or leave out the rows of those \
+                 levels",
+                terms
+                    .iter()
+                    .map(|t| crate::report::markdown::code(t))
+                    .collect::<Vec<_>>()
+                    .join(" and ")
+            ),
             AliasCause::Combination { terms } => format!(
                 "remove {} (or the term it repeats), or use Type I or II",
                 terms
                     .iter()
-                    .map(|t| format!("`{t}`"))
+                    .map(|t| crate::report::markdown::code(t))
                     .collect::<Vec<_>>()
                     .join(" or ")
             ),
@@ -68,6 +106,42 @@ impl fmt::Display for AliasCause {
                 "these combinations of levels have no rows: {}",
                 AliasCause::cells_text(cells, *more)
             ),
+            AliasCause::ConstantWithin {
+                covariate,
+                factor,
+                levels,
+                more,
+                every,
+                ..
+            } => {
+                let code = crate::report::markdown::code;
+                let named: Vec<String> = levels
+                    .iter()
+                    .map(|(l, x)| format!("{} at {}", code(l), crate::data::format_number(*x)))
+                    .collect();
+                let mut list = named.join(", ");
+                if *more > 0 {
+                    list.push_str(&format!(" (and {more} more)"));
+                }
+                if *every {
+                    write!(
+                        f,
+                        "the covariate {} takes a single value within each level of {} ({list}), so its column is a combination of the columns of {}",
+                        code(covariate),
+                        code(factor),
+                        code(factor)
+                    )
+                } else {
+                    write!(
+                        f,
+                        "the covariate {} takes a single value within {} of {}: {list}, so no slope of {} can be estimated there",
+                        code(covariate),
+                        if levels.len() + more == 1 { "one level" } else { "some levels" },
+                        code(factor),
+                        code(covariate)
+                    )
+                }
+            }
             AliasCause::Combination { .. } => write!(
                 f,
                 "their columns are combinations of the model's other columns (for instance a covariate that is constant within the levels of a factor, or a multiple of another covariate)"
@@ -185,5 +259,94 @@ pub(crate) fn alias_cause(
             }
         }
     }
-    AliasCause::Combination { terms }
+    constant_within(spec, lay, cols, aliased, &terms).unwrap_or(AliasCause::Combination { terms })
+}
+
+/// A covariate constant within levels of a factor that explains the aliased columns: a
+/// column that is covariate times factor levels, with the covariate constant within one of
+/// those levels; or the covariate alone, constant within every level of a factor.
+fn constant_within(
+    spec: &ModelSpec,
+    lay: &Layout,
+    cols: &[Column],
+    aliased: &[usize],
+    terms: &[String],
+) -> Option<AliasCause> {
+    for &c in aliased {
+        let col = cols.get(c)?;
+        let covariates: Vec<usize> = col
+            .parts
+            .iter()
+            .filter_map(|p| match p {
+                ColPart::Numeric { var, .. } => Some(*var),
+                _ => None,
+            })
+            .collect();
+        let [x] = covariates.as_slice() else { continue };
+        let own = factors_of(col);
+        // In an interaction, the factors of the column; alone, every factor of the model.
+        let candidates: Vec<usize> = if own.is_empty() {
+            lay.factors.iter().map(|f| f.var).collect()
+        } else {
+            own
+        };
+        for fv in candidates {
+            let (
+                Some(Var::Numeric {
+                    name: xname,
+                    values,
+                }),
+                Some(Var::Factor {
+                    name: fname,
+                    codes,
+                    levels,
+                }),
+            ) = (spec.vars.get(*x), spec.vars.get(fv))
+            else {
+                continue;
+            };
+            let present = lay
+                .factor(fv)
+                .map(|f| f.present.clone())
+                .unwrap_or_default();
+            // Per level code: the first value seen and whether every other equals it.
+            let mut first: Vec<Option<(f64, bool)>> = vec![None; levels.len()];
+            for i in lay.used.iter() {
+                let (Some(code), Some(&v)) = (codes.get(i).and_then(|k| k.get()), values.get(i))
+                else {
+                    continue;
+                };
+                if let Some(slot) = first.get_mut(code as usize) {
+                    match slot {
+                        None => *slot = Some((v, true)),
+                        Some((v0, same)) => *same = *same && *v0 == v,
+                    }
+                }
+            }
+            let constant: Vec<(String, f64)> = present
+                .iter()
+                .filter_map(|&k| match first.get(k as usize).copied().flatten() {
+                    Some((v, true)) => Some((levels.get(k as usize)?.clone(), v)),
+                    _ => None,
+                })
+                .collect();
+            let every = !present.is_empty() && constant.len() == present.len();
+            let fits = if col.parts.len() == 1 {
+                every
+            } else {
+                !constant.is_empty()
+            };
+            if fits {
+                return Some(AliasCause::ConstantWithin {
+                    covariate: xname.clone(),
+                    factor: fname.clone(),
+                    more: constant.len().saturating_sub(MAX_CELLS_NAMED),
+                    levels: constant.into_iter().take(MAX_CELLS_NAMED).collect(),
+                    every,
+                    terms: terms.to_vec(),
+                });
+            }
+        }
+    }
+    None
 }

@@ -352,7 +352,17 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
         Some(v) => UsedRows::Listed(v),
     };
     if used.is_empty() {
-        return Err(ModelError::NoRows);
+        return Err(ModelError::NoRows {
+            rows: n,
+            lost: lost_by_column(spec, &used_vars, y),
+            weights: match &spec.weights {
+                Some(Var::Numeric { name, values }) => Some((
+                    name.clone(),
+                    values.iter().filter(|w| w.is_nan() || **w == 0.0).count(),
+                )),
+                _ => None,
+            },
+        });
     }
     // Rows of weight 0 are counted apart from those with a missing value.
     let zero_weight = match &spec.weights {
@@ -544,6 +554,27 @@ pub(crate) fn layout(spec: &ModelSpec) -> Result<Layout, ModelError> {
 /// Whether row `i`, with response `yi`, has a value in the response and in every variable of
 /// `used_vars` (a row without one is left out); an infinite value, or a factor code without a
 /// level, is an error.
+/// For the error of a model with no complete row: each column the model uses (response and
+/// its variables `used`) and the number of rows on which it is missing.
+fn lost_by_column(spec: &ModelSpec, used: &[usize], y: &[f64]) -> Vec<(String, usize)> {
+    let missing = |v: &Var| -> usize {
+        match v {
+            Var::Numeric { values, .. } => values.iter().filter(|x| x.is_nan()).count(),
+            Var::Factor { codes, .. } => codes.iter().filter(|c| c.get().is_none()).count(),
+        }
+    };
+    let mut out = vec![(
+        spec.response.name().to_string(),
+        y.iter().filter(|x| x.is_nan()).count(),
+    )];
+    out.extend(
+        used.iter()
+            .filter_map(|&v| spec.vars.get(v))
+            .map(|v| (v.name().to_string(), missing(v))),
+    );
+    out
+}
+
 fn row_complete(
     spec: &ModelSpec,
     used_vars: &[usize],

@@ -307,7 +307,7 @@ impl fmt::Display for Note {
         match self {
             Note::AtCovariateZero { term_name, covariate, .. } => write!(
                 f,
-                "the Type III test of `{term_name}` compares groups where {covariate} = 0, because the model lets the effect depend on {covariate}; centre {covariate} or give adjusted means at chosen values to compare elsewhere"
+                "the Type III test of {term_name} compares groups where {covariate} = 0, because the model lets the effect depend on {covariate}; centre {covariate} or give adjusted means at chosen values to compare elsewhere", term_name = crate::report::markdown::code(term_name)
             ),
             Note::AtOrigin {
                 term_name,
@@ -317,7 +317,9 @@ impl fmt::Display for Note {
                 ..
             } => write!(
                 f,
-                "the Type {kind} test of `{term_name}` is of its effect where {covariate} = 0, because the model also has `{because}`; it changes when {covariate} is shifted, so centre {covariate} to test it at the mean of {covariate}"
+                "the Type {kind} test of {term_name} is of its effect where {covariate} = 0, because the model also has {because}; it changes when {covariate} is shifted, so centre {covariate} to test it at the mean of {covariate}",
+                term_name = crate::report::markdown::code(term_name),
+                because = crate::report::markdown::code(because),
             ),
         }
     }
@@ -611,11 +613,11 @@ impl fmt::Display for ModelWarning {
         match self {
             ModelWarning::MarginalityBroken { term_name, missing, .. } => write!(
                 f,
-                "the term `{term_name}` is in the model without `{missing}`, which it contains; its test and coefficients then mix in that effect; add `{missing}` unless this is intended"
+                "the term {term_name} is in the model without {missing}, which it contains; its test and coefficients then mix in that effect; add {missing} unless this is intended", missing = crate::report::markdown::code(missing), term_name = crate::report::markdown::code(term_name)
             ),
             ModelWarning::FewDistinctValues { variable, distinct, .. } => write!(
                 f,
-                "the covariate `{variable}` takes only {distinct} distinct whole-number values; if these are categories, declare it a factor"
+                "the covariate {variable} takes only {distinct} distinct whole-number values; if these are categories, declare it a factor", variable = crate::report::markdown::code(variable)
             ),
             ModelWarning::RowsDropped { count } => {
                 write!(f, "{count} row(s) with a missing value in a variable of the model were left out")
@@ -631,7 +633,7 @@ impl fmt::Display for ModelWarning {
             ),
             ModelWarning::EmptyLevel { factor, level, .. } => write!(
                 f,
-                "level `{level}` of factor `{factor}` has no rows in the fitted data and is left out of this model"
+                "level {level} of factor {factor} has no rows in the fitted data and is left out of this model", factor = crate::report::markdown::code(factor), level = crate::report::markdown::code(level)
             ),
         }
     }
@@ -745,7 +747,15 @@ pub enum ModelError {
         megabytes: usize,
     },
     /// No row is left after dropping missing values.
-    NoRows,
+    NoRows {
+        /// Rows of the data.
+        rows: usize,
+        /// Each column the model uses (response first, then its variables in order) with the
+        /// number of rows on which it is missing.
+        lost: Vec<(String, usize)>,
+        /// The weights column, if any, with the number of rows on which it is missing or 0.
+        weights: Option<(String, usize)>,
+    },
     /// The response is constant over the fitted rows.
     ResponseZeroVariance,
     /// The response's values spread over a range whose squares doubles cannot hold (see
@@ -813,7 +823,7 @@ pub enum ModelError {
         /// The aliased coefficients.
         aliased: Vec<String>,
         /// Why they are aliased.
-        cause: AliasCause,
+        cause: Box<AliasCause>,
     },
     /// No variable of that name.
     UnknownVariable {
@@ -836,6 +846,13 @@ pub enum ModelError {
     CovariateNotInModel {
         /// The name.
         name: String,
+    },
+    /// The covariate of a slope is not a numeric covariate of the model.
+    NoSuchCovariate {
+        /// The name.
+        name: String,
+        /// The model's numeric covariates, in variable order, for the hint.
+        covariates: Vec<String>,
     },
     /// The model has no numeric covariate.
     NoCovariate,
@@ -896,7 +913,7 @@ impl fmt::Display for ModelError {
         use ModelError as E;
         match self {
             E::ResponseNotNumeric => write!(f, "the response is a factor; a linear model needs a numeric response"),
-            E::LengthMismatch { variable, expected, found } => write!(f, "variable `{variable}` has {found} rows but the response has {expected}; all columns must come from the same rows"),
+            E::LengthMismatch { variable, expected, found } => write!(f, "variable {variable} has {found} rows but the response has {expected}; all columns must come from the same rows", variable = crate::report::markdown::code(variable)),
             E::RowNumbersMismatch { expected, found } => write!(f, "internal: {found} row numbers given for {expected} rows"),
             E::VarIndexOutOfRange { index, .. } => write!(f, "this term refers to variable number {index}, which does not exist"),
             E::EmptyTerm { .. } => write!(f, "this term has no variables"),
@@ -904,14 +921,14 @@ impl fmt::Display for ModelError {
             E::TransformOnFactor { .. } => write!(f, "a power, log or sqrt cannot be applied to a factor"),
             E::ZeroPower { .. } => write!(f, "x^0 is the constant 1, which the intercept already is; remove the term"),
             E::DuplicateTerm { .. } => write!(f, "this term appears twice in the model; remove one"),
-            E::FactorCodeOutOfRange { variable, row } => write!(f, "factor `{variable}` has an unknown level at line {row}"),
-            E::NonFiniteValue { variable, row } => write!(f, "`{variable}` is infinite at line {row}; correct the value or mark it missing"),
+            E::FactorCodeOutOfRange { variable, row } => write!(f, "factor {variable} has an unknown level at line {row}", variable = crate::report::markdown::code(variable)),
+            E::NonFiniteValue { variable, row } => write!(f, "{variable} is infinite at line {row}; correct the value or mark it missing", variable = crate::report::markdown::code(variable)),
             E::LogOfNonPositive { variable, row: Some(r), value, .. } => write!(f, "log({variable}) is undefined at line {r}, where {variable} = {value}; log needs positive values (shift the variable or drop the row)"),
             E::LogOfNonPositive { variable, row: None, value, .. } => write!(f, "log({variable}) is undefined at {variable} = {value}; give a positive value"),
             E::SqrtOfNegative { variable, row: Some(r), value, .. } => write!(f, "sqrt({variable}) is undefined at line {r}, where {variable} = {value}; sqrt needs values >= 0"),
             E::SqrtOfNegative { variable, row: None, value, .. } => write!(f, "sqrt({variable}) is undefined at {variable} = {value}; give a value >= 0"),
             E::EmptyModel => write!(f, "the model has no intercept and no terms; add a term or the intercept"),
-            E::TooManyPairs { factor, levels } => write!(f, "`{factor}` has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M differences`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2),
+            E::TooManyPairs { factor, levels } => write!(f, "{factor} has {levels} levels, which make {} pairs; a table of every pair is made for at most {MAX_PAIRED_LEVELS} levels ({} pairs); compare chosen levels instead (`between A and B` in `table regions` and in `report M differences`, or `table contrast`)", levels * levels.saturating_sub(1) / 2, MAX_PAIRED_LEVELS * (MAX_PAIRED_LEVELS - 1) / 2, factor = crate::report::markdown::code(factor)),
             E::TooLarge { coefficients, megabytes } => {
                 // Past 1 TiB (where the estimates saturate) a number of MiB says nothing more.
                 let limit = fit::MODEL_MEMORY_BUDGET >> 20;
@@ -926,37 +943,57 @@ impl fmt::Display for ModelError {
                 }
                 write!(f, "; use fewer terms, or factors with fewer levels (merge rare levels, or treat a many-level grouping as a covariate if it is one)")
             }
-            E::NoRows => write!(f, "no row is left after leaving out rows with missing values"),
-            E::BadWeight { variable, row, value } => write!(f, "the weight `{variable}` is {value} at line {row}; weights must be 0 or more (0 leaves a row out)"),
+            E::NoRows { rows, lost, weights } => {
+                let code = crate::report::markdown::code;
+                let mut named: Vec<String> = lost
+                    .iter()
+                    .filter(|(_, k)| *k > 0)
+                    .map(|(name, k)| format!("{} is missing on {k}", code(name)))
+                    .collect();
+                if let Some((name, k)) = weights.as_ref().filter(|(_, k)| *k > 0) {
+                    named.push(format!("the weight {} is missing or 0 on {k}", code(name)));
+                }
+                write!(f, "no row has every value the model needs, so none is left to fit (of the {rows} rows, {})", named.join(", "))?;
+                write!(f, "; a row is left out when any of its columns in the model is missing: fill in the values, or leave the emptiest columns out of the model")
+            }
+            E::BadWeight { variable, row, value } => write!(f, "the weight {variable} is {value} at line {row}; weights must be 0 or more (0 leaves a row out)", variable = crate::report::markdown::code(variable)),
             E::RobustLeverageOne { row } => write!(f, "robust (HC3) standard errors are undefined because the row at line {row} has leverage 1 (it alone determines a coefficient, such as the only row of a level); remove that row or leave out `robust`"),
-            E::UnknownControl { factor, level } => write!(f, "`{level}` is not a level of `{factor}` with rows in the fitted data"),
-            E::WithinSameFactor { factor } => write!(f, "`within` names the factor compared (`{factor}`); name another factor of the model"),
+            E::UnknownControl { factor, level } => write!(f, "{level} is not a level of {factor} with rows in the fitted data", factor = crate::report::markdown::code(factor), level = crate::report::markdown::code(level)),
+            E::WithinSameFactor { factor } => write!(f, "`within` names the factor compared ({factor}); name another factor of the model", factor = crate::report::markdown::code(factor)),
             E::ResponseZeroVariance => write!(f, "the response has the same value in every fitted row, so there is nothing to explain"),
             E::ResponseOutOfRange { width } => write!(f, "the response's values spread over {width:.1e} (largest minus smallest), too {} for their sums of squares to be held as numbers (covey needs a spread between {:e} and {:e}); rescale the response, for example {} it by 1e{}", if *width > 1.0 { "wide" } else { "narrow" }, fit::RESPONSE_SPREAD_MIN, fit::RESPONSE_SPREAD_MAX, if *width > 1.0 { "divide" } else { "multiply" }, width.log10().round().abs()),
-            E::CovariateZeroVariance { variable, .. } => write!(f, "covariate `{variable}` has the same value in every fitted row, so its effect cannot be estimated; remove it from the model"),
-            E::TooFewLevels { factor, levels, .. } => write!(f, "factor `{factor}` has {levels} level(s) with rows in the fitted data; at least two are needed"),
+            E::CovariateZeroVariance { variable, .. } => write!(f, "covariate {variable} has the same value in every fitted row, so its effect cannot be estimated; remove it from the model", variable = crate::report::markdown::code(variable)),
+            E::TooFewLevels { factor, levels, .. } => write!(f, "factor {factor} has {levels} level(s) with rows in the fitted data; at least two are needed", factor = crate::report::markdown::code(factor)),
             E::FewerRowsThanCoefficients { rows, coefficients } => write!(f, "the model has {coefficients} coefficients but only {rows} rows; use fewer terms or more data"),
             E::ZeroResidualDf => write!(f, "no residual degrees of freedom are left (as many independent coefficients as rows), so no error variance can be estimated; use fewer terms or more data"),
             E::PerfectFit => write!(f, "the data are fitted exactly (residual sum of squares 0 up to rounding), so there is no error variance for this test; check that the response is not computed from the predictors"),
             E::TypeIIIWithAliased { aliased, cause } => write!(f, "Type III sums of squares test each term against a full-rank design, but these coefficients are not estimable: {}, because {cause}; {}", aliased.join(", "), cause.remedy()),
-            E::UnknownVariable { name } => write!(f, "there is no variable `{name}`"),
+            E::UnknownVariable { name } => write!(f, "there is no variable {name}", name = crate::report::markdown::code(name)),
             E::NotAFactor { name, factors } => match factors.as_slice() {
-                [] => write!(f, "`{name}` is numeric, not a factor, and the model has no factor"),
+                [] => write!(f, "{name} is numeric, not a factor, and the model has no factor", name = crate::report::markdown::code(name)),
                 some => write!(
                     f,
-                    "`{name}` is numeric, not a factor; the model's factors: {}",
-                    some.iter().map(|x| format!("`{x}`")).collect::<Vec<_>>().join(", ")
+                    "{name} is numeric, not a factor; the model's factors: {}",
+                    some.iter().map(|x| crate::report::markdown::code(x).to_string()).collect::<Vec<_>>().join(", "), name = crate::report::markdown::code(name)
                 ),
             },
-            E::FactorNotInModel { factor } => write!(f, "factor `{factor}` is not in this model; add it as a term first"),
-            E::CovariateNotInModel { name } => write!(f, "`{name}` is not a numeric covariate of this model, so it cannot be given a value"),
+            E::FactorNotInModel { factor } => write!(f, "factor {factor} is not in this model; add it as a term first", factor = crate::report::markdown::code(factor)),
+            E::CovariateNotInModel { name } => write!(f, "{name} is not a numeric covariate of this model, so it cannot be given a value", name = crate::report::markdown::code(name)),
+            E::NoSuchCovariate { name, covariates } => match covariates.as_slice() {
+                [] => write!(f, "{name} is not a covariate of this model, which has no numeric covariate", name = crate::report::markdown::code(name)),
+                some => write!(
+                    f,
+                    "{name} is not a numeric covariate of this model; its covariates: {}",
+                    some.iter().map(|x| crate::report::markdown::code(x).to_string()).collect::<Vec<_>>().join(", "), name = crate::report::markdown::code(name)
+                ),
+            },
             E::NoCovariate => write!(f, "the model has no numeric covariate"),
             E::AmbiguousCovariate { candidates } => write!(f, "the model has several covariates ({}); name the one you mean", candidates.join(", ")),
-            E::NonlinearCovariate { covariate } => write!(f, "`{covariate}` enters the model through a power, log or sqrt, so it has no single slope; use it untransformed"),
+            E::NonlinearCovariate { covariate } => write!(f, "{covariate} enters the model through a power, log or sqrt, so it has no single slope; use it untransformed", covariate = crate::report::markdown::code(covariate)),
             E::NotEstimable { what, why } => write!(f, "{what} is not estimable from this design: {why}"),
             E::WeightsLength { expected, found } => write!(f, "{found} weights given but the factor has {expected} levels in this model; give one weight per level"),
             E::BadLevel { value } => write!(f, "{value} is not between 0 and 1"),
-            E::UnknownLevel { factor, level } => write!(f, "`{level}` is not a level of `{factor}` in this model"),
+            E::UnknownLevel { factor, level } => write!(f, "{level} is not a level of {factor} in this model", factor = crate::report::markdown::code(factor), level = crate::report::markdown::code(level)),
             E::NotNested => write!(f, "neither model is nested in the other (each has columns that are not combinations of the other's columns); compare a model only with one that extends it"),
             E::DifferentWeights => write!(f, "the two models have different case weights (or only one has weights), so their residual sums of squares are not on one scale; give both the same `weights`"),
             E::DifferentRows => write!(f, "the two models were fitted on different rows (missing values differ); fit both on the same rows"),

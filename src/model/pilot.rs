@@ -44,7 +44,7 @@ impl fmt::Display for PilotError {
         match self {
             PilotError::SeparateSlopes { term } => write!(
                 f,
-                "the term `{term}` lets a covariate's slope differ by group, so the model gives no single correlation to plan with"
+                "the term {term} lets a covariate's slope differ by group, so the model gives no single correlation to plan with", term = crate::report::markdown::code(term)
             ),
         }
     }

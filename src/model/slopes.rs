@@ -28,8 +28,9 @@ impl Fit {
                 .iter()
                 .map(|(v, _)| *v)
                 .find(|v| self.spec.vars.get(*v).map(|x| x.name()) == Some(name))
-                .ok_or_else(|| ModelError::CovariateNotInModel {
+                .ok_or_else(|| ModelError::NoSuchCovariate {
                     name: name.to_string(),
+                    covariates: self.covariate_means().into_iter().map(|(n, _)| n).collect(),
                 })?,
             None => match self.cov_means.as_slice() {
                 [] => return Err(ModelError::NoCovariate),

@@ -91,7 +91,7 @@ impl fmt::Display for PlotError {
             PlotError::NothingToDraw => write!(f, "there is nothing to draw"),
             PlotError::TooManyLevels { factor, levels } => write!(
                 f,
-                "`{factor}` has {levels} levels; a figure tells at most {MAX_LEVELS} apart"
+                "{factor} has {levels} levels; a figure tells at most {MAX_LEVELS} apart", factor = crate::report::markdown::code(factor)
             ),
             PlotError::TooManyPointLevels { factor, levels } => write!(
                 f,

@@ -88,16 +88,36 @@ impl fmt::Display for LiveError {
         match self {
             LiveError::Syntax { problem } => write!(f, "this reference cannot be read: {problem}"),
             LiveError::NoTable { kind, subject, .. } => {
-                write!(f, "the document computes no `{kind}` table for `{subject}`")
+                write!(
+                    f,
+                    "the document computes no {kind} table for {subject}",
+                    kind = crate::report::markdown::code(kind),
+                    subject = crate::report::markdown::code(subject)
+                )
             }
             LiveError::NoRow { kind, key, .. } => {
-                write!(f, "the `{kind}` table has no row `{key}`")
+                write!(
+                    f,
+                    "the {kind} table has no row {key}",
+                    key = crate::report::markdown::code(key),
+                    kind = crate::report::markdown::code(kind)
+                )
             }
             LiveError::NoColumn { kind, column, .. } => {
-                write!(f, "the `{kind}` table has no column `{column}`")
+                write!(
+                    f,
+                    "the {kind} table has no column {column}",
+                    column = crate::report::markdown::code(column),
+                    kind = crate::report::markdown::code(kind)
+                )
             }
             LiveError::Renamed { old, new } => {
-                write!(f, "the table kind `{old}` is now called `{new}`")
+                write!(
+                    f,
+                    "the table kind {old} is now called {new}",
+                    new = crate::report::markdown::code(new),
+                    old = crate::report::markdown::code(old)
+                )
             }
             LiveError::Shape {
                 kind,
@@ -105,10 +125,11 @@ impl fmt::Display for LiveError {
                 given,
             } => write!(
                 f,
-                "a `{kind}` reference names a row with {key_words} word{} and then a column, \
+                "a {kind} reference names a row with {key_words} word{} and then a column, \
                  but {given} word{} follow the subject",
                 if *key_words == 1 { "" } else { "s" },
-                if *given == 1 { "" } else { "s" }
+                if *given == 1 { "" } else { "s" },
+                kind = crate::report::markdown::code(kind)
             ),
         }
     }

@@ -429,16 +429,29 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
             return with_text_cells(t, j, f);
         }
         // The two limits of an interval share one number of decimals: the column and its
-        // partner are rounded as one.
-        let f = match limit_partner(t, j) {
-            Some(k) => {
+        // partner are rounded as one. Beside an SE, a row whose estimate is within one SE
+        // of zero asks for no decimals of its own (README, "Numbers as shown").
+        let noise = noise_rows(t, j);
+        let f = match (limit_partner(t, j), &c.format, &noise) {
+            (Some(k), Format::Digits(sig), Some(noise)) => {
+                let mut both = nums.clone();
+                both.extend(numbers(k));
+                let twice: Vec<bool> = noise.iter().chain(noise.iter()).copied().collect();
+                let mut f = super::number::estimate_column(&both, &twice, *sig);
+                f.truncate(nums.len());
+                f
+            }
+            (Some(k), _, _) => {
                 let mut both = nums.clone();
                 both.extend(numbers(k));
                 let mut f = format_column(&both, c.format);
                 f.truncate(nums.len());
                 f
             }
-            None => format_column(&nums, c.format),
+            (None, Format::Digits(sig), Some(noise)) => {
+                super::number::estimate_column(&nums, noise, *sig)
+            }
+            (None, _, _) => format_column(&nums, c.format),
         };
         with_text_cells(t, j, f)
     }
@@ -457,6 +470,32 @@ fn with_text_cells(t: &Table, j: usize, mut formatted: Vec<String>) -> Vec<Strin
 
 /// The column holding the other limit of the interval whose limit column `j` holds (`lower`
 /// and `upper`, `lower_bound` and `upper_bound`), when both have the same format.
+/// For an estimate's column (the `Digits` column just before an `se` column) or one of its
+/// limits (`lower...`, `upper...`): which rows have an estimate within one standard error of
+/// zero. `None` for any other column, or a table without standard errors.
+fn noise_rows(t: &Table, j: usize) -> Option<Vec<bool>> {
+    let se = t.columns.iter().position(|d| d.key == "se")?;
+    let est = se.checked_sub(1)?;
+    if !matches!(t.columns.get(est)?.format, Format::Digits(_)) {
+        return None;
+    }
+    let key = &t.columns.get(j)?.key;
+    if j != est && !key.starts_with("lower") && !key.starts_with("upper") {
+        return None;
+    }
+    Some(
+        t.rows
+            .iter()
+            .map(|r| match (r.get(est), r.get(se)) {
+                (Some(Cell::Number(e)), Some(Cell::Number(s))) => {
+                    s.is_finite() && *s > 0.0 && e.abs() < *s
+                }
+                _ => false,
+            })
+            .collect(),
+    )
+}
+
 fn limit_partner(t: &Table, j: usize) -> Option<usize> {
     let c = t.columns.get(j)?;
     let other = match c.key.strip_prefix("lower") {
@@ -724,6 +763,47 @@ mod tests {
     fn code_spans_survive_backticks() {
         assert_eq!(code("a`b"), "``a`b``");
         assert_eq!(code("`x"), "`` `x ``");
+    }
+
+    #[test]
+    fn estimates_within_one_se_of_zero_ask_for_no_decimals() {
+        // A nearly exact fit (values from memory of such a fit: SEs near 1e-10): the
+        // coefficient of noise size once made the column show eight decimals of zeros.
+        let mut t = Table::new(
+            "coefficients",
+            "Demo",
+            vec![
+                Column::new("term", "term", Format::Text),
+                Column::new("estimate", "estimate", Format::Digits(4)),
+                Column::new("se", "SE", Format::Digits(3)),
+                Column::new("lower", "lower", Format::Digits(4)),
+                Column::new("upper", "upper", Format::Digits(4)),
+            ],
+        );
+        t.push(vec![
+            "x".into(),
+            3.0.into(),
+            1.5e-10.into(),
+            3.0.into(),
+            3.0.into(),
+        ]);
+        t.push(vec![
+            "b".into(),
+            (-5.8e-10).into(),
+            6.2e-10.into(),
+            (-1.9e-9).into(),
+            7.4e-10.into(),
+        ]);
+        assert_eq!(formatted_column(&t, 1), ["3.000", "0.000"]);
+        assert_eq!(formatted_column(&t, 3), ["3.000", "0.000"]);
+        assert_eq!(formatted_column(&t, 4), ["3.000", "0.000"]);
+        // An estimate beyond its SE still asks for its two significant digits; within it,
+        // not.
+        t.rows[1][1] = 0.00123.into();
+        t.rows[1][2] = 0.0004.into();
+        assert_eq!(formatted_column(&t, 1), ["3.0000", "0.0012"]);
+        t.rows[1][2] = 0.01.into();
+        assert_eq!(formatted_column(&t, 1), ["3.000", "0.001"]);
     }
 
     #[test]

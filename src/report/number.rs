@@ -144,13 +144,22 @@ fn largest(values: &[Option<f64>]) -> Option<f64> {
 /// Columns whose values are all very large or very small switch to
 /// scientific notation.
 fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
+    let all = vec![true; values.len()];
+    digits_asked(values, &all, sig)
+}
+
+/// [`digits`], where only the values marked in `asks` may ask for decimals for their two
+/// significant digits (the largest value always asks for its `sig`).
+fn digits_asked(values: &[Option<f64>], asks: &[bool], sig: i32) -> Vec<String> {
     let Some(max) = largest(values) else {
         return values.iter().map(|v| fixed(*v, 0)).collect();
     };
     let floor = max * 10f64.powi(-MAX_SIGNIFICANT);
     let min = values
         .iter()
-        .flatten()
+        .zip(asks.iter().chain(std::iter::repeat(&true)))
+        .filter(|(_, a)| **a)
+        .filter_map(|(v, _)| *v)
         .map(|x| x.abs())
         .filter(|&m| m.is_finite() && m >= floor)
         .fold(max, f64::min);
@@ -169,6 +178,16 @@ fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
     let cap = (MAX_SIGNIFICANT - 1 - hi).min(MAX_DECIMALS);
     let decimals = wanted.min(cap).max(0) as usize;
     values.iter().map(|v| fixed(*v, decimals)).collect()
+}
+
+/// An estimate's column (or its limits) with its standard errors: formatted as
+/// [`digits`] would, except that a row whose estimate lies within one standard error of zero
+/// (`noise`) asks for no decimals of its own: the digits of such a value are below its
+/// uncertainty, and in a nearly exact fit (a standard error of 1e-10) they would ask for
+/// every decimal allowed to show zeros. The largest value always asks for `sig` digits.
+pub fn estimate_column(values: &[Option<f64>], noise: &[bool], sig: u8) -> Vec<String> {
+    let asks: Vec<bool> = noise.iter().map(|n| !n).collect();
+    digits_asked(values, &asks, i32::from(sig))
 }
 
 fn scientific(x: f64, sig: i32) -> String {

@@ -85,8 +85,8 @@ impl Session<'_> {
             return Err(Diagnostic::new(
                 database.span,
                 format!(
-                    "no address was given for database `{}`",
-                    database.value
+                    "no address was given for database {}",
+                    crate::report::markdown::code(&database.value)
                 ),
             )
             .label("which database?")
@@ -104,8 +104,14 @@ impl Session<'_> {
                         | data::database::DbError::Connect(_) => database.span,
                         _ => query.span,
                     };
-                    Diagnostic::new(span, format!("database `{}`: {e}", database.value))
-                        .label("while reading this database")
+                    Diagnostic::new(
+                        span,
+                        format!(
+                            "database {}: {e}",
+                            crate::report::markdown::code(&database.value)
+                        ),
+                    )
+                    .label("while reading this database")
                 })?;
         let rows_sha = read.set.rows_sha256();
         let record = InputRecord {
@@ -118,12 +124,12 @@ impl Session<'_> {
             database: true,
         };
         let sentence = format!(
-            "Loaded the rows of a query on database {} as data set {}: {} rows, {} columns (rows SHA-256 `{}`).",
+            "Loaded the rows of a query on database {} as data set {}: {} rows, {} columns (rows SHA-256 {}).",
             code(&database.value),
             code(&set_name),
             read.set.n_rows(),
             read.set.columns.len(),
-            rows_sha
+            crate::report::markdown::code(&rows_sha)
         );
         let notes = mixed_notes(&read.set, &read.mixed);
         Ok(self.install(Loaded {
@@ -247,12 +253,12 @@ impl Session<'_> {
             ..InputRecord::default()
         };
         let mut sentence = format!(
-            "Loaded {} as data set {}: {} rows, {} columns (SHA-256 `{}`).",
+            "Loaded {} as data set {}: {} rows, {} columns (SHA-256 {}).",
             code(&path.value),
             code(set_name),
             set.n_rows(),
             set.columns.len(),
-            sha
+            crate::report::markdown::code(&sha)
         );
         if let Some(d) = detected {
             sentence.push_str(&format!(
@@ -311,13 +317,13 @@ impl Session<'_> {
             ..InputRecord::default()
         };
         let sentence = format!(
-            "Loaded {}, sheet {}, as data set {}: {} rows, {} columns (SHA-256 `{}`); rows are named by the sheet's own row numbers.",
+            "Loaded {}, sheet {}, as data set {}: {} rows, {} columns (SHA-256 {}); rows are named by the sheet's own row numbers.",
             code(&path.value),
             code(&read.sheet),
             code(set_name),
             read.set.n_rows(),
             read.set.columns.len(),
-            sha
+            crate::report::markdown::code(&sha)
         );
         let mut notes = mixed_notes(&read.set, &read.mixed);
         if !read.dates.is_empty() {
@@ -400,14 +406,14 @@ impl Session<'_> {
             database: false,
         };
         let sentence = format!(
-            "Loaded {}, {}, as data set {}: {} rows, {} columns (file SHA-256 `{}`, rows SHA-256 `{}`).",
+            "Loaded {}, {}, as data set {}: {} rows, {} columns (file SHA-256 {}, rows SHA-256 {}).",
             code(&path.value),
             code(&part),
             code(set_name),
             read.set.n_rows(),
             read.set.columns.len(),
-            read.file_sha256,
-            rows_sha
+            crate::report::markdown::code(&read.file_sha256),
+            crate::report::markdown::code(&rows_sha)
         );
         let notes = mixed_notes(&read.set, &read.mixed);
         Ok(Loaded {
@@ -497,7 +503,10 @@ impl Session<'_> {
                 if decl[..i].iter().any(|b| b.value == a.value) {
                     return Err(Diagnostic::new(
                         a.span,
-                        format!("level `{}` is listed twice", a.value),
+                        format!(
+                            "level {} is listed twice",
+                            crate::report::markdown::code(&a.value)
+                        ),
                     )
                     .label("repeated")
                     .help("list each level once"));
@@ -593,8 +602,14 @@ impl Session<'_> {
                 .iter()
                 .find(|d| d.name == n.value)
                 .ok_or_else(|| {
-                    Diagnostic::new(n.span, format!("there is no data set called `{}`", n.value))
-                        .label("unknown data set")
+                    Diagnostic::new(
+                        n.span,
+                        format!(
+                            "there is no data set called {}",
+                            crate::report::markdown::code(&n.value)
+                        ),
+                    )
+                    .label("unknown data set")
                 })?,
             None => self.current(span)?,
         };
@@ -748,8 +763,9 @@ impl FileKind {
             Diagnostic::new(
                 clause.span,
                 format!(
-                    "`{word}` is for {goes_with}, and \"{path}\" is {}",
-                    self.name()
+                    "{word} is for {goes_with}, and \"{path}\" is {}",
+                    self.name(),
+                    word = crate::report::markdown::code(word)
                 ),
             )
             .label("not for this kind of file")
@@ -874,13 +890,16 @@ fn mixed_notes(set: &DataSet, mixed: &[MixedColumn]) -> Vec<Item> {
 /// The error for `use NAME` of a data set that is not loaded; `known` are those loaded so far.
 pub(crate) fn unknown_data_set(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
     let help = match super::closest(&name.value, known) {
-        Some(c) => format!("did you mean `{c}`?"),
+        Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
         None if known.is_empty() => "load a file first: `load \"FILE\" as NAME`".into(),
         None => format!("the data sets so far are {}", known.join(", ")),
     };
     Diagnostic::new(
         name.span,
-        format!("there is no data set called `{}`", name.value),
+        format!(
+            "there is no data set called {}",
+            crate::report::markdown::code(&name.value)
+        ),
     )
     .label("unknown data set")
     .help(help)
@@ -953,7 +972,11 @@ pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<us
         .ok_or_else(|| {
             let mut d = Diagnostic::new(
                 column.span,
-                format!("data set `{}` has no column `{}`", set.name, column.value),
+                format!(
+                    "data set {} has no column {}",
+                    crate::report::markdown::code(&set.name),
+                    crate::report::markdown::code(&column.value)
+                ),
             )
             .label("unknown column");
             // An unquoted word that starts a name with spaces: the name, quoted.
@@ -963,7 +986,10 @@ pub(crate) fn column_index(set: &DataSet, column: &Spanned<String>) -> Result<us
                 ));
             }
             d = match set.closest_name(&column.value) {
-                Some(c) => d.help(format!("did you mean `{c}`?")),
+                Some(c) => d.help(format!(
+                    "did you mean {c}?",
+                    c = crate::report::markdown::code(c)
+                )),
                 None => {
                     let names: Vec<&str> = set.columns.iter().map(|c| c.name.as_str()).collect();
                     d.help(format!("its columns are {}", names.join(", ")))
@@ -981,14 +1007,18 @@ pub(crate) fn factor_column<'a>(
     let i = column_index(set, column)?;
     match &set.columns[i].values {
         Values::Factor(f) => Ok(f),
-        _ => Err(
-            Diagnostic::new(column.span, format!("`{}` is not a factor", column.value))
-                .label("not a factor")
-                .help(format!(
-                    "declare it first: `factor {}`",
-                    quote_name(&column.value)
-                )),
-        ),
+        _ => Err(Diagnostic::new(
+            column.span,
+            format!(
+                "{} is not a factor",
+                crate::report::markdown::code(&column.value)
+            ),
+        )
+        .label("not a factor")
+        .help(format!(
+            "declare it first: `factor {}`",
+            quote_name(&column.value)
+        ))),
     }
 }
 
@@ -1004,13 +1034,19 @@ pub(crate) fn numeric_values<'a>(
         Values::Numeric(v) => Ok(v),
         Values::Factor(_) => Err(Diagnostic::new(
             column.span,
-            format!("`{}` is a factor, not a numeric column", column.value),
+            format!(
+                "{} is a factor, not a numeric column",
+                crate::report::markdown::code(&column.value)
+            ),
         )
         .label("needs numbers")),
         Values::Text(t) => {
             let mut d = Diagnostic::new(
                 column.span,
-                format!("`{}` is a text column, not a numeric one", column.value),
+                format!(
+                    "{} is a text column, not a numeric one",
+                    crate::report::markdown::code(&column.value)
+                ),
             )
             .label("needs numbers");
             if let Some((row, text)) = t.first_non_number() {
@@ -1021,13 +1057,81 @@ pub(crate) fn numeric_values<'a>(
                     ),
                     _ => set.place_of(row),
                 };
-                d = d.help(format!(
-                    "{place} holds \"{text}\", which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`"
-                ));
+                d = d.help(match data::beyond_limit(text) {
+                    Some(_) => limit_advice(&column.value, &place, t.iter()),
+                    None => format!(
+                        "{place} holds {}, which is not a number; fix it, or declare it as a missing-value marker with `missing \"{text}\"` before `load`",
+                        code(text)
+                    ),
+                });
             }
             Err(d)
         }
     }
+}
+
+/// Distinct limit texts named in full in the advice on `<0.5`-style cells; more are counted.
+const LIMIT_TEXTS_SHOWN: usize = 6;
+
+/// The advice for a numeric column that holds cells such as `<0.5` or `>2000` (`cells`, in row
+/// order; the first such is at `place`): values reported as beyond a limit of detection or of
+/// a measuring range, which covey will not turn into numbers by itself.
+fn limit_advice<'a>(
+    column: &str,
+    place: &str,
+    cells: impl Iterator<Item = Option<&'a str>>,
+) -> String {
+    let mut texts: Vec<&str> = Vec::new();
+    let mut count = 0usize;
+    for text in cells.flatten() {
+        if data::beyond_limit(text).is_some() {
+            count += 1;
+            if !texts.contains(&text) {
+                texts.push(text);
+            }
+        }
+    }
+    let Some((&first, _)) = texts.split_first() else {
+        return String::new();
+    };
+    let (below, limit) = data::beyond_limit(first).unwrap_or((true, f64::NAN));
+    let what = if below {
+        format!(
+            "a value below a limit of detection ({})",
+            data::format_number(limit)
+        )
+    } else {
+        format!(
+            "a value above a limit (such as the top of a measuring range, {})",
+            data::format_number(limit)
+        )
+    };
+    let markers = texts
+        .iter()
+        .take(LIMIT_TEXTS_SHOWN)
+        .map(|t| format!("\"{}\"", t.replace('\\', "\\\\").replace('"', "\\\"")))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let more = texts.len().saturating_sub(LIMIT_TEXTS_SHOWN);
+    let more = if more > 0 {
+        format!(" (and the {more} other such texts)")
+    } else {
+        String::new()
+    };
+    let cells = if count == 1 {
+        "it is the only such cell".to_string()
+    } else {
+        format!("{} has {count} such cells", code(column))
+    };
+    format!(
+        "{place} holds {}, {what}, not a measured value; {cells}. covey does not choose a number \
+         for such a value: either declare these cells missing with `missing {markers}`{more} \
+         before `load` (their rows are then left out wherever {} is used), or write in the data \
+         file the number each stands for (for example the limit itself, or half of it) and say \
+         in the document which you chose",
+        code(first),
+        code(column)
+    )
 }
 
 fn summary_row(level: &str, values: impl Iterator<Item = f64>) -> Vec<crate::report::Cell> {
@@ -1131,8 +1235,8 @@ pub(crate) fn order_on_text(column: &Spanned<String>, span: Span) -> Diagnostic 
     Diagnostic::new(
         span,
         format!(
-            "`{}` holds text or levels, which can only be tested with ==, != or in",
-            column.value
+            "{} holds text or levels, which can only be tested with ==, != or in",
+            crate::report::markdown::code(&column.value)
         ),
     )
     .label("order comparison on text")
@@ -1151,16 +1255,22 @@ pub(crate) fn text_for_number(
     } else {
         "it is compared with a number"
     };
-    let d = Diagnostic::new(span, format!("`{}` is numeric, so {what}", column.value))
-        .label("not a number");
+    let d = Diagnostic::new(
+        span,
+        format!(
+            "{} is numeric, so {what}",
+            crate::report::markdown::code(&column.value)
+        ),
+    )
+    .label("not a number");
     match crate::data::parse_number(value.as_text()) {
         crate::data::NumberParse::Number(_) => d.help(format!(
             "write the number without quotes: {}",
             value.as_text()
         )),
         _ => d.help(format!(
-            "compare `{}` with a number, or test a text column instead",
-            column.value
+            "compare {} with a number, or test a text column instead",
+            crate::report::markdown::code(&column.value)
         )),
     }
 }
@@ -1206,14 +1316,23 @@ pub(crate) fn unknown_value(
     /// Values listed in full up to this many.
     const LISTED: usize = 20;
     let message = if factor {
-        format!("`{value}` is not a level of factor `{column}`")
+        format!(
+            "{value} is not a level of factor {column}",
+            column = crate::report::markdown::code(column),
+            value = crate::report::markdown::code(value)
+        )
     } else {
-        format!("no row of data set `{set_name}` has `{value}` in `{column}`")
+        format!(
+            "no row of data set {set_name} has {value} in {column}",
+            column = crate::report::markdown::code(column),
+            set_name = crate::report::markdown::code(set_name),
+            value = crate::report::markdown::code(value)
+        )
     };
     let quoted: Vec<String> = values
         .iter()
         .take(LISTED)
-        .map(|v| format!("`{v}`"))
+        .map(|v| crate::report::markdown::code(v).to_string())
         .collect();
     let mut list = quoted.join(", ");
     if values.len() > LISTED {
@@ -1221,7 +1340,10 @@ pub(crate) fn unknown_value(
     }
     let kind = if factor { "levels" } else { "values" };
     let known = if values.is_empty() {
-        format!("`{column}` holds no {kind} here")
+        format!(
+            "{column} holds no {kind} here",
+            column = crate::report::markdown::code(column)
+        )
     } else {
         format!("its {kind} are {list}")
     };
@@ -1233,7 +1355,10 @@ pub(crate) fn unknown_value(
         .or_else(|| super::closest(value, values));
     let help = match suggestion {
         Some(s) => {
-            format!("did you mean `{s}`? Values are compared exactly, case included; {known}")
+            format!(
+                "did you mean {s}? Values are compared exactly, case included; {known}",
+                s = crate::report::markdown::code(s)
+            )
         }
         None => format!("{known}; values are compared exactly, case included"),
     };

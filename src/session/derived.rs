@@ -94,8 +94,8 @@ impl Eval<'_> {
                     return Err(Diagnostic::new(
                         e.span,
                         format!(
-                            "the {what} of `{}` is undefined: it has {} value{}",
-                            column.value,
+                            "the {what} of {} is undefined: it has {} value{}",
+                            crate::report::markdown::code(&column.value),
                             present.len(),
                             if present.len() == 1 { "" } else { "s" }
                         ),
@@ -270,7 +270,7 @@ impl Session<'_> {
         if set.column(&column.value).is_some() {
             return Err(Diagnostic::new(
                 column.span,
-                format!("data set `{}` already has a column `{}`", set.name, column.value),
+                format!("data set {} already has a column {}", crate::report::markdown::code(&set.name), crate::report::markdown::code(&column.value)),
             )
             .label("already a column")
             .help("give the new column a name of its own; a column read from the file is never overwritten"));

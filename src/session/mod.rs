@@ -305,13 +305,16 @@ pub(crate) fn no_data_set(span: Span) -> Diagnostic {
 /// The error for a model that is not declared; `known` are the models declared so far.
 pub(crate) fn unknown_model(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
     let help = match closest(&name.value, known) {
-        Some(c) => format!("did you mean `{c}`?"),
+        Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
         None if known.is_empty() => "declare it first with `model NAME: RESPONSE on TERMS`".into(),
         None => format!("the models so far are {}", known.join(", ")),
     };
     Diagnostic::new(
         name.span,
-        format!("there is no model called `{}`", name.value),
+        format!(
+            "there is no model called {}",
+            crate::report::markdown::code(&name.value)
+        ),
     )
     .label("unknown model")
     .help(help)

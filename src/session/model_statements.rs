@@ -101,8 +101,8 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         part.span,
                         format!(
-                            "`{}` is a factor; it cannot be transformed",
-                            part.column.value
+                            "{} is a factor; it cannot be transformed",
+                            crate::report::markdown::code(&part.column.value)
                         ),
                     )
                     .label("transform of a factor"));
@@ -231,13 +231,16 @@ impl Session<'_> {
         Ok(items)
     }
 
-    /// An error at the first of `names` (factors a table asks model `m` about) that is a
-    /// column of the model's data set but no variable of the model: the engine knows only the
-    /// model's own variables, and "there is no variable" would be untrue of a column the user
-    /// can see in the data. Names that are not columns either are left to the engine.
-    fn named_in_model<'n>(
+    /// An error at the first of `names` (factors, or covariates as `role` says, that a
+    /// statement asks model `m` about) that is a column of the model's data set but no
+    /// variable of the model: the engine knows only the model's own variables, and "there is
+    /// no variable" would be untrue of a column the user can see in the data. Every statement
+    /// that names a factor or covariate of a model calls this before the engine. Names that
+    /// are not columns either are left to the engine.
+    pub(super) fn named_in_model<'n>(
         &self,
         m: &ModelEntry,
+        role: Role,
         names: impl IntoIterator<Item = &'n Spanned<String>>,
     ) -> Result<(), Diagnostic> {
         let Some(set) = self.data_sets.iter().find(|d| d.name == m.data_set) else {
@@ -250,12 +253,22 @@ impl Session<'_> {
             let Some(column) = set.columns.iter().find(|c| c.name == name.value) else {
                 continue;
             };
+            let names = match role {
+                Role::Factor => m.fit.other_factors(""),
+                Role::Covariate => m
+                    .fit
+                    .covariate_means()
+                    .into_iter()
+                    .map(|(n, _)| n)
+                    .collect(),
+            };
             return Err(column_not_in_model(
                 name.span,
                 &name.value,
                 &column.values,
                 &m.name,
-                &m.fit.other_factors(""),
+                role,
+                &names,
             ));
         }
         Ok(())
@@ -484,7 +497,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
-                self.named_in_model(m, std::iter::once(factor).chain(by))?;
+                self.named_in_model(m, Role::Factor, std::iter::once(factor).chain(by))?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -550,7 +563,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
-                self.named_in_model(m, std::iter::once(factor).chain(within))?;
+                self.named_in_model(m, Role::Factor, std::iter::once(factor).chain(within))?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -763,7 +776,8 @@ impl Session<'_> {
                 level,
             } => {
                 let m = self.model_entry(model)?;
-                self.named_in_model(m, [factor])?;
+                self.named_in_model(m, Role::Factor, [factor])?;
+                self.named_in_model(m, Role::Covariate, covariate)?;
                 let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let level = confidence(level.as_ref())?;
                 let s = m
@@ -890,7 +904,7 @@ impl Session<'_> {
                 robust,
             } => {
                 let m = self.model_entry(model)?;
-                self.named_in_model(m, [factor])?;
+                self.named_in_model(m, Role::Factor, [factor])?;
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
@@ -940,7 +954,8 @@ impl Session<'_> {
                 alpha,
             } => {
                 let m = self.model_entry(model)?;
-                self.named_in_model(m, [factor])?;
+                self.named_in_model(m, Role::Factor, [factor])?;
+                self.named_in_model(m, Role::Covariate, [covariate])?;
                 let alpha = match alpha {
                     Some(a) if a.value > 0.0 && a.value < 1.0 => a.value,
                     Some(a) => {
@@ -1064,7 +1079,7 @@ fn view(
 
 /// The factor an error of the engine is about, when it is about a factor (so that the
 /// message can point at the words that named it).
-fn factor_named(e: &model::ModelError) -> Option<&str> {
+pub(super) fn factor_named(e: &model::ModelError) -> Option<&str> {
     match e {
         model::ModelError::UnknownVariable { name }
         | model::ModelError::NotAFactor { name, .. } => Some(name),
@@ -1299,49 +1314,70 @@ fn at_text(fit: &model::Fit, at: &[(String, f64)]) -> String {
     format!(", with {}", parts.join(", "))
 }
 
-/// The error for a table that names a factor `name`, a column of the data (holding `values`)
-/// but no variable of model `model`, whose factors are `factors` (shared with the language
-/// server).
+/// What a statement names in a model: a factor (`for F`, `by F`, `within F`) or a numeric
+/// covariate (`of X`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Role {
+    /// A factor of the model.
+    Factor,
+    /// A numeric covariate of the model.
+    Covariate,
+}
+
+/// The error for a statement that names, as a factor or covariate (`role`), a column `name`
+/// of the data (holding `values`) that is no variable of model `model`, whose factors or
+/// covariates (as `role` says) are `names` (shared with the language server).
 pub(crate) fn column_not_in_model(
     span: Span,
     name: &str,
     values: &Values,
     model: &str,
-    factors: &[String],
+    role: Role,
+    names: &[String],
 ) -> Diagnostic {
     let what = match values {
         Values::Factor(_) => "a factor of the data",
         Values::Text(_) => "a text column of the data (not declared a factor)",
         Values::Numeric(_) => "a numeric column of the data",
     };
-    let factors = match factors {
-        [] => "which has no factor".to_string(),
-        [one] => format!("whose only factor is {}", code(one)),
+    let (one, many, none) = match role {
+        Role::Factor => ("factor", "factors", "which has no factor"),
+        Role::Covariate => ("covariate", "covariates", "which has no numeric covariate"),
+    };
+    let listed = match names {
+        [] => none.to_string(),
+        [only] => format!("whose only {one} is {}", code(only)),
         some => format!(
-            "whose factors are {}",
+            "whose {many} are {}",
             some.iter().map(|f| code(f)).collect::<Vec<_>>().join(", ")
         ),
     };
     let d = Diagnostic::new(
         span,
         format!(
-            "{} is {what} but not in model {}, {factors}",
+            "{} is {what} but not in model {}, {listed}",
             code(name),
             code(model)
         ),
     )
     .label("not in this model");
-    match values {
-        Values::Numeric(_) => d,
-        Values::Factor(_) => d.help(format!(
+    match (role, values) {
+        (Role::Factor, Values::Numeric(_)) => d,
+        (Role::Factor, Values::Factor(_)) => d.help(format!(
             "add {} to the terms of model {} to compare its levels, or name one of its factors",
             code(name),
             code(model)
         )),
-        Values::Text(_) => d.help(format!(
+        (Role::Factor, Values::Text(_)) => d.help(format!(
             "declare it a factor (`factor {} levels ...`) and add it to the terms of model {}",
             quote_name(name),
             code(model)
         )),
+        (Role::Covariate, Values::Numeric(_)) => d.help(format!(
+            "add {} to the terms of model {} to see its slopes, or name one of its covariates",
+            code(name),
+            code(model)
+        )),
+        (Role::Covariate, _) => d.help(format!("name one of the {many} of model {}", code(model))),
     }
 }

@@ -245,8 +245,8 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         span,
                         format!(
-                            "model `{}` has no covariate to take the correlation from",
-                            p.name
+                            "model {} has no covariate to take the correlation from",
+                            crate::report::markdown::code(&p.name)
                         ),
                     )
                     .label("no R² in the pilot")
@@ -258,9 +258,9 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         span,
                         format!(
-                            "the plan has {}, but model `{}` has {} ({})",
+                            "the plan has {}, but model {} has {} ({})",
                             count(c, "covariate", "covariates"),
-                            p.name,
+                            crate::report::markdown::code(&p.name),
                             count(
                                 p.info.covariate_df as u64,
                                 "covariate column",
@@ -279,8 +279,8 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         span,
                         format!(
-                            "the covariates of model `{}` explain all of its variance",
-                            p.name
+                            "the covariates of model {} explain all of its variance",
+                            crate::report::markdown::code(&p.name)
                         ),
                     )
                     .label("no error variance left"));
@@ -423,8 +423,8 @@ impl Session<'_> {
             return Err(Diagnostic::new(
                 model.span,
                 format!(
-                    "model `{}` has no residual degrees of freedom, so no SD",
-                    model.value
+                    "model {} has no residual degrees of freedom, so no SD",
+                    crate::report::markdown::code(&model.value)
                 ),
             )
             .label("no SD in the pilot"));
@@ -606,7 +606,7 @@ impl Session<'_> {
             .ok_or_else(|| {
                 let known: Vec<&str> = self.plans.iter().map(|p| p.name.as_str()).collect();
                 let help = match closest(&name.value, &known) {
-                    Some(c) => format!("did you mean `{c}`?"),
+                    Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
                     None if known.is_empty() => {
                         "make one first with `plan NAME for K groups ... effect ...`".into()
                     }
@@ -614,7 +614,10 @@ impl Session<'_> {
                 };
                 Diagnostic::new(
                     name.span,
-                    format!("there is no plan called `{}`", name.value),
+                    format!(
+                        "there is no plan called {}",
+                        crate::report::markdown::code(&name.value)
+                    ),
                 )
                 .label("unknown plan")
                 .help(help)

@@ -75,15 +75,19 @@ impl Session<'_> {
                 Some(&(i, _)) => Some(i),
                 None => {
                     let help = if numeric_names.is_empty() {
-                        format!("model `{}` has no covariate", model.value)
+                        format!(
+                            "model {} has no covariate",
+                            crate::report::markdown::code(&model.value)
+                        )
                     } else {
                         format!("its covariates are {}", listing(&numeric_names))
                     };
                     return Err(Diagnostic::new(
                         c.span,
                         format!(
-                            "`{}` is not a covariate of model `{}`",
-                            c.value, model.value
+                            "{} is not a covariate of model {}",
+                            crate::report::markdown::code(&c.value),
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("not a covariate of this model")
@@ -96,8 +100,8 @@ impl Session<'_> {
                     return Err(Diagnostic::new(
                         model.span,
                         format!(
-                            "model `{}` has no covariate to draw lines along",
-                            model.value
+                            "model {} has no covariate to draw lines along",
+                            crate::report::markdown::code(&model.value)
                         ),
                     )
                     .label("no covariate")
@@ -106,7 +110,10 @@ impl Session<'_> {
                 _ => {
                     return Err(Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several covariates", model.value),
+                        format!(
+                            "model {} has several covariates",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which covariate?")
                     .help(format!("name one with `of`: {}", listing(&numeric_names))))
@@ -124,7 +131,11 @@ impl Session<'_> {
                 None => {
                     return Err(Diagnostic::new(
                         b.span,
-                        format!("`{}` is not a factor of model `{}`", b.value, model.value),
+                        format!(
+                            "{} is not a factor of model {}",
+                            crate::report::markdown::code(&b.value),
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("not a factor of this model")
                     .help(format!("its factors are {}", listing(&factor_names))))
@@ -159,13 +170,20 @@ impl Session<'_> {
                 Some(&(i, _)) => Some(i),
                 None => {
                     let help = if factor_names.is_empty() {
-                        format!("model `{}` has no factor", model.value)
+                        format!(
+                            "model {} has no factor",
+                            crate::report::markdown::code(&model.value)
+                        )
                     } else {
                         format!("its factors are {}", listing(&factor_names))
                     };
                     return Err(Diagnostic::new(
                         fa.span,
-                        format!("`{}` is not a factor of model `{}`", fa.value, model.value),
+                        format!(
+                            "{} is not a factor of model {}",
+                            crate::report::markdown::code(&fa.value),
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("not a factor of this model")
                     .help(help));
@@ -179,7 +197,10 @@ impl Session<'_> {
                 [] if needs_factor => {
                     return Err(Diagnostic::new(
                         model.span,
-                        format!("model `{}` has no factor", model.value),
+                        format!(
+                            "model {} has no factor",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("no factor")
                     .help(format!(
@@ -190,7 +211,10 @@ impl Session<'_> {
                 _ if needs_factor || kind == PlotKind::Lines => {
                     return Err(Diagnostic::new(
                         model.span,
-                        format!("model `{}` has several factors", model.value),
+                        format!(
+                            "model {} has several factors",
+                            crate::report::markdown::code(&model.value)
+                        ),
                     )
                     .label("which factor?")
                     .help(format!("name one with `for`: {}", listing(&factor_names))))

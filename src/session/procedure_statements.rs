@@ -4,6 +4,7 @@
 use std::sync::Arc;
 
 use super::data_statements::{column_index, factor_column, numeric_values};
+use super::model_statements::{factor_named, Role};
 use super::{Outcome, Session};
 use crate::diagnostic::Diagnostic;
 use crate::lang::{Correction, Gate, Literal, ReportRequest, Spanned, SsKind};
@@ -46,6 +47,8 @@ impl Session<'_> {
             } => {
                 let alpha = alpha_of(alpha)?;
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, Role::Factor, [factor])?;
+                self.named_in_model(m, Role::Covariate, covariate)?;
                 let known: Vec<&crate::model::Fit> = self.models.iter().map(|e| &e.fit).collect();
                 let s = m
                     .fit
@@ -56,7 +59,12 @@ impl Session<'_> {
                         &known,
                     )
                     .map_err(|e| {
-                        Diagnostic::new(factor.span, e.to_string()).label("cannot test this")
+                        // At the words the error is about: `of X` unless it is about `for F`.
+                        let at = match covariate {
+                            Some(c) if factor_named(&e) != Some(factor.value.as_str()) => c.span,
+                            _ => factor.span,
+                        };
+                        Diagnostic::new(at, e.to_string()).label("cannot test this")
                     })?;
                 (
                     s.equality_p >= alpha,
@@ -242,7 +250,11 @@ impl Session<'_> {
                         let names: Vec<&str> = a.rows.iter().map(|r| r.term.as_str()).collect();
                         Diagnostic::new(
                             term.span,
-                            format!("model `{}` has no term `{}`", m.name, term.value),
+                            format!(
+                                "model {} has no term {}",
+                                crate::report::markdown::code(&m.name),
+                                crate::report::markdown::code(&term.value)
+                            ),
                         )
                         .label("unknown term")
                         .help(format!("its terms are {}", names.join(", ")))
@@ -271,6 +283,7 @@ impl Session<'_> {
                 correction,
             } => {
                 let m = self.model_entry(model)?;
+                self.named_in_model(m, Role::Factor, [factor])?;
                 let adjust = correction.as_ref().map_or(Correction::Tukey, |c| c.value);
                 if let (Some(c), Correction::Dunnett) = (correction, adjust) {
                     return Err(Diagnostic::new(
@@ -299,14 +312,15 @@ impl Session<'_> {
                         }
                     })
                     .ok_or_else(|| {
-                        Diagnostic::new(
-                            first.span,
-                            format!(
-                                "`{}` and `{}` are not two levels of `{}` in model `{}`",
-                                first.value, second.value, factor.value, m.name
-                            ),
-                        )
-                        .label("unknown pair")
+                        let mut levels: Vec<String> = Vec::new();
+                        for p in &pairs {
+                            for l in [&p.first, &p.second] {
+                                if !levels.contains(l) {
+                                    levels.push(l.clone());
+                                }
+                            }
+                        }
+                        unknown_pair(first, second, &factor.value, &m.name, &levels)
                     })?;
                 let sign = if flip { -1.0 } else { 1.0 };
                 let limits = match (pair.lower, pair.upper) {
@@ -339,6 +353,44 @@ impl Session<'_> {
     }
 }
 
+/// The error of `report M differences F between A and B` when A and B are not two levels of
+/// F with rows in model M (whose levels of F are `levels`), at the first that is not one. The
+/// language server gives the same.
+pub(crate) fn unknown_pair(
+    first: &Spanned<String>,
+    second: &Spanned<String>,
+    factor: &str,
+    model: &str,
+    levels: &[String],
+) -> Diagnostic {
+    let at = [first, second]
+        .into_iter()
+        .find(|l| !levels.contains(&l.value))
+        .unwrap_or(second);
+    let listed: Vec<String> = levels.iter().map(|l| code(l)).collect();
+    Diagnostic::new(
+        at.span,
+        format!(
+            "{} and {} are not two levels of {} in model {}",
+            code(&first.value),
+            code(&second.value),
+            code(factor),
+            code(model)
+        ),
+    )
+    .label(if first.value == second.value {
+        "the same level twice"
+    } else {
+        "not a level here"
+    })
+    .help(format!(
+        "name two different levels of {}; its levels in model {}: {}",
+        code(factor),
+        code(model),
+        listed.join(", ")
+    ))
+}
+
 /// The error of `require balance X by F in M` when F is not a factor (`factor`) or X not a
 /// numeric covariate of model M. The language server gives the same.
 pub(crate) fn balance_not_in_model(
@@ -353,7 +405,11 @@ pub(crate) fn balance_not_in_model(
     };
     Diagnostic::new(
         name.span,
-        format!("`{}` is not {what} of model `{model}`", name.value),
+        format!(
+            "{} is not {what} of model {model}",
+            crate::report::markdown::code(&name.value),
+            model = crate::report::markdown::code(model)
+        ),
     )
     .label("not in the model")
     .help(format!(
