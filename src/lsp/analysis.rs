@@ -20,7 +20,9 @@ use crate::session::data_statements::{
     quote_name, text_for_number, unknown_data_set, unknown_value,
 };
 use crate::session::model_statements::{column_not_in_model, confidence, Role};
-use crate::session::plot_statements::{kind_word, listing};
+use crate::session::plot_statements::{
+    kind_word, listing, no_factor, not_a_factor, several_factors,
+};
 use crate::session::procedure_statements::{balance_not_in_model, unknown_pair};
 use crate::session::{closest, no_data_set, unknown_model};
 
@@ -1411,54 +1413,13 @@ impl<'c> Walk<'c> {
         let needs_factor = matches!(kind, PlotKind::Means | PlotKind::Groups);
         match factor {
             Some(named) if !factors.contains(&named.value.as_str()) => {
-                let help = if factors.is_empty() {
-                    format!(
-                        "model {} has no factor",
-                        crate::report::markdown::code(&model.value)
-                    )
-                } else {
-                    format!("its factors are {}", listing(&factors))
-                };
-                self.error(
-                    Diagnostic::new(
-                        named.span,
-                        format!(
-                            "{} is not a factor of model {}",
-                            crate::report::markdown::code(&named.value),
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("not a factor of this model")
-                    .help(help),
-                );
+                self.error(not_a_factor(named, model, &factors));
             }
             None if needs_factor && factors.is_empty() => {
-                self.error(
-                    Diagnostic::new(
-                        model.span,
-                        format!(
-                            "model {} has no factor",
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("no factor")
-                    .help(format!(
-                        "`plot {word}` shows the levels of a factor of the model"
-                    )),
-                );
+                self.error(no_factor(model, word));
             }
             None if (needs_factor || kind == PlotKind::Lines) && factors.len() > 1 => {
-                self.error(
-                    Diagnostic::new(
-                        model.span,
-                        format!(
-                            "model {} has several factors",
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("which factor?")
-                    .help(format!("name one with `for`: {}", listing(&factors))),
-                );
+                self.error(several_factors(model, &factors));
             }
             _ => {}
         }

@@ -31,6 +31,51 @@ pub(crate) fn listing(names: &[&str]) -> String {
     }
 }
 
+/// The figure names a factor that is not one of the model's.
+pub(crate) fn not_a_factor(
+    named: &Spanned<String>,
+    model: &Spanned<String>,
+    factors: &[&str],
+) -> Diagnostic {
+    let help = if factors.is_empty() {
+        format!("model {} has no factor", code(&model.value))
+    } else {
+        format!("its factors are {}", listing(factors))
+    };
+    Diagnostic::new(
+        named.span,
+        format!(
+            "{} is not a factor of model {}",
+            code(&named.value),
+            code(&model.value)
+        ),
+    )
+    .label("not a factor of this model")
+    .help(help)
+}
+
+/// A figure of a factor's levels asked of a model without one.
+pub(crate) fn no_factor(model: &Spanned<String>, word: &str) -> Diagnostic {
+    Diagnostic::new(
+        model.span,
+        format!("model {} has no factor", code(&model.value)),
+    )
+    .label("no factor")
+    .help(format!(
+        "`plot {word}` shows the levels of a factor of the model"
+    ))
+}
+
+/// A figure that needs one factor, of a model with several, none named.
+pub(crate) fn several_factors(model: &Spanned<String>, factors: &[&str]) -> Diagnostic {
+    Diagnostic::new(
+        model.span,
+        format!("model {} has several factors", code(&model.value)),
+    )
+    .label("which factor?")
+    .help(format!("name one with `for`: {}", listing(factors)))
+}
+
 impl Session<'_> {
     pub(super) fn plot(
         &mut self,
@@ -168,56 +213,17 @@ impl Session<'_> {
         let f = match factor {
             Some(fa) => match factors.iter().find(|(_, n)| *n == fa.value) {
                 Some(&(i, _)) => Some(i),
-                None => {
-                    let help = if factor_names.is_empty() {
-                        format!(
-                            "model {} has no factor",
-                            crate::report::markdown::code(&model.value)
-                        )
-                    } else {
-                        format!("its factors are {}", listing(&factor_names))
-                    };
-                    return Err(Diagnostic::new(
-                        fa.span,
-                        format!(
-                            "{} is not a factor of model {}",
-                            crate::report::markdown::code(&fa.value),
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("not a factor of this model")
-                    .help(help));
-                }
+                None => return Err(not_a_factor(fa, model, &factor_names)),
             },
             None => match factors.as_slice() {
                 // A figure that does not need a factor leaves out one with more levels
                 // than it can tell apart, rather than fail.
                 [(i, _)] if !needs_factor && kind != PlotKind::Lines && too_many(*i) => None,
                 [(i, _)] => Some(*i),
-                [] if needs_factor => {
-                    return Err(Diagnostic::new(
-                        model.span,
-                        format!(
-                            "model {} has no factor",
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("no factor")
-                    .help(format!(
-                        "`plot {word}` shows the levels of a factor of the model"
-                    )))
-                }
+                [] if needs_factor => return Err(no_factor(model, word)),
                 [] => None,
                 _ if needs_factor || kind == PlotKind::Lines => {
-                    return Err(Diagnostic::new(
-                        model.span,
-                        format!(
-                            "model {} has several factors",
-                            crate::report::markdown::code(&model.value)
-                        ),
-                    )
-                    .label("which factor?")
-                    .help(format!("name one with `for`: {}", listing(&factor_names))))
+                    return Err(several_factors(model, &factor_names))
                 }
                 _ => None,
             },
