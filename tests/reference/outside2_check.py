@@ -37,6 +37,7 @@ from scipy import optimize, stats
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from comparisons import product_form_cdf, product_form_quantile  # noqa: E402
+from outside_check import dot, inverse, plan_power, quad, solve, sqrt_fr  # noqa: E402
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(os.path.dirname(HERE))
@@ -73,39 +74,6 @@ def make_data():
 
 
 # ---------------------------------------------------------------- exact linear algebra
-
-
-def solve(a, b):
-    """Exact solution of a x = b (a square, nonsingular) by Gauss-Jordan on Fractions; b may be
-    a matrix (list of columns)."""
-    n = len(a)
-    cols = b if isinstance(b[0], list) else [b]
-    m = [list(a[i]) + [c[i] for c in cols] for i in range(n)]
-    for k in range(n):
-        piv = next(i for i in range(k, n) if m[i][k] != 0)
-        m[k], m[piv] = m[piv], m[k]
-        inv = 1 / m[k][k]
-        m[k] = [v * inv for v in m[k]]
-        for i in range(n):
-            if i != k and m[i][k] != 0:
-                f = m[i][k]
-                m[i] = [vi - f * vk for vi, vk in zip(m[i], m[k])]
-    out = [[m[i][n + j] for i in range(n)] for j in range(len(cols))]
-    return out if isinstance(b[0], list) else out[0]
-
-
-def inverse(a):
-    n = len(a)
-    eye = [[Fr(int(i == j)) for i in range(n)] for j in range(n)]
-    return [list(r) for r in zip(*solve(a, eye))]
-
-
-def dot(u, v):
-    return sum(x * y for x, y in zip(u, v))
-
-
-def quad(l, v):
-    return dot(l, [dot(r, l) for r in v])
 
 
 def bilinear(a, b, v):
@@ -346,13 +314,6 @@ def undefined(quantity, where):
 def text(quantity, needle, source):
     """A sentence covey must write (in the rendered Markdown), with numbers from `source`."""
     texts.append({"quantity": quantity, "text": needle, "source": source})
-
-
-def sqrt_fr(x):
-    """sqrt of a Fraction to double precision, correctly rounded via integer sqrt."""
-    x = Fr(x)
-    scale = 10 ** 40
-    return math.isqrt(x.numerator * scale * scale // x.denominator) / scale
 
 
 def tables(doc):
@@ -812,12 +773,6 @@ def pilot(terms, weighted=False):
     factors = [u for u in terms if all(p in LEVELS for p in u)]
     small = fit(factors, weighted)
     return fm, (small.rss - fm.rss) / small.rss
-
-
-def plan_power(k, n_total, f, r2, c, alpha=0.05):
-    df2 = n_total - k - c
-    crit = stats.f.isf(alpha, k - 1, df2)
-    return stats.ncf.sf(crit, k - 1, df2, n_total * f * f / (1 - r2))
 
 
 def n_for(k, f, r2, c, target):
