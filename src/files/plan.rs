@@ -19,6 +19,7 @@
 //! (nothing, or those bytes), so a file that changes between the plan and
 //! the write is not overwritten either.
 
+use std::collections::{HashMap, HashSet};
 use std::fs;
 use std::path::{Path, PathBuf};
 
@@ -185,7 +186,9 @@ impl Plan {
                     refusals.push(Refusal {
                         path: set.dir.clone(),
                         reason: format!(
-                            "the figures of {} would go into this folder, but so would those of                              {}: documents with the same name need different --out folders;                              render them one folder at a time",
+                            "the figures of {} would go into this folder, but so would those of \
+                             {}: documents with the same name need different --out folders; \
+                             render them one folder at a time",
                             set.doc.display(),
                             other.display()
                         ),
@@ -257,8 +260,9 @@ impl Plan {
                 });
             }
             if let Some((old_list, _)) = &old {
+                let new_names: HashSet<&str> = new_list.iter().map(|(n, _)| n.as_str()).collect();
                 for (name, digest) in old_list {
-                    if !new_list.iter().any(|(n, _)| n == name) {
+                    if !new_names.contains(name.as_str()) {
                         removals.push((set.dir.join(name), *digest));
                     }
                 }
@@ -281,14 +285,13 @@ impl Plan {
 
         // The document written in place goes last (see `Batch`).
         outputs.sort_by_key(|o| o.role == Role::Source);
-        // Every path taken so far: (location, what it is, whose).
-        let mut taken: Vec<(PathBuf, String, PathBuf)> = claims
-            .into_iter()
-            .map(|(path, doc)| {
-                let what = format!("an output of {}", doc.display());
-                (location(&path), what, doc)
-            })
-            .collect();
+        // Every path taken so far: location -> (what it is, whose). A map, not a list: a long
+        // document has tens of thousands of figures, and each is looked up.
+        let mut taken: HashMap<PathBuf, (String, PathBuf)> = HashMap::new();
+        for (path, doc) in claims {
+            let what = format!("an output of {}", doc.display());
+            taken.entry(location(&path)).or_insert((what, doc));
+        }
         let mut batch = Batch::new();
         for out in outputs {
             let here = location(&out.path);
@@ -305,7 +308,7 @@ impl Plan {
                 refusals.push(refuse(too_long(&out.path, hint)));
                 continue;
             }
-            if let Some((_, other, whose)) = taken.iter().find(|(p, _, _)| *p == here) {
+            if let Some((other, whose)) = taken.get(&here) {
                 let hint = if *whose == out.doc {
                     out.role.instead()
                 } else {
@@ -338,7 +341,7 @@ impl Plan {
             }
             // Taken from here on, even if refused below: the path is this
             // output's, and no other output of the run may have it.
-            taken.push((here.clone(), mine.clone(), out.doc.clone()));
+            taken.insert(here.clone(), (mine.clone(), out.doc.clone()));
             let meta = match fs::symlink_metadata(&out.path) {
                 Ok(m) => Some(m),
                 Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
