@@ -295,6 +295,13 @@ fn two_documents_of_one_name_cannot_share_an_out_folder() {
         "site/doc.rendered.md",
         "documents with the same name need different --out folders",
     );
+    // The figures folder is refused in one sentence, without runs of spaces left by a broken
+    // line continuation in its message.
+    assert!(
+        err.contains("would go into this folder, but so would those of "),
+        "{err}"
+    );
+    assert!(!err.contains("  "), "{err}");
     assert!(!dir.join("site").exists(), "nothing written: {err}");
     // The same document named twice is rendered once.
     let (code, err) = covey(&dir, &["render", "a/doc.md", "a/./doc.md"]);
