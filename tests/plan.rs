@@ -431,7 +431,7 @@ mod statements {
     /// caused it.
     #[test]
     fn bad_plans_are_errors_at_their_words() {
-        let cases: [(&str, &str, &str); 23] = [
+        let cases: [(&str, &str, &str); 27] = [
             (
                 "plan p for 2.5 groups effect f 0.3 power 0.8",
                 "2.5",
@@ -542,6 +542,29 @@ mod statements {
                 "0.1, 0, 0.3",
                 "each effect size f must be above 0",
             ),
+            // An effect size beyond any trial: f given, f from means far apart for their SD
+            // (means 1e300 apart made f infinite, and the plan showed no f and no λ beside a
+            // power of 1), and a power figure's line.
+            (
+                "plan p for 3 groups effect f 1e9 power 0.8",
+                "1e9",
+                "an effect size f must be from 0 to 1000000",
+            ),
+            (
+                "plan p for 3 groups effect means 1, 1, 1e300 sd 1 power 0.8",
+                "1, 1, 1e300",
+                "these means make an effect size f above the 1000000 a plan takes",
+            ),
+            (
+                "plan p for 3 groups effect means 1, 2, 3 sd 1e-300 n 5",
+                "1, 2, 3",
+                "these means make an effect size f of 8.165e299, above the 1000000 a plan takes",
+            ),
+            (
+                "plan q for 3 groups effect f 0.3 power 0.8\nplot power q by f 0.1, 2e6",
+                "0.1, 2e6",
+                "each effect size f must be above 0 and at most 1000000",
+            ),
             (
                 "plan q for 3 groups effect f 0.3 power 0.8\nplot power q by r2 0, 1",
                 "0, 1",
@@ -567,6 +590,47 @@ mod statements {
                 "{statement}\nexpected {head}... {message}\ngot {error}"
             );
         }
+    }
+
+    /// Values far from the usual: an alpha of 1e-300 printed 300 zeros in the table and read
+    /// "alpha 0" in the note; an f of 1e-9 in a figure's legend 0.000000001; an R² of
+    /// 0.9999999 read "R² 1" in a legend (a value refused as input) and a level of 0.999999
+    /// "upper 100%".
+    #[test]
+    fn extreme_values_are_written_as_what_they_are() {
+        let doc = format!(
+            "{SETUP}```covey\nplan a for 3 groups effect f 0.25 alpha 1e-300 power 0.8\nplan b for 3 groups with 1 covariate explaining 0.5 effect f 0.25 n 5\nplot power b by r2 0.9999999, 0.5\nplot power b by f 1e-9, 0.25\nplan c for 3 groups with 1 covariate effect means 1, 2, 3 n 5 from par upper 0.999999\n```\n"
+        );
+        let r = run(&doc);
+        assert!(r.errors.is_empty(), "{}", r.errors.join("\n"));
+        let md = &r.rendered;
+        assert!(md.contains("| 1e-300 |"), "{md}");
+        assert!(!md.contains("0.0000000000000000"), "{md}");
+        assert!(md.contains("at alpha 1e-300."), "{md}");
+        assert!(md.contains("With R² 0.9999999 the power"), "{md}");
+        assert!(!md.contains("R² 1 "), "{md}");
+        assert!(md.contains("With effect f 1e-9 it does not reach"), "{md}");
+        assert!(md.contains("upper 99.9999% confidence limit"), "{md}");
+    }
+
+    /// A pilot with one residual degree of freedom: the plan works, the warning says so in the
+    /// singular, and when the upper limit of its SD changes nothing the warning says "still"
+    /// (it said "needs 2 per group instead of 2" and "the power is above 0.999 instead of
+    /// above 0.999").
+    #[test]
+    fn a_pilot_with_one_residual_degree_of_freedom() {
+        let data = "g,x,y\na,1,2\na,2,3.1\nb,1,4\nb,2,5.2\nc,3,7\n";
+        let doc = "# Tiny\n\n```covey\nload \"d.csv\"\nfactor g\nmodel m: y on g + x\nplan a for 3 groups with 1 covariate effect means 1, 2, 3 power 0.8 from m\nplan c for 3 groups with 1 covariate effect means 1, 2, 3 n 5 from m\n```\n";
+        let world = MemoryWorld::new().with("d.csv", data);
+        let r = pipeline::run(doc, "doc.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+        assert!(r.errors.is_empty(), "{}", r.errors.join("\n"));
+        let md = &r.rendered;
+        assert!(md.contains("(5 rows, 1 residual degree of freedom)"), "{md}");
+        assert!(md.contains("leaves only 1 residual degree of freedom,"), "{md}");
+        assert!(md.contains("with it the plan still needs 2 per group."), "{md}");
+        assert!(md.contains("with it the power is still above 0.999."), "{md}");
+        assert!(!md.contains(" instead of 2."), "{md}");
     }
 
     #[test]

@@ -63,11 +63,24 @@ pub fn p_value(p: Option<f64>) -> String {
     }
 }
 
-/// Shortest text that reads back as the same double.
+/// From this magnitude up, and below [`EXACT_SMALL`], an exact number is written with an
+/// exponent: Rust's plain form of 1e-300 is 300 zeros and a 1, of 1e300 a 301-digit integer.
+/// The bounds are those of ECMAScript's Number-to-String (common practice), so every value an
+/// analysis meets in practice keeps its plain form.
+const EXACT_LARGE: f64 = 1e21;
+/// See [`EXACT_LARGE`].
+const EXACT_SMALL: f64 = 1e-6;
+
+/// Shortest text that reads back as the same double: plain, or with an exponent (`1e-300`)
+/// when the magnitude is below [`EXACT_SMALL`] or from [`EXACT_LARGE`] up.
 pub fn exact(v: Option<f64>) -> String {
     match v {
         Some(x) if x.is_finite() => {
-            let s = format!("{x}");
+            let s = if x != 0.0 && !(EXACT_SMALL..EXACT_LARGE).contains(&x.abs()) {
+                format!("{x:e}")
+            } else {
+                format!("{x}")
+            };
             if s == "-0" {
                 "0".into()
             } else {
@@ -266,6 +279,20 @@ mod tests {
             digits(&[Some(-0.0), Some(2.0e-7)], 3),
             vec!["0.00e0", "2.00e-7"]
         );
+    }
+
+    /// alpha 1e-300 in a plan's table printed 300 zeros before its 1.
+    #[test]
+    fn exact_values_far_from_one_take_an_exponent() {
+        assert_eq!(exact(Some(1e-300)), "1e-300");
+        assert_eq!(exact(Some(-2.5e300)), "-2.5e300");
+        assert_eq!(exact(Some(1e21)), "1e21");
+        assert_eq!(exact(Some(123_456_789_012.5)), "123456789012.5");
+        assert_eq!(exact(Some(0.000_001)), "0.000001");
+        assert_eq!(exact(Some(9.5e-7)), "9.5e-7");
+        for v in [1e-300, 5e-324, 1.7976931348623157e308, 0.1 + 0.2, 9.5e-7] {
+            assert_eq!(exact(Some(v)).parse::<f64>().ok(), Some(v), "{v}");
+        }
     }
 
     #[test]

@@ -21,6 +21,11 @@ const MAX_COVARIATES: u64 = 1000;
 /// Largest entry of an allocation ratio.
 const MAX_RATIO: u64 = 1000;
 
+/// Largest effect size f a plan takes: Cohen calls 0.4 a large effect, so a million is far
+/// beyond any trial, and the bound keeps N f² finite (means 1e300 apart made f infinite, and
+/// the table showed no f and no λ beside a power of 1).
+const MAX_EFFECT: f64 = 1e6;
+
 /// Confidence level of the upper limit of a pilot's SD that a small-pilot warning offers:
 /// planning with the one-sided upper 80% limit gives at least the intended power in about
 /// 80% of pilots (R. H. Browne, "On the use of a pilot sample for sample size
@@ -79,34 +84,57 @@ impl PilotUse {
 
 /// A number shown in a sentence: four significant digits, trailing zeros dropped.
 fn short(v: f64) -> String {
+    significant(v, 4)
+}
+
+/// A value in a figure's legend: three significant digits, as the plan's table shows R²
+/// and f.
+fn label(v: f64) -> String {
+    significant(v, 3)
+}
+
+/// Below this magnitude, and from [`SENTENCE_LARGE`] up, a number in a sentence or legend is
+/// written with an exponent: plain, 1e-9 was "0.000000001" and 1e-15 rounded to "0".
+const SENTENCE_SMALL: f64 = 1e-4;
+/// See [`SENTENCE_SMALL`]: 1e300 printed 301 digits.
+const SENTENCE_LARGE: f64 = 1e9;
+
+/// `v` with `sig` significant digits, trailing zeros dropped; with an exponent (`6e18`,
+/// `2.5e-7`) outside [[`SENTENCE_SMALL`], [`SENTENCE_LARGE`]).
+fn significant(v: f64, sig: i32) -> String {
     if !v.is_finite() {
         return "—".to_string();
     }
     if v == 0.0 {
         return "0".to_string();
     }
-    let decimals = (3 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
-    let s = format!("{v:.decimals$}");
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
+    let trim = |s: String| {
+        if s.contains('.') {
+            s.trim_end_matches('0').trim_end_matches('.').to_string()
+        } else {
+            s
+        }
+    };
+    if !(SENTENCE_SMALL..SENTENCE_LARGE).contains(&v.abs()) {
+        let prec = (sig - 1).max(0) as usize;
+        let s = format!("{v:.prec$e}");
+        let (mantissa, exponent) = s.split_once('e').unwrap_or((&s, "0"));
+        return format!("{}e{exponent}", trim(mantissa.to_string()));
     }
+    let decimals = (sig - 1 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
+    trim(format!("{v:.decimals$}"))
 }
 
-/// A value in a figure's legend: three significant digits, as the plan's table shows R²
-/// and f.
-fn label(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return short(v);
+/// `v` as [`significant`] shows it, with more digits if rounding would make it read as
+/// `bound`, a value it is not (an R² of 0.99999 is no "1", a level of 0.999999 no "100%").
+fn short_of(v: f64, bound: f64, sig: i32) -> String {
+    let mut s = significant(v, sig);
+    let mut sig = sig;
+    while v != bound && sig < 17 && s.parse::<f64>().ok() == Some(bound) {
+        sig += 1;
+        s = significant(v, sig);
     }
-    let decimals = (2 - v.abs().log10().floor() as i32).clamp(0, 12) as usize;
-    let s = format!("{v:.decimals$}");
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
+    s
 }
 
 /// A power shown in a sentence: three decimals, and never a rounded 1, which would claim
@@ -323,11 +351,16 @@ impl Session<'_> {
         let shares = design.shares();
         let (f_given, effect_span) = match &decl.effect {
             PlanEffect::F(v) => {
-                if v.value < 0.0 {
-                    return Err(
-                        Diagnostic::new(v.span, "an effect size f must be 0 or more")
-                            .label("out of range"),
-                    );
+                if !(0.0..=MAX_EFFECT).contains(&v.value) {
+                    return Err(Diagnostic::new(
+                        v.span,
+                        format!(
+                            "an effect size f must be from 0 to {}",
+                            short(MAX_EFFECT)
+                        ),
+                    )
+                    .label("out of range")
+                    .help("Cohen calls f = 0.1 small, 0.25 medium and 0.4 large"));
                 }
                 (Some(v.value), v.span)
             }
@@ -350,7 +383,27 @@ impl Session<'_> {
                     .label("SD needed")
                     .help("add `sd S` after the means, or take the SD from a fitted pilot with `from MODEL`"));
                 };
-                (Some(effect_of_means(&means.value, &shares, s)), means.span)
+                let f = effect_of_means(&means.value, &shares, s);
+                if !(f <= MAX_EFFECT) {
+                    return Err(Diagnostic::new(
+                        means.span,
+                        format!(
+                            "these means make an effect size f {}above the {} a plan takes",
+                            if f.is_finite() {
+                                format!("of {}, ", short(f))
+                            } else {
+                                String::new()
+                            },
+                            short(MAX_EFFECT)
+                        ),
+                    )
+                    .label("too far apart for the SD")
+                    .help(format!(
+                        "the SD within groups is {}: check that the means and the SD are in the same units",
+                        short(s)
+                    )));
+                }
+                (Some(f), means.span)
             }
             PlanEffect::Detectable { .. } => {
                 (None, decl.power.as_ref().map_or(decl.name.span, |p| p.span))
@@ -459,11 +512,15 @@ impl Session<'_> {
         let (legend, values_span) = match lines {
             Some(PowerLines::Effects(v)) => {
                 for &f in &v.value {
-                    if !(f > 0.0 && f.is_finite()) {
-                        return Err(
-                            Diagnostic::new(v.span, "each effect size f must be above 0")
-                                .label("out of range"),
-                        );
+                    if !(f > 0.0 && f <= MAX_EFFECT) {
+                        return Err(Diagnostic::new(
+                            v.span,
+                            format!(
+                                "each effect size f must be above 0 and at most {}",
+                                short(MAX_EFFECT)
+                            ),
+                        )
+                        .label("out of range"));
                     }
                     specs.push((label(f), d.clone(), f));
                 }
@@ -635,7 +692,7 @@ fn r_squared_line(d: &Design, r: f64, f: f64) -> (String, Design, f64) {
         ("0 (no covariate)".to_string(), line, f)
     } else {
         line.covariates = d.covariates.max(1);
-        (label(r), line, f)
+        (short_of(r, 1.0, 3), line, f)
     }
 }
 
@@ -785,13 +842,13 @@ fn input_notes(
             (1, Some(_)) => format!(
                 "the partial correlation of the response with {} given its other terms is r = {} (r² = {})",
                 covs.join(", "),
-                short(r),
-                short(p.info.partial_r_squared)
+                short_of(r, r.signum(), 4),
+                short_of(p.info.partial_r_squared, 1.0, 4)
             ),
             _ => format!(
                 "its covariates {} explain r² = {} of the variance its other terms leave",
                 covs.join(", "),
-                short(p.info.partial_r_squared)
+                short_of(p.info.partial_r_squared, 1.0, 4)
             ),
         };
         let weight_one = if p.info.weighted {
@@ -803,7 +860,7 @@ fn input_notes(
             Some(l) => format!(
                 "its residual SD is {}{weight_one}, planned with its one-sided upper {}% confidence limit {}",
                 short(p.info.sigma),
-                short(l * 100.0),
+                short_of(l * 100.0, 100.0, 4),
                 short(p.sigma)
             ),
             None => format!("its residual SD is {}{weight_one}", short(p.info.sigma)),
@@ -822,7 +879,7 @@ fn input_notes(
             ));
         }
         if r_squared_from_pilot {
-            uses.push(format!("R² = r² = {}", short(d.r_squared)));
+            uses.push(format!("R² = r² = {}", short_of(d.r_squared, 1.0, 4)));
         }
         let uses = if uses.is_empty() {
             "The plan takes nothing from it: its own values are written in the statement."
@@ -831,10 +888,14 @@ fn input_notes(
             format!("The plan takes {} from it.", uses.join(", and "))
         };
         notes.push(format!(
-            "Pilot: model {} ({} rows, {} residual degrees of freedom): {sigma}; {correlation}. {uses}",
+            "Pilot: model {} ({}, {}): {sigma}; {correlation}. {uses}",
             code(&p.name),
-            p.info.n,
-            p.info.df_residual
+            count(p.info.n as u64, "row", "rows"),
+            count(
+                p.info.df_residual as u64,
+                "residual degree of freedom",
+                "residual degrees of freedom"
+            )
         ));
     }
     match &decl.effect {
@@ -961,6 +1022,10 @@ fn small_pilot_warning(
             short(f * p.sd_without)
         ),
         (_, Some(goal), None) => match d.n_for_power(f_upper, goal.value) {
+            Ok(u) if u.n == result.n => format!(
+                "with it the plan still needs {} {per}",
+                u.n
+            ),
             Ok(u) => format!(
                 "with it the plan needs {} {per} instead of {}",
                 u.n, result.n
@@ -968,18 +1033,26 @@ fn small_pilot_warning(
             Err(_) => "with it no realistic trial reaches the target power".to_string(),
         },
         _ => match d.power(f_upper, result.n) {
+            Ok(u) if power_text(u.power) == power_text(result.power) => format!(
+                "with it the power is still {}",
+                power_text(u.power)
+            ),
             Ok(u) => format!(
                 "with it the power is {} instead of {}",
                 power_text(u.power),
                 power_text(result.power)
             ),
-            Err(_) => String::new(),
+            Err(_) => "with it no power can be computed for this design".to_string(),
         },
     };
     Some(format!(
-        "The pilot model {} leaves only {} residual degrees of freedom, so its SD is uncertain: the one-sided upper {}% confidence limit of its residual SD is {}, {}% above the estimate {}. Planning with that limit is the conservative choice (Browne 1995): write {}; {consequence}.",
+        "The pilot model {} leaves only {}, so its SD is uncertain: the one-sided upper {}% confidence limit of its residual SD is {}, {}% above the estimate {}. Planning with that limit is the conservative choice (Browne 1995): write {}; {consequence}.",
         code(&p.name),
-        p.info.df_residual,
+        count(
+            p.info.df_residual as u64,
+            "residual degree of freedom",
+            "residual degrees of freedom"
+        ),
         short(PILOT_LEVEL * 100.0),
         short(upper),
         short((excess * 100.0).round()),
