@@ -9,6 +9,11 @@ use crate::report::{json, live, markdown, InputRecord, Item, Output};
 use crate::session::Session;
 use crate::world::World;
 
+/// The warning for a covey block inside a list, block quote or footnote, which is not run (the
+/// renderer's and the language server's words).
+pub const NESTED_BLOCK: &str =
+    "a covey block inside a list or quote is not run; move it to the top level";
+
 /// How a run behaves on errors.
 #[derive(Debug, Clone, Default)]
 pub struct RunOptions {
@@ -251,7 +256,7 @@ pub fn run_with(
     }
     for line in &doc.ignored_nested {
         warnings.push(for_terminal(format!(
-            "{file_name}:{line}: warning: a covey block inside a list or quote is not run; move it to the top level"
+            "{file_name}:{line}: warning: {NESTED_BLOCK}"
         )));
     }
 

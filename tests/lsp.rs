@@ -1569,3 +1569,110 @@ fn render_in_place(path: &std::path::Path) -> String {
     assert_eq!(report.verdict, covey::Verdict::Ok, "{:?}", report.lines);
     std::fs::read_to_string(path).unwrap_or_default()
 }
+
+/// Found by an adversarial review of the server. A lone CR ends a line for the protocol and for
+/// the renderer, but the server counted lines at LF only: the renderer's error at 6:13 of a
+/// lone-CR document came as line 0, character 37, drawn at the end of the first line, and
+/// every later one was a line early. A covey block in a list or a block quote, which the
+/// renderer warns is not run, drew nothing in the editor. Completion inside a quoted text
+/// (`load "d|`) offered the keyword `database` in place of the quote and the letters after it.
+#[test]
+fn lone_carriage_returns_nested_blocks_and_quoted_texts() {
+    let dir = workspace("review");
+    std::fs::write(dir.join("d.csv"), "g,x,y\na,1,2\nb,2,3\na,3,4\nb,4,6\n")
+        .unwrap_or_else(|e| panic!("{e}"));
+    let (mut client, _) = Client::initialized(Options::default(), json!({}));
+
+    // Lone CRs, then CRLF, an astral character and a combining mark before the error.
+    let text = "# t\r\rSome text\r\r```covey\rload \"d.csv\"\rbogus here\r```\r";
+    let doc = uri(&dir.join("cr.md"));
+    client.open(&doc, text);
+    let problems = client.diagnostics_of(&doc, 1);
+    let rendered = render_errors(text, &dir);
+    assert_eq!(rendered.len(), 1, "{rendered:?}");
+    let (l, c, m) = &rendered[0];
+    assert_eq!((*l, *c), (6, 13), "{rendered:?}");
+    assert_eq!(problems.len(), 1, "{problems:?}");
+    assert_eq!(
+        problems[0]["range"]["start"],
+        json!({"line": l - 1, "character": c - 1}),
+        "{problems:?}"
+    );
+    assert_eq!(problems[0]["message"].as_str(), Some(m.as_str()));
+
+    let text = "# t\r\n\r\n\u{1F600}e\u{301} text\r\n\r\n```covey\r\nload \"d.csv\" # \u{1F600}\rbogus\r\n```\r\n";
+    let doc = uri(&dir.join("mixed.md"));
+    client.open(&doc, text);
+    let problems = client.diagnostics_of(&doc, 1);
+    let rendered = render_errors(text, &dir);
+    assert!(!rendered.is_empty());
+    // The lines as the protocol splits them, and the renderer's column (in characters) in
+    // UTF-16 units.
+    let lines: Vec<&str> = text.split("\r\n").flat_map(|l| l.split('\r')).collect();
+    assert_eq!(lines.len(), 9);
+    for (l, c, m) in &rendered {
+        let character: usize = lines[l - 1].chars().take(c - 1).map(char::len_utf16).sum();
+        assert!(
+            problems.iter().any(|p| p["range"]["start"]
+                == json!({"line": l - 1, "character": character})
+                && p["message"].as_str() == Some(m.as_str())),
+            "the renderer's {l}:{c} {m} is not at {}:{character} in {problems:?}",
+            l - 1
+        );
+    }
+    assert!(
+        rendered.iter().any(|(l, c, _)| (*l, *c) == (6, 17)),
+        "{rendered:?}"
+    );
+
+    // A covey block in a list item and in a block quote: a warning at its fence.
+    let text =
+        "# t\n\n- item\n\n  ```covey\n  load \"d.csv\"\n  ```\n\n> ```covey\n> bogus\n> ```\n";
+    let doc = uri(&dir.join("nested.md"));
+    client.open(&doc, text);
+    let problems = client.diagnostics_of(&doc, 1);
+    let warned: Vec<(Value, Value, Value)> = problems
+        .iter()
+        .map(|p| {
+            (
+                p["range"]["start"].clone(),
+                p["severity"].clone(),
+                p["message"].clone(),
+            )
+        })
+        .collect();
+    let words = covey::pipeline::NESTED_BLOCK;
+    assert_eq!(
+        warned,
+        vec![
+            (json!({"line": 4, "character": 2}), json!(2), json!(words)),
+            (json!({"line": 8, "character": 2}), json!(2), json!(words)),
+        ]
+    );
+    let world = FsWorld::new(&dir, false);
+    let run = pipeline::run(text, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    assert_eq!(
+        run.warnings,
+        vec![
+            format!("doc.md:5: warning: {words}"),
+            format!("doc.md:9: warning: {words}")
+        ]
+    );
+
+    // Inside a quoted text only quoted candidates; after it, the clauses.
+    let text = "# t\n\n```covey\nload \"d.csv\"\nfactor g levels \"a\", \"b\"\nmodel m: y on nosuch\n```\n";
+    let doc = uri(&dir.join("quoted.md"));
+    client.open(&doc, text);
+    // The data file is read once the column is known missing.
+    client.diagnostics_until(&doc, |d| !d.is_empty());
+    for (line, character) in [(3, 6), (3, 7), (3, 11)] {
+        let got = labels(&client.at("textDocument/completion", &doc, line, character));
+        assert!(got.is_empty(), "{line}:{character} {got:?}");
+    }
+    let got = labels(&client.at("textDocument/completion", &doc, 3, 5));
+    assert_eq!(got, vec!["database"]);
+    let got = labels(&client.at("textDocument/completion", &doc, 4, 17));
+    assert_eq!(got, vec!["a", "b"]);
+    assert_eq!(client.shutdown(), Ending::Clean);
+}

@@ -267,7 +267,7 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
         Ok(d) => d,
         Err(e) => {
             let at = offset_of(text, e.line(), e.column());
-            let line_end = text[at..].find('\n').map_or(text.len(), |i| at + i);
+            let line_end = text[at..].find(['\n', '\r']).map_or(text.len(), |i| at + i);
             let message = e.to_string();
             // The renderer says where before what; the editor shows where.
             let prefix = format!("line {}, column {}: ", e.line(), e.column());
@@ -384,6 +384,26 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
         }
     }
     a.shift = Shift::new(&doc);
+    // A covey block in a list or a block quote is not run: the renderer warns, and so does the
+    // server, at its opening fence (it used to say nothing, so the block looked checked).
+    let nested: Vec<Problem> = doc
+        .ignored_nested
+        .iter()
+        .map(|&line| {
+            let start = line_start(&doc.source, line);
+            let rest = &doc.source[start..];
+            let end = start + rest.find(['\n', '\r']).unwrap_or(rest.len());
+            let fence = rest[..end - start]
+                .find(['`', '~'])
+                .map_or(start, |i| start + i);
+            Problem {
+                span: a.span_to_given(Span { start: fence, end }),
+                severity: Severity::Warning,
+                message: pipeline::NESTED_BLOCK.to_string(),
+                help: None,
+            }
+        })
+        .collect();
     a.document = Some(doc);
     let mut problems: Vec<Problem> = source_problems
         .into_iter()
@@ -396,6 +416,8 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
         .collect();
     if unclosed {
         problems.clear();
+    } else {
+        problems.extend(nested);
     }
     problems.append(&mut a.problems);
     problems.sort_by_key(|p| (p.span.start, p.span.end));
@@ -403,8 +425,10 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
     a
 }
 
-/// The byte offset of a 1-based line and column (in characters) of `text`.
+/// The byte offset of a 1-based line and column (in characters) of `text`, its lines ended as
+/// the renderer ends them (a lone CR ends one too).
 fn offset_of(text: &str, line: usize, column: usize) -> usize {
+    let text = &*crate::diagnostic::lone_cr_as_lf(text);
     let start = line_start(text, line);
     let rest = &text[start..];
     let line_text = rest.split('\n').next().unwrap_or("");
@@ -415,11 +439,13 @@ fn offset_of(text: &str, line: usize, column: usize) -> usize {
             .map_or(line_text.len(), |(i, _)| i)
 }
 
-/// The byte offset where 1-based line `line` of `text` starts (the end when there is none).
+/// The byte offset where 1-based line `line` of `text` starts (the end when there is none); a
+/// lone CR ends a line, as for the renderer.
 fn line_start(text: &str, line: usize) -> usize {
     if line <= 1 {
         return 0;
     }
+    let text = &*crate::diagnostic::lone_cr_as_lf(text);
     text.match_indices('\n')
         .nth(line - 2)
         .map_or(text.len(), |(i, _)| i + 1)

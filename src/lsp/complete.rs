@@ -194,6 +194,12 @@ fn in_block(
         }
     }
     out.extend(words);
+    // Inside a quoted text being written a keyword does not fit: `database`, offered after
+    // `load "`, replaced the opening quote and the letters after it. A name (a level, a
+    // column) replaces the quote with itself, quoted when it must be.
+    if prefix[start..].starts_with('"') {
+        out.retain(|c| c.what != What::Keyword);
+    }
     let mut seen: Vec<String> = Vec::new();
     out.retain(|c| {
         let new = !seen.contains(&c.insert);

@@ -13,7 +13,10 @@ pub enum Encoding {
     Utf8,
 }
 
-/// The start of each line of a text.
+/// The start of each line of a text. A line ends at "\r\n", "\n" or a lone "\r", as the
+/// protocol says and as the renderer counts lines: a document with lone CRs, which the renderer
+/// refuses at the first one, had every line after it reported on line 0 at a character far past
+/// its end, which the editor drew at the end of the first line.
 #[derive(Debug, Clone)]
 pub struct Lines {
     starts: Vec<usize>,
@@ -21,12 +24,12 @@ pub struct Lines {
 
 impl Lines {
     pub fn new(text: &str) -> Lines {
+        let bytes = text.as_bytes();
         let mut starts = vec![0];
         starts.extend(
-            text.bytes()
-                .enumerate()
-                .filter(|(_, b)| *b == b'\n')
-                .map(|(i, _)| i + 1),
+            memchr::memchr2_iter(b'\n', b'\r', bytes)
+                .filter(|&i| bytes[i] == b'\n' || bytes.get(i + 1) != Some(&b'\n'))
+                .map(|i| i + 1),
         );
         Lines { starts }
     }
@@ -43,8 +46,12 @@ impl Lines {
         let Some(&start) = self.starts.get(line) else {
             return (text.len(), text.len());
         };
+        // The next line's start less its line ending: "\n", "\r", or "\r\n".
         let mut end = self.starts.get(line + 1).map_or(text.len(), |n| n - 1);
-        if end > start && text.as_bytes().get(end - 1) == Some(&b'\r') {
+        if end > start
+            && text.as_bytes().get(end) == Some(&b'\n')
+            && text.as_bytes().get(end - 1) == Some(&b'\r')
+        {
             end -= 1;
         }
         (start.min(text.len()), end.min(text.len()))
@@ -147,6 +154,36 @@ mod tests {
             lines.offset(text, Position::new(99, 0), Encoding::Utf16),
             text.len()
         );
+    }
+
+    /// A lone CR ends a line, as the protocol and the renderer say; CRLF is one ending.
+    #[test]
+    fn a_lone_carriage_return_ends_a_line() {
+        let text = "a\rbc\r\nd\n\re";
+        let lines = Lines::new(text);
+        let e = text.find('e').unwrap_or(0);
+        assert_eq!(
+            lines.position(text, e, Encoding::Utf16),
+            Position::new(4, 0)
+        );
+        let c = text.find('c').unwrap_or(0);
+        assert_eq!(
+            lines.position(text, c, Encoding::Utf16),
+            Position::new(1, 1)
+        );
+        assert_eq!(lines.line_span(text, 1), (2, 4));
+        assert_eq!(lines.line_span(text, 3), (8, 8));
+        assert_eq!(lines.offset(text, Position::new(0, 9), Encoding::Utf16), 1);
+        assert_eq!(lines.offset(text, Position::new(3, 0), Encoding::Utf16), 8);
+        for (offset, _) in text.char_indices() {
+            let (l, c) = crate::document::line_col(text, offset);
+            let p = lines.position(text, offset, Encoding::Utf16);
+            assert_eq!(
+                (p.line as usize + 1, p.character as usize + 1),
+                (l, c),
+                "{offset}"
+            );
+        }
     }
 
     #[test]
