@@ -626,10 +626,22 @@ mod statements {
             .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
         assert!(r.errors.is_empty(), "{}", r.errors.join("\n"));
         let md = &r.rendered;
-        assert!(md.contains("(5 rows, 1 residual degree of freedom)"), "{md}");
-        assert!(md.contains("leaves only 1 residual degree of freedom,"), "{md}");
-        assert!(md.contains("with it the plan still needs 2 per group."), "{md}");
-        assert!(md.contains("with it the power is still above 0.999."), "{md}");
+        assert!(
+            md.contains("(5 rows, 1 residual degree of freedom)"),
+            "{md}"
+        );
+        assert!(
+            md.contains("leaves only 1 residual degree of freedom,"),
+            "{md}"
+        );
+        assert!(
+            md.contains("with it the plan still needs 2 per group."),
+            "{md}"
+        );
+        assert!(
+            md.contains("with it the power is still above 0.999."),
+            "{md}"
+        );
         assert!(!md.contains(" instead of 2."), "{md}");
     }
 

@@ -425,6 +425,14 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
     a
 }
 
+/// Clause `i` of a load in the order of [`super::data::clause_key`]: sheet, table, query,
+/// separator, decimal.
+fn load_clause(c: &crate::lang::LoadClauses, i: usize) -> Option<&Spanned<String>> {
+    [&c.sheet, &c.table, &c.query, &c.separator, &c.decimal]
+        .get(i)
+        .and_then(|c| c.as_ref())
+}
+
 /// The byte offset of a 1-based line and column (in characters) of `text`, its lines ended as
 /// the renderer ends them (a lone CR ends one too).
 fn offset_of(text: &str, line: usize, column: usize) -> usize {
@@ -686,8 +694,13 @@ impl<'c> Walk<'c> {
                         None
                     }
                     Lookup::Failed(f) => {
-                        let mut d =
-                            Diagnostic::new(path.span, f.message.clone()).label(f.label.clone());
+                        // At the clause the renderer puts it at (`sheet`, `query`, ...), or the
+                        // path.
+                        let at = f
+                            .clause
+                            .and_then(|i| load_clause(clauses, i))
+                            .map_or(path.span, |c| c.span);
+                        let mut d = Diagnostic::new(at, f.message.clone()).label(f.label.clone());
                         if let Some(h) = &f.help {
                             d = d.help(h.clone());
                         }
@@ -1311,7 +1324,15 @@ impl<'c> Walk<'c> {
                 };
                 self.confidence(level.as_ref());
                 let span = covariate.as_ref().map_or(factor.span, |c| c.span);
-                if self.model_factor(&m, &factor.value, span, "cannot compute this", factor.span) {
+                // An error about the factor is at its words, as the renderer puts it (it was at
+                // the covariate's: `of group for x` marked `group` for "`x` is not a factor").
+                if self.model_factor(
+                    &m,
+                    &factor.value,
+                    factor.span,
+                    "cannot compute this",
+                    factor.span,
+                ) {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
                 }
@@ -1329,7 +1350,7 @@ impl<'c> Walk<'c> {
                 if self.model_factor(
                     &m,
                     &factor.value,
-                    covariate.span,
+                    factor.span,
                     "cannot compute this",
                     factor.span,
                 ) {

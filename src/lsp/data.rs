@@ -89,16 +89,35 @@ pub struct Failure {
     pub message: String,
     pub label: String,
     pub help: Option<String>,
+    /// The clause the renderer puts the error at, in the order of [`clause_key`]; `None` for
+    /// the path. (The server put every failure at the path: an unknown sheet, a refused query
+    /// or a decimal comma with a comma separator were a clause away from the renderer's place.)
+    pub clause: Option<usize>,
 }
 
 impl Failure {
     fn of(d: Diagnostic) -> Failure {
         Failure {
+            clause: clause_at(d.span),
             message: d.message,
             label: d.label,
             help: d.help,
         }
     }
+}
+
+/// The span standing for clause `i` in the load that [`read`] runs: an empty span at `i + 1`,
+/// told apart from the path's empty span at 0.
+fn clause_span(i: usize) -> Span {
+    Span {
+        start: i + 1,
+        end: i + 1,
+    }
+}
+
+/// Which clause a span of [`read`]'s load stands for.
+fn clause_at(span: Span) -> Option<usize> {
+    (span.start == span.end && (1..=5).contains(&span.start)).then(|| span.start - 1)
 }
 
 /// What the server knows of a data file now.
@@ -138,7 +157,7 @@ fn clauses_of(k: &[Option<String>; 5]) -> LoadClauses {
     let v = |i: usize| {
         k.get(i).cloned().flatten().map(|value| Spanned {
             value,
-            span: Span::default(),
+            span: clause_span(i),
         })
     };
     LoadClauses {
@@ -236,6 +255,7 @@ impl DataCache {
                     message: e.to_string(),
                     label: "this file".to_string(),
                     help: None,
+                    clause: None,
                 }))
             }
         };

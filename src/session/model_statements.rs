@@ -908,9 +908,18 @@ impl Session<'_> {
                 let level = confidence(level.as_ref())?;
                 let at = settings(at);
                 let fit = view(&m.fit, *robust, model.span)?;
+                // An error about the factor at its words (a covariate named as the factor was
+                // marked at the weights); any other at the weights.
                 let c = fit
                     .contrast(&factor.value, &weights.value, &at, level)
-                    .map_err(fail(weights.span))?;
+                    .map_err(|e| {
+                        let about_factor = factor_named(&e) == Some(factor.value.as_str());
+                        fail(if about_factor {
+                            factor.span
+                        } else {
+                            weights.span
+                        })(e)
+                    })?;
                 let mut t = Table::new(
                     "contrast",
                     format!(
@@ -972,10 +981,18 @@ impl Session<'_> {
                     .regions(&covariate.value, &factor.value, pair, alpha)
                     .map_err(|e| {
                         let about_factor = factor_named(&e) == Some(factor.value.as_str());
-                        fail(if about_factor {
-                            factor.span
-                        } else {
-                            covariate.span
+                        // A level of `between` that is not the factor's, at its words (it was
+                        // marked at the covariate).
+                        let level = match &e {
+                            model::ModelError::UnknownLevel { level, .. } => between
+                                .as_ref()
+                                .and_then(|(a, b)| [a, b].into_iter().find(|x| x.value == *level)),
+                            _ => None,
+                        };
+                        fail(match level {
+                            Some(l) => l.span,
+                            None if about_factor => factor.span,
+                            None => covariate.span,
                         })(e)
                     })?;
                 let mut t = Table::new(

@@ -354,10 +354,7 @@ impl Session<'_> {
                 if !(0.0..=MAX_EFFECT).contains(&v.value) {
                     return Err(Diagnostic::new(
                         v.span,
-                        format!(
-                            "an effect size f must be from 0 to {}",
-                            short(MAX_EFFECT)
-                        ),
+                        format!("an effect size f must be from 0 to {}", short(MAX_EFFECT)),
                     )
                     .label("out of range")
                     .help("Cohen calls f = 0.1 small, 0.25 medium and 0.4 large"));
@@ -1022,10 +1019,7 @@ fn small_pilot_warning(
             short(f * p.sd_without)
         ),
         (_, Some(goal), None) => match d.n_for_power(f_upper, goal.value) {
-            Ok(u) if u.n == result.n => format!(
-                "with it the plan still needs {} {per}",
-                u.n
-            ),
+            Ok(u) if u.n == result.n => format!("with it the plan still needs {} {per}", u.n),
             Ok(u) => format!(
                 "with it the plan needs {} {per} instead of {}",
                 u.n, result.n
@@ -1033,10 +1027,9 @@ fn small_pilot_warning(
             Err(_) => "with it no realistic trial reaches the target power".to_string(),
         },
         _ => match d.power(f_upper, result.n) {
-            Ok(u) if power_text(u.power) == power_text(result.power) => format!(
-                "with it the power is still {}",
-                power_text(u.power)
-            ),
+            Ok(u) if power_text(u.power) == power_text(result.power) => {
+                format!("with it the power is still {}", power_text(u.power))
+            }
             Ok(u) => format!(
                 "with it the power is {} instead of {}",
                 power_text(u.power),
