@@ -557,8 +557,19 @@ pub fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str
         let Some(rest) = source.get(offset..) else {
             break;
         };
-        let end = rest.find('\n').map_or(rest.len(), |e| e);
-        let line = rest[..end].strip_suffix('\r').unwrap_or(&rest[..end]);
+        // A line ends where comrak ends it, which `block.code` counts: at LF, or at a lone CR.
+        // A lone CR stays in its line's text, for the parser to refuse it there; split at LF
+        // only, the line after it was taken with it, and the closing fence was read as the
+        // block's last statement ("does not start with a statement (found ```)").
+        let bytes = rest.as_bytes();
+        let end = memchr::memchr2_iter(b'\n', b'\r', bytes)
+            .find(|&e| bytes[e] == b'\n' || bytes.get(e + 1) != Some(&b'\n'))
+            .unwrap_or(rest.len());
+        let line = if bytes.get(end) == Some(&b'\r') {
+            &rest[..=end]
+        } else {
+            rest[..end].strip_suffix('\r').unwrap_or(&rest[..end])
+        };
         out.push((line, offset, block.first_line + i));
         offset += end + 1;
     }
