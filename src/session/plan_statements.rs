@@ -381,7 +381,7 @@ impl Session<'_> {
                     .help("add `sd S` after the means, or take the SD from a fitted pilot with `from MODEL`"));
                 };
                 let f = effect_of_means(&means.value, &shares, s);
-                if !(f <= MAX_EFFECT) {
+                if f.is_nan() || f > MAX_EFFECT {
                     return Err(Diagnostic::new(
                         means.span,
                         format!(
