@@ -1321,6 +1321,7 @@ use nothing
 check r
 table fit r
 table compare p, r
+plot power nothing
 ```
 ";
 

@@ -24,7 +24,7 @@ use crate::session::plot_statements::{
     kind_word, listing, no_factor, not_a_factor, several_factors,
 };
 use crate::session::procedure_statements::{balance_not_in_model, unknown_pair};
-use crate::session::{closest, no_data_set, unknown_model};
+use crate::session::{closest, no_data_set, unknown_model, unknown_plan};
 
 use super::data::{DataCache, Lookup, Summary};
 use super::names::{tables_of, uses_of, NameUse};
@@ -619,6 +619,15 @@ impl<'c> Walk<'c> {
                 let plans = &mut self.state.plans;
                 plans.retain(|(n, _)| *n != decl.name.value);
                 plans.push((decl.name.value.clone(), stmt.text.clone()));
+            }
+            // A plan not made before: the renderer's error (the server said nothing).
+            StatementKind::PowerPlot { plan, .. } => {
+                let plans = &self.state.plans;
+                if !self.broken && !plans.iter().any(|(n, _)| *n == plan.value) {
+                    let known: Vec<&str> = plans.iter().map(|(n, _)| n.as_str()).collect();
+                    let d = unknown_plan(plan, &known);
+                    self.error(d);
+                }
             }
             StatementKind::Require(gate) => self.gate(gate),
             StatementKind::Report(request) => self.report(request),

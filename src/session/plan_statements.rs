@@ -659,24 +659,30 @@ impl Session<'_> {
             .find(|p| p.name == name.value)
             .ok_or_else(|| {
                 let known: Vec<&str> = self.plans.iter().map(|p| p.name.as_str()).collect();
-                let help = match closest(&name.value, &known) {
-                    Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
-                    None if known.is_empty() => {
-                        "make one first with `plan NAME for K groups ... effect ...`".into()
-                    }
-                    None => format!("the plans so far are {}", known.join(", ")),
-                };
-                Diagnostic::new(
-                    name.span,
-                    format!(
-                        "there is no plan called {}",
-                        crate::report::markdown::code(&name.value)
-                    ),
-                )
-                .label("unknown plan")
-                .help(help)
+                unknown_plan(name, &known)
             })
     }
+}
+
+/// The error for a plan not made before `plot power` names it (the renderer's and the
+/// language server's words).
+pub(crate) fn unknown_plan(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
+    let help = match closest(&name.value, known) {
+        Some(c) => format!("did you mean {c}?", c = crate::report::markdown::code(c)),
+        None if known.is_empty() => {
+            "make one first with `plan NAME for K groups ... effect ...`".into()
+        }
+        None => format!("the plans so far are {}", known.join(", ")),
+    };
+    Diagnostic::new(
+        name.span,
+        format!(
+            "there is no plan called {}",
+            crate::report::markdown::code(&name.value)
+        ),
+    )
+    .label("unknown plan")
+    .help(help)
 }
 
 /// A line of the power figure at R² = `r`: without covariates at 0 (the analysis that
