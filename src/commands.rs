@@ -856,7 +856,10 @@ fn differences(run: &Run, on_disk: &str) -> Option<Vec<String>> {
             }
             let fresh = crate::document::split_rendered(&run.rendered).ok();
             if let Some(fresh) = &fresh {
-                if old.provenance != fresh.provenance {
+                let (old_params, old_rest) = split_parameters(old.provenance.as_deref());
+                let (new_params, new_rest) = split_parameters(fresh.provenance.as_deref());
+                out.extend(parameter_differences(&old_params, &new_params));
+                if old_rest != new_rest {
                     out.push("the inputs changed (a data file's contents or row count, or covey's version)".into());
                     // Name each input whose current digest the old provenance lacks.
                     let old_text = old.provenance.as_deref().unwrap_or("");
@@ -884,6 +887,106 @@ fn differences(run: &Run, on_disk: &str) -> Option<Vec<String>> {
     out.push(format!("    expected: {want}"));
     out.push(format!("    on disk:  {have}"));
     Some(out)
+}
+
+/// Start of the provenance line that lists the parameters (`pipeline::declared_parameters`).
+const PARAMETERS_LINE: &str = "Parameters: ";
+
+/// The end of each parameter's entry in that line: where its value came from.
+const PARAMETER_SOURCES: [&str; 2] = [" (set with --set)", " (the document's default)"];
+
+/// A provenance region as its parameters, each `(name, value as shown, where it came from)`,
+/// and its other lines.
+fn split_parameters(provenance: Option<&str>) -> (Vec<(String, String, String)>, Vec<&str>) {
+    let mut params = Vec::new();
+    let mut rest = Vec::new();
+    for line in provenance.unwrap_or("").lines() {
+        let Some(list) = line.strip_prefix(PARAMETERS_LINE) else {
+            rest.push(line);
+            continue;
+        };
+        let mut list = list.strip_suffix('.').unwrap_or(list);
+        // Each entry is "`NAME` = `VALUE` (SOURCE)", entries joined by "; ". A parameter's
+        // name is a bare word, so the first " = " ends it.
+        while !list.is_empty() {
+            let Some((at, source)) = PARAMETER_SOURCES
+                .iter()
+                .filter_map(|s| list.find(s).map(|i| (i, *s)))
+                .min()
+            else {
+                rest.push(line);
+                break;
+            };
+            let entry = list.get(..at).unwrap_or("");
+            let (name, value) = entry.split_once(" = ").unwrap_or((entry, ""));
+            let from = source.trim_start_matches(" (").trim_end_matches(')');
+            params.push((unticked(name), unticked(value), from.to_string()));
+            list = list.get(at + source.len()..).unwrap_or("");
+            list = list.strip_prefix("; ").unwrap_or(list);
+        }
+    }
+    (params, rest)
+}
+
+/// The text of a Markdown code span as `report::markdown::code` writes it.
+fn unticked(span: &str) -> String {
+    let ticks = span.len() - span.trim_start_matches('`').len();
+    let inner = span
+        .get(ticks..span.len().saturating_sub(ticks))
+        .unwrap_or(span);
+    if ticks > 1 {
+        inner
+            .strip_prefix(' ')
+            .and_then(|i| i.strip_suffix(' '))
+            .unwrap_or(inner)
+            .to_string()
+    } else {
+        inner.to_string()
+    }
+}
+
+/// A sentence for each parameter whose value in the rendering differs from this check's: which
+/// value the rendering was made with and the `--set` that checks it as it was made.
+fn parameter_differences(
+    old: &[(String, String, String)],
+    fresh: &[(String, String, String)],
+) -> Vec<String> {
+    let mut out = Vec::new();
+    for (name, value, from) in old {
+        let Some((_, now, now_from)) = fresh.iter().find(|(n, _, _)| n == name) else {
+            continue;
+        };
+        if now == value {
+            continue;
+        }
+        // A text parameter is shown quoted; `--set` takes it bare.
+        let bare = value
+            .strip_prefix('"')
+            .and_then(|v| v.strip_suffix('"'))
+            .unwrap_or(value);
+        let arg = format!("{name}={bare}");
+        let safe = arg
+            .chars()
+            .all(|c| c.is_alphanumeric() || "=._-+/:,@%".contains(c));
+        let arg = if safe {
+            arg
+        } else {
+            format!("'{}'", arg.replace('\'', "'\\''"))
+        };
+        let how = if from
+            == PARAMETER_SOURCES[1]
+                .trim_start_matches(" (")
+                .trim_end_matches(')')
+        {
+            format!("leave `--set {name}` out")
+        } else {
+            format!("give `covey check` the same `--set {arg}`")
+        };
+        out.push(format!(
+            "parameter `{name}` differs: the rendering was made with `{value}` ({from}), this check uses `{now}` ({now_from}); to check the rendering as it was made, {how}"
+        ));
+    }
+    out
 }
 
 fn first_difference(a: &str, b: &str) -> (usize, String, String) {

@@ -481,7 +481,12 @@ fn declarations(doc: &Document) -> Vec<(Spanned<String>, lang::Literal)> {
                 continue;
             }
             if let Ok(Some(Statement {
-                kind: lang::StatementKind::Param { name, value },
+                kind:
+                    lang::StatementKind::Param {
+                        name,
+                        default: value,
+                        ..
+                    },
                 ..
             })) = lang::parse_line(line, offset, no)
             {

@@ -291,6 +291,13 @@ fn parameters_are_overridden_and_recorded() {
     let set = read(&dir.join("proc.rendered.md"));
     assert!(set.contains("`alpha` = `0.01` (set with --set)"), "{set}");
     assert!(set.contains("(alpha 0.01)"), "{set}");
+    // The parameter's own statement says the value in force and where it came from.
+    assert!(
+        set.contains(
+            "Parameter `alpha` is `0.01` in this run (set with `--set`; the document's default is `0.05`)."
+        ),
+        "{set}"
+    );
     // check with the same settings is current; without them it is stale.
     assert_eq!(
         covey(
@@ -307,7 +314,38 @@ fn parameters_are_overridden_and_recorded() {
         .0,
         0
     );
-    assert_eq!(covey(&dir, &["check", "proc.md"]).0, 1);
+    // Without them, check names each parameter that differs and the `--set` to give, and
+    // does not blame the data.
+    let (code, err) = covey(&dir, &["check", "proc.md", "--set", "min_plants=12"]);
+    assert_eq!(code, 1, "{err}");
+    assert!(
+        err.contains(
+            "parameter `alpha` differs: the rendering was made with `0.01` (set with --set), \
+             this check uses `0.05` (the document's default); to check the rendering as it was \
+             made, give `covey check` the same `--set alpha=0.01`"
+        ),
+        "{err}"
+    );
+    assert!(!err.contains("min_plants"), "{err}");
+    assert!(!err.contains("the inputs changed"), "{err}");
+    // A value set at the check but not at the render: leave it out.
+    let (code, err) = covey(&dir, &["render", "proc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let (code, err) = covey(
+        &dir,
+        &["check", "proc.md", "--set", "batch=data/batch-2026-12.csv"],
+    );
+    assert_eq!(code, 1, "{err}");
+    assert!(
+        err.contains(
+            "the rendering was made with `\"data/batch-2026-11.csv\"` (the document's default)"
+        ) && err.contains("leave `--set batch` out"),
+        "{err}"
+    );
+    assert!(
+        err.contains("the inputs changed"),
+        "a different file is read: {err}"
+    );
     // A parameter the document does not declare is a usage error.
     let (code, err) = covey(&dir, &["render", "proc.md", "--set", "nope=1"]);
     assert_eq!(code, 2);

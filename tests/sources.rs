@@ -215,6 +215,74 @@ fn a_mixed_column_is_text_and_said_so() {
     );
 }
 
+/// Long whole-number identifiers beyond 2^53 keep every digit, from a CSV file and from
+/// SQLite, so two codes never become one level; an infinite REAL in SQLite is an error at its
+/// row, not a silent missing value; an empty `table` says that the table is empty.
+#[test]
+fn long_identifiers_keep_their_digits_and_infinities_are_refused() {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("sources-wide");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+    // 2^53 = 9007199254740992 (common practice: the largest run of whole numbers a double
+    // holds); 9007199254740993 has no double and reads as 2^53 when taken as a number.
+    std::fs::write(
+        dir.join("ids.csv"),
+        "tag,y\n9007199254740993,1\n9007199254740992,2\n9007199254740993,3\n",
+    )
+    .unwrap_or_else(|e| panic!("{e}"));
+    let db = dir.join("w.sqlite");
+    {
+        let conn = rusqlite::Connection::open(&db).unwrap_or_else(|e| panic!("{e}"));
+        conn.execute_batch(
+            "CREATE TABLE w (tag INTEGER, r REAL); \
+             INSERT INTO w VALUES (9007199254740993, 1.5), (9007199254740992, 2.5), (-9223372036854775808, 9e999), (3, 1.0); \
+             CREATE TABLE e (g TEXT);",
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+    }
+    let world = FsWorld::new(&dir, false);
+    let run_doc = |body: &str| {
+        let doc = format!("# W\n\n```covey\n{body}\n```\n");
+        pipeline::run(&doc, "w.md", &world, RunOptions::default())
+            .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")))
+    };
+    let run = run_doc("load \"ids.csv\"\nfactor tag");
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    assert!(
+        run.rendered.contains(
+            "`tag` is a factor with 2 levels: `9007199254740993` (reference), `9007199254740992`"
+        ),
+        "{}",
+        run.rendered
+    );
+    let run = run_doc("load \"w.sqlite\" query \"SELECT tag FROM w\"\nshow");
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    for row in [
+        "| 1 | 9007199254740993 |",
+        "| 2 | 9007199254740992 |",
+        "| 3 | -9223372036854775808 |",
+        "| 4 | 3 |",
+    ] {
+        assert!(run.rendered.contains(row), "{row}\n{}", run.rendered);
+    }
+    let run = run_doc("load \"w.sqlite\" table w");
+    assert!(
+        run.errors.iter().any(|e| e.contains(
+            "column `r` holds `Inf` in row 3 of the result, which is not a finite number"
+        )),
+        "{}",
+        run.errors.join("\n")
+    );
+    let run = run_doc("load \"w.sqlite\" table e");
+    assert!(
+        run.errors
+            .iter()
+            .any(|e| e.contains("the table `e` has no rows")),
+        "{}",
+        run.errors.join("\n")
+    );
+}
+
 /// A one-column file stays one column; a header with a semicolon inside quotes is one name.
 #[test]
 fn one_column_files_stay_legal() {

@@ -216,6 +216,11 @@ pub fn read_database(
             match row.get(j) {
                 None => b.push_missing(),
                 Some(text) if *numeric => match text.parse::<f64>() {
+                    // A whole number beyond 2^53 that no double holds (an int8 identifier)
+                    // keeps its digits, as text.
+                    Ok(x) if x.is_finite() && !crate::data::number::holds_whole_number(text, x) => {
+                        b.push_text(text)
+                    }
                     Ok(x) if x.is_finite() => b.push_number(x),
                     _ => {
                         return Err(DbError::NotFinite {

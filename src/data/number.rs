@@ -156,6 +156,8 @@ pub(crate) fn parse_trimmed(t: &str) -> NumberParse {
         return NumberParse::NotNumber;
     }
     match t.parse::<f64>() {
+        // A long identifier: neighbouring whole numbers would read as one.
+        Ok(v) if v.is_finite() && !holds_whole_number(t, v) => NumberParse::NotNumber,
         Ok(v) if v.is_finite() => NumberParse::Number(v),
         Ok(_) => {
             // Either a word (inf, nan, infinity) or a numeral whose value overflowed.
@@ -170,6 +172,27 @@ pub(crate) fn parse_trimmed(t: &str) -> NumberParse {
         Err(_) => classify_near_miss(t),
     }
 }
+
+/// Whether `v`, read from `t`, is that number exactly when `t` is a whole number written
+/// without a point or an exponent (as identifiers are: sample codes, ear tags, serial
+/// numbers). Beyond 2^53 a double holds only some whole numbers, and two different codes
+/// would read as one number, so such a cell is text and keeps its digits. Any other text is
+/// held as its nearest double, as a measurement is.
+pub(crate) fn holds_whole_number(t: &str, v: f64) -> bool {
+    let digits = t.strip_prefix(['+', '-']).unwrap_or(t);
+    if v.abs() < WHOLE_EXACT || digits.is_empty() || !digits.bytes().all(|b| b.is_ascii_digit()) {
+        return true;
+    }
+    // A double of 2^53 or more is a whole number; compared exactly in 128 bits (a text of
+    // more digits than i128 holds is beyond any double's exact whole numbers here).
+    match t.trim_start_matches('+').parse::<i128>() {
+        Ok(n) => v as i128 == n && (n as f64) == v,
+        Err(_) => false,
+    }
+}
+
+/// 2^53: every whole number of smaller magnitude is a double; above it, only some are.
+pub(crate) const WHOLE_EXACT: f64 = 9_007_199_254_740_992.0;
 
 /// [`parse_trimmed`] for a file whose decimals are marked by a comma (`decimal ","`): `3,5`
 /// is 3.5. A point anywhere in a number-like cell is refused (it is a thousands separator or

@@ -60,8 +60,17 @@ pub enum SqlError {
     DuplicateColumn(String),
     /// A binary value: (column, 1-based row of the result).
     Blob { column: String, row: usize },
+    /// A REAL that is not a finite number (SQLite keeps infinities): (column, 1-based row of
+    /// the result, the value as text).
+    NotFinite {
+        column: String,
+        row: usize,
+        text: String,
+    },
     /// The statement gave no rows.
     NoRows,
+    /// The table or view of `table NAME` has no rows.
+    EmptyTable(String),
     /// The file could not be read for its fingerprint.
     Fingerprint(String),
 }
@@ -118,6 +127,18 @@ impl fmt::Display for SqlError {
                 "column {column} holds binary data (a BLOB) in row {row} of the result; \
                  select numbers or text",
                 column = crate::report::markdown::code(column)
+            ),
+            SqlError::NotFinite { column, row, text } => write!(
+                f,
+                "column {column} holds {text} in row {row} of the result, which is not a \
+                 finite number; filter it out in the query or make it NULL",
+                column = crate::report::markdown::code(column),
+                text = crate::report::markdown::code(text)
+            ),
+            SqlError::EmptyTable(t) => write!(
+                f,
+                "the table {t} has no rows; check that it is the table the data went into",
+                t = crate::report::markdown::code(t)
             ),
             SqlError::NoRows => write!(
                 f,
@@ -232,7 +253,24 @@ pub fn read_sqlite(
         for (j, b) in builders.iter_mut().enumerate() {
             match row.get_ref(j).map_err(|e| SqlError::Sql(e.to_string()))? {
                 ValueRef::Null => b.push_missing(),
+                // Beyond 2^53 a whole number may have no double (an identifier, most likely):
+                // kept as its digits (text), so its column's other large values keep theirs.
+                ValueRef::Integer(i) if i.unsigned_abs() > 1 << 53 => b.push_text(&i.to_string()),
                 ValueRef::Integer(i) => b.push_number(i as f64),
+                ValueRef::Real(x) if !x.is_finite() => {
+                    return Err(SqlError::NotFinite {
+                        column: names.get(j).cloned().unwrap_or_default(),
+                        row: n,
+                        text: if x > 0.0 {
+                            "Inf"
+                        } else if x < 0.0 {
+                            "-Inf"
+                        } else {
+                            "NaN"
+                        }
+                        .to_string(),
+                    })
+                }
                 ValueRef::Real(x) => b.push_number(x),
                 ValueRef::Text(t) => {
                     let t = String::from_utf8_lossy(t);
@@ -256,7 +294,10 @@ pub fn read_sqlite(
     // Nothing was written; ending the read transaction releases the lock.
     let _ = conn.execute_batch("COMMIT");
     if n == 0 {
-        return Err(SqlError::NoRows);
+        return Err(match source {
+            SqlSource::Table(t) => SqlError::EmptyTable(t.to_string()),
+            SqlSource::Query(_) => SqlError::NoRows,
+        });
     }
     let mut mixed = Vec::new();
     let mut columns = Vec::with_capacity(builders.len());

@@ -455,6 +455,11 @@ fn parse_number_plain_forms() {
         ("1E-2", 0.01),
         (" 7 ", 7.0),
         ("1e-400", 0.0),
+        // 2^53 and 2^60 are doubles; with a point, a value is a measurement, held as its
+        // nearest double.
+        ("9007199254740992", 9007199254740992.0),
+        ("1152921504606846976", 1152921504606846976.0),
+        ("9007199254740993.0", 9007199254740992.0),
     ] {
         assert_eq!(parse_number(t), NumberParse::Number(v), "{t}");
     }
@@ -469,6 +474,10 @@ fn parse_number_plain_forms() {
         "2020-01-02",
         "1,2,3",
         "5%",
+        // A whole number beyond 2^53 that no double holds is an identifier's digits.
+        "9007199254740993",
+        "-9007199254740993",
+        "123456789012345678901234567890123456789012",
     ] {
         assert_eq!(parse_number(t), NumberParse::NotNumber, "{t}");
     }

@@ -90,11 +90,12 @@ pub enum StatementKind {
         column: Spanned<String>,
         unit: Spanned<String>,
     },
-    /// `param NAME = VALUE`: a parameter and its default (the value here is
-    /// the one in force, after any `--set`).
+    /// `param NAME = VALUE`: a parameter, the value in force (after any `--set`) and the
+    /// document's default as written.
     Param {
         name: Spanned<String>,
         value: Literal,
+        default: Literal,
     },
     /// `require ...`: a gate that fails the run when it does not hold.
     Require(Gate),

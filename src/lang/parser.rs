@@ -749,9 +749,15 @@ impl Builder<'_> {
             Rule::param_stmt => {
                 let name = self.ident(next(&mut kids)?);
                 let v = next(&mut kids)?;
+                let default = self.literal(v)?;
                 StatementKind::Param {
+                    value: self
+                        .params
+                        .get(&name.value)
+                        .cloned()
+                        .unwrap_or(default.clone()),
                     name,
-                    value: self.literal(v)?,
+                    default,
                 }
             }
             Rule::require_stmt => StatementKind::Require(self.gate(next(&mut kids)?)?),

@@ -10,7 +10,8 @@ use super::design::term_keys;
 use super::fit::{check_level, f_p, fit_owned, t_p, t_quantile, Fit};
 use super::qr;
 use super::{
-    ModelError, ModelSpec, Part, Region, RegionKind, Slope, Slopes, TermSpec, Transform, Var,
+    AliasCause, ModelError, ModelSpec, Part, Region, RegionKind, Slope, Slopes, TermSpec,
+    Transform, Var,
 };
 
 /// When |A| (the x^2 coefficient of the Johnson-Neyman quadratic) is below this fraction of
@@ -145,7 +146,7 @@ impl Fit {
             let l = m.row_at(&pt);
             let (s, se) = m.linear(&l).map_err(|_| ModelError::NotEstimable {
                 what: format!("the slope within {factor} = {lab}"),
-                why: m.why_not(f, &[c]),
+                why: slope_why_not(m, f, x, c),
             })?;
             let t = if m.exact { f64::NAN } else { s / se };
             rows.push(Slope {
@@ -521,4 +522,58 @@ fn same_var(a: &Var, b: &Var) -> bool {
         ) => na == nb && (Arc::ptr_eq(ca, cb) || ca == cb) && la == lb,
         _ => false,
     }
+}
+
+/// Why the slope of covariate `x` within level `c` of factor `f` cannot be estimated. When the
+/// covariate takes a single value within that level, the words are those of the fit's warning
+/// about the columns it left out, so the two messages explain it alike; otherwise the reason a
+/// mean there is not estimable (an empty cell).
+fn slope_why_not(m: &Fit, f: usize, x: usize, c: u32) -> String {
+    let (
+        Some(Var::Numeric {
+            name: xname,
+            values,
+        }),
+        Some(Var::Factor {
+            name: fname,
+            codes,
+            levels,
+        }),
+    ) = (m.spec.vars.get(x), m.spec.vars.get(f))
+    else {
+        return m.why_not(f, &[c]);
+    };
+    let mut within = m
+        .lay
+        .used
+        .iter()
+        .filter(|&i| codes.get(i).and_then(|k| k.get()) == Some(c))
+        .filter_map(|i| values.get(i).copied());
+    let Some(first) = within.next() else {
+        return m.why_not(f, &[c]);
+    };
+    if within.any(|v| v != first) {
+        return m.why_not(f, &[c]);
+    }
+    let fitted = m.warnings.iter().find_map(|w| match w {
+        super::ModelWarning::Aliased {
+            cause:
+                cause @ AliasCause::ConstantWithin {
+                    covariate, factor, ..
+                },
+            ..
+        } if covariate == xname && factor == fname => Some(cause.to_string()),
+        _ => None,
+    });
+    fitted.unwrap_or_else(|| {
+        AliasCause::ConstantWithin {
+            covariate: xname.clone(),
+            factor: fname.clone(),
+            levels: vec![(levels.get(c as usize).cloned().unwrap_or_default(), first)],
+            more: 0,
+            every: false,
+            terms: Vec::new(),
+        }
+        .to_string()
+    })
 }

@@ -144,22 +144,24 @@ impl LiveError {
             LiveError::Syntax { .. } => "write `@[KIND MODEL ROW COLUMN]`, e.g. \
                 `@[anova m group p]`; quote names with spaces; to show `@[` as text, write `@\\[`"
                 .to_string(),
-            LiveError::NoTable { known, .. } if known.is_empty() => {
-                "the document computes no tables a reference could name".to_string()
-            }
-            LiveError::NoTable { known, .. } => {
-                let more = if known.len() > LISTED_TABLES {
-                    ", ..."
+            LiveError::NoTable {
+                kind,
+                subject,
+                known,
+            } if !known.iter().any(|k| k.starts_with(&format!("{kind} ")))
+                && statement_for(kind, subject).is_some() =>
+            {
+                let ask = format!(
+                    "no statement asks for one: {}",
+                    statement_for(kind, subject).unwrap_or_default()
+                );
+                if known.is_empty() {
+                    format!("{ask}; the document computes no tables a reference could name")
                 } else {
-                    ""
-                };
-                let list: Vec<&str> = known
-                    .iter()
-                    .take(LISTED_TABLES)
-                    .map(String::as_str)
-                    .collect();
-                format!("tables in this document: {}{more}", list.join(", "))
+                    format!("{ask}; {}", listed(known))
+                }
             }
+            LiveError::NoTable { known, .. } => listed(known),
             LiveError::NoRow { rows, .. } => format!("its rows are: {}", rows.join(", ")),
             LiveError::NoColumn { columns, .. } => {
                 format!("its columns are: {}", columns.join(", "))
@@ -174,6 +176,54 @@ impl LiveError {
             ),
         }
     }
+}
+
+/// "tables in this document: ..." with at most [`LISTED_TABLES`] of them.
+fn listed(known: &[String]) -> String {
+    let more = if known.len() > LISTED_TABLES {
+        ", ..."
+    } else {
+        ""
+    };
+    let list: Vec<&str> = known
+        .iter()
+        .take(LISTED_TABLES)
+        .map(String::as_str)
+        .collect();
+    format!("tables in this document: {}{more}", list.join(", "))
+}
+
+/// The statement that computes a table of `kind` about `subject`, to add to a covey block, or
+/// `None` for a kind no statement makes. FACTOR, X and the like are left for the writer.
+pub fn statement_for(kind: &str, subject: &str) -> Option<String> {
+    let m = crate::report::markdown::code(subject);
+    let add = |s: String| format!("add `{s}` to a covey block");
+    let name = if subject
+        .chars()
+        .all(|c| c.is_alphanumeric() || c == '_' || c == '.')
+    {
+        subject.to_string()
+    } else {
+        format!("\"{}\"", subject.replace('\\', "\\\\").replace('"', "\\\""))
+    };
+    Some(match kind {
+        "summary" => add(format!("table summary {name} [by FACTOR]")),
+        "fit" | "coefficients" | "anova" => add(format!("table {kind} {name}")),
+        "compare" => add(format!("table compare {name}, OTHER")),
+        "means" | "differences" | "slopes" => add(format!("table {kind} {name} for FACTOR")),
+        "cell-means" => add(format!("table means {name} for A by B")),
+        "slopes-equality" => add(format!("table slopes {name} for FACTOR")),
+        "contrast" => add(format!(
+            "table contrast {name} for FACTOR weights W1, W2, ..."
+        )),
+        "regions" => add(format!("table regions {name} of X for FACTOR")),
+        "check" => add(format!("check {name}")),
+        "influence" => format!(
+            "`check {name}` lists the rows of model {m} past an influence threshold (when any is)"
+        ),
+        "plan" => add(format!("plan {name} for K groups ...")),
+        _ => return None,
+    })
 }
 
 /// Whether `c` may appear between `@[` and `]`: anything but brackets, angle brackets,

@@ -211,7 +211,11 @@ impl<'w> Session<'w> {
                 by.as_ref(),
             ),
             StatementKind::Unit { column, unit } => self.unit(column, unit),
-            StatementKind::Param { name, value } => self.param(name, value),
+            StatementKind::Param {
+                name,
+                value,
+                default,
+            } => self.param(name, value, default),
             StatementKind::Require(gate) => self.require(gate),
             StatementKind::Report(request) => self.report(request),
             StatementKind::Plan(decl) => self.plan(decl),

@@ -17,15 +17,29 @@ use crate::report::Item;
 const DEFAULT_GATE_ALPHA: f64 = 0.05;
 
 impl Session<'_> {
-    pub(super) fn param(&mut self, name: &Spanned<String>, value: &Literal) -> Outcome {
-        let shown = match value {
+    pub(super) fn param(
+        &mut self,
+        name: &Spanned<String>,
+        value: &Literal,
+        default: &Literal,
+    ) -> Outcome {
+        let shown = |v: &Literal| match v {
             Literal::Number(_, text) => text.clone(),
             Literal::Text(t) => format!("\"{t}\""),
         };
+        let (now, written) = (shown(value), shown(default));
+        let from = if now == written {
+            String::new()
+        } else {
+            format!(
+                " (set with `--set`; the document's default is {})",
+                code(&written)
+            )
+        };
         Ok(vec![Item::Text(format!(
-            "Parameter {} is {} in this run.",
+            "Parameter {} is {} in this run{from}.",
             code(&name.value),
-            code(&shown)
+            code(&now)
         ))])
     }
 
