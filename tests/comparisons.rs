@@ -469,3 +469,114 @@ fn misused_clauses_are_errors_that_say_what_to_do() {
         );
     }
 }
+
+/// Renders `body` with the invented data `csv` (written inline) loaded as `d`, keeping the
+/// rendered Markdown.
+fn run_inline(csv: &str, body: &str) -> (Value, String) {
+    let world = MemoryWorld::new().with("d.csv", csv);
+    let doc = format!("```covey\nload \"d.csv\" as d\n{body}\n```\n");
+    let run = pipeline::run(&doc, "edges.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("document does not parse:\n{}", u.errors.join("\n")));
+    assert!(run.errors.is_empty(), "{}", run.errors.join("\n"));
+    (run.json(), run.rendered)
+}
+
+/// Invented: three groups, the covariate taking one value (5) in group c.
+const ONE_VALUE_LEVEL: &str =
+    "g,x,y\na,1,3.1\na,2,5\na,3,7.2\nb,1,4\nb,2,6.3\nb,4,10\nc,5,13\nc,5,13.4\n";
+
+#[test]
+fn slopes_where_a_level_has_one_covariate_value() {
+    // The slope within c is not determined; the table once failed as a whole. Exact
+    // rational least squares (Python fractions) of y on g + x + g by x without the c slope:
+    // slopes 41/20 and 277/140, s^2 = 107/2100, Var(slope a) = s^2 / 2, and the F of the
+    // equal-slopes test 15/107 on 1 and 3 df.
+    let (json, md) = run_inline(
+        ONE_VALUE_LEVEL,
+        "factor g levels a, b, c\nmodel m: y on g + x\ntable slopes m of x for g",
+    );
+    let t = outputs(&json, "slopes")[0];
+    let r = rows(t);
+    close("slope a (exact)", num(&r[0]["slope"]), 41.0 / 20.0, 1e-13);
+    close("slope b (exact)", num(&r[1]["slope"]), 277.0 / 140.0, 1e-13);
+    close(
+        "SE of slope a (exact)",
+        num(&r[0]["se"]),
+        (107.0 / 2100.0 / 2.0_f64).sqrt(),
+        1e-13,
+    );
+    assert!(r[2]["slope"].is_null() && r[2]["se"].is_null(), "{}", r[2]);
+    assert!(md.contains("| c | — | — | — | 3 | — | — | — |"), "{md}");
+    assert!(
+        md.contains("left out of the test that the slopes are equal: `c`"),
+        "{md}"
+    );
+    let eq = rows(outputs(&json, "slopes-equality")[0]);
+    close(
+        "equal-slopes F (exact)",
+        num(&eq[0]["f"]),
+        15.0 / 107.0,
+        1e-12,
+    );
+    assert_eq!(num(&eq[0]["df1"]), 1.0);
+    report("slopes_where_a_level_has_one_covariate_value");
+}
+
+#[test]
+fn one_comparison_with_a_control_is_the_t_test() {
+    // Two groups: Dunnett's one comparison is the t test. Exact difference 1 with variance
+    // 41/2250 on 3 df; scipy.stats.t.sf(7.407971974871922, 3) = 0.002544264532944186 (the
+    // lattice once gave an error of up to 1e-5 here), lower limit above the control
+    // 1 - scipy.stats.t.ppf(0.95, 3) * SE = 0.6823201487823514.
+    let csv = ONE_VALUE_LEVEL
+        .lines()
+        .take(7)
+        .collect::<Vec<_>>()
+        .join("\n");
+    let (json, _) = run_inline(
+        &csv,
+        "factor g levels a, b\nmodel m: y on g + x\ntable differences m for g versus a above",
+    );
+    let r = rows(outputs(&json, "differences")[0]);
+    close("difference (exact)", num(&r[0]["estimate"]), 1.0, 1e-13);
+    close(
+        "p (scipy t)",
+        num(&r[0]["p"]),
+        0.002_544_264_532_944_186,
+        1e-9,
+    );
+    close(
+        "lower limit (scipy t)",
+        num(&r[0]["lower"]),
+        0.682_320_148_782_351_4,
+        1e-10,
+    );
+    report("one_comparison_with_a_control_is_the_t_test");
+}
+
+#[test]
+fn an_exact_fit_gives_dunnett_limits_at_the_estimates() {
+    // y = 1 + 2x + (0, 1, 2) by group exactly (invented): every SE is 0, so the limits are
+    // the estimates (as Tukey's are) and p is undefined; a two-sided table says nothing of
+    // one side, where it once said that each limit was an upper bound.
+    let csv = "g,x,y\na,1,3\na,2,5\na,3,7\nb,1,4\nb,2,6\nb,4,10\nc,5,13\n";
+    let (json, md) = run_inline(
+        csv,
+        "factor g levels a, b, c\nmodel m: y on g + x\ntable differences m for g versus a\ntable differences m for g versus c below",
+    );
+    let tables = outputs(&json, "differences");
+    let two = rows(tables[0]);
+    assert_eq!(num(&two[0]["lower"]), num(&two[0]["estimate"]));
+    assert_eq!(num(&two[1]["upper"]), num(&two[1]["estimate"]));
+    near("b - a (exact)", num(&two[0]["estimate"]), 1.0, 1e-12);
+    assert!(two[0]["p"].is_null(), "{}", two[0]);
+    let below = rows(tables[1]);
+    assert!(below[0]["lower"].is_null(), "{}", below[0]);
+    near("a - c (exact)", num(&below[0]["upper"]), -2.0, 1e-12);
+    assert_eq!(
+        md.matches("One-sided: each limit is an upper bound")
+            .count(),
+        1,
+        "{md}"
+    );
+}

@@ -663,6 +663,25 @@ mod statements {
         );
     }
 
+    /// The note under a plan solved for n gives the power at n and at n - 1 on their own
+    /// sides of the target: with f = 0.001 and four groups, 3542872 per group falls short of
+    /// power 0.9 by 7e-8 and once read "0.900" like the 3542873 that reaches it.
+    #[test]
+    fn the_power_one_short_reads_below_the_target() {
+        let doc = "# Plans\n\n```covey\nplan b for 4 groups effect f 0.001 power 0.9\n```\n";
+        let r = run(doc);
+        assert!(r.errors.is_empty(), "{}", r.errors.join("\n"));
+        let found = plans(&r);
+        // scipy.stats.ncf.sf(scipy.stats.f.isf(0.05, 3, N - 4), 3, N - 4, N * 1e-6) with
+        // N = 4 * 3542873: 0.9000000175499323; with N = 4 * 3542872: 0.8999999284828434.
+        let row = &found[0].1;
+        assert_eq!(row["n_per_group"].as_f64(), Some(3_542_873.0));
+        let power = row["power"].as_f64().unwrap_or(f64::NAN);
+        assert!((power - 0.900_000_017_549_932_3).abs() < 1e-10, "{power}");
+        let note = "with it the power is 0.900 (with 3542872, 0.8999999).";
+        assert!(r.rendered.contains(note), "{}", r.rendered);
+    }
+
     /// The three forms agree with the solver, every column is there, and the live numbers
     /// show what the table shows.
     #[test]

@@ -617,7 +617,18 @@ impl Fit {
                     .collect();
                 let defined = ws.iter().all(|w| w.iter().any(|x| *x != 0.0))
                     && made.iter().all(|&i| out[i].t.is_finite());
-                if !defined || made.is_empty() {
+                if made.is_empty() {
+                    return out;
+                }
+                if !defined {
+                    // An exact fit: every SE is 0, so the correlations are 0/0 but the
+                    // simultaneous limits are the estimates themselves, as with the other
+                    // corrections (c times an SE of 0); p stays undefined.
+                    if made.iter().all(|&i| out[i].se == 0.0) {
+                        for &i in &made {
+                            set_limits(&mut out[i], 0.0);
+                        }
+                    }
                     return out;
                 }
                 let norm = |w: &Vec<f64>| w.iter().map(|x| x * x).sum::<f64>().sqrt();

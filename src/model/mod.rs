@@ -464,6 +464,9 @@ pub struct Slope {
     pub lower: f64,
     /// Upper confidence limit.
     pub upper: f64,
+    /// Why the slope is not estimable (its numbers are then NaN): the covariate takes a
+    /// single value within the level, or the level's rows leave it undetermined.
+    pub not_estimable: Option<String>,
 }
 
 /// Slopes within levels and the test that they are equal.

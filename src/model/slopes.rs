@@ -140,14 +140,34 @@ impl Fit {
         let tq = t_quantile(0.5 + level / 2.0, df);
         let mut rows = Vec::new();
         let mut slope_rows = Vec::new();
+        let mut first_missing: Option<ModelError> = None;
         for &c in &present {
             let lab = levels.get(c as usize).cloned().unwrap_or_default();
             let pt = m.point(f, Some(c), numeric.clone(), Some(x));
             let l = m.row_at(&pt);
-            let (s, se) = m.linear(&l).map_err(|_| ModelError::NotEstimable {
-                what: format!("the slope within {factor} = {lab}"),
-                why: slope_why_not(m, f, x, c),
-            })?;
+            // A level whose slope the design does not determine (the covariate takes one
+            // value there) is shown as such, as adjusted means are, and the others stand.
+            let Ok((s, se)) = m.linear(&l) else {
+                let why = slope_why_not(m, f, x, c);
+                if first_missing.is_none() {
+                    first_missing = Some(ModelError::NotEstimable {
+                        what: format!("the slope within {factor} = {lab}"),
+                        why: why.clone(),
+                    });
+                }
+                rows.push(Slope {
+                    level: lab,
+                    slope: f64::NAN,
+                    se: f64::NAN,
+                    t: f64::NAN,
+                    df,
+                    p: f64::NAN,
+                    lower: f64::NAN,
+                    upper: f64::NAN,
+                    not_estimable: Some(why),
+                });
+                continue;
+            };
             let t = if m.exact { f64::NAN } else { s / se };
             rows.push(Slope {
                 level: lab,
@@ -158,8 +178,14 @@ impl Fit {
                 p: t_p(t, df),
                 lower: s - tq * se,
                 upper: s + tq * se,
+                not_estimable: None,
             });
             slope_rows.push(l);
+        }
+        if slope_rows.is_empty() {
+            if let Some(e) = first_missing {
+                return Err(e);
+            }
         }
         let mut depends_on: Vec<(String, bool)> = Vec::new();
         for term in m

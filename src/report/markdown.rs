@@ -430,14 +430,16 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
         }
         // The two limits of an interval share one number of decimals: the column and its
         // partner are rounded as one. Beside an SE, a row whose estimate is within one SE
-        // of zero asks for no decimals of its own (README, "Numbers as shown").
+        // of zero asks for no decimals of its own, and every other row for the decimals that
+        // reach its SE's leading digit (README, "Numbers as shown").
         let noise = noise_rows(t, j);
         let f = match (limit_partner(t, j), &c.format, &noise) {
-            (Some(k), Format::Digits(sig), Some(noise)) => {
+            (Some(k), Format::Digits(sig), Some((noise, ses))) => {
                 let mut both = nums.clone();
                 both.extend(numbers(k));
                 let twice: Vec<bool> = noise.iter().chain(noise.iter()).copied().collect();
-                let mut f = super::number::estimate_column(&both, &twice, *sig);
+                let ses_twice: Vec<Option<f64>> = ses.iter().chain(ses.iter()).copied().collect();
+                let mut f = super::number::estimate_column(&both, &twice, &ses_twice, *sig);
                 f.truncate(nums.len());
                 f
             }
@@ -448,8 +450,8 @@ pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
                 f.truncate(nums.len());
                 f
             }
-            (None, Format::Digits(sig), Some(noise)) => {
-                super::number::estimate_column(&nums, noise, *sig)
+            (None, Format::Digits(sig), Some((noise, ses))) => {
+                super::number::estimate_column(&nums, noise, ses, *sig)
             }
             (None, _, _) => format_column(&nums, c.format),
         };
@@ -472,8 +474,10 @@ fn with_text_cells(t: &Table, j: usize, mut formatted: Vec<String>) -> Vec<Strin
 /// and `upper`, `lower_bound` and `upper_bound`), when both have the same format.
 /// For an estimate's column (the `Digits` column just before an `se` column) or one of its
 /// limits (`lower...`, `upper...`): which rows have an estimate within one standard error of
-/// zero. `None` for any other column, or a table without standard errors.
-fn noise_rows(t: &Table, j: usize) -> Option<Vec<bool>> {
+/// zero, and each row's standard error. `None` for any other column, or a table without
+/// standard errors.
+type NoiseAndSe = (Vec<bool>, Vec<Option<f64>>);
+fn noise_rows(t: &Table, j: usize) -> Option<NoiseAndSe> {
     let se = t.columns.iter().position(|d| d.key == "se")?;
     let est = se.checked_sub(1)?;
     if !matches!(t.columns.get(est)?.format, Format::Digits(_)) {
@@ -487,12 +491,13 @@ fn noise_rows(t: &Table, j: usize) -> Option<Vec<bool>> {
         t.rows
             .iter()
             .map(|r| match (r.get(est), r.get(se)) {
-                (Some(Cell::Number(e)), Some(Cell::Number(s))) => {
-                    s.is_finite() && *s > 0.0 && e.abs() < *s
-                }
-                _ => false,
+                (Some(Cell::Number(e)), Some(Cell::Number(s))) => (
+                    s.is_finite() && *s > 0.0 && e.abs() < *s,
+                    Some(*s).filter(|s| s.is_finite() && e.is_finite()),
+                ),
+                _ => (false, None),
             })
-            .collect(),
+            .unzip(),
     )
 }
 
@@ -765,11 +770,8 @@ mod tests {
         assert_eq!(code("`x"), "`` `x ``");
     }
 
-    #[test]
-    fn estimates_within_one_se_of_zero_ask_for_no_decimals() {
-        // A nearly exact fit (values from memory of such a fit: SEs near 1e-10): the
-        // coefficient of noise size once made the column show eight decimals of zeros.
-        let mut t = Table::new(
+    fn estimate_table() -> Table {
+        Table::new(
             "coefficients",
             "Demo",
             vec![
@@ -779,13 +781,20 @@ mod tests {
                 Column::new("lower", "lower", Format::Digits(4)),
                 Column::new("upper", "upper", Format::Digits(4)),
             ],
-        );
+        )
+    }
+
+    #[test]
+    fn estimates_within_one_se_of_zero_ask_for_no_decimals() {
+        // A coefficient of noise size (SE near 1e-10, values from memory of a nearly exact
+        // fit) once made the column show eight decimals of zeros beside a well-measured one.
+        let mut t = estimate_table();
         t.push(vec![
             "x".into(),
             3.0.into(),
-            1.5e-10.into(),
-            3.0.into(),
-            3.0.into(),
+            0.01.into(),
+            2.98.into(),
+            3.02.into(),
         ]);
         t.push(vec![
             "b".into(),
@@ -795,8 +804,8 @@ mod tests {
             7.4e-10.into(),
         ]);
         assert_eq!(formatted_column(&t, 1), ["3.000", "0.000"]);
-        assert_eq!(formatted_column(&t, 3), ["3.000", "0.000"]);
-        assert_eq!(formatted_column(&t, 4), ["3.000", "0.000"]);
+        assert_eq!(formatted_column(&t, 3), ["2.980", "0.000"]);
+        assert_eq!(formatted_column(&t, 4), ["3.020", "0.000"]);
         // An estimate beyond its SE still asks for its two significant digits; within it,
         // not.
         t.rows[1][1] = 0.00123.into();
@@ -804,6 +813,66 @@ mod tests {
         assert_eq!(formatted_column(&t, 1), ["3.0000", "0.0012"]);
         t.rows[1][2] = 0.01.into();
         assert_eq!(formatted_column(&t, 1), ["3.000", "0.001"]);
+    }
+
+    #[test]
+    fn estimates_show_the_digits_their_standard_errors_vouch_for() {
+        // A response near 12345.678901 measured to 1e-6 (invented): its intercept, a
+        // difference of 2.5e-6 and the limits once read 12345.67890, 0.00000 and 12346 to
+        // 12346; each now reaches its SE's leading digit (common practice: an estimate is
+        // rounded to its uncertainty).
+        let mut t = estimate_table();
+        t.push(vec![
+            "intercept".into(),
+            12345.678901.into(),
+            4.6e-7.into(),
+            12345.6789.into(),
+            12345.678902.into(),
+        ]);
+        t.push(vec![
+            "b".into(),
+            2.49e-6.into(),
+            4.6e-7.into(),
+            1.46e-6.into(),
+            3.52e-6.into(),
+        ]);
+        assert_eq!(formatted_column(&t, 1), ["12345.6789010", "0.0000025"]);
+        assert_eq!(formatted_column(&t, 3), ["12345.6789000", "0.0000015"]);
+        assert_eq!(formatted_column(&t, 4), ["12345.6789020", "0.0000035"]);
+        // A nearly exact fit whose residuals covey takes for real (not an exact fit, which
+        // has SE 0) shows its estimate to its SE; its noise-size row asks for nothing.
+        t.rows[0] = vec![
+            "x".into(),
+            3.0.into(),
+            1.5e-10.into(),
+            3.0.into(),
+            3.0.into(),
+        ];
+        t.rows[1] = vec![
+            "b".into(),
+            (-5.8e-10).into(),
+            6.2e-10.into(),
+            (-1.9e-9).into(),
+            7.4e-10.into(),
+        ];
+        assert_eq!(formatted_column(&t, 1), ["3.0000000000", "-0.0000000006"]);
+        // No more than fifteen significant digits, what a double keeps.
+        t.rows[0][1] = 123456789.0.into();
+        assert_eq!(formatted_column(&t, 1)[0], "123456789.000000");
+        // In scientific notation each value shows the digits down to its SE's.
+        t.rows[0][1] = 1.234567e12.into();
+        t.rows[0][2] = 10.0.into();
+        assert_eq!(formatted_column(&t, 1)[0], "1.23456700000e12");
+        // An SE of 0 (an exact fit) or a missing one leaves the column's own rule.
+        t.rows[0] = vec!["x".into(), 3.0.into(), 0.0.into(), 3.0.into(), 3.0.into()];
+        t.rows[1] = vec![
+            "b".into(),
+            2.5.into(),
+            Cell::Missing,
+            2.5.into(),
+            2.5.into(),
+        ];
+        assert_eq!(formatted_column(&t, 1), ["3.000", "2.500"]);
     }
 
     #[test]

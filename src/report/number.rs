@@ -164,23 +164,68 @@ fn digits(values: &[Option<f64>], sig: i32) -> Vec<String> {
 /// [`digits`], where only the values marked in `asks` may ask for decimals for their two
 /// significant digits (the largest value always asks for its `sig`).
 fn digits_asked(values: &[Option<f64>], asks: &[bool], sig: i32) -> Vec<String> {
+    digits_with_se(values, asks, &[], sig)
+}
+
+/// Most significant digits an estimate's column shows when its standard errors ask for more
+/// than [`MAX_SIGNIFICANT`]: fifteen decimal digits always survive the round trip through a
+/// double (IEEE 754-2008, 5.12.2), so a sixteenth could be an artefact of binary storage.
+const MAX_SE_SIGNIFICANT: i32 = 15;
+
+/// The number of decimals that put an estimate's last shown digit at the leading digit of
+/// its standard error `se` (common practice: an estimate is rounded to its uncertainty, so
+/// 12345.678901 with an SE of 4.6e-7 reads 12345.6789010, not 12345.67890 nor 12346); `None`
+/// for a missing, zero or non-finite SE.
+fn se_decimals(se: Option<f64>) -> Option<i32> {
+    let s = se?;
+    (s.is_finite() && s > 0.0).then(|| -(s.log10().floor() as i32))
+}
+
+/// [`digits_asked`], where moreover every row that asks (`asks`, the rows beyond one SE of
+/// zero) with a standard error in `ses` (one per value; missing where there is none) asks
+/// for the decimals that reach its SE's leading digit ([`se_decimals`]), up to
+/// [`MAX_SE_SIGNIFICANT`] significant digits of the column's largest value. In scientific
+/// notation each such value shows the significant digits that reach its SE.
+fn digits_with_se(
+    values: &[Option<f64>],
+    asks: &[bool],
+    ses: &[Option<f64>],
+    sig: i32,
+) -> Vec<String> {
     let Some(max) = largest(values) else {
         return values.iter().map(|v| fixed(*v, 0)).collect();
     };
     let floor = max * 10f64.powi(-MAX_SIGNIFICANT);
-    let min = values
-        .iter()
-        .zip(asks.iter().chain(std::iter::repeat(&true)))
-        .filter(|(_, a)| **a)
-        .filter_map(|(v, _)| *v)
+    let asking = || {
+        values
+            .iter()
+            .zip(asks.iter().chain(std::iter::repeat(&true)))
+            .zip(ses.iter().copied().chain(std::iter::repeat(None)))
+            .filter(|((_, a), _)| **a)
+            .map(|((v, _), s)| (*v, s))
+    };
+    let min = asking()
+        .filter_map(|(v, _)| v)
         .map(|x| x.abs())
         .filter(|&m| m.is_finite() && m >= floor)
         .fold(max, f64::min);
+    let by_se = asking()
+        .filter(|(v, _)| v.is_some_and(f64::is_finite))
+        .filter_map(|(_, s)| se_decimals(s))
+        .max();
     if !(1e-4..1e10).contains(&max) {
         return values
             .iter()
-            .map(|v| match v {
-                Some(x) if x.is_finite() => scientific(*x, sig),
+            .zip(ses.iter().copied().chain(std::iter::repeat(None)))
+            .map(|(v, s)| match v {
+                Some(x) if x.is_finite() => {
+                    // The digits from x's leading one down to its SE's.
+                    let reach = match (se_decimals(s), *x != 0.0) {
+                        (Some(d), true) => x.abs().log10().floor() as i32 + d + 1,
+                        _ => sig,
+                    };
+                    scientific(*x, reach.clamp(sig, MAX_SE_SIGNIFICANT))
+                }
                 _ => MISSING.to_string(),
             })
             .collect();
@@ -189,18 +234,32 @@ fn digits_asked(values: &[Option<f64>], asks: &[bool], sig: i32) -> Vec<String> 
     let hi = max.log10().floor() as i32;
     let wanted = (sig - 1 - hi).max(1 - lo);
     let cap = (MAX_SIGNIFICANT - 1 - hi).min(MAX_DECIMALS);
-    let decimals = wanted.min(cap).max(0) as usize;
-    values.iter().map(|v| fixed(*v, decimals)).collect()
+    let mut decimals = wanted.min(cap).max(0);
+    if let Some(d) = by_se {
+        decimals = decimals.max(d.min(MAX_SE_SIGNIFICANT - 1 - hi));
+    }
+    values
+        .iter()
+        .map(|v| fixed(*v, decimals as usize))
+        .collect()
 }
 
-/// An estimate's column (or its limits) with its standard errors: formatted as
-/// [`digits`] would, except that a row whose estimate lies within one standard error of zero
+/// An estimate's column (or its limits) with its standard errors `ses` (one per row): formatted
+/// as [`digits`] would, except that a row whose estimate lies within one standard error of zero
 /// (`noise`) asks for no decimals of its own: the digits of such a value are below its
 /// uncertainty, and in a nearly exact fit (a standard error of 1e-10) they would ask for
-/// every decimal allowed to show zeros. The largest value always asks for `sig` digits.
-pub fn estimate_column(values: &[Option<f64>], noise: &[bool], sig: u8) -> Vec<String> {
+/// every decimal allowed to show zeros. Every other row asks for the decimals that reach its
+/// SE's leading digit, so that an estimate far larger than its SE (12345.678901 with an SE
+/// of 1e-6) shows the digits its SE vouches for, and its limits differ where they differ.
+/// The largest value always asks for `sig` digits.
+pub fn estimate_column(
+    values: &[Option<f64>],
+    noise: &[bool],
+    ses: &[Option<f64>],
+    sig: u8,
+) -> Vec<String> {
     let asks: Vec<bool> = noise.iter().map(|n| !n).collect();
-    digits_asked(values, &asks, i32::from(sig))
+    digits_with_se(values, &asks, ses, i32::from(sig))
 }
 
 fn scientific(x: f64, sig: i32) -> String {

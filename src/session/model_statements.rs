@@ -691,6 +691,7 @@ impl Session<'_> {
                     }
                     worst_error = worst_error.max(r.p_error);
                     unbounded |= r.not_estimable.is_none()
+                        && side != Side::Both
                         && method != Correction::Holm
                         && (r.lower.is_none() || r.upper.is_none());
                     let mut row: Vec<Cell> = Vec::new();
@@ -841,6 +842,21 @@ impl Session<'_> {
                         r.lower.into(),
                         r.upper.into(),
                     ]);
+                }
+                let missing: Vec<String> = s
+                    .rows
+                    .iter()
+                    .filter_map(|r| {
+                        r.not_estimable
+                            .as_ref()
+                            .map(|why| format!("{}: {why}", code(&r.level)))
+                    })
+                    .collect();
+                if !missing.is_empty() {
+                    t.notes.push(format!(
+                        "Not estimable from this design, shown as — and left out of the test that the slopes are equal: {}.",
+                        missing.join("; ")
+                    ));
                 }
                 if s.refitted {
                     t.notes.push(format!(

@@ -147,6 +147,27 @@ fn power_text(p: f64) -> String {
     }
 }
 
+/// A power shown beside the target power `target` it was solved for: as [`power_text`],
+/// with more decimals (up to twelve) where three would put it on the wrong side of the
+/// target: 0.89999993, one row short of power 0.9, reads 0.8999999, not 0.900, which would
+/// say that it reaches the target.
+fn power_against(p: f64, target: f64) -> String {
+    if !p.is_finite() {
+        return power_text(p);
+    }
+    let reaches = p >= target;
+    if p > 0.9995 && target <= 0.999 {
+        return power_text(p);
+    }
+    for decimals in 3..=12usize {
+        let s = format!("{p:.decimals$}");
+        if s.parse::<f64>().is_ok_and(|v| (v >= target) == reaches) {
+            return s;
+        }
+    }
+    format!("{p:.12}")
+}
+
 /// A whole number written as a number, within bounds.
 fn whole(v: &Spanned<f64>, what: &str, min: u64, max: u64) -> Result<u64, Diagnostic> {
     let x = v.value;
@@ -966,12 +987,16 @@ fn result_note(decl: &PlanDecl, d: &Design, f: f64, sd: Option<f64>, r: &Power) 
             let mut s = format!(
                 "n is the smallest whole number {per} that reaches power {}; with it the power is {}",
                 short(p.value),
-                power_text(r.power)
+                power_against(r.power, p.value)
             );
             let design_ok = r.n > d.least_n();
             if design_ok {
                 if let Ok(below) = d.power(f, r.n - 1) {
-                    s.push_str(&format!(" (with {}, {})", r.n - 1, power_text(below.power)));
+                    s.push_str(&format!(
+                        " (with {}, {})",
+                        r.n - 1,
+                        power_against(below.power, p.value)
+                    ));
                 }
             }
             s.push('.');

@@ -236,6 +236,26 @@ fn chi2_quantile(u: f64, nu: f64) -> f64 {
     x
 }
 
+/// P(T < c) (one-sided) or P(|T| < c) (two-sided) for T ~ t(df), from statrs's tail so that
+/// a small tail keeps its digits.
+fn t_below(c: f64, df: f64, two_sided: bool) -> f64 {
+    use statrs::distribution::{ContinuousCDF, StudentsT};
+    let Ok(d) = StudentsT::new(0.0, 1.0, df) else {
+        return f64::NAN;
+    };
+    if two_sided {
+        if c <= 0.0 {
+            0.0
+        } else {
+            1.0 - 2.0 * d.sf(c)
+        }
+    } else if c >= 0.0 {
+        1.0 - d.sf(c)
+    } else {
+        d.cdf(c)
+    }
+}
+
 impl MaxT {
     /// The distribution for correlation matrix `corr` (m x m, unit diagonal) and `df`.
     /// Comparisons that repeat others (a Cholesky pivot below [`PIVOT_TOL`]) are dropped:
@@ -358,7 +378,15 @@ impl MaxT {
                 error: 0.0,
             };
         }
-        let _ = dims;
+        if m == 1 {
+            // One comparison (a level compared with the control alone, as inside a level of
+            // a second factor where the others' cells are empty): the t distribution itself,
+            // not the lattice, whose error of up to TARGET_ERROR would be 10% of a p of 1e-4.
+            return Estimate {
+                value: t_below(c, self.df, self.two_sided),
+                error: 0.0,
+            };
+        }
         let ri = self.rule(n);
         let Some(rule) = self.rules.get(ri) else {
             return Estimate {
@@ -560,6 +588,28 @@ mod tests {
         let mut d = MaxT::new(&[vec![1.0]], 10.0, true);
         let e = d.cdf(2.228_138_851_986_27);
         assert!((e.value - 0.95).abs() <= TARGET_ERROR, "{e:?}");
+    }
+
+    #[test]
+    fn one_comparison_keeps_the_digits_of_a_small_p() {
+        // scipy.stats.t.sf(5.467385164322158, 11) = 9.781372157829506e-05 (the one
+        // comparison left inside a level whose other cells are empty; the lattice gave
+        // 8.86e-5); scipy.stats.t.ppf(0.95, 11) = 1.7958848187040433.
+        let mut d = MaxT::new(&[vec![1.0]], 11.0, false);
+        let p = d.p_value(5.467_385_164_322_158);
+        assert!(
+            (p.value / 9.781_372_157_829_506e-5 - 1.0).abs() < 1e-9,
+            "{p:?}"
+        );
+        let (c, _) = d.quantile(0.95);
+        assert!((c / 1.795_884_818_704_043_3 - 1.0).abs() < 1e-9, "{c}");
+        let mut two = MaxT::new(&[vec![1.0]], 11.0, true);
+        // scipy.stats.t.sf(2.5, 11) * 2 = 0.029506374087364163
+        let p = two.p_value(-2.5);
+        assert!(
+            (p.value / 0.029_506_374_087_364_163 - 1.0).abs() < 1e-9,
+            "{p:?}"
+        );
     }
 
     #[test]
