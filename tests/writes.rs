@@ -595,6 +595,45 @@ fn a_failure_during_the_renames_puts_everything_back() {
     }
 }
 
+/// A failed commit leaves nothing new behind: the folders it created for its files (a new
+/// `--out` folder, several levels deep, and a figures folder) go again, whichever step failed.
+#[test]
+fn a_failed_commit_leaves_no_folder_it_created() {
+    for failing in 0..3 {
+        for stage in [false, true] {
+            let dir = scratch(&format!("no-new-folder-{failing}-{stage}"));
+            let a = dir.join("a.md");
+            write(&a, "old a");
+            let rendering = dir.join("out/deep/doc.rendered.md");
+            let figure = dir.join("out/deep/doc.figures/block1-1.svg");
+            let mut batch = Batch::new();
+            batch.write(a.clone(), "new a", expect(&a));
+            batch.write(rendering, "rendering", Expect::Absent);
+            batch.write(figure, "<svg/>", Expect::Absent);
+            let fault = if stage {
+                Fault::Stage(failing)
+            } else {
+                Fault::Rename(failing)
+            };
+            let e = batch
+                .commit_with(Some(fault))
+                .err()
+                .unwrap_or_else(|| panic!("the injected failure is reported"));
+            let case = format!("failing at {failing}, staging {stage}: {e}");
+            assert_eq!(read(&a), "old a", "{case}");
+            assert_eq!(names(&dir), ["a.md", "data"], "{case}");
+        }
+    }
+    // A folder that was there before stays, even when the commit leaves it empty.
+    let dir = scratch("no-new-folder-kept");
+    std::fs::create_dir_all(dir.join("out")).unwrap_or_else(|e| panic!("{e}"));
+    let mut batch = Batch::new();
+    batch.write(dir.join("out/x.md"), "x", Expect::Absent);
+    assert!(batch.commit_with(Some(Fault::Rename(0))).is_err());
+    assert_eq!(names(&dir), ["data", "out"]);
+    assert!(names(&dir.join("out")).is_empty());
+}
+
 #[test]
 fn a_file_changed_just_before_its_rename_stops_the_batch() {
     let dir = scratch("last-check");
