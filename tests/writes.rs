@@ -397,6 +397,39 @@ fn figure_clean_up_removes_only_covey_figures() {
     );
 }
 
+/// A list of figures edited by hand (or by another program) to name a user's file with its
+/// very bytes does not make that file covey's: covey lists, replaces and removes only names
+/// it gives figures (`blockB-N.svg`).
+#[test]
+fn a_hand_edited_list_of_figures_never_gives_covey_a_users_file() {
+    let dir = setup("figures-hand-edited");
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let figs = dir.join("doc.figures");
+    let list = figs.join("covey-figures.sha256");
+    let users = ["notes.txt", "block1-1.svg.bak", "plot.svg", "block1-1.png"];
+    let mut edited = read(&list);
+    for name in users {
+        let text = format!("the user's {name}");
+        write(&figs.join(name), &text);
+        edited.push_str(&format!(
+            "{}  {name}\n",
+            covey::files::Digest::of(text.as_bytes()).hex()
+        ));
+    }
+    write(&list, &edited);
+    // Drawing nothing now: covey's figure and list go, the user's files stay.
+    write(&dir.join("doc.md"), PLAIN);
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let mut want: Vec<&str> = users.to_vec();
+    want.sort_unstable();
+    assert_eq!(names(&figs), want);
+    for name in users {
+        assert_eq!(read(&figs.join(name)), format!("the user's {name}"));
+    }
+}
+
 #[test]
 fn an_emptied_figures_folder_goes() {
     let dir = setup("figures-gone");
