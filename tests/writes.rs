@@ -153,6 +153,19 @@ fn json_never_replaces_the_document_or_its_data() {
     assert_eq!(read(&dir.join("data/d.csv")), DATA);
     assert_eq!(read(&dir.join("doc.md")), DOC);
     assert!(!dir.join("doc.rendered.md").exists());
+    // A figure's path or the list of figures, however spelled: the --json path is the one to
+    // change (not "move that file out of the figures folder": there is no file yet).
+    for json in [
+        "doc.figures/block1-1.svg",
+        "./doc.figures/../doc.figures/covey-figures.sha256",
+    ] {
+        let (code, err) = covey(&dir, &["render", "doc.md", "--json", json]);
+        assert_eq!(code, 2, "{err}");
+        assert!(err.contains("but so would the --json export of doc.md"), "{err}");
+        assert!(err.contains("choose another --json path"), "{err}");
+        assert!(!err.contains("move that file"), "{err}");
+        assert!(!dir.join("doc.figures").exists() && !dir.join("doc.rendered.md").exists());
+    }
 }
 
 #[test]
