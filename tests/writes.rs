@@ -348,6 +348,19 @@ fn a_name_too_long_for_the_temporary_suffix_still_works() {
     );
 }
 
+/// An --out folder whose path is longer than the system allows (each name short enough): the
+/// refusal says what to do, and no folder of it is made.
+#[test]
+fn an_out_path_too_long_for_the_system_is_refused_with_what_to_do() {
+    let dir = setup("path-too-long");
+    let long = vec!["d".repeat(200); 25].join("/");
+    let (code, err) = covey(&dir, &["render", "--out", &long, "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("render into a folder with a shorter path"), "{err}");
+    assert!(err.contains("nothing was written"), "{err}");
+    assert_eq!(names(&dir), ["data", "doc.md"]);
+}
+
 // ---------------------------------------------------------------------------
 // The figures folder.
 

@@ -351,7 +351,16 @@ impl Plan {
                 Ok(m) => Some(m),
                 Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
                 Err(e) => {
-                    refusals.push(refuse(format!("cannot look at it: {e}")));
+                    let hint = if e.kind() == std::io::ErrorKind::InvalidFilename {
+                        // A path longer than the system allows (4096 bytes on Linux).
+                        format!(
+                            "the path is {} bytes long: render into a folder with a shorter path",
+                            out.path.as_os_str().len()
+                        )
+                    } else {
+                        out.role.instead().to_string()
+                    };
+                    refusals.push(refuse(format!("cannot look at it: {e}; {hint}")));
                     continue;
                 }
             };
