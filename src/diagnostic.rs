@@ -320,7 +320,8 @@ impl Source<'_> {
             line,
             column: col,
         };
-        let shift = |at: usize| lead.len() + source.get(from..at).map_or(0, |s| shown(s, tab).len());
+        let shift =
+            |at: usize| lead.len() + source.get(from..at).map_or(0, |s| shown(s, tab).len());
         let (a, b) = (shift(start), shift(end.min(to)));
         let mut diag = CsDiagnostic::error()
             .with_message(&d.message)
@@ -419,11 +420,17 @@ mod tests {
         // Hidden characters (control, bidirectional, zero-width, byte-order mark) are shown as
         // their code points, eight columns or more where the terminal would have used one or
         // none; tabs and wide characters beside them; short lines and long ones (a window).
-        for c in ['\u{1}', '\u{1b}', '\u{7f}', '\u{85}', '\u{200B}', '\u{202E}', '\u{FEFF}'] {
+        for c in [
+            '\u{1}', '\u{1b}', '\u{7f}', '\u{85}', '\u{200B}', '\u{202E}', '\u{FEFF}',
+        ] {
             let lines = [
                 format!("table \"{c}{c}\" nosuch x"),
                 format!("\t{c}漢\t{c} nosuch x"),
-                format!("{}{c}漢 \"{c}\" nosuch {}", "a".repeat(300), "b".repeat(300)),
+                format!(
+                    "{}{c}漢 \"{c}\" nosuch {}",
+                    "a".repeat(300),
+                    "b".repeat(300)
+                ),
                 format!("{c}{} nosuch {c}", "a".repeat(300)),
             ];
             for line in lines {

@@ -161,7 +161,10 @@ fn json_never_replaces_the_document_or_its_data() {
     ] {
         let (code, err) = covey(&dir, &["render", "doc.md", "--json", json]);
         assert_eq!(code, 2, "{err}");
-        assert!(err.contains("but so would the --json export of doc.md"), "{err}");
+        assert!(
+            err.contains("but so would the --json export of doc.md"),
+            "{err}"
+        );
         assert!(err.contains("choose another --json path"), "{err}");
         assert!(!err.contains("move that file"), "{err}");
         assert!(!dir.join("doc.figures").exists() && !dir.join("doc.rendered.md").exists());
@@ -356,7 +359,10 @@ fn an_out_path_too_long_for_the_system_is_refused_with_what_to_do() {
     let long = vec!["d".repeat(200); 25].join("/");
     let (code, err) = covey(&dir, &["render", "--out", &long, "doc.md"]);
     assert_eq!(code, 2, "{err}");
-    assert!(err.contains("render into a folder with a shorter path"), "{err}");
+    assert!(
+        err.contains("render into a folder with a shorter path"),
+        "{err}"
+    );
     assert!(err.contains("nothing was written"), "{err}");
     assert_eq!(names(&dir), ["data", "doc.md"]);
 }

@@ -346,7 +346,10 @@ impl Plan {
             }
             // Taken from here on, even if refused below: the path is this
             // output's, and no other output of the run may have it.
-            taken.insert(here.clone(), (mine.clone(), out.doc.clone(), Some(out.role)));
+            taken.insert(
+                here.clone(),
+                (mine.clone(), out.doc.clone(), Some(out.role)),
+            );
             let meta = match fs::symlink_metadata(&out.path) {
                 Ok(m) => Some(m),
                 Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
