@@ -354,8 +354,9 @@ impl Plan {
                 Ok(m) => Some(m),
                 Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
                 Err(e) => {
-                    let hint = if e.kind() == std::io::ErrorKind::InvalidFilename {
-                        // A path longer than the system allows (4096 bytes on Linux).
+                    // A path longer than the system allows (4096 bytes on Linux, 1024 on
+                    // macOS; the error kind that says so is newer than covey's oldest Rust).
+                    let hint = if location(&out.path).as_os_str().len() >= 1024 {
                         format!(
                             "the path is {} bytes long: render into a folder with a shorter path",
                             out.path.as_os_str().len()
