@@ -7,7 +7,7 @@ use codespan_reporting::files::SimpleFile;
 use codespan_reporting::term::{self, termcolor::NoColor, Chars, Config};
 
 use crate::lang::Span;
-use crate::report::visible::visible_except;
+use crate::report::visible::{is_hidden, visible_except};
 
 /// A problem at a place in a document: what is wrong and what to do.
 #[derive(Debug, Clone, PartialEq)]
@@ -155,8 +155,8 @@ impl<'t> Source<'t> {
         let mut out = NoColor::new(Vec::new());
         let (line, col) = self.lines.line_col(start);
         let head = format!("{file_name}:{line}:{col}: error: {}\n", d.message);
-        if let Some(snippet) = self.long_line_snippet(d, start, end, line, col) {
-            return visible_except(&(head + &snippet), &['\n', '\t']).into_owned();
+        if let Some(snippet) = self.window_snippet(d, start, end, line, col) {
+            return visible_except(&head, &['\n', '\t']).into_owned() + &snippet;
         }
         let text = match term::emit(&mut out, &config, &self.file, &diag) {
             Ok(()) => {
@@ -267,11 +267,15 @@ impl<'a> codespan_reporting::files::Files<'a> for Window {
 }
 
 impl Source<'_> {
-    /// For a line longer than [`SHOWN_LINE_BYTES`], the snippet that [`Source::render`] writes
-    /// under the head: codespan's layout of only a window of the line around the span (`…`
-    /// where it is cut, a tab shown as one space), at the line and column of the whole text;
-    /// `None` for a line short enough to show whole.
-    fn long_line_snippet(
+    /// For a line longer than [`SHOWN_LINE_BYTES`], or one holding a hidden character
+    /// ([`is_hidden`]), the snippet that [`Source::render`] writes under the head: codespan's
+    /// layout of the line as it is shown, at the line and column of the whole text. A long line
+    /// is cut to a window around the span (`…` where it is cut, a tab shown as one space); a
+    /// hidden character is shown as its code point, `<U+0007>`, before the layout, so that the
+    /// carets stand under the characters shown (laid out first and made visible after, each
+    /// hidden character moved them one column or none against eight). `None` for a short line
+    /// of visible characters, which codespan lays out from the text itself.
+    fn window_snippet(
         &self,
         d: &Diagnostic,
         start: usize,
@@ -290,26 +294,34 @@ impl Source<'_> {
         } else {
             line_end
         };
-        if line_end.saturating_sub(line_start) <= SHOWN_LINE_BYTES {
+        let long = line_end.saturating_sub(line_start) > SHOWN_LINE_BYTES;
+        let hidden = || {
+            source
+                .get(line_start..line_end)
+                .is_some_and(|l| l.chars().any(|c| c != '\t' && is_hidden(c)))
+        };
+        if !long && !hidden() {
             return None;
         }
-        let from =
-            floor_char_boundary(source, start.saturating_sub(SHOWN_LINE_BYTES / 4)).max(line_start);
-        let to = floor_char_boundary(source, (from + SHOWN_LINE_BYTES).min(line_end)).max(start);
+        let (from, to, tab) = if long {
+            let from = floor_char_boundary(source, start.saturating_sub(SHOWN_LINE_BYTES / 4))
+                .max(line_start);
+            let to =
+                floor_char_boundary(source, (from + SHOWN_LINE_BYTES).min(line_end)).max(start);
+            (from, to, " ")
+        } else {
+            (line_start, line_end.max(start), "\t")
+        };
         let lead = if from > line_start { "…" } else { "" };
         let tail = if to < line_end { "…" } else { "" };
         let window = Window {
-            name: self.name.to_string(),
-            text: format!("{lead}{}{tail}", source.get(from..to)?.replace('\t', " ")),
+            name: visible_except(self.name, &[]).into_owned(),
+            text: format!("{lead}{}{tail}", shown(source.get(from..to)?, tab)),
             line,
             column: col,
         };
-        let shift = |at: usize| {
-            lead.len()
-                + source
-                    .get(from..at)
-                    .map_or(0, |s| s.replace('\t', " ").len())
-        };
+        let shift =
+            |at: usize| lead.len() + source.get(from..at).map_or(0, |s| shown(s, tab).len());
         let (a, b) = (shift(start), shift(end.min(to)));
         let mut diag = CsDiagnostic::error()
             .with_message(&d.message)
@@ -325,8 +337,25 @@ impl Source<'_> {
         term::emit(&mut out, &config, &window, &diag).ok()?;
         let body = String::from_utf8_lossy(out.get_ref());
         let snippet = body.split_once('\n').map_or("", |(_, rest)| rest);
-        Some(snippet.trim_end().to_string() + "\n")
+        // The label and the help may still name hidden characters; the line is shown already.
+        Some(visible_except(snippet.trim_end(), &['\n', '\t']).into_owned() + "\n")
     }
+}
+
+/// `text` as a source line is shown: each hidden character ([`is_hidden`]) as its code point,
+/// each tab as `tab`.
+fn shown(text: &str, tab: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        if c == '\t' {
+            out.push_str(tab);
+        } else if is_hidden(c) {
+            out.push_str(&format!("<U+{:04X}>", u32::from(c)));
+        } else {
+            out.push(c);
+        }
+    }
+    out
 }
 
 #[cfg(test)]
@@ -358,6 +387,74 @@ mod tests {
             " ".repeat(1 + 43 + 4 + 1)
         );
         assert_eq!(text, want);
+    }
+
+    /// The text of the shown source line from the first caret on: the line row above the caret
+    /// row, walked in terminal columns (two for a CJK ideograph, tabs to stops of four as
+    /// codespan expands them, one for anything else).
+    fn under_caret(text: &str) -> String {
+        let rows: Vec<&str> = text.lines().collect();
+        let at = rows
+            .iter()
+            .position(|r| r.contains('^'))
+            .unwrap_or_else(|| panic!("no caret: {text}"));
+        let caret = rows[at].find('^').unwrap_or(0);
+        let line = rows[at - 1];
+        let (mut column, mut rest) = (0, "");
+        for (i, c) in line.char_indices() {
+            if column >= caret {
+                rest = &line[i..];
+                break;
+            }
+            column += match c {
+                '\t' => 4 - column % 4,
+                '\u{4E00}'..='\u{9FFF}' => 2,
+                _ => 1,
+            };
+        }
+        rest.to_string()
+    }
+
+    #[test]
+    fn the_caret_stands_under_the_shown_character() {
+        // Hidden characters (control, bidirectional, zero-width, byte-order mark) are shown as
+        // their code points, eight columns or more where the terminal would have used one or
+        // none; tabs and wide characters beside them; short lines and long ones (a window).
+        for c in [
+            '\u{1}', '\u{1b}', '\u{7f}', '\u{85}', '\u{200B}', '\u{202E}', '\u{FEFF}',
+        ] {
+            let lines = [
+                format!("table \"{c}{c}\" nosuch x"),
+                format!("\t{c}漢\t{c} nosuch x"),
+                format!(
+                    "{}{c}漢 \"{c}\" nosuch {}",
+                    "a".repeat(300),
+                    "b".repeat(300)
+                ),
+                format!("{c}{} nosuch {c}", "a".repeat(300)),
+            ];
+            for line in lines {
+                let src = format!("# T\n\n```covey\n{line}\n```\n");
+                let at = src.find("nosuch").unwrap_or(0);
+                let d = Diagnostic::new(
+                    Span {
+                        start: at,
+                        end: at + 6,
+                    },
+                    "not a word",
+                )
+                .label("here");
+                let text = render("doc.md", &src, &d);
+                let (row, col) = line_col(&src, at);
+                assert!(
+                    text.starts_with(&format!("doc.md:{row}:{col}: error: not a word\n")),
+                    "{text}"
+                );
+                assert!(!text.chars().any(|c| c != '\n' && is_hidden(c)), "{text}");
+                assert!(under_caret(&text).starts_with("nosuch"), "{c:?}: {text}");
+                assert!(text.contains("^^^^^^ here"), "{text}");
+            }
+        }
     }
 
     #[test]

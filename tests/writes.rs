@@ -153,6 +153,22 @@ fn json_never_replaces_the_document_or_its_data() {
     assert_eq!(read(&dir.join("data/d.csv")), DATA);
     assert_eq!(read(&dir.join("doc.md")), DOC);
     assert!(!dir.join("doc.rendered.md").exists());
+    // A figure's path or the list of figures, however spelled: the --json path is the one to
+    // change (not "move that file out of the figures folder": there is no file yet).
+    for json in [
+        "doc.figures/block1-1.svg",
+        "./doc.figures/../doc.figures/covey-figures.sha256",
+    ] {
+        let (code, err) = covey(&dir, &["render", "doc.md", "--json", json]);
+        assert_eq!(code, 2, "{err}");
+        assert!(
+            err.contains("but so would the --json export of doc.md"),
+            "{err}"
+        );
+        assert!(err.contains("choose another --json path"), "{err}");
+        assert!(!err.contains("move that file"), "{err}");
+        assert!(!dir.join("doc.figures").exists() && !dir.join("doc.rendered.md").exists());
+    }
 }
 
 #[test]
@@ -335,6 +351,22 @@ fn a_name_too_long_for_the_temporary_suffix_still_works() {
     );
 }
 
+/// An --out folder whose path is longer than the system allows (each name short enough): the
+/// refusal says what to do, and no folder of it is made.
+#[test]
+fn an_out_path_too_long_for_the_system_is_refused_with_what_to_do() {
+    let dir = setup("path-too-long");
+    let long = vec!["d".repeat(200); 25].join("/");
+    let (code, err) = covey(&dir, &["render", "--out", &long, "doc.md"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("render into a folder with a shorter path"),
+        "{err}"
+    );
+    assert!(err.contains("nothing was written"), "{err}");
+    assert_eq!(names(&dir), ["data", "doc.md"]);
+}
+
 // ---------------------------------------------------------------------------
 // The figures folder.
 
@@ -395,6 +427,39 @@ fn figure_clean_up_removes_only_covey_figures() {
         "doc.figures/block1-1.svg",
         "covey did not write",
     );
+}
+
+/// A list of figures edited by hand (or by another program) to name a user's file with its
+/// very bytes does not make that file covey's: covey lists, replaces and removes only names
+/// it gives figures (`blockB-N.svg`).
+#[test]
+fn a_hand_edited_list_of_figures_never_gives_covey_a_users_file() {
+    let dir = setup("figures-hand-edited");
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let figs = dir.join("doc.figures");
+    let list = figs.join("covey-figures.sha256");
+    let users = ["notes.txt", "block1-1.svg.bak", "plot.svg", "block1-1.png"];
+    let mut edited = read(&list);
+    for name in users {
+        let text = format!("the user's {name}");
+        write(&figs.join(name), &text);
+        edited.push_str(&format!(
+            "{}  {name}\n",
+            covey::files::Digest::of(text.as_bytes()).hex()
+        ));
+    }
+    write(&list, &edited);
+    // Drawing nothing now: covey's figure and list go, the user's files stay.
+    write(&dir.join("doc.md"), PLAIN);
+    let (code, err) = covey(&dir, &["render", "doc.md"]);
+    assert_eq!(code, 0, "{err}");
+    let mut want: Vec<&str> = users.to_vec();
+    want.sort_unstable();
+    assert_eq!(names(&figs), want);
+    for name in users {
+        assert_eq!(read(&figs.join(name)), format!("the user's {name}"));
+    }
 }
 
 #[test]
@@ -593,6 +658,45 @@ fn a_failure_during_the_renames_puts_everything_back() {
         assert!(!c.exists(), "failing at {failing}");
         assert_eq!(names(&dir), ["a.md", "b.json", "data"], "no temporary file");
     }
+}
+
+/// A failed commit leaves nothing new behind: the folders it created for its files (a new
+/// `--out` folder, several levels deep, and a figures folder) go again, whichever step failed.
+#[test]
+fn a_failed_commit_leaves_no_folder_it_created() {
+    for failing in 0..3 {
+        for stage in [false, true] {
+            let dir = scratch(&format!("no-new-folder-{failing}-{stage}"));
+            let a = dir.join("a.md");
+            write(&a, "old a");
+            let rendering = dir.join("out/deep/doc.rendered.md");
+            let figure = dir.join("out/deep/doc.figures/block1-1.svg");
+            let mut batch = Batch::new();
+            batch.write(a.clone(), "new a", expect(&a));
+            batch.write(rendering, "rendering", Expect::Absent);
+            batch.write(figure, "<svg/>", Expect::Absent);
+            let fault = if stage {
+                Fault::Stage(failing)
+            } else {
+                Fault::Rename(failing)
+            };
+            let e = batch
+                .commit_with(Some(fault))
+                .err()
+                .unwrap_or_else(|| panic!("the injected failure is reported"));
+            let case = format!("failing at {failing}, staging {stage}: {e}");
+            assert_eq!(read(&a), "old a", "{case}");
+            assert_eq!(names(&dir), ["a.md", "data"], "{case}");
+        }
+    }
+    // A folder that was there before stays, even when the commit leaves it empty.
+    let dir = scratch("no-new-folder-kept");
+    std::fs::create_dir_all(dir.join("out")).unwrap_or_else(|e| panic!("{e}"));
+    let mut batch = Batch::new();
+    batch.write(dir.join("out/x.md"), "x", Expect::Absent);
+    assert!(batch.commit_with(Some(Fault::Rename(0))).is_err());
+    assert_eq!(names(&dir), ["data", "out"]);
+    assert!(names(&dir.join("out")).is_empty());
 }
 
 #[test]

@@ -249,19 +249,23 @@ impl Batch {
             pending.push(Pending { planned, old });
         }
         let mut stagings = Stagings(Vec::new());
+        // The folders this commit creates: a failed commit removes them again, so that it
+        // leaves nothing new behind (not even an empty figures or --out folder).
+        let mut made = Vec::new();
         for p in &pending {
             let folder = folder_of(&p.planned.path);
             if stagings.0.iter().any(|(f, _)| *f == folder) {
                 continue;
             }
-            let made = fs::create_dir_all(folder)
+            let staging = make_folders(folder, &mut made)
                 .map_err(|e| cannot_write_in(folder, e))
                 .and_then(|()| self.still_real(folder))
                 .and_then(|()| Staging::create(folder).map_err(|e| cannot_write_in(folder, e)));
-            match made {
+            match staging {
                 Ok(s) => stagings.0.push((folder, s)),
                 Err(e) => {
                     stagings.finish(false);
+                    unmake(&made);
                     return Err(nothing_written(e));
                 }
             }
@@ -294,6 +298,7 @@ impl Batch {
                 Ok(n) => news.push(n),
                 Err(e) => {
                     stagings.finish(false);
+                    unmake(&made);
                     return Err(nothing_written(e));
                 }
             }
@@ -317,6 +322,8 @@ impl Batch {
                 Err(e) => {
                     let problems = undo(journal, &stagings);
                     stagings.finish(!problems.is_empty());
+                    // A folder still holding a file that could not be put back stays.
+                    unmake(&made);
                     let mut message = e.to_string();
                     if problems.is_empty() {
                         message.push_str("; every file of this run was put back as it was");
@@ -592,6 +599,36 @@ fn undo(journal: Vec<Done>, stagings: &Stagings) -> Vec<String> {
         }
     }
     problems
+}
+
+/// Creates `folder` and the folders above it that do not exist, adding each one created to
+/// `made` (outermost first).
+fn make_folders(folder: &Path, made: &mut Vec<PathBuf>) -> io::Result<()> {
+    let mut missing = Vec::new();
+    let mut here = folder;
+    while !here.as_os_str().is_empty() && fs::symlink_metadata(here).is_err() {
+        missing.push(here);
+        match here.parent() {
+            Some(up) => here = up,
+            None => break,
+        }
+    }
+    for f in missing.into_iter().rev() {
+        match fs::create_dir(f) {
+            Ok(()) => made.push(f.to_path_buf()),
+            Err(e) if e.kind() == io::ErrorKind::AlreadyExists => {}
+            Err(e) => return Err(e),
+        }
+    }
+    // An error when something on the way is not a folder.
+    fs::create_dir_all(folder)
+}
+
+/// Removes the folders a failed commit created, innermost first, each only while empty.
+fn unmake(made: &[PathBuf]) {
+    for f in made.iter().rev() {
+        let _ = fs::remove_dir(f);
+    }
 }
 
 fn nothing_written(mut e: FileError) -> FileError {

@@ -29,8 +29,21 @@ pub fn text(figures: &[(String, Digest)]) -> String {
     out
 }
 
+/// True when `name` is a name covey gives a figure, `blockB-N.svg` (B and N
+/// written in digits): the only files a manifest can list. A manifest edited
+/// by hand, or by another program, to list a user's file (`notes.txt`,
+/// `../doc.md`) never makes covey replace or remove that file.
+pub fn is_figure_name(name: &str) -> bool {
+    let digits = |s: &str| !s.is_empty() && s.bytes().all(|b| b.is_ascii_digit());
+    name.strip_prefix("block")
+        .and_then(|n| n.strip_suffix(".svg"))
+        .and_then(|n| n.split_once('-'))
+        .is_some_and(|(b, n)| digits(b) && digits(n))
+}
+
 /// The figures a manifest lists, or None when `bytes` is not covey's
-/// manifest. Lines that do not name a plain file in the folder are skipped.
+/// manifest. Lines that do not name a figure of covey's ([`is_figure_name`])
+/// are skipped.
 pub fn parse(bytes: &[u8]) -> Option<Vec<(String, Digest)>> {
     let text = std::str::from_utf8(bytes).ok()?;
     let mut lines = text.lines();
@@ -42,9 +55,7 @@ pub fn parse(bytes: &[u8]) -> Option<Vec<(String, Digest)>> {
         let Some((hex, name)) = line.split_once("  ") else {
             continue;
         };
-        let plain =
-            !name.is_empty() && name != "." && name != ".." && !name.contains(['/', '\\', '\0']);
-        if let (Some(digest), true) = (Digest::from_hex(hex), plain) {
+        if let (Some(digest), true) = (Digest::from_hex(hex), is_figure_name(name)) {
             out.push((name.to_string(), digest));
         }
     }
@@ -69,5 +80,13 @@ mod tests {
             Digest::of(b"y").hex()
         );
         assert_eq!(parse(sneaky.as_bytes()), Some(Vec::new()));
+        let users = format!(
+            "{HEADER}\n{d}  notes.txt\n{d}  block1-1.svg.bak\n{d}  block-1.svg\n{d}               blockA-1.svg\n{d}  block1-.svg\n{d}  block1-2.SVG\n{d}  {FILE_NAME}\n{d}  block12-30.svg\n",
+            d = Digest::of(b"x").hex()
+        );
+        assert_eq!(
+            parse(users.as_bytes()),
+            Some(vec![("block12-30.svg".to_string(), Digest::of(b"x"))])
+        );
     }
 }

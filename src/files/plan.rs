@@ -287,10 +287,10 @@ impl Plan {
         outputs.sort_by_key(|o| o.role == Role::Source);
         // Every path taken so far: location -> (what it is, whose). A map, not a list: a long
         // document has tens of thousands of figures, and each is looked up.
-        let mut taken: HashMap<PathBuf, (String, PathBuf)> = HashMap::new();
+        let mut taken: HashMap<PathBuf, (String, PathBuf, Option<Role>)> = HashMap::new();
         for (path, doc) in claims {
             let what = format!("an output of {}", doc.display());
-            taken.entry(location(&path)).or_insert((what, doc));
+            taken.entry(location(&path)).or_insert((what, doc, None));
         }
         let mut batch = Batch::new();
         for out in outputs {
@@ -308,9 +308,14 @@ impl Plan {
                 refusals.push(refuse(too_long(&out.path, hint)));
                 continue;
             }
-            if let Some((other, whose)) = taken.get(&here) {
+            if let Some((other, whose, role)) = taken.get(&here) {
                 let hint = if *whose == out.doc {
-                    out.role.instead()
+                    // The --json path is the one the user chose: that is the one to change.
+                    if *role == Some(Role::Json) {
+                        Role::Json.instead()
+                    } else {
+                        out.role.instead()
+                    }
                 } else {
                     "documents with the same name need different --out folders; render them \
                      one folder at a time"
@@ -341,12 +346,25 @@ impl Plan {
             }
             // Taken from here on, even if refused below: the path is this
             // output's, and no other output of the run may have it.
-            taken.insert(here.clone(), (mine.clone(), out.doc.clone()));
+            taken.insert(
+                here.clone(),
+                (mine.clone(), out.doc.clone(), Some(out.role)),
+            );
             let meta = match fs::symlink_metadata(&out.path) {
                 Ok(m) => Some(m),
                 Err(e) if e.kind() == std::io::ErrorKind::NotFound => None,
                 Err(e) => {
-                    refusals.push(refuse(format!("cannot look at it: {e}")));
+                    // A path longer than the system allows (4096 bytes on Linux, 1024 on
+                    // macOS; the error kind that says so is newer than covey's oldest Rust).
+                    let hint = if location(&out.path).as_os_str().len() >= 1024 {
+                        format!(
+                            "the path is {} bytes long: render into a folder with a shorter path",
+                            out.path.as_os_str().len()
+                        )
+                    } else {
+                        out.role.instead().to_string()
+                    };
+                    refusals.push(refuse(format!("cannot look at it: {e}; {hint}")));
                     continue;
                 }
             };
