@@ -511,6 +511,11 @@ fn slopes_where_a_level_has_one_covariate_value() {
         md.contains("left out of the test that the slopes are equal: `c`"),
         "{md}"
     );
+    // The reason is the one the model's own warning gives for such a level.
+    assert!(
+        md.contains("the covariate `x` takes a single value within one level of `g`: `c` at 5"),
+        "{md}"
+    );
     let eq = rows(outputs(&json, "slopes-equality")[0]);
     close(
         "equal-slopes F (exact)",
