@@ -391,8 +391,50 @@ fn longest_run(text: &str, ch: char) -> usize {
 }
 
 /// The cells of column `j` of a table as its Markdown shows them (empty when there is no such
-/// column): text escaped, numbers formatted by the column's [`Format`].
+/// column): text escaped, numbers formatted by the column's [`Format`]. The limits of an
+/// interval around an estimate show the decimals of the estimate's column, so that `98.30`
+/// never stands beside limits `94.9` and `101.7` (common practice: limits are given to the
+/// precision of their estimate, which its standard error sets).
 pub fn formatted_column(t: &Table, j: usize) -> Vec<String> {
+    let own = own_formatted_column(t, j);
+    let Some(est) = estimate_of_limit(t, j) else {
+        return own;
+    };
+    let decimals = |cells: &[String]| -> Option<usize> {
+        cells.iter().try_fold(0, |most, s| {
+            if s.contains(['e', 'E']) {
+                return None;
+            }
+            Some(most.max(s.split_once('.').map_or(0, |(_, d)| d.len())))
+        })
+    };
+    let (Some(wanted), Some(_)) = (decimals(&own_formatted_column(t, est)), decimals(&own)) else {
+        return own;
+    };
+    let formatted = t
+        .rows
+        .iter()
+        .map(|r| match r.get(j) {
+            Some(Cell::Number(x)) => super::number::fixed_within_significance(*x, wanted),
+            _ => MISSING.to_string(),
+        })
+        .collect();
+    with_text_cells(t, j, formatted)
+}
+
+/// For a limit column (`lower` or `upper`) of an interval around an estimate (the `Digits`
+/// column just before an `se` column, of the same format): the estimate's column.
+fn estimate_of_limit(t: &Table, j: usize) -> Option<usize> {
+    let se = t.columns.iter().position(|d| d.key == "se")?;
+    let est = se.checked_sub(1)?;
+    let format = t.columns.get(est)?.format;
+    let c = t.columns.get(j)?;
+    let is_limit = c.key == "lower" || c.key == "upper";
+    (matches!(format, Format::Digits(_)) && is_limit && c.format == format).then_some(est)
+}
+
+/// [`formatted_column`] before the estimate and its limits are given one number of decimals.
+fn own_formatted_column(t: &Table, j: usize) -> Vec<String> {
     let Some(c) = t.columns.get(j) else {
         return Vec::new();
     };
@@ -685,6 +727,38 @@ mod tests {
         }
         assert_eq!(cols[1], ["-50.6", "1.0"]);
         assert_eq!(cols[2], ["211.9", "2.0"]);
+    }
+
+    /// The limits of an interval show their estimate's decimals: a mean of 98.30 once stood
+    /// beside limits 94.9 and 101.7, because the limits' largest value passed 100 and so
+    /// asked for one decimal fewer.
+    #[test]
+    fn limits_show_the_decimals_of_their_estimate() {
+        let mut t = Table::new(
+            "means",
+            "Means",
+            vec![
+                Column::new("level", "level", Format::Text),
+                Column::new("mean", "mean", Format::Digits(4)),
+                Column::new("se", "SE", Format::Digits(3)),
+                Column::new("lower", "lower", Format::Digits(4)),
+                Column::new("upper", "upper", Format::Digits(4)),
+            ],
+        );
+        for (mean, lower, upper) in [(85.77, 82.27, 89.27), (98.30, 94.90, 101.70)] {
+            t.push(vec![
+                Cell::Text("a".into()),
+                mean.into(),
+                1.6.into(),
+                lower.into(),
+                upper.into(),
+            ]);
+        }
+        assert_eq!(formatted_column(&t, 1), ["85.77", "98.30"]);
+        assert_eq!(formatted_column(&t, 3), ["82.27", "94.90"]);
+        assert_eq!(formatted_column(&t, 4), ["89.27", "101.70"]);
+        // The SE is not part of the group.
+        assert_eq!(formatted_column(&t, 2), ["1.60", "1.60"]);
     }
 
     #[test]

@@ -91,6 +91,19 @@ pub fn exact(v: Option<f64>) -> String {
     }
 }
 
+/// `x` with `decimals` decimals, or fewer where that would show more than
+/// [`MAX_SE_SIGNIFICANT`] significant digits (a sixteenth could be an artefact of binary
+/// storage).
+pub fn fixed_within_significance(x: f64, decimals: usize) -> String {
+    let hi = if x == 0.0 || !x.is_finite() {
+        0
+    } else {
+        x.abs().log10().floor() as i32
+    };
+    let cap = (MAX_SE_SIGNIFICANT - 1 - hi).max(0) as usize;
+    fixed(Some(x), decimals.min(cap))
+}
+
 fn fixed(v: Option<f64>, decimals: usize) -> String {
     match v {
         Some(x) if x.is_finite() => {

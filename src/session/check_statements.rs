@@ -152,7 +152,7 @@ impl Session<'_> {
             ));
         }
         t.notes.push(
-            "df gives the degrees of freedom of an F test as text, numerator then denominator (for example \"2, 26\"), and is empty for the other checks.".into(),
+            "df gives the degrees of freedom of an F test, numerator then denominator (for example \"2, 26\"; text in JSON); the other checks have none (— here, null in JSON).".into(),
         );
         for (f, x) in &have_interaction {
             t.notes.push(format!(
