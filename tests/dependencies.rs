@@ -1,8 +1,7 @@
 //! No dependency stays that no code uses: every crate Cargo.toml names is used by path
 //! (`name::...`, also in `use name::...`) in the code that builds with it: the program's
 //! sources for `[dependencies]`, the tests for `[dev-dependencies]`. (nalgebra, for one, holds
-//! the HC3 covariance's symmetric eigen-decomposition and the robust Wald test's Cholesky
-//! solve in src/model/fit.rs.)
+//! the robust Wald test's Cholesky solve in src/model/fit.rs.)
 
 use std::path::{Path, PathBuf};
 

@@ -129,8 +129,10 @@ pub struct Fit {
     /// Coefficients of the model as written after one step of refinement, when their
     /// recovery asked for it and the step could be trusted (made on first use).
     pub(crate) refined: OnceLock<Option<Vec<f64>>>,
-    /// The HC3 meat sum_i u_i u_i' e_i^2 / (1 - h_i)^2 in the fit's orthonormal coordinates
-    /// (k x k), made on first use; Err: the data-file line of a row with leverage 1.
+    /// The triangular factor F (k x k) of the HC3 meat sum_i u_i u_i' e_i^2 / (1 - h_i)^2 in
+    /// the fit's orthonormal coordinates, F'F = the meat: the QR factor of the rows
+    /// u_i' |e_i| / (1 - h_i), made on first use; Err: the data-file line of a row with
+    /// leverage 1.
     pub(crate) hc3: OnceLock<Result<Arc<Mat>, usize>>,
     /// Set in the robust view of a fit ([`Fit::robust`]): the k x k matrix F with
     /// F'F = the HC3 meat, so that the robust covariance of two functions with
@@ -799,8 +801,13 @@ impl Fit {
         self.robust.is_some()
     }
 
-    /// The HC3 meat (see [`Fit::hc3`]), summed over fixed blocks of rows in block order.
-    fn hc3_meat(&self) -> Result<Arc<Mat>, ModelError> {
+    /// The factor of the HC3 meat (see [`Fit::hc3`]): each fixed block of rows factored on
+    /// its own, the factors merged in block order; the rows of leverage near 1
+    /// ([`NEAR_ONE`]) come last, in row order, with 1 - h and the residual taken from the
+    /// other rows ([`RowPass::near_one`]). A factor of the rows, rather than the sum of their
+    /// outer products and its square root, keeps the small directions of the meat when one
+    /// row's term is many orders of magnitude larger than the others'.
+    fn hc3_factor(&self) -> Result<Arc<Mat>, ModelError> {
         let made = made_once(&self.hc3, || {
             let blocks = self.lay.used.blocks(CHUNK_ROWS);
             let pass = RowPass::new(self);
@@ -808,11 +815,44 @@ impl Fit {
                 crate::parallel::map(&blocks, |at| pass.meat(&self.lay.used.slice(at.clone())));
             let k = self.kept.len();
             let mut total = Mat::zeros(k, k);
-            for part in parts {
-                let m = part?;
-                for (t, v) in total.data.iter_mut().zip(&m.data) {
-                    *t += v;
+            let mut near = Vec::new();
+            for (b, (f, rows)) in parts.into_iter().enumerate() {
+                total = if b == 0 {
+                    f
+                } else {
+                    qr::merge_factors(&total, &f)
+                };
+                near.extend(rows);
+            }
+            if !near.is_empty() {
+                let sums = crate::parallel::map(&blocks, |at| {
+                    pass.near_one(&self.lay.used.slice(at.clone()), &near)
+                });
+                let mut s1 = vec![0.0; near.len()];
+                let mut s2 = vec![0.0; near.len()];
+                for (a, b) in sums {
+                    for (t, v) in s1.iter_mut().zip(a) {
+                        *t += v;
+                    }
+                    for (t, v) in s2.iter_mut().zip(b) {
+                        *t += v;
+                    }
                 }
+                let mut a = Mat::zeros(k + near.len(), k);
+                for (t, (r, (s1, s2))) in near.iter().zip(s1.iter().zip(&s2)).enumerate() {
+                    // sum_(j != i) h_ij^2 = h_i (1 - h_i) and sum_(j != i) h_ij e_j = -h_i e_i
+                    // (P is idempotent and annihilates e): no difference of near-equal terms.
+                    let one_h = s1 / r.h;
+                    if one_h.is_nan() || one_h <= LEVERAGE_ONE_TOL {
+                        return Err(self.spec.row_numbers.get(r.row).unwrap_or(r.row));
+                    }
+                    // The deleted residual e_i / (1 - h_i) = -S2 / S1, in the response's units.
+                    let d = (s2 / s1 * self.eng.y_scale).abs();
+                    for (c, u) in r.u.iter().enumerate() {
+                        a.set(k + t, c, u * d);
+                    }
+                }
+                total = qr::merge_factors(&total, &qr::block_factor(&mut a));
             }
             Ok(Arc::new(total))
         });
@@ -828,30 +868,9 @@ impl Fit {
     /// keep the residual df. The sandwich is formed in the fit's orthonormal coordinates
     /// u_i = R^-T V' w_i, so it keeps the accuracy of the centred fit.
     pub fn robust(&self) -> Result<Fit, ModelError> {
-        let meat = self.hc3_meat()?;
-        let k = self.kept.len();
-        let m = nalgebra::DMatrix::from_fn(k, k, |i, j| 0.5 * (meat.get(i, j) + meat.get(j, i)));
-        let eig = nalgebra::SymmetricEigen::new(m);
-        // F = diag(sqrt(lambda)) Q', so F'F = Q diag(lambda) Q' (the meat).
-        let mut f = Mat::zeros(k, k);
-        for r in 0..k {
-            let l = eig
-                .eigenvalues
-                .get(r)
-                .copied()
-                .unwrap_or(0.0)
-                .max(0.0)
-                .sqrt();
-            for c in 0..k {
-                f.set(
-                    r,
-                    c,
-                    l * eig.eigenvectors.get((c, r)).copied().unwrap_or(0.0),
-                );
-            }
-        }
+        let f = self.hc3_factor()?;
         let mut out = self.clone();
-        out.robust = Some(Arc::new(f));
+        out.robust = Some(f);
         Ok(out)
     }
 
@@ -875,13 +894,13 @@ impl Fit {
     /// part of those columns orthogonal to the sub-fit's earlier columns; its coordinates
     /// in the full fit's orthonormal basis are E = F_full' S_sub with F = R_w V R^-1 (R_w
     /// the monomials' triangular factor), and the statistic g' (E' M E)^-1 g / d with
-    /// g = D'y and M the HC3 meat (Wald 1943; White 1980, Econometrica 48).
+    /// g = D'y and M = F'F the HC3 meat (Wald 1943; White 1980, Econometrica 48).
     pub(crate) fn robust_wald(
         &self,
         sub: &Graded,
         extra: &[usize],
     ) -> Result<(f64, usize), ModelError> {
-        let meat = self.hc3_meat()?;
+        let f = self.hc3_factor()?;
         let e = &self.eng;
         let q = e.basis.monos.len();
         let orth = |g: &Graded| -> Mat {
@@ -936,8 +955,10 @@ impl Fit {
             pos.iter()
                 .map(|&p| sub.qy.get(p).copied().unwrap_or(0.0) * e.y_scale),
         );
-        let mm = nalgebra::DMatrix::from_fn(k, k, |i, j| meat.get(i, j));
-        let v = em.transpose() * mm * &em;
+        // E' M E = (F E)' (F E).
+        let fm = nalgebra::DMatrix::from_fn(k, k, |i, j| f.get(i, j));
+        let fe = fm * &em;
+        let v = fe.transpose() * &fe;
         let stat = match v.clone().cholesky() {
             Some(ch) => {
                 let x = ch.solve(&g);
@@ -1616,15 +1637,70 @@ impl<'a> RowPass<'a> {
         }
     }
 
-    /// The HC3 meat of the block's rows, sum_i u_i u_i' e_i^2 / (1 - h_i)^2 (k x k, e_i the
-    /// weighted residual in the response's units), or the data-file line of a row with
-    /// leverage 1.
-    fn meat(&self, rows: &[usize]) -> Result<Mat, usize> {
+    /// The factor F of the HC3 meat of the block's rows, F'F = sum_i u_i u_i' e_i^2 /
+    /// (1 - h_i)^2 (k x k, e_i the weighted residual in the response's units), leaving out the rows of leverage above
+    /// 1 - [`NEAR_ONE`], which are returned with their coordinates instead: there both
+    /// 1 - h_i and e_i are differences of near-equal numbers, each good to only about
+    /// 1e-16 / (1 - h_i) of itself.
+    fn meat(&self, rows: &[usize]) -> (Mat, Vec<NearOne>) {
+        let k = self.fit.kept.len();
+        let m = rows.len();
+        let (u, res) = self.coordinates_and_residuals(rows);
+        let y_scale = self.fit.eng.y_scale;
+        // k leading rows of zeros (see qr::block_factor), then one row a data row.
+        let mut a = Mat::zeros(k + m, k);
+        let mut near = Vec::new();
+        for (r, &i) in rows.iter().enumerate() {
+            let h: f64 = (0..k).map(|c| u.data[c * m + r] * u.data[c * m + r]).sum();
+            let one_h = 1.0 - h;
+            if one_h < NEAR_ONE {
+                near.push(NearOne {
+                    row: i,
+                    h,
+                    u: (0..k).map(|c| u.data[c * m + r]).collect(),
+                });
+                continue;
+            }
+            let d = (res[r] * y_scale / one_h).abs();
+            for c in 0..k {
+                a.set(k + r, c, u.data[c * m + r] * d);
+            }
+        }
+        (qr::block_factor(&mut a), near)
+    }
+
+    /// For each row i of `near`, over the block's other rows j: (sum h_ij^2, sum h_ij e_j),
+    /// h_ij = u_i . u_j the weighted projection's entry and e_j the residual in the scaled
+    /// response's units. Both sums are of terms that do not cancel at a leverage near 1; an
+    /// error d in the fitted values moves the second by only (1 - h_i) x_i'd.
+    fn near_one(&self, rows: &[usize], near: &[NearOne]) -> (Vec<f64>, Vec<f64>) {
+        let m = rows.len();
+        let (u, res) = self.coordinates_and_residuals(rows);
+        let mut s1 = vec![0.0; near.len()];
+        let mut s2 = vec![0.0; near.len()];
+        for (t, n) in near.iter().enumerate() {
+            for (r, (&j, e)) in rows.iter().zip(&res).enumerate() {
+                if j == n.row {
+                    continue;
+                }
+                let hij: f64 =
+                    n.u.iter()
+                        .enumerate()
+                        .map(|(c, ui)| ui * u.data[c * m + r])
+                        .sum();
+                s1[t] += hij * hij;
+                s2[t] += hij * e;
+            }
+        }
+        (s1, s2)
+    }
+
+    /// The rows' coordinates along the fit's orthonormal columns (m x k, column-major) and
+    /// their weighted residuals in the scaled response's units.
+    fn coordinates_and_residuals(&self, rows: &[usize]) -> (Mat, Vec<f64>) {
         let fit = self.fit;
         let e = &fit.eng;
         let q = e.basis.monos.len();
-        let k = fit.kept.len();
-        let m = rows.len();
         let block = Block::fill(
             &fit.spec,
             &e.basis,
@@ -1642,29 +1718,22 @@ impl<'a> RowPass<'a> {
                 }
             }
         }
-        let u = self.coordinates(&block, m);
-        let mut out = Mat::zeros(k, k);
-        for (r, &i) in rows.iter().enumerate() {
-            let h: f64 = (0..k).map(|c| u.data[c * m + r] * u.data[c * m + r]).sum();
-            let one_h = 1.0 - h;
-            if one_h <= LEVERAGE_ONE_TOL {
-                return Err(fit.spec.row_numbers.get(i).unwrap_or(i));
-            }
-            let er = res[r] * e.y_scale;
-            let omega = er * er / (one_h * one_h);
-            for a in 0..k {
-                let ua = u.data[a * m + r] * omega;
-                if ua == 0.0 {
-                    continue;
-                }
-                for b in 0..k {
-                    let x = out.get(a, b) + ua * u.data[b * m + r];
-                    out.set(a, b, x);
-                }
-            }
-        }
-        Ok(out)
+        (self.coordinates(&block, rows.len()), res)
     }
+}
+
+/// A row whose leverage is within this of 1 has its HC3 weight e_i^2 / (1 - h_i)^2 computed
+/// from the other rows (a second pass over the data): computed directly it keeps only about
+/// 16 + log10(1 - h_i) digits, 13 here. At most k / (1 - NEAR_ONE) rows can be so near 1,
+/// since the leverages sum to k.
+const NEAR_ONE: f64 = 1e-3;
+
+/// A row of leverage near 1, set aside by [`RowPass::meat`]: its data row, leverage as
+/// computed, and coordinates u_i.
+struct NearOne {
+    row: usize,
+    h: f64,
+    u: Vec<f64>,
 }
 
 impl Diagnostics {

@@ -27,6 +27,10 @@ pub enum Format {
     /// values shows as zero at their decimals (the mean of a centred column reads 0.000, not
     /// -2.961e-16).
     Units(u8),
+    /// A share of variation that is at most 1 (R squared, partial eta squared): decimals as
+    /// for `Digits`, and more for a value below 1 that they would round to 1, which would
+    /// claim that the model explains everything (1 - 1.7e-8 reads 0.999999983, not 1.00).
+    Proportion(u8),
     /// Test statistics (t, F, W): two decimals, as reporting style guides
     /// ask.
     Statistic,

@@ -15,6 +15,14 @@ const MAX_SIGNIFICANT: i32 = 10;
 pub fn format_column(values: &[Option<f64>], format: Format) -> Vec<String> {
     match format {
         Format::Digits(sig) | Format::Units(sig) => digits(values, i32::from(sig)),
+        Format::Proportion(sig) => digits(values, i32::from(sig))
+            .into_iter()
+            .zip(values)
+            .map(|(s, v)| match v {
+                Some(x) => short_of_one(s, *x),
+                None => s,
+            })
+            .collect(),
         Format::Statistic => values.iter().map(|v| statistic(*v)).collect(),
         Format::Count => values
             .iter()
@@ -40,6 +48,19 @@ fn statistic(v: Option<f64>) -> String {
         Some(x) if x.is_finite() && x.abs() >= STATISTIC_SCIENTIFIC => scientific(x, 3),
         _ => fixed(v, 2),
     }
+}
+
+/// `shown`, the text of `x` at its column's decimals; if that reads as 1 while x is below
+/// 1, x with the fewest decimals that do not (at most 17, which always tell x from 1).
+fn short_of_one(shown: String, x: f64) -> String {
+    if x.is_nan() || x >= 1.0 || shown.parse::<f64>().ok() != Some(1.0) {
+        return shown;
+    }
+    let from = shown.split('.').nth(1).map_or(0, str::len);
+    (from..=17)
+        .map(|d| fixed(Some(x), d))
+        .find(|s| s.parse::<f64>().ok() != Some(1.0))
+        .unwrap_or(shown)
 }
 
 /// What a missing or undefined number shows as.
@@ -365,6 +386,29 @@ mod tests {
         for v in [1e-300, 5e-324, 1.7976931348623157e308, 0.1 + 0.2, 9.5e-7] {
             assert_eq!(exact(Some(v)).parse::<f64>().ok(), Some(v), "{v}");
         }
+    }
+
+    /// A partial eta squared of 1 - 1.7e-8 printed 1.00 (common practice: a share below 1
+    /// is not written as 1); an exact 1 and values far from 1 keep the column's decimals.
+    #[test]
+    fn proportions_below_one_never_read_as_one() {
+        let v = [Some(1.0 - 1.7e-8), Some(0.25), Some(1.0), None];
+        assert_eq!(
+            format_column(&v, Format::Proportion(2)),
+            vec!["0.99999998", "0.25", "1.00", MISSING]
+        );
+        assert_eq!(
+            format_column(&[Some(0.9996)], Format::Proportion(3)),
+            vec!["0.9996"]
+        );
+        assert_eq!(
+            format_column(&[Some(1.0 - f64::EPSILON / 2.0)], Format::Proportion(3)),
+            vec!["0.9999999999999999"]
+        );
+        assert_eq!(
+            format_column(&[Some(0.99949)], Format::Proportion(3)),
+            vec!["0.999"]
+        );
     }
 
     #[test]

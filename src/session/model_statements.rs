@@ -388,7 +388,11 @@ impl Session<'_> {
                         Col::new("ms", "mean square", Format::Digits(4)),
                         Col::new("f", "F", Format::Statistic),
                         Col::new("p", "p", Format::P),
-                        Col::new("partial_eta_sq", "partial eta squared", Format::Digits(2)),
+                        Col::new(
+                            "partial_eta_sq",
+                            "partial eta squared",
+                            Format::Proportion(2),
+                        ),
                     ],
                 );
                 for r in &a.rows {
@@ -1250,8 +1254,8 @@ fn fit_table(m: &ModelEntry) -> Table {
             Col::new("df_model", "model df", Format::Count),
             Col::new("df_residual", "residual df", Format::Count),
             Col::new("sigma", "residual SD", Format::Digits(4)),
-            Col::new("r_squared", "R squared", Format::Digits(3)),
-            Col::new("adj_r_squared", "adjusted R squared", Format::Digits(3)),
+            Col::new("r_squared", "R squared", Format::Proportion(3)),
+            Col::new("adj_r_squared", "adjusted R squared", Format::Proportion(3)),
             Col::new("f", "F", Format::Statistic),
             Col::new("p", "p", Format::P),
             Col::new("aic", "AIC", Format::Digits(5)),

@@ -816,7 +816,7 @@ fn plan_table(decl: &PlanDecl, d: &Design, f: f64, sd: Option<f64>, r: &Power) -
         vec![
             Col::new("groups", "groups", Format::Count),
             Col::new("covariates", "covariates", Format::Count),
-            Col::new("r_squared", "R²", Format::Digits(3)),
+            Col::new("r_squared", "R²", Format::Proportion(3)),
             Col::new("sd", "SD", Format::Digits(4)),
             Col::new("effect_f", "f", Format::Digits(3)),
             Col::new("alpha", "alpha", Format::Exact),
