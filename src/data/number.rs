@@ -61,9 +61,8 @@ impl Suggestion {
     pub fn advice(self, text: &str) -> String {
         match self {
             Suggestion::DecimalComma => {
-                "if the file marks decimals with a comma, load it with decimal \",\" (and a \
-                 separator other than the comma, such as separator \";\"); covey never guesses \
-                 this, nor thousands separators"
+                "if the file marks decimals with a comma, load it with decimal \",\"; covey \
+                 never guesses this, nor thousands separators"
                     .to_owned()
             }
             Suggestion::ThousandsSeparator => {
