@@ -489,3 +489,34 @@ fn quoted_decimal_commas_get_the_load_that_reads_them() {
         "{errors}"
     );
 }
+
+/// `label rows by` warns when labels repeat, naming the first repeated label and its rows,
+/// at the statement's line. (Invented plots.)
+#[test]
+fn repeated_row_labels_are_warned() {
+    let files = [
+        ("p.csv", "plot,y\nP1,1\nP2,2\nP1,3\nP3,4\nP2,5\nP1,6\n,7\n"),
+        ("u.csv", "plot,y\nP1,1\nP2,2\n"),
+        (
+            "m.csv",
+            "plot,y\n1,1\n1.0,2\n2,3\n1,4\n1,5\n1,6\n1,7\n1,8\n",
+        ),
+    ];
+    let (rendered, errors, warnings) =
+        run_in_memory(&files, "load \"p.csv\"\nlabel rows by plot\n");
+    assert!(errors.is_empty(), "{errors}");
+    let want = "Labels of `plot` repeat: `P1` names 3 rows, on lines 2, 4 and 7 (and one other label names more than one row); a row whose label repeats is told apart only by its line in the file.";
+    assert!(rendered.contains(want), "{rendered}");
+    assert!(
+        warnings.contains(&format!("kept.md:5: warning: {want}")),
+        "{warnings}"
+    );
+    let (rendered, _, _) = run_in_memory(&files, "load \"u.csv\"\nlabel rows by plot\n");
+    assert!(!rendered.contains("repeat"), "{rendered}");
+    // Numbers are the same label when they show the same (1 and 1.0); many rows are counted.
+    let (rendered, _, _) = run_in_memory(&files, "load \"m.csv\"\nlabel rows by plot\n");
+    assert!(
+        rendered.contains("`1` names 7 rows, on lines 2, 3, 5, 6, 7 and 2 more;"),
+        "{rendered}"
+    );
+}
