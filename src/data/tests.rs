@@ -463,6 +463,20 @@ fn error_refused_numbers_with_suggestions() {
         ("infinity", Suggestion::NonFiniteText, "empty cell"),
         ("NA", Suggestion::MissingMarker, "missing \"NA\""),
         ("1e400", Suggestion::OutOfRange, "rescale"),
+        // Notations a copied table brings: the typographic minus, underscores between
+        // thousands (both would otherwise make the column text without a word).
+        (
+            "\u{2212}3.5",
+            Suggestion::TypographicMinus,
+            "hyphen-minus of the keyboard (-3)",
+        ),
+        ("\u{2212}1e3", Suggestion::TypographicMinus, "hyphen-minus"),
+        ("1_000", Suggestion::ThousandsSeparator, "remove thousands"),
+        (
+            "12_345.5",
+            Suggestion::ThousandsSeparator,
+            "remove thousands",
+        ),
     ];
     for (text, suggestion, advice) in cases {
         let (e, m) = refused(text);
@@ -1104,4 +1118,17 @@ fn taking_a_factor_gives_the_made_one_and_leaves_the_column_on_an_error() {
 /// A factor's codes as level indices (`None` for missing).
 fn levels_of(f: &super::Factor) -> Vec<Option<u32>> {
     f.codes.iter().map(|c| c.get()).collect()
+}
+
+#[test]
+fn other_notations_that_are_not_numbers_stay_text() {
+    // A typographic minus before a word, underscores not grouping thousands, and
+    // hexadecimal (an identifier as often as a number) are texts, as any label is.
+    for text in ["\u{2212}x", "1_0", "0x10", "a_000"] {
+        let d = ok(&format!("g,y\nA,1\nB,{text}\n"));
+        assert_eq!(
+            texts(&d, "y"),
+            [Some("1".to_owned()), Some(text.to_owned())]
+        );
+    }
 }
