@@ -457,6 +457,33 @@ fn run_in_memory(files: &[(&str, &str)], body: &str) -> (String, String, String)
     (run.rendered, run.errors.join("\n"), run.warnings.join("\n"))
 }
 
+/// A SQLite column without a numeric type holding a number stored as text: the warning says
+/// to store it as a number, not to declare it missing. (Invented values.)
+#[test]
+fn a_number_stored_as_text_is_not_called_a_marker() {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("sources-number-text");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+    {
+        let conn =
+            rusqlite::Connection::open(dir.join("t.sqlite")).unwrap_or_else(|e| panic!("{e}"));
+        conn.execute_batch(
+            "CREATE TABLE t (g TEXT, y); INSERT INTO t VALUES ('A', 1), ('B', '2'), ('A', 3.5);",
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+    }
+    let doc = "# N\n\n```covey\nload \"t.sqlite\" table t\n```\n";
+    let world = FsWorld::new(&dir, false);
+    let run = pipeline::run(doc, "n.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let r = &run.rendered;
+    assert!(
+        r.contains("Column `y` holds numbers and text (row 2 of the result holds \"2\"), so it is read as text; that text is a number stored as text: store the column's values as numbers"),
+        "{r}"
+    );
+    assert!(!r.contains("missing \"2\""), "{r}");
+}
+
 /// Quoted decimal commas in a comma-separated file: the error says the exact load to write,
 /// and that load reads them; unquoted ones under `decimal ","` say that they need quotes.
 /// (Invented numbers.)

@@ -161,6 +161,12 @@ impl fmt::Display for LoadError {
                  quote (a quote inside a quoted field is written twice: \"\")"
             ),
             LoadError::NonUtf8 { line, column, name } => match name {
+                // A column the header leaves unnamed (see `UnnamedColumnHolds`).
+                Some(name) if name.is_empty() => write!(
+                    f,
+                    "line {line}, column {column} (no name in the header) holds bytes that are \
+                     not valid UTF-8; save the file as UTF-8 and load it again"
+                ),
                 Some(name) => write!(
                     f,
                     "line {line}, column {column} ({name}) holds bytes that are not valid UTF-8; \

@@ -1132,3 +1132,12 @@ fn other_notations_that_are_not_numbers_stay_text() {
         );
     }
 }
+
+#[test]
+fn a_cell_not_utf8_under_no_name_says_so() {
+    let m = err(b"g,y,\nA,1,\xff\n").to_string();
+    assert!(
+        m.contains("line 2, column 3 (no name in the header) holds bytes that are not valid UTF-8"),
+        "{m}"
+    );
+}

@@ -926,12 +926,20 @@ fn mixed_notes(set: &DataSet, mixed: &[MixedColumn]) -> Vec<Item> {
     mixed
         .iter()
         .map(|m| {
+            // A number stored as text (a SQLite column without a numeric type, a sheet's
+            // cell formatted as text) is no missing-value marker: say how to store it.
+            let advice = match data::parse_number(&m.text) {
+                data::NumberParse::Number(_) => "that text is a number stored as text: store the column's values as numbers (number cells in a sheet; numeric values in a database, or a `CAST(... AS REAL)` in the query).".to_owned(),
+                _ => format!(
+                    "if that text marks a missing value, declare it with `missing \"{}\"` before the load.",
+                    m.text.replace('\\', "\\\\").replace('"', "\\\"")
+                ),
+            };
             Item::Warning(format!(
-                "Column {} holds numbers and text ({} holds \"{}\"), so it is read as text; if that text marks a missing value, declare it with `missing \"{}\"` before the load.",
+                "Column {} holds numbers and text ({} holds \"{}\"), so it is read as text; {advice}",
                 code(&m.column),
                 crate::report::markdown::escape(&set.place_of(m.row)),
                 crate::report::markdown::escape(&m.text),
-                m.text.replace('\\', "\\\\").replace('"', "\\\"")
             ))
         })
         .collect()
