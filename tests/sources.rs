@@ -1,8 +1,10 @@
 //! Data as practitioners keep it: the same invented rations data (worked/data/rations.csv)
 //! read from a comma-separated file, a workbook written by openpyxl (.xlsx), by xlwt (.xls)
 //! and by odfpy (.ods), a SQLite file written by Python's sqlite3 (a table, a view and a
-//! query), semicolon-separated text with decimal commas, and text separated by vertical bars
-//! and by tabs in files named .csv (tests/fixtures/sources/make_sources.py wrote them all),
+//! query), semicolon-separated text with decimal commas, comma-separated text with decimal
+//! commas in quotes, text whose every line ends with the separator, and text separated by
+//! vertical bars and by tabs in files named .csv (tests/fixtures/sources/make_sources.py
+//! and make_texts.py wrote them all),
 //! and from PostgreSQL when a server is there: every one gives the same rendering, byte for
 //! byte, apart from the provenance and the sentence of the load that says where the rows
 //! came from.
@@ -76,6 +78,9 @@ const FILE_LOADS: &[&str] = &[
     "load \"bars.csv\" separator \"|\" as pens",
     "load \"tabs.csv\" as pens",
     "load \"tabs.csv\" separator tab as pens",
+    "load \"trailing.csv\" as pens",
+    "load \"quoted.csv\" decimal \",\" as pens",
+    "load \"quoted.csv\" separator \",\" decimal \",\" as pens",
 ];
 
 #[test]
@@ -129,6 +134,14 @@ fn each_load_says_what_it_read() {
         (
             "load \"euro.csv\" decimal \",\" as pens",
             &["separated by semicolons", "Decimals are read with a comma (3,5 is 3.5)."],
+        ),
+        (
+            "load \"trailing.csv\" as pens",
+            &["30 rows, 4 columns", "Column 5 of the file has no name in the header and no value in any row (as when every line ends with a separator), so it is left out."],
+        ),
+        (
+            "load \"quoted.csv\" decimal \",\" as pens",
+            &["Decimals are read with a comma (3,5 is 3.5)."],
         ),
     ];
     for (load, wants) in cases {
@@ -425,4 +438,112 @@ fn a_database_gives_the_same_rendering_as_the_file() {
         .unwrap_or_else(|e| panic!("{e}"))
         .get(0);
     assert_eq!(n, 30);
+}
+
+/// Runs `body` on the files `files` held in memory, every block run: the rendering, the
+/// errors and the warnings for the terminal.
+fn run_in_memory(files: &[(&str, &str)], body: &str) -> (String, String, String) {
+    let mut world = covey::world::MemoryWorld::new();
+    for (name, text) in files {
+        world = world.with(name, text.as_bytes().to_vec());
+    }
+    let doc = format!("# Kept\n\n```covey\n{body}```\n");
+    let opts = RunOptions {
+        keep_going: true,
+        ..RunOptions::default()
+    };
+    let run = pipeline::run(&doc, "kept.md", &world, opts)
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    (run.rendered, run.errors.join("\n"), run.warnings.join("\n"))
+}
+
+/// A SQLite column without a numeric type holding a number stored as text: the warning says
+/// to store it as a number, not to declare it missing. (Invented values.)
+#[test]
+fn a_number_stored_as_text_is_not_called_a_marker() {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("sources-number-text");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+    {
+        let conn =
+            rusqlite::Connection::open(dir.join("t.sqlite")).unwrap_or_else(|e| panic!("{e}"));
+        conn.execute_batch(
+            "CREATE TABLE t (g TEXT, y); INSERT INTO t VALUES ('A', 1), ('B', '2'), ('A', 3.5);",
+        )
+        .unwrap_or_else(|e| panic!("{e}"));
+    }
+    let doc = "# N\n\n```covey\nload \"t.sqlite\" table t\n```\n";
+    let world = FsWorld::new(&dir, false);
+    let run = pipeline::run(doc, "n.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let r = &run.rendered;
+    assert!(
+        r.contains("Column `y` holds numbers and text (row 2 of the result holds \"2\"), so it is read as text; that text is a number stored as text: store the column's values as numbers"),
+        "{r}"
+    );
+    assert!(!r.contains("missing \"2\""), "{r}");
+}
+
+/// Quoted decimal commas in a comma-separated file: the error says the exact load to write,
+/// and that load reads them; unquoted ones under `decimal ","` say that they need quotes.
+/// (Invented numbers.)
+#[test]
+fn quoted_decimal_commas_get_the_load_that_reads_them() {
+    let files = [
+        ("q.csv", "g,y\nA,\"1,5\"\nB,\"2,25\"\n"),
+        ("u.csv", "g,y\nA,1,5\n"),
+        ("s.csv", "g;y\nA;1,5\n"),
+    ];
+    let (_, errors, _) = run_in_memory(&files, "load \"q.csv\"\n");
+    assert!(
+        errors.contains("help: if the file marks decimals with a comma, write: load \"q.csv\" decimal \",\" (the quotes around such a number keep its comma inside its field)"),
+        "{errors}"
+    );
+    // The advice no longer asks for another separator.
+    assert!(!errors.contains("separator other than"), "{errors}");
+    let (rendered, errors, _) = run_in_memory(&files, "load \"q.csv\" decimal \",\"\nshow\n");
+    assert!(errors.is_empty(), "{errors}");
+    assert!(rendered.contains("| 3 | B | 2.25 |"), "{rendered}");
+    let (_, errors, _) = run_in_memory(&files, "load \"u.csv\" decimal \",\"\n");
+    assert!(
+        errors.contains("line 2 has 3 fields but the header has 2")
+            && errors.contains("every number with a decimal comma must be in quotes (\"1,5\")"),
+        "{errors}"
+    );
+    let (_, errors, _) = run_in_memory(&files, "load \"s.csv\" separator \";\"\n");
+    assert!(
+        errors.contains("write: load \"s.csv\" separator \";\" decimal \",\"\n"),
+        "{errors}"
+    );
+}
+
+/// `label rows by` warns when labels repeat, naming the first repeated label and its rows,
+/// at the statement's line. (Invented plots.)
+#[test]
+fn repeated_row_labels_are_warned() {
+    let files = [
+        ("p.csv", "plot,y\nP1,1\nP2,2\nP1,3\nP3,4\nP2,5\nP1,6\n,7\n"),
+        ("u.csv", "plot,y\nP1,1\nP2,2\n"),
+        (
+            "m.csv",
+            "plot,y\n1,1\n1.0,2\n2,3\n1,4\n1,5\n1,6\n1,7\n1,8\n",
+        ),
+    ];
+    let (rendered, errors, warnings) =
+        run_in_memory(&files, "load \"p.csv\"\nlabel rows by plot\n");
+    assert!(errors.is_empty(), "{errors}");
+    let want = "Labels of `plot` repeat: `P1` names 3 rows, on lines 2, 4 and 7 (and one other label names more than one row); a row whose label repeats is told apart only by its line in the file.";
+    assert!(rendered.contains(want), "{rendered}");
+    assert!(
+        warnings.contains(&format!("kept.md:5: warning: {want}")),
+        "{warnings}"
+    );
+    let (rendered, _, _) = run_in_memory(&files, "load \"u.csv\"\nlabel rows by plot\n");
+    assert!(!rendered.contains("repeat"), "{rendered}");
+    // Numbers are the same label when they show the same (1 and 1.0); many rows are counted.
+    let (rendered, _, _) = run_in_memory(&files, "load \"m.csv\"\nlabel rows by plot\n");
+    assert!(
+        rendered.contains("`1` names 7 rows, on lines 2, 3, 5, 6, 7 and 2 more;"),
+        "{rendered}"
+    );
 }

@@ -86,6 +86,9 @@ pub enum DbError {
     NotAQuery,
 }
 
+/// Characters of an out-of-range value shown in its error; the rest are counted.
+const SHOWN_DIGITS: usize = 24;
+
 impl fmt::Display for DbError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
@@ -106,6 +109,27 @@ impl fmt::Display for DbError {
                  AS in the query",
                 c = crate::report::markdown::code(c)
             ),
+            // A `numeric` of many digits is finite but beyond a double's range: said as
+            // such, its digits cut short.
+            DbError::NotFinite { column, row, text }
+                if text.bytes().any(|b| b.is_ascii_digit()) =>
+            {
+                let shown: String = text.chars().take(SHOWN_DIGITS).collect();
+                let cut = text.chars().count() > SHOWN_DIGITS;
+                write!(
+                    f,
+                    "column {column} holds {shown}{} in row {row} of the result, beyond the \
+                     range of double-precision numbers (about 1.8e308 in size); rescale it in \
+                     the query (change its units), filter it out or make it NULL",
+                    if cut {
+                        format!("… ({} characters)", text.chars().count())
+                    } else {
+                        String::new()
+                    },
+                    column = crate::report::markdown::code(column),
+                    shown = crate::report::markdown::code(&shown)
+                )
+            }
             DbError::NotFinite { column, row, text } => write!(
                 f,
                 "column {column} holds {text} in row {row} of the result, which is not a \
@@ -262,4 +286,35 @@ pub fn read_database(
         },
         mixed,
     })
+}
+
+#[cfg(test)]
+mod display_tests {
+    use super::DbError;
+
+    #[test]
+    fn a_numeric_beyond_a_double_is_said_so_and_cut_short() {
+        // 1e600 as PostgreSQL writes a numeric of that size: "1" and 600 zeros.
+        let text = format!("1{}", "0".repeat(600));
+        let m = DbError::NotFinite {
+            column: "y".to_owned(),
+            row: 1,
+            text,
+        }
+        .to_string();
+        assert!(
+            m.contains("holds `100000000000000000000000`… (601 characters) in row 1 of the result, beyond the range of double-precision numbers"),
+            "{m}"
+        );
+        let m = DbError::NotFinite {
+            column: "y".to_owned(),
+            row: 2,
+            text: "NaN".to_owned(),
+        }
+        .to_string();
+        assert!(
+            m.contains("holds `NaN` in row 2 of the result, which is not a finite number"),
+            "{m}"
+        );
+    }
 }

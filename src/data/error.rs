@@ -50,6 +50,20 @@ pub enum LoadError {
         /// 1-based positions of the empty names.
         positions: Vec<usize>,
     },
+    /// Header cells that are empty above a column that holds a value. (A column with no name
+    /// and no value, as a separator at the end of every line makes, is left out.)
+    UnnamedColumnHolds {
+        /// Line of the header.
+        header: usize,
+        /// 1-based positions of the unnamed columns that hold values.
+        positions: Vec<usize>,
+        /// Line of the first value in one of them.
+        line: usize,
+        /// 1-based position of that value's column.
+        column: usize,
+        /// That value as read.
+        text: String,
+    },
     /// A column name used more than once (names compare case-sensitively).
     DuplicateColumnName {
         /// Line of the header.
@@ -147,6 +161,12 @@ impl fmt::Display for LoadError {
                  quote (a quote inside a quoted field is written twice: \"\")"
             ),
             LoadError::NonUtf8 { line, column, name } => match name {
+                // A column the header leaves unnamed (see `UnnamedColumnHolds`).
+                Some(name) if name.is_empty() => write!(
+                    f,
+                    "line {line}, column {column} (no name in the header) holds bytes that are \
+                     not valid UTF-8; save the file as UTF-8 and load it again"
+                ),
                 Some(name) => write!(
                     f,
                     "line {line}, column {column} ({name}) holds bytes that are not valid UTF-8; \
@@ -163,6 +183,20 @@ impl fmt::Display for LoadError {
                 "the header (line {line}) has an empty column name at column {}; give every column \
                  a name",
                 list_positions(positions)
+            ),
+            LoadError::UnnamedColumnHolds {
+                header,
+                positions,
+                line,
+                column,
+                text,
+            } => write!(
+                f,
+                "the header (line {header}) gives no name to column {}, but line {line} holds \
+                 {} in column {column}; give every column that holds values a name (a column \
+                 with no name is left out only when none of its cells holds a value)",
+                list_positions(positions),
+                crate::report::markdown::code(text)
             ),
             LoadError::DuplicateColumnName {
                 line,

@@ -117,6 +117,15 @@ impl LinesBuilder {
         self.len() == 0
     }
 
+    /// The line of row `row` (`None` past the end).
+    pub fn get(&self, row: usize) -> Option<usize> {
+        match self {
+            LinesBuilder::Empty => None,
+            LinesBuilder::Run { first, len } => (row < *len).then(|| first + row),
+            LinesBuilder::Listed(v) => v.get(row).copied(),
+        }
+    }
+
     /// Appends lines.
     pub fn extend(&mut self, lines: &[usize]) {
         let (first, len) = match (&mut *self, lines.first()) {

@@ -568,20 +568,17 @@ fn header_names(fields: &Fields, body: &[u8], line: usize) -> Result<Vec<String>
         })?;
         names.push(text.to_owned());
     }
-    let empty: Vec<usize> = names
-        .iter()
-        .enumerate()
-        .filter(|(_, n)| n.is_empty())
-        .map(|(j, _)| j + 1)
-        .collect();
-    if !empty.is_empty() {
+    // A column with no name is kept for now: it is left out if it turns out to hold no value
+    // (a line ending with the separator), and refused if it holds one (see
+    // [`unnamed_holding`]). A header that names no column at all is refused here.
+    if names.iter().all(String::is_empty) {
         return Err(LoadError::EmptyColumnName {
             line,
-            positions: empty,
+            positions: (1..=names.len()).collect(),
         });
     }
     let mut seen: BTreeMap<&str, Vec<usize>> = BTreeMap::new();
-    for (j, n) in names.iter().enumerate() {
+    for (j, n) in names.iter().enumerate().filter(|(_, n)| !n.is_empty()) {
         seen.entry(n.as_str()).or_default().push(j + 1);
     }
     // Report the first name (in header order) that repeats.
@@ -896,6 +893,8 @@ struct Rows {
     refills: Vec<Refill>,
     /// Where the data rows start (byte offset, line).
     data: (usize, usize),
+    /// Line of the header.
+    header_line: usize,
 }
 
 /// Reads and checks the header record of `body`: the column names, and where the data rows
@@ -995,6 +994,7 @@ fn read_rows(
         parts,
         refills,
         data,
+        header_line,
     })
 }
 
@@ -1425,13 +1425,22 @@ pub(super) fn read_in_parts(
         parts,
         refills,
         data,
+        header_line,
     } = rows?;
 
-    if let Some(e) = refused_error(&columns, &names) {
-        return Err(e);
+    // A column the header leaves unnamed that holds a value is the error to report: its
+    // values (refused ones included) are not what the user meant to load.
+    let held = unnamed_holding(&names, &columns);
+    if held.is_empty() {
+        if let Some(e) = refused_error(&columns, &names) {
+            return Err(e);
+        }
     }
 
     refill(body, delimiter, &markers, &mut columns, &parts, &refills);
+    if !held.is_empty() {
+        return Err(unnamed_error(header_line, &held, &columns, &row_numbers));
+    }
     let offsets: Vec<Option<i64>> = columns
         .iter()
         .map(|c| match c {
@@ -1452,6 +1461,8 @@ pub(super) fn read_in_parts(
     for (c, e) in columns.iter_mut().zip(exact.iter_mut()) {
         c.exact = e.take();
     }
+    // What is left unnamed holds no value: a separator at the end of every line, say.
+    columns.retain(|c| !c.name.is_empty());
     Ok(DataSet {
         name: opts.name.clone(),
         columns,
@@ -1489,6 +1500,89 @@ pub(super) fn refused_error(columns: &[Merged], names: &[String]) -> Option<Load
         text: r.text.clone(),
         suggestion: r.suggestion,
     })
+}
+
+/// The 0-based positions of the columns the header leaves unnamed that hold a value (a
+/// number, a text, or a refused number-like cell).
+pub(super) fn unnamed_holding(names: &[String], columns: &[Merged]) -> Vec<usize> {
+    names
+        .iter()
+        .zip(columns)
+        .enumerate()
+        .filter(|(_, (n, c))| {
+            n.is_empty()
+                && match c {
+                    Merged::Numeric {
+                        values, refused, ..
+                    } => refused.is_some() || values.iter().any(|v| !v.is_nan()),
+                    // A column turns text only at a cell that is a text.
+                    Merged::Text { .. } => true,
+                }
+        })
+        .map(|(j, _)| j)
+        .collect()
+}
+
+/// The error for the unnamed columns `held` (see [`unnamed_holding`]) that hold values,
+/// naming the earliest value in them. Text columns must have been refilled.
+fn unnamed_error(
+    header: usize,
+    held: &[usize],
+    columns: &[Merged],
+    row_numbers: &LinesBuilder,
+) -> LoadError {
+    let line_of = |r: usize| row_numbers.get(r).unwrap_or(header + r + 1);
+    let first = held
+        .iter()
+        .filter_map(|&j| {
+            let (line, text) = match columns.get(j)? {
+                Merged::Numeric {
+                    values, refused, ..
+                } => {
+                    let number = values
+                        .iter()
+                        .enumerate()
+                        .find(|(_, v)| !v.is_nan())
+                        .map(|(r, v)| (line_of(r), super::format_number(*v)));
+                    let refused = refused.as_ref().map(|r| (r.line, r.text.clone()));
+                    match (number, refused) {
+                        (Some(a), Some(b)) => Some(if b.0 < a.0 { b } else { a }),
+                        (a, b) => a.or(b),
+                    }?
+                }
+                Merged::Text { values, .. } => values
+                    .iter()
+                    .enumerate()
+                    .find_map(|(r, t)| t.map(|t| (line_of(r), t.to_owned())))?,
+            };
+            Some((line, j, text))
+        })
+        .min_by_key(|(line, j, _)| (*line, *j));
+    let (line, j, text) =
+        first.unwrap_or((header, held.first().copied().unwrap_or(0), String::new()));
+    LoadError::UnnamedColumnHolds {
+        header,
+        positions: held.iter().map(|j| j + 1).collect(),
+        line,
+        column: j + 1,
+        text,
+    }
+}
+
+/// The 1-based positions of the columns that the header of delimited text `bytes` leaves
+/// unnamed: after a load that succeeded, the columns it left out as holding no value.
+pub fn unnamed_columns(bytes: &[u8], delimiter: u8) -> Vec<usize> {
+    let body = bytes.strip_prefix(UTF8_BOM).unwrap_or(bytes);
+    let mut last = RecordStart { offset: 0, line: 1 };
+    match read_header(body, delimiter, &mut last) {
+        Ok((names, _)) => names
+            .iter()
+            .enumerate()
+            .filter(|(_, n)| n.is_empty())
+            .map(|(j, _)| j + 1)
+            .collect(),
+        Err(_) => Vec::new(),
+    }
 }
 
 /// True when some numeric column asks for exact residuals (see [`exact_pass`]).

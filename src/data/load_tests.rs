@@ -204,6 +204,25 @@ fn text_of(pieces: &[usize], header: bool) -> Vec<u8> {
     out
 }
 
+/// Unnamed columns (left out when they hold no value, refused when they do), the same by
+/// every way of reading.
+#[test]
+fn unnamed_columns_every_way() {
+    let mut trailing = b"g,y,\n".to_vec();
+    for i in 0..400 {
+        trailing.extend_from_slice(format!("{},{}.5,\n", ["A", "B"][i % 2], i).as_bytes());
+    }
+    check(&trailing, &opts());
+    let mut late = trailing.clone();
+    late.extend_from_slice(b"C,1,late\n");
+    check(&late, &opts());
+    let mut late_number = trailing.clone();
+    late_number.extend_from_slice(b"C,1,7\n");
+    check(&late_number, &opts());
+    check(b"a,,b\n1,,2\n3,x,4\n", &opts());
+    check(b"a,,b\n1,NA,2\n", &opts());
+}
+
 proptest! {
     #![proptest_config(ProptestConfig { cases: 1500, failure_persistence: None, ..ProptestConfig::default() })]
 

@@ -24,12 +24,13 @@ mod reference;
 mod tests;
 
 pub use cells::{ColumnBuilder, MixedColumn};
+pub(crate) use error::list_positions;
 pub use error::{FactorError, LoadError};
 pub use factor::{
     make_factor, take_factor, unused_levels, Code, Factor, LevelOrder, MAX_FACTOR_LEVELS,
 };
 pub use lines::RowLines;
-pub use load::{detect_separator, read_delimited, LoadOptions, MAX_LINE_BYTES};
+pub use load::{detect_separator, read_delimited, unnamed_columns, LoadOptions, MAX_LINE_BYTES};
 pub use number::{beyond_limit, format_number, parse_number, NumberParse, Suggestion};
 pub use stream::{stream_delimited, Streamed};
 

@@ -34,6 +34,9 @@ pub enum Suggestion {
     /// Digits grouped by spaces or apostrophes where decimals are marked by a comma, as in
     /// `1 234,5`.
     ThousandsWithDecimalComma,
+    /// A number whose sign is the typographic minus (U+2212), as word processors write it:
+    /// `−3`.
+    TypographicMinus,
 }
 
 impl Suggestion {
@@ -54,6 +57,7 @@ impl Suggestion {
                 "has a point, but this file marks decimals with a comma (decimal \",\")"
             }
             Suggestion::ThousandsWithDecimalComma => "contains thousands separators",
+            Suggestion::TypographicMinus => "starts with a typographic minus sign (U+2212)",
         }
     }
 
@@ -61,9 +65,8 @@ impl Suggestion {
     pub fn advice(self, text: &str) -> String {
         match self {
             Suggestion::DecimalComma => {
-                "if the file marks decimals with a comma, load it with decimal \",\" (and a \
-                 separator other than the comma, such as separator \";\"); covey never guesses \
-                 this, nor thousands separators"
+                "if the file marks decimals with a comma, load it with decimal \",\"; covey \
+                 never guesses this, nor thousands separators"
                     .to_owned()
             }
             Suggestion::ThousandsSeparator => {
@@ -86,6 +89,11 @@ impl Suggestion {
             Suggestion::ThousandsWithDecimalComma => {
                 "remove thousands separators (1234,5, not 1 234,5)".to_owned()
             }
+            Suggestion::TypographicMinus => {
+                "write the minus as the hyphen-minus of the keyboard (-3), as a word processor \
+                 or a copied table may have replaced it"
+                    .to_owned()
+            }
             Suggestion::OutOfRange => {
                 "check the value, or rescale the column (for example change its units) so every \
                  value is smaller than about 1e308"
@@ -107,8 +115,9 @@ const MISSING_LIKE: [&str; 9] = [
 ];
 
 /// Characters other than the comma and the point that people use to group thousands:
-/// space, no-break space, narrow no-break space, apostrophe.
-const GROUP_SPACES: [char; 4] = [' ', '\u{a0}', '\u{202f}', '\''];
+/// space, no-break space, narrow no-break space, apostrophe, and the underscore of
+/// programming languages (`1_000`).
+const GROUP_SPACES: [char; 5] = [' ', '\u{a0}', '\u{202f}', '\'', '_'];
 
 /// Trims spaces and tabs (the only padding covey removes from cells).
 pub(crate) fn trim_str(text: &str) -> &str {
@@ -119,7 +128,7 @@ pub(crate) fn trim_str(text: &str) -> &str {
 ///
 /// Accepted: optional sign, digits with an optional point (`.5` and `5.` included), optional
 /// exponent (`1e-3`, `2E+4`), with a finite value. Refused with a [`Suggestion`]: decimal commas,
-/// thousands separators, `NaN`/`Inf`/`infinity` text, common missing markers such as `NA`, and
+/// thousands separators (underscores too), a typographic minus, `NaN`/`Inf`/`infinity` text, common missing markers such as `NA`, and
 /// values beyond the `f64` range. Everything else is [`NumberParse::NotNumber`].
 pub fn parse_number(text: &str) -> NumberParse {
     parse_trimmed(trim_str(text))
@@ -227,6 +236,12 @@ pub(crate) fn parse_decimal_comma(t: &str) -> NumberParse {
 fn classify_near_miss(t: &str) -> NumberParse {
     if MISSING_LIKE.iter().any(|m| t.eq_ignore_ascii_case(m)) {
         return NumberParse::Suspicious(Suggestion::MissingMarker);
+    }
+    if let Some(rest) = t.strip_prefix('\u{2212}') {
+        return match parse_trimmed(rest) {
+            NumberParse::NotNumber => NumberParse::NotNumber,
+            _ => NumberParse::Suspicious(Suggestion::TypographicMinus),
+        };
     }
     let body = t
         .strip_prefix('+')

@@ -521,20 +521,14 @@ fn header_names(record: &ByteRecord, line: usize) -> Result<Vec<String>, LoadErr
         })?;
         names.push(text.to_owned());
     }
-    let empty: Vec<usize> = names
-        .iter()
-        .enumerate()
-        .filter(|(_, n)| n.is_empty())
-        .map(|(j, _)| j + 1)
-        .collect();
-    if !empty.is_empty() {
+    if names.iter().all(String::is_empty) {
         return Err(LoadError::EmptyColumnName {
             line,
-            positions: empty,
+            positions: (1..=names.len()).collect(),
         });
     }
     let mut seen: BTreeMap<&str, Vec<usize>> = BTreeMap::new();
-    for (j, n) in names.iter().enumerate() {
+    for (j, n) in names.iter().enumerate().filter(|(_, n)| !n.is_empty()) {
         seen.entry(n.as_str()).or_default().push(j + 1);
     }
     // Report the first name (in header order) that repeats.
@@ -550,8 +544,9 @@ fn header_names(record: &ByteRecord, line: usize) -> Result<Vec<String>, LoadErr
     Ok(names)
 }
 
-/// Column names, column builders and row line numbers, as read by [`read_rows`].
-type Rows = (Vec<String>, Vec<Builder>, Vec<usize>);
+/// Column names, column builders, row line numbers and the header's line, as read by
+/// [`read_rows`].
+type Rows = (Vec<String>, Vec<Builder>, Vec<usize>, usize);
 
 /// Reads the header and every data row. `last` follows the start of the latest record.
 fn read_rows(
@@ -610,7 +605,7 @@ fn read_rows(
         return Err(LoadError::NoDataRows { line: header_line });
     }
 
-    Ok((names, builders, row_numbers))
+    Ok((names, builders, row_numbers, header_line))
 }
 
 /// Reads delimited text (a header row, then data rows) into typed columns.
@@ -646,7 +641,69 @@ pub(super) fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet
     // A quote left open at the end of the file explains any other complaint about its record
     // (wrong field count, for one), so it is reported first.
     check_open_quote(body.get(last.0..).unwrap_or_default(), last.1, delimiter)?;
-    let (names, mut builders, row_numbers) = rows?;
+    let (names, mut builders, row_numbers, header_line) = rows?;
+
+    // An unnamed column that holds a value comes first (see `load::unnamed_holding`).
+    let held: Vec<usize> = names
+        .iter()
+        .zip(&builders)
+        .enumerate()
+        .filter(|(_, (n, b))| {
+            n.is_empty()
+                && match b {
+                    Builder::Numeric {
+                        values, refused, ..
+                    } => refused.is_some() || values.iter().any(|v| !v.is_nan()),
+                    Builder::Text { .. } => true,
+                }
+        })
+        .map(|(j, _)| j)
+        .collect();
+    if !held.is_empty() {
+        refill(body, delimiter, &markers, &mut builders)?;
+        let mut first: Option<(usize, usize, String)> = None;
+        for (j, b) in builders.into_iter().enumerate() {
+            if !held.contains(&j) {
+                continue;
+            }
+            let mut found: Vec<(usize, String)> = Vec::new();
+            match b {
+                Builder::Numeric {
+                    values, refused, ..
+                } => {
+                    if let Some((r, v)) = values.iter().enumerate().find(|(_, v)| !v.is_nan()) {
+                        found.push((row_numbers[r], super::format_number(*v)));
+                    }
+                    if let Some(r) = refused {
+                        found.push((r.line, r.text));
+                    }
+                }
+                Builder::Text { values, .. } => {
+                    let values = values.finish();
+                    let first = values
+                        .iter()
+                        .enumerate()
+                        .find_map(|(r, t)| t.map(|t| (r, t.to_owned())));
+                    if let Some((r, t)) = first {
+                        found.push((row_numbers[r], t));
+                    }
+                }
+            }
+            for (line, text) in found {
+                if first.as_ref().is_none_or(|f| (line, j) < (f.0, f.1)) {
+                    first = Some((line, j, text));
+                }
+            }
+        }
+        let (line, column, text) = first.unwrap_or_default();
+        return Err(LoadError::UnnamedColumnHolds {
+            header: header_line,
+            positions: held.iter().map(|j| j + 1).collect(),
+            line,
+            column: column + 1,
+            text,
+        });
+    }
 
     // A numeric column holding refused number-like cells: report the earliest such cell.
     let refused = builders
@@ -691,6 +748,8 @@ pub(super) fn read_delimited(bytes: &[u8], opts: &LoadOptions) -> Result<DataSet
             },
             exact: exact.get_mut(j).and_then(Option::take),
         })
+        // What is left unnamed holds no value.
+        .filter(|c| !c.name.is_empty())
         .collect();
     Ok(DataSet {
         name: opts.name.clone(),

@@ -309,16 +309,84 @@ fn error_non_utf8_cell_and_header() {
 
 #[test]
 fn error_empty_column_names() {
-    let e = err(b"y, ,x,\n1,2,3,4\n");
+    // Unnamed columns that hold values: the earliest value is named.
+    let e = err(b"y, ,x,\n1,,3,4\n5,2,3,\n");
     assert_eq!(
         e,
-        LoadError::EmptyColumnName {
-            line: 1,
-            positions: vec![2, 4]
+        LoadError::UnnamedColumnHolds {
+            header: 1,
+            positions: vec![2, 4],
+            line: 2,
+            column: 4,
+            text: "4".to_owned(),
         }
     );
     let m = e.to_string();
-    assert!(m.contains("line 1") && m.contains("column 2 and 4"));
+    assert!(
+        m.contains(
+            "the header (line 1) gives no name to column 2 and 4, but line 2 holds `4` in column 4"
+        ),
+        "{m}"
+    );
+    // A header that names no column at all.
+    assert_eq!(
+        err(b" ,\n1,2\n"),
+        LoadError::EmptyColumnName {
+            line: 1,
+            positions: vec![1, 2]
+        }
+    );
+}
+
+#[test]
+fn an_unnamed_column_without_values_is_left_out() {
+    // Every line ends with the separator, as some exports write it.
+    let d = ok("g,y,\nA,1.5,\nB,2,\n");
+    let names: Vec<&str> = d.columns.iter().map(|c| c.name.as_str()).collect();
+    assert_eq!(names, ["g", "y"]);
+    assert_eq!(nums(&d, "y"), [1.5, 2.0]);
+    // In the middle too, blank and padded cells included, with CRLF line ends.
+    let d = ok("g, ,y\r\nA,,1\r\nB,  ,2\r\n");
+    assert_eq!(d.columns.len(), 2);
+    assert_eq!(unnamed_columns(b"g, ,y\r\nA,,1\r\n", b','), [2]);
+    assert_eq!(unnamed_columns(b"\xEF\xBB\xBFg,y,\n", b','), [3]);
+    // A declared marker is no value; an undeclared one is.
+    let o = LoadOptions {
+        missing: vec!["NA".to_owned()],
+        ..opts()
+    };
+    let d = read_delimited(b"g,y,\nA,1,NA\nB,2,\n", &o).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(d.columns.len(), 2);
+    assert!(matches!(
+        err(b"g,y,\nA,1,\nB,2,NA\n"),
+        LoadError::UnnamedColumnHolds { line: 3, column: 3, ref text, .. } if text == "NA"
+    ));
+    // A text found after numbers is named at the number, the earliest value.
+    assert!(matches!(
+        err(b"g,y,\nA,1,\nB,2,7\nC,3,x\n"),
+        LoadError::UnnamedColumnHolds { line: 3, ref text, .. } if text == "7"
+    ));
+    // A name used twice is still refused beside an unnamed column.
+    assert!(matches!(
+        err(b"a,,a\n1,,2\n"),
+        LoadError::DuplicateColumnName { .. }
+    ));
+}
+
+#[test]
+fn quoted_decimal_commas_load_with_decimal_comma_and_comma_separator() {
+    let o = LoadOptions {
+        decimal_comma: true,
+        ..opts()
+    };
+    let d =
+        read_delimited(b"g,y\nA,\"1,5\"\nB,\"-2,25\"\nC,3\n", &o).unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(nums(&d, "y"), [1.5, -2.25, 3.0]);
+    // Unquoted, the comma separates fields: a ragged row.
+    assert!(matches!(
+        read_delimited(b"g,y\nA,1,5\n", &o),
+        Err(LoadError::RaggedRow { line: 2, .. })
+    ));
 }
 
 #[test]
@@ -395,6 +463,20 @@ fn error_refused_numbers_with_suggestions() {
         ("infinity", Suggestion::NonFiniteText, "empty cell"),
         ("NA", Suggestion::MissingMarker, "missing \"NA\""),
         ("1e400", Suggestion::OutOfRange, "rescale"),
+        // Notations a copied table brings: the typographic minus, underscores between
+        // thousands (both would otherwise make the column text without a word).
+        (
+            "\u{2212}3.5",
+            Suggestion::TypographicMinus,
+            "hyphen-minus of the keyboard (-3)",
+        ),
+        ("\u{2212}1e3", Suggestion::TypographicMinus, "hyphen-minus"),
+        ("1_000", Suggestion::ThousandsSeparator, "remove thousands"),
+        (
+            "12_345.5",
+            Suggestion::ThousandsSeparator,
+            "remove thousands",
+        ),
     ];
     for (text, suggestion, advice) in cases {
         let (e, m) = refused(text);
@@ -1036,4 +1118,26 @@ fn taking_a_factor_gives_the_made_one_and_leaves_the_column_on_an_error() {
 /// A factor's codes as level indices (`None` for missing).
 fn levels_of(f: &super::Factor) -> Vec<Option<u32>> {
     f.codes.iter().map(|c| c.get()).collect()
+}
+
+#[test]
+fn other_notations_that_are_not_numbers_stay_text() {
+    // A typographic minus before a word, underscores not grouping thousands, and
+    // hexadecimal (an identifier as often as a number) are texts, as any label is.
+    for text in ["\u{2212}x", "1_0", "0x10", "a_000"] {
+        let d = ok(&format!("g,y\nA,1\nB,{text}\n"));
+        assert_eq!(
+            texts(&d, "y"),
+            [Some("1".to_owned()), Some(text.to_owned())]
+        );
+    }
+}
+
+#[test]
+fn a_cell_not_utf8_under_no_name_says_so() {
+    let m = err(b"g,y,\nA,1,\xff\n").to_string();
+    assert!(
+        m.contains("line 2, column 3 (no name in the header) holds bytes that are not valid UTF-8"),
+        "{m}"
+    );
 }

@@ -203,15 +203,6 @@ impl Session<'_> {
             detected = data::detect_separator(&head);
         }
         let delimiter = given.or(detected).unwrap_or(default);
-        if decimal_comma && delimiter == b',' {
-            let span = clauses.decimal.as_ref().map_or(path.span, |d| d.span);
-            return Err(Diagnostic::new(
-                span,
-                "a comma cannot both separate the fields and mark the decimals",
-            )
-            .label("decimal comma")
-            .help("give the separator the file uses: separator \";\" (or separator tab, separator \"|\")"));
-        }
         let opts = LoadOptions {
             name: set_name.to_string(),
             delimiter,
@@ -225,12 +216,20 @@ impl Session<'_> {
         let streamed = data::stream_delimited(&mut *reader, len, &opts)
             .map_err(|e| world_error(io_error(&path.value, &e)))?;
         drop(reader);
-        let (set, sha) = match streamed {
-            Streamed::Read { set, sha256 } => (Ok(set), sha256),
-            Streamed::Whole(bytes) => read_whole(&bytes, &opts),
-            Streamed::Again => {
-                read_whole(&self.world.read(&path.value).map_err(world_error)?, &opts)
-            }
+        // The stream reader hands back any file with an unnamed column, so only a file read
+        // whole can have had one left out.
+        let whole = |bytes: &[u8]| {
+            let (set, sha) = read_whole(bytes, &opts);
+            let unnamed = match &set {
+                Ok(_) => data::unnamed_columns(bytes, delimiter),
+                Err(_) => Vec::new(),
+            };
+            (set, sha, unnamed)
+        };
+        let (set, sha, unnamed) = match streamed {
+            Streamed::Read { set, sha256 } => (Ok(set), sha256, Vec::new()),
+            Streamed::Whole(bytes) => whole(&bytes),
+            Streamed::Again => whole(&self.world.read(&path.value).map_err(world_error)?),
         };
         let refused = match &set {
             Err(data::LoadError::RefusedNumber {
@@ -242,8 +241,12 @@ impl Session<'_> {
         };
         self.loads.push((path.value.clone(), refused));
         let set = set.map_err(|e| {
-            Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
-                .label("while reading this file")
+            let d = Diagnostic::new(path.span, format!("in \"{}\": {e}", path.value))
+                .label("while reading this file");
+            match load_help(&e, &path.value, clauses, delimiter, decimal_comma) {
+                Some(h) => d.help(h),
+                None => d,
+            }
         })?;
         let record = InputRecord {
             path: path.value.clone(),
@@ -270,6 +273,16 @@ impl Session<'_> {
         }
         if decimal_comma {
             sentence.push_str(" Decimals are read with a comma (3,5 is 3.5).");
+        }
+        if !unnamed.is_empty() {
+            let one = unnamed.len() == 1;
+            sentence.push_str(&format!(
+                " Column{} {} of the file {} no name in the header and no value in any row (as when every line ends with a separator), so {} left out.",
+                if one { "" } else { "s" },
+                data::list_positions(&unnamed),
+                if one { "has" } else { "have" },
+                if one { "it is" } else { "they are" },
+            ));
         }
         Ok(Loaded {
             set,
@@ -841,6 +854,43 @@ fn read_head(reader: &mut (dyn std::io::Read + Send), head: &mut Vec<u8>) -> std
 
 /// The byte of a `separator` clause: one ASCII character other than the double quote and a
 /// line break (`tab` is the tab).
+/// What to write after a load of delimited text failed, where the message's own advice
+/// cannot say it exactly: the load with `decimal ","` for a decimal comma, and where the
+/// decimal commas must be when commas also separate the fields.
+fn load_help(
+    e: &data::LoadError,
+    path: &str,
+    clauses: &LoadClauses,
+    delimiter: u8,
+    decimal_comma: bool,
+) -> Option<String> {
+    match e {
+        data::LoadError::RefusedNumber {
+            suggestion: data::Suggestion::DecimalComma | data::Suggestion::AmbiguousComma,
+            ..
+        } if !decimal_comma => {
+            let separator = match (&clauses.separator, delimiter) {
+                (None, _) => String::new(),
+                (Some(_), b'\t') => " separator tab".to_owned(),
+                (Some(_), b) => format!(" separator \"{}\"", char::from(b)),
+            };
+            let quoted = if delimiter == b',' {
+                " (the quotes around such a number keep its comma inside its field)"
+            } else {
+                ""
+            };
+            Some(format!(
+                "if the file marks decimals with a comma, write: load \"{path}\"{separator} decimal \",\"{quoted}"
+            ))
+        }
+        data::LoadError::RaggedRow { .. } if decimal_comma && delimiter == b',' => Some(
+            "with decimal \",\" in a file whose fields are separated by commas, every number with a decimal comma must be in quotes (\"1,5\"); or save the file with semicolons between fields and write separator \";\""
+                .to_owned(),
+        ),
+        _ => None,
+    }
+}
+
 fn separator_byte(s: &Spanned<String>) -> Result<u8, Diagnostic> {
     match s.value.as_bytes() {
         [b] if b.is_ascii() && *b != b'"' && *b != b'\n' && *b != b'\r' => Ok(*b),
@@ -876,12 +926,20 @@ fn mixed_notes(set: &DataSet, mixed: &[MixedColumn]) -> Vec<Item> {
     mixed
         .iter()
         .map(|m| {
+            // A number stored as text (a SQLite column without a numeric type, a sheet's
+            // cell formatted as text) is no missing-value marker: say how to store it.
+            let advice = match data::parse_number(&m.text) {
+                data::NumberParse::Number(_) => "that text is a number stored as text: store the column's values as numbers (number cells in a sheet; numeric values in a database, or a `CAST(... AS REAL)` in the query).".to_owned(),
+                _ => format!(
+                    "if that text marks a missing value, declare it with `missing \"{}\"` before the load.",
+                    m.text.replace('\\', "\\\\").replace('"', "\\\"")
+                ),
+            };
             Item::Warning(format!(
-                "Column {} holds numbers and text ({} holds \"{}\"), so it is read as text; if that text marks a missing value, declare it with `missing \"{}\"` before the load.",
+                "Column {} holds numbers and text ({} holds \"{}\"), so it is read as text; {advice}",
                 code(&m.column),
                 crate::report::markdown::escape(&set.place_of(m.row)),
                 crate::report::markdown::escape(&m.text),
-                m.text.replace('\\', "\\\\").replace('"', "\\\"")
             ))
         })
         .collect()

@@ -310,6 +310,9 @@ impl Session<'_> {
             code(&column.value),
             escape(set.rows_are.number_words())
         ))];
+        if let Some(w) = repeated_labels(set, i) {
+            items.push(Item::Warning(w));
+        }
         if missing > 0 {
             items.push(Item::Warning(format!(
                 "{missing} row{} of {} {} no value: {} named by {} {} alone.",
@@ -323,6 +326,79 @@ impl Session<'_> {
         }
         Ok(items)
     }
+}
+
+/// Places listed in full in the warning of repeated labels; the rest are counted.
+const LISTED_PLACES: usize = 5;
+
+/// The warning when labels of column `i` name more than one row: the label that repeats
+/// first (at the earliest row that repeats an earlier row's label), every place it names,
+/// and how many labels repeat. Rows are then told apart by their numbers beside the label.
+fn repeated_labels(set: &DataSet, i: usize) -> Option<String> {
+    let col = set.columns.get(i)?;
+    let mut first_row: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    // The earliest repeat: the row of the label's first use.
+    let mut first_repeat: Option<usize> = None;
+    let mut repeats: std::collections::HashMap<usize, usize> = std::collections::HashMap::new();
+    for row in 0..col.len() {
+        if col.is_missing(row) {
+            continue;
+        }
+        match first_row.entry(col.display_value(row)) {
+            std::collections::hash_map::Entry::Occupied(e) => {
+                let first = *e.get();
+                first_repeat.get_or_insert(first);
+                *repeats.entry(first).or_insert(1) += 1;
+            }
+            std::collections::hash_map::Entry::Vacant(e) => {
+                e.insert(row);
+            }
+        }
+    }
+    let first = first_repeat?;
+    let label = col.display_value(first);
+    let rows: Vec<usize> = (0..col.len())
+        .filter(|&r| !col.is_missing(r) && col.display_value(r) == label)
+        .collect();
+    let numbers: Vec<usize> = rows
+        .iter()
+        .map(|&r| set.row_numbers.get(r).unwrap_or(r + 1))
+        .collect();
+    let shown: Vec<String> = numbers
+        .iter()
+        .take(LISTED_PLACES)
+        .map(usize::to_string)
+        .collect();
+    let mut list = match shown.split_last() {
+        Some((last, [])) => last.clone(),
+        Some((last, rest)) if numbers.len() <= LISTED_PLACES => {
+            format!("{} and {last}", rest.join(", "))
+        }
+        _ => shown.join(", "),
+    };
+    if numbers.len() > LISTED_PLACES {
+        list.push_str(&format!(" and {} more", numbers.len() - LISTED_PLACES));
+    }
+    let places = match &set.rows_are {
+        crate::data::RowOrigin::FileLines => format!("lines {list}"),
+        crate::data::RowOrigin::Sheet(sheet) => {
+            format!("rows {list} of sheet \"{}\"", escape(sheet))
+        }
+        crate::data::RowOrigin::Result => format!("rows {list} of the result"),
+    };
+    let others = repeats.len() - 1;
+    let more = match others {
+        0 => String::new(),
+        1 => " (and one other label names more than one row)".to_owned(),
+        k => format!(" (and {k} other labels name more than one row each)"),
+    };
+    Some(format!(
+        "Labels of {1} repeat: {0} names {2} rows, on {places}{more}; a row whose label repeats is told apart only by its {3}.",
+        code(&label),
+        code(&col.name),
+        rows.len(),
+        escape(set.rows_are.number_words())
+    ))
 }
 
 /// The name of a transformed response as models show it (`log(yield_kg)`), and the scale its
