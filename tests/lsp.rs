@@ -892,6 +892,32 @@ fn the_server_and_the_renderer_agree_on_every_bad_input() {
     assert!(found * 10 >= total * 8, "{found} of {total}");
 }
 
+/// A plan's numbers: the server used to check only that a pilot model exists, so a plan of 1.5
+/// groups, an effect f of two million, a power below alpha or a number per group below what the
+/// design needs was an error only when rendered. Now it reads the statement with the
+/// renderer's own reader (`PlanInputs::read`, and the power figure's `power_lines` and
+/// `axis_end`), so it finds every one of case 96's sixteen errors, at the renderer's line and
+/// column, in its words.
+#[test]
+fn the_server_finds_every_plan_number_the_renderer_refuses() {
+    let dir = root().join("tests/bad/96-plan-numbers");
+    let text = std::fs::read_to_string(dir.join("doc.md")).unwrap_or_else(|e| panic!("{e}"));
+    let rendered = render_errors(&text, &dir);
+    assert_eq!(rendered.len(), 16, "{rendered:?}");
+    let served = server_problems(&text, &dir, false);
+    for (l, c, m) in &rendered {
+        assert!(
+            served
+                .iter()
+                .any(|(sl, sc, sm, s)| (sl, sc, sm, *s) == (l, c, m, Severity::Error)),
+            "the renderer reports {l}:{c} `{m}`, the server does not:\n{served:?}"
+        );
+    }
+    assert_eq!(served.len(), rendered.len(), "{served:?}");
+    let (found, total) = agree("96-plan-numbers", &text, &dir);
+    assert_eq!(found, total);
+}
+
 #[test]
 fn documents_that_render_cleanly_have_no_errors() {
     // The worked documents, the fixtures that render without error, and README's examples.
