@@ -14,7 +14,7 @@ use crate::lang::{
     ReportRequest, Span, Spanned, Statement, StatementKind, TableRequest, TransformDecl,
 };
 use crate::model::ModelError;
-use crate::pipeline::{self, Shift};
+use crate::pipeline::{self, line_start, Shift};
 use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
     quote_name, text_for_number, unknown_data_set, unknown_value,
@@ -390,22 +390,13 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
     a.shift = Shift::new(&doc);
     // A covey block in a list or a block quote is not run: the renderer warns, and so does the
     // server, at its opening fence (it used to say nothing, so the block looked checked).
-    let nested: Vec<Problem> = doc
-        .ignored_nested
-        .iter()
-        .map(|&line| {
-            let start = line_start(&doc.source, line);
-            let rest = &doc.source[start..];
-            let end = start + rest.find(['\n', '\r']).unwrap_or(rest.len());
-            let fence = rest[..end - start]
-                .find(['`', '~'])
-                .map_or(start, |i| start + i);
-            Problem {
-                span: a.span_to_given(Span { start: fence, end }),
-                severity: Severity::Warning,
-                message: pipeline::NESTED_BLOCK.to_string(),
-                help: None,
-            }
+    let nested: Vec<Problem> = pipeline::nested_fences(&doc)
+        .into_iter()
+        .map(|fence| Problem {
+            span: a.span_to_given(fence),
+            severity: Severity::Warning,
+            message: pipeline::NESTED_BLOCK.to_string(),
+            help: None,
         })
         .collect();
     a.document = Some(doc);
@@ -449,18 +440,6 @@ fn offset_of(text: &str, line: usize, column: usize) -> usize {
             .char_indices()
             .nth(column.saturating_sub(1))
             .map_or(line_text.len(), |(i, _)| i)
-}
-
-/// The byte offset where 1-based line `line` of `text` starts (the end when there is none); a
-/// lone CR ends a line, as for the renderer.
-fn line_start(text: &str, line: usize) -> usize {
-    if line <= 1 {
-        return 0;
-    }
-    let text = &*crate::diagnostic::lone_cr_as_lf(text);
-    text.match_indices('\n')
-        .nth(line - 2)
-        .map_or(text.len(), |(i, _)| i + 1)
 }
 
 /// A walk through the statements in document order, as the renderer's session runs them,
