@@ -254,7 +254,10 @@ pub fn run_with(
         }
         bodies.push(Body::Ran(first..outputs.len()));
     }
-    for line in &doc.ignored_nested {
+    // At the line in the text as given: an in-place render puts regions above it (it was the
+    // line in the text without them, so the renderer and the server told different lines).
+    for fence in nested_fences(&doc) {
+        let (line, _) = given.line_col(shift.offset(fence.start));
         warnings.push(for_terminal(format!(
             "{file_name}:{line}: warning: {NESTED_BLOCK}"
         )));
@@ -585,6 +588,36 @@ pub fn block_lines<'a>(source: &'a str, block: &document::Block) -> Vec<(&'a str
 /// bidirectional characters, which are shown by their code points, never obeyed.
 fn for_terminal(message: String) -> String {
     crate::report::visible::visible_except(&message, &['\n', '\t']).into_owned()
+}
+
+/// The byte offset where 1-based line `line` of `text` starts (the end when there is none); a
+/// lone CR ends a line, as for messages.
+pub(crate) fn line_start(text: &str, line: usize) -> usize {
+    if line <= 1 {
+        return 0;
+    }
+    let text = &*diagnostic::lone_cr_as_lf(text);
+    text.match_indices('\n')
+        .nth(line - 2)
+        .map_or(text.len(), |(i, _)| i + 1)
+}
+
+/// The fence of each covey block in a list, quote or footnote that is not run, from its
+/// first backtick or tilde to the end of its line, in the source without regions: where the
+/// renderer's and the server's warnings point.
+pub(crate) fn nested_fences(doc: &Document) -> Vec<Span> {
+    doc.ignored_nested
+        .iter()
+        .map(|&line| {
+            let start = line_start(&doc.source, line).min(doc.source.len());
+            let rest = &doc.source[start..];
+            let end = start + rest.find(['\n', '\r']).unwrap_or(rest.len());
+            let fence = rest[..end - start]
+                .find(['`', '~'])
+                .map_or(start, |i| start + i);
+            Span { start: fence, end }
+        })
+        .collect()
 }
 
 /// Maps offsets in the source without regions to offsets in the text as

@@ -892,6 +892,75 @@ fn the_server_and_the_renderer_agree_on_every_bad_input() {
     assert!(found * 10 >= total * 8, "{found} of {total}");
 }
 
+/// A plan's numbers: the server used to check only that a pilot model exists, so a plan of 1.5
+/// groups, an effect f of two million, a power below alpha or a number per group below what the
+/// design needs was an error only when rendered. Now it reads the statement with the
+/// renderer's own reader (`PlanInputs::read`, and the power figure's `power_lines` and
+/// `axis_end`), so it finds every one of case 96's sixteen errors, at the renderer's line and
+/// column, in its words.
+#[test]
+fn the_server_finds_every_plan_number_the_renderer_refuses() {
+    let dir = root().join("tests/bad/96-plan-numbers");
+    let text = std::fs::read_to_string(dir.join("doc.md")).unwrap_or_else(|e| panic!("{e}"));
+    let rendered = render_errors(&text, &dir);
+    assert_eq!(rendered.len(), 16, "{rendered:?}");
+    let served = server_problems(&text, &dir, false);
+    for (l, c, m) in &rendered {
+        assert!(
+            served
+                .iter()
+                .any(|(sl, sc, sm, s)| (sl, sc, sm, *s) == (l, c, m, Severity::Error)),
+            "the renderer reports {l}:{c} `{m}`, the server does not:\n{served:?}"
+        );
+    }
+    assert_eq!(served.len(), rendered.len(), "{served:?}");
+    let (found, total) = agree("96-plan-numbers", &text, &dir);
+    assert_eq!(found, total);
+}
+
+/// A covey block in a list, below a block whose output an in-place render puts in the file: the
+/// renderer said the warning's line in the text without covey's regions (line 10 of a file
+/// where the fence stands on a later line), the server the line as the editor shows it. Both now
+/// say the line the user sees, before and after the render.
+#[test]
+fn the_nested_block_warning_has_one_line_after_an_in_place_render() {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("lsp-nested-shift");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("{e}"));
+    // Invented data.
+    std::fs::write(dir.join("d.csv"), "g,y\nA,1\nB,2\nA,3\nB,5\n")
+        .unwrap_or_else(|e| panic!("{e}"));
+    let text =
+        "# t\n\n```covey\nload \"d.csv\"\nshow\n```\n\n- item\n\n  ```covey\n  show\n  ```\n";
+    let world = FsWorld::new(&dir, false);
+    let first = pipeline::run(text, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    let words = covey::pipeline::NESTED_BLOCK;
+    assert_eq!(first.warnings, vec![format!("doc.md:10: warning: {words}")]);
+    let rendered = first.rendered;
+    let fence = rendered
+        .lines()
+        .position(|l| l == "  ```covey")
+        .map(|i| i + 1)
+        .unwrap_or_else(|| panic!("{rendered}"));
+    assert!(
+        fence > 10,
+        "the render put nothing above the nested block:\n{rendered}"
+    );
+    let again = pipeline::run(&rendered, "doc.md", &world, RunOptions::default())
+        .unwrap_or_else(|u| panic!("{}", u.errors.join("\n")));
+    assert_eq!(
+        again.warnings,
+        vec![format!("doc.md:{fence}: warning: {words}")]
+    );
+    let served = server_problems(&rendered, &dir, false);
+    assert_eq!(
+        served,
+        vec![(fence, 3, words.to_string(), Severity::Warning)],
+        "{rendered}"
+    );
+}
+
 #[test]
 fn documents_that_render_cleanly_have_no_errors() {
     // The worked documents, the fixtures that render without error, and README's examples.

@@ -10,21 +10,25 @@ use crate::data::{Code, DataSet, Factor, FactorError, LevelOrder, Values};
 use crate::diagnostic::Diagnostic;
 use crate::document::{self, Document, DocumentError};
 use crate::lang::{
-    self, CompareOp, Condition, Gate, Literal, ModelDecl, Params, ReportRequest, Span, Spanned,
-    Statement, StatementKind, TableRequest, TransformDecl,
+    self, CompareOp, Condition, Gate, Literal, ModelDecl, Params, PlanDecl, PowerLines,
+    ReportRequest, Span, Spanned, Statement, StatementKind, TableRequest, TransformDecl,
 };
 use crate::model::ModelError;
-use crate::pipeline::{self, Shift};
+use crate::pipeline::{self, line_start, Shift};
 use crate::session::data_statements::{
     column_index, default_name, factor_column, factor_error, numeric_values, order_on_text,
     quote_name, text_for_number, unknown_data_set, unknown_value,
 };
 use crate::session::model_statements::{column_not_in_model, confidence, Role};
+use crate::session::plan_statements::{
+    axis_end, least_on_axis, pilot_level, power_lines, PlanInputs,
+};
 use crate::session::plot_statements::{
     kind_word, listing, no_factor, not_a_factor, several_factors,
 };
 use crate::session::procedure_statements::{balance_not_in_model, unknown_pair};
 use crate::session::{closest, no_data_set, unknown_model, unknown_plan};
+use crate::stats::power::Design;
 
 use super::data::{DataCache, Lookup, Summary};
 use super::names::{tables_of, uses_of, NameUse};
@@ -386,22 +390,13 @@ pub fn analyze(text: &str, path: Option<&Path>, data: &mut DataCache) -> Analysi
     a.shift = Shift::new(&doc);
     // A covey block in a list or a block quote is not run: the renderer warns, and so does the
     // server, at its opening fence (it used to say nothing, so the block looked checked).
-    let nested: Vec<Problem> = doc
-        .ignored_nested
-        .iter()
-        .map(|&line| {
-            let start = line_start(&doc.source, line);
-            let rest = &doc.source[start..];
-            let end = start + rest.find(['\n', '\r']).unwrap_or(rest.len());
-            let fence = rest[..end - start]
-                .find(['`', '~'])
-                .map_or(start, |i| start + i);
-            Problem {
-                span: a.span_to_given(Span { start: fence, end }),
-                severity: Severity::Warning,
-                message: pipeline::NESTED_BLOCK.to_string(),
-                help: None,
-            }
+    let nested: Vec<Problem> = pipeline::nested_fences(&doc)
+        .into_iter()
+        .map(|fence| Problem {
+            span: a.span_to_given(fence),
+            severity: Severity::Warning,
+            message: pipeline::NESTED_BLOCK.to_string(),
+            help: None,
         })
         .collect();
     a.document = Some(doc);
@@ -447,18 +442,6 @@ fn offset_of(text: &str, line: usize, column: usize) -> usize {
             .map_or(line_text.len(), |(i, _)| i)
 }
 
-/// The byte offset where 1-based line `line` of `text` starts (the end when there is none); a
-/// lone CR ends a line, as for the renderer.
-fn line_start(text: &str, line: usize) -> usize {
-    if line <= 1 {
-        return 0;
-    }
-    let text = &*crate::diagnostic::lone_cr_as_lf(text);
-    text.match_indices('\n')
-        .nth(line - 2)
-        .map_or(text.len(), |(i, _)| i + 1)
-}
-
 /// A walk through the statements in document order, as the renderer's session runs them,
 /// keeping only what names and types need.
 struct Walk<'c> {
@@ -469,6 +452,9 @@ struct Walk<'c> {
     pending: bool,
     /// Some line does not parse: unknown names may be declared there.
     broken: bool,
+    /// The design and effect size of each plan read so far without an error, for the checks
+    /// of `plot power` (the effect is 0 where only solving tells it; no check reads it).
+    designs: Vec<(String, Option<(Design, f64)>)>,
 }
 
 impl<'c> Walk<'c> {
@@ -480,6 +466,7 @@ impl<'c> Walk<'c> {
             problems: Vec::new(),
             pending: false,
             broken: false,
+            designs: Vec::new(),
         }
     }
 
@@ -612,26 +599,74 @@ impl<'c> Walk<'c> {
                 }
             }
             StatementKind::Param { .. } => {}
-            StatementKind::Plan(decl) => {
-                if let Some(pilot) = &decl.pilot {
-                    self.model(pilot);
-                }
-                let plans = &mut self.state.plans;
-                plans.retain(|(n, _)| *n != decl.name.value);
-                plans.push((decl.name.value.clone(), stmt.text.clone()));
-            }
-            // A plan not made before: the renderer's error (the server said nothing).
-            StatementKind::PowerPlot { plan, .. } => {
-                let plans = &self.state.plans;
-                if !self.broken && !plans.iter().any(|(n, _)| *n == plan.value) {
-                    let known: Vec<&str> = plans.iter().map(|(n, _)| n.as_str()).collect();
-                    let d = unknown_plan(plan, &known);
-                    self.error(d);
-                }
+            StatementKind::Plan(decl) => self.plan(decl, stmt),
+            StatementKind::PowerPlot { plan, lines, to } => {
+                self.power_plot(plan, lines.as_ref(), to.as_ref())
             }
             StatementKind::Require(gate) => self.gate(gate),
             StatementKind::Report(request) => self.report(request),
             _ => {}
+        }
+    }
+
+    /// `plan`: the renderer's checks that need no fitting and no solving, through the
+    /// renderer's own reader of the statement; a pilot model is only looked up (its fit,
+    /// and what the plan takes from it, are not known).
+    fn plan(&mut self, decl: &PlanDecl, stmt: &Statement) {
+        let (broken, known): (bool, Vec<String>) = (
+            self.broken,
+            self.state.models.iter().map(|m| m.name.clone()).collect(),
+        );
+        let mut pilot = |m: &Spanned<String>, upper: Option<&Spanned<f64>>| {
+            if !broken && !known.contains(&m.value) {
+                let names: Vec<&str> = known.iter().map(String::as_str).collect();
+                return Err(unknown_model(m, &names));
+            }
+            pilot_level(upper).map(|_| None)
+        };
+        let design = match PlanInputs::read(decl, &mut pilot) {
+            Ok(inputs) => Some((inputs.design().clone(), inputs.effect().unwrap_or(0.0))),
+            Err(d) => {
+                self.error(d);
+                None
+            }
+        };
+        let plans = &mut self.state.plans;
+        plans.retain(|(n, _)| *n != decl.name.value);
+        plans.push((decl.name.value.clone(), stmt.text.clone()));
+        self.designs.retain(|(n, _)| *n != decl.name.value);
+        self.designs.push((decl.name.value.clone(), design));
+    }
+
+    /// `plot power`: a plan not made before (the renderer's error), then the renderer's checks
+    /// of the lines and the axis when the plan's design is known.
+    fn power_plot(
+        &mut self,
+        plan: &Spanned<String>,
+        lines: Option<&PowerLines>,
+        to: Option<&Spanned<f64>>,
+    ) {
+        let plans = &self.state.plans;
+        if !plans.iter().any(|(n, _)| *n == plan.value) {
+            if !self.broken {
+                let known: Vec<&str> = plans.iter().map(|(n, _)| n.as_str()).collect();
+                let d = unknown_plan(plan, &known);
+                self.error(d);
+            }
+            return;
+        }
+        let Some((design, f)) = self
+            .designs
+            .iter()
+            .find(|(n, _)| *n == plan.value)
+            .and_then(|(_, d)| d.clone())
+        else {
+            return;
+        };
+        let checked = power_lines(&design, f, lines, plan)
+            .and_then(|(specs, _)| to.map(|t| axis_end(t, least_on_axis(&specs))).transpose());
+        if let Err(d) = checked {
+            self.error(d);
         }
     }
 
@@ -1057,17 +1092,12 @@ impl<'c> Walk<'c> {
         }
     }
 
-    /// The renderer's error when `factor` is not a factor of model `m`, at `span`. Every
-    /// statement first checks that a named column of the data is in the model; `column_at` is
-    /// where the renderer puts that error (the factor's own words).
-    fn model_factor(
-        &mut self,
-        m: &ModelState,
-        factor: &str,
-        span: Span,
-        label: &str,
-        column_at: Span,
-    ) -> bool {
+    /// The renderer's error when `factor` is not a factor of model `m`, at the factor's own
+    /// words, where the renderer puts it (also its error for a column of the data that is not in
+    /// the model, which every statement checks first).
+    fn model_factor(&mut self, m: &ModelState, factor: &Spanned<String>, label: &str) -> bool {
+        let span = factor.span;
+        let factor = factor.value.as_str();
         let Some(vars) = &m.vars else {
             return true;
         };
@@ -1085,7 +1115,7 @@ impl<'c> Walk<'c> {
                         .map(|v| v.name.clone())
                         .collect();
                     let d = column_not_in_model(
-                        column_at,
+                        span,
                         factor,
                         &c.values,
                         &m.name,
@@ -1300,22 +1330,10 @@ impl<'c> Walk<'c> {
                     return;
                 };
                 self.confidence(level.as_ref());
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    factor.span,
-                    "cannot compute this",
-                    factor.span,
-                ) {
+                if self.model_factor(&m, factor, "cannot compute this") {
                     if let TableRequest::Means { by: Some(by), .. } = request {
                         // `by` names a second factor of the model, checked as the first.
-                        if !self.model_factor(
-                            &m,
-                            &by.value,
-                            by.span,
-                            "cannot compute this",
-                            by.span,
-                        ) {
+                        if !self.model_factor(&m, by, "cannot compute this") {
                             return;
                         }
                     }
@@ -1335,13 +1353,7 @@ impl<'c> Walk<'c> {
                 let span = covariate.as_ref().map_or(factor.span, |c| c.span);
                 // An error about the factor is at its words, as the renderer puts it (it was at
                 // the covariate's: `of group for x` marked `group` for "`x` is not a factor").
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    factor.span,
-                    "cannot compute this",
-                    factor.span,
-                ) {
+                if self.model_factor(&m, factor, "cannot compute this") {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     self.slope_covariate(&m, c, span, "cannot compute this");
                 }
@@ -1356,13 +1368,7 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    factor.span,
-                    "cannot compute this",
-                    factor.span,
-                ) {
+                if self.model_factor(&m, factor, "cannot compute this") {
                     self.slope_covariate(
                         &m,
                         Some(&covariate.value),
@@ -1508,13 +1514,7 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if self.model_factor(
-                    &m,
-                    &factor.value,
-                    factor.span,
-                    "cannot test this",
-                    factor.span,
-                ) {
+                if self.model_factor(&m, factor, "cannot test this") {
                     let c = covariate.as_ref().map(|c| c.value.as_str());
                     let at = covariate.as_ref().map_or(factor.span, |c| c.span);
                     self.slope_covariate(&m, c, at, "cannot test this");
@@ -1601,13 +1601,7 @@ impl<'c> Walk<'c> {
                 let Some(m) = self.model(model) else {
                     return;
                 };
-                if !self.model_factor(
-                    &m,
-                    &factor.value,
-                    factor.span,
-                    "cannot compute this",
-                    factor.span,
-                ) {
+                if !self.model_factor(&m, factor, "cannot compute this") {
                     return;
                 }
                 let Some(levels) = m

@@ -262,6 +262,62 @@ pub(crate) fn alias_cause(
     constant_within(spec, lay, cols, aliased, &terms).unwrap_or(AliasCause::Combination { terms })
 }
 
+/// A covariate and a factor of a model, and how the covariate varies within each level of the
+/// factor over the rows the fit uses.
+pub(crate) struct WithinLevels<'a> {
+    pub covariate: &'a str,
+    pub factor: &'a str,
+    /// The factor's levels, in declared order.
+    pub levels: &'a [String],
+    /// Per level code: the covariate's first value among the rows used at that level and
+    /// whether every other such row has the same value; `None` where no row used is there.
+    pub first: Vec<Option<(f64, bool)>>,
+}
+
+/// How covariate `x` varies within each level of factor `f` (indices into the spec's
+/// variables); `None` when `x` is not a covariate or `f` not a factor. Both the warning about
+/// aliased columns and the reason a slope within a level is not estimable read it, so the two
+/// explain a covariate constant within a level alike.
+pub(crate) fn covariate_within_levels<'a>(
+    spec: &'a ModelSpec,
+    lay: &Layout,
+    x: usize,
+    f: usize,
+) -> Option<WithinLevels<'a>> {
+    let (
+        Some(Var::Numeric {
+            name: covariate,
+            values,
+        }),
+        Some(Var::Factor {
+            name: factor,
+            codes,
+            levels,
+        }),
+    ) = (spec.vars.get(x), spec.vars.get(f))
+    else {
+        return None;
+    };
+    let mut first: Vec<Option<(f64, bool)>> = vec![None; levels.len()];
+    for i in lay.used.iter() {
+        let (Some(code), Some(&v)) = (codes.get(i).and_then(|k| k.get()), values.get(i)) else {
+            continue;
+        };
+        if let Some(slot) = first.get_mut(code as usize) {
+            match slot {
+                None => *slot = Some((v, true)),
+                Some((v0, same)) => *same = *same && *v0 == v,
+            }
+        }
+    }
+    Some(WithinLevels {
+        covariate,
+        factor,
+        levels,
+        first,
+    })
+}
+
 /// A covariate constant within levels of a factor that explains the aliased columns: a
 /// column that is covariate times factor levels, with the covariate constant within one of
 /// those levels; or the covariate alone, constant within every level of a factor.
@@ -291,42 +347,17 @@ fn constant_within(
             own
         };
         for fv in candidates {
-            let (
-                Some(Var::Numeric {
-                    name: xname,
-                    values,
-                }),
-                Some(Var::Factor {
-                    name: fname,
-                    codes,
-                    levels,
-                }),
-            ) = (spec.vars.get(*x), spec.vars.get(fv))
-            else {
+            let Some(within) = covariate_within_levels(spec, lay, *x, fv) else {
                 continue;
             };
             let present = lay
                 .factor(fv)
                 .map(|f| f.present.clone())
                 .unwrap_or_default();
-            // Per level code: the first value seen and whether every other equals it.
-            let mut first: Vec<Option<(f64, bool)>> = vec![None; levels.len()];
-            for i in lay.used.iter() {
-                let (Some(code), Some(&v)) = (codes.get(i).and_then(|k| k.get()), values.get(i))
-                else {
-                    continue;
-                };
-                if let Some(slot) = first.get_mut(code as usize) {
-                    match slot {
-                        None => *slot = Some((v, true)),
-                        Some((v0, same)) => *same = *same && *v0 == v,
-                    }
-                }
-            }
             let constant: Vec<(String, f64)> = present
                 .iter()
-                .filter_map(|&k| match first.get(k as usize).copied().flatten() {
-                    Some((v, true)) => Some((levels.get(k as usize)?.clone(), v)),
+                .filter_map(|&k| match within.first.get(k as usize).copied().flatten() {
+                    Some((v, true)) => Some((within.levels.get(k as usize)?.clone(), v)),
                     _ => None,
                 })
                 .collect();
@@ -338,8 +369,8 @@ fn constant_within(
             };
             if fits {
                 return Some(AliasCause::ConstantWithin {
-                    covariate: xname.clone(),
-                    factor: fname.clone(),
+                    covariate: within.covariate.to_string(),
+                    factor: within.factor.to_string(),
                     more: constant.len().saturating_sub(MAX_CELLS_NAMED),
                     levels: constant.into_iter().take(MAX_CELLS_NAMED).collect(),
                     every,

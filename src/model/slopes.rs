@@ -6,6 +6,7 @@
 
 use std::sync::Arc;
 
+use super::cause::covariate_within_levels;
 use super::design::term_keys;
 use super::fit::{check_level, f_p, fit_owned, t_p, t_quantile, Fit};
 use super::qr;
@@ -555,32 +556,13 @@ fn same_var(a: &Var, b: &Var) -> bool {
 /// about the columns it left out, so the two messages explain it alike; otherwise the reason a
 /// mean there is not estimable (an empty cell).
 fn slope_why_not(m: &Fit, f: usize, x: usize, c: u32) -> String {
-    let (
-        Some(Var::Numeric {
-            name: xname,
-            values,
-        }),
-        Some(Var::Factor {
-            name: fname,
-            codes,
-            levels,
-        }),
-    ) = (m.spec.vars.get(x), m.spec.vars.get(f))
-    else {
+    let Some(within) = covariate_within_levels(&m.spec, &m.lay, x, f) else {
         return m.why_not(f, &[c]);
     };
-    let mut within = m
-        .lay
-        .used
-        .iter()
-        .filter(|&i| codes.get(i).and_then(|k| k.get()) == Some(c))
-        .filter_map(|i| values.get(i).copied());
-    let Some(first) = within.next() else {
+    let Some((first, true)) = within.first.get(c as usize).copied().flatten() else {
         return m.why_not(f, &[c]);
     };
-    if within.any(|v| v != first) {
-        return m.why_not(f, &[c]);
-    }
+    let (xname, fname) = (within.covariate, within.factor);
     let fitted = m.warnings.iter().find_map(|w| match w {
         super::ModelWarning::Aliased {
             cause:
@@ -593,9 +575,12 @@ fn slope_why_not(m: &Fit, f: usize, x: usize, c: u32) -> String {
     });
     fitted.unwrap_or_else(|| {
         AliasCause::ConstantWithin {
-            covariate: xname.clone(),
-            factor: fname.clone(),
-            levels: vec![(levels.get(c as usize).cloned().unwrap_or_default(), first)],
+            covariate: xname.to_string(),
+            factor: fname.to_string(),
+            levels: vec![(
+                within.levels.get(c as usize).cloned().unwrap_or_default(),
+                first,
+            )],
             more: 0,
             every: false,
             terms: Vec::new(),

@@ -8,7 +8,7 @@ mod check_statements;
 pub(crate) mod data_statements;
 pub(crate) mod derived;
 pub(crate) mod model_statements;
-mod plan_statements;
+pub(crate) mod plan_statements;
 pub(crate) use plan_statements::unknown_plan;
 pub(crate) mod plot_statements;
 pub(crate) mod procedure_statements;

@@ -61,7 +61,7 @@ pub struct PlanEntry {
 }
 
 /// What a pilot model gives a plan.
-struct PilotUse {
+pub(crate) struct PilotUse {
     name: String,
     info: Pilot,
     /// The residual SD used: the estimate, or its upper confidence limit.
@@ -192,6 +192,13 @@ fn open_unit(v: &Spanned<f64>, what: &str, low: f64) -> Result<f64, Diagnostic> 
     Ok(v.value)
 }
 
+/// The level of `upper L`, the one-sided confidence limit of a pilot's SD to plan with.
+pub(crate) fn pilot_level(upper: Option<&Spanned<f64>>) -> Result<Option<f64>, Diagnostic> {
+    upper
+        .map(|u| open_unit(u, "the level of the upper limit", 0.5))
+        .transpose()
+}
+
 /// The word of a count: "1 covariate", "2 covariates".
 fn count(n: u64, one: &str, many: &str) -> String {
     if n == 1 {
@@ -217,8 +224,50 @@ fn plan_error(span: Span, e: &PlanError) -> Diagnostic {
         .help(help)
 }
 
-impl Session<'_> {
-    pub(super) fn plan(&mut self, decl: &PlanDecl) -> Outcome {
+/// A `plan` statement read and checked, all but the solving.
+pub(crate) struct PlanInputs {
+    design: Design,
+    /// The pilot model as read; `None` without one, or when its fit is not known.
+    pilot: Option<PilotUse>,
+    r_squared_from_pilot: bool,
+    sd_written: Option<f64>,
+    /// The SD within groups without covariates: as written, or the pilot's.
+    sd: Option<f64>,
+    /// The effect size given or made from the means; `None` for a detectable effect, or for
+    /// means whose SD is a pilot's that is not known.
+    f_given: Option<f64>,
+    /// Where an error about the effect points.
+    effect_span: Span,
+    target: Option<(f64, Span)>,
+    n: Option<(u64, Span)>,
+}
+
+/// What reads the pilot model of `from M [upper L]` for [`PlanInputs::read`]: the session's
+/// fitted model, or (in the language server, which fits nothing) `Ok(None)` after the checks
+/// it can make.
+pub(crate) type PilotReader<'a> =
+    dyn FnMut(&Spanned<String>, Option<&Spanned<f64>>) -> Result<Option<PilotUse>, Diagnostic> + 'a;
+
+impl PlanInputs {
+    /// The plan's design: groups, ratio, covariates, R² and alpha.
+    pub(crate) fn design(&self) -> &Design {
+        &self.design
+    }
+
+    /// The effect size given or made from the means, when known without solving.
+    pub(crate) fn effect(&self) -> Option<f64> {
+        self.f_given
+    }
+
+    /// Every check of a `plan` statement short of solving it, in the renderer's order, so
+    /// that the renderer and the language server give the same first error at the same place
+    /// in the same words. A pilot whose fit is not known (`pilot` gives `Ok(None)` for a
+    /// named model) leaves out what depends on it: its R² and its SD, and so the effect of
+    /// means given without an SD.
+    pub(crate) fn read(
+        decl: &PlanDecl,
+        pilot: &mut PilotReader<'_>,
+    ) -> Result<PlanInputs, Diagnostic> {
         let groups = whole(&decl.groups, "the number of groups", 2, MAX_GROUPS)?;
         let ratio = match &decl.ratio {
             None => Vec::new(),
@@ -263,7 +312,7 @@ impl Session<'_> {
             None => DEFAULT_ALPHA,
         };
         let pilot = match &decl.pilot {
-            Some(m) => Some(self.pilot_use(m, decl.upper.as_ref())?),
+            Some(m) => pilot(m, decl.upper.as_ref())?,
             None => None,
         };
 
@@ -336,6 +385,8 @@ impl Session<'_> {
                 }
                 (p.info.partial_r_squared, true)
             }
+            // A pilot whose fit is not known: its R² is not known either.
+            (None, _, None) if decl.pilot.is_some() => (0.0, false),
             (None, _, None) => {
                 let span = decl.covariates.as_ref().map_or(decl.name.span, |s| s.span);
                 return Err(Diagnostic::new(
@@ -357,10 +408,8 @@ impl Session<'_> {
                 return Err(Diagnostic::new(s.span, "an SD must be above 0").label("out of range"));
             }
         }
-        let sd = sd_written
-            .as_ref()
-            .map(|s| s.value)
-            .or(pilot.as_ref().map(|p| p.sd_without));
+        let sd_written = sd_written.map(|s| s.value);
+        let sd = sd_written.or(pilot.as_ref().map(|p| p.sd_without));
 
         let design = Design {
             groups,
@@ -394,6 +443,20 @@ impl Session<'_> {
                     .label("one mean per group"));
                 }
                 let Some(s) = sd else {
+                    if decl.pilot.is_some() {
+                        // The SD of a pilot whose fit is not known.
+                        return Ok(PlanInputs {
+                            design,
+                            pilot,
+                            r_squared_from_pilot,
+                            sd_written,
+                            sd,
+                            f_given: None,
+                            effect_span: means.span,
+                            target: None,
+                            n: None,
+                        });
+                    }
                     return Err(Diagnostic::new(
                         means.span,
                         "the means need the SD within groups to become an effect size",
@@ -428,8 +491,61 @@ impl Session<'_> {
             }
         };
 
-        let (f, result) = solve(&design, f_given, decl, effect_span)?;
-        let target = decl.power.as_ref().map(|p| p.value);
+        let target = decl
+            .power
+            .as_ref()
+            .map(|p| {
+                if !(p.value > design.alpha && p.value < 1.0) {
+                    return Err(Diagnostic::new(
+                        p.span,
+                        format!(
+                            "a target power must lie above alpha ({}) and below 1",
+                            short(design.alpha)
+                        ),
+                    )
+                    .label("out of range")
+                    .help("a target power such as 0.8 or 0.9 is usual"));
+                }
+                Ok((p.value, p.span))
+            })
+            .transpose()?;
+        let n = decl
+            .n
+            .as_ref()
+            .map(|n| {
+                whole(n, "the number per group", design.least_n(), MAX_PER_GROUP)
+                    .map(|v| (v, n.span))
+            })
+            .transpose()?;
+        Ok(PlanInputs {
+            design,
+            pilot,
+            r_squared_from_pilot,
+            sd_written,
+            sd,
+            f_given,
+            effect_span,
+            target,
+            n,
+        })
+    }
+}
+
+impl Session<'_> {
+    pub(super) fn plan(&mut self, decl: &PlanDecl) -> Outcome {
+        let PlanInputs {
+            design,
+            pilot,
+            r_squared_from_pilot,
+            sd_written,
+            sd,
+            f_given,
+            effect_span,
+            target,
+            n,
+        } = PlanInputs::read(decl, &mut |m, upper| self.pilot_use(m, upper).map(Some))?;
+        let (f, result) = solve(&design, f_given, n, target, decl.name.span, effect_span)?;
+        let target = target.map(|(t, _)| t);
 
         let mut items = Vec::new();
         let mut t = plan_table(decl, &design, f, sd, &result);
@@ -500,9 +616,7 @@ impl Session<'_> {
             )
             .label("no SD in the pilot"));
         }
-        let level = upper
-            .map(|u| open_unit(u, "the level of the upper limit", 0.5))
-            .transpose()?;
+        let level = pilot_level(upper)?;
         let mut p = PilotUse {
             name: model.value.clone(),
             sigma: info.sigma,
@@ -525,56 +639,8 @@ impl Session<'_> {
     ) -> Outcome {
         let entry = self.plan_entry(plan)?;
         let d = &entry.design;
-        // The lines: (label, design, f).
-        let mut specs: Vec<(String, Design, f64)> = Vec::new();
-        let (legend, values_span) = match lines {
-            Some(PowerLines::Effects(v)) => {
-                for &f in &v.value {
-                    if !(f > 0.0 && f <= MAX_EFFECT) {
-                        return Err(Diagnostic::new(
-                            v.span,
-                            format!(
-                                "each effect size f must be above 0 and at most {}",
-                                short(MAX_EFFECT)
-                            ),
-                        )
-                        .label("out of range"));
-                    }
-                    specs.push((label(f), d.clone(), f));
-                }
-                ("effect f".to_string(), Some(v.span))
-            }
-            Some(PowerLines::RSquared(v)) => {
-                for &r in &v.value {
-                    if !(0.0..1.0).contains(&r) {
-                        return Err(Diagnostic::new(
-                            v.span,
-                            "each R² must be at least 0 and below 1",
-                        )
-                        .label("out of range"));
-                    }
-                    specs.push(r_squared_line(d, r, entry.f));
-                }
-                ("R²".to_string(), Some(v.span))
-            }
-            None if d.covariates > 0 => {
-                specs.push(r_squared_line(d, 0.0, entry.f));
-                specs.push(r_squared_line(d, d.r_squared, entry.f));
-                ("R²".to_string(), None)
-            }
-            None => {
-                specs.push((label(entry.f), d.clone(), entry.f));
-                ("effect f".to_string(), None)
-            }
-        };
-        if specs.len() > STYLES {
-            return Err(Diagnostic::new(
-                values_span.unwrap_or(plan.span),
-                format!("a power figure draws at most {STYLES} lines"),
-            )
-            .label("too many lines"));
-        }
-        let low = specs.iter().map(|s| s.1.least_n()).max().unwrap_or(2);
+        let (specs, legend) = power_lines(d, entry.f, lines, plan)?;
+        let low = least_on_axis(&specs);
         // Where each line reaches the target (the plan's target, or its power at its n).
         let mark = entry.target.unwrap_or(entry.power);
         let reach: Vec<Option<u64>> = specs
@@ -582,7 +648,7 @@ impl Session<'_> {
             .map(|(_, ds, f)| ds.n_for_power(*f, mark).ok().map(|p| p.n))
             .collect();
         let high = match to {
-            Some(t) => whole(t, "the largest number per group", low + 1, MAX_PER_GROUP)?,
+            Some(t) => axis_end(t, low)?,
             None => {
                 let mut h = entry.n.saturating_mul(2);
                 for r in reach.iter().flatten() {
@@ -685,6 +751,79 @@ impl Session<'_> {
     }
 }
 
+/// The lines of a power figure, each a label, a design and an effect size, and the legend's
+/// title.
+pub(crate) type PowerSpecs = (Vec<(String, Design, f64)>, String);
+
+/// The lines of `plot power` for a plan of design `d` and effect size `f`, with the
+/// renderer's errors for values out of range and too many lines (none depends on `f`).
+pub(crate) fn power_lines(
+    d: &Design,
+    f: f64,
+    lines: Option<&PowerLines>,
+    plan: &Spanned<String>,
+) -> Result<PowerSpecs, Diagnostic> {
+    // The lines: (label, design, f).
+    let mut specs: Vec<(String, Design, f64)> = Vec::new();
+    let (legend, values_span) = match lines {
+        Some(PowerLines::Effects(v)) => {
+            for &f in &v.value {
+                if !(f > 0.0 && f <= MAX_EFFECT) {
+                    return Err(Diagnostic::new(
+                        v.span,
+                        format!(
+                            "each effect size f must be above 0 and at most {}",
+                            short(MAX_EFFECT)
+                        ),
+                    )
+                    .label("out of range"));
+                }
+                specs.push((label(f), d.clone(), f));
+            }
+            ("effect f".to_string(), Some(v.span))
+        }
+        Some(PowerLines::RSquared(v)) => {
+            for &r in &v.value {
+                if !(0.0..1.0).contains(&r) {
+                    return Err(
+                        Diagnostic::new(v.span, "each R² must be at least 0 and below 1")
+                            .label("out of range"),
+                    );
+                }
+                specs.push(r_squared_line(d, r, f));
+            }
+            ("R²".to_string(), Some(v.span))
+        }
+        None if d.covariates > 0 => {
+            specs.push(r_squared_line(d, 0.0, f));
+            specs.push(r_squared_line(d, d.r_squared, f));
+            ("R²".to_string(), None)
+        }
+        None => {
+            specs.push((label(f), d.clone(), f));
+            ("effect f".to_string(), None)
+        }
+    };
+    if specs.len() > STYLES {
+        return Err(Diagnostic::new(
+            values_span.unwrap_or(plan.span),
+            format!("a power figure draws at most {STYLES} lines"),
+        )
+        .label("too many lines"));
+    }
+    Ok((specs, legend))
+}
+
+/// The smallest number per group on a power figure's axis: the most any of its lines needs.
+pub(crate) fn least_on_axis(specs: &[(String, Design, f64)]) -> u64 {
+    specs.iter().map(|s| s.1.least_n()).max().unwrap_or(2)
+}
+
+/// The axis's end given by `to N`: above its start `low`.
+pub(crate) fn axis_end(to: &Spanned<f64>, low: u64) -> Result<u64, Diagnostic> {
+    whole(to, "the largest number per group", low + 1, MAX_PER_GROUP)
+}
+
 /// The error for a plan not made before `plot power` names it (the renderer's and the
 /// language server's words).
 pub(crate) fn unknown_plan(name: &Spanned<String>, known: &[&str]) -> Diagnostic {
@@ -724,34 +863,11 @@ fn r_squared_line(d: &Design, r: f64, f: f64) -> (String, Design, f64) {
 fn solve(
     design: &Design,
     f: Option<f64>,
-    decl: &PlanDecl,
+    n: Option<(u64, Span)>,
+    target: Option<(f64, Span)>,
+    name: Span,
     effect_span: Span,
 ) -> Result<(f64, Power), Diagnostic> {
-    let target = decl
-        .power
-        .as_ref()
-        .map(|p| {
-            if !(p.value > design.alpha && p.value < 1.0) {
-                return Err(Diagnostic::new(
-                    p.span,
-                    format!(
-                        "a target power must lie above alpha ({}) and below 1",
-                        short(design.alpha)
-                    ),
-                )
-                .label("out of range")
-                .help("a target power such as 0.8 or 0.9 is usual"));
-            }
-            Ok((p.value, p.span))
-        })
-        .transpose()?;
-    let n = decl
-        .n
-        .as_ref()
-        .map(|n| {
-            whole(n, "the number per group", design.least_n(), MAX_PER_GROUP).map(|v| (v, n.span))
-        })
-        .transpose()?;
     match (f, n, target) {
         (Some(f), None, Some((t, span))) => {
             let span = if f == 0.0 { effect_span } else { span };
@@ -768,7 +884,7 @@ fn solve(
             .detectable_f(n, t)
             .map_err(|e| plan_error(span, &e)),
         _ => Err(Diagnostic::new(
-            decl.name.span,
+            name,
             "internal error: the plan's parts are not where the grammar puts them (please report this)",
         )),
     }
