@@ -24,6 +24,7 @@ use covey::pipeline::{self, RunOptions};
 use covey::world::MemoryWorld;
 use serde_json::Value;
 use std::collections::BTreeMap;
+use std::sync::OnceLock;
 
 const DIR: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/");
 
@@ -32,8 +33,22 @@ fn read(set: &str, name: &str) -> String {
         .unwrap_or_else(|e| panic!("{set}/{name}: {e}"))
 }
 
-/// The checked document of `set` run on its data, in memory.
-fn run_document(set: &str) -> pipeline::Run {
+/// The checked document of `set` run on its data, in memory: run once per set and shared by
+/// the tests that read it (each run takes a second or two, most of it in the lattice of
+/// Dunnett's comparisons, `stats::mvt`), so the file takes one run of each set, not two.
+fn run_document(set: &str) -> &'static pipeline::Run {
+    static OUTSIDE: OnceLock<pipeline::Run> = OnceLock::new();
+    static OUTSIDE2: OnceLock<pipeline::Run> = OnceLock::new();
+    let cell = match set {
+        "outside" => &OUTSIDE,
+        "outside2" => &OUTSIDE2,
+        _ => panic!("no set {set}"),
+    };
+    cell.get_or_init(|| run_set(set))
+}
+
+/// `set`'s document run on its data, in memory.
+fn run_set(set: &str) -> pipeline::Run {
     let csv = format!("{set}.csv");
     let data = read(set, &csv);
     let world = MemoryWorld::new().with(&csv, data.into_bytes());

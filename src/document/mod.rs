@@ -251,7 +251,7 @@ fn strip_all(
     want_references: bool,
 ) -> Result<(Stripped, Vec<values::FoundReference>), DocumentError> {
     let mut stripped = strip_regions(text)?;
-    let prose = values::scan(&stripped.text);
+    let prose = values::scan_by_pieces(&stripped.text, &stripped.outline.closed_fence_lines);
     if prose.regions.is_empty() {
         return Ok((stripped, prose.references));
     }
@@ -315,7 +315,8 @@ fn strip_all(
     stripped.removals.sort_by_key(|r| r.at);
     stripped.text = text_out;
     let references = if want_references {
-        values::scan(&stripped.text).references
+        // Value regions sit within lines of prose: the outline's lines are still the text's.
+        values::scan_by_pieces(&stripped.text, &stripped.outline.closed_fence_lines).references
     } else {
         Vec::new()
     };

@@ -7,7 +7,7 @@
 use comrak::nodes::NodeValue;
 use comrak::{parse_document, Arena, Options};
 
-use super::lines::LineIndex;
+use super::lines::{next_line_start, LineIndex};
 use super::{OUTPUT_END, PROVENANCE_END};
 
 /// The front matter delimiter covey accepts (YAML style).
@@ -30,7 +30,7 @@ pub(super) struct CoveyFence {
 }
 
 /// What one comrak parse of a text found.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub(super) struct Outline {
     /// Top-level covey fences, in document order.
     pub fences: Vec<CoveyFence>,
@@ -64,20 +64,133 @@ fn is_covey_info(info: &str) -> bool {
     info.split_whitespace().next() == Some(COVEY_INFO)
 }
 
-/// Parse a whole document with comrak and collect what the document module needs.
+/// About how many bytes of a long text comrak reads at a time (see [`outline`]): its tree takes
+/// about six times the bytes it reads, so a long document is never read whole.
+pub(super) const PIECE_BYTES: usize = 1 << 20;
+
+/// Read a whole document with comrak and collect what the document module needs.
+///
+/// A long document is read a piece at a time. After the closing fence line of a top-level
+/// fenced code block comrak has no block open, so the lines after it are read the same way
+/// whether comrak starts there or at the top: a piece of about [`PIECE_BYTES`] is read, what it
+/// says up to its last such line is kept, and the next piece starts on the line after (a piece
+/// without one is read again twice as long). The outline is that of the whole text read at
+/// once; only comrak's tree is never built for more than a piece.
 pub(super) fn outline(text: &str) -> Outline {
-    outline_of(text, true)
+    outline_pieces(text, PIECE_BYTES)
+}
+
+/// [`outline`] with pieces of about `bytes` (small ones in tests).
+pub(super) fn outline_pieces(text: &str, bytes: usize) -> Outline {
+    let front_matter = front_matter_end(text);
+    let mut out = Outline {
+        provenance_at: front_matter.unwrap_or_else(|| bom_len(text)),
+        ..Outline::default()
+    };
+    let mut pos = 0usize;
+    // Lines of the text before `pos`.
+    let mut lines_before = 0usize;
+    let mut size = bytes.max(1);
+    while pos < text.len() || pos == 0 {
+        let mut reach = pos.saturating_add(size);
+        if pos == 0 {
+            // The first piece holds the whole front matter.
+            reach = reach.max(front_matter.unwrap_or(0));
+        }
+        let end = if reach >= text.len() {
+            text.len()
+        } else {
+            next_line_start(text, reach)
+        };
+        let Some(piece) = text.get(pos..end) else {
+            break;
+        };
+        let view = if pos == 0 {
+            outline_of(piece, Start::Document(front_matter))
+        } else {
+            outline_of(piece, Start::Fresh)
+        };
+        let last = end == text.len();
+        // The last top-level closing fence line of the piece: nothing is open after it.
+        let cut = if last {
+            None
+        } else {
+            let index = LineIndex::new(piece);
+            view.closed_fence_lines
+                .iter()
+                .filter_map(|&line| Some((line, index.span(piece, line)?)))
+                .filter(|(_, span)| span.end > span.content_end)
+                .max_by_key(|(line, _)| *line)
+        };
+        if !last && cut.is_none() {
+            size = size.saturating_mul(2);
+            continue;
+        }
+        let keep = cut.map_or(usize::MAX, |(line, _)| line);
+        let shift = |line: usize| line + lines_before;
+        out.fences.extend(
+            view.fences
+                .into_iter()
+                .filter(|f| f.fence_line <= keep)
+                .map(|f| CoveyFence {
+                    fence_line: shift(f.fence_line),
+                    closing_line: f.closing_line.map(shift),
+                    ..f
+                }),
+        );
+        out.nested.extend(
+            view.nested
+                .iter()
+                .filter(|&&l| l <= keep)
+                .map(|&l| shift(l)),
+        );
+        out.closed_fence_lines.extend(
+            view.closed_fence_lines
+                .iter()
+                .filter(|&&l| l <= keep)
+                .map(|&l| shift(l)),
+        );
+        out.end_markers.extend(
+            view.end_markers
+                .iter()
+                .filter(|&&l| l <= keep)
+                .map(|&l| shift(l)),
+        );
+        match cut {
+            Some((line, span)) => {
+                pos += span.end;
+                lines_before += line;
+                size = bytes.max(1);
+            }
+            None => break,
+        }
+    }
+    out
+}
+
+/// Where comrak starts reading a text.
+#[derive(Clone, Copy)]
+enum Start {
+    /// At the top of the document, whose front matter (of the whole document) ends there.
+    Document(Option<usize>),
+    /// Where comrak has no block open (see [`outline_part`]).
+    Fresh,
 }
 
 /// Like [`outline`], for a piece of a document that starts where comrak has no block open (the
 /// line after a top-level closing fence, or the line after a begin marker): no front matter and
 /// no byte-order mark are looked for. Line numbers count from the piece's first line.
 pub(super) fn outline_part(text: &str) -> Outline {
-    outline_of(text, false)
+    outline_of(text, Start::Fresh)
 }
 
-fn outline_of(text: &str, whole: bool) -> Outline {
-    let front_matter = if whole { front_matter_end(text) } else { None };
+/// One comrak read of `text`. Lines count from the text's first line; `provenance_at` is left
+/// to the caller.
+fn outline_of(text: &str, start: Start) -> Outline {
+    let (whole, front_matter) = match start {
+        Start::Document(front_matter) => (true, front_matter),
+        Start::Fresh => (false, None),
+    };
     let prepared;
     // An empty first line keeps comrak from reading a piece's first line as the document's
     // first (front matter, byte-order mark); `shift` undoes it in the line numbers.
@@ -96,10 +209,7 @@ fn outline_of(text: &str, whole: bool) -> Outline {
     let options = options();
     let root = parse_document(&arena, parsed, &options);
     let index = LineIndex::new(text);
-    let mut out = Outline {
-        provenance_at: front_matter.unwrap_or_else(|| if whole { bom_len(text) } else { 0 }),
-        ..Outline::default()
-    };
+    let mut out = Outline::default();
 
     for node in root.descendants() {
         let data = node.data();

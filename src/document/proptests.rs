@@ -426,3 +426,27 @@ proptest! {
         prop_assert_eq!(fast, reference_strip(&text));
     }
 }
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 400, .. ProptestConfig::default() })]
+
+    /// A text read a piece at a time (pieces of a few bytes here, so that every closing fence
+    /// line is a cut) gives the outline and the references of the text read at once.
+    #[test]
+    fn reading_by_pieces_matches_reading_whole(pieces in prop::collection::vec(prop::sample::select(vec![
+        "```covey\nx\n```\n", "~~~~covey\n", "```\n", "````\n", "~~~\n", "\n", "\r\n", "\r",
+        "x\n", "- ", "> ", "  ", "    ", "1. ", "<div>\n", "<!--", "-->", "\n\n", "---\n",
+        "| a |\n|---|\n", "\u{feff}", "```covey\n", "```text\n", "`", "*", "_", "[", "]", "\\",
+        "a value @[fit m n] here\n", "@[means m A mean] begins\n", "| @[fit m n] | b |\n",
+        "<wbr>@[fit m p] ", "x <!-- covey:value @[fit m n] -->1.5<!-- covey:value-end --> y\n",
+        "<!-- covey:output-end -->\n", "Title\n===\n", "[x]: http://example.com\n",
+        "[^1]: note\n", "[fit m n]", "é統\n", "<script>\n", "</script>\n",
+    ]), 0..40), bytes in 1usize..64) {
+        use super::outline::outline_pieces;
+        use super::values::{scan, scan_pieces_of};
+        let text: String = pieces.concat();
+        let whole = outline_pieces(&text, usize::MAX);
+        prop_assert_eq!(&outline_pieces(&text, bytes), &whole);
+        prop_assert_eq!(scan_pieces_of(&text, &whole.closed_fence_lines, bytes), scan(&text));
+    }
+}

@@ -55,7 +55,7 @@ pub(super) struct FoundRegion {
 }
 
 /// What one comrak parse of a text found in its prose.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub(super) struct Prose {
     pub references: Vec<FoundReference>,
     pub regions: Vec<FoundRegion>,
@@ -64,6 +64,74 @@ pub(super) struct Prose {
 /// Find the references and value regions in the prose of a whole document.
 pub(super) fn scan(text: &str) -> Prose {
     scan_text(text, true)
+}
+
+/// [`scan`] a piece at a time, so that comrak's tree is never built for the whole of a long
+/// document. `cuts` are the text's lines (1-based, ascending) after which comrak has no block
+/// open: the closing fence lines of its top-level fenced code blocks. The lines after such a
+/// line read the same whether comrak starts there or at the top, with one exception: a link
+/// reference or footnote definition anywhere in a document changes how brackets read
+/// everywhere in it. A text that could hold one (any `]:` in it) is read whole.
+pub(super) fn scan_by_pieces(text: &str, cuts: &[usize]) -> Prose {
+    scan_pieces_of(text, cuts, super::outline::PIECE_BYTES)
+}
+
+/// [`scan_by_pieces`] with pieces of about `bytes` (small ones in tests).
+pub(super) fn scan_pieces_of(text: &str, cuts: &[usize], bytes: usize) -> Prose {
+    if cuts.is_empty() || text.len() <= bytes || text.contains("]:") {
+        return scan(text);
+    }
+    let index = LineIndex::new(text);
+    // Byte offsets where a piece may end (the start of the line after a cut), ascending.
+    let ends: Vec<usize> = cuts
+        .iter()
+        .filter_map(|&line| index.span(text, line))
+        .filter(|span| span.end > span.content_end)
+        .map(|span| span.end)
+        .collect();
+    let mut out = Prose::default();
+    let mut start = 0usize;
+    while start < text.len() {
+        // The last end within `bytes` of the start, or else the first after it, or the text's end.
+        let next = ends.partition_point(|&e| e <= start.saturating_add(bytes));
+        let end = next
+            .checked_sub(1)
+            .and_then(|i| ends.get(i))
+            .filter(|&&e| e > start)
+            .or_else(|| ends.get(next))
+            .copied()
+            .unwrap_or(text.len());
+        let Some(piece) = text.get(start..end) else {
+            return scan(text);
+        };
+        if start == 0 {
+            let prose = scan(piece);
+            out.references.extend(prose.references);
+            out.regions.extend(prose.regions);
+        } else if piece.contains(live::OPEN) || piece.contains(VALUE_BEGIN) {
+            // An empty first line keeps comrak from reading the piece's first line as the
+            // document's (a byte-order mark there would be dropped); offsets move back by it.
+            let first_line = index.line_of(start);
+            let prose = scan_piece(&format!("\n{piece}"));
+            let at = |offset: usize| start + offset.saturating_sub(1);
+            let line = |l: usize| if l == 0 { 0 } else { l + first_line - 2 };
+            out.references
+                .extend(prose.references.into_iter().map(|r| FoundReference {
+                    start: at(r.start),
+                    end: at(r.end),
+                    begins_line: r.begins_line,
+                    block: (line(r.block.0), line(r.block.1)),
+                }));
+            out.regions
+                .extend(prose.regions.into_iter().map(|r| FoundRegion {
+                    start: at(r.start),
+                    end: at(r.end),
+                    ..r
+                }));
+        }
+        start = end;
+    }
+    out
 }
 
 /// [`scan`] of a piece of a document made of whole top-level blocks: no front matter is looked
